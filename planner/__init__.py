@@ -1,0 +1,3 @@
+"""Planner for spectrophotometric equilibrium-constant experiments."""
+
+__version__ = "0.1.0"

@@ -1,0 +1,5 @@
+"""``python -m planner``."""
+
+from planner.cli import main
+
+main()

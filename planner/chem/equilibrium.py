@@ -1,0 +1,486 @@
+"""Mass-action equilibrium of components and product species, vectorised over many mixtures.
+
+Components (free reagent ions such as a metal ion M and a ligand L) combine into product
+species ``M_a L_b ...`` with overall formation constants beta. Given the total (analytical)
+concentration of every component in every mixture, :func:`solve_equilibrium` finds the free
+component concentrations that satisfy all mass balances at once.
+
+Notes
+-----
+With x_j = ln c_j the free log-concentrations, species i has concentration
+
+    s_i = beta_i * prod_j c_j^(a_ij),   ln s_i = ln beta_i + sum_j a_ij x_j,
+
+and the mass balance of component j is
+
+    g_j(x) = c_j + sum_i a_ij s_i - T_j = 0.
+
+g is the gradient of the strictly convex function
+F(x) = sum_j c_j + sum_i s_i - sum_j T_j x_j, whose Hessian
+H = diag(c) + A^T diag(s) A is symmetric positive definite, so the root is unique and a
+Newton iteration with a line search on F converges from any start (the classical convex
+formulation of chemical equilibrium: Smith and Missen, Chemical Reaction Equilibrium Analysis,
+Wiley 1982, ch. 6). The start comes from a few positive-continued-fraction sweeps, which move
+free concentrations by many orders of magnitude per sweep (Carrayrou, Mosé and Behra, AIChE J.
+48 (2002) 894-904, doi:10.1002/aic.690480423).
+
+The 1:1 system M + L = ML has a closed form (:func:`one_to_one_complex_M`), used as a fast path
+and as an independent check.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from planner.errors import ConvergenceError, InvalidInputError
+
+__all__ = [
+    "Equilibrium",
+    "bound_fraction",
+    "one_to_one_complex_M",
+    "solve_equilibrium",
+]
+
+_LN10 = float(np.log(10.0))
+# Zero totals are solved as this tiny positive total and then set back to exactly zero; at
+# 1e-280 mol/L the stand-in changes no other mass balance by more than 1e-270 relative.
+_ZERO_STAND_IN_M = 1e-280
+# Newton stops when every relative mass-balance residual is below this; two decades below the
+# 1e-10 the design requires, to leave room for rounding in the final species evaluation.
+_RTOL = 1e-12
+_MAX_NEWTON = 200
+_PCF_SWEEPS = 6
+
+
+@dataclass(frozen=True, slots=True)
+class Equilibrium:
+    """Solution of the mass balances for a batch of mixtures.
+
+    Attributes
+    ----------
+    free_M
+        Free concentration of each component, shape (n, n_components) [mol/L].
+    species_M
+        Concentration of each product species, shape (n, n_species) [mol/L].
+    relative_residual
+        Mass-balance residual of each component divided by its total, shape
+        (n, n_components) [unitless]; 0 where the total is 0.
+    iterations
+        Newton iterations used by the slowest mixture [unitless].
+    """
+
+    free_M: NDArray[np.float64]
+    species_M: NDArray[np.float64]
+    relative_residual: NDArray[np.float64]
+    iterations: int
+
+
+def one_to_one_complex_M(
+    metal_total_M: ArrayLike, ligand_total_M: ArrayLike, K: ArrayLike
+) -> NDArray[np.float64]:
+    """Concentration of ML in M + L = ML from the closed-form quadratic root.
+
+    Parameters
+    ----------
+    metal_total_M
+        Total concentration of M, any shape broadcastable with the others [mol/L].
+    ligand_total_M
+        Total concentration of L [mol/L].
+    K
+        Formation constant [L/mol], > 0.
+
+    Returns
+    -------
+    NDArray[np.float64]
+        [ML] at equilibrium [mol/L], broadcast shape.
+
+    Notes
+    -----
+    With a the component in excess (total T_a), b the other (T_b) and d = T_a - T_b >= 0, the
+    free b satisfies K b^2 + (1 + K d) b - T_b = 0, whose positive root is written without
+    subtraction, b = 2 T_b / ((1 + K d) + sqrt((1 + K d)^2 + 4 K T_b)) (the cancellation-free
+    form of the quadratic formula: Press et al., Numerical Recipes, 3rd ed., 2007, eq. 5.6.4).
+    Then a = b + d and [ML] = K a b, accurate to rounding for any K and totals.
+    """
+    k = np.asarray(K, dtype=float)
+    free_metal, free_ligand = _one_to_one_free(metal_total_M, ligand_total_M, k)
+    result: NDArray[np.float64] = k * free_metal * free_ligand
+    return result
+
+
+def _one_to_one_free(
+    metal_total_M: ArrayLike, ligand_total_M: ArrayLike, K: ArrayLike
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Free M and free L of the 1:1 system, cancellation-free (see one_to_one_complex_M)."""
+    metal, ligand, k = np.broadcast_arrays(
+        np.asarray(metal_total_M, dtype=float),
+        np.asarray(ligand_total_M, dtype=float),
+        np.asarray(K, dtype=float),
+    )
+    small = np.minimum(metal, ligand)
+    excess = np.abs(metal - ligand)
+    linear = 1.0 + k * excess
+    free_small = 2.0 * small / (linear + np.sqrt(linear * linear + 4.0 * k * small))
+    free_large = free_small + excess
+    metal_is_small = metal <= ligand
+    return (
+        np.where(metal_is_small, free_small, free_large),
+        np.where(metal_is_small, free_large, free_small),
+    )
+
+
+def bound_fraction(
+    species_M: NDArray[np.float64],
+    stoichiometry: NDArray[np.float64],
+    component_index: int,
+    total_M: NDArray[np.float64],
+) -> NDArray[np.float64]:
+    """Fraction of one component held in product species, weighted by coefficient.
+
+    Parameters
+    ----------
+    species_M
+        Product species concentrations, shape (n, n_species) [mol/L].
+    stoichiometry
+        Coefficients, shape (n_species, n_components) [unitless].
+    component_index
+        Column of the component (the limiting reagent).
+    total_M
+        Totals, shape (n, n_components) [mol/L].
+
+    Returns
+    -------
+    NDArray[np.float64]
+        sum_i a_ij s_i / T_j, shape (n,) [unitless]; 0 where T_j is 0.
+    """
+    held = species_M @ np.clip(stoichiometry[:, component_index], 0.0, None)
+    total = total_M[:, component_index]
+    safe = np.where(total > 0, total, 1.0)
+    fraction: NDArray[np.float64] = np.where(total > 0, held / safe, 0.0)
+    return fraction
+
+
+def _check_inputs(
+    total_M: ArrayLike, stoichiometry: ArrayLike, log_beta: ArrayLike
+) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+    totals = np.atleast_2d(np.asarray(total_M, dtype=float))
+    matrix = np.atleast_2d(np.asarray(stoichiometry, dtype=float))
+    logs = np.atleast_1d(np.asarray(log_beta, dtype=float))
+    if matrix.shape[1] != totals.shape[1]:
+        raise InvalidInputError(
+            "stoichiometry has a column per component",
+            field="stoichiometry",
+            value=matrix.shape,
+            hint=f"give {totals.shape[1]} columns, one per component of total_M",
+        )
+    if logs.shape != (matrix.shape[0],):
+        raise InvalidInputError(
+            "log_beta has one value per product species",
+            field="log_beta",
+            value=logs.shape,
+            hint=f"give {matrix.shape[0]} values",
+        )
+    if not (np.all(np.isfinite(totals)) and np.all(totals >= 0)):
+        raise InvalidInputError(
+            "total concentrations must be finite and >= 0",
+            field="total_M",
+            value=float(totals[~(np.isfinite(totals) & (totals >= 0))][0]),
+            hint="pass totals in mol/L, zero for an absent component",
+        )
+    if not np.all(np.isfinite(logs)):
+        raise InvalidInputError(
+            "log_beta must be finite", field="log_beta", value=logs.tolist(), hint="use log10"
+        )
+    return totals, matrix, logs
+
+
+def _species_log(
+    x: NDArray[np.float64], matrix: NDArray[np.float64], ln_beta: NDArray[np.float64]
+) -> NDArray[np.float64]:
+    """ln s_i = ln beta_i + sum_j a_ij x_j, component-major: x (m, n) -> (s, n)."""
+    result: NDArray[np.float64] = matrix @ x + ln_beta[:, None]
+    return result
+
+
+def _cholesky_solve(
+    hessian: list[list[NDArray[np.float64]]], rhs: list[NDArray[np.float64]]
+) -> list[NDArray[np.float64]]:
+    """Solve H d = rhs for n small SPD systems at once, component-major.
+
+    hessian[j][k] and rhs[j] are length-n vectors. A Cholesky factorisation written over the
+    vectors (Golub and Van Loan, Matrix Computations, 4th ed., 2013, Algorithm 4.2.2): for the
+    2 to 4 components of a complexation problem this beats numpy.linalg.solve on an
+    (n, m, m) stack several times over.
+    """
+    m = len(rhs)
+    lower: list[list[NDArray[np.float64]]] = [[] for _ in range(m)]
+    for j in range(m):
+        for i in range(j + 1):
+            total = hessian[j][i].copy()
+            for k in range(i):
+                total -= lower[j][k] * lower[i][k]
+            if i == j:
+                # A pivot lost to rounding is floored relative to the unit scaled diagonal,
+                # which turns the step into a damped one instead of an overflow.
+                lower[j].append(np.sqrt(np.maximum(total, 1e-12)))
+            else:
+                lower[j].append(total / lower[i][i])
+    forward: list[NDArray[np.float64]] = []
+    for i in range(m):
+        total = rhs[i].copy()
+        for k in range(i):
+            total -= lower[i][k] * forward[k]
+        forward.append(total / lower[i][i])
+    solution: list[NDArray[np.float64]] = [np.empty(0)] * m
+    for i in reversed(range(m)):
+        total = forward[i].copy()
+        for k in range(i + 1, m):
+            total -= lower[k][i] * solution[k]
+        solution[i] = total / lower[i][i]
+    return solution
+
+
+def _newton_step(
+    free: NDArray[np.float64],
+    species: NDArray[np.float64],
+    gradient: NDArray[np.float64],
+    matrix: NDArray[np.float64],
+) -> NDArray[np.float64]:
+    """Solve H d = -g with H = diag(c) + A^T diag(s) A, component-major (m, n).
+
+    When one species dominates, H is rank-deficient to rounding: its determinant cancels
+    catastrophically if formed as H11 H22 - H12^2. For two components the determinant is
+    therefore expanded by the Cauchy-Binet formula into a sum of positive terms,
+    det H = c1 c2 + c1 sum s a2^2 + c2 sum s a1^2 + sum_{i<k} s_i s_k (a_i1 a_k2 - a_k1 a_i2)^2
+    (Horn and Johnson, Matrix Analysis, 2nd ed., 2013, section 0.8.7), and the adjugate's
+    products are regrouped the same way. More components go through a Jacobi-scaled Cholesky.
+    """
+    m, n_species = matrix.shape[1], matrix.shape[0]
+    if m == 2:
+        a1, a2 = matrix[:, 0], matrix[:, 1]
+        c1, c2 = free[0], free[1]
+        g1, g2 = gradient[0], gradient[1]
+        s_a1a1 = (a1 * a1) @ species
+        s_a2a2 = (a2 * a2) @ species
+        det = c1 * c2 + c1 * s_a2a2 + c2 * s_a1a1
+        for i in range(n_species):
+            for k in range(i + 1, n_species):
+                minor = a1[i] * a2[k] - a1[k] * a2[i]
+                if minor:
+                    det = det + species[i] * species[k] * minor * minor
+        # H22 g1 - H12 g2 = c2 g1 + sum_i s_i a_i2 (a_i2 g1 - a_i1 g2), and symmetrically.
+        first = c2 * g1 + ((a2[:, None] * (a2[:, None] * g1 - a1[:, None] * g2)) * species).sum(
+            axis=0
+        )
+        second = c1 * g2 + ((a1[:, None] * (a1[:, None] * g2 - a2[:, None] * g1)) * species).sum(
+            axis=0
+        )
+        step: NDArray[np.float64] = -np.stack([first, second]) / det
+        return step
+    hessian = [[np.zeros(0)] * m for _ in range(m)]
+    for j in range(m):
+        for k in range(j + 1):
+            entry = (matrix[:, j] * matrix[:, k]) @ species
+            if j == k:
+                entry = entry + free[j]
+            hessian[j][k] = hessian[k][j] = entry
+    # Symmetric Jacobi scaling keeps entries that span 1e-280 to 1 well conditioned.
+    inv_root = [1.0 / np.sqrt(np.maximum(hessian[j][j], 1e-300)) for j in range(m)]
+    scaled = [[hessian[j][k] * inv_root[j] * inv_root[k] for k in range(m)] for j in range(m)]
+    solved = _cholesky_solve(scaled, [-gradient[j] * inv_root[j] for j in range(m)])
+    return np.stack([solved[j] * inv_root[j] for j in range(m)])
+
+
+def _newton(
+    x: NDArray[np.float64],
+    totals: NDArray[np.float64],
+    matrix: NDArray[np.float64],
+    ln_beta: NDArray[np.float64],
+) -> tuple[NDArray[np.float64], int]:
+    """Damped Newton on the convex potential F, component-major: x and totals are (m, n).
+
+    Arrays are laid out one row per component so every sum over components or species is a
+    handful of contiguous vector operations (numpy reductions along a short last axis are
+    several times slower).
+    """
+    x = x.copy()
+    active = np.arange(x.shape[1])
+    xa, ta = x, totals
+    free = np.exp(xa)
+    species = np.exp(_species_log(xa, matrix, ln_beta))
+    iterations = 0
+    while iterations < _MAX_NEWTON:
+        gradient = free + matrix.T @ species - ta
+        done = np.all(np.abs(gradient) <= _RTOL * ta, axis=0)
+        if np.any(done):
+            x[:, active[done]] = xa[:, done]
+            keep = ~done
+            active = active[keep]
+            xa, ta, free, species, gradient = (
+                xa[:, keep],
+                ta[:, keep],
+                free[:, keep],
+                species[:, keep],
+                gradient[:, keep],
+            )
+        if not active.size:
+            break
+        iterations += 1
+        step = _newton_step(free, species, gradient, matrix)
+        # Armijo backtracking on F(x) = sum c + sum s - T.x (Nocedal and Wright, Numerical
+        # Optimization, 2nd ed., 2006, Algorithm 3.1, c1 = 1e-4); no step moves a
+        # log-concentration by more than ln(1e8), so exp never overflows.
+        longest = np.max(np.abs(step), axis=0)
+        step *= np.minimum(1.0, np.log(1e8) / np.maximum(longest, 1e-300))
+        t = np.ones(active.size)
+        mass = free.sum(axis=0) + species.sum(axis=0)
+        f0 = mass - (ta * xa).sum(axis=0)
+        slope = (gradient * step).sum(axis=0)
+        scale = np.abs(f0) + mass
+        trial = xa + t * step
+        trial_free = np.exp(trial)
+        trial_species = np.exp(_species_log(trial, matrix, ln_beta))
+        for _ in range(60):
+            f1 = trial_free.sum(axis=0) + trial_species.sum(axis=0) - (ta * trial).sum(axis=0)
+            # Near the root F changes by less than its rounding: accept such steps, which are
+            # full Newton steps in the quadratic phase.
+            ok = (f1 <= f0 + 1e-4 * t * slope) | (np.abs(f1 - f0) <= 1e-14 * scale)
+            if np.all(ok):
+                break
+            bad = np.flatnonzero(~ok)
+            t[bad] *= 0.5
+            trial[:, bad] = xa[:, bad] + t[bad] * step[:, bad]
+            trial_free[:, bad] = np.exp(trial[:, bad])
+            trial_species[:, bad] = np.exp(_species_log(trial[:, bad], matrix, ln_beta))
+        xa, free, species = trial, trial_free, trial_species
+    if active.size:
+        raise ConvergenceError(
+            f"equilibrium solver did not converge for {active.size} mixture(s) "
+            f"in {_MAX_NEWTON} Newton iterations",
+            field="total_M",
+            value=totals[:, active[0]].tolist(),
+            hint="check that the totals and log_beta are physically sensible",
+        )
+    return x, iterations
+
+
+def _start(
+    totals: NDArray[np.float64], matrix: NDArray[np.float64], logs: NDArray[np.float64]
+) -> NDArray[np.float64]:
+    """Starting log-concentrations, (m, n) layout.
+
+    When a 1:1 species of two components exists, the closed-form root of that pair alone is
+    the start (the other species are then usually minor, and Newton needs 2 to 4 steps);
+    otherwise positive-continued-fraction sweeps from c = T.
+    """
+    one_to_one = [
+        i
+        for i in range(matrix.shape[0])
+        if np.count_nonzero(matrix[i]) == 2 and np.all(matrix[i][matrix[i] != 0] == 1.0)
+    ]
+    if not one_to_one:
+        return _pcf_start(totals, matrix, logs * _LN10)
+    best = max(one_to_one, key=lambda i: logs[i])
+    first, second = np.flatnonzero(matrix[best])
+    x = np.log(totals)
+    free_first, free_second = _one_to_one_free(totals[first], totals[second], 10.0 ** logs[best])
+    x[first] = np.log(free_first)
+    x[second] = np.log(free_second)
+    # Two sweeps pull the start back when another species (a strong 1:2, say) dominates.
+    return _pcf_start(totals, matrix, logs * _LN10, x, sweeps=2)
+
+
+def _pcf_start(
+    totals: NDArray[np.float64],
+    matrix: NDArray[np.float64],
+    ln_beta: NDArray[np.float64],
+    x: NDArray[np.float64] | None = None,
+    sweeps: int = _PCF_SWEEPS,
+) -> NDArray[np.float64]:
+    """Positive-continued-fraction sweeps (Carrayrou et al. 2002) from x (default c = T)."""
+    positive = np.clip(matrix, 0.0, None)
+    negative = np.clip(-matrix, 0.0, None)
+    largest = np.maximum(positive.max(axis=0, initial=0.0), 1.0)[:, None]
+    x = np.log(totals) if x is None else x
+    for _ in range(sweeps):
+        species = np.exp(np.minimum(_species_log(x, matrix, ln_beta), 700.0))
+        produced = np.exp(x) + positive.T @ species
+        consumed = totals + negative.T @ species
+        x = x + (np.log(consumed) - np.log(produced)) / largest
+    return x
+
+
+def solve_equilibrium(
+    total_M: ArrayLike, stoichiometry: ArrayLike, log_beta: ArrayLike
+) -> Equilibrium:
+    """Solve the mass balances of every mixture for the free component concentrations.
+
+    Parameters
+    ----------
+    total_M
+        Total concentration of each component in each mixture, shape (n, n_components) or
+        (n_components,) [mol/L], finite and >= 0.
+    stoichiometry
+        Coefficient of each component in each product species, shape
+        (n_species, n_components) [unitless]; negative coefficients (such as -1 for H+ in a
+        hydroxo species) are allowed.
+    log_beta
+        log10 of each overall formation constant, shape (n_species,)
+        [log10 of (mol/L)^(1-n)].
+
+    Returns
+    -------
+    Equilibrium
+        Free components, species and relative residuals; every relative mass-balance
+        residual is at most 1e-10 (typically 1e-14).
+
+    Raises
+    ------
+    InvalidInputError
+        If shapes disagree or a total is negative or not finite.
+    ConvergenceError
+        If Newton does not converge (not seen for totals 1e-9 to 5 mol/L and log beta from
+        -5 to 30).
+
+    Notes
+    -----
+    See the module notes for the method. A component whose total is 0 has free concentration
+    exactly 0, and so has every species containing it.
+
+    Examples
+    --------
+    >>> eq = solve_equilibrium([[0.1, 1.5e-4]], [[1, 1]], [np.log10(98.0)])
+    >>> round(float(eq.species_M[0, 0] / 1.5e-4), 4)
+    0.9073
+    """
+    totals, matrix, logs = _check_inputs(total_M, stoichiometry, log_beta)
+    zero = totals <= 0.0
+    work = np.where(zero, _ZERO_STAND_IN_M, totals)
+    ln_beta = logs * _LN10
+
+    if _is_one_to_one(matrix):
+        free_metal, free_ligand = _one_to_one_free(work[:, 0], work[:, 1], 10.0 ** logs[0])
+        x = np.log(np.stack([free_metal, free_ligand], axis=1))
+        iterations = 0
+    else:
+        work_t = np.ascontiguousarray(work.T)
+        x_t, iterations = _newton(_start(work_t, matrix, logs), work_t, matrix, ln_beta)
+        x = x_t.T
+
+    free = np.exp(x)
+    species = np.exp(x @ matrix.T + ln_beta)
+    residual = (free + species @ matrix - work) / work
+    free = np.where(zero, 0.0, free)
+    absent = (zero.astype(float) @ (matrix != 0).T) > 0
+    species = np.where(absent, 0.0, species)
+    residual = np.where(zero, 0.0, residual)
+    return Equilibrium(
+        free_M=free, species_M=species, relative_residual=residual, iterations=iterations
+    )
+
+
+def _is_one_to_one(matrix: NDArray[np.float64]) -> bool:
+    return matrix.shape == (1, 2) and bool(np.all(matrix == 1.0))

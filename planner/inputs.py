@@ -1,0 +1,350 @@
+"""Validated, unit-normalised plan inputs as plain frozen dataclasses.
+
+These are what the computational core receives. They are built only by
+:mod:`planner.planfile` (from a TOML plan file or from the ``inputs`` block of a saved plan
+result), which has already checked every value, so the core trusts them.
+
+Units are in the names: ``_M`` mol/L, ``_mL`` millilitres, ``_uL`` microlitres, ``_cm``,
+``_nm``, ``_C`` degrees Celsius. ``epsilon`` is a molar absorptivity [L mol⁻¹ cm⁻¹] and
+``log_beta`` a decadic logarithm of an overall formation constant [log10 of (mol/L)^(1-n)].
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from numpy.typing import NDArray
+
+__all__ = [
+    "DEVICE_KINDS",
+    "DesignSettings",
+    "Device",
+    "Instrument",
+    "PlanInputs",
+    "ProductSpecies",
+    "Reaction",
+    "SessionSettings",
+    "Solid",
+    "Stock",
+]
+
+#: Glassware kinds of the plan file, in the order sheets list them.
+DEVICE_KINDS = (
+    "transfer-pipette",
+    "graduated-pipette",
+    "buret",
+    "piston-pipette",
+    "volumetric-flask",
+    "graduated-cylinder",
+    "tube",
+)
+
+
+def _format_size(value: float) -> str:
+    """Shortest exact decimal for a device size (5 -> '5', 0.5 -> '0.5')."""
+    text = f"{value:.6f}".rstrip("0").rstrip(".")
+    return text or "0"
+
+
+@dataclass(frozen=True, slots=True)
+class ProductSpecies:
+    """A product species formed from the reaction components.
+
+    Attributes
+    ----------
+    name
+        Name in the trade's notation, e.g. ``"FeSCN2+"``.
+    formula
+        Stoichiometric coefficient of each component [unitless]; components not named are 0.
+    log_beta
+        log10 of the overall formation constant beta [log10 of (mol/L)^(1-n)], where n is the
+        sum of the coefficients.
+    epsilon
+        Molar absorptivity at the working wavelength [L mol⁻¹ cm⁻¹].
+    """
+
+    name: str
+    formula: dict[str, int]
+    log_beta: float
+    epsilon: float = 0.0
+
+
+@dataclass(frozen=True, slots=True)
+class Reaction:
+    """The complexation system: components, product species and the medium of the constants.
+
+    Attributes
+    ----------
+    temperature_C
+        Temperature the constants refer to [°C].
+    ionic_strength_M
+        Ionic strength of the medium the constants refer to [mol/L].
+    components
+        Free reagent ions whose mass balances are solved, e.g. ``("Fe3+", "SCN-")``.
+    species
+        Product species, one per complex.
+    component_epsilon
+        Molar absorptivity of each free component that absorbs [L mol⁻¹ cm⁻¹]; others are 0.
+    """
+
+    temperature_C: float
+    ionic_strength_M: float
+    components: tuple[str, ...]
+    species: tuple[ProductSpecies, ...]
+    component_epsilon: dict[str, float] = field(default_factory=dict)
+
+    def stoichiometry(self) -> NDArray[np.float64]:
+        """Coefficient matrix, shape (n_species, n_components) [unitless]."""
+        matrix = np.zeros((len(self.species), len(self.components)))
+        for i, sp in enumerate(self.species):
+            for j, comp in enumerate(self.components):
+                matrix[i, j] = sp.formula.get(comp, 0)
+        return matrix
+
+    def log_beta(self) -> NDArray[np.float64]:
+        """log10 beta of each product species, shape (n_species,)."""
+        return np.array([sp.log_beta for sp in self.species], dtype=float)
+
+    def species_epsilon(self) -> NDArray[np.float64]:
+        """Molar absorptivity of each product species, shape (n_species,) [L mol⁻¹ cm⁻¹]."""
+        return np.array([sp.epsilon for sp in self.species], dtype=float)
+
+    def free_epsilon(self) -> NDArray[np.float64]:
+        """Molar absorptivity of each free component, shape (n_components,) [L mol⁻¹ cm⁻¹]."""
+        return np.array([self.component_epsilon.get(c, 0.0) for c in self.components])
+
+    def species_names(self) -> tuple[str, ...]:
+        """Names of the product species, in order."""
+        return tuple(sp.name for sp in self.species)
+
+
+@dataclass(frozen=True, slots=True)
+class Instrument:
+    """The photometer and cuvette.
+
+    Attributes
+    ----------
+    wavelength_nm
+        Working wavelength [nm].
+    path_length_cm
+        Cuvette path length [cm].
+    absorbance_window
+        (low, high) of the linear working range [absorbance units]; low < high.
+    absorbance_sd
+        Standard deviation of one reading [absorbance units].
+    stray_light
+        Stray-light fraction s of the incident power [unitless].
+    cuvette_fill_mL
+        Volume needed to fill the cuvette [mL].
+    """
+
+    wavelength_nm: float
+    path_length_cm: float
+    absorbance_window: tuple[float, float]
+    absorbance_sd: float
+    stray_light: float
+    cuvette_fill_mL: float
+
+
+@dataclass(frozen=True, slots=True)
+class Solid:
+    """The solid a stock is made from, so the prep sheet can weigh it out.
+
+    Attributes
+    ----------
+    formula
+        Chemical formula with hydrate water, e.g. ``"Fe(NO3)3(H2O)9"``.
+    purity
+        Mass fraction of the named compound in the reagent [unitless], 0 < purity <= 1.
+    provides
+        The stock ion this solid supplies; ``""`` means the first reaction component the stock
+        contains.
+    """
+
+    formula: str
+    purity: float = 1.0
+    provides: str = ""
+
+
+@dataclass(frozen=True, slots=True)
+class Stock:
+    """A stock solution on the shelf.
+
+    Attributes
+    ----------
+    id
+        Short name used on sheets, e.g. ``"iron"``.
+    contains_M
+        Concentration of every listed ion [mol/L]. Counter-ions that are not listed are added
+        by :mod:`planner.chem.species` to make the stock electrically neutral.
+    relative_uncertainty
+        Relative standard uncertainty of every concentration [unitless].
+    available_mL
+        Volume the prep room can make or has [mL]; ``None`` means no limit.
+    solid
+        Solid to weigh out, if the prep sheet should say how to make the stock.
+    diluent
+        True for the stock that dilutes and fills flasks to the mark.
+    """
+
+    id: str
+    contains_M: dict[str, float]
+    relative_uncertainty: float = 0.0
+    available_mL: float | None = None
+    solid: Solid | None = None
+    diluent: bool = False
+
+
+@dataclass(frozen=True, slots=True)
+class Device:
+    """One kind of glassware on the shelf.
+
+    Attributes
+    ----------
+    kind
+        One of :data:`DEVICE_KINDS`.
+    volume_mL
+        Nominal capacity [mL]; for a piston pipette the top of its range.
+    device_class
+        Tolerance class ``"A"`` or ``"B"`` where the standard defines classes, else ``""``.
+    count
+        How many a bench has [unitless].
+    range_uL
+        Piston pipettes: (low, high) adjustable range [µL].
+    step_uL
+        Piston pipettes: setting step [µL].
+    division_mL
+        Graduated pipettes, burets and cylinders: reading resolution [mL].
+    min_delivery_mL
+        Smallest volume worth delivering with this device [mL].
+    tolerance_mL
+        Maximum permissible error at nominal volume [mL]; the catalogue value unless the plan
+        gives one (a certificate, say).
+    """
+
+    kind: str
+    volume_mL: float
+    device_class: str = "A"
+    count: int = 1
+    range_uL: tuple[float, float] | None = None
+    step_uL: float | None = None
+    division_mL: float | None = None
+    min_delivery_mL: float | None = None
+    tolerance_mL: float | None = None
+
+    @property
+    def id(self) -> str:
+        """Readable stable id, e.g. ``transfer-pipette-5mL``, ``piston-pipette-100-1000uL``."""
+        if self.kind == "piston-pipette" and self.range_uL is not None:
+            low, high = self.range_uL
+            return f"piston-pipette-{_format_size(low)}-{_format_size(high)}uL"
+        return f"{self.kind}-{_format_size(self.volume_mL)}mL"
+
+
+@dataclass(frozen=True, slots=True)
+class DesignSettings:
+    """What to design.
+
+    Attributes
+    ----------
+    standards
+        Number of calibration standards, besides the reagent blank.
+    tests
+        Number of test mixtures.
+    limiting
+        The limiting reagent of the standards (a reaction component).
+    assumption_tolerance
+        Accepted relative error of assuming the limiting reagent is fully bound [unitless].
+    vessel
+        ``"tube"`` or ``"flask-<mL>"``.
+    total_volume_mL
+        Volume of every mixture [mL].
+    bound_fraction_span
+        Smallest spread of the limiting reagent's bound fraction across the test set [unitless].
+    bound_fraction_range
+        (low, high) inside which test mixtures' bound fractions should lie [unitless].
+    ionic_strength_spread
+        Largest accepted relative spread of ionic strength across mixtures, (max-min)/max
+        [unitless]; a larger spread is a warning.
+    blanks
+        Number of reagent blanks.
+    """
+
+    standards: int
+    tests: int
+    limiting: str
+    assumption_tolerance: float
+    vessel: str
+    total_volume_mL: float
+    bound_fraction_span: float = 0.25
+    bound_fraction_range: tuple[float, float] = (0.15, 0.85)
+    ionic_strength_spread: float = 0.5
+    blanks: int = 1
+
+    @property
+    def vessel_kind(self) -> str:
+        """``"tube"`` or ``"volumetric-flask"``."""
+        return "tube" if self.vessel == "tube" else "volumetric-flask"
+
+    @property
+    def flask_volume_mL(self) -> float | None:
+        """Flask volume [mL] for a ``flask-<mL>`` vessel, else ``None``."""
+        if self.vessel == "tube":
+            return None
+        return float(self.vessel.removeprefix("flask-"))
+
+
+@dataclass(frozen=True, slots=True)
+class SessionSettings:
+    """The teaching or work session the prep room supplies.
+
+    Attributes
+    ----------
+    sections
+        Number of sections (groups of benches running the same plan).
+    benches_per_section
+        Benches in a section; each makes one full set of mixtures per replicate.
+    replicates
+        Full sets per bench.
+    margin
+        Extra stock fraction beyond the need [unitless].
+    dead_volume_mL
+        Volume per stock and dispensing device left unusable in the bench container [mL].
+    """
+
+    sections: int = 1
+    benches_per_section: int = 1
+    replicates: int = 1
+    margin: float = 0.15
+    dead_volume_mL: float = 5.0
+
+    @property
+    def sets(self) -> int:
+        """Full mixture sets made in the session [unitless]."""
+        return self.sections * self.benches_per_section * self.replicates
+
+
+@dataclass(frozen=True, slots=True)
+class PlanInputs:
+    """Everything a plan file says, validated and unit-normalised."""
+
+    title: str
+    reaction: Reaction
+    instrument: Instrument
+    stocks: tuple[Stock, ...]
+    glassware: tuple[Device, ...]
+    design: DesignSettings
+    session: SessionSettings
+
+    def stock(self, stock_id: str) -> Stock:
+        """The stock with this id (KeyError if absent)."""
+        for st in self.stocks:
+            if st.id == stock_id:
+                return st
+        raise KeyError(stock_id)
+
+    @property
+    def diluent(self) -> Stock | None:
+        """The diluent stock, if the plan has one."""
+        return next((st for st in self.stocks if st.diluent), None)

@@ -1,0 +1,174 @@
+"""Equilibrium solver against exact algebra (sympy) and mass-balance invariants."""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+import sympy
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from planner.chem.equilibrium import (
+    bound_fraction,
+    one_to_one_complex_M,
+    solve_equilibrium,
+)
+from planner.errors import InvalidInputError
+
+ONE_TO_ONE = np.array([[1.0, 1.0]])
+ONE_AND_TWO = np.array([[1.0, 1.0], [1.0, 2.0]])
+# Iron(III) thiocyanate at ionic strength 0.5 mol/L, 25 °C: K1 = 98 and K2 = 7 L/mol
+# (de Berg, Maeder and Clifford, Inorganica Chimica Acta 445 (2016) 155-159), so
+# beta2 = K1 K2 = 686 (L/mol)^2.
+FE_SCN_LOG_BETA = np.array([np.log10(98.0), np.log10(98.0 * 7.0)])
+
+
+def _sympy_one_to_one(metal: float, ligand: float, k: float) -> float:
+    """[ML] from sympy's exact root of K (M0 - x)(L0 - x) = x in the physical interval."""
+    x = sympy.symbols("x", positive=True)
+    m0, l0, kk = sympy.Rational(str(metal)), sympy.Rational(str(ligand)), sympy.Rational(str(k))
+    roots = sympy.solve(sympy.Eq(kk * (m0 - x) * (l0 - x), x), x)
+    physical = [r for r in roots if 0 <= r <= min(m0, l0)]
+    assert len(physical) == 1
+    return float(sympy.N(physical[0], 30))
+
+
+@pytest.mark.parametrize(
+    ("metal", "ligand", "k"),
+    [
+        (0.1, 1.5e-4, 98.0),  # iron(III) thiocyanate, K from de Berg et al. 2016
+        (1e-3, 1e-3, 1e6),  # equal totals, strong binding
+        (2e-4, 0.05, 3.5e3),  # ligand in excess
+        (1e-6, 2e-6, 1e-2),  # very weak complex
+    ],
+)
+def test_one_to_one_matches_sympy_exact_root(metal, ligand, k):
+    # Reference: the exact root of the mass-action quadratic computed by sympy (an
+    # independent general-purpose algebra system); relative tolerance 1e-12 (rounding only).
+    expected = _sympy_one_to_one(metal, ligand, k)
+    closed = float(one_to_one_complex_M(metal, ligand, k))
+    solved = solve_equilibrium([[metal, ligand]], ONE_TO_ONE, [np.log10(k)])
+    assert closed == pytest.approx(expected, rel=1e-12)
+    assert solved.species_M[0, 0] == pytest.approx(expected, rel=1e-12)
+
+
+def test_one_to_one_general_newton_agrees_with_closed_form():
+    # The same 1:1 system passed with a dummy third species that never forms (log beta = -50)
+    # goes through Newton instead of the closed form; both must agree to 1e-10 relative.
+    rng = np.random.default_rng(7)
+    totals = 10 ** rng.uniform(-7, 0, size=(500, 2))
+    matrix = np.array([[1.0, 1.0], [2.0, 3.0]])
+    solved = solve_equilibrium(totals, matrix, [3.7, -50.0])
+    closed = one_to_one_complex_M(totals[:, 0], totals[:, 1], 10**3.7)
+    np.testing.assert_allclose(solved.species_M[:, 0], closed, rtol=1e-10)
+
+
+def test_one_to_two_system_matches_sympy():
+    # Reference: sympy solves the two mass balances of M + L = ML, M + 2L = ML2 exactly
+    # (nsolve to 40 digits from the planner's answer's neighbourhood, then checked to be the
+    # unique positive root); iron(III) thiocyanate constants from de Berg et al. 2016.
+    metal, ligand = 0.02, 0.01
+    beta1, beta2 = 98.0, 686.0
+    m, lig = sympy.symbols("m l", positive=True)
+    equations = [
+        m + beta1 * m * lig + beta2 * m * lig**2 - metal,
+        lig + beta1 * m * lig + 2 * beta2 * m * lig**2 - ligand,
+    ]
+    # Eliminate m exactly: m = metal / (1 + b1 l + b2 l^2); the ligand balance becomes a
+    # cubic in l with exactly one root in (0, ligand).
+    m_of_l = metal / (1 + beta1 * lig + beta2 * lig**2)
+    cubic = sympy.numer(sympy.together(equations[1].subs(m, m_of_l)))
+    roots = [r for r in sympy.Poly(cubic, lig).nroots(n=30) if r.is_real and 0 < r < ligand]
+    assert len(roots) == 1
+    free_l = float(roots[0])
+    free_m = float(m_of_l.subs(lig, roots[0]))
+    solved = solve_equilibrium([[metal, ligand]], ONE_AND_TWO, np.log10([beta1, beta2]))
+    assert solved.free_M[0, 0] == pytest.approx(free_m, rel=1e-11)
+    assert solved.free_M[0, 1] == pytest.approx(free_l, rel=1e-11)
+    assert solved.species_M[0, 1] == pytest.approx(beta2 * free_m * free_l**2, rel=1e-10)
+
+
+def test_zero_total_gives_exact_zeros():
+    # A reagent blank has no ligand at all: free ligand and every complex are exactly 0.
+    solved = solve_equilibrium([[0.1, 0.0]], ONE_AND_TWO, FE_SCN_LOG_BETA)
+    assert solved.free_M[0, 1] == 0.0
+    assert np.all(solved.species_M[0] == 0.0)
+    assert solved.free_M[0, 0] == pytest.approx(0.1, rel=1e-14)
+
+
+def test_hydroxo_species_with_negative_coefficient():
+    # M + L = ML and M - H = MOH (hydrolysis written with -1 H+): mass balance must hold for
+    # all three components, including H+ whose total counts the released proton negatively.
+    matrix = np.array([[1.0, 1.0, 0.0], [1.0, 0.0, -1.0]])
+    totals = np.array([[0.05, 1e-4, 0.5]])
+    solved = solve_equilibrium(totals, matrix, [2.0, -2.8])
+    assert np.max(np.abs(solved.relative_residual)) <= 1e-10
+    free = solved.free_M[0]
+    assert solved.species_M[0, 1] == pytest.approx(10**-2.8 * free[0] / free[2], rel=1e-12)
+
+
+def test_bound_fraction_counts_coefficients():
+    solved = solve_equilibrium([[0.02, 0.01]], ONE_AND_TWO, FE_SCN_LOG_BETA)
+    fraction = bound_fraction(solved.species_M, ONE_AND_TWO, 1, np.array([[0.02, 0.01]]))
+    held = solved.species_M[0, 0] + 2 * solved.species_M[0, 1]
+    assert fraction[0] == pytest.approx(held / 0.01, rel=1e-14)
+    # and it equals 1 - free/total by the ligand's mass balance
+    assert fraction[0] == pytest.approx(1 - solved.free_M[0, 1] / 0.01, rel=1e-10)
+
+
+def test_bad_inputs_name_the_field():
+    with pytest.raises(InvalidInputError, match="total_M"):
+        solve_equilibrium([[-1.0, 0.1]], ONE_TO_ONE, [2.0])
+    with pytest.raises(InvalidInputError, match="stoichiometry"):
+        solve_equilibrium([[1.0, 0.1]], [[1.0, 1.0, 1.0]], [2.0])
+    with pytest.raises(InvalidInputError, match="log_beta"):
+        solve_equilibrium([[1.0, 0.1]], ONE_AND_TWO, [2.0])
+
+
+_totals = st.floats(min_value=1e-9, max_value=5.0)
+_log_beta = st.floats(min_value=-5.0, max_value=30.0)
+
+SYSTEMS = {
+    "1:1": np.array([[1.0, 1.0]]),
+    "1:1+1:2": ONE_AND_TWO,
+    "1:2 only": np.array([[1.0, 2.0]]),
+    "2:1+1:1+1:3": np.array([[2.0, 1.0], [1.0, 1.0], [1.0, 3.0]]),
+    "three components": np.array([[1.0, 1.0, 0.0], [1.0, 0.0, 1.0], [1.0, 1.0, 1.0]]),
+}
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    system=st.sampled_from(sorted(SYSTEMS)),
+    totals=st.lists(_totals, min_size=3, max_size=3),
+    logs=st.lists(_log_beta, min_size=3, max_size=3),
+)
+def test_mass_balance_holds_everywhere(system, totals, logs):
+    # Design requirement: relative mass-balance residual <= 1e-10 for totals 1e-9 to 5 mol/L
+    # and log beta -5 to 30, with no warnings and no NaN.
+    matrix = SYSTEMS[system]
+    n_components = matrix.shape[1]
+    total = np.array([totals[:n_components]])
+    log_beta = np.array(logs[: matrix.shape[0]])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        solved = solve_equilibrium(total, matrix, log_beta)
+    assert np.all(np.isfinite(solved.free_M))
+    assert np.all(np.isfinite(solved.species_M))
+    # Independent recomputation of the residual from the returned concentrations.
+    recomputed = solved.free_M + solved.species_M @ matrix
+    assert np.all(np.abs(recomputed - total) <= 1e-10 * total)
+
+
+def test_vectorised_batch_spanning_the_whole_range():
+    rng = np.random.default_rng(11)
+    n = 20_000
+    totals = 10 ** rng.uniform(-9, np.log10(5.0), size=(n, 2))
+    for log_beta in ([-5.0, -5.0], [1.99, 2.84], [12.0, 20.0], [30.0, 30.0], [-5.0, 30.0]):
+        with warnings.catch_warnings():
+            warnings.simplefilter("error")
+            solved = solve_equilibrium(totals, ONE_AND_TWO, log_beta)
+        recomputed = solved.free_M + solved.species_M @ ONE_AND_TWO
+        assert np.max(np.abs(recomputed - totals) / totals) <= 1e-10, log_beta
