@@ -1,0 +1,442 @@
+"""Every mixture the shelf can make in the chosen vessel, evaluated in one vectorised pass.
+
+A candidate gives each reagent stock (every stock but the diluent) a volume the glassware can
+deliver, or none. In a tube the diluent makes up the rest, and that volume too must be
+deliverable; in a volumetric flask the diluent fills to the mark. All candidates are then
+mixed, solved (:func:`planner.chem.equilibrium.solve_equilibrium`) and read
+(:mod:`planner.lab.photometer`) at once.
+
+Graded devices (burets, graduated and piston pipettes) can deliver thousands of volumes; for
+the design search their grid is thinned to round steps (at most ``_MAX_GRADED_VOLUMES`` per
+stock), which also gives the bench volumes that are quick to set and read. Every thinned
+volume is still one the device delivers.
+"""
+
+from __future__ import annotations
+
+import itertools
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from planner.chem.equilibrium import bound_fraction, solve_equilibrium
+from planner.chem.mixing import IonTable, ion_table, ionic_strength_after_reaction_M, mix_M
+from planner.errors import InvalidInputError
+from planner.inputs import Device, PlanInputs, Stock
+from planner.lab.glassware import (
+    DeliverableVolume,
+    combination_uncertainty_mL,
+    deliverable_volumes,
+    devices_by_id,
+    standard_uncertainty_mL,
+)
+from planner.lab.photometer import observed_absorbance, true_absorbance
+
+__all__ = [
+    "CandidateSet",
+    "Evaluation",
+    "Option",
+    "candidate_set",
+    "evaluate",
+    "flask_device",
+    "stock_order",
+]
+
+# Most graded volumes per stock kept for the search (design grid), and the round steps tried
+# to thin a grid, in mL (common practice: staff set and read round volumes fastest).
+_MAX_GRADED_VOLUMES = 120
+_ROUND_STEPS_mL = (0.01, 0.02, 0.05, 0.1, 0.2, 0.25, 0.5, 1.0, 2.0, 5.0)
+# Most candidates evaluated; more reagent stocks thin each stock's list further.
+_MAX_CANDIDATES = 150_000
+_NL_PER_ML = 1_000_000
+
+
+@dataclass(frozen=True, slots=True)
+class Option:
+    """A way to deliver one volume of one stock.
+
+    Attributes
+    ----------
+    volume_mL
+        Volume [mL].
+    devices
+        Device ids, one per delivery.
+    u_mL
+        Combined standard uncertainty of the delivery [mL].
+    """
+
+    volume_mL: float
+    devices: tuple[str, ...]
+    u_mL: float
+
+
+@dataclass(frozen=True, slots=True)
+class Evaluation:
+    """Predicted state of a batch of mixtures.
+
+    Attributes
+    ----------
+    initial_M
+        Ion concentrations after mixing, shape (n, k) [mol/L].
+    total_M
+        Component totals, shape (n, n_components) [mol/L].
+    free_M
+        Free components at equilibrium, shape (n, n_components) [mol/L].
+    species_M
+        Product species at equilibrium, shape (n, n_species) [mol/L].
+    true_absorbance
+        Beer-Lambert absorbance of all absorbers, shape (n,) [unitless].
+    absorbance
+        Photometer reading with stray light, shape (n,) [unitless].
+    bound_fraction
+        Limiting reagent held in products, shape (n,) [unitless].
+    coloured_fraction
+        Limiting reagent held in the most absorbing product, per coefficient, shape (n,)
+        [unitless].
+    ionic_strength_M
+        Ionic strength at equilibrium, shape (n,) [mol/L].
+    """
+
+    initial_M: NDArray[np.float64]
+    total_M: NDArray[np.float64]
+    free_M: NDArray[np.float64]
+    species_M: NDArray[np.float64]
+    true_absorbance: NDArray[np.float64]
+    absorbance: NDArray[np.float64]
+    bound_fraction: NDArray[np.float64]
+    coloured_fraction: NDArray[np.float64]
+    ionic_strength_M: NDArray[np.float64]
+
+
+@dataclass(frozen=True, slots=True)
+class CandidateSet:
+    """All candidate mixtures and their evaluation.
+
+    Attributes
+    ----------
+    stock_ids
+        Stocks in column order of ``volumes_mL`` (reagent stocks first, the diluent last when
+        there is one).
+    options
+        For each stock, the delivery options its column indexes (index 0 is "none").
+    option_index
+        Option of each stock in each candidate, shape (n, n_stocks) [unitless].
+    volumes_mL
+        Volume of each stock in each candidate, shape (n, n_stocks) [mL].
+    total_volume_mL
+        Final volume of every candidate [mL].
+    deliveries
+        Number of deliveries of each candidate, shape (n,) [unitless].
+    u_relative_total
+        Relative standard uncertainty of each component's total concentration from stock
+        concentrations, deliveries and final volume, shape (n, n_components) [unitless].
+    ions
+        The ion table of the stocks, in the same stock order.
+    evaluation
+        Predicted state.
+    """
+
+    stock_ids: tuple[str, ...]
+    options: tuple[tuple[Option, ...], ...]
+    option_index: NDArray[np.int64]
+    volumes_mL: NDArray[np.float64]
+    total_volume_mL: float
+    deliveries: NDArray[np.int64]
+    u_relative_total: NDArray[np.float64]
+    ions: IonTable
+    evaluation: Evaluation
+
+    @property
+    def size(self) -> int:
+        """Number of candidates."""
+        return int(self.volumes_mL.shape[0])
+
+
+def stock_order(inputs: PlanInputs) -> tuple[Stock, ...]:
+    """Stocks in order of addition: diluent, excess reagents, the limiting reagent last.
+
+    Common practice: the limiting (coloured-product-forming) reagent goes in last, into the
+    medium and the excess, so no local excess of it forms the higher complexes.
+    """
+    limiting = inputs.design.limiting
+    diluent = [st for st in inputs.stocks if st.diluent]
+    others = [st for st in inputs.stocks if not st.diluent]
+    excess = [st for st in others if limiting not in st.contains_M]
+    last = [st for st in others if limiting in st.contains_M]
+    return tuple(diluent + excess + last)
+
+
+def flask_device(inputs: PlanInputs) -> Device | None:
+    """The volumetric flask the vessel names, from the shelf (None for tubes)."""
+    volume = inputs.design.flask_volume_mL
+    if volume is None:
+        return None
+    for device in inputs.glassware:
+        if device.kind == "volumetric-flask" and abs(device.volume_mL - volume) < 1e-9:
+            return device
+    return Device(kind="volumetric-flask", volume_mL=volume, device_class="A")
+
+
+def _thin(volumes: Sequence[DeliverableVolume], shelf: dict[str, Device]) -> list[Option]:
+    """Keep discrete volumes; thin long graded runs to a round step."""
+    options = [
+        Option(
+            volume_mL=v.volume_mL,
+            devices=v.best,
+            u_mL=combination_uncertainty_mL(shelf, v.best, v.volume_mL),
+        )
+        for v in volumes
+    ]
+    if len(options) <= _MAX_GRADED_VOLUMES:
+        return options
+    for step in _ROUND_STEPS_mL:
+        step_nL = round(step * _NL_PER_ML)
+        kept = [o for o in options if round(o.volume_mL * _NL_PER_ML) % step_nL == 0]
+        if len(kept) <= _MAX_GRADED_VOLUMES:
+            return kept
+    return options[:: max(1, len(options) // _MAX_GRADED_VOLUMES)]
+
+
+def _volume_key(volume_mL: float) -> int:
+    return round(volume_mL * _NL_PER_ML)
+
+
+def candidate_set(inputs: PlanInputs) -> CandidateSet:
+    """Enumerate and evaluate every candidate mixture the shelf can make.
+
+    Parameters
+    ----------
+    inputs
+        The validated plan.
+
+    Returns
+    -------
+    CandidateSet
+
+    Raises
+    ------
+    InvalidInputError
+        If the shelf delivers no volume at all (field ``glassware``).
+    """
+    design = inputs.design
+    total_mL = design.total_volume_mL
+    shelf = devices_by_id(inputs.glassware)
+    ordered = stock_order(inputs)
+    reagents = [st for st in ordered if not st.diluent]
+    diluent = inputs.diluent
+    in_flask = design.vessel_kind == "volumetric-flask"
+
+    deliverable = deliverable_volumes(inputs.glassware, max_volume_mL=total_mL)
+    if not deliverable:
+        raise InvalidInputError(
+            "no device on the shelf can deliver a volume up to the total volume",
+            field="glassware",
+            value=[d.id for d in inputs.glassware],
+            hint="add a pipette or buret whose volume is below design.total_volume_mL",
+        )
+    thinned = _thin(deliverable, shelf)
+    by_key = {_volume_key(v.volume_mL): v for v in deliverable}
+
+    per_stock = len(thinned) + 1
+    while per_stock ** len(reagents) > _MAX_CANDIDATES and per_stock > 3:
+        per_stock -= max(1, per_stock // 10)
+    if per_stock < len(thinned) + 1:
+        pick = np.unique(np.linspace(0, len(thinned) - 1, per_stock - 1).round().astype(int))
+        thinned = [thinned[i] for i in pick]
+    none = Option(volume_mL=0.0, devices=(), u_mL=0.0)
+    reagent_options = tuple([none, *thinned] for _ in reagents)
+
+    grid = np.array(list(itertools.product(range(len(thinned) + 1), repeat=len(reagents))))
+    grid = grid.reshape(-1, len(reagents))
+    option_volumes = np.array([0.0] + [o.volume_mL for o in thinned])
+    volumes = option_volumes[grid] if reagents else np.zeros((1, 0))
+    used = volumes.sum(axis=1)
+    keep = used <= total_mL + 1e-9
+    if not in_flask and diluent is None:
+        keep &= np.abs(used - total_mL) <= 1e-9
+    grid, volumes, used = grid[keep], volumes[keep], used[keep]
+
+    columns: list[tuple[Option, ...]] = [tuple(o) for o in reagent_options]
+    stock_ids = [st.id for st in reagents]
+    index_columns = [grid[:, j] for j in range(len(reagents))]
+    volume_columns = [volumes[:, j] for j in range(len(reagents))]
+    if diluent is not None:
+        rest = total_mL - used
+        if in_flask:
+            flask = flask_device(inputs)
+            assert flask is not None
+            diluent_options: list[Option] = [Option(volume_mL=0.0, devices=(flask.id,), u_mL=0.0)]
+            index_columns.append(np.zeros(len(rest), dtype=np.int64))
+            volume_columns.append(rest)
+            columns.append(tuple(diluent_options))
+        else:
+            keys = np.array([_volume_key(r) for r in rest])
+            lookup: dict[int, int] = {0: 0}
+            diluent_list = [none]
+            for key in np.unique(keys):
+                if int(key) in by_key and int(key) not in lookup:
+                    v = by_key[int(key)]
+                    lookup[int(key)] = len(diluent_list)
+                    diluent_list.append(
+                        Option(
+                            volume_mL=v.volume_mL,
+                            devices=v.best,
+                            u_mL=combination_uncertainty_mL(shelf, v.best, v.volume_mL),
+                        )
+                    )
+            deliverable_rest = np.array([int(k) in lookup for k in keys], dtype=bool)
+            index = np.array([lookup.get(int(k), 0) for k in keys], dtype=np.int64)
+            index_columns = [c[deliverable_rest] for c in index_columns]
+            volume_columns = [c[deliverable_rest] for c in volume_columns]
+            index_columns.append(index[deliverable_rest])
+            volume_columns.append(
+                np.array([diluent_list[i].volume_mL for i in index[deliverable_rest]])
+            )
+            columns.append(tuple(diluent_list))
+        stock_ids.append(diluent.id)
+
+    option_index = np.stack(index_columns, axis=1).astype(np.int64)
+    volumes_mL = np.stack(volume_columns, axis=1)
+    n_options = [len(c) for c in columns]
+    deliveries = np.zeros(len(volumes_mL), dtype=np.int64)
+    u_squared = np.zeros(len(volumes_mL))
+    for j, col in enumerate(columns):
+        count = np.array([len(o.devices) for o in col])
+        u = np.array([o.u_mL for o in col])
+        deliveries += count[option_index[:, j]] if n_options[j] else 0
+        u_squared += u[option_index[:, j]] ** 2
+    if in_flask:
+        flask = flask_device(inputs)
+        assert flask is not None
+        total_u_mL = np.full(len(volumes_mL), standard_uncertainty_mL(flask))
+        deliveries -= 1  # filling to the mark is not a measured delivery
+    else:
+        total_u_mL = np.sqrt(u_squared)
+
+    stocks_in_order = tuple(inputs.stock(sid) for sid in stock_ids)
+    ions = ion_table(stocks_in_order)
+    evaluation = evaluate(inputs, ions, volumes_mL, total_mL)
+
+    u_relative_total = _relative_total_uncertainty(
+        inputs, stocks_in_order, columns, option_index, volumes_mL, total_u_mL / total_mL
+    )
+
+    return CandidateSet(
+        stock_ids=tuple(stock_ids),
+        options=tuple(columns),
+        option_index=option_index,
+        volumes_mL=volumes_mL,
+        total_volume_mL=total_mL,
+        deliveries=deliveries,
+        u_relative_total=u_relative_total,
+        ions=ions,
+        evaluation=evaluation,
+    )
+
+
+def _relative_total_uncertainty(
+    inputs: PlanInputs,
+    stocks: Sequence[Stock],
+    columns: Sequence[Sequence[Option]],
+    option_index: NDArray[np.int64],
+    volumes_mL: NDArray[np.float64],
+    u_relative_volume: NDArray[np.float64],
+) -> NDArray[np.float64]:
+    """First-order relative uncertainty of each component total (GUM, JCGM 100:2008, 5.1.2).
+
+    c_j = sum_s c_sj V_s / V: each stock contributes its share w_s of the total with
+    relative uncertainty sqrt(u(c_s)^2/c_s^2 + u(V_s)^2/V_s^2); the final volume adds
+    u(V)/V to every component.
+    """
+    components = inputs.reaction.components
+    n = volumes_mL.shape[0]
+    result = np.zeros((n, len(components)))
+    for j, component in enumerate(components):
+        amounts = np.zeros((n, len(stocks)))
+        rel_squared = np.zeros((n, len(stocks)))
+        for s, stock in enumerate(stocks):
+            conc = stock.contains_M.get(component, 0.0)
+            if conc <= 0:
+                continue
+            v = volumes_mL[:, s]
+            u = np.array([o.u_mL for o in columns[s]])[option_index[:, s]]
+            safe = np.where(v > 0, v, 1.0)
+            amounts[:, s] = conc * v
+            rel_squared[:, s] = (u / safe) ** 2 + stock.relative_uncertainty**2
+        total = amounts.sum(axis=1)
+        safe_total = np.where(total > 0, total, 1.0)
+        share = amounts / safe_total[:, None]
+        result[:, j] = np.sqrt((share**2 * rel_squared).sum(axis=1) + u_relative_volume**2)
+    return result
+
+
+def evaluate(
+    inputs: PlanInputs,
+    ions: IonTable,
+    volumes_mL: NDArray[np.float64],
+    total_volume_mL: float | NDArray[np.float64],
+) -> Evaluation:
+    """Mix, solve and read a batch of mixtures.
+
+    Parameters
+    ----------
+    inputs
+        The plan (reaction, instrument, design.limiting).
+    ions
+        Ion table of the stocks whose volumes are given, in column order.
+    volumes_mL
+        Stock volumes, shape (n, n_stocks) [mL].
+    total_volume_mL
+        Final volume, scalar or (n,) [mL].
+
+    Returns
+    -------
+    Evaluation
+    """
+    reaction = inputs.reaction
+    initial = mix_M(ions, volumes_mL, total_volume_mL)
+    columns = ions.component_columns(reaction.components)
+    totals = np.zeros((initial.shape[0], len(reaction.components)))
+    for j, col in enumerate(columns):
+        if col is not None:
+            totals[:, j] = initial[:, col]
+    matrix = reaction.stoichiometry()
+    solved = solve_equilibrium(totals, matrix, reaction.log_beta())
+    absorbers = np.concatenate([solved.species_M, solved.free_M], axis=1)
+    epsilon = np.concatenate([reaction.species_epsilon(), reaction.free_epsilon()])
+    path = inputs.instrument.path_length_cm
+    true_a = np.asarray(true_absorbance(absorbers, epsilon, path), dtype=float)
+    observed = np.asarray(observed_absorbance(true_a, inputs.instrument.stray_light), dtype=float)
+    limiting = reaction.components.index(inputs.design.limiting)
+    fraction = bound_fraction(solved.species_M, matrix, limiting, totals)
+    coloured = coloured_species_index(inputs)
+    safe = np.where(totals[:, limiting] > 0, totals[:, limiting], 1.0)
+    coloured_fraction = np.where(
+        totals[:, limiting] > 0,
+        solved.species_M[:, coloured] * matrix[coloured, limiting] / safe,
+        0.0,
+    )
+    strength = ionic_strength_after_reaction_M(
+        ions, initial, reaction, solved.free_M, solved.species_M
+    )
+    return Evaluation(
+        initial_M=initial,
+        total_M=totals,
+        free_M=solved.free_M,
+        species_M=solved.species_M,
+        true_absorbance=true_a,
+        absorbance=observed,
+        bound_fraction=fraction,
+        coloured_fraction=coloured_fraction,
+        ionic_strength_M=strength,
+    )
+
+
+def coloured_species_index(inputs: PlanInputs) -> int:
+    """Index of the coloured product: the most absorbing species holding the limiting reagent."""
+    reaction = inputs.reaction
+    limiting = inputs.design.limiting
+    holding = [i for i, sp in enumerate(reaction.species) if sp.formula.get(limiting, 0) > 0]
+    return max(holding, key=lambda i: (reaction.species[i].epsilon, -i))

@@ -1,0 +1,219 @@
+"""Test mixtures: informative about K, inside the window, spread over bound fraction.
+
+K is determined best where the limiting reagent is neither mostly free nor mostly bound
+(bound fraction roughly 0.2 to 0.8: Deranleau, J. Am. Chem. Soc. 91 (1969) 4044-4049,
+doi:10.1021/ja01043a003; Weber, Adv. Protein Chem. 29 (1975) 1-83, from memory). The test set
+is chosen to minimise a pluggable objective, by default the first-order predicted relative
+standard uncertainty of the mean K under the usual analysis, subject to every reading lying
+in the window, every bound fraction inside ``design.bound_fraction_range``, and the set
+spanning at least ``design.bound_fraction_span`` of bound fraction, so that the constancy of K
+across conditions is tested and a wrong model shows.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from planner.design.candidates import CandidateSet, coloured_species_index
+from planner.inputs import PlanInputs
+
+__all__ = [
+    "Objective",
+    "TestsChoice",
+    "choose_tests",
+    "first_order_relative_u_K",
+    "per_mixture_relative_u_K",
+]
+
+#: An objective scores a set of candidate indices; lower is better.
+Objective = Callable[[PlanInputs, CandidateSet, NDArray[np.int64]], float]
+
+# Candidates ranked by their own u(K)/K that the set search draws from (bounded for speed).
+_POOL = 300
+
+
+@dataclass(frozen=True, slots=True)
+class TestsChoice:
+    """The chosen test mixtures.
+
+    Attributes
+    ----------
+    tests
+        Candidate indices, ascending bound fraction.
+    objective
+        Objective value of the set (for the default: predicted relative SD of mean K).
+    span
+        Bound-fraction span covered [unitless].
+    eligible
+        Candidates that met the window and bound-fraction range [unitless].
+    """
+
+    tests: tuple[int, ...]
+    objective: float
+    span: float
+    eligible: int
+
+
+def per_mixture_relative_u_K(
+    inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
+) -> NDArray[np.float64]:
+    """First-order relative standard uncertainty of K from each test mixture alone.
+
+    Notes
+    -----
+    The usual analysis takes x = A_net/(b eps) for the product and
+    K = x / ((M0 - x)(L0 - x)). Its relative sensitivities are (GUM, JCGM 100:2008, eq. 10,
+    in relative form) d ln K/d ln x = 1 + x/(M0 - x) + x/(L0 - x),
+    d ln K/d ln M0 = -M0/(M0 - x) and d ln K/d ln L0 = -L0/(L0 - x); u(x)/x comes from the
+    reading noise u(A)/A_net, and u(M0), u(L0) from stocks and deliveries. The molar
+    absorptivity's own uncertainty is common to all tests and is left to the prediction.
+
+    Returns
+    -------
+    NDArray[np.float64]
+        u(K)/K per candidate, shape (len(indices),) [unitless]; inf where undefined.
+    """
+    ev = candidates.evaluation
+    reaction = inputs.reaction
+    limiting = reaction.components.index(inputs.design.limiting)
+    coloured = coloured_species_index(inputs)
+    partners = [
+        j
+        for j, c in enumerate(reaction.components)
+        if j != limiting and reaction.species[coloured].formula.get(c, 0) > 0
+    ]
+    excess = partners[0] if partners else limiting
+    x = ev.species_M[indices, coloured]
+    m0 = ev.total_M[indices, excess]
+    l0 = ev.total_M[indices, limiting]
+    free_m = np.maximum(m0 - x, 1e-300)
+    free_l = np.maximum(l0 - x, 1e-300)
+    s_x = 1.0 + x / free_m + x / free_l
+    s_m = m0 / free_m
+    s_l = l0 / free_l
+    a_net = np.maximum(ev.true_absorbance[indices], 1e-12)
+    u_x = inputs.instrument.absorbance_sd / a_net
+    u_m = candidates.u_relative_total[indices, excess]
+    u_l = candidates.u_relative_total[indices, limiting]
+    result: NDArray[np.float64] = np.sqrt((s_x * u_x) ** 2 + (s_m * u_m) ** 2 + (s_l * u_l) ** 2)
+    return result
+
+
+def first_order_relative_u_K(
+    inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
+) -> float:
+    """Default objective: relative SD of the mean of K over the set (independent tests)."""
+    per = per_mixture_relative_u_K(inputs, candidates, indices)
+    return float(np.sqrt(np.sum(per**2)) / max(len(indices), 1))
+
+
+def choose_tests(
+    inputs: PlanInputs,
+    candidates: CandidateSet,
+    exclude: tuple[int, ...] = (),
+    objective: Objective = first_order_relative_u_K,
+) -> TestsChoice:
+    """Choose ``design.tests`` test mixtures minimising the objective under the constraints.
+
+    Parameters
+    ----------
+    inputs
+        The plan.
+    candidates
+        Every deliverable mixture, evaluated.
+    exclude
+        Candidate indices already used (the standards and blank).
+    objective
+        Scores a set of candidate indices, lower is better.
+
+    Returns
+    -------
+    TestsChoice
+        Fewer tests than asked when fewer eligible candidates exist; the span is reported so
+        the caller can check it.
+
+    Notes
+    -----
+    The search fixes the pair of extreme members (lowest and highest bound fraction) that
+    satisfies the span, fills the rest greedily with the candidates that lower the objective
+    most, and keeps the best set over the candidate pairs; the next design stage may replace
+    it with an exact optimiser.
+    """
+    design = inputs.design
+    low, high = inputs.instrument.absorbance_window
+    ev = candidates.evaluation
+    f_low, f_high = design.bound_fraction_range
+    fraction = ev.bound_fraction
+    margin = 2.0 * inputs.instrument.absorbance_sd
+    eligible = (
+        (ev.absorbance >= low + margin)
+        & (ev.absorbance <= high - margin)
+        & (fraction >= f_low)
+        & (fraction <= f_high)
+    )
+    if exclude:
+        eligible[list(exclude)] = False
+    indices = np.flatnonzero(eligible)
+    count = design.tests
+    if not indices.size:
+        return TestsChoice((), float("inf"), 0.0, 0)
+    own = per_mixture_relative_u_K(inputs, candidates, indices)
+    pool = indices[np.argsort(own, kind="stable")[:_POOL]]
+    # Make sure the extremes of bound fraction are reachable for the span constraint.
+    extremes = indices[np.argsort(fraction[indices], kind="stable")]
+    pool = np.unique(np.concatenate([pool, extremes[:20], extremes[-20:]]))
+    if pool.size <= count:
+        chosen = pool[np.argsort(fraction[pool], kind="stable")]
+        span = float(np.ptp(fraction[chosen])) if chosen.size else 0.0
+        return TestsChoice(
+            tuple(int(i) for i in chosen),
+            objective(inputs, candidates, chosen),
+            span,
+            int(indices.size),
+        )
+    by_fraction = pool[np.argsort(fraction[pool], kind="stable")]
+    f_sorted = fraction[by_fraction]
+    own_pool = per_mixture_relative_u_K(inputs, candidates, by_fraction)
+    best: tuple[float, NDArray[np.int64]] | None = None
+    span_needed = design.bound_fraction_span if count > 1 else 0.0
+    gap = 0.5 * span_needed / max(count - 1, 1)
+    # Candidate "low end" members: the best few by their own uncertainty among the lower half.
+    low_ends = np.argsort(own_pool, kind="stable")[:40]
+    for lo in low_ends:
+        partners = np.flatnonzero(f_sorted >= f_sorted[lo] + span_needed)
+        if count > 1 and not partners.size:
+            continue
+        his = partners[np.argsort(own_pool[partners], kind="stable")[:5]] if count > 1 else [lo]
+        for hi in his:
+            members = [int(lo)] if lo == hi else [int(lo), int(hi)]
+            inside = np.flatnonzero((f_sorted >= f_sorted[lo]) & (f_sorted <= f_sorted[hi]))
+            rest = [int(i) for i in inside[np.argsort(own_pool[inside], kind="stable")]]
+            for i in rest:
+                if len(members) >= count:
+                    break
+                # Keep members apart in bound fraction so the set tests K across
+                # conditions instead of repeating one condition.
+                if i not in members and np.all(np.abs(f_sorted[members] - f_sorted[i]) >= gap):
+                    members.append(i)
+            if len(members) < count:
+                continue
+            chosen = by_fraction[np.array(sorted(members))]
+            value = objective(inputs, candidates, chosen)
+            if best is None or value < best[0]:
+                best = (value, chosen)
+    if best is None:
+        # No pair spans enough: take the widest-spread set available.
+        picks = np.unique(np.linspace(0, by_fraction.size - 1, count).round().astype(int))
+        chosen = by_fraction[picks]
+        best = (objective(inputs, candidates, chosen), chosen)
+    value, chosen = best
+    return TestsChoice(
+        tuple(int(i) for i in chosen),
+        value,
+        float(np.ptp(fraction[chosen])),
+        int(indices.size),
+    )

@@ -1,0 +1,221 @@
+"""The whole design: candidates -> standards and tests -> recipes -> totals -> checks.
+
+:func:`design_plan` is a pure function of the validated inputs. Every plan it returns has
+been through :func:`planner.verify.verify_plan`; an infeasible plan still comes back, with
+failed checks that say which constraint binds and what would fix it.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from planner.design.candidates import CandidateSet, candidate_set, coloured_species_index
+from planner.design.logistics import preparations, stock_totals
+from planner.design.mixtures import Objective, choose_tests, first_order_relative_u_K
+from planner.design.standards import choose_standards
+from planner.inputs import PlanInputs
+from planner.predict.analysis import predict_taught
+from planner.result import Addition, Check, Mixture, Plan, Prediction
+from planner.verify import verify_plan
+
+__all__ = ["design_plan", "mixture_from_candidate"]
+
+
+def mixture_from_candidate(
+    inputs: PlanInputs, candidates: CandidateSet, index: int, mixture_id: str, role: str
+) -> Mixture:
+    """The recipe and predicted state of one candidate.
+
+    Additions follow the order of addition: in a tube the diluent first, then the excess
+    reagents, the limiting reagent last; in a flask the reagents first and the diluent to
+    the mark last (common practice).
+    """
+    ev = candidates.evaluation
+    reaction = inputs.reaction
+    in_flask = inputs.design.vessel_kind == "volumetric-flask"
+    diluent = inputs.diluent
+    columns = list(range(len(candidates.stock_ids)))
+    if in_flask and diluent is not None:
+        columns = [j for j in columns if candidates.stock_ids[j] != diluent.id] + [
+            candidates.stock_ids.index(diluent.id)
+        ]
+    additions: list[Addition] = []
+    for j in columns:
+        option = candidates.options[j][int(candidates.option_index[index, j])]
+        volume = float(candidates.volumes_mL[index, j])
+        if volume <= 0 or not option.devices:
+            continue
+        additions.append(
+            Addition(
+                stock=candidates.stock_ids[j],
+                volume_mL=volume,
+                devices=option.devices,
+                order=len(additions) + 1,
+            )
+        )
+    initial = {
+        ion: float(ev.initial_M[index, k])
+        for k, ion in enumerate(candidates.ions.names)
+        if ev.initial_M[index, k] > 0
+    }
+    equilibrium = {c: float(ev.free_M[index, j]) for j, c in enumerate(reaction.components)}
+    equilibrium.update(
+        {sp.name: float(ev.species_M[index, i]) for i, sp in enumerate(reaction.species)}
+    )
+    limiting = reaction.components.index(inputs.design.limiting)
+    net = float(ev.true_absorbance[index])
+    u_absorbance = float(
+        np.hypot(
+            inputs.instrument.absorbance_sd, net * candidates.u_relative_total[index, limiting]
+        )
+    )
+    return Mixture(
+        id=mixture_id,
+        role=role,
+        total_volume_mL=candidates.total_volume_mL,
+        additions=tuple(additions),
+        initial_M=initial,
+        equilibrium_M=equilibrium,
+        absorbance=float(ev.absorbance[index]),
+        u_absorbance=u_absorbance,
+        bound_fraction=float(ev.bound_fraction[index]),
+        ionic_strength_M=float(ev.ionic_strength_M[index]),
+    )
+
+
+def _excess_component(inputs: PlanInputs) -> int | None:
+    reaction = inputs.reaction
+    limiting = inputs.design.limiting
+    coloured = reaction.species[coloured_species_index(inputs)]
+    partners = [c for c, n in coloured.formula.items() if c != limiting and n > 0]
+    return reaction.components.index(partners[0]) if partners else None
+
+
+def _prediction(
+    inputs: PlanInputs,
+    candidates: CandidateSet,
+    blank: int,
+    standards: Sequence[int],
+    tests: Sequence[int],
+) -> Prediction | None:
+    excess = _excess_component(inputs)
+    if blank < 0 or len(standards) < 1 or len(tests) < 1 or excess is None:
+        return None
+    ev = candidates.evaluation
+    limiting = inputs.reaction.components.index(inputs.design.limiting)
+    std = np.array(standards)
+    tst = np.array(tests)
+    coloured = inputs.reaction.species[coloured_species_index(inputs)]
+    k_true = 10.0**coloured.log_beta
+    return predict_taught(
+        path_length_cm=inputs.instrument.path_length_cm,
+        blank_absorbance=float(ev.absorbance[blank]),
+        standards_limiting_M=ev.total_M[std, limiting],
+        standards_absorbance=ev.absorbance[std],
+        u_standards_limiting_rel=candidates.u_relative_total[std, limiting],
+        tests_excess_M=ev.total_M[tst, excess],
+        tests_limiting_M=ev.total_M[tst, limiting],
+        tests_absorbance=ev.absorbance[tst],
+        u_tests_excess_rel=candidates.u_relative_total[tst, excess],
+        u_tests_limiting_rel=candidates.u_relative_total[tst, limiting],
+        absorbance_sd=inputs.instrument.absorbance_sd,
+        K_true=k_true,
+        epsilon_true=coloured.epsilon,
+    )
+
+
+def _feasibility(inputs: PlanInputs, candidates: CandidateSet, n_standards: int) -> list[Check]:
+    """Say which constraint binds when the shelf cannot make what the design asks."""
+    ev = candidates.evaluation
+    low, high = inputs.instrument.absorbance_window
+    limiting = inputs.reaction.components.index(inputs.design.limiting)
+    coloured = ev.total_M[:, limiting] > 0
+    if not np.any(coloured):
+        return [
+            Check(
+                "design-feasibility", "fail", "no deliverable mixture contains the limiting reagent"
+            )
+        ]
+    top = float(np.max(ev.absorbance[coloured]))
+    bottom = float(np.min(ev.absorbance[coloured]))
+    if top < low:
+        return [
+            Check(
+                "design-feasibility",
+                "fail",
+                f"the strongest mixture the shelf can make reads {top:.3f}, below the window's "
+                f"{low:g}: use a limiting stock at least {low / max(top, 1e-12):.2g} times "
+                "stronger, a longer cuvette, or larger pipettes",
+            )
+        ]
+    if bottom > high:
+        return [
+            Check(
+                "design-feasibility",
+                "fail",
+                f"the weakest mixture the shelf can make reads {bottom:.3f}, above the window's "
+                f"{high:g}: dilute the limiting stock or add a smaller pipette",
+            )
+        ]
+    if n_standards < inputs.design.standards:
+        return [
+            Check(
+                "design-feasibility",
+                "fail",
+                f"only {n_standards} distinct standards fit the window with the shelf's "
+                "volumes: add a graduated pipette or buret, or ask for fewer standards",
+            )
+        ]
+    return []
+
+
+def design_plan(inputs: PlanInputs, objective: Objective = first_order_relative_u_K) -> Plan:
+    """Design, verify and predict a complete plan.
+
+    Parameters
+    ----------
+    inputs
+        Validated plan inputs.
+    objective
+        Scores a set of test mixtures (lower is better); see :mod:`planner.design.mixtures`.
+
+    Returns
+    -------
+    Plan
+        With ``checks`` from the verifier, failed checks describing what binds.
+    """
+    candidates = candidate_set(inputs)
+    standards = choose_standards(inputs, candidates)
+    used = ((standards.blank,) if standards.blank >= 0 else ()) + standards.standards
+    tests = choose_tests(inputs, candidates, exclude=used, objective=objective)
+
+    mixtures: list[Mixture] = []
+    if standards.blank >= 0:
+        mixtures.append(mixture_from_candidate(inputs, candidates, standards.blank, "B1", "blank"))
+    for n, index in enumerate(standards.standards, start=1):
+        mixtures.append(mixture_from_candidate(inputs, candidates, index, f"S{n}", "standard"))
+    for n, index in enumerate(tests.tests, start=1):
+        mixtures.append(mixture_from_candidate(inputs, candidates, index, f"T{n}", "test"))
+
+    totals = stock_totals(inputs, mixtures)
+    checks = list(_feasibility(inputs, candidates, len(standards.standards)))
+    checks.extend(verify_plan(inputs, mixtures, totals))
+    prediction = _prediction(inputs, candidates, standards.blank, standards.standards, tests.tests)
+    notes = (
+        "Order of addition: in tubes the diluent first, then the excess reagent, the limiting "
+        "reagent last; in flasks the reagents first, then the diluent to the mark "
+        "(common practice).",
+        f"Test mixtures chosen to minimise the predicted u(K)/K of the mean K "
+        f"({100 * tests.objective:.2f} %) among {tests.eligible} eligible mixtures.",
+    )
+    return Plan(
+        inputs=inputs,
+        mixtures=tuple(mixtures),
+        totals=totals,
+        preparations=preparations(inputs, totals),
+        checks=tuple(checks),
+        prediction=prediction,
+        notes=notes,
+    )

@@ -1,0 +1,249 @@
+"""Calibration standards: a reagent blank plus standards spread evenly across the window.
+
+The standards share one excess recipe (the same volumes of every reagent stock except the
+limiting one), so a single reagent blank, that excess without the limiting reagent, serves
+them all. For each excess recipe the standards are the candidates whose readings lie nearest
+to evenly spaced targets in the absorbance window; the recipe chosen is the one that keeps the
+limiting reagent bound to within ``assumption_tolerance`` (or, when no recipe can, the one
+that binds most), then hits the targets best, then needs fewest deliveries, then has the
+lowest predicted uncertainty.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from planner.chem.equilibrium import bound_fraction, solve_equilibrium
+from planner.design.candidates import CandidateSet
+from planner.inputs import PlanInputs
+
+__all__ = ["StandardsChoice", "absorbance_targets", "choose_standards", "excess_needed_M"]
+
+# Groups examined in full after ranking by attainable bound fraction (enough to contain every
+# distinct excess level of a shelf, and bounded so the search stays in milliseconds).
+_GROUPS_EXAMINED = 400
+
+
+@dataclass(frozen=True, slots=True)
+class StandardsChoice:
+    """The chosen blank and standards.
+
+    Attributes
+    ----------
+    blank
+        Candidate index of the reagent blank, or -1 when no blank recipe is deliverable.
+    standards
+        Candidate indices of the standards, ascending absorbance.
+    targets
+        Absorbance targets the standards aimed at [unitless].
+    tolerance_met
+        Every standard's bound fraction >= 1 - assumption_tolerance.
+    achieved_bound_fraction
+        Smallest bound fraction among the standards [unitless].
+    """
+
+    blank: int
+    standards: tuple[int, ...]
+    targets: tuple[float, ...]
+    tolerance_met: bool
+    achieved_bound_fraction: float
+
+
+def absorbance_targets(window: tuple[float, float], count: int) -> NDArray[np.float64]:
+    """Evenly spaced absorbance targets inside the window, 5 % of its width in from each end.
+
+    Parameters
+    ----------
+    window
+        (low, high) linear working range [unitless].
+    count
+        Number of standards.
+
+    Returns
+    -------
+    NDArray[np.float64]
+        Targets, shape (count,) [unitless].
+    """
+    low, high = window
+    inset = 0.05 * (high - low)
+    if count == 1:
+        return np.array([(low + high) / 2])
+    return np.linspace(low + inset, high - inset, count)
+
+
+def choose_standards(inputs: PlanInputs, candidates: CandidateSet) -> StandardsChoice:
+    """Choose the reagent blank and the standards from the candidates.
+
+    Parameters
+    ----------
+    inputs
+        The plan.
+    candidates
+        Every deliverable mixture, evaluated.
+
+    Returns
+    -------
+    StandardsChoice
+        When fewer distinct standards than asked exist in the window, as many as exist.
+    """
+    design = inputs.design
+    low, high = inputs.instrument.absorbance_window
+    width = high - low
+    evaluation = candidates.evaluation
+    limiting = inputs.reaction.components.index(design.limiting)
+    limiting_columns = [
+        j
+        for j, sid in enumerate(candidates.stock_ids)
+        if design.limiting in inputs.stock(sid).contains_M
+    ]
+    has_limiting = evaluation.total_M[:, limiting] > 0
+    diluent = inputs.diluent
+    excess_columns = [
+        j
+        for j, sid in enumerate(candidates.stock_ids)
+        if j not in limiting_columns and (diluent is None or sid != diluent.id)
+    ]
+    groups = (
+        candidates.option_index[:, excess_columns]
+        if excess_columns
+        else np.zeros((candidates.size, 0), dtype=np.int64)
+    )
+    absorbance = evaluation.absorbance
+    # Two reading SDs inside the window, so noise does not push a standard out of it.
+    margin = 2.0 * inputs.instrument.absorbance_sd
+    in_window = (absorbance >= low + margin) & (absorbance <= high - margin)
+    usable = has_limiting & in_window & np.any(groups > 0, axis=1)
+    if excess_columns and not np.any(usable):
+        usable = has_limiting & in_window
+    targets = absorbance_targets((low, high), design.standards)
+    tolerance = design.assumption_tolerance
+    if not np.any(usable):
+        return StandardsChoice(-1, (), tuple(targets), False, 0.0)
+
+    keys, inverse = np.unique(groups[usable], axis=0, return_inverse=True)
+    inverse = inverse.reshape(-1)
+    indices = np.flatnonzero(usable)
+    fraction = evaluation.bound_fraction[indices]
+    # Rank excess recipes by the bound fraction they keep at the top of the window.
+    group_floor = np.full(len(keys), np.inf)
+    np.minimum.at(group_floor, inverse, fraction)
+    group_count = np.bincount(inverse, minlength=len(keys))
+    order = np.lexsort((-group_count, -group_floor))[:_GROUPS_EXAMINED]
+
+    best: tuple[tuple[float, ...], list[int]] | None = None
+    for g in order:
+        members = indices[inverse == g]
+        chosen: list[int] = []
+        for target in targets:
+            pool = members[~np.isin(members, chosen)]
+            if not pool.size:
+                break
+            # Nearest reading first; ties (within 1 % of the window) to fewer deliveries,
+            # then to the lower predicted relative uncertainty.
+            miss = np.round(np.abs(absorbance[pool] - target) / (0.01 * width))
+            pick = np.lexsort(
+                (candidates.u_relative_total[pool, limiting], candidates.deliveries[pool], miss)
+            )[0]
+            chosen.append(int(pool[pick]))
+        floor = float(np.min(evaluation.bound_fraction[chosen])) if chosen else 0.0
+        met = floor >= 1.0 - tolerance
+        miss_total = float(np.sum(np.abs(absorbance[chosen] - targets[: len(chosen)])) / width)
+        score = (
+            -len(chosen),
+            0.0 if met else 1.0,
+            0.0 if met else -floor,
+            round(miss_total, 2),
+            float(np.sum(candidates.deliveries[chosen])),
+            float(np.sum(candidates.u_relative_total[chosen, limiting])),
+        )
+        if best is None or score < best[0]:
+            best = (score, chosen)
+    assert best is not None
+    chosen = sorted(best[1], key=lambda i: absorbance[i])
+    blank = _blank_for(candidates, chosen[0], limiting_columns, has_limiting)
+    floor = float(np.min(evaluation.bound_fraction[chosen]))
+    return StandardsChoice(
+        blank=blank,
+        standards=tuple(chosen),
+        targets=tuple(float(t) for t in targets),
+        tolerance_met=floor >= 1.0 - tolerance,
+        achieved_bound_fraction=floor,
+    )
+
+
+def _blank_for(
+    candidates: CandidateSet,
+    standard: int,
+    limiting_columns: list[int],
+    has_limiting: NDArray[np.bool_],
+) -> int:
+    """The candidate with the standard's excess recipe and no limiting reagent."""
+    excess = [j for j in range(len(candidates.stock_ids)) if j not in limiting_columns]
+    reference = candidates.volumes_mL[standard]
+    blanks = np.flatnonzero(~has_limiting)
+    if not blanks.size:
+        return -1
+    # Same excess volumes; the diluent differs by the limiting volume it replaces.
+    non_diluent = [j for j in excess if j != len(candidates.stock_ids) - 1] or excess
+    distance = np.sum(
+        np.abs(candidates.volumes_mL[blanks][:, non_diluent] - reference[non_diluent]), axis=1
+    )
+    order = np.lexsort((candidates.deliveries[blanks], distance))
+    return int(blanks[order[0]])
+
+
+def excess_needed_M(
+    inputs: PlanInputs,
+    excess_component: str,
+    limiting_total_M: float,
+    tolerance: float,
+) -> float:
+    """Smallest total excess concentration keeping the limiting reagent bound within tolerance.
+
+    Solved with the full equilibrium model (every product species), by bisection on the
+    logarithm of the excess total; for a lone 1:1 complex it reproduces the closed form
+    (1 - tol)[L] + (1 - tol)/(K tol) of :mod:`planner.chem.assumption`.
+
+    Parameters
+    ----------
+    inputs
+        The plan (reaction and limiting reagent).
+    excess_component
+        The component in excess.
+    limiting_total_M
+        Total concentration of the limiting reagent [mol/L].
+    tolerance
+        Accepted relative error of the all-bound assumption [unitless].
+
+    Returns
+    -------
+    float
+        The total excess [mol/L]; ``inf`` when even 1e3 mol/L would not do.
+    """
+    reaction = inputs.reaction
+    matrix = reaction.stoichiometry()
+    log_beta = reaction.log_beta()
+    limiting = reaction.components.index(inputs.design.limiting)
+    excess = reaction.components.index(excess_component)
+    low, high = np.log10(max(limiting_total_M, 1e-12)) - 6.0, 3.0
+
+    def fraction(log_excess: NDArray[np.float64]) -> NDArray[np.float64]:
+        totals = np.zeros((log_excess.size, len(reaction.components)))
+        totals[:, limiting] = limiting_total_M
+        totals[:, excess] = 10.0**log_excess
+        solved = solve_equilibrium(totals, matrix, log_beta)
+        return bound_fraction(solved.species_M, matrix, limiting, totals)
+
+    if fraction(np.array([high]))[0] < 1.0 - tolerance:
+        return float("inf")
+    grid = np.array([low, high])
+    for _ in range(60):
+        middle = grid.mean()
+        if fraction(np.array([middle]))[0] >= 1.0 - tolerance:
+            grid[1] = middle
+        else:
+            grid[0] = middle
+    return float(10.0 ** grid[1])

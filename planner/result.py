@@ -1,0 +1,238 @@
+"""Stage results of a plan: recipes, their predicted state, totals, checks and prediction.
+
+Frozen dataclasses passed from design to verification to prediction to the reports. Units are
+in the names (``_M`` mol/L, ``_mL`` millilitres, ``_g`` grams); ``epsilon`` is a molar
+absorptivity [L mol⁻¹ cm⁻¹] and ``K`` a formation constant [L/mol].
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from planner.inputs import PlanInputs
+
+__all__ = [
+    "CHECK_STATUSES",
+    "ROLES",
+    "Addition",
+    "Check",
+    "Mixture",
+    "Plan",
+    "Prediction",
+    "StockPreparation",
+    "Totals",
+]
+
+#: Mixture roles, in the order sheets list them.
+ROLES = ("blank", "standard", "test")
+#: Check statuses, worst first.
+CHECK_STATUSES = ("fail", "warn", "pass")
+
+
+@dataclass(frozen=True, slots=True)
+class Addition:
+    """One stock delivered into a mixture.
+
+    Attributes
+    ----------
+    stock
+        Stock id.
+    volume_mL
+        Volume delivered [mL].
+    devices
+        Device ids used, one per delivery (a repeated delivery repeats the id); for the
+        diluent "to the mark" of a flask, the flask's id.
+    order
+        Position in the order of addition, from 1.
+    """
+
+    stock: str
+    volume_mL: float
+    devices: tuple[str, ...]
+    order: int
+
+
+@dataclass(frozen=True, slots=True)
+class Mixture:
+    """A recipe and its predicted state.
+
+    Attributes
+    ----------
+    id
+        ``B1``, ``S1``..., ``T1``...
+    role
+        One of :data:`ROLES`.
+    total_volume_mL
+        Final volume [mL].
+    additions
+        The deliveries, in order of addition.
+    initial_M
+        Concentration of every ion after mixing, before reaction [mol/L] (counter-ions
+        included).
+    equilibrium_M
+        Every reaction component (free) and every product species at equilibrium [mol/L].
+    absorbance
+        Predicted photometer reading, stray light applied, blank not subtracted [unitless].
+    u_absorbance
+        Predicted standard uncertainty of that reading [unitless].
+    bound_fraction
+        Fraction of the limiting reagent in product species, weighted by coefficient
+        [unitless].
+    ionic_strength_M
+        Ionic strength after reaction [mol/L].
+    """
+
+    id: str
+    role: str
+    total_volume_mL: float
+    additions: tuple[Addition, ...]
+    initial_M: dict[str, float]
+    equilibrium_M: dict[str, float]
+    absorbance: float
+    u_absorbance: float
+    bound_fraction: float
+    ionic_strength_M: float
+
+    def volume_of(self, stock_id: str) -> float:
+        """Total volume of one stock in this mixture [mL]."""
+        return sum(a.volume_mL for a in self.additions if a.stock == stock_id)
+
+
+@dataclass(frozen=True, slots=True)
+class Check:
+    """One finding of verification.
+
+    Attributes
+    ----------
+    name
+        Stable check name, e.g. ``absorbance-window``.
+    status
+        ``pass``, ``warn`` or ``fail``.
+    detail
+        What was found and, when not passing, what would fix it.
+    """
+
+    name: str
+    status: str
+    detail: str
+
+
+@dataclass(frozen=True, slots=True)
+class Totals:
+    """Stock volumes the plan needs [mL], keyed by stock id.
+
+    Attributes
+    ----------
+    per_bench
+        One set of mixtures.
+    per_section
+        per_bench x benches_per_section x replicates.
+    session
+        per_bench x benches_per_section x sections x replicates.
+    to_prepare
+        session x (1 + margin) + dead volume per bench container.
+    dead_volume_mL
+        The dead volume assumed per stock and bench container [mL].
+    """
+
+    per_bench: dict[str, float]
+    per_section: dict[str, float]
+    session: dict[str, float]
+    to_prepare: dict[str, float]
+    dead_volume_mL: float
+
+
+@dataclass(frozen=True, slots=True)
+class StockPreparation:
+    """How the prep room makes one stock.
+
+    Attributes
+    ----------
+    stock
+        Stock id.
+    flask_mL
+        Volumetric flask size to make it in [mL].
+    flasks
+        How many such flasks cover ``to_prepare``.
+    solid_formula
+        Solid to weigh, or ``""`` when the stock is not made from a listed solid.
+    molar_mass_g_per_mol
+        Molar mass of the solid [g/mol] (0 when no solid).
+    purity
+        Mass fraction of the compound in the reagent [unitless].
+    mass_g
+        Mass of solid per flask [g] (0 when no solid).
+    provides
+        The ion the solid provides.
+    concentration_M
+        Target concentration of that ion [mol/L].
+    medium
+        The medium to make it up in (the diluent's composition), for the label.
+    """
+
+    stock: str
+    flask_mL: float
+    flasks: int
+    solid_formula: str
+    molar_mass_g_per_mol: float
+    purity: float
+    mass_g: float
+    provides: str
+    concentration_M: float
+    medium: str
+
+
+@dataclass(frozen=True, slots=True)
+class Prediction:
+    """What the usual analysis (limiting reagent all bound in the standards) will report.
+
+    Attributes
+    ----------
+    epsilon
+        Mean molar absorptivity from the standard curve [L mol⁻¹ cm⁻¹].
+    u_epsilon
+        Its standard uncertainty [L mol⁻¹ cm⁻¹].
+    K
+        Mean K over the test mixtures [L/mol].
+    u_K
+        Its standard uncertainty [L/mol].
+    K_bias_from_assumption
+        Relative bias of that K against the true one [unitless].
+    K_true
+        The K the plan assumes [L/mol].
+    epsilon_true
+        The molar absorptivity the plan assumes for the coloured product [L mol⁻¹ cm⁻¹].
+    K_per_test
+        The K each test mixture gives under the usual analysis [L/mol].
+    """
+
+    epsilon: float
+    u_epsilon: float
+    K: float
+    u_K: float
+    K_bias_from_assumption: float
+    K_true: float
+    epsilon_true: float
+    K_per_test: tuple[float, ...] = ()
+
+
+@dataclass(frozen=True, slots=True)
+class Plan:
+    """A finished plan: inputs, mixtures, totals, preparation, checks and prediction."""
+
+    inputs: PlanInputs
+    mixtures: tuple[Mixture, ...]
+    totals: Totals
+    preparations: tuple[StockPreparation, ...]
+    checks: tuple[Check, ...]
+    prediction: Prediction | None
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def failed(self) -> bool:
+        """True when some check failed (the exit status is then 1)."""
+        return any(c.status == "fail" for c in self.checks)
+
+    def by_role(self, role: str) -> tuple[Mixture, ...]:
+        """The mixtures of one role, in plan order."""
+        return tuple(m for m in self.mixtures if m.role == role)
