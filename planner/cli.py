@@ -10,11 +10,16 @@ import enum
 import sys
 import traceback
 from collections.abc import Callable
-from typing import Annotated, TypeVar
+from pathlib import Path
+from typing import TYPE_CHECKING, Annotated, TypeVar
 
 import typer
 
 from planner.errors import PlannerError
+
+if TYPE_CHECKING:
+    from planner.inputs import PlanInputs
+    from planner.result import Check
 
 __all__ = ["app", "main"]
 
@@ -139,6 +144,197 @@ def check(
     code = _run(body)
     if code:
         raise typer.Exit(code)
+
+
+def _load(file: Path | None) -> PlanInputs:
+    from planner.planfile import load_plan, parse_plan
+
+    if file is None:
+        from importlib.resources import files
+
+        text = files("planner").joinpath("data/default.toml").read_text(encoding="utf-8")
+        return parse_plan(text, source="the embedded default plan")
+    return load_plan(file)
+
+
+def _today() -> str:
+    import datetime
+
+    return datetime.date.today().isoformat()
+
+
+@app.command(
+    epilog=(
+        "Examples:\n\n"
+        "  planner plan                      plan the embedded default scenario\n\n"
+        "  planner plan recipes/iron-thiocyanate.toml --out sheets/\n\n"
+        "  planner plan my-plan.toml --format json > plan.json"
+    )
+)
+def plan(
+    file: Annotated[
+        Path | None,
+        typer.Argument(help="Plan file (TOML). Omit it to plan the embedded default scenario."),
+    ] = None,
+    out: Annotated[
+        Path | None,
+        typer.Option(
+            "--out",
+            help="Folder for plan.json, bench sheets, prep sheet, answer key and CSV.",
+        ),
+    ] = None,
+    output_format: Annotated[
+        OutputFormat, typer.Option("--format", help="text for people, json for programs.")
+    ] = OutputFormat.text,
+    force: Annotated[
+        bool, typer.Option("--force", help="Replace a non-empty --out folder.")
+    ] = False,
+    date: Annotated[
+        str | None,
+        typer.Option("--date", help="Date printed on the sheets (default: today), YYYY-MM-DD."),
+    ] = None,
+) -> None:
+    """Design the standards and test mixtures from what is on the shelf, verified.
+
+    Solves every deliverable mixture exactly, chooses a reagent blank, standards spread across
+    the absorbance window and test mixtures informative about K, totals the stocks, and checks
+    the result from first principles. Exit status 1 when a check fails (the report still
+    prints, failures first), 2 when the plan file cannot be read.
+    """
+
+    def body() -> int:
+        from planner.design.plan import design_plan
+
+        inputs = _load(file)
+        result = design_plan(inputs)
+        if out is not None:
+            from planner.report.outdir import plan_files, write_output_folder
+
+            write_output_folder(out, plan_files(result, date=date or _today()), force=force)
+        if output_format is OutputFormat.json:
+            from planner.report.plan_json import plan_json
+
+            _write_stdout(plan_json(result))
+        else:
+            from rich.console import Console
+
+            from planner.report.terminal import render_plan
+
+            Console(highlight=False).print(render_plan(result))
+        if out is not None:
+            from rich.console import Console
+
+            Console(stderr=True, highlight=False).print(f"wrote {out}/")
+        return EXIT_CHECK_FAILED if result.failed else EXIT_OK
+
+    code = _run(body)
+    if code:
+        raise typer.Exit(code)
+
+
+def _render_checks(checks: tuple[Check, ...]) -> None:
+    from rich.console import Console
+    from rich.table import Table
+
+    from planner.report.plan_json import checks_worst_first
+
+    table = Table(title="Verification", show_lines=False)
+    table.add_column("status")
+    table.add_column("check")
+    table.add_column("detail", overflow="fold")
+    style = {"fail": "bold red", "warn": "yellow", "pass": "green"}
+    for item in checks_worst_first(checks):
+        table.add_row(f"[{style[item.status]}]{item.status.upper()}[/]", item.name, item.detail)
+    Console(highlight=False).print(table)
+
+
+@app.command(
+    epilog=(
+        "Examples:\n\n"
+        "  planner verify sheets/plan.json\n\n"
+        "  planner verify edited-plan.json --format json"
+    )
+)
+def verify(
+    result_file: Annotated[
+        Path, typer.Argument(help="A saved plan result (plan.json), perhaps edited by hand.")
+    ],
+    output_format: Annotated[
+        OutputFormat, typer.Option("--format", help="text for people, json for programs.")
+    ] = OutputFormat.text,
+) -> None:
+    """Re-check a saved plan result from first principles.
+
+    Re-mixes every recipe from its additions, re-solves the equilibria, re-reads the
+    absorbances, checks every volume against the devices named and the shelf, and recomputes
+    the totals. Exit status 1 on any failed check.
+    """
+
+    def body() -> int:
+        from planner.resultfile import load_result
+        from planner.verify import verify_plan
+
+        saved = load_result(result_file)
+        checks = verify_plan(saved.inputs, saved.mixtures, saved.totals)
+        if output_format is OutputFormat.json:
+            from planner.report.jsonout import dumps
+            from planner.report.plan_json import checks_worst_first
+
+            document = {
+                "schema": "planner.verify/1",
+                "file": str(result_file),
+                "checks": [
+                    {"name": c.name, "status": c.status, "detail": c.detail}
+                    for c in checks_worst_first(checks)
+                ],
+            }
+            _write_stdout(dumps(document))
+        else:
+            _render_checks(checks)
+        return EXIT_CHECK_FAILED if any(c.status == "fail" for c in checks) else EXIT_OK
+
+    code = _run(body)
+    if code:
+        raise typer.Exit(code)
+
+
+@app.command(epilog="Examples:\n\n  planner init\n\n  planner init lab-week-3.toml")
+def init(
+    path: Annotated[Path, typer.Argument(help="Where to write the starter plan file.")] = Path(
+        "plan.toml"
+    ),
+) -> None:
+    """Write a commented starter plan file (never overwrites an existing file)."""
+
+    def body() -> int:
+        from importlib.resources import files
+
+        from planner.errors import OutputError
+
+        if path.exists():
+            raise OutputError(
+                "file exists; not overwriting it",
+                field=str(path),
+                hint="choose another PATH or remove the file first",
+            )
+        text = files("planner").joinpath("data/starter.toml").read_text(encoding="utf-8")
+        try:
+            with path.open("x", encoding="utf-8") as handle:
+                handle.write(text)
+        except OSError as error:
+            raise OutputError(
+                f"cannot write the file ({error.strerror})",
+                field=str(path),
+                hint="choose a folder you can write to",
+            ) from None
+        from rich.console import Console
+
+        Console(stderr=True, highlight=False).print(
+            f"wrote {path}; edit it, then run: planner plan {path}"
+        )
+        return EXIT_OK
+
+    _run(body)
 
 
 def main() -> None:

@@ -37,10 +37,10 @@ def mixture_from_candidate(
     in_flask = inputs.design.vessel_kind == "volumetric-flask"
     diluent = inputs.diluent
     columns = list(range(len(candidates.stock_ids)))
-    if in_flask and diluent is not None:
-        columns = [j for j in columns if candidates.stock_ids[j] != diluent.id] + [
-            candidates.stock_ids.index(diluent.id)
-        ]
+    if diluent is not None:
+        reagents = [j for j in columns if candidates.stock_ids[j] != diluent.id]
+        diluent_column = [candidates.stock_ids.index(diluent.id)]
+        columns = reagents + diluent_column if in_flask else diluent_column + reagents
     additions: list[Addition] = []
     for j in columns:
         option = candidates.options[j][int(candidates.option_index[index, j])]

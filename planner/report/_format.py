@@ -1,0 +1,271 @@
+"""Numbers, devices and stock order written for people (shared by the terminal and the sheets).
+
+Machine outputs (JSON, CSV) keep full precision; everything here rounds for reading. Volumes are
+shown to the reading resolution of the device that delivers them, other quantities to a few
+significant figures.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+from planner.inputs import DEVICE_KINDS, Device, PlanInputs
+from planner.result import Addition, Mixture, Plan
+
+__all__ = [
+    "DeviceName",
+    "addition_decimals",
+    "additions_of",
+    "device_name",
+    "devices_long",
+    "devices_short",
+    "is_to_the_mark",
+    "percent",
+    "plain",
+    "scientific",
+    "significant",
+    "stock_roles",
+    "stocks_in_addition_order",
+    "volume",
+]
+
+#: One- or two-letter codes for the terminal, where width is scarce.
+_SHORT_CODES = {
+    "transfer-pipette": "P",
+    "graduated-pipette": "GP",
+    "buret": "B",
+    "piston-pipette": "PP",
+    "volumetric-flask": "F",
+    "graduated-cylinder": "C",
+    "tube": "T",
+}
+
+#: Words for the printed sheets.
+_LONG_NAMES = {
+    "transfer-pipette": "pipette",
+    "graduated-pipette": "graduated pipette",
+    "buret": "buret",
+    "piston-pipette": "piston pipette",
+    "volumetric-flask": "flask",
+    "graduated-cylinder": "cylinder",
+    "tube": "tube",
+}
+
+_DEVICE_ID = re.compile(
+    r"^(?P<kind>" + "|".join(re.escape(kind) for kind in DEVICE_KINDS) + r")-"
+    r"(?P<size>[0-9.]+(?:-[0-9.]+)?)(?P<unit>mL|uL)$"
+)
+
+
+def significant(value: float, digits: int = 4) -> str:
+    """``value`` with ``digits`` significant figures, fixed-point between 1e-3 and 1e6.
+
+    Outside that range the text is scientific with a short exponent (``1.360e-4``).
+    """
+    if not math.isfinite(value):
+        return str(value)
+    if value == 0:
+        return "0"
+    # Round first, so that 9.99996 becomes 10.00 and not 10.000 (one figure too many).
+    rounded = float(f"{value:.{digits - 1}e}")
+    magnitude = math.floor(math.log10(abs(rounded)))
+    if magnitude < -3 or magnitude >= 6:
+        return scientific(value, digits)
+    decimals = max(digits - 1 - magnitude, 0)
+    return f"{rounded:.{decimals}f}"
+
+
+def scientific(value: float, digits: int = 4) -> str:
+    """``value`` in scientific notation with ``digits`` significant figures (``1.360e-4``)."""
+    if not math.isfinite(value):
+        return str(value)
+    if value == 0:
+        return "0"
+    mantissa, exponent = f"{value:.{digits - 1}e}".split("e")
+    return f"{mantissa}e{int(exponent)}"
+
+
+def plain(value: float, digits: int = 4) -> str:
+    """Like :func:`significant`, without trailing zeros (``250.0`` -> ``250``, ``0.20`` -> ``0.2``).
+
+    For amounts that are set rather than measured: flask sizes, target concentrations, margins.
+    """
+    text = significant(value, digits)
+    if "." in text and "e" not in text:
+        text = text.rstrip("0").rstrip(".")
+    return text
+
+
+def percent(fraction: float, digits: int = 3, *, signed: bool = False) -> str:
+    """A fraction as a percentage with ``digits`` significant figures (``0.1234`` -> ``12.3 %``)."""
+    text = significant(100 * fraction, digits)
+    if signed and fraction > 0:
+        text = "+" + text
+    return f"{text} %"
+
+
+@dataclass(frozen=True, slots=True)
+class DeviceName:
+    """A device id taken apart: kind, the size as written in the id, and the size's unit."""
+
+    kind: str
+    size: str
+    unit: str
+
+    @property
+    def short(self) -> str:
+        """Terminal code, e.g. ``P5``, ``GP10``, ``PP100-1000``."""
+        code = _SHORT_CODES.get(self.kind)
+        if code is None:
+            return self.kind
+        return f"{code}{self.size}"
+
+    @property
+    def long(self) -> str:
+        """Sheet wording, e.g. ``5 mL pipette``, ``100-1000 µL piston pipette``."""
+        words = _LONG_NAMES.get(self.kind)
+        if words is None:
+            return self.kind
+        unit = "µL" if self.unit == "uL" else "mL"
+        return f"{self.size} {unit} {words}"
+
+
+def device_name(device_id: str) -> DeviceName:
+    """Take a device id (DESIGN.md contract detail 5) apart; unknown ids are kept whole."""
+    match = _DEVICE_ID.match(device_id)
+    if match is None:
+        return DeviceName(kind=device_id, size="", unit="")
+    return DeviceName(kind=match["kind"], size=match["size"], unit=match["unit"])
+
+
+def _grouped(devices: Sequence[str]) -> list[tuple[str, int]]:
+    """Device ids with repeat counts, in order of first use."""
+    counts: dict[str, int] = {}
+    for device_id in devices:
+        counts[device_id] = counts.get(device_id, 0) + 1
+    return list(counts.items())
+
+
+def devices_short(devices: Sequence[str]) -> str:
+    """Terminal form of a delivery: ``2×P2+P5``."""
+    parts = []
+    for device_id, count in _grouped(devices):
+        code = device_name(device_id).short
+        parts.append(code if count == 1 else f"{count}×{code}")
+    return "+".join(parts)
+
+
+def devices_long(devices: Sequence[str]) -> str:
+    """Sheet form of a delivery: ``2 × 2 mL pipette + 5 mL pipette``."""
+    parts = []
+    for device_id, count in _grouped(devices):
+        words = device_name(device_id).long
+        parts.append(words if count == 1 else f"{count} × {words}")
+    return " + ".join(parts)
+
+
+def is_to_the_mark(addition: Addition) -> bool:
+    """True for the diluent filled to the mark of a volumetric flask (DESIGN.md detail 6)."""
+    return bool(addition.devices) and all(
+        device_name(d).kind == "volumetric-flask" for d in addition.devices
+    )
+
+
+def _decimals_of_step(step_mL: float) -> int:
+    """Decimal places that show a reading step (0.01 -> 2, 0.1 -> 1, 0.005 -> 3, 1 -> 0)."""
+    if step_mL <= 0 or not math.isfinite(step_mL):
+        return 2
+    decimals = 0
+    # Ten places is far below any bench device; the bound only stops a pathological loop.
+    while decimals < 10 and abs(round(step_mL, decimals) - step_mL) > 1e-9 * step_mL:
+        decimals += 1
+    return decimals
+
+
+def _device_decimals(device: Device | None, kind: str) -> int:
+    """Decimal places a device's deliveries are read to.
+
+    Fixed-volume glassware is written to 0.01 mL (common practice for class A pipettes and
+    flasks). Graduated devices use their division, or the defaults of DESIGN.md contract
+    detail 5 (buret 0.01 mL; graduated pipette 0.01 mL up to 2 mL capacity, else 0.1 mL);
+    a cylinder without a division is read to 1 % of its capacity (common practice). A piston
+    pipette shows its setting step.
+    """
+    if device is None:
+        return 2
+    if kind == "piston-pipette":
+        return _decimals_of_step((device.step_uL or 1.0) / 1000.0)
+    if kind in ("buret", "graduated-pipette", "graduated-cylinder"):
+        division = device.division_mL
+        if division is None:
+            if kind == "buret":
+                division = 0.01
+            elif kind == "graduated-pipette":
+                division = 0.01 if device.volume_mL <= 2.0 else 0.1
+            else:
+                division = 0.01 * device.volume_mL
+        return _decimals_of_step(division)
+    return 2
+
+
+def addition_decimals(inputs: PlanInputs, addition: Addition) -> int:
+    """Decimal places to show an addition's volume: the finest of the devices it uses."""
+    shelf = {device.id: device for device in inputs.glassware}
+    if not addition.devices:
+        return 2
+    return max(
+        _device_decimals(shelf.get(device_id), device_name(device_id).kind)
+        for device_id in addition.devices
+    )
+
+
+def volume(value_mL: float, decimals: int = 2) -> str:
+    """A volume to a fixed number of decimals, without the unit."""
+    return f"{value_mL:.{decimals}f}"
+
+
+def stocks_in_addition_order(plan: Plan) -> tuple[str, ...]:
+    """Stock ids used by the mixtures, ordered by their first position of addition.
+
+    Ties (and stocks whose order differs between mixtures) fall back to the mean position and
+    then to the order of the plan file.
+    """
+    positions: dict[str, list[int]] = {}
+    for mixture in plan.mixtures:
+        for addition in mixture.additions:
+            positions.setdefault(addition.stock, []).append(addition.order)
+    plan_index = {stock.id: i for i, stock in enumerate(plan.inputs.stocks)}
+    return tuple(
+        sorted(
+            positions,
+            key=lambda s: (
+                min(positions[s]),
+                sum(positions[s]) / len(positions[s]),
+                plan_index.get(s, len(plan_index)),
+                s,
+            ),
+        )
+    )
+
+
+def stock_roles(inputs: PlanInputs) -> dict[str, str]:
+    """Each stock's part in the order of addition: ``diluent``, ``limiting`` or ``excess``."""
+    roles = {}
+    for stock in inputs.stocks:
+        if stock.diluent:
+            roles[stock.id] = "diluent"
+        elif stock.contains_M.get(inputs.design.limiting, 0.0) > 0:
+            roles[stock.id] = "limiting"
+        else:
+            roles[stock.id] = "excess"
+    return roles
+
+
+def additions_of(mixture: Mixture, stock_id: str) -> tuple[Addition, ...]:
+    """The additions of one stock to a mixture, in order of addition."""
+    return tuple(
+        sorted((a for a in mixture.additions if a.stock == stock_id), key=lambda a: a.order)
+    )

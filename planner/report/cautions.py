@@ -1,0 +1,145 @@
+"""The cautions block every printed sheet carries (DESIGN.md section 3, "Cautions").
+
+One table, :data:`CAUTIONS`, holds every line; the Markdown and HTML sheets and the bottle
+labels all read it. A chemical-specific line is shown only when some stock of the plan holds the
+matching ion (by its name in the trade's notation) at or above the line's threshold; the
+general lines are always shown.
+
+The wording is a reminder of well-known hazards (common practice), not a risk assessment: the
+last line defers to the safety data sheets, local rules and the responsible staff.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from planner.inputs import PlanInputs, Stock
+
+__all__ = ["CAUTIONS", "Caution", "cautions_for", "label_hazards"]
+
+
+@dataclass(frozen=True, slots=True)
+class Caution:
+    """One line of the cautions block.
+
+    Attributes
+    ----------
+    key
+        Stable name of the line.
+    text
+        The line; ``{product}`` is replaced by the coloured product's name(s).
+    ions
+        Ion names that call for the line; empty means the line is always shown.
+    min_M
+        Smallest stock concentration of one of ``ions`` that calls for the line [mol/L]; 0
+        means any amount.
+    label
+        Short hazard words for the label of a bottle holding the ion, or ``""``.
+    """
+
+    key: str
+    text: str
+    ions: tuple[str, ...] = ()
+    min_M: float = 0.0
+    label: str = ""
+
+    def applies_to(self, stock: Stock) -> bool:
+        """True when ``stock`` holds one of the ions at or above the threshold."""
+        for ion in self.ions:
+            concentration_M = stock.contains_M.get(ion, 0.0)
+            if concentration_M > 0 and concentration_M >= self.min_M:
+                return True
+        return False
+
+
+#: Every cautions line, chemical-specific ones first, in the order sheets print them.
+CAUTIONS: tuple[Caution, ...] = (
+    Caution(
+        key="acid",
+        text=(
+            "Acid: the solutions of this plan contain acid (H+ 0.1 mol/L or more). Acids are "
+            "corrosive: avoid contact with skin and eyes and rinse any splash with plenty of "
+            "water."
+        ),
+        # 0.1 mol/L: the threshold this project uses for calling a stock "acid" on sheets.
+        ions=("H+", "H3O+"),
+        min_M=0.1,
+        label="corrosive (acid)",
+    ),
+    Caution(
+        key="thiocyanate",
+        text=(
+            "Thiocyanate: thiocyanate salts release a very toxic gas with strong acid in "
+            "concentrated form. Never add concentrated acid to the solid or to concentrated "
+            "thiocyanate solutions; keep the solid apart from acids."
+        ),
+        ions=("SCN-",),
+        label="thiocyanate: keep away from concentrated acid",
+    ),
+    Caution(
+        key="iron-nitrate",
+        text=(
+            "Iron(III): iron(III) nitrate is an oxidiser. Keep the solid away from combustible "
+            "material and wipe up spilt solid at once."
+        ),
+        ions=("Fe3+",),
+    ),
+    Caution(key="eyes", text="Wear eye protection and a lab coat at all times."),
+    Caution(
+        key="waste",
+        text=(
+            "Waste: pour mixtures, rinsings and left-over stocks into the labelled waste "
+            "container, as local rules require."
+        ),
+    ),
+    Caution(
+        key="fading",
+        text=(
+            "{product} may fade with time: read each absorbance promptly after mixing, and "
+            "at the same delay for every mixture."
+        ),
+    ),
+    Caution(
+        key="defer",
+        text=(
+            "These notes are a reminder, not a risk assessment: the safety data sheets, local "
+            "rules and the responsible staff come first."
+        ),
+    ),
+)
+
+
+def _product_phrase(inputs: PlanInputs) -> str:
+    coloured = [sp.name for sp in inputs.reaction.species if sp.epsilon > 0]
+    if not coloured:
+        return "The coloured product"
+    noun = "complex" if len(coloured) == 1 else "complexes"
+    return f"The coloured {noun} ({', '.join(coloured)})"
+
+
+def cautions_for(inputs: PlanInputs) -> tuple[str, ...]:
+    """The cautions lines for a plan, in :data:`CAUTIONS` order.
+
+    Parameters
+    ----------
+    inputs
+        The plan's inputs; its stocks decide which chemical-specific lines appear.
+
+    Returns
+    -------
+    tuple of str
+        One finished line per caution that applies.
+    """
+    lines = []
+    for caution in CAUTIONS:
+        if caution.ions and not any(caution.applies_to(stock) for stock in inputs.stocks):
+            continue
+        lines.append(caution.text.replace("{product}", _product_phrase(inputs)))
+    return tuple(lines)
+
+
+def label_hazards(stock: Stock) -> tuple[str, ...]:
+    """Short hazard words for a stock's bottle label (empty when none apply)."""
+    return tuple(
+        caution.label for caution in CAUTIONS if caution.label and caution.applies_to(stock)
+    )

@@ -1,0 +1,625 @@
+"""Printed sheets of a plan: pipetting sheets per bench, the prep-room sheet, the answer key.
+
+Each sheet comes as Markdown and as self-contained, printable HTML, rendered from the jinja2
+templates in ``planner/report/templates``; :func:`mixtures_csv` gives the recipes and their
+predictions as CSV. Every function returns text and writes nothing: the date on a sheet is a
+parameter (the report layer never reads the clock), and where the text goes is the caller's
+business (:mod:`planner.report.outdir` for an output folder).
+
+The Python side builds small view objects with every number already rounded for people
+(volumes to their device's reading resolution, other values to 3-4 significant figures); the
+templates only lay them out. The cautions come from :mod:`planner.report.cautions`.
+"""
+
+from __future__ import annotations
+
+import functools
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import jinja2
+import pandas as pd
+
+from planner.report._format import (
+    addition_decimals,
+    additions_of,
+    devices_long,
+    is_to_the_mark,
+    percent,
+    plain,
+    scientific,
+    significant,
+    stock_roles,
+    stocks_in_addition_order,
+    volume,
+)
+from planner.report.cautions import cautions_for, label_hazards
+from planner.report.plan_json import checks_worst_first
+from planner.result import Plan
+
+__all__ = [
+    "BenchSlot",
+    "answer_key_html",
+    "answer_key_md",
+    "bench_sheet_html",
+    "bench_sheet_md",
+    "mixtures_csv",
+    "prep_sheet_html",
+    "prep_sheet_md",
+]
+
+
+@dataclass(frozen=True, slots=True)
+class BenchSlot:
+    """Which bench a pipetting sheet is for.
+
+    Attributes
+    ----------
+    section
+        Section number, from 1.
+    bench
+        Bench number within the section, from 1; ``None`` prints a blank to fill in (one
+        sheet copied for every bench of a section).
+    """
+
+    section: int
+    bench: int | None = None
+
+
+# ---------------------------------------------------------------------------------------------
+# Templates
+# ---------------------------------------------------------------------------------------------
+
+
+def _md_cell(value: object) -> str:
+    """Text safe inside a Markdown table cell: no line breaks, pipes escaped."""
+    return str(value).replace("\\", "\\\\").replace("|", "\\|").replace("\n", " ")
+
+
+@functools.cache
+def _environment() -> jinja2.Environment:
+    environment = jinja2.Environment(
+        loader=jinja2.PackageLoader("planner.report", "templates"),
+        # HTML templates escape every value; Markdown ones escape table cells with ``md``.
+        autoescape=jinja2.select_autoescape(enabled_extensions=("html",)),
+        undefined=jinja2.StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+    environment.filters["md"] = _md_cell
+    return environment
+
+
+def _render(name: str, **context: Any) -> str:
+    return _environment().get_template(name).render(**context)
+
+
+# ---------------------------------------------------------------------------------------------
+# Pipetting sheets
+# ---------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, slots=True)
+class _Delivery:
+    volume: str
+    devices: str
+
+
+@dataclass(frozen=True, slots=True)
+class _Column:
+    stock: str
+    position: int
+    part: str
+
+
+@dataclass(frozen=True, slots=True)
+class _RecipeRow:
+    id: str
+    role: str
+    cells: tuple[tuple[_Delivery, ...], ...]
+    total: str
+
+
+@dataclass(frozen=True, slots=True)
+class _BenchPage:
+    section: int
+    bench: int | None
+
+
+_PART_WORDS = {"diluent": "diluent", "excess": "reagent in excess", "limiting": "limiting"}
+
+
+def _part(stock_id: str, role: str) -> str:
+    """The stock's part in the order of addition, unless its id already says so."""
+    words = _PART_WORDS.get(role, "")
+    return "" if words == stock_id else words
+
+
+def _recipe_rows(plan: Plan, stocks: Sequence[str]) -> list[_RecipeRow]:
+    rows = []
+    for mixture in plan.mixtures:
+        cells = []
+        for stock_id in stocks:
+            deliveries = []
+            for addition in additions_of(mixture, stock_id):
+                if is_to_the_mark(addition):
+                    deliveries.append(_Delivery("to the mark", devices_long(addition.devices)))
+                else:
+                    decimals = addition_decimals(plan.inputs, addition)
+                    deliveries.append(
+                        _Delivery(
+                            f"{volume(addition.volume_mL, decimals)} mL",
+                            devices_long(addition.devices),
+                        )
+                    )
+            cells.append(tuple(deliveries))
+        rows.append(
+            _RecipeRow(
+                id=mixture.id,
+                role=mixture.role,
+                cells=tuple(cells),
+                total=f"{volume(mixture.total_volume_mL, 2)} mL",
+            )
+        )
+    return rows
+
+
+def _order_lines(plan: Plan, columns: Sequence[_Column]) -> tuple[str, str]:
+    """The order-of-addition line and the line on making up the volume."""
+    sequence = ", ".join(f"{c.position}. {c.stock}" for c in columns)
+    diluent = plan.inputs.diluent
+    diluent_name = f" ({diluent.id})" if diluent is not None else ""
+    uses_flask = plan.inputs.design.vessel_kind == "volumetric-flask" or any(
+        is_to_the_mark(a) for m in plan.mixtures for a in m.additions
+    )
+    # Common practice: the limiting reagent goes in last, into the diluent and the excess
+    # already there; in a volumetric flask the diluent "to the mark" necessarily comes last.
+    practice = (
+        "the reagent in excess first, then the limiting reagent, the diluent to the mark last"
+        if uses_flask
+        else "the diluent first, then the reagent in excess, the limiting reagent last"
+    )
+    order = f"Order of addition: {sequence}. Common practice: {practice}."
+    if uses_flask:
+        making_up = (
+            f"Flasks are filled to the mark with the diluent{diluent_name} after the last "
+            "addition; then stopper and invert to mix."
+        )
+    else:
+        making_up = (
+            "Tubes: the additions make up the total volume; mix well after the last addition."
+        )
+    return order, making_up
+
+
+def _bench_context(plan: Plan, date: str, slots: Sequence[BenchSlot]) -> dict[str, Any]:
+    session = plan.inputs.session
+    roles = stock_roles(plan.inputs)
+    stocks = stocks_in_addition_order(plan)
+    columns = [
+        _Column(stock=s, position=i + 1, part=_part(s, roles.get(s, "")))
+        for i, s in enumerate(stocks)
+    ]
+    order_line, making_up_line = _order_lines(plan, columns)
+    return {
+        "title": plan.inputs.title,
+        "date": date,
+        "sections": session.sections,
+        "benches_per_section": session.benches_per_section,
+        "replicates": session.replicates,
+        "pages": [_BenchPage(section=s.section, bench=s.bench) for s in slots],
+        "columns": columns,
+        "rows": _recipe_rows(plan, stocks),
+        "order_line": order_line,
+        "making_up_line": making_up_line,
+        "cautions": cautions_for(plan.inputs),
+    }
+
+
+def bench_sheet_md(plan: Plan, *, date: str, slot: BenchSlot) -> str:
+    """The pipetting sheet of one bench (or of every bench of a section), as Markdown.
+
+    Parameters
+    ----------
+    plan
+        A finished plan.
+    date
+        The date printed in the header (any text; the caller decides, e.g. ``2025-03-14``).
+    slot
+        Section and bench number; a bench of ``None`` prints a blank to fill in.
+
+    Returns
+    -------
+    str
+        Header, one row per mixture with each stock's volume and devices in order of addition,
+        the total volume and a tick box per addition, the order of addition, how the volume is
+        made up, and the cautions.
+    """
+    return _render("bench.md", **_bench_context(plan, date, [slot]))
+
+
+def bench_sheet_html(plan: Plan, *, date: str, slots: Sequence[BenchSlot]) -> str:
+    """Pipetting sheets as one printable HTML document, one bench (or section) per page.
+
+    Parameters
+    ----------
+    plan
+        A finished plan.
+    date
+        The date printed in each header.
+    slots
+        The pages to print, in order; at least one.
+
+    Returns
+    -------
+    str
+        A self-contained HTML document (inline CSS, A4 and US Letter print layout).
+    """
+    if not slots:
+        raise ValueError("bench_sheet_html needs at least one bench slot")
+    return _render("bench.html", **_bench_context(plan, date, slots))
+
+
+# ---------------------------------------------------------------------------------------------
+# Prep-room sheet
+# ---------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, slots=True)
+class _PreparationRow:
+    stock: str
+    flasks: str
+    solid: str
+    molar_mass: str
+    purity: str
+    mass: str
+    target: str
+    medium: str
+
+
+@dataclass(frozen=True, slots=True)
+class _Label:
+    stock: str
+    lines: tuple[str, ...]
+
+
+@dataclass(frozen=True, slots=True)
+class _TotalsRow:
+    stock: str
+    per_bench: str
+    per_section: str
+    session: str
+    to_prepare: str
+    available: str
+    verdict: str
+    short: bool
+
+
+@dataclass(frozen=True, slots=True)
+class _CheckRow:
+    name: str
+    status: str
+    detail: str
+
+
+def _concentrations(contains_M: dict[str, float]) -> str:
+    return ", ".join(f"{ion} {plain(c_M, 4)} mol/L" for ion, c_M in contains_M.items())
+
+
+def _preparation_rows(plan: Plan) -> list[_PreparationRow]:
+    rows = []
+    for prep in plan.preparations:
+        has_solid = bool(prep.solid_formula)
+        rows.append(
+            _PreparationRow(
+                stock=prep.stock,
+                flasks=f"{prep.flasks} × {plain(prep.flask_mL, 4)} mL",
+                solid=prep.solid_formula if has_solid else "none listed (make by dilution)",
+                molar_mass=f"{significant(prep.molar_mass_g_per_mol, 5)} g/mol"
+                if has_solid
+                else "-",
+                purity=f"{plain(100 * prep.purity, 4)} %" if has_solid else "-",
+                mass=f"{significant(prep.mass_g, 4)} g" if has_solid else "-",
+                target=f"{prep.provides} {plain(prep.concentration_M, 4)} mol/L"
+                if prep.provides
+                else "-",
+                medium=prep.medium or "-",
+            )
+        )
+    return rows
+
+
+def _labels(plan: Plan) -> list[_Label]:
+    preparations = {p.stock: p for p in plan.preparations}
+    labels = []
+    for stock in plan.inputs.stocks:
+        lines = [f"Contains: {_concentrations(stock.contains_M)}"]
+        prep = preparations.get(stock.id)
+        if prep is not None and prep.medium:
+            lines.append(f"Medium: {prep.medium}")
+        if prep is not None and prep.solid_formula:
+            lines.append(f"Made from: {prep.solid_formula}")
+        hazards = label_hazards(stock)
+        if hazards:
+            lines.append("Caution: " + "; ".join(hazards))
+        lines.append(f"Plan: {plan.inputs.title}")
+        lines.append("Made on: ____________  by: ____________")
+        labels.append(_Label(stock=stock.id, lines=tuple(lines)))
+    return labels
+
+
+def _availability(available_mL: float | None, session_mL: float, needed_mL: float) -> str:
+    if available_mL is None:
+        return "no limit given"
+    if available_mL >= needed_mL:
+        return f"enough ({significant(available_mL - needed_mL, 3)} mL spare)"
+    if available_mL >= session_mL:
+        return (
+            f"SHORT of the margin by {significant(needed_mL - available_mL, 3)} mL "
+            "(covers the bare need)"
+        )
+    return f"SHORT by {significant(needed_mL - available_mL, 3)} mL"
+
+
+def _totals_rows(plan: Plan) -> list[_TotalsRow]:
+    totals = plan.totals
+    order = [stock.id for stock in plan.inputs.stocks]
+    order += [s for s in totals.to_prepare if s not in order]
+    rows = []
+    for stock_id in order:
+        if stock_id not in totals.to_prepare:
+            continue
+        try:
+            available_mL = plan.inputs.stock(stock_id).available_mL
+        except KeyError:
+            available_mL = None
+        needed_mL = totals.to_prepare[stock_id]
+        session_mL = totals.session.get(stock_id, 0.0)
+        rows.append(
+            _TotalsRow(
+                stock=stock_id,
+                per_bench=significant(totals.per_bench.get(stock_id, 0.0)),
+                per_section=significant(totals.per_section.get(stock_id, 0.0)),
+                session=significant(session_mL),
+                to_prepare=significant(needed_mL),
+                available="-" if available_mL is None else significant(available_mL),
+                verdict=_availability(available_mL, session_mL, needed_mL),
+                short=available_mL is not None and available_mL < needed_mL,
+            )
+        )
+    return rows
+
+
+def _open_checks(plan: Plan) -> list[_CheckRow]:
+    return [
+        _CheckRow(name=c.name, status=c.status.upper(), detail=c.detail)
+        for c in checks_worst_first(plan.checks)
+        if c.status != "pass"
+    ]
+
+
+def _prep_context(plan: Plan, date: str) -> dict[str, Any]:
+    session = plan.inputs.session
+    benches = session.sections * session.benches_per_section
+    session_line = (
+        f"{session.sections} section(s) × {session.benches_per_section} bench(es) × "
+        f"{session.replicates} replicate(s) = {session.sets} full set(s) of mixtures."
+    )
+    dead_volume_line = (
+        f"To prepare = session need × (1 + margin {plain(100 * session.margin, 3)} %) + a dead "
+        f"volume of {plain(plan.totals.dead_volume_mL, 3)} mL per stock assumed left unusable in "
+        "each bench container. Per section = per bench × benches per section × replicates; "
+        "session = per section × sections."
+    )
+    labels_line = (
+        f"Print one label per bench container ({benches}) and one per prep flask of each stock."
+    )
+    prepared = {p.stock for p in plan.preparations}
+    unprepared = [s for s in plan.totals.to_prepare if s not in prepared]
+    return {
+        "title": plan.inputs.title,
+        "date": date,
+        "session_line": session_line,
+        "preparations": _preparation_rows(plan),
+        "unprepared": unprepared,
+        "labels": _labels(plan),
+        "labels_line": labels_line,
+        "totals": _totals_rows(plan),
+        "dead_volume_line": dead_volume_line,
+        "open_checks": _open_checks(plan),
+        "notes": list(plan.notes),
+        "cautions": cautions_for(plan.inputs),
+    }
+
+
+def prep_sheet_md(plan: Plan, *, date: str) -> str:
+    """The prep-room sheet as Markdown.
+
+    Parameters
+    ----------
+    plan
+        A finished plan.
+    date
+        The date printed in the header.
+
+    Returns
+    -------
+    str
+        Stocks to make (flask size and count, mass of solid with formula, molar mass and
+        purity, medium), bottle labels, stock totals per bench, section and session and to
+        prepare with the dead-volume assumption written out, available against needed, any
+        check that did not pass, and the cautions.
+    """
+    return _render("prep.md", **_prep_context(plan, date))
+
+
+def prep_sheet_html(plan: Plan, *, date: str) -> str:
+    """The prep-room sheet as a self-contained printable HTML document (see prep_sheet_md)."""
+    return _render("prep.html", **_prep_context(plan, date))
+
+
+# ---------------------------------------------------------------------------------------------
+# Answer key
+# ---------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, slots=True)
+class _AnswerRow:
+    id: str
+    role: str
+    absorbance: str
+    u_absorbance: str
+    products: tuple[str, ...]
+    bound_fraction: str
+    ionic_strength: str
+
+
+@dataclass(frozen=True, slots=True)
+class _PredictionView:
+    epsilon: str
+    u_epsilon: str
+    epsilon_true: str
+    K: str
+    u_K: str
+    K_true: str
+    bias: str
+    per_test: tuple[tuple[str, str], ...]
+
+
+def _coloured_species(plan: Plan) -> tuple[str, ...]:
+    species = plan.inputs.reaction.species
+    coloured = tuple(sp.name for sp in species if sp.epsilon > 0)
+    return coloured or tuple(sp.name for sp in species)
+
+
+def _answer_context(plan: Plan, date: str) -> dict[str, Any]:
+    products = _coloured_species(plan)
+    rows = [
+        _AnswerRow(
+            id=m.id,
+            role=m.role,
+            absorbance=f"{m.absorbance:.3f}",
+            u_absorbance=significant(m.u_absorbance, 2),
+            products=tuple(
+                scientific(m.equilibrium_M[name], 4) if name in m.equilibrium_M else "-"
+                for name in products
+            ),
+            bound_fraction=f"{m.bound_fraction:.3f}",
+            ionic_strength=significant(m.ionic_strength_M, 3),
+        )
+        for m in plan.mixtures
+    ]
+    prediction = None
+    if plan.prediction is not None:
+        p = plan.prediction
+        tests = [m.id for m in plan.mixtures if m.role == "test"]
+        per_test = tuple(
+            (tests[i] if i < len(tests) else f"test {i + 1}", significant(k, 4))
+            for i, k in enumerate(p.K_per_test)
+        )
+        prediction = _PredictionView(
+            epsilon=significant(p.epsilon, 4),
+            u_epsilon=significant(p.u_epsilon, 2),
+            epsilon_true=significant(p.epsilon_true, 4),
+            K=significant(p.K, 4),
+            u_K=significant(p.u_K, 2),
+            K_true=significant(p.K_true, 4),
+            bias=percent(p.K_bias_from_assumption, 3, signed=True),
+            per_test=per_test,
+        )
+    instrument = plan.inputs.instrument
+    return {
+        "title": plan.inputs.title,
+        "date": date,
+        "products": products,
+        "rows": rows,
+        "prediction": prediction,
+        "limiting": plan.inputs.design.limiting,
+        "wavelength": significant(instrument.wavelength_nm, 4),
+        "path_length": significant(instrument.path_length_cm, 3),
+        "open_checks": _open_checks(plan),
+        "notes": list(plan.notes),
+        "cautions": cautions_for(plan.inputs),
+    }
+
+
+def answer_key_md(plan: Plan, *, date: str) -> str:
+    """The answer key as Markdown.
+
+    Parameters
+    ----------
+    plan
+        A finished plan.
+    date
+        The date printed in the header.
+
+    Returns
+    -------
+    str
+        Per mixture the expected absorbance (blank not subtracted), the concentration of each
+        coloured product and the bound fraction of the limiting reagent; the molar
+        absorptivity and K the usual analysis is expected to give, with uncertainties and the
+        bias of K, against the values the plan assumes; and the cautions.
+    """
+    return _render("answer.md", **_answer_context(plan, date))
+
+
+def answer_key_html(plan: Plan, *, date: str) -> str:
+    """The answer key as a self-contained printable HTML document (see answer_key_md)."""
+    return _render("answer.html", **_answer_context(plan, date))
+
+
+# ---------------------------------------------------------------------------------------------
+# CSV
+# ---------------------------------------------------------------------------------------------
+
+
+def mixtures_csv(plan: Plan) -> str:
+    """The mixtures as CSV, one row per mixture, at full float precision.
+
+    Parameters
+    ----------
+    plan
+        A finished plan.
+
+    Returns
+    -------
+    str
+        Columns ``id``, ``role``, ``total_volume_mL``, ``volume_<stock>_mL`` for each stock in
+        order of addition [mL], ``absorbance``, ``u_absorbance``, ``bound_fraction``,
+        ``ionic_strength_M`` [mol/L], and ``<species>_M`` for each product species [mol/L].
+        Lines end in ``\\n`` on every platform.
+    """
+    stocks = stocks_in_addition_order(plan)
+    species = plan.inputs.reaction.species_names()
+    records = []
+    for m in plan.mixtures:
+        record: dict[str, object] = {
+            "id": m.id,
+            "role": m.role,
+            "total_volume_mL": m.total_volume_mL,
+        }
+        for stock_id in stocks:
+            record[f"volume_{stock_id}_mL"] = m.volume_of(stock_id)
+        record["absorbance"] = m.absorbance
+        record["u_absorbance"] = m.u_absorbance
+        record["bound_fraction"] = m.bound_fraction
+        record["ionic_strength_M"] = m.ionic_strength_M
+        for name in species:
+            record[f"{name}_M"] = m.equilibrium_M.get(name, 0.0)
+        records.append(record)
+    columns = [
+        "id",
+        "role",
+        "total_volume_mL",
+        *(f"volume_{s}_mL" for s in stocks),
+        "absorbance",
+        "u_absorbance",
+        "bound_fraction",
+        "ionic_strength_M",
+        *(f"{name}_M" for name in species),
+    ]
+    frame = pd.DataFrame.from_records(records, columns=columns)
+    return frame.to_csv(index=False, lineterminator="\n")

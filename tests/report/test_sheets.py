@@ -1,0 +1,328 @@
+"""Tests of planner.report.sheets and planner.report.cautions: Markdown, HTML and CSV."""
+
+from __future__ import annotations
+
+import csv
+import dataclasses
+import io
+from html.parser import HTMLParser
+
+import pytest
+
+from planner.inputs import Stock
+from planner.report.cautions import CAUTIONS, cautions_for, label_hazards
+from planner.report.sheets import (
+    BenchSlot,
+    answer_key_html,
+    answer_key_md,
+    bench_sheet_html,
+    bench_sheet_md,
+    mixtures_csv,
+    prep_sheet_html,
+    prep_sheet_md,
+)
+from planner.result import Addition
+from tests.report.conftest import PRECISE_VOLUME_mL, make_inputs, make_plan
+
+DATE = "2031-02-03"
+IDS = ("B1", "S1", "S2", "T1", "T2")
+CAUTION_TEXT = {c.key: c.text for c in CAUTIONS}
+
+# Words of the lines every sheet carries, whatever the chemicals.
+ALWAYS = ("eye protection and a lab coat", "labelled waste container", "may fade", "safety data")
+
+
+def _sheets(plan):
+    return {
+        "bench.md": bench_sheet_md(plan, date=DATE, slot=BenchSlot(1, 2)),
+        "bench.html": bench_sheet_html(plan, date=DATE, slots=[BenchSlot(1, 2)]),
+        "prep.md": prep_sheet_md(plan, date=DATE),
+        "prep.html": prep_sheet_html(plan, date=DATE),
+        "answer.md": answer_key_md(plan, date=DATE),
+        "answer.html": answer_key_html(plan, date=DATE),
+    }
+
+
+class _Structure(HTMLParser):
+    """Records tags, and fails on a closing tag that does not match the open one."""
+
+    VOID = frozenset({"meta", "br", "hr", "img", "input", "link"})
+
+    def __init__(self):
+        super().__init__()
+        self.stack = []
+        self.starts = []
+        self.classes = []
+        self.errors = []
+        self.cells = []
+        self._in_cell = False
+
+    def handle_starttag(self, tag, attrs):
+        self.starts.append(tag)
+        self.classes.append((tag, dict(attrs).get("class", "")))
+        if tag in ("td", "th"):
+            self._in_cell = True
+            self.cells.append("")
+        if tag not in self.VOID:
+            self.stack.append(tag)
+
+    def handle_endtag(self, tag):
+        if not self.stack or self.stack[-1] != tag:
+            self.errors.append(f"unexpected </{tag}> with open {self.stack[-3:]}")
+            return
+        self.stack.pop()
+        if tag in ("td", "th"):
+            self._in_cell = False
+
+    def handle_data(self, data):
+        if self._in_cell:
+            self.cells[-1] += data
+
+
+def _parse(html):
+    parser = _Structure()
+    parser.feed(html)
+    parser.close()
+    assert parser.errors == []
+    assert parser.stack == []
+    return parser
+
+
+@pytest.mark.parametrize("name", ["bench.md", "bench.html", "prep.md", "prep.html"])
+def test_sheets_carry_cautions_for_iron_thiocyanate_in_acid(plan, name):
+    text = _sheets(plan)[name]
+    for line in cautions_for(plan.inputs):
+        assert line in text
+    for words in ALWAYS:
+        assert words in text
+    assert "thiocyanate salts release a very toxic gas" in text
+    assert "iron(III) nitrate is an oxidiser" in text
+    assert "Acids are corrosive" in text
+
+
+@pytest.mark.parametrize("name", ["answer.md", "answer.html"])
+def test_answer_key_carries_cautions(plan, name):
+    text = _sheets(plan)[name]
+    for line in cautions_for(plan.inputs):
+        assert line in text
+
+
+def test_chemical_lines_only_when_the_ion_is_in_a_stock():
+    stocks = (
+        Stock(id="metal", contains_M={"Cu2+": 0.02, "H+": 0.05}),
+        Stock(id="ligand", contains_M={"L-": 0.5, "Na+": 0.5}),
+        Stock(id="salt", contains_M={"Na+": 0.1}, diluent=True),
+    )
+    lines = cautions_for(make_inputs(stocks=stocks))
+    text = "\n".join(lines)
+    assert "thiocyanate" not in text
+    assert "iron(III)" not in text
+    assert "Acids are corrosive" not in text  # H+ 0.05 mol/L is below the 0.1 mol/L threshold
+    assert len(lines) == 4
+    for words in ALWAYS:
+        assert words in text
+
+
+def test_acid_line_from_0_1_mol_per_L():
+    stocks = (Stock(id="diluent", contains_M={"H+": 0.1}, diluent=True),)
+    assert CAUTION_TEXT["acid"] in cautions_for(make_inputs(stocks=stocks))
+
+
+def test_thiocyanate_line_with_scn_and_sheet_without(plan):
+    stocks = tuple(s for s in plan.inputs.stocks if s.id != "thiocyanate")
+    without = dataclasses.replace(plan, inputs=make_inputs(stocks=stocks))
+    assert "thiocyanate salts" not in bench_sheet_md(without, date=DATE, slot=BenchSlot(1))
+    assert "thiocyanate salts" in bench_sheet_md(plan, date=DATE, slot=BenchSlot(1))
+
+
+def test_label_hazards(plan):
+    assert label_hazards(plan.inputs.stock("thiocyanate")) == (
+        "corrosive (acid)",
+        "thiocyanate: keep away from concentrated acid",
+    )
+    assert label_hazards(Stock(id="water", contains_M={})) == ()
+
+
+def test_fading_line_names_the_coloured_complex(plan):
+    assert any("(FeSCN2+) may fade" in line for line in cautions_for(plan.inputs))
+
+
+def test_bench_sheet_markdown(plan):
+    text = bench_sheet_md(plan, date=DATE, slot=BenchSlot(2, 3))
+    assert plan.inputs.title in text
+    assert DATE in text
+    assert "Section 2 of 2" in text
+    assert "Bench 3 of 3" in text
+    for mixture_id in IDS:
+        assert f"| {mixture_id} (" in text
+    # One tick box per addition: B1 has 2 additions, the four others 3 each.
+    assert text.count("[ ]") == 2 + 4 * 3
+    header = next(line for line in text.splitlines() if line.startswith("| Mixture"))
+    assert header.index("1. diluent") < header.index("2. iron") < header.index("3. thiocyanate")
+    assert "4.00 mL, 2 × 2 mL pipette" in text
+    assert "4.1 mL, 10 mL graduated pipette" in text
+    assert "diluent first, then the reagent in excess, the limiting reagent last" in text
+    assert "Tubes: the additions make up the total volume" in text
+
+
+def test_bench_sheet_blank_bench_number(plan):
+    text = bench_sheet_md(plan, date=DATE, slot=BenchSlot(1))
+    assert "Bench ______ of 3" in text
+
+
+def test_bench_sheet_in_flasks_says_to_the_mark(plan):
+    inputs = dataclasses.replace(
+        plan.inputs, design=dataclasses.replace(plan.inputs.design, vessel="flask-10")
+    )
+    mixtures = tuple(
+        dataclasses.replace(
+            m,
+            additions=tuple(
+                dataclasses.replace(a, devices=("volumetric-flask-10mL",), order=len(m.additions))
+                if a.stock == "diluent"
+                else dataclasses.replace(a, order=a.order - 1)
+                for a in m.additions
+            ),
+        )
+        for m in plan.mixtures
+    )
+    flask_plan = dataclasses.replace(plan, inputs=inputs, mixtures=mixtures)
+    text = bench_sheet_md(flask_plan, date=DATE, slot=BenchSlot(1, 1))
+    assert "[ ] to the mark, 10 mL flask" in text
+    assert "Flasks are filled to the mark with the diluent (diluent)" in text
+    assert "the limiting reagent, the diluent to the mark last" in text
+    assert "Tubes:" not in text
+    header = next(line for line in text.splitlines() if line.startswith("| Mixture"))
+    assert header.index("1. iron") < header.index("3. diluent")
+
+
+def test_bench_sheet_html_is_well_formed_one_page_per_bench(plan):
+    slots = [BenchSlot(1, 1), BenchSlot(1, 2), BenchSlot(2, None)]
+    html = bench_sheet_html(plan, date=DATE, slots=slots)
+    parsed = _parse(html)
+    assert parsed.starts.count("table") == 3
+    assert [c for t, c in parsed.classes if t == "section"] == ["page"] * 3
+    assert len([c for t, c in parsed.classes if t == "span" and c == "box"]) == 3 * 14
+    cells = [cell.strip() for cell in parsed.cells]
+    for mixture_id in IDS:
+        assert any(cell.startswith(mixture_id) for cell in cells)
+    assert "page-break-after: always" in html
+    assert "@page { size: auto" in html
+    assert "<link" not in html
+    assert "src=" not in html
+    assert html.count("Cautions</h2>") == 3
+
+
+def test_bench_sheet_html_needs_a_slot(plan):
+    with pytest.raises(ValueError, match="at least one"):
+        bench_sheet_html(plan, date=DATE, slots=[])
+
+
+@pytest.mark.parametrize("name", ["prep.html", "answer.html", "bench.html"])
+def test_html_sheets_are_well_formed(plan, name):
+    parsed = _parse(_sheets(plan)[name])
+    assert "table" in parsed.starts
+    assert parsed.starts[0] == "html"
+
+
+def test_html_escapes_plan_text(plan):
+    hostile = dataclasses.replace(
+        plan, inputs=dataclasses.replace(plan.inputs, title="<script>x</script> & co")
+    )
+    html = prep_sheet_html(hostile, date=DATE)
+    assert "<script>" not in html
+    assert "&lt;script&gt;x&lt;/script&gt; &amp; co" in html
+
+
+def test_markdown_cells_escape_pipes(plan):
+    piped = dataclasses.replace(
+        plan,
+        checks=(
+            dataclasses.replace(plan.checks[1], detail="a | b"),
+            *plan.checks[2:],
+        ),
+    )
+    assert "| a \\| b |" in prep_sheet_md(piped, date=DATE)
+
+
+def test_prep_sheet(plan):
+    text = prep_sheet_md(plan, date=DATE)
+    assert DATE in text
+    assert "| iron | 1 × 250 mL | Fe(NO3)3(H2O)9 | 403.99 g/mol | 98 % | 20.61 g |" in text
+    assert "| thiocyanate | 1 × 250 mL | KSCN | 97.180 g/mol | 99 % | 0.04900 g |" in text
+    assert "0.5 mol/L HNO3" in text
+    # Totals: per bench, per section (x3 benches), session (x6), to prepare, available.
+    assert "| iron | 19.00 | 57.00 | 114.0 | 161.1 | 400.0 | enough" in text
+    assert "**SHORT of the margin" in text
+    assert "dead volume of 5 mL" in text
+    assert "margin 15 %" in text
+    # One label per stock, with its hazard words.
+    for stock in ("iron", "thiocyanate", "diluent"):
+        assert f"> **{stock}**" in text
+    assert "Contains: SCN- 0.002 mol/L, H+ 0.5 mol/L" in text
+    assert "Caution: corrosive (acid); thiocyanate: keep away from concentrated acid" in text
+    assert "limiting-reagent-assumption" in text  # the failed check is shown
+    assert text.index("**FAIL**") < text.index("**WARN**")
+    assert "absorbance-window" not in text  # a passing check is not
+
+
+def test_answer_key(plan):
+    text = answer_key_md(plan, date=DATE)
+    for mixture_id in IDS:
+        assert f"| {mixture_id} (" in text
+    assert "[FeSCN2+] (mol/L)" in text
+    assert "| S1 (standard) | 0.357 | 0.0031 | 7.500e-5 | 0.909 | 0.560 |" in text
+    assert "| B1 (blank) | 0.012 | 0.0031 | 0 | 0.000 | 0.560 |" in text
+    assert "| K (L/mol) | 112.3 | 7.2 | 100.0 |" in text
+    assert "| 4182 | 62 | 4600 |" in text
+    assert "**+12.3 %**" in text
+    assert "T1 110.1; T2 114.6 L/mol" in text
+
+
+def test_answer_key_without_prediction(plan):
+    text = answer_key_md(dataclasses.replace(plan, prediction=None), date=DATE)
+    assert "No prediction" in text
+
+
+def test_mixtures_csv(plan):
+    text = mixtures_csv(plan)
+    assert "\r" not in text
+    rows = list(csv.DictReader(io.StringIO(text)))
+    assert list(rows[0]) == [
+        "id",
+        "role",
+        "total_volume_mL",
+        "volume_diluent_mL",
+        "volume_iron_mL",
+        "volume_thiocyanate_mL",
+        "absorbance",
+        "u_absorbance",
+        "bound_fraction",
+        "ionic_strength_M",
+        "FeSCN2+_M",
+        "Fe(SCN)2+_M",
+    ]
+    assert [r["id"] for r in rows] == list(IDS)
+    assert [r["role"] for r in rows] == ["blank", "standard", "standard", "test", "test"]
+    assert float(rows[1]["volume_thiocyanate_mL"]) == PRECISE_VOLUME_mL
+    assert float(rows[0]["volume_thiocyanate_mL"]) == 0.0
+    assert float(rows[1]["FeSCN2+_M"]) == 7.5e-5
+    assert float(rows[3]["bound_fraction"]) == 0.45
+
+
+def test_csv_sums_repeated_additions(plan):
+    s2 = plan.mixtures[2]
+    split = dataclasses.replace(
+        s2,
+        additions=(
+            *s2.additions,
+            Addition("iron", 0.5, ("transfer-pipette-5mL",), 4),
+        ),
+    )
+    twice = dataclasses.replace(plan, mixtures=(plan.mixtures[0], split))
+    rows = list(csv.DictReader(io.StringIO(mixtures_csv(twice))))
+    assert float(rows[1]["volume_iron_mL"]) == 5.5
+
+
+def test_sheets_are_deterministic():
+    assert _sheets(make_plan()) == _sheets(make_plan())

@@ -1,0 +1,215 @@
+"""Command line: exit codes, stdout/stderr separation, JSON documents, error messages."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+from typer.testing import CliRunner
+
+from planner.cli import app
+
+runner = CliRunner()
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def run(*args: str):
+    return runner.invoke(app, list(args), catch_exceptions=False)
+
+
+def test_no_arguments_shows_help():
+    result = run()
+    assert "check" in result.output
+    assert "plan" in result.output
+
+
+def test_check_worked_example_json():
+    # Issue acceptance: K = 98 L/mol (de Berg, Maeder and Clifford 2016), 0.1 mol/L excess,
+    # 1.5e-4 mol/L limiting, 2 % tolerance: bound fraction about 0.907 (hand-solved quadratic
+    # in tests/chem/test_assumption.py), verdict insufficient, minimum excess
+    # 0.98*1.5e-4 + 0.98/(98*0.02) = 0.500147 mol/L.
+    result = run(
+        "check",
+        "--k",
+        "98",
+        "--excess",
+        "0.1",
+        "--limiting",
+        "1.5e-4",
+        "--tolerance",
+        "0.02",
+        "--format",
+        "json",
+    )
+    assert result.exit_code == 1
+    document = json.loads(result.stdout)
+    assert document["bound_fraction"] == pytest.approx(0.907, abs=5e-4)
+    assert document["verdict"] == "insufficient"
+    assert document["min_excess_M"] == pytest.approx(0.500147, rel=1e-6)
+    assert document["assumption_error"] == pytest.approx(1 - document["bound_fraction"])
+
+
+def test_check_text_explains_why():
+    result = run(
+        "check", "--k", "98", "--excess", "0.1", "--limiting", "1.5e-4", "--tolerance", "0.02"
+    )
+    assert result.exit_code == 1
+    text = " ".join(result.stdout.split())
+    assert "free excess" in text
+    assert "not the ratio" in text
+    assert "low" in text  # the molar absorptivity bias
+
+
+def test_check_out_of_practical_reach_is_said_plainly():
+    result = run(
+        "check", "--k", "98", "--excess", "0.1", "--limiting", "1.5e-4", "--tolerance", "0.01"
+    )
+    assert "Out of practical reach" in " ".join(result.stdout.split())
+
+
+def test_check_sufficient_excess_exits_0():
+    result = run(
+        "check", "--k", "1e5", "--excess", "0.01", "--limiting", "1e-4", "--format", "json"
+    )
+    assert result.exit_code == 0
+    assert json.loads(result.stdout)["verdict"] == "ok"
+
+
+@pytest.mark.parametrize(
+    ("args", "field"),
+    [
+        (["--k", "0", "--excess", "0.1", "--limiting", "1e-4"], "K"),
+        (["--k", "-3", "--excess", "0.1", "--limiting", "1e-4"], "K"),
+        (["--k", "98", "--excess", "-0.1", "--limiting", "1e-4"], "excess"),
+        (["--k", "98", "--excess", "0.1", "--limiting", "-1e-4"], "limiting"),
+        (["--k", "98", "--excess", "0.1", "--limiting", "1e-4", "--tolerance", "1.5"], "tolerance"),
+        (["--k", "98", "--excess", "0.1", "--limiting", "1e-4", "--tolerance", "0"], "tolerance"),
+    ],
+)
+def test_check_bad_values_exit_2_with_field(args, field):
+    result = run("check", *args)
+    assert result.exit_code == 2
+    assert f"{field}:" in result.stderr
+    assert result.stdout == ""
+    assert "Traceback" not in result.stderr
+
+
+def test_plan_default_json_has_every_contract_key():
+    result = run("plan", "--format", "json")
+    assert result.exit_code == 0, result.stderr
+    document = json.loads(result.stdout)
+    # DESIGN section 5 keys.
+    for key in ("schema", "title", "inputs", "mixtures", "totals_mL", "checks", "prediction"):
+        assert key in document
+    assert document["schema"] == "planner.plan/1"
+    for key in ("per_bench", "session", "to_prepare"):
+        assert key in document["totals_mL"]
+    for key in ("epsilon", "u_epsilon", "K", "u_K", "K_bias_from_assumption"):
+        assert key in document["prediction"]
+    mixture_keys = {
+        "id",
+        "role",
+        "total_volume_mL",
+        "additions",
+        "initial_M",
+        "equilibrium_M",
+        "absorbance",
+        "u_absorbance",
+        "bound_fraction",
+        "ionic_strength_M",
+    }
+    for mixture in document["mixtures"]:
+        assert mixture_keys <= set(mixture)
+        for addition in mixture["additions"]:
+            assert {"stock", "volume_mL", "devices", "order"} <= set(addition)
+
+
+def test_plan_failed_check_exits_1_with_failures_first(tmp_path):
+    text = (ROOT / "planner" / "data" / "default.toml").read_text()
+    # Demand an unattainable tolerance: the standards' assumption check must fail.
+    broken = text.replace("assumption_tolerance = 0.05", "assumption_tolerance = 0.001")
+    path = tmp_path / "strict.toml"
+    path.write_text(broken)
+    result = run("plan", str(path), "--format", "json")
+    assert result.exit_code == 1
+    checks = json.loads(result.stdout)["checks"]
+    assert checks[0]["status"] == "fail"
+    names = [c["name"] for c in checks if c["status"] == "fail"]
+    assert "limiting-reagent-assumption" in names
+    detail = next(c["detail"] for c in checks if c["name"] == "limiting-reagent-assumption")
+    assert "stock of at least" in detail
+    assert "tolerance of" in detail
+
+
+def test_plan_unreadable_file_exits_2(tmp_path):
+    path = tmp_path / "typo.toml"
+    path.write_text(
+        (ROOT / "planner" / "data" / "default.toml")
+        .read_text()
+        .replace("path_length_cm", "path_lenght_cm")
+    )
+    result = run("plan", str(path))
+    assert result.exit_code == 2
+    assert "instrument.path_lenght_cm" in result.stderr
+    assert "Traceback" not in result.stderr
+
+
+def test_plan_missing_file_exits_2(tmp_path):
+    result = run("plan", str(tmp_path / "absent.toml"))
+    assert result.exit_code == 2
+    assert "absent.toml" in result.stderr
+
+
+def test_plan_out_writes_folder_and_refuses_non_empty(tmp_path):
+    out = tmp_path / "sheets"
+    first = run("plan", "--out", str(out), "--date", "2026-12-02")
+    assert first.exit_code == 0, first.stderr
+    saved = json.loads((out / "plan.json").read_text())
+    assert saved["schema"] == "planner.plan/1"
+    assert (out / "mixtures.csv").exists()
+    again = run("plan", "--out", str(out))
+    assert again.exit_code == 2
+    assert "--force" in again.stderr
+    forced = run("plan", "--out", str(out), "--force", "--date", "2026-12-02")
+    assert forced.exit_code == 0
+
+
+def test_verify_round_trip_and_hand_edit(tmp_path):
+    out = tmp_path / "sheets"
+    assert run("plan", "--out", str(out), "--date", "2026-12-02").exit_code == 0
+    good = run("verify", str(out / "plan.json"))
+    assert good.exit_code == 0, good.stdout
+    document = json.loads((out / "plan.json").read_text())
+    # Hand edit: the first standard's limiting-reagent addition now claims a 5 mL transfer
+    # pipette, which cannot deliver its volume (the plan's own recipe, edited).
+    standard = next(m for m in document["mixtures"] if m["role"] == "standard")
+    addition = next(a for a in standard["additions"] if a["stock"] == "thiocyanate")
+    addition["devices"] = ["transfer-pipette-5mL"]
+    edited = tmp_path / "edited.json"
+    edited.write_text(json.dumps(document))
+    result = run("verify", str(edited), "--format", "json")
+    assert result.exit_code == 1
+    failed = {
+        c["name"]: c["detail"] for c in json.loads(result.stdout)["checks"] if c["status"] == "fail"
+    }
+    assert "deliverable-volumes" in failed
+    assert standard["id"] in failed["deliverable-volumes"]
+
+
+def test_verify_unreadable_json_exits_2(tmp_path):
+    path = tmp_path / "bad.json"
+    path.write_text("{not json")
+    result = run("verify", str(path))
+    assert result.exit_code == 2
+    assert "Traceback" not in result.stderr
+
+
+def test_init_writes_a_plan_that_plans_and_refuses_overwrite(tmp_path):
+    target = tmp_path / "starter.toml"
+    assert run("init", str(target)).exit_code == 0
+    assert target.read_text().startswith("# Starter plan")
+    assert run("plan", str(target), "--format", "json").exit_code in (0, 1)
+    again = run("init", str(target))
+    assert again.exit_code == 2
+    assert "not overwriting" in again.stderr
