@@ -61,7 +61,7 @@ def _medium(diluent: Stock | None) -> str:
     if diluent is None or not diluent.contains_M:
         return "water"
     parts = ", ".join(f"{ion} {conc:g} mol/L" for ion, conc in diluent.contains_M.items())
-    return f"the diluent medium ({parts})"
+    return f"{diluent.id} ({parts})"
 
 
 def _flask_plan(volume_mL: float) -> tuple[float, int]:

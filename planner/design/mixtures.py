@@ -116,6 +116,7 @@ def choose_tests(
     candidates: CandidateSet,
     exclude: tuple[int, ...] = (),
     objective: Objective = first_order_relative_u_K,
+    allowed: NDArray[np.bool_] | None = None,
 ) -> TestsChoice:
     """Choose ``design.tests`` test mixtures minimising the objective under the constraints.
 
@@ -129,6 +130,8 @@ def choose_tests(
         Candidate indices already used (the standards and blank).
     objective
         Scores a set of candidate indices, lower is better.
+    allowed
+        Optional mask of candidates the search may use (shape (n,)); None allows all.
 
     Returns
     -------
@@ -157,6 +160,8 @@ def choose_tests(
     )
     if exclude:
         eligible[list(exclude)] = False
+    if allowed is not None:
+        eligible &= allowed
     indices = np.flatnonzero(eligible)
     count = design.tests
     if not indices.size:
