@@ -53,6 +53,16 @@ def _fmt(value: float) -> str:
     return f"{value:.4g}"
 
 
+def _pair(stated: float | None, computed: float) -> str:
+    """'stated X, recomputed Y' with enough digits that X and Y differ when they do."""
+    if stated is None:
+        return f"stated nothing, recomputed {_fmt(computed)}"
+    for digits in (4, 7, 10, 17):
+        if f"{stated:.{digits}g}" != f"{computed:.{digits}g}" or digits == 17:
+            return f"stated {stated:.{digits}g}, recomputed {computed:.{digits}g}"
+    return ""  # unreachable
+
+
 def _names(items: Sequence[str], limit: int = 6) -> str:
     shown = ", ".join(items[:limit])
     return shown + (f" and {len(items) - limit} more" if len(items) > limit else "")
@@ -106,12 +116,18 @@ class _State:
     ) -> None:
         stocks = inputs.stocks
         self.ions = ion_table(stocks)
-        volumes = np.array(
-            [[m.volume_of(st.id) for st in stocks] for m in mixtures], dtype=float
+        # A negative volume is reported by the deliverable-volumes check; here it counts as
+        # nothing delivered, so the re-mix stays physical.
+        volumes = np.maximum(
+            np.array([[m.volume_of(st.id) for st in stocks] for m in mixtures], dtype=float),
+            0.0,
         ).reshape(len(mixtures), len(stocks))
-        totals_mL = np.array([m.total_volume_mL for m in mixtures], dtype=float)
-        safe_total = np.where(totals_mL > 0, totals_mL, 1.0)
-        self.initial = mix_M(self.ions, volumes, safe_total)
+        # The volume actually made is what the additions add up to (the volume-totals check
+        # reports any disagreement with the stated total); fall back to the design's volume.
+        added = volumes.sum(axis=1)
+        self.initial = mix_M(
+            self.ions, volumes, np.where(added > 0, added, inputs.design.total_volume_mL)
+        )
         reaction = inputs.reaction
         self.components = np.zeros((len(mixtures), len(reaction.components)))
         for j, col in enumerate(self.ions.component_columns(reaction.components)):
@@ -273,19 +289,14 @@ def _concentrations(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _Sta
             expected = float(state.initial[i, k])
             stated = m.initial_M.get(ion)
             if expected > 0 and (stated is None or not _close(stated, expected)):
-                problems.append(
-                    f"{m.id} initial {ion}: stated {stated if stated is None else _fmt(stated)}"
-                    f", recomputed {_fmt(expected)} mol/L"
-                )
+                problems.append(f"{m.id} initial {ion}: {_pair(stated, expected)} mol/L")
         recomputed = np.concatenate([state.free[i], state.species[i]])
         scale = max(float(np.max(state.components[i])), 1e-300)
         for name, expected in zip(names, recomputed, strict=True):
             stated = m.equilibrium_M.get(name)
             if stated is None or not _close(stated, float(expected), 1e-6, 1e-9 * scale):
                 problems.append(
-                    f"{m.id} equilibrium {name}: stated "
-                    f"{stated if stated is None else _fmt(stated)}, recomputed "
-                    f"{_fmt(float(expected))} mol/L"
+                    f"{m.id} equilibrium {name}: {_pair(stated, float(expected))} mol/L"
                 )
     return _check(
         "concentrations",
@@ -300,8 +311,10 @@ def _window(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> C
     for i, m in enumerate(mixtures):
         computed = float(state.absorbance[i])
         if not _close(m.absorbance, computed, 1e-6, _ATOL_ABSORBANCE):
+            problems.append(f"{m.id} absorbance: {_pair(m.absorbance, computed)}")
+        if not _close(m.bound_fraction, float(state.bound[i]), 1e-6, 1e-9):
             problems.append(
-                f"{m.id}: stated absorbance {_fmt(m.absorbance)}, recomputed {_fmt(computed)}"
+                f"{m.id} bound fraction: {_pair(m.bound_fraction, float(state.bound[i]))}"
             )
         if m.role != "blank" and not low <= computed <= high:
             problems.append(
@@ -368,7 +381,7 @@ def _assumption(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) 
             stronger = inputs.stock(main).contains_M[excess] * factor
             detail += (
                 f". Fix: an excess of {needed:.3g} mol/L {excess} in the standards (now "
-                f"{have:.3g}), e.g. a {main} stock of at least {stronger:.3g} mol/L with the "
+                f"{have:.3g}), e.g. the {main} stock at no less than {stronger:.3g} mol/L with the "
                 f"same volumes, or accept a tolerance of {1 - achieved:.3g}"
             )
             if needed - (1 - tolerance) * float(state.limiting_total[worst]) > 1.0:
@@ -452,8 +465,8 @@ def _ionic_strength(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _Sta
     for i, m in enumerate(mixtures):
         if not _close(m.ionic_strength_M, float(state.ionic_strength[i]), 1e-6):
             problems.append(
-                f"{m.id}: stated ionic strength {_fmt(m.ionic_strength_M)}, recomputed "
-                f"{_fmt(float(state.ionic_strength[i]))} mol/L"
+                f"{m.id} ionic strength: "
+                f"{_pair(m.ionic_strength_M, float(state.ionic_strength[i]))} mol/L"
             )
     if problems:
         return Check("ionic-strength", "fail", "; ".join(problems))
@@ -498,10 +511,17 @@ def _stock_totals(inputs: PlanInputs, mixtures: Sequence[Mixture], totals: Total
         for key, value in expected.items():
             stated = getattr(totals, key).get(st.id)
             if stated is None or not _close(stated, value, 1e-9, 1e-9):
-                problems.append(
-                    f"{key} {st.id}: stated {stated if stated is None else _fmt(stated)} mL, "
-                    f"recomputed {_fmt(value)} mL"
-                )
+                problems.append(f"{key} {st.id}: {_pair(stated, value)} mL")
+    known = {st.id for st in inputs.stocks}
+    for key in ("per_bench", "per_section", "session", "to_prepare"):
+        strangers = sorted(set(getattr(totals, key)) - known)
+        if strangers:
+            problems.append(f"{key} lists stocks the plan does not have: {_names(strangers)}")
+    if not _close(totals.dead_volume_mL, session.dead_volume_mL, 1e-12, 1e-12):
+        problems.append(
+            f"dead volume: {_pair(totals.dead_volume_mL, session.dead_volume_mL)} mL "
+            "(session.dead_volume_mL)"
+        )
     return _check(
         "stock-totals",
         problems,

@@ -138,7 +138,7 @@ def test_plan_failed_check_exits_1_with_failures_first(tmp_path):
     names = [c["name"] for c in checks if c["status"] == "fail"]
     assert "limiting-reagent-assumption" in names
     detail = next(c["detail"] for c in checks if c["name"] == "limiting-reagent-assumption")
-    assert "stock of at least" in detail
+    assert "stock at no less than" in detail
     assert "tolerance of" in detail
 
 
