@@ -337,6 +337,74 @@ def init(
     _run(body)
 
 
+@app.command(
+    epilog=(
+        "Examples:\n\n"
+        "  planner variants recipes/iron-thiocyanate-flasks.toml --sections 6 --seed 1 "
+        "--out week3/\n\n"
+        "  planner variants my-plan.toml --sections 30 --seed 2026 --out variants/ --force"
+    )
+)
+def variants(
+    file: Annotated[Path, typer.Argument(help="Plan file (TOML); its session is one section.")],
+    sections: Annotated[int, typer.Option("--sections", min=1, help="Number of sections.")],
+    seed: Annotated[int, typer.Option("--seed", help="Seed; the same seed gives the same sets.")],
+    out: Annotated[Path, typer.Option("--out", help="Folder for the section folders.")],
+    force: Annotated[
+        bool, typer.Option("--force", help="Replace a non-empty --out folder.")
+    ] = False,
+    date: Annotated[
+        str | None,
+        typer.Option("--date", help="Date printed on the sheets (default: today), YYYY-MM-DD."),
+    ] = None,
+) -> None:
+    """Distinct, verified recipe sets of equal difficulty, one per section.
+
+    Rule: no two sections share the same set of test-mixture recipes (so no two share the
+    same set of standard and test recipes); every section's plan passes verification; the
+    predicted u(K)/K of every section is within 20 % of the best section's. Writes
+    DIR/section-NN/ (bench sheets, answer key, plan.json) and an index with the combined stock
+    totals. Exit status 1 when the shelf cannot give that many sets (the reason says what
+    would allow more).
+    """
+
+    def body() -> int:
+        import numpy as np
+        from rich.console import Console
+        from rich.progress import Progress
+
+        from planner.design.variants import design_variants
+        from planner.report.variants_index import variants_files
+
+        inputs = _load(file)
+        err = Console(stderr=True, highlight=False)
+        with Progress(console=err, transient=True) as progress:
+            task = progress.add_task("designing sections", total=sections)
+            found = design_variants(
+                inputs,
+                sections,
+                np.random.default_rng(seed),
+                progress=lambda done, total: progress.update(task, completed=done),
+            )
+        if not found.plans:
+            err.print(f"[bold red]no variants:[/] {found.reason}")
+            return EXIT_CHECK_FAILED
+        from planner.report.outdir import write_output_folder
+
+        write_output_folder(
+            out, variants_files(found.plans, date=date or _today(), seed=seed), force=force
+        )
+        err.print(f"wrote {len(found.plans)} section folder(s) and an index to {out}/")
+        if not found.complete:
+            err.print(f"[bold red]only {len(found.plans)} of {sections}:[/] {found.reason}")
+            return EXIT_CHECK_FAILED
+        return EXIT_OK
+
+    code = _run(body)
+    if code:
+        raise typer.Exit(code)
+
+
 def main() -> None:
     """Console-script entry point."""
     app()

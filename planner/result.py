@@ -218,7 +218,11 @@ class Prediction:
 
 @dataclass(frozen=True, slots=True)
 class Plan:
-    """A finished plan: inputs, mixtures, totals, preparation, checks and prediction."""
+    """A finished plan: inputs, mixtures, totals, preparation, checks and prediction.
+
+    ``design_objective`` is the value of the test-set objective the design minimised (by
+    default the predicted relative SD of the mean K [unitless]); None when not designed.
+    """
 
     inputs: PlanInputs
     mixtures: tuple[Mixture, ...]
@@ -227,6 +231,7 @@ class Plan:
     checks: tuple[Check, ...]
     prediction: Prediction | None
     notes: tuple[str, ...] = field(default=())
+    design_objective: float | None = None
 
     @property
     def failed(self) -> bool:

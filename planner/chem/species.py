@@ -14,6 +14,7 @@ Units: concentrations [mol/L], charges [unitless] (charge numbers z), molar mass
 
 from __future__ import annotations
 
+import functools
 import math
 import re
 from collections.abc import Mapping, Sequence
@@ -489,6 +490,7 @@ def _canonical_formula(formula: str) -> str:
         position = separator.end()
 
 
+@functools.lru_cache(maxsize=256)
 def molar_mass_g_per_mol(formula: str) -> float:
     """Molar mass of a compound, hydrate water included.
 

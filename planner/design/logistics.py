@@ -15,7 +15,7 @@ from planner.chem.species import molar_mass_g_per_mol
 from planner.inputs import PlanInputs, Stock
 from planner.result import Mixture, StockPreparation, Totals
 
-__all__ = ["FLASK_SIZES_mL", "preparations", "stock_totals"]
+__all__ = ["FLASK_SIZES_mL", "combined_totals", "preparations", "stock_totals"]
 
 #: Volumetric flask sizes a prep room usually has for making stocks [mL]
 #: (ISO 1042 nominal capacities, from memory).
@@ -137,3 +137,33 @@ def preparations(inputs: PlanInputs, totals: Totals) -> tuple[StockPreparation, 
             )
         )
     return tuple(result)
+
+
+def combined_totals(totals: Sequence[Totals]) -> Totals:
+    """Stock volumes of several sections' plans added up [mL] (each keeps its dead volume).
+
+    Parameters
+    ----------
+    totals
+        One Totals per section, all for the same stocks.
+
+    Returns
+    -------
+    Totals
+        Sums per stock; ``per_bench`` and ``per_section`` are the largest of any section.
+    """
+    first = totals[0]
+
+    def add(key: str) -> dict[str, float]:
+        return {s: sum(getattr(t, key).get(s, 0.0) for t in totals) for s in first.session}
+
+    def largest(key: str) -> dict[str, float]:
+        return {s: max(getattr(t, key).get(s, 0.0) for t in totals) for s in first.session}
+
+    return Totals(
+        per_bench=largest("per_bench"),
+        per_section=largest("per_section"),
+        session=add("session"),
+        to_prepare=add("to_prepare"),
+        dead_volume_mL=first.dead_volume_mL,
+    )

@@ -187,12 +187,12 @@ def choose_tests(
     span_needed = design.bound_fraction_span if count > 1 else 0.0
     gap = 0.5 * span_needed / max(count - 1, 1)
     # Candidate "low end" members: the best few by their own uncertainty among the lower half.
-    low_ends = np.argsort(own_pool, kind="stable")[:40]
+    low_ends = np.argsort(own_pool, kind="stable")[:24]
     for lo in low_ends:
         partners = np.flatnonzero(f_sorted >= f_sorted[lo] + span_needed)
         if count > 1 and not partners.size:
             continue
-        his = partners[np.argsort(own_pool[partners], kind="stable")[:5]] if count > 1 else [lo]
+        his = partners[np.argsort(own_pool[partners], kind="stable")[:4]] if count > 1 else [lo]
         for hi in his:
             members = [int(lo)] if lo == hi else [int(lo), int(hi)]
             inside = np.flatnonzero((f_sorted >= f_sorted[lo]) & (f_sorted <= f_sorted[hi]))

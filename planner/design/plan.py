@@ -10,6 +10,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 import numpy as np
+from numpy.typing import NDArray
 
 from planner.design.candidates import CandidateSet, candidate_set, coloured_species_index
 from planner.design.logistics import preparations, stock_totals
@@ -171,7 +172,13 @@ def _feasibility(inputs: PlanInputs, candidates: CandidateSet, n_standards: int)
     return []
 
 
-def design_plan(inputs: PlanInputs, objective: Objective = first_order_relative_u_K) -> Plan:
+def design_plan(
+    inputs: PlanInputs,
+    objective: Objective = first_order_relative_u_K,
+    *,
+    candidates: CandidateSet | None = None,
+    allowed: NDArray[np.bool_] | None = None,
+) -> Plan:
     """Design, verify and predict a complete plan.
 
     Parameters
@@ -180,16 +187,22 @@ def design_plan(inputs: PlanInputs, objective: Objective = first_order_relative_
         Validated plan inputs.
     objective
         Scores a set of test mixtures (lower is better); see :mod:`planner.design.mixtures`.
+    candidates
+        Candidates already enumerated for these inputs (variants reuse one set).
+    allowed
+        Optional mask of the candidates standards and tests may use (variants draw one per
+        section).
 
     Returns
     -------
     Plan
         With ``checks`` from the verifier, failed checks describing what binds.
     """
-    candidates = candidate_set(inputs)
-    standards = choose_standards(inputs, candidates)
+    if candidates is None:
+        candidates = candidate_set(inputs)
+    standards = choose_standards(inputs, candidates, allowed)
     used = ((standards.blank,) if standards.blank >= 0 else ()) + standards.standards
-    tests = choose_tests(inputs, candidates, exclude=used, objective=objective)
+    tests = choose_tests(inputs, candidates, exclude=used, objective=objective, allowed=allowed)
 
     mixtures: list[Mixture] = []
     if standards.blank >= 0:
@@ -218,4 +231,5 @@ def design_plan(inputs: PlanInputs, objective: Objective = first_order_relative_
         checks=tuple(checks),
         prediction=prediction,
         notes=notes,
+        design_objective=tests.objective if np.isfinite(tests.objective) else None,
     )

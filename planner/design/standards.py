@@ -74,7 +74,9 @@ def absorbance_targets(window: tuple[float, float], count: int) -> NDArray[np.fl
     return np.linspace(low + inset, high - inset, count)
 
 
-def choose_standards(inputs: PlanInputs, candidates: CandidateSet) -> StandardsChoice:
+def choose_standards(
+    inputs: PlanInputs, candidates: CandidateSet, allowed: NDArray[np.bool_] | None = None
+) -> StandardsChoice:
     """Choose the reagent blank and the standards from the candidates.
 
     Parameters
@@ -83,6 +85,9 @@ def choose_standards(inputs: PlanInputs, candidates: CandidateSet) -> StandardsC
         The plan.
     candidates
         Every deliverable mixture, evaluated.
+    allowed
+        Optional mask of candidates the standards may be drawn from (shape (n,)); the blank
+        is always free to match.
 
     Returns
     -------
@@ -118,6 +123,8 @@ def choose_standards(inputs: PlanInputs, candidates: CandidateSet) -> StandardsC
     usable = has_limiting & in_window & np.any(groups > 0, axis=1)
     if excess_columns and not np.any(usable):
         usable = has_limiting & in_window
+    if allowed is not None:
+        usable &= allowed
     targets = absorbance_targets((low, high), design.standards)
     tolerance = design.assumption_tolerance
     if not np.any(usable):
@@ -133,27 +140,34 @@ def choose_standards(inputs: PlanInputs, candidates: CandidateSet) -> StandardsC
     group_count = np.bincount(inverse, minlength=len(keys))
     order = np.lexsort((-group_count, -group_floor))[:_GROUPS_EXAMINED]
 
+    by_group = np.argsort(inverse, kind="stable")
+    starts = np.searchsorted(inverse[by_group], np.arange(len(keys) + 1))
     best: tuple[tuple[float, ...], list[int]] | None = None
     for g in order:
-        members = indices[inverse == g]
+        members = indices[by_group[starts[g] : starts[g + 1]]]
+        # Nearest reading first; ties (within 1 % of the window) to fewer deliveries, then
+        # to the lower predicted relative uncertainty: one combined key per candidate.
+        tie_break = candidates.deliveries[members] * 10.0 + np.minimum(
+            candidates.u_relative_total[members, limiting], 1.0
+        )
+        free = np.ones(members.size, dtype=bool)
         chosen: list[int] = []
         for target in targets:
-            pool = members[~np.isin(members, chosen)]
-            if not pool.size:
+            if not free.any():
                 break
-            # Nearest reading first; ties (within 1 % of the window) to fewer deliveries,
-            # then to the lower predicted relative uncertainty.
-            miss = np.round(np.abs(absorbance[pool] - target) / (0.01 * width))
-            pick = np.lexsort(
-                (candidates.u_relative_total[pool, limiting], candidates.deliveries[pool], miss)
-            )[0]
-            chosen.append(int(pool[pick]))
+            miss = np.round(np.abs(absorbance[members] - target) / (0.01 * width))
+            key = np.where(free, miss * 1e3 + tie_break, np.inf)
+            pick = int(np.argmin(key))
+            free[pick] = False
+            chosen.append(int(members[pick]))
         floor = float(np.min(evaluation.bound_fraction[chosen])) if chosen else 0.0
         met = floor >= 1.0 - tolerance
         miss_total = float(np.sum(np.abs(absorbance[chosen] - targets[: len(chosen)])) / width)
+        # The all-bound assumption is what standards are for: a recipe that meets it beats
+        # one with more standards that does not (the count shortfall is then a check).
         score = (
-            -len(chosen),
             0.0 if met else 1.0,
+            -len(chosen),
             0.0 if met else -floor,
             round(miss_total, 2),
             float(np.sum(candidates.deliveries[chosen])),

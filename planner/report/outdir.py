@@ -41,17 +41,24 @@ __all__ = ["MAX_BENCH_FILES", "bench_slots", "plan_files", "write_output_folder"
 MAX_BENCH_FILES = 60
 
 
-def bench_slots(plan: Plan) -> list[BenchSlot]:
+def bench_slots(
+    plan: Plan, *, section: int | None = None, of_sections: int | None = None
+) -> list[BenchSlot]:
     """The pipetting-sheet pages of a plan: one per bench, or one per section when there are
-    more than :data:`MAX_BENCH_FILES` benches in the session."""
+    more than :data:`MAX_BENCH_FILES` benches in the session.
+
+    With ``section`` (a variant plan serving one section of ``of_sections``) the pages are
+    numbered for that section only.
+    """
     session = plan.inputs.session
-    if session.sections * session.benches_per_section <= MAX_BENCH_FILES:
+    numbers = [section] if section is not None else list(range(1, session.sections + 1))
+    if len(numbers) * session.benches_per_section <= MAX_BENCH_FILES:
         return [
-            BenchSlot(section=section, bench=bench)
-            for section in range(1, session.sections + 1)
+            BenchSlot(section=number, bench=bench, of_sections=of_sections)
+            for number in numbers
             for bench in range(1, session.benches_per_section + 1)
         ]
-    return [BenchSlot(section=section) for section in range(1, session.sections + 1)]
+    return [BenchSlot(section=number, of_sections=of_sections) for number in numbers]
 
 
 def _slot_name(slot: BenchSlot, section_width: int, bench_width: int) -> str:
@@ -61,7 +68,9 @@ def _slot_name(slot: BenchSlot, section_width: int, bench_width: int) -> str:
     return name
 
 
-def plan_files(plan: Plan, *, date: str) -> dict[str, str]:
+def plan_files(
+    plan: Plan, *, date: str, section: int | None = None, of_sections: int | None = None
+) -> dict[str, str]:
     """The contents of a plan's output folder.
 
     Parameters
@@ -70,6 +79,8 @@ def plan_files(plan: Plan, *, date: str) -> dict[str, str]:
         A finished plan.
     date
         The date printed on the sheets (the caller reads the clock, not the report layer).
+    section, of_sections
+        For a variant plan serving one section: its number and the number of sections.
 
     Returns
     -------
@@ -81,9 +92,9 @@ def plan_files(plan: Plan, *, date: str) -> dict[str, str]:
         :data:`MAX_BENCH_FILES` benches. Numbers are zero-padded to at least two digits.
     """
     session = plan.inputs.session
-    section_width = max(2, len(str(session.sections)))
+    section_width = max(2, len(str(of_sections or session.sections)))
     bench_width = max(2, len(str(session.benches_per_section)))
-    slots = bench_slots(plan)
+    slots = bench_slots(plan, section=section, of_sections=of_sections)
     files = {
         "plan.json": plan_json(plan),
         "mixtures.csv": mixtures_csv(plan),

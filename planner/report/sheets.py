@@ -61,10 +61,14 @@ class BenchSlot:
     bench
         Bench number within the section, from 1; ``None`` prints a blank to fill in (one
         sheet copied for every bench of a section).
+    of_sections
+        Sections in the whole session when a plan serves one section of several (variants);
+        ``None`` takes the plan's own ``session.sections``.
     """
 
     section: int
     bench: int | None = None
+    of_sections: int | None = None
 
 
 # ---------------------------------------------------------------------------------------------
@@ -206,7 +210,7 @@ def _bench_context(plan: Plan, date: str, slots: Sequence[BenchSlot]) -> dict[st
     return {
         "title": plan.inputs.title,
         "date": date,
-        "sections": session.sections,
+        "sections": (slots[0].of_sections if slots else None) or session.sections,
         "benches_per_section": session.benches_per_section,
         "replicates": session.replicates,
         "pages": [_BenchPage(section=s.section, bench=s.bench) for s in slots],

@@ -1,0 +1,93 @@
+"""Section variants: distinct, verified, equal difficulty, reproducible from the seed."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from planner.cli import app
+from planner.design.variants import design_variants, recipe_key
+from planner.planfile import load_plan
+from planner.verify import verify_plan
+
+ROOT = Path(__file__).resolve().parents[2]
+RECIPE = ROOT / "recipes" / "iron-thiocyanate-flasks.toml"
+
+
+@pytest.fixture(scope="module")
+def six():
+    return design_variants(load_plan(RECIPE), 6, np.random.default_rng(1))
+
+
+def test_six_distinct_verified_sections(six):
+    assert six.complete
+    keys = [recipe_key(p) for p in six.plans]
+    assert len(set(keys)) == 6  # pairwise distinct test sets
+    for plan in six.plans:
+        # re-verified independently of the design's own checks
+        checks = verify_plan(plan.inputs, plan.mixtures, plan.totals)
+        assert not [c for c in checks if c.status == "fail"]
+
+
+def test_equal_difficulty_within_20_percent(six):
+    objectives = np.array(six.objectives)
+    assert objectives.max() <= 1.2 * objectives.min() + 1e-15
+
+
+def test_same_seed_same_sets_other_seed_differs():
+    inputs = load_plan(RECIPE)
+    again = design_variants(inputs, 4, np.random.default_rng(1))
+    first = design_variants(inputs, 4, np.random.default_rng(1))
+    other = design_variants(inputs, 4, np.random.default_rng(99))
+    assert [recipe_key(p) for p in again.plans] == [recipe_key(p) for p in first.plans]
+    assert [recipe_key(p) for p in other.plans] != [recipe_key(p) for p in first.plans]
+
+
+def test_too_few_sets_exits_1_saying_how_many(tmp_path, monkeypatch):
+    # With no slack in difficulty only the single best design qualifies, so asking for three
+    # sections must report that just one set exists and what would allow more.
+    monkeypatch.setattr("planner.design.variants._DIFFICULTY_BAND", 1.0)
+    result = CliRunner().invoke(
+        app,
+        ["variants", str(RECIPE), "--sections", "3", "--seed", "1", "--out", str(tmp_path / "v")],
+    )
+    assert result.exit_code == 1
+    assert "only 1 of 3" in " ".join(result.stderr.split())
+    assert "would allow more" in " ".join(result.stderr.split())
+
+
+def test_cli_variants_twice_byte_identical(tmp_path):
+    runner = CliRunner()
+    for name in ("a", "b"):
+        result = runner.invoke(
+            app,
+            [
+                "variants",
+                str(RECIPE),
+                "--sections",
+                "6",
+                "--seed",
+                "1",
+                "--out",
+                str(tmp_path / name),
+                "--date",
+                "2026-12-02",
+            ],
+        )
+        assert result.exit_code == 0, result.stderr
+    files_a = sorted(
+        p.relative_to(tmp_path / "a") for p in (tmp_path / "a").rglob("*") if p.is_file()
+    )
+    files_b = sorted(
+        p.relative_to(tmp_path / "b") for p in (tmp_path / "b").rglob("*") if p.is_file()
+    )
+    assert files_a == files_b
+    assert Path("section-06/plan.json") in files_a
+    assert Path("index.html") in files_a
+    for name in files_a:
+        assert (tmp_path / "a" / name).read_bytes() == (tmp_path / "b" / name).read_bytes()
+    sheet = (tmp_path / "a" / "section-03" / "benches").glob("*.md")
+    assert any("Section 3 of 6" in p.read_text() for p in sheet)
