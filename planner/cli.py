@@ -193,6 +193,12 @@ def plan(
         str | None,
         typer.Option("--date", help="Date printed on the sheets (default: today), YYYY-MM-DD."),
     ] = None,
+    pdf: Annotated[
+        bool,
+        typer.Option(
+            "--pdf", help="Also print the sheets to PDF with headless Chromium (needs --out)."
+        ),
+    ] = False,
 ) -> None:
     """Design the standards and test mixtures from what is on the shelf, verified.
 
@@ -205,12 +211,23 @@ def plan(
     def body() -> int:
         from planner.design.plan import design_plan
 
+        if pdf and out is None:
+            from planner.errors import InvalidInputError
+
+            raise InvalidInputError(
+                "--pdf writes PDF files and needs a folder", field="--pdf", hint="add --out DIR"
+            )
         inputs = _load(file)
         result = design_plan(inputs)
         if out is not None:
             from planner.report.outdir import plan_files, write_output_folder
 
-            write_output_folder(out, plan_files(result, date=date or _today()), force=force)
+            files: dict[str, str | bytes] = dict(plan_files(result, date=date or _today()))
+            if pdf:
+                from planner.report.browser import pdfs_for
+
+                files.update(pdfs_for({k: v for k, v in files.items() if isinstance(v, str)}))
+            write_output_folder(out, files, force=force)
         if output_format is OutputFormat.json:
             from planner.report.plan_json import plan_json
 
