@@ -24,7 +24,7 @@ __all__ = ["StandardsChoice", "absorbance_targets", "choose_standards", "excess_
 
 # Groups examined in full after ranking by attainable bound fraction (enough to contain every
 # distinct excess level of a shelf, and bounded so the search stays in milliseconds).
-_GROUPS_EXAMINED = 400
+_GROUPS_EXAMINED = 150
 
 
 @dataclass(frozen=True, slots=True)

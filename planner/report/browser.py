@@ -162,8 +162,8 @@ def pdfs_for(files: Mapping[str, str]) -> dict[str, bytes]:
     """PDF twins of the top-level ``.html`` files of an output folder, keyed ``name.pdf``.
 
     Sheets in sub-folders (one per bench) are left out: ``bench-sheets.pdf`` already holds
-    every bench, one per page. The HTML is laid out in a private temporary folder, so nothing half-made reaches the
-    output folder, which is written afterwards in one atomic step.
+    every bench, one per page. The HTML is laid out in a private temporary folder, so nothing
+    half-made reaches the output folder, which is written afterwards in one atomic step.
     """
     result: dict[str, bytes] = {}
     with tempfile.TemporaryDirectory() as folder:

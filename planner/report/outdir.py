@@ -28,7 +28,7 @@ from planner.report.sheets import (
     answer_key_html,
     answer_key_md,
     bench_sheet_html,
-    bench_sheet_md,
+    bench_sheets,
     mixtures_csv,
     prep_sheet_html,
     prep_sheet_md,
@@ -104,10 +104,12 @@ def plan_files(
         "answer-key.html": answer_key_html(plan, date=date),
         "bench-sheets.html": bench_sheet_html(plan, date=date, slots=slots),
     }
-    for slot in slots:
+    for slot, (markdown, html) in zip(
+        slots, bench_sheets(plan, date=date, slots=slots), strict=True
+    ):
         stem = "benches/" + _slot_name(slot, section_width, bench_width)
-        files[stem + ".md"] = bench_sheet_md(plan, date=date, slot=slot)
-        files[stem + ".html"] = bench_sheet_html(plan, date=date, slots=[slot])
+        files[stem + ".md"] = markdown
+        files[stem + ".html"] = html
     return files
 
 

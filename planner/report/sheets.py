@@ -198,7 +198,8 @@ def _order_lines(plan: Plan, columns: Sequence[_Column]) -> tuple[str, str]:
     return order, making_up
 
 
-def _bench_context(plan: Plan, date: str, slots: Sequence[BenchSlot]) -> dict[str, Any]:
+def _bench_base(plan: Plan, date: str) -> dict[str, Any]:
+    """The parts of a pipetting sheet shared by every bench of a plan."""
     session = plan.inputs.session
     roles = stock_roles(plan.inputs)
     stocks = stocks_in_addition_order(plan)
@@ -210,16 +211,43 @@ def _bench_context(plan: Plan, date: str, slots: Sequence[BenchSlot]) -> dict[st
     return {
         "title": plan.inputs.title,
         "date": date,
-        "sections": (slots[0].of_sections if slots else None) or session.sections,
+        "sections": session.sections,
         "benches_per_section": session.benches_per_section,
         "replicates": session.replicates,
-        "pages": [_BenchPage(section=s.section, bench=s.bench) for s in slots],
         "columns": columns,
         "rows": _recipe_rows(plan, stocks),
         "order_line": order_line,
         "making_up_line": making_up_line,
         "cautions": cautions_for(plan.inputs),
     }
+
+
+def _bench_context(
+    plan: Plan, date: str, slots: Sequence[BenchSlot], base: dict[str, Any] | None = None
+) -> dict[str, Any]:
+    context = dict(base if base is not None else _bench_base(plan, date))
+    context["pages"] = [_BenchPage(section=s.section, bench=s.bench) for s in slots]
+    if slots and slots[0].of_sections:
+        context["sections"] = slots[0].of_sections
+    return context
+
+
+def bench_sheets(plan: Plan, *, date: str, slots: Sequence[BenchSlot]) -> list[tuple[str, str]]:
+    """Markdown and HTML pipetting sheets of many benches, the shared parts built once.
+
+    Returns
+    -------
+    list of (markdown, html)
+        One pair per slot, in order.
+    """
+    base = _bench_base(plan, date)
+    return [
+        (
+            _render("bench.md", **_bench_context(plan, date, [slot], base)),
+            _render("bench.html", **_bench_context(plan, date, [slot], base)),
+        )
+        for slot in slots
+    ]
 
 
 def bench_sheet_md(plan: Plan, *, date: str, slot: BenchSlot) -> str:

@@ -1,0 +1,54 @@
+"""Benchmark: 30 section variants of the default scenario (design and sheets), target <= 3 s.
+
+Run: python tests/benchmarks/variants.py [--sections N] [--json]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import resource
+import sys
+import time
+from importlib.resources import files
+
+import numpy as np
+
+from planner.design.variants import design_variants
+from planner.planfile import parse_plan
+from planner.report.variants_index import variants_files
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--sections", type=int, default=30)
+    parser.add_argument("--seed", type=int, default=1)
+    parser.add_argument("--json", action="store_true")
+    args = parser.parse_args()
+    inputs = parse_plan(files("planner").joinpath("data/default.toml").read_text("utf-8"))
+    start = time.perf_counter()
+    found = design_variants(inputs, args.sections, np.random.default_rng(args.seed))
+    designed_s = time.perf_counter() - start
+    contents = variants_files(found.plans, date="2026-12-02", seed=args.seed)
+    total_s = time.perf_counter() - start
+    objectives = np.array(found.objectives)
+    figures = {
+        "sections": len(found.plans),
+        "design_s": designed_s,
+        "total_s": total_s,
+        "files": len(contents),
+        "difficulty_spread": float(objectives.max() / objectives.min() - 1),
+        "peak_memory_MB": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
+    }
+    if args.json:
+        print(json.dumps(figures))
+        return 0
+    print(f"variants: {len(found.plans)} sections of the default scenario")
+    print(f"  design   {designed_s:6.2f} s")
+    print(f"  + sheets {total_s:6.2f} s ({len(contents)} files)   (target <= 3 s)")
+    print(f"  difficulty spread {100 * figures['difficulty_spread']:.1f} % (rule: within 20 %)")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
