@@ -199,6 +199,9 @@ def plan(
             "--pdf", help="Also print the sheets to PDF with headless Chromium (needs --out)."
         ),
     ] = False,
+    quiet: Annotated[
+        bool, typer.Option("--quiet", "-q", help="Print nothing but errors; the exit status tells.")
+    ] = False,
 ) -> None:
     """Design the standards and test mixtures from what is on the shelf, verified.
 
@@ -228,7 +231,9 @@ def plan(
 
                 files.update(pdfs_for({k: v for k, v in files.items() if isinstance(v, str)}))
             write_output_folder(out, files, force=force)
-        if output_format is OutputFormat.json:
+        if quiet:
+            pass
+        elif output_format is OutputFormat.json:
             from planner.report.plan_json import plan_json
 
             _write_stdout(plan_json(result))
@@ -238,7 +243,7 @@ def plan(
             from planner.report.terminal import render_plan
 
             Console(highlight=False).print(render_plan(result))
-        if out is not None:
+        if out is not None and not quiet:
             from rich.console import Console
 
             Console(stderr=True, highlight=False).print(f"wrote {out}/")
@@ -279,6 +284,9 @@ def verify(
     output_format: Annotated[
         OutputFormat, typer.Option("--format", help="text for people, json for programs.")
     ] = OutputFormat.text,
+    quiet: Annotated[
+        bool, typer.Option("--quiet", "-q", help="Print nothing but errors; the exit status tells.")
+    ] = False,
 ) -> None:
     """Re-check a saved plan result from first principles.
 
@@ -293,7 +301,9 @@ def verify(
 
         saved = load_result(result_file)
         checks = verify_plan(saved.inputs, saved.mixtures, saved.totals)
-        if output_format is OutputFormat.json:
+        if quiet:
+            pass
+        elif output_format is OutputFormat.json:
             from planner.report.jsonout import dumps
             from planner.report.plan_json import checks_worst_first
 
@@ -374,6 +384,9 @@ def variants(
         str | None,
         typer.Option("--date", help="Date printed on the sheets (default: today), YYYY-MM-DD."),
     ] = None,
+    quiet: Annotated[
+        bool, typer.Option("--quiet", "-q", help="Print nothing but errors; the exit status tells.")
+    ] = False,
 ) -> None:
     """Distinct, verified recipe sets of equal difficulty, one per section.
 
@@ -394,8 +407,8 @@ def variants(
         from planner.report.variants_index import variants_files
 
         inputs = _load(file)
-        err = Console(stderr=True, highlight=False)
-        with Progress(console=err, transient=True) as progress:
+        err = Console(stderr=True, highlight=False, quiet=quiet)
+        with Progress(console=err, transient=True, disable=quiet) as progress:
             task = progress.add_task("designing sections", total=sections)
             found = design_variants(
                 inputs,
@@ -404,7 +417,7 @@ def variants(
                 progress=lambda done, total: progress.update(task, completed=done),
             )
         if not found.plans:
-            err.print(f"[bold red]no variants:[/] {found.reason}")
+            Console(stderr=True, highlight=False).print(f"[bold red]no variants:[/] {found.reason}")
             return EXIT_CHECK_FAILED
         from planner.report.outdir import write_output_folder
 
@@ -413,7 +426,9 @@ def variants(
         )
         err.print(f"wrote {len(found.plans)} section folder(s) and an index to {out}/")
         if not found.complete:
-            err.print(f"[bold red]only {len(found.plans)} of {sections}:[/] {found.reason}")
+            Console(stderr=True, highlight=False).print(
+                f"[bold red]only {len(found.plans)} of {sections}:[/] {found.reason}"
+            )
             return EXIT_CHECK_FAILED
         return EXIT_OK
 

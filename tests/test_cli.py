@@ -213,3 +213,33 @@ def test_init_writes_a_plan_that_plans_and_refuses_overwrite(tmp_path):
     again = run("init", str(target))
     assert again.exit_code == 2
     assert "not overwriting" in again.stderr
+
+
+def test_quiet_prints_nothing_but_keeps_exit_status(tmp_path):
+    assert run("plan", "--quiet").stdout == ""
+    strict = tmp_path / "strict.toml"
+    strict.write_text(
+        (ROOT / "planner" / "data" / "default.toml")
+        .read_text()
+        .replace("assumption_tolerance = 0.05", "assumption_tolerance = 0.001")
+    )
+    result = run("plan", str(strict), "-q")
+    assert result.exit_code == 1
+    assert result.stdout == ""
+
+
+def test_no_color_is_honoured():
+    # NO_COLOR (no-color.org): no colour escape codes even when colour is forced.
+    import re
+
+    args = ["check", "--k", "98", "--excess", "0.1", "--limiting", "1e-4"]
+    coloured = runner.invoke(app, args, env={"FORCE_COLOR": "1"})
+    plain = runner.invoke(app, args, env={"FORCE_COLOR": "1", "NO_COLOR": "1"})
+    colour_code = re.compile(r"\x1b\[[0-9;]*3[0-9]")
+    assert colour_code.search(coloured.stdout)
+    assert not colour_code.search(plain.stdout)
+
+
+def test_terminal_summary_fits_80_columns():
+    result = runner.invoke(app, ["plan"], env={"COLUMNS": "80"})
+    assert max(len(line) for line in result.stdout.splitlines()) <= 80
