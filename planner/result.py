@@ -204,6 +204,21 @@ class Prediction:
         The molar absorptivity the plan assumes for the coloured product [L mol⁻¹ cm⁻¹].
     K_per_test
         The K each test mixture gives under the usual analysis [L/mol].
+    u_K_per_test
+        Standard uncertainty of each test's K [L/mol].
+    epsilon_intercept
+        Molar absorptivity from the standard curve fitted with an intercept
+        [L mol⁻¹ cm⁻¹], or None when not predicted.
+    u_epsilon_intercept
+        Its standard uncertainty [L mol⁻¹ cm⁻¹], or None.
+    epsilon_ci95
+        Range a class will likely report for eps, (low, high), 95 % [L mol⁻¹ cm⁻¹], or None.
+    K_ci95
+        Range a class will likely report for the mean K, 95 % [L/mol], or None.
+    K_per_test_ci95
+        Range of each test's K, 95 % [L/mol].
+    absorbance_ci95
+        Range of each mixture's reading, 95 %, keyed by mixture id [unitless].
     """
 
     epsilon: float
@@ -214,6 +229,13 @@ class Prediction:
     K_true: float
     epsilon_true: float
     K_per_test: tuple[float, ...] = ()
+    u_K_per_test: tuple[float, ...] = ()
+    epsilon_intercept: float | None = None
+    u_epsilon_intercept: float | None = None
+    epsilon_ci95: tuple[float, float] | None = None
+    K_ci95: tuple[float, float] | None = None
+    K_per_test_ci95: tuple[tuple[float, float], ...] = ()
+    absorbance_ci95: dict[str, tuple[float, float]] = field(default_factory=dict)
 
 
 @dataclass(frozen=True, slots=True)

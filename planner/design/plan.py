@@ -17,7 +17,7 @@ from planner.design.logistics import preparations, stock_totals
 from planner.design.mixtures import Objective, choose_tests, first_order_relative_u_K
 from planner.design.standards import choose_standards
 from planner.inputs import PlanInputs
-from planner.predict.analysis import predict_taught
+from planner.predict.uncertainty import prediction_from, propagate
 from planner.result import Addition, Check, Mixture, Plan, Prediction
 from planner.verify import verify_plan
 
@@ -101,30 +101,25 @@ def _prediction(
     standards: Sequence[int],
     tests: Sequence[int],
 ) -> Prediction | None:
+    """The usual analysis's expected result, from the GUM budget of planner.predict.uncertainty.
+
+    The same propagation ``planner simulate`` reports, on the recipes as the sheets give them.
+    """
     excess = _excess_component(inputs)
     if blank < 0 or len(standards) < 1 or len(tests) < 1 or excess is None:
         return None
-    ev = candidates.evaluation
-    limiting = inputs.reaction.components.index(inputs.design.limiting)
-    std = np.array(standards)
-    tst = np.array(tests)
-    coloured = inputs.reaction.species[coloured_species_index(inputs)]
-    k_true = 10.0**coloured.log_beta
-    return predict_taught(
-        path_length_cm=inputs.instrument.path_length_cm,
-        blank_absorbance=float(ev.absorbance[blank]),
-        standards_limiting_M=ev.total_M[std, limiting],
-        standards_absorbance=ev.absorbance[std],
-        u_standards_limiting_rel=candidates.u_relative_total[std, limiting],
-        tests_excess_M=ev.total_M[tst, excess],
-        tests_limiting_M=ev.total_M[tst, limiting],
-        tests_absorbance=ev.absorbance[tst],
-        u_tests_excess_rel=candidates.u_relative_total[tst, excess],
-        u_tests_limiting_rel=candidates.u_relative_total[tst, limiting],
-        absorbance_sd=inputs.instrument.absorbance_sd,
-        K_true=k_true,
-        epsilon_true=coloured.epsilon,
-    )
+    chosen = [
+        mixture_from_candidate(inputs, candidates, blank, "B1", "blank"),
+        *(
+            mixture_from_candidate(inputs, candidates, index, f"S{n}", "standard")
+            for n, index in enumerate(standards, start=1)
+        ),
+        *(
+            mixture_from_candidate(inputs, candidates, index, f"T{n}", "test")
+            for n, index in enumerate(tests, start=1)
+        ),
+    ]
+    return prediction_from(propagate(inputs, chosen))
 
 
 def _feasibility(inputs: PlanInputs, candidates: CandidateSet, n_standards: int) -> list[Check]:

@@ -520,6 +520,40 @@ class _PredictionView:
     per_test: tuple[tuple[str, str], ...]
 
 
+@dataclass(frozen=True, slots=True)
+class _RangeRow:
+    quantity: str
+    low: str
+    high: str
+
+
+def _ranges_view(plan: Plan) -> tuple[_RangeRow, ...]:
+    """The 95 % ranges a class will likely report, from the prediction (empty without one)."""
+    p = plan.prediction
+    if p is None or p.epsilon_ci95 is None or p.K_ci95 is None:
+        return ()
+    rows = [
+        _RangeRow(
+            "Molar absorptivity (L mol⁻¹ cm⁻¹)",
+            significant(p.epsilon_ci95[0], 4),
+            significant(p.epsilon_ci95[1], 4),
+        ),
+        _RangeRow(
+            "K, mean of the tests (L/mol)", significant(p.K_ci95[0], 4), significant(p.K_ci95[1], 4)
+        ),
+    ]
+    tests = [m.id for m in plan.mixtures if m.role == "test"]
+    for mixture_id, (low, high) in zip(tests, p.K_per_test_ci95, strict=False):
+        rows.append(
+            _RangeRow(f"K from {mixture_id} (L/mol)", significant(low, 4), significant(high, 4))
+        )
+    for m in plan.mixtures:
+        if m.id in p.absorbance_ci95:
+            low, high = p.absorbance_ci95[m.id]
+            rows.append(_RangeRow(f"Reading of {m.id}", f"{low:.3f}", f"{high:.3f}"))
+    return tuple(rows)
+
+
 def _coloured_species(plan: Plan) -> tuple[str, ...]:
     species = plan.inputs.reaction.species
     coloured = tuple(sp.name for sp in species if sp.epsilon > 0)
@@ -568,6 +602,7 @@ def _answer_context(plan: Plan, date: str) -> dict[str, Any]:
         "products": products,
         "rows": rows,
         "prediction": prediction,
+        "ranges": _ranges_view(plan),
         "limiting": plan.inputs.design.limiting,
         "wavelength": significant(instrument.wavelength_nm, 4),
         "path_length": significant(instrument.path_length_cm, 3),
@@ -593,7 +628,10 @@ def answer_key_md(plan: Plan, *, date: str) -> str:
         Per mixture the expected absorbance (blank not subtracted), the concentration of each
         coloured product and the bound fraction of the limiting reagent; the molar
         absorptivity and K the usual analysis is expected to give, with uncertainties and the
-        bias of K, against the values the plan assumes; and the cautions.
+        bias of K, against the values the plan assumes; the 95 % ranges a class will likely
+        report for eps, K, each test's K and each reading (value -/+ 1.96 u from the
+        first-order budget of :mod:`planner.predict.uncertainty`), for acceptance windows;
+        and the cautions.
     """
     return _render("answer.md", **_answer_context(plan, date))
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import resource
 import statistics
 import subprocess
 import sys
@@ -38,7 +39,13 @@ def main() -> int:
         [python, "-m", "planner", "check", "--k", "98", "--excess", "0.1", "--limiting", "1.5e-4"],
         args.runs,
     )
-    figures = {"plan_median_s": plan_s, "check_median_s": check_s, "runs": args.runs}
+    figures = {
+        "plan_median_s": plan_s,
+        "check_median_s": check_s,
+        "runs": args.runs,
+        # Largest resident set of any planner process run above (kB on Linux).
+        "peak_memory_MB": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024,
+    }
     if args.json:
         print(json.dumps(figures))
         return 0

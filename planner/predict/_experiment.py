@@ -1,0 +1,338 @@
+"""One bench's set of mixtures as arrays: what the uncertainty models and the virtual class share.
+
+Both :mod:`planner.predict.uncertainty` (first-order propagation) and
+:mod:`planner.predict.montecarlo` (virtual class) need the same description of one bench's set
+of mixtures: which stock goes into which mixture with which device, what each component's
+nominal total is, what the photometer is predicted to read, and how every source of error is
+modelled. :func:`bench_experiment` builds it once from the plan, so the two methods cannot
+disagree about their inputs.
+
+Error model of one bench's set of mixtures (the same in both methods)
+--------------------------------------------------------------------
+- **Stock concentration**: one relative error per stock, shared by every mixture made from that
+  prepared batch (systematic), normal with standard deviation ``relative_uncertainty``.
+- **One-mark devices** (transfer pipettes): the tolerance bounds the calibration error of the
+  piece of glassware, which repeats at every use, so it is a systematic error per device id,
+  triangular with half-width a, u = a/sqrt(6) (EURACHEM/CITAC CG4, 3rd ed., 2012, section 8.1
+  and Appendix E.1, from memory). Every delivery by that device shares it.
+- **Graduated devices** (burets, graduated pipettes, graduated cylinders): each delivery reads
+  two different points of the scale, whose calibration errors differ from point to point; with
+  no calibration data the errors of different deliveries are taken as independent (random per
+  delivery), triangular with half-width a, u = a/sqrt(6).
+- **Piston pipettes**: ISO 8655-2:2002 gives a systematic limit and a random limit (the latter a
+  standard deviation). The systematic error is per device, triangular with half-width equal to
+  the limit (u = limit/sqrt(6), as :func:`planner.lab.glassware.standard_uncertainty_mL`); the
+  random error is per delivery, normal with that standard deviation.
+- **Volumetric flasks** as vessels: every mixture is made up in its own flask, so the flask's
+  volume error is independent per mixture, triangular with u = a/sqrt(6); the diluent "to the
+  mark" is not a measured delivery.
+- **Readings**: independent normal noise with standard deviation ``instrument.absorbance_sd``
+  per reading, blank included.
+
+A bench with several pieces of one device id is modelled as using one piece throughout (the
+conservative choice for one-mark devices: their errors then all correlate).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from planner.design.candidates import coloured_species_index, flask_device
+from planner.errors import InvalidInputError
+from planner.inputs import Device, PlanInputs
+from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
+from planner.result import Mixture
+
+__all__ = [
+    "BenchExperiment",
+    "Delivery",
+    "bench_experiment",
+    "delivery_split_mL",
+    "triangular_half_width",
+]
+
+_UL_PER_ML = 1000.0
+_SQRT6 = math.sqrt(6.0)
+_ONE_MARK = frozenset({"transfer-pipette"})
+_GRADUATED = frozenset({"buret", "graduated-pipette", "graduated-cylinder"})
+
+
+@dataclass(frozen=True, slots=True)
+class Delivery:
+    """One measured delivery of a stock into a mixture.
+
+    Attributes
+    ----------
+    mixture
+        Row of the mixture in :attr:`BenchExperiment.mixture_ids`.
+    stock
+        Column of the stock in :attr:`BenchExperiment.stock_ids`.
+    device
+        Device id.
+    u_systematic_mL
+        Standard uncertainty of the device's systematic error, shared by every delivery of
+        that device [mL]; 0 when the device has none.
+    u_random_mL
+        Standard uncertainty of this delivery's own error [mL]; 0 when there is none.
+    random_is_normal
+        True when the random error is normal (a standard deviation, piston pipettes), False
+        when triangular (a tolerance, graduated glassware).
+    """
+
+    mixture: int
+    stock: int
+    device: str
+    u_systematic_mL: float
+    u_random_mL: float
+    random_is_normal: bool
+
+
+@dataclass(frozen=True, slots=True)
+class BenchExperiment:
+    """One bench's set of mixtures, as the uncertainty models see it.
+
+    Attributes
+    ----------
+    mixture_ids
+        Mixture ids in plan order.
+    blanks, standards, tests
+        Rows of the reagent blanks, calibration standards and test mixtures.
+    stock_ids
+        Stocks in plan order (columns of ``volumes_mL``).
+    components
+        Reaction components (columns of ``stock_M`` and ``totals_M``).
+    stock_M
+        Concentration of each component in each stock, shape (n_stocks, n_components)
+        [mol/L].
+    stock_u_relative
+        Relative standard uncertainty of each stock's concentrations, shape (n_stocks,)
+        [unitless].
+    volumes_mL
+        Nominal volume of each stock in each mixture, shape (n_mixtures, n_stocks) [mL]; in a
+        flask the diluent's entry is what fills to the mark.
+    total_volume_mL
+        Nominal final volume of each mixture, shape (n_mixtures,) [mL].
+    in_flask
+        True when every mixture is made up to the mark of a volumetric flask.
+    diluent
+        Column of the diluent stock, or None.
+    u_flask_mL
+        Standard uncertainty of one flask's volume [mL] (0 for tubes).
+    deliveries
+        Every measured delivery.
+    systematic_devices
+        Ids of the devices that carry a systematic error, in first-use order.
+    u_systematic_mL
+        Standard uncertainty of each of those devices' systematic error, shape (n,) [mL].
+    totals_M
+        Nominal component totals of every mixture, shape (n_mixtures, n_components) [mol/L]:
+        the values an analyst computes from the recipe.
+    readings
+        Predicted photometer readings (stray light applied, blank not subtracted), shape
+        (n_mixtures,) [unitless].
+    limiting, excess, coloured
+        Index of the limiting component, of the excess component of the coloured product, and
+        of the coloured product species.
+    path_length_cm
+        Cuvette path length [cm].
+    absorbance_sd
+        Standard deviation of one reading [unitless].
+    stray_light
+        Stray-light fraction [unitless].
+    K_true
+        Formation constant of the coloured product the plan assumes [L/mol] (its beta).
+    epsilon_true
+        Molar absorptivity of the coloured product the plan assumes [L mol⁻¹ cm⁻¹].
+    """
+
+    mixture_ids: tuple[str, ...]
+    blanks: NDArray[np.int64]
+    standards: NDArray[np.int64]
+    tests: NDArray[np.int64]
+    stock_ids: tuple[str, ...]
+    components: tuple[str, ...]
+    stock_M: NDArray[np.float64]
+    stock_u_relative: NDArray[np.float64]
+    volumes_mL: NDArray[np.float64]
+    total_volume_mL: NDArray[np.float64]
+    in_flask: bool
+    diluent: int | None
+    u_flask_mL: float
+    deliveries: tuple[Delivery, ...]
+    systematic_devices: tuple[str, ...]
+    u_systematic_mL: NDArray[np.float64]
+    totals_M: NDArray[np.float64]
+    readings: NDArray[np.float64]
+    limiting: int
+    excess: int
+    coloured: int
+    path_length_cm: float
+    absorbance_sd: float
+    stray_light: float
+    K_true: float
+    epsilon_true: float
+
+
+def delivery_split_mL(device: Device) -> tuple[float, float, bool]:
+    """Systematic and random standard uncertainty of one delivery by a device.
+
+    Parameters
+    ----------
+    device
+        A measuring device (not a tube or a flask used as the vessel).
+
+    Returns
+    -------
+    tuple
+        (u of the systematic error per device [mL], u of the random error per delivery [mL],
+        True when the random error is normal rather than triangular). See the module notes.
+
+    Notes
+    -----
+    The catalogue applies the nominal-volume limits at every setting of a graded device
+    (:mod:`planner.lab.glassware`), so the share of a combined volume that one delivery
+    carries does not change its uncertainty.
+    """
+    if device.kind == "piston-pipette":
+        _, random_uL = piston_errors_uL(device, device.volume_mL * _UL_PER_ML)
+        return standard_uncertainty_mL(device), random_uL / _UL_PER_ML, True
+    if device.kind in _ONE_MARK or device.kind == "volumetric-flask":
+        return standard_uncertainty_mL(device), 0.0, False
+    if device.kind in _GRADUATED:
+        return 0.0, standard_uncertainty_mL(device), False
+    raise InvalidInputError(
+        "this device does not measure a delivery",
+        field="additions.devices",
+        value=device.id,
+        hint="deliver stocks with pipettes, burets or graduated glassware",
+    )
+
+
+def _excess_component(inputs: PlanInputs, coloured: int) -> int:
+    reaction = inputs.reaction
+    limiting = inputs.design.limiting
+    partners = [c for c, n in reaction.species[coloured].formula.items() if c != limiting and n > 0]
+    if not partners:
+        raise InvalidInputError(
+            "the coloured product holds no reagent besides the limiting one, so the usual "
+            "1:1 analysis has no excess reagent",
+            field="reaction.species",
+            value=reaction.species[coloured].name,
+            hint="give the coloured product's formula with both reagents",
+        )
+    return reaction.components.index(partners[0])
+
+
+def bench_experiment(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> BenchExperiment:
+    """Describe one bench's set of mixtures for the uncertainty models.
+
+    Parameters
+    ----------
+    inputs
+        The validated plan.
+    mixtures
+        The plan's mixtures (blank, standards, tests), as :func:`planner.design.plan.design_plan`
+        makes them.
+
+    Returns
+    -------
+    BenchExperiment
+
+    Raises
+    ------
+    InvalidInputError
+        No blank, standard or test mixture (field ``mixtures``); a device id not on the shelf
+        (field ``additions.devices``); a coloured product without an excess partner.
+    """
+    roles = [m.role for m in mixtures]
+    for role in ("blank", "standard", "test"):
+        if role not in roles:
+            raise InvalidInputError(
+                f"the plan has no {role} mixture, so the analysis cannot be predicted",
+                field="mixtures",
+                value=len(mixtures),
+                hint="fix the failed checks of the plan first",
+            )
+    reaction = inputs.reaction
+    components = reaction.components
+    stock_ids = tuple(st.id for st in inputs.stocks)
+    stock_M = np.array(
+        [[st.contains_M.get(c, 0.0) for c in components] for st in inputs.stocks], dtype=float
+    )
+    stock_u = np.array([st.relative_uncertainty for st in inputs.stocks], dtype=float)
+    diluent_stock = inputs.diluent
+    diluent = stock_ids.index(diluent_stock.id) if diluent_stock is not None else None
+    in_flask = inputs.design.vessel_kind == "volumetric-flask"
+    shelf = devices_by_id(inputs.glassware)
+    flask = flask_device(inputs)
+    u_flask = standard_uncertainty_mL(flask) if flask is not None else 0.0
+
+    volumes = np.zeros((len(mixtures), len(stock_ids)))
+    deliveries: list[Delivery] = []
+    systematic: dict[str, float] = {}
+    for row, mixture in enumerate(mixtures):
+        for addition in mixture.additions:
+            column = stock_ids.index(addition.stock)
+            volumes[row, column] += addition.volume_mL
+            if in_flask and column == diluent:
+                continue  # to the mark: the flask's volume, not a measured delivery
+            for device_id in addition.devices:
+                if device_id not in shelf:
+                    raise InvalidInputError(
+                        "device not on the shelf",
+                        field="additions.devices",
+                        value=device_id,
+                        hint=f"use one of {', '.join(sorted(shelf))}",
+                    )
+                u_sys, u_rand, normal = delivery_split_mL(shelf[device_id])
+                if u_sys > 0:
+                    systematic.setdefault(device_id, u_sys)
+                deliveries.append(Delivery(row, column, device_id, u_sys, u_rand, normal))
+    totals_volume = np.array([m.total_volume_mL for m in mixtures], dtype=float)
+    totals = volumes @ stock_M / totals_volume[:, None]
+
+    coloured = coloured_species_index(inputs)
+    species = reaction.species[coloured]
+
+    def rows(role: str) -> NDArray[np.int64]:
+        return np.array([i for i, r in enumerate(roles) if r == role], dtype=np.int64)
+
+    return BenchExperiment(
+        mixture_ids=tuple(m.id for m in mixtures),
+        blanks=rows("blank"),
+        standards=rows("standard"),
+        tests=rows("test"),
+        stock_ids=stock_ids,
+        components=components,
+        stock_M=stock_M,
+        stock_u_relative=stock_u,
+        volumes_mL=volumes,
+        total_volume_mL=totals_volume,
+        in_flask=in_flask,
+        diluent=diluent,
+        u_flask_mL=u_flask if in_flask else 0.0,
+        deliveries=tuple(deliveries),
+        systematic_devices=tuple(systematic),
+        u_systematic_mL=np.array(list(systematic.values()), dtype=float),
+        totals_M=totals,
+        readings=np.array([m.absorbance for m in mixtures], dtype=float),
+        limiting=components.index(inputs.design.limiting),
+        excess=_excess_component(inputs, coloured),
+        coloured=coloured,
+        path_length_cm=inputs.instrument.path_length_cm,
+        absorbance_sd=inputs.instrument.absorbance_sd,
+        stray_light=inputs.instrument.stray_light,
+        K_true=float(10.0**species.log_beta),
+        epsilon_true=float(species.epsilon),
+    )
+
+
+def triangular_half_width(u: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Half-width a of the triangular distribution with standard deviation u: a = u sqrt(6)."""
+    result: NDArray[np.float64] = np.asarray(u, dtype=float) * _SQRT6
+    return result

@@ -1,0 +1,296 @@
+"""The virtual class and its uncertainty budget, for people (rich) and programs (JSON).
+
+:func:`simulation_document` is the ``planner simulate --format json`` document, schema
+``planner.simulate/1``: ``epsilon`` and ``K``, each ``{analysis: {mean, sd, ci95}}`` for the
+analyses ``taught`` and ``exact``, and ``K_bias_from_assumption`` (relative), plus the
+first-order budget, per-mixture and per-test ranges and the Monte Carlo details.
+:func:`render_simulation` builds the terminal tables. Nothing here writes anything.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from rich import box
+from rich.console import Group, RenderableType
+from rich.table import Table
+from rich.text import Text
+
+from planner.predict.montecarlo import CHUNK_TRIALS, Simulation, Summary
+from planner.predict.uncertainty import Budget, UncertaintyResult
+from planner.report._format import percent, significant
+from planner.report.jsonout import dumps
+
+__all__ = ["SCHEMA", "render_simulation", "simulation_document", "simulation_json"]
+
+#: Schema name and version of the document.
+SCHEMA = "planner.simulate/1"
+#: Budget rows shown in the terminal (the JSON holds them all).
+TERMINAL_BUDGET_ROWS = 8
+
+_EXACT_METHOD = (
+    "global least-squares fit of eps and K with the full equilibrium model, every trial, by a "
+    "vectorised Levenberg-Marquardt iteration on the model tabulated over log10 K "
+    "(checked against scipy.optimize.least_squares)"
+)
+
+
+def _number(value: float) -> float | None:
+    """A finite float, or None (JSON has no NaN: an analysis that failed every trial)."""
+    return value if math.isfinite(value) else None
+
+
+def _summary(summary: Summary) -> dict[str, Any]:
+    return {
+        "mean": _number(summary.mean),
+        "sd": _number(summary.sd),
+        "ci95": [_number(summary.ci95[0]), _number(summary.ci95[1])],
+    }
+
+
+def _budget(budget: Budget) -> dict[str, Any]:
+    return {
+        "value": budget.value,
+        "u": budget.standard_uncertainty,
+        "ci95": list(budget.ci95),
+        "unit": budget.unit,
+        "contributors": [
+            {
+                "input": row.input,
+                "kind": row.kind,
+                "u": row.standard_uncertainty,
+                "unit": row.unit,
+                "sensitivity": row.sensitivity,
+                "contribution": row.contribution,
+                "share": row.share,
+                "formula": row.formula,
+            }
+            for row in budget.contributors
+        ],
+    }
+
+
+def simulation_document(
+    simulation: Simulation, gum: UncertaintyResult, *, title: str, seed: int
+) -> dict[str, Any]:
+    """The virtual class as JSON-able data.
+
+    Parameters
+    ----------
+    simulation
+        From :func:`planner.predict.montecarlo.simulate`.
+    gum
+        From :func:`planner.predict.uncertainty.propagate` on the same plan.
+    title
+        The plan's title.
+    seed
+        The seed the generator was made from (so the run can be repeated).
+
+    Returns
+    -------
+    dict
+        ``schema``, ``title``, ``trials``, ``seed``, ``epsilon`` and ``K`` (``taught`` and
+        ``exact``, each ``mean``, ``sd``, ``ci95``), ``K_bias_from_assumption``, ``K_true``,
+        ``epsilon_true``, ``gum`` (value, u, 95 % interval and budget of ``epsilon``,
+        ``epsilon_intercept`` and ``K``), ``mixtures`` (each reading's distribution and
+        first-order u), ``K_per_test`` and ``monte_carlo`` (standard errors of the means,
+        failed exact fits, chunk size, method). A value no trial gave is ``null``.
+    """
+    taught, exact = simulation.taught, simulation.exact
+    by_id = {m.id: m for m in gum.mixtures}
+    return {
+        "schema": SCHEMA,
+        "title": title,
+        "trials": simulation.trials,
+        "seed": seed,
+        "epsilon": {"taught": _summary(taught.epsilon), "exact": _summary(exact.epsilon)},
+        "K": {"taught": _summary(taught.K), "exact": _summary(exact.K)},
+        "K_bias_from_assumption": _number(simulation.K_bias_from_assumption),
+        "K_true": simulation.K_true,
+        "epsilon_true": simulation.epsilon_true,
+        "gum": {
+            "epsilon": _budget(gum.epsilon),
+            "epsilon_intercept": _budget(gum.epsilon_intercept),
+            "K": _budget(gum.K),
+        },
+        "mixtures": [
+            {
+                "id": mixture_id,
+                "reading": _summary(summary),
+                "gum_absorbance": by_id[mixture_id].absorbance,
+                "gum_u_absorbance": by_id[mixture_id].u_absorbance,
+            }
+            for mixture_id, summary in zip(simulation.mixture_ids, simulation.readings, strict=True)
+        ],
+        "K_per_test": [
+            {"id": test_id, "taught": _summary(summary)}
+            for test_id, summary in zip(simulation.test_ids, simulation.K_per_test, strict=True)
+        ],
+        "monte_carlo": {
+            "standard_error_of_mean": {
+                "epsilon": {
+                    "taught": _number(taught.epsilon.standard_error),
+                    "exact": _number(exact.epsilon.standard_error),
+                },
+                "K": {
+                    "taught": _number(taught.K.standard_error),
+                    "exact": _number(exact.K.standard_error),
+                },
+            },
+            "exact_failed": simulation.exact_failed,
+            "chunk_trials": CHUNK_TRIALS,
+            "exact_method": _EXACT_METHOD,
+        },
+    }
+
+
+def simulation_json(
+    simulation: Simulation, gum: UncertaintyResult, *, title: str, seed: int
+) -> str:
+    """:func:`simulation_document` as one JSON text: sorted keys, full precision."""
+    return dumps(simulation_document(simulation, gum, title=title, seed=seed))
+
+
+def _text(value: float, digits: int = 4) -> str:
+    return significant(value, digits) if math.isfinite(value) else "-"
+
+
+def _interval(interval: tuple[float, float], digits: int = 4) -> str:
+    return f"{_text(interval[0], digits)} to {_text(interval[1], digits)}"
+
+
+def _results_table(simulation: Simulation, gum: UncertaintyResult) -> Table:
+    table = Table(
+        title=f"Virtual class: {simulation.trials} benches",
+        box=box.SIMPLE_HEAD,
+        title_justify="left",
+    )
+    table.add_column("Analysis")
+    table.add_column("eps mean", justify="right")
+    table.add_column("sd", justify="right")
+    table.add_column("eps 95 %", justify="right")
+    table.add_column("K mean", justify="right")
+    table.add_column("sd", justify="right")
+    table.add_column("K 95 %", justify="right")
+    for name, analysis in (("taught", simulation.taught), ("exact", simulation.exact)):
+        table.add_row(
+            name,
+            _text(analysis.epsilon.mean),
+            _text(analysis.epsilon.sd, 2),
+            _interval(analysis.epsilon.ci95),
+            _text(analysis.K.mean),
+            _text(analysis.K.sd, 2),
+            _interval(analysis.K.ci95),
+        )
+    table.add_row(
+        "taught, GUM",
+        _text(gum.epsilon.value),
+        _text(gum.epsilon.standard_uncertainty, 2),
+        _interval(gum.epsilon.ci95),
+        _text(gum.K.value),
+        _text(gum.K.standard_uncertainty, 2),
+        _interval(gum.K.ci95),
+        style="dim",
+    )
+    table.caption = (
+        "eps in L mol⁻¹ cm⁻¹, K in L/mol. taught: limiting reagent assumed fully bound in the "
+        "standards, curve through the origin, 1:1 K averaged over the tests; exact: global "
+        "fit with the equilibrium model; GUM: first-order prediction of the taught analysis."
+    )
+    table.caption_justify = "left"
+    return table
+
+
+def _input_u(u: float, unit: str) -> str:
+    """An input's u for the table: stock errors as a percentage, readings bare, volumes in mL."""
+    if unit == "relative":
+        return percent(u, 2)
+    if unit == "absorbance":
+        return significant(u, 2)
+    return f"{significant(u, 2)} {unit}"
+
+
+def _budget_table(budget: Budget, label: str, *, formulas: bool) -> Table:
+    table = Table(
+        title=(
+            f"Uncertainty budget of {label}: u = {significant(budget.standard_uncertainty, 2)} "
+            f"{budget.unit}"
+        ),
+        box=box.SIMPLE_HEAD,
+        title_justify="left",
+    )
+    table.add_column("Input", min_width=24, ratio=3)
+    table.add_column("u", justify="right", no_wrap=True)
+    table.add_column("Sensitivity", justify="right", no_wrap=True)
+    table.add_column("Share", justify="right", no_wrap=True)
+    if formulas:
+        table.add_column("Coefficient", overflow="fold", ratio=2)
+    for row in budget.contributors[:TERMINAL_BUDGET_ROWS]:
+        cells = [
+            row.input,
+            _input_u(row.standard_uncertainty, row.unit),
+            significant(row.sensitivity, 3),
+            percent(row.share, 3),
+        ]
+        if formulas:
+            cells.append(row.formula.split(", where ", 1)[0])
+        table.add_row(*cells)
+    rest = budget.contributors[TERMINAL_BUDGET_ROWS:]
+    if rest:
+        cells = [f"{len(rest)} more inputs", "", "", percent(sum(r.share for r in rest), 3)]
+        table.add_row(*cells, *([""] if formulas else []))
+    return table
+
+
+def render_simulation(
+    simulation: Simulation, gum: UncertaintyResult, *, formulas: bool = False
+) -> RenderableType:
+    """The terminal report of a virtual class.
+
+    Parameters
+    ----------
+    simulation
+        From :func:`planner.predict.montecarlo.simulate`.
+    gum
+        From :func:`planner.predict.uncertainty.propagate` on the same plan.
+    formulas
+        Add each coefficient's chain of derivatives to the budgets (needs a wide terminal;
+        the JSON document always has the chain and every derivative's formula).
+
+    Returns
+    -------
+    rich renderable
+        The results per analysis, the bias of the taught analysis, and the first-order
+        budgets of K and eps (largest contributors first; ``--format json`` lists every
+        contributor with its coefficient's full formula).
+    """
+    bias = Text("Bias of the taught K from the all-bound assumption: ", style="bold")
+    bias.append(
+        f"{percent(simulation.K_bias_from_assumption, 3, signed=True)}"
+        if math.isfinite(simulation.K_bias_from_assumption)
+        else "-"
+    )
+    bias.append(
+        f" (true K {significant(simulation.K_true, 4)} L/mol, true eps "
+        f"{significant(simulation.epsilon_true, 4)} L mol⁻¹ cm⁻¹)",
+        style="",
+    )
+    parts: list[RenderableType] = [_results_table(simulation, gum), bias]
+    if simulation.exact_failed:
+        parts.append(
+            Text(
+                f"{simulation.exact_failed} exact fit(s) did not converge and are left out.",
+                style="yellow",
+            )
+        )
+    parts.append(_budget_table(gum.K, "the mean K (taught)", formulas=formulas))
+    parts.append(_budget_table(gum.epsilon, "eps (taught, through the origin)", formulas=formulas))
+    if not formulas:
+        parts.append(
+            Text(
+                "Each coefficient's formula: planner simulate --format json (gum.*.contributors).",
+                style="dim",
+            )
+        )
+    return Group(*parts)

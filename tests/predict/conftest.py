@@ -1,0 +1,33 @@
+"""Designed plans shared by the prediction tests (designed once per session: ~1 s each)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from planner.design.plan import design_plan
+from planner.planfile import load_plan
+
+ROOT = Path(__file__).resolve().parents[2]
+DEFAULT = ROOT / "planner" / "data" / "default.toml"
+FLASKS = ROOT / "recipes" / "iron-thiocyanate-flasks.toml"
+PISTON = ROOT / "recipes" / "micro-piston.toml"
+
+
+@pytest.fixture(scope="session")
+def default_plan():
+    """The embedded default scenario (tubes, burets and transfer pipettes), designed."""
+    return design_plan(load_plan(DEFAULT))
+
+
+@pytest.fixture(scope="session")
+def flask_plan():
+    """A recipe made up in 25 mL volumetric flasks, with combined pipette deliveries."""
+    return design_plan(load_plan(FLASKS))
+
+
+@pytest.fixture(scope="session")
+def piston_plan():
+    """A recipe delivered with piston pipettes (ISO 8655-2 systematic and random errors)."""
+    return design_plan(load_plan(PISTON))

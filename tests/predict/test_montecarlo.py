@@ -1,0 +1,239 @@
+"""Tests of planner.predict.montecarlo: the virtual class (JCGM 101:2008).
+
+Trial counts are small to keep the file fast; every tolerance below states the Monte Carlo
+standard error it allows for.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+
+import numpy as np
+import pytest
+from scipy.optimize import brentq
+
+from planner.errors import InvalidInputError
+from planner.predict.montecarlo import (
+    CHUNK_TRIALS,
+    coverage_interval,
+    exact_fit_least_squares,
+    simulate,
+)
+from planner.predict.uncertainty import propagate
+
+# The default plan's constants (planner/data/default.toml): K1 = 98 and K2 = 7 L/mol at
+# I = 0.5 mol/L (de Berg, Maeder and Clifford, Inorg. Chim. Acta 445 (2016) 155-159), and the
+# molar absorptivity it assumes for FeSCN2+.
+K1 = 98.0
+K2 = 7.0
+EPSILON = 4700.0
+# Allowance for the second-order term of a Monte Carlo mean against a first-order value,
+# (u/y)^2 ~ 1e-4 relative for the default plan's ~1 % uncertainties (the next term of a Taylor
+# expansion of the mean, which the first-order derivation leaves out).
+SECOND_ORDER = 2e-4
+
+
+@pytest.fixture(scope="module")
+def default_simulation(default_plan):
+    return simulate(
+        default_plan.inputs, default_plan.mixtures, trials=20_000, rng=np.random.default_rng(2024)
+    )
+
+
+def _complex_M(iron_M: float, thiocyanate_M: float) -> float:
+    """[FeSCN2+] from the mass balances of Fe3+ + SCN- = FeSCN2+ (K1), FeSCN2+ + SCN- =
+    Fe(SCN)2+ (K2), solved by bracketing (independent of planner.chem):
+    Fe_T = F (1 + K1 s + K1 K2 s^2) and SCN_T = s (1 + K1 F + 2 K1 K2 F s)."""
+
+    def excess_thiocyanate(s: float) -> float:
+        free_iron = iron_M / (1 + K1 * s + K1 * K2 * s * s)
+        return s * (1 + K1 * free_iron + 2 * K1 * K2 * free_iron * s) - thiocyanate_M
+
+    s = brentq(excess_thiocyanate, 0.0, thiocyanate_M, xtol=1e-30, rtol=1e-15)
+    return K1 * iron_M / (1 + K1 * s + K1 * K2 * s * s) * s
+
+
+def test_gum_and_monte_carlo_agree_where_near_linear(default_plan, default_simulation):
+    # The default plan's relative uncertainties are ~1 %, so the models are near-linear over
+    # the input spread and JCGM 101:2008, 8 expects the Monte Carlo SD to match the GUM's.
+    # Issue 4: within 10 %. (Measured: 1 % for eps, 1 % for K.) With 20000 trials the SD
+    # itself carries ~0.5 % Monte Carlo error.
+    gum = propagate(default_plan.inputs, default_plan.mixtures)
+    taught = default_simulation.taught
+    assert taught.epsilon.sd == pytest.approx(gum.epsilon.standard_uncertainty, rel=0.10)
+    assert taught.K.sd == pytest.approx(gum.K.standard_uncertainty, rel=0.10)
+    # And the means agree to within the second-order terms (~1e-4 relative).
+    assert taught.epsilon.mean == pytest.approx(gum.epsilon.value, rel=1e-3)
+    assert taught.K.mean == pytest.approx(gum.K.value, rel=1e-3)
+
+
+def test_taught_bias_matches_the_bound_fraction_derivation(default_plan):
+    # Hand derivation (issue 4, "Done when"): the standards hold only a fraction f of the
+    # limiting reagent as FeSCN2+, so the curve through the origin gives eps_taught =
+    # eps * f_bar, with f_bar = sum(L^2 f) / sum(L^2) (the least-squares weight of each
+    # standard). Each test's product is then read as x / f_bar instead of x, and
+    # K_i = (x/f_bar) / ((M - x/f_bar)(L - x/f_bar)), averaged over the tests.
+    # Stray light is set to 0 for this check: it bends every reading on its own and is not
+    # part of this derivation (the next test includes it). The recipes are the default plan's.
+    inputs = dataclasses.replace(
+        default_plan.inputs,
+        instrument=dataclasses.replace(default_plan.inputs.instrument, stray_light=0.0),
+    )
+    standards = default_plan.by_role("standard")
+    tests = default_plan.by_role("test")
+    l_std = np.array([m.initial_M["SCN-"] for m in standards])
+    f = np.array([_complex_M(m.initial_M["Fe3+"], m.initial_M["SCN-"]) for m in standards])
+    f = f / l_std
+    f_bar = (l_std**2 * f).sum() / (l_std**2).sum()
+    assert 0.95 < f_bar < 0.97  # about 96 % bound: the assumption is 4 % off
+    k_hand = []
+    for m in tests:
+        iron, thiocyanate = m.initial_M["Fe3+"], m.initial_M["SCN-"]
+        x = _complex_M(iron, thiocyanate) / f_bar
+        k_hand.append(x / ((iron - x) * (thiocyanate - x)))
+    expected = float(np.mean(k_hand))
+
+    sim = simulate(
+        inputs, default_plan.mixtures, trials=5000, rng=np.random.default_rng(11), exact=False
+    )
+    # Within the Monte Carlo error: 3 standard errors of the mean (~0.04 L/mol here), plus
+    # the mean's second-order term, which a first-order derivation leaves out: of order
+    # (u(K)/K)^2 ~ 1e-4 relative (measured ~0.015 L/mol with 1e5 trials), allowed as 2e-4.
+    tolerance = 3 * sim.taught.K.standard_error + SECOND_ORDER * expected
+    assert abs(sim.taught.K.mean - expected) <= tolerance
+    assert sim.K_bias_from_assumption == pytest.approx(sim.taught.K.mean / K1 - 1.0)
+    assert sim.K_bias_from_assumption > 0.07  # positive: the standards are not fully bound
+
+
+def test_taught_bias_with_stray_light(default_plan):
+    # The same derivation on the unmodified default plan, with every reading passed through
+    # the stray-light response A_obs = log10((1 + s)/(10^-A + s)) (Skoog, Holler and Crouch,
+    # Principles of Instrumental Analysis, 7th ed., 2017, section 13B-2, from memory) before
+    # the taught analysis: eps_taught = sum(L A_obs) / (b sum L^2), x = A_obs / (b eps_taught).
+    s = default_plan.inputs.instrument.stray_light
+    b = default_plan.inputs.instrument.path_length_cm
+
+    def observed(absorbance):
+        return math.log10((1 + s) / (10**-absorbance + s))
+
+    standards = default_plan.by_role("standard")
+    l_std = np.array([m.initial_M["SCN-"] for m in standards])
+    a_std = np.array(
+        [
+            observed(b * EPSILON * _complex_M(m.initial_M["Fe3+"], m.initial_M["SCN-"]))
+            for m in standards
+        ]
+    )
+    eps_taught = (l_std * a_std).sum() / (b * (l_std**2).sum())
+    k_hand = []
+    for m in default_plan.by_role("test"):
+        iron, thiocyanate = m.initial_M["Fe3+"], m.initial_M["SCN-"]
+        x = observed(b * EPSILON * _complex_M(iron, thiocyanate)) / (b * eps_taught)
+        k_hand.append(x / ((iron - x) * (thiocyanate - x)))
+    sim = simulate(
+        default_plan.inputs,
+        default_plan.mixtures,
+        trials=5000,
+        rng=np.random.default_rng(12),
+        exact=False,
+    )
+    # Tolerances as in the previous test: 3 standard errors plus the second-order term.
+    expected = float(np.mean(k_hand))
+    tolerance = 3 * sim.taught.K.standard_error + SECOND_ORDER * expected
+    assert abs(sim.taught.K.mean - expected) <= tolerance
+    tolerance = 3 * sim.taught.epsilon.standard_error + SECOND_ORDER * eps_taught
+    assert abs(sim.taught.epsilon.mean - eps_taught) <= tolerance
+
+
+def test_exact_analysis_recovers_true_constants(default_simulation):
+    # The exact fit uses the full equilibrium model, so it is unbiased to first order: the
+    # true K (98 L/mol) and eps (4700) lie within one SD of its mean (issue 4, "Done when").
+    exact = default_simulation.exact
+    assert default_simulation.exact_failed == 0
+    assert abs(exact.K.mean - K1) <= exact.K.sd
+    assert abs(exact.epsilon.mean - EPSILON) <= exact.epsilon.sd
+    # Tighter: within 3 Monte Carlo standard errors plus the second-order term.
+    assert exact.K.mean == pytest.approx(K1, abs=3 * exact.K.standard_error + SECOND_ORDER * K1)
+
+
+def test_vectorised_exact_fit_matches_least_squares(default_plan):
+    # The reference is scipy.optimize.least_squares on the direct (untabulated) model.
+    sim = simulate(
+        default_plan.inputs, default_plan.mixtures, trials=3, rng=np.random.default_rng(5)
+    )
+    for trial in range(3):
+        readings = sim.trial_readings[trial]
+        eps, k = exact_fit_least_squares(default_plan.inputs, default_plan.mixtures, readings)
+        assert sim.epsilon_exact[trial] == pytest.approx(eps, rel=1e-7)
+        assert sim.K_exact[trial] == pytest.approx(k, rel=1e-7)
+
+
+def test_same_seed_same_result(default_plan):
+    def run(seed):
+        return simulate(
+            default_plan.inputs,
+            default_plan.mixtures,
+            trials=300,
+            rng=np.random.default_rng(seed),
+        )
+
+    first, second, other = run(7), run(7), run(8)
+    assert np.array_equal(first.K_taught, second.K_taught)
+    assert np.array_equal(first.K_exact, second.K_exact, equal_nan=True)
+    assert first.taught == second.taught
+    assert not np.array_equal(first.K_taught, other.K_taught)
+
+
+def test_progress_reports_every_chunk(default_plan):
+    calls = []
+    simulate(
+        default_plan.inputs,
+        default_plan.mixtures,
+        trials=CHUNK_TRIALS + 10,
+        rng=np.random.default_rng(1),
+        progress=lambda done, total: calls.append((done, total)),
+        exact=False,
+    )
+    assert calls == [(CHUNK_TRIALS, CHUNK_TRIALS + 10), (CHUNK_TRIALS + 10, CHUNK_TRIALS + 10)]
+
+
+def test_per_mixture_ranges(default_plan, default_simulation):
+    sim = default_simulation
+    assert sim.mixture_ids == tuple(m.id for m in default_plan.mixtures)
+    for mixture, summary in zip(default_plan.mixtures, sim.readings, strict=True):
+        low, high = summary.ci95
+        assert low < mixture.absorbance < high
+    assert len(sim.K_per_test) == len(default_plan.by_role("test"))
+
+
+def test_piston_and_flask_plans_run(piston_plan, flask_plan):
+    for plan in (piston_plan, flask_plan):
+        sim = simulate(plan.inputs, plan.mixtures, trials=2000, rng=np.random.default_rng(3))
+        gum = propagate(plan.inputs, plan.mixtures)
+        # 2000 trials: the SD carries ~1.6 % Monte Carlo error; the issue's 10 % holds.
+        assert sim.taught.K.sd == pytest.approx(gum.K.standard_uncertainty, rel=0.10)
+        assert sim.exact_failed == 0
+
+
+def test_coverage_interval_rule():
+    # JCGM 101:2008, 7.7.1-7.7.2 (from memory): M = 100, p = 0.95 gives q = 95 and
+    # (M - q)/2 = 2.5, not an integer, so r = int((M - q + 1)/2) = 3: [y_(3), y_(98)].
+    values = np.arange(1.0, 101.0)[::-1]
+    assert coverage_interval(values) == (3.0, 98.0)
+    # M = 200: q = 190, r = 5: [y_(5), y_(195)].
+    assert coverage_interval(np.arange(1.0, 201.0)) == (5.0, 195.0)
+
+
+def test_coverage_interval_of_a_normal_sample():
+    # For a normal distribution the 95 % interval is mean -/+ 1.960 sd (JCGM 100:2008,
+    # Table G.1); 1e5 draws put each end within ~0.01 sd of it.
+    values = np.random.default_rng(0).standard_normal(100_000)
+    low, high = coverage_interval(values)
+    assert low == pytest.approx(-1.960, abs=0.03)
+    assert high == pytest.approx(1.960, abs=0.03)
+
+
+def test_too_few_trials_is_refused(default_plan):
+    with pytest.raises(InvalidInputError, match="trials"):
+        simulate(default_plan.inputs, default_plan.mixtures, trials=1, rng=np.random.default_rng(0))

@@ -1,0 +1,122 @@
+"""planner simulate: exit codes, stdout and stderr apart, the JSON document, the output folder.
+
+Small trial counts keep the file fast; the science is tested in tests/predict/.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+from typer.testing import CliRunner
+
+from planner.cli import app
+
+runner = CliRunner()
+ROOT = Path(__file__).resolve().parents[1]
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # the eight bytes every PNG starts with (ISO/IEC 15948)
+
+
+def run(*args: str):
+    return runner.invoke(app, list(args), catch_exceptions=False)
+
+
+@pytest.fixture(scope="module")
+def document():
+    result = run("simulate", "--trials", "400", "--seed", "3", "--format", "json")
+    assert result.exit_code == 0, result.stderr
+    return json.loads(result.stdout)
+
+
+def test_json_contract(document):
+    # Issue 4 item 4: epsilon and K, each {analysis: {mean, sd, ci95}}, plus the bias.
+    assert document["schema"] == "planner.simulate/1"
+    for quantity in ("epsilon", "K"):
+        assert set(document[quantity]) == {"taught", "exact"}
+        for analysis in document[quantity].values():
+            assert set(analysis) == {"mean", "sd", "ci95"}
+            low, high = analysis["ci95"]
+            assert low < analysis["mean"] < high
+            assert analysis["sd"] > 0
+    bias = document["K_bias_from_assumption"]
+    assert bias == pytest.approx(document["K"]["taught"]["mean"] / document["K_true"] - 1)
+    assert document["trials"] == 400
+    assert document["seed"] == 3
+
+
+def test_json_carries_the_budget(document):
+    budget = document["gum"]["K"]
+    assert budget["contributors"]
+    shares = [row["share"] for row in budget["contributors"]]
+    assert shares == sorted(shares, reverse=True)
+    assert sum(shares) == pytest.approx(1.0)
+    assert all(row["formula"] for row in budget["contributors"])
+    assert {m["id"] for m in document["mixtures"]} >= {"B1", "S1", "T1"}
+
+
+def test_same_seed_same_bytes():
+    args = ("simulate", "--trials", "300", "--seed", "9", "--format", "json")
+    first, second = run(*args), run(*args)
+    assert first.stdout == second.stdout
+    other = run("simulate", "--trials", "300", "--seed", "10", "--format", "json")
+    assert json.loads(other.stdout)["K"] != json.loads(first.stdout)["K"]
+
+
+def test_text_output():
+    result = run("simulate", "--trials", "300")
+    assert result.exit_code == 0, result.stderr
+    for expected in ("taught", "exact", "Uncertainty budget", "all-bound assumption"):
+        assert expected in result.stdout
+    assert result.stderr == ""  # no progress bar below 20000 trials, nothing else either
+
+
+def test_out_folder_with_histogram(tmp_path):
+    target = tmp_path / "sim"
+    result = run("simulate", "--trials", "300", "--seed", "1", "--out", str(target), "-q")
+    assert result.exit_code == 0, result.stderr
+    assert result.stdout == ""  # --quiet
+    assert sorted(p.name for p in target.iterdir()) == ["K-histogram.png", "simulation.json"]
+    png = (target / "K-histogram.png").read_bytes()
+    assert png.startswith(PNG_SIGNATURE)
+    assert json.loads((target / "simulation.json").read_text())["trials"] == 300
+    # Same seed, same image, byte for byte.
+    again = tmp_path / "again"
+    run("simulate", "--trials", "300", "--seed", "1", "--out", str(again), "-q")
+    assert (again / "K-histogram.png").read_bytes() == png
+
+
+def test_out_folder_not_empty_exits_2(tmp_path):
+    (tmp_path / "keep.txt").write_text("x")
+    result = run("simulate", "--trials", "300", "--out", str(tmp_path))
+    assert result.exit_code == 2
+    assert "--out" in result.stderr
+    assert "Traceback" not in result.stderr
+
+
+def test_recipe_file():
+    result = run(
+        "simulate",
+        str(ROOT / "recipes" / "micro-piston.toml"),
+        "--trials",
+        "300",
+        "--format",
+        "json",
+    )
+    assert result.exit_code == 0, result.stderr
+    assert json.loads(result.stdout)["K_true"] == pytest.approx(98.0, rel=1e-3)
+
+
+def test_too_few_trials_is_a_usage_error():
+    result = run("simulate", "--trials", "1")
+    assert result.exit_code == 2
+    assert "--trials" in result.stderr
+
+
+def test_unreadable_plan_exits_2(tmp_path):
+    bad = tmp_path / "bad.toml"
+    bad.write_text('title = "x"\n[reaction]\ncomponentz = []\n')
+    result = run("simulate", str(bad), "--trials", "300")
+    assert result.exit_code == 2
+    assert "Traceback" not in result.stderr
+    assert result.stdout == ""
