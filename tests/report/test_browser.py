@@ -106,3 +106,16 @@ def test_plan_pdf_without_out_is_refused():
     result = CliRunner().invoke(app, ["plan", str(RECIPE), "--pdf"])
     assert result.exit_code == 2
     assert "--out" in result.stderr
+
+
+def test_long_bench_sheet_still_one_page_per_bench(tmp_path):
+    # The flask recipe has the tallest rows (several devices per addition): each bench's
+    # table, order of addition and cautions must still share one printed page.
+    plan = design_plan(load_plan(ROOT / "recipes" / "iron-thiocyanate-flasks.toml"))
+    contents = plan_files(plan, date="2026-12-02")
+    html = tmp_path / "bench-sheets.html"
+    html.write_text(contents["bench-sheets.html"])
+    pdf = tmp_path / "bench-sheets.pdf"
+    html_to_pdf(html, pdf)
+    session = plan.inputs.session
+    assert pdf_page_count(pdf.read_bytes()) == session.sections * session.benches_per_section
