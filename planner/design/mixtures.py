@@ -22,10 +22,12 @@ from planner.design.candidates import CandidateSet, coloured_species_index
 from planner.inputs import PlanInputs
 
 __all__ = [
+    "MeanKObjective",
     "Objective",
     "TestsChoice",
     "choose_tests",
     "first_order_relative_u_K",
+    "mean_K_objective",
     "per_mixture_relative_u_K",
 ]
 
@@ -34,6 +36,8 @@ Objective = Callable[[PlanInputs, CandidateSet, NDArray[np.int64]], float]
 
 # Candidates ranked by their own u(K)/K that the set search draws from (bounded for speed).
 _POOL = 300
+# Starting sets the local search improves (the best distinct ones of the pair enumeration).
+_STARTS = 8
 
 
 @dataclass(frozen=True, slots=True)
@@ -106,9 +110,117 @@ def per_mixture_relative_u_K(
 def first_order_relative_u_K(
     inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
 ) -> float:
-    """Default objective: relative SD of the mean of K over the set (independent tests)."""
+    """Relative SD of the mean of K over the set, tests' own inputs only (independent)."""
     per = per_mixture_relative_u_K(inputs, candidates, indices)
     return float(np.sqrt(np.sum(per**2)) / max(len(indices), 1))
+
+
+class MeanKObjective:
+    """Default objective: predicted relative SD of the mean K, molar absorptivity included.
+
+    Notes
+    -----
+    GUM law of propagation (JCGM 100:2008, eq. 13, correlated inputs) for the mean of the
+    tests' K: the tests' own inputs are independent, giving (1/n^2) sum_i u_i^2, while the
+    molar absorptivity from the standards is shared by every test, so its term adds
+    coherently, (u(eps)/eps * mean_i d ln K_i/d ln x_i)^2, since x = A/(b eps) makes
+    d ln K/d ln eps = -d ln K/d ln x.
+
+    Parameters
+    ----------
+    epsilon_relative_u
+        u(eps)/eps of the standard curve [unitless].
+    """
+
+    def __init__(self, epsilon_relative_u: float) -> None:
+        self.epsilon_relative_u = epsilon_relative_u
+
+    def combine(
+        self, sum_own_squared: NDArray[np.float64], sum_sensitivity: NDArray[np.float64], n: int
+    ) -> NDArray[np.float64]:
+        """Objective from the sums over a set's members (vectorised over candidate sets)."""
+        result: NDArray[np.float64] = np.hypot(
+            np.sqrt(sum_own_squared) / n, self.epsilon_relative_u * sum_sensitivity / n
+        )
+        return result
+
+    def __call__(
+        self, inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
+    ) -> float:
+        own = per_mixture_relative_u_K(inputs, candidates, indices)
+        sensitivity = _x_sensitivity(inputs, candidates, indices)
+        n = max(len(indices), 1)
+        return float(self.combine(np.array(np.sum(own**2)), np.array(np.sum(sensitivity)), n))
+
+
+def mean_K_objective(epsilon_relative_u: float) -> MeanKObjective:
+    """The default objective for a standard curve with u(eps)/eps = ``epsilon_relative_u``."""
+    return MeanKObjective(epsilon_relative_u)
+
+
+def _x_sensitivity(
+    inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
+) -> NDArray[np.float64]:
+    """d ln K/d ln x = 1 + x/(M0 - x) + x/(L0 - x) of each test (see per_mixture_relative_u_K)."""
+    ev = candidates.evaluation
+    reaction = inputs.reaction
+    limiting = reaction.components.index(inputs.design.limiting)
+    coloured = coloured_species_index(inputs)
+    partners = [
+        j
+        for j, c in enumerate(reaction.components)
+        if j != limiting and reaction.species[coloured].formula.get(c, 0) > 0
+    ]
+    excess = partners[0] if partners else limiting
+    x = ev.species_M[indices, coloured]
+    free_m = np.maximum(ev.total_M[indices, excess] - x, 1e-300)
+    free_l = np.maximum(ev.total_M[indices, limiting] - x, 1e-300)
+    result: NDArray[np.float64] = 1.0 + x / free_m + x / free_l
+    return result
+
+
+def _swap_search(
+    objective: MeanKObjective,
+    members: list[int],
+    fraction: NDArray[np.float64],
+    own: NDArray[np.float64],
+    sensitivity: NDArray[np.float64],
+    span: float,
+    gap: float,
+) -> list[int]:
+    """Improve a test set by single swaps until none lowers the objective (local search).
+
+    Every swap is scored for every pool candidate at once from the objective's sums; a swap
+    must keep the bound-fraction span and the members' separation.
+    """
+    n = len(members)
+    members = list(members)
+    current = float(
+        objective.combine(
+            np.array(np.sum(own[members] ** 2)), np.array(np.sum(sensitivity[members])), n
+        )
+    )
+    for _ in range(4 * n):
+        best: tuple[float, int, int] | None = None
+        for slot in range(n):
+            others = members[:slot] + members[slot + 1 :]
+            values = objective.combine(
+                np.sum(own[others] ** 2) + own**2, np.sum(sensitivity[others]) + sensitivity, n
+            )
+            f_others = fraction[others]
+            spread = np.maximum(f_others.max(), fraction) - np.minimum(f_others.min(), fraction)
+            apart = np.min(np.abs(fraction[:, None] - f_others[None, :]), axis=1) >= gap
+            admissible = (spread >= span - 1e-12) & apart
+            admissible[members] = False
+            values = np.where(admissible, values, np.inf)
+            pick = int(np.argmin(values))
+            if values[pick] < current * (1 - 1e-12) and (best is None or values[pick] < best[0]):
+                best = (float(values[pick]), slot, pick)
+        if best is None:
+            break
+        current, slot, pick = best
+        members[slot] = pick
+    return members
 
 
 def choose_tests(
@@ -168,6 +280,10 @@ def choose_tests(
         return TestsChoice((), float("inf"), 0.0, 0)
     own = per_mixture_relative_u_K(inputs, candidates, indices)
     pool = indices[np.argsort(own, kind="stable")[:_POOL]]
+    if isinstance(objective, MeanKObjective):
+        # The shared molar-absorptivity term favours tests with a small d ln K/d ln x.
+        sensitivity = _x_sensitivity(inputs, candidates, indices)
+        pool = np.concatenate([pool, indices[np.argsort(sensitivity, kind="stable")[:100]]])
     # Make sure the extremes of bound fraction are reachable for the span constraint.
     extremes = indices[np.argsort(fraction[indices], kind="stable")]
     pool = np.unique(np.concatenate([pool, extremes[:20], extremes[-20:]]))
@@ -184,6 +300,7 @@ def choose_tests(
     f_sorted = fraction[by_fraction]
     own_pool = per_mixture_relative_u_K(inputs, candidates, by_fraction)
     best: tuple[float, NDArray[np.int64]] | None = None
+    starts: list[tuple[float, list[int]]] = []
     span_needed = design.bound_fraction_span if count > 1 else 0.0
     gap = 0.5 * span_needed / max(count - 1, 1)
     # Candidate "low end" members: the best few by their own uncertainty among the lower half.
@@ -208,6 +325,7 @@ def choose_tests(
                 continue
             chosen = by_fraction[np.array(sorted(members))]
             value = objective(inputs, candidates, chosen)
+            starts.append((value, sorted(members)))
             if best is None or value < best[0]:
                 best = (value, chosen)
     if best is None:
@@ -216,6 +334,19 @@ def choose_tests(
         chosen = by_fraction[picks]
         best = (objective(inputs, candidates, chosen), chosen)
     value, chosen = best
+    if isinstance(objective, MeanKObjective) and count > 1 and starts:
+        # Local search from the few best distinct starting sets (multi-start: one start can
+        # sit in a local optimum that the span constraint walls in).
+        sensitivity_pool = _x_sensitivity(inputs, candidates, by_fraction)
+        distinct = {tuple(m): v for v, m in starts}
+        for _, start in sorted((v, list(m)) for m, v in distinct.items())[:_STARTS]:
+            members = _swap_search(
+                objective, start, f_sorted, own_pool, sensitivity_pool, span_needed, gap
+            )
+            candidate = by_fraction[np.array(sorted(members))]
+            candidate_value = objective(inputs, candidates, candidate)
+            if candidate_value < value:
+                value, chosen = candidate_value, candidate
     return TestsChoice(
         tuple(int(i) for i in chosen),
         value,

@@ -14,7 +14,7 @@ from numpy.typing import NDArray
 
 from planner.design.candidates import CandidateSet, candidate_set, coloured_species_index
 from planner.design.logistics import preparations, stock_totals
-from planner.design.mixtures import Objective, choose_tests, first_order_relative_u_K
+from planner.design.mixtures import Objective, choose_tests, mean_K_objective
 from planner.design.standards import choose_standards
 from planner.inputs import PlanInputs
 from planner.predict.uncertainty import prediction_from, propagate
@@ -167,9 +167,24 @@ def _feasibility(inputs: PlanInputs, candidates: CandidateSet, n_standards: int)
     return []
 
 
+def _epsilon_relative_u(
+    inputs: PlanInputs, candidates: CandidateSet, standards: Sequence[int]
+) -> float:
+    """u(eps)/eps of a standard curve through the origin from reading noise alone.
+
+    eps = sum c A / (b sum c^2) gives u(eps) = u(A) sqrt(sum c^2) / (b sum c^2) (GUM,
+    JCGM 100:2008, eq. 10), so u(eps)/eps = u(A) / sqrt(sum A_i^2) for readings A_i = eps b c_i.
+    """
+    if not standards:
+        return 0.0
+    readings = candidates.evaluation.true_absorbance[np.array(standards)]
+    total = float(np.sqrt(np.sum(readings**2)))
+    return inputs.instrument.absorbance_sd / total if total > 0 else 0.0
+
+
 def design_plan(
     inputs: PlanInputs,
-    objective: Objective = first_order_relative_u_K,
+    objective: Objective | None = None,
     *,
     candidates: CandidateSet | None = None,
     allowed: NDArray[np.bool_] | None = None,
@@ -181,7 +196,9 @@ def design_plan(
     inputs
         Validated plan inputs.
     objective
-        Scores a set of test mixtures (lower is better); see :mod:`planner.design.mixtures`.
+        Scores a set of test mixtures (lower is better); by default the predicted relative
+        SD of the mean K including the standard curve's share
+        (:func:`planner.design.mixtures.mean_K_objective`).
     candidates
         Candidates already enumerated for these inputs (variants reuse one set).
     allowed
@@ -197,6 +214,8 @@ def design_plan(
         candidates = candidate_set(inputs)
     standards = choose_standards(inputs, candidates, allowed)
     used = ((standards.blank,) if standards.blank >= 0 else ()) + standards.standards
+    if objective is None:
+        objective = mean_K_objective(_epsilon_relative_u(inputs, candidates, standards.standards))
     tests = choose_tests(inputs, candidates, exclude=used, objective=objective, allowed=allowed)
 
     mixtures: list[Mixture] = []

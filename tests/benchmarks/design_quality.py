@@ -21,12 +21,13 @@ from importlib.resources import files
 import numpy as np
 
 from planner.design.candidates import candidate_set
-from planner.design.mixtures import choose_tests, first_order_relative_u_K
+from planner.design.mixtures import _x_sensitivity, choose_tests, mean_K_objective
+from planner.design.plan import _epsilon_relative_u
 from planner.design.standards import choose_standards
 from planner.planfile import parse_plan
 
 
-def _naive(inputs, cands, exclude):
+def _naive(inputs, cands, exclude, objective):
     """The usual hand design: one limiting volume, excess stepped evenly, in the window."""
     ev = cands.evaluation
     low, high = inputs.instrument.absorbance_window
@@ -51,7 +52,7 @@ def _naive(inputs, cands, exclude):
         picks = order[np.linspace(0, order.size - 1, inputs.design.tests).round().astype(int)]
         if len(set(picks.tolist())) < inputs.design.tests:
             continue
-        value = first_order_relative_u_K(inputs, cands, picks)
+        value = objective(inputs, cands, picks)
         spread = np.ptp(ev.bound_fraction[picks])
         key = (-spread, value)
         if best is None or key < best[0]:
@@ -59,7 +60,7 @@ def _naive(inputs, cands, exclude):
     return best
 
 
-def _exhaustive(inputs, cands, pool, count, span, gap):
+def _exhaustive(inputs, cands, pool, count, span, gap, eps_u):
     fraction = cands.evaluation.bound_fraction
     best = (np.inf, None)
     combos = np.array(list(itertools.combinations(pool.tolist(), count)))
@@ -69,8 +70,11 @@ def _exhaustive(inputs, cands, pool, count, span, gap):
     from planner.design.mixtures import per_mixture_relative_u_K
 
     own = per_mixture_relative_u_K(inputs, cands, pool)
-    lookup = dict(zip(pool.tolist(), own, strict=True))
-    values = np.sqrt(np.sum(np.vectorize(lookup.get)(combos) ** 2, axis=1)) / count
+    position = {c: i for i, c in enumerate(pool.tolist())}
+    index = np.vectorize(position.get)(combos)
+    own_part = np.sqrt(np.sum(own[index] ** 2, axis=1)) / count
+    shared = eps_u * np.mean(_x_sensitivity(inputs, cands, pool)[index], axis=1)
+    values = np.hypot(own_part, shared)
     values[~admissible] = np.inf
     i = int(np.argmin(values))
     if np.isfinite(values[i]):
@@ -80,7 +84,7 @@ def _exhaustive(inputs, cands, pool, count, span, gap):
 
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--subset", type=int, default=28)
+    parser.add_argument("--subset", type=int, default=34)
     parser.add_argument("--seed", type=int, default=3)
     parser.add_argument("--json", action="store_true")
     args = parser.parse_args()
@@ -90,8 +94,10 @@ def main() -> int:
     cands = candidate_set(inputs)
     standards = choose_standards(inputs, cands)
     exclude = (standards.blank, *standards.standards)
-    optimised = choose_tests(inputs, cands, exclude=exclude)
-    naive = _naive(inputs, cands, exclude)
+    eps_u = _epsilon_relative_u(inputs, cands, standards.standards)
+    objective = mean_K_objective(eps_u)
+    optimised = choose_tests(inputs, cands, exclude=exclude, objective=objective)
+    naive = _naive(inputs, cands, exclude, objective)
     assert naive is not None
     ratio = naive[2] / optimised.objective
 
@@ -114,10 +120,10 @@ def main() -> int:
     span = inputs.design.bound_fraction_span
     gap = 0.5 * span / max(count - 1, 1)
     start = time.perf_counter()
-    small = choose_tests(inputs, cands, exclude=exclude, allowed=mask)
+    small = choose_tests(inputs, cands, exclude=exclude, allowed=mask, objective=objective)
     optimiser_s = time.perf_counter() - start
     start = time.perf_counter()
-    (exact_value, _), n_sets = _exhaustive(inputs, cands, pool, count, span, gap)
+    (exact_value, _), n_sets = _exhaustive(inputs, cands, pool, count, span, gap, eps_u)
     exhaustive_s = time.perf_counter() - start
     gap_pct = 100 * (small.objective / exact_value - 1)
 
