@@ -320,7 +320,7 @@ def neutralised(contains_M: Mapping[str, float]) -> dict[str, float]:
     Notes
     -----
     Electroneutrality of a solution, Σ c_i z_i = 0, as in Harris, Quantitative Chemical
-    Analysis, 9th ed., 2015, section 8-5 "Charge balance" (from memory). The counter-ion is
+    Analysis, 9th ed., 2016, section 8-5 "Charge balance" (from memory). The counter-ion is
     taken as monovalent (for example nitrate in a nitric acid medium), the usual choice when
     the stock's recipe does not name it (common practice).
 

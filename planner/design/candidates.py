@@ -23,7 +23,6 @@ from numpy.typing import NDArray
 
 from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.chem.mixing import IonTable, ion_table, ionic_strength_after_reaction_M, mix_M
-from planner.errors import InvalidInputError
 from planner.inputs import Device, PlanInputs, Stock
 from planner.lab.glassware import (
     DeliverableVolume,
@@ -214,11 +213,8 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
     Returns
     -------
     CandidateSet
-
-    Raises
-    ------
-    InvalidInputError
-        If the shelf delivers no volume at all (field ``glassware``).
+        Empty (or, in a flask, only the diluent to the mark) when the shelf delivers no
+        volume up to the total volume; the design then fails its feasibility checks.
     """
     design = inputs.design
     total_mL = design.total_volume_mL
@@ -228,14 +224,11 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
     diluent = inputs.diluent
     in_flask = design.vessel_kind == "volumetric-flask"
 
+    # A shelf that delivers nothing up to the total volume (only a 25 mL pipette for 10 mL
+    # tubes) is a valid plan that cannot be made: the candidate set is then empty, or just
+    # the diluent in a flask, and the design reports failed checks (design-feasibility,
+    # mixture-count) instead of an error, so the person sees what binds.
     deliverable = deliverable_volumes(inputs.glassware, max_volume_mL=total_mL)
-    if not deliverable:
-        raise InvalidInputError(
-            "no device on the shelf can deliver a volume up to the total volume",
-            field="glassware",
-            value=[d.id for d in inputs.glassware],
-            hint="add a pipette or buret whose volume is below design.total_volume_mL",
-        )
     thinned = _thin(deliverable, shelf)
     by_key = {_volume_key(v.volume_mL): v for v in deliverable}
 

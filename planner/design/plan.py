@@ -220,7 +220,11 @@ def design_plan(
 
     mixtures: list[Mixture] = []
     if standards.blank >= 0:
-        mixtures.append(mixture_from_candidate(inputs, candidates, standards.blank, "B1", "blank"))
+        # design.blanks identical reagent blanks (replicates of one recipe).
+        for n in range(1, inputs.design.blanks + 1):
+            mixtures.append(
+                mixture_from_candidate(inputs, candidates, standards.blank, f"B{n}", "blank")
+            )
     for n, index in enumerate(standards.standards, start=1):
         mixtures.append(mixture_from_candidate(inputs, candidates, index, f"S{n}", "standard"))
     for n, index in enumerate(tests.tests, start=1):

@@ -16,11 +16,10 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.design.candidates import CandidateSet
 from planner.inputs import PlanInputs
 
-__all__ = ["StandardsChoice", "absorbance_targets", "choose_standards", "excess_needed_M"]
+__all__ = ["StandardsChoice", "absorbance_targets", "choose_standards"]
 
 # Groups examined in full after ranking by attainable bound fraction (enough to contain every
 # distinct excess level of a shelf, and bounded so the search stays in milliseconds).
@@ -207,57 +206,3 @@ def _blank_for(
     )
     order = np.lexsort((candidates.deliveries[blanks], distance))
     return int(blanks[order[0]])
-
-
-def excess_needed_M(
-    inputs: PlanInputs,
-    excess_component: str,
-    limiting_total_M: float,
-    tolerance: float,
-) -> float:
-    """Smallest total excess concentration keeping the limiting reagent bound within tolerance.
-
-    Solved with the full equilibrium model (every product species), by bisection on the
-    logarithm of the excess total; for a lone 1:1 complex it reproduces the closed form
-    (1 - tol)[L] + (1 - tol)/(K tol) of :mod:`planner.chem.assumption`.
-
-    Parameters
-    ----------
-    inputs
-        The plan (reaction and limiting reagent).
-    excess_component
-        The component in excess.
-    limiting_total_M
-        Total concentration of the limiting reagent [mol/L].
-    tolerance
-        Accepted relative error of the all-bound assumption [unitless].
-
-    Returns
-    -------
-    float
-        The total excess [mol/L]; ``inf`` when even 1e3 mol/L would not do.
-    """
-    reaction = inputs.reaction
-    matrix = reaction.stoichiometry()
-    log_beta = reaction.log_beta()
-    limiting = reaction.components.index(inputs.design.limiting)
-    excess = reaction.components.index(excess_component)
-    low, high = np.log10(max(limiting_total_M, 1e-12)) - 6.0, 3.0
-
-    def fraction(log_excess: NDArray[np.float64]) -> NDArray[np.float64]:
-        totals = np.zeros((log_excess.size, len(reaction.components)))
-        totals[:, limiting] = limiting_total_M
-        totals[:, excess] = 10.0**log_excess
-        solved = solve_equilibrium(totals, matrix, log_beta)
-        return bound_fraction(solved.species_M, matrix, limiting, totals)
-
-    if fraction(np.array([high]))[0] < 1.0 - tolerance:
-        return float("inf")
-    grid = np.array([low, high])
-    for _ in range(60):
-        middle = grid.mean()
-        if fraction(np.array([middle]))[0] >= 1.0 - tolerance:
-            grid[1] = middle
-        else:
-            grid[0] = middle
-    return float(10.0 ** grid[1])

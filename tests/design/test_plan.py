@@ -134,3 +134,14 @@ def test_shortage_fails_stock_inventory(tmp_path):
     assert inventory.status == "fail"
     assert "thiocyanate" in inventory.detail
     assert "short" in inventory.detail
+
+
+def test_blanks_setting_gives_replicate_blanks(tmp_path):
+    text = PLANS[0].read_text().replace("standards = 5\n", "standards = 5\nblanks = 2\n")
+    path = tmp_path / "two-blanks.toml"
+    path.write_text(text)
+    plan = design_plan(load_plan(path))
+    blanks = plan.by_role("blank")
+    assert [b.id for b in blanks] == ["B1", "B2"]
+    assert blanks[0].additions == blanks[1].additions
+    assert not plan.failed
