@@ -7,9 +7,12 @@ Heavy libraries are imported inside the commands so start-up stays fast.
 from __future__ import annotations
 
 import enum
+import os
 import sys
+import tempfile
 import traceback
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Annotated, TypeVar
 
@@ -157,6 +160,43 @@ def _load(file: Path | None) -> PlanInputs:
     return load_plan(file)
 
 
+def _matplotlib_folders() -> tuple[Path, ...]:
+    """Where matplotlib keeps its configuration and caches when MPLCONFIGDIR is not set (as
+    its documentation gives them: the XDG folders on Linux and FreeBSD, ~/.matplotlib
+    elsewhere). matplotlib creates them on import when they are missing."""
+    if sys.platform.startswith(("linux", "freebsd")):
+        config = os.environ.get("XDG_CONFIG_HOME") or str(Path.home() / ".config")
+        cache = os.environ.get("XDG_CACHE_HOME") or str(Path.home() / ".cache")
+        return (Path(config) / "matplotlib", Path(cache) / "matplotlib")
+    return (Path.home() / ".matplotlib",)
+
+
+@contextmanager
+def _private_plot_caches() -> Iterator[None]:
+    """Keep matplotlib from creating folders in the home folder while plots are drawn.
+
+    On first use matplotlib creates its configuration and cache folders if need be and
+    writes a font list into the cache. The planner writes only where it is told, so when
+    those folders do not exist yet (and the user set no MPLCONFIGDIR of their own),
+    matplotlib gets a scratch folder for this run, removed afterwards; the price is a fresh
+    scan of the installed fonts, about 0.2 s. Folders that already exist (from earlier
+    matplotlib use) are used as they are.
+    """
+    if (
+        "matplotlib" in sys.modules
+        or "MPLCONFIGDIR" in os.environ
+        or all(folder.is_dir() for folder in _matplotlib_folders())
+    ):
+        yield
+        return
+    with tempfile.TemporaryDirectory(prefix="planner-matplotlib-") as folder:
+        os.environ["MPLCONFIGDIR"] = folder
+        try:
+            yield
+        finally:
+            os.environ.pop("MPLCONFIGDIR", None)
+
+
 def _today() -> str:
     import datetime
 
@@ -180,7 +220,8 @@ def plan(
         Path | None,
         typer.Option(
             "--out",
-            help="Folder for plan.json, bench sheets, prep sheet, answer key and CSV.",
+            help="Folder for plan.json, bench sheets, prep sheet, answer key, CSV and plots "
+            "(plots/*.png and *.svg).",
         ),
     ] = None,
     output_format: Annotated[
@@ -221,15 +262,20 @@ def plan(
                 "--pdf writes PDF files and needs a folder", field="--pdf", hint="add --out DIR"
             )
         inputs = _load(file)
+        if out is not None:
+            from planner.report.outdir import check_output_target
+
+            check_output_target(out, force=force)  # before the design and the plots
         result = design_plan(inputs)
         if out is not None:
             from planner.report.outdir import plan_files, write_output_folder
 
-            files: dict[str, str | bytes] = dict(plan_files(result, date=date or _today()))
+            with _private_plot_caches():
+                files = plan_files(result, date=date or _today(), plots=True)
             if pdf:
                 from planner.report.browser import pdfs_for
 
-                files.update(pdfs_for({k: v for k, v in files.items() if isinstance(v, str)}))
+                files.update(pdfs_for(files))
             write_output_folder(out, files, force=force)
         if quiet:
             pass
@@ -447,7 +493,8 @@ _PROGRESS_FROM_TRIALS = 20_000
         "  planner simulate                           the embedded default scenario\n\n"
         "  planner simulate recipes/micro-piston.toml --trials 200000 --seed 7\n\n"
         "  planner simulate my-plan.toml --format json > simulation.json\n\n"
-        "  planner simulate my-plan.toml --out sim/   writes K-histogram.png, simulation.json"
+        "  planner simulate my-plan.toml --out sim/   writes the K and eps histograms (PNG, "
+        "SVG) and simulation.json"
     )
 )
 def simulate(
@@ -469,7 +516,11 @@ def simulate(
     ] = OutputFormat.text,
     out: Annotated[
         Path | None,
-        typer.Option("--out", help="Folder for K-histogram.png and simulation.json."),
+        typer.Option(
+            "--out",
+            help="Folder for simulation.json and the histograms K-histogram and "
+            "epsilon-histogram, each .png and .svg.",
+        ),
     ] = None,
     force: Annotated[
         bool, typer.Option("--force", help="Replace a non-empty --out folder.")
@@ -498,6 +549,10 @@ def simulate(
         from planner.predict.uncertainty import propagate
 
         inputs = _load(file)
+        if out is not None:
+            from planner.report.outdir import check_output_target
+
+            check_output_target(out, force=force)  # before the simulation and the plots
         designed = design_plan(inputs)
         gum = propagate(designed.inputs, designed.mixtures)
         err = Console(stderr=True, highlight=False, quiet=quiet)
@@ -518,13 +573,12 @@ def simulate(
         document = simulation_json(result, gum, title=inputs.title, seed=seed)
         if out is not None:
             from planner.report.outdir import write_output_folder
-            from planner.report.plots import k_histogram_png
+            from planner.report.plots import simulation_plots
 
-            write_output_folder(
-                out,
-                {"K-histogram.png": k_histogram_png(result), "simulation.json": document},
-                force=force,
-            )
+            files: dict[str, str | bytes] = {"simulation.json": document}
+            with _private_plot_caches():
+                files.update(simulation_plots(result))
+            write_output_folder(out, files, force=force)
         if quiet:
             pass
         elif output_format is OutputFormat.json:

@@ -76,14 +76,23 @@ def test_out_folder_with_histogram(tmp_path):
     result = run("simulate", "--trials", "300", "--seed", "1", "--out", str(target), "-q")
     assert result.exit_code == 0, result.stderr
     assert result.stdout == ""  # --quiet
-    assert sorted(p.name for p in target.iterdir()) == ["K-histogram.png", "simulation.json"]
+    assert sorted(p.name for p in target.iterdir()) == [
+        "K-histogram.png",
+        "K-histogram.svg",
+        "epsilon-histogram.png",
+        "epsilon-histogram.svg",
+        "simulation.json",
+    ]
     png = (target / "K-histogram.png").read_bytes()
     assert png.startswith(PNG_SIGNATURE)
+    assert (target / "epsilon-histogram.png").read_bytes().startswith(PNG_SIGNATURE)
+    assert b"<svg" in (target / "epsilon-histogram.svg").read_bytes()
     assert json.loads((target / "simulation.json").read_text())["trials"] == 300
-    # Same seed, same image, byte for byte.
+    # Same seed, same images, byte for byte.
     again = tmp_path / "again"
     run("simulate", "--trials", "300", "--seed", "1", "--out", str(again), "-q")
-    assert (again / "K-histogram.png").read_bytes() == png
+    for path in target.iterdir():
+        assert (again / path.name).read_bytes() == path.read_bytes(), path.name
 
 
 def test_out_folder_not_empty_exits_2(tmp_path):

@@ -519,7 +519,12 @@ def _curve(
 def _gradients(ex: BenchExperiment, inputs: _Inputs, models: _Models) -> _Gradients:
     f = models.functions
     epsilon, g_eps = _curve(ex, inputs, models, "")
-    epsilon_i, g_eps_i = _curve(ex, inputs, models, "'")
+    if len(ex.standards) >= 2:
+        epsilon_i, g_eps_i = _curve(ex, inputs, models, "'")
+    else:
+        # A line with an intercept needs two standards; with one, report the curve through
+        # the origin for both rather than a 0/0.
+        epsilon_i, g_eps_i = epsilon, g_eps.copy()
     tst = ex.tests
     b = ex.path_length_cm
     a = ex.readings[tst]

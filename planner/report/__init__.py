@@ -12,8 +12,10 @@ if TYPE_CHECKING:
 __all__ = ["write_reports"]
 
 
-def write_reports(plan: Plan, out: str | PathLike[str], *, date: str, force: bool = False) -> None:
-    """Write a plan's output folder (plan.json, sheets, answer key, CSV) atomically.
+def write_reports(
+    plan: Plan, out: str | PathLike[str], *, date: str, force: bool = False, plots: bool = True
+) -> None:
+    """Write a plan's output folder (plan.json, sheets, answer key, CSV, plots) atomically.
 
     Parameters
     ----------
@@ -25,7 +27,9 @@ def write_reports(plan: Plan, out: str | PathLike[str], *, date: str, force: boo
         Date printed on the sheets.
     force
         Replace a non-empty folder.
+    plots
+        Also draw the plots into ``plots/`` (PNG and SVG) and show them on the answer key.
     """
     from planner.report.outdir import plan_files, write_output_folder
 
-    write_output_folder(Path(out), plan_files(plan, date=date), force=force)
+    write_output_folder(Path(out), plan_files(plan, date=date, plots=plots), force=force)

@@ -110,10 +110,15 @@ window.addEventListener('load', function () {
     var box = t.getBoundingClientRect();
     return {right: box.right, scroll: t.scrollWidth, client: t.clientWidth};
   });
+  var images = Array.prototype.map.call(document.querySelectorAll('img'), function (i) {
+    var box = i.getBoundingClientRect();
+    return {src: i.getAttribute('src'), right: box.right, width: box.width,
+      natural: i.naturalWidth, loaded: i.complete && i.naturalWidth > 0};
+  });
   var text = document.body.innerText;
   var out = document.createElement('pre');
   out.id = 'layout-probe';
-  out.textContent = JSON.stringify({width: width, tables: tables, text: text,
+  out.textContent = JSON.stringify({width: width, tables: tables, images: images, text: text,
     pages: document.querySelectorAll('.page').length});
   document.body.appendChild(out);
 });
@@ -121,17 +126,55 @@ window.addEventListener('load', function () {
 """
 
 
-def measure_layout(html_text: str, *, width_px: int = PRINTABLE_WIDTH_PX) -> dict[str, object]:
-    """Lay a page out at the printable width and report where its tables end.
+def _write_assets(folder: Path, assets: Mapping[str, str | bytes]) -> None:
+    """Files a page refers to by relative path (``plots/ladder.svg``), written under folder."""
+    for name, content in assets.items():
+        parts = name.split("/")
+        if not name or name.startswith("/") or "\\" in name or ".." in parts:
+            raise OutputError(
+                "a file beside a page must have a relative name inside its folder",
+                field="assets",
+                value=name,
+                hint="use names such as 'plots/ladder.svg'",
+            )
+        path = folder.joinpath(*parts)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        if isinstance(content, str):
+            path.write_text(content, encoding="utf-8")
+        else:
+            path.write_bytes(content)
+
+
+def measure_layout(
+    html_text: str,
+    *,
+    width_px: int = PRINTABLE_WIDTH_PX,
+    assets: Mapping[str, str | bytes] | None = None,
+) -> dict[str, object]:
+    """Lay a page out at the printable width and report where its tables and images end.
+
+    Parameters
+    ----------
+    html_text
+        The page.
+    width_px
+        Viewport width [CSS px].
+    assets
+        Files the page refers to by relative path (such as ``plots/ladder.svg``), by
+        ``/``-separated name; written beside the page so images load.
 
     Returns
     -------
     dict
         ``width`` (viewport width [px]), ``tables`` (each table's right edge, scroll and client
-        widths [px]), ``text`` (the visible text) and ``pages`` (number of ``.page`` blocks).
+        widths [px]), ``images`` (each image's ``src``, right edge and width [px], natural
+        width [px] and whether it ``loaded``), ``text`` (the visible text) and ``pages``
+        (number of ``.page`` blocks).
     """
     probed = html_text.replace("</body>", _PROBE + "</body>")
     with tempfile.TemporaryDirectory() as folder:
+        if assets:
+            _write_assets(Path(folder), assets)
         page = Path(folder) / "page.html"
         page.write_text(probed, encoding="utf-8")
         done = _run(
@@ -158,21 +201,21 @@ def pdf_page_count(pdf: bytes) -> int:
     return len(re.findall(rb"/Type\s*/Page(?![a-zA-Z])", pdf))
 
 
-def pdfs_for(files: Mapping[str, str]) -> dict[str, bytes]:
+def pdfs_for(files: Mapping[str, str | bytes]) -> dict[str, bytes]:
     """PDF twins of the top-level ``.html`` files of an output folder, keyed ``name.pdf``.
 
     Sheets in sub-folders (one per bench) are left out: ``bench-sheets.pdf`` already holds
-    every bench, one per page. The HTML is laid out in a private temporary folder, so nothing
-    half-made reaches the output folder, which is written afterwards in one atomic step.
+    every bench, one per page. The whole folder is laid out in a private temporary folder
+    (so the plots the answer key shows from ``plots/`` are there), and nothing half-made
+    reaches the output folder, which is written afterwards in one atomic step.
     """
     result: dict[str, bytes] = {}
     with tempfile.TemporaryDirectory() as folder:
+        _write_assets(Path(folder), files)
         for name, text in files.items():
-            if not name.endswith(".html") or "/" in name:
+            if not name.endswith(".html") or "/" in name or not isinstance(text, str):
                 continue
             html = Path(folder) / name
-            html.parent.mkdir(parents=True, exist_ok=True)
-            html.write_text(text, encoding="utf-8")
             pdf = html.with_suffix(".pdf")
             html_to_pdf(html, pdf)
             result[name.removesuffix(".html") + ".pdf"] = pdf.read_bytes()

@@ -1,6 +1,7 @@
 """The output folder of ``planner plan --out DIR``: what goes in it, and writing it safely.
 
-:func:`plan_files` builds the folder's contents as text, keyed by relative file name;
+:func:`plan_files` builds the folder's contents as text (and, on request, the plots as PNG and
+SVG bytes under ``plots/``), keyed by relative file name;
 :func:`write_output_folder` is the one place in the report layer that writes files. It builds
 the whole folder beside the target and swaps it in with renames, so a reader never sees a
 half-written folder and a failure leaves the previous folder as it was.
@@ -20,6 +21,7 @@ import shutil
 import tempfile
 from collections.abc import Mapping
 from pathlib import Path, PurePosixPath, PureWindowsPath
+from typing import Literal, overload
 
 from planner.errors import OutputError
 from planner.report.plan_json import plan_json
@@ -35,7 +37,13 @@ from planner.report.sheets import (
 )
 from planner.result import Plan
 
-__all__ = ["MAX_BENCH_FILES", "bench_slots", "plan_files", "write_output_folder"]
+__all__ = [
+    "MAX_BENCH_FILES",
+    "bench_slots",
+    "check_output_target",
+    "plan_files",
+    "write_output_folder",
+]
 
 #: Most benches in a session that get one numbered sheet each; more get one sheet per section.
 MAX_BENCH_FILES = 60
@@ -68,9 +76,36 @@ def _slot_name(slot: BenchSlot, section_width: int, bench_width: int) -> str:
     return name
 
 
+@overload
 def plan_files(
-    plan: Plan, *, date: str, section: int | None = None, of_sections: int | None = None
-) -> dict[str, str]:
+    plan: Plan,
+    *,
+    date: str,
+    section: int | None = None,
+    of_sections: int | None = None,
+    plots: Literal[False] = False,
+) -> dict[str, str]: ...
+
+
+@overload
+def plan_files(
+    plan: Plan,
+    *,
+    date: str,
+    section: int | None = None,
+    of_sections: int | None = None,
+    plots: bool,
+) -> dict[str, str | bytes]: ...
+
+
+def plan_files(
+    plan: Plan,
+    *,
+    date: str,
+    section: int | None = None,
+    of_sections: int | None = None,
+    plots: bool = False,
+) -> dict[str, str] | dict[str, str | bytes]:
     """The contents of a plan's output folder.
 
     Parameters
@@ -81,27 +116,41 @@ def plan_files(
         The date printed on the sheets (the caller reads the clock, not the report layer).
     section, of_sections
         For a variant plan serving one section: its number and the number of sections.
+    plots
+        Also draw the plan's plots (:func:`planner.report.plots.plan_plots`: the calibration
+        ladder, bound fraction against the excess, the tests' coverage of bound fraction,
+        those that apply) into ``plots/<stem>.png`` and ``.svg``, and show them on the answer
+        key. Off by default: drawing imports matplotlib and takes most of a second.
 
     Returns
     -------
     dict
-        Relative file name -> text: ``plan.json``, ``mixtures.csv``, ``prep-sheet.md`` and
-        ``.html``, ``answer-key.md`` and ``.html``, ``bench-sheets.html`` (every pipetting
-        sheet, one per page), and ``benches/section-NN-bench-NN.md`` and ``.html`` per bench,
-        or ``benches/section-NN.md`` and ``.html`` per section when the session has more than
-        :data:`MAX_BENCH_FILES` benches. Numbers are zero-padded to at least two digits.
+        Relative file name -> text (bytes for the plots): ``plan.json``, ``mixtures.csv``,
+        ``prep-sheet.md`` and ``.html``, ``answer-key.md`` and ``.html``,
+        ``bench-sheets.html`` (every pipetting sheet, one per page), ``plots/*.png`` and
+        ``plots/*.svg`` with ``plots``, and ``benches/section-NN-bench-NN.md`` and ``.html``
+        per bench, or ``benches/section-NN.md`` and ``.html`` per section when the session has
+        more than :data:`MAX_BENCH_FILES` benches. Numbers are zero-padded to at least two
+        digits.
     """
     session = plan.inputs.session
     section_width = max(2, len(str(of_sections or session.sections)))
     bench_width = max(2, len(str(session.benches_per_section)))
     slots = bench_slots(plan, section=section, of_sections=of_sections)
-    files = {
+    figures: dict[str, bytes] = {}
+    if plots:
+        from planner.report.plots import plan_plots
+
+        figures = plan_plots(plan)
+    # The answer key shows each plot that is in the folder, in the order they were drawn.
+    stems = tuple(dict.fromkeys(PurePosixPath(name).stem for name in figures))
+    files: dict[str, str] = {
         "plan.json": plan_json(plan),
         "mixtures.csv": mixtures_csv(plan),
         "prep-sheet.md": prep_sheet_md(plan, date=date),
         "prep-sheet.html": prep_sheet_html(plan, date=date),
-        "answer-key.md": answer_key_md(plan, date=date),
-        "answer-key.html": answer_key_html(plan, date=date),
+        "answer-key.md": answer_key_md(plan, date=date, plots=stems),
+        "answer-key.html": answer_key_html(plan, date=date, plots=stems),
         "bench-sheets.html": bench_sheet_html(plan, date=date, slots=slots),
     }
     for slot, (markdown, html) in zip(
@@ -110,7 +159,11 @@ def plan_files(
         stem = "benches/" + _slot_name(slot, section_width, bench_width)
         files[stem + ".md"] = markdown
         files[stem + ".html"] = html
-    return files
+    if not plots:
+        return files
+    every: dict[str, str | bytes] = dict(files)
+    every.update(figures)
+    return every
 
 
 def _relative_path(name: str) -> PurePosixPath:
@@ -181,6 +234,18 @@ def _check_target(target: Path, *, force: bool) -> None:
             value=str(target),
             hint="pass --force to replace it, or choose another folder",
         )
+
+
+def check_output_target(target: Path, *, force: bool) -> None:
+    """Refuse an output folder early, before the work of filling it (same rules and errors as
+    :func:`write_output_folder`, which checks again when it writes).
+
+    Raises
+    ------
+    OutputError
+        ``target`` is a file, or a non-empty folder and ``force`` is false.
+    """
+    _check_target(Path(target), force=force)
 
 
 def write_output_folder(target: Path, files: Mapping[str, bytes | str], *, force: bool) -> None:

@@ -521,6 +521,45 @@ class _PredictionView:
 
 
 @dataclass(frozen=True, slots=True)
+class _Figure:
+    """A plot shown on the answer key: file stem under ``plots/``, heading, caption."""
+
+    stem: str
+    heading: str
+    caption: str
+
+
+def _figures(plan: Plan, stems: Sequence[str]) -> tuple[_Figure, ...]:
+    """The answer key's figures, in the order given, for the plot stems that were written."""
+    limiting = plan.inputs.design.limiting
+    tolerance = plain(plan.inputs.design.assumption_tolerance, 3)
+    low, high = plan.inputs.design.bound_fraction_range
+    texts = {
+        "ladder": (
+            "Planned calibration ladder",
+            "Predicted reading of each standard (filled circles) and of the blank (square) "
+            "against the coloured product's concentration, inside the photometer's linear "
+            "window (band); the solid curve is the photometer's response with stray light, "
+            "the dashed line Beer-Lambert without it. Hollow circles: where the usual analysis "
+            f"places the standards, taking all of the {limiting} as the coloured product.",
+        ),
+        "bound-fraction": (
+            "Bound fraction against the excess",
+            f"Fraction of the {limiting} held in the products as the total excess changes "
+            f"(equilibrium solver, at the standards' {limiting} concentrations). For the usual "
+            f"analysis the standards should sit above the line 1 − {tolerance}.",
+        ),
+        "coverage": (
+            "Coverage of bound fraction by the tests",
+            f"Bound fraction of the {limiting} in each test mixture. The band 0.2–0.8 is where a "
+            f"test is informative about K; the dashed lines are the design's range "
+            f"{plain(low, 3)}–{plain(high, 3)}.",
+        ),
+    }
+    return tuple(_Figure(stem, *texts[stem]) for stem in stems if stem in texts)
+
+
+@dataclass(frozen=True, slots=True)
 class _RangeRow:
     quantity: str
     low: str
@@ -560,7 +599,7 @@ def _coloured_species(plan: Plan) -> tuple[str, ...]:
     return coloured or tuple(sp.name for sp in species)
 
 
-def _answer_context(plan: Plan, date: str) -> dict[str, Any]:
+def _answer_context(plan: Plan, date: str, plots: Sequence[str] = ()) -> dict[str, Any]:
     products = _coloured_species(plan)
     rows = [
         _AnswerRow(
@@ -608,11 +647,12 @@ def _answer_context(plan: Plan, date: str) -> dict[str, Any]:
         "path_length": significant(instrument.path_length_cm, 3),
         "open_checks": _open_checks(plan),
         "notes": list(plan.notes),
+        "figures": _figures(plan, plots),
         "cautions": cautions_for(plan.inputs),
     }
 
 
-def answer_key_md(plan: Plan, *, date: str) -> str:
+def answer_key_md(plan: Plan, *, date: str, plots: Sequence[str] = ()) -> str:
     """The answer key as Markdown.
 
     Parameters
@@ -621,6 +661,10 @@ def answer_key_md(plan: Plan, *, date: str) -> str:
         A finished plan.
     date
         The date printed in the header.
+    plots
+        Stems of the plot files written beside the sheet (``ladder``, ``bound-fraction``,
+        ``coverage``, see :func:`planner.report.plots.plan_plots`); each is shown from
+        ``plots/<stem>.png`` with its caption. Empty: no plots.
 
     Returns
     -------
@@ -631,14 +675,18 @@ def answer_key_md(plan: Plan, *, date: str) -> str:
         bias of K, against the values the plan assumes; the 95 % ranges a class will likely
         report for eps, K, each test's K and each reading (value -/+ 1.96 u from the
         first-order budget of :mod:`planner.predict.uncertainty`), for acceptance windows;
-        and the cautions.
+        the plots, when given; and the cautions.
     """
-    return _render("answer.md", **_answer_context(plan, date))
+    return _render("answer.md", **_answer_context(plan, date, plots))
 
 
-def answer_key_html(plan: Plan, *, date: str) -> str:
-    """The answer key as a self-contained printable HTML document (see answer_key_md)."""
-    return _render("answer.html", **_answer_context(plan, date))
+def answer_key_html(plan: Plan, *, date: str, plots: Sequence[str] = ()) -> str:
+    """The answer key as a printable HTML document (see answer_key_md).
+
+    Self-contained but for the plots: each stem in ``plots`` is shown from
+    ``plots/<stem>.svg`` (a path relative to the sheet), no wider than the printable width.
+    """
+    return _render("answer.html", **_answer_context(plan, date, plots))
 
 
 # ---------------------------------------------------------------------------------------------

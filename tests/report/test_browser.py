@@ -36,7 +36,11 @@ RECIPE = ROOT / "recipes" / "copper-ligand-excess.toml"
 def files():
     assert chromium_path() is not None, "Chromium is required: apt-get install chromium"
     plan = design_plan(load_plan(RECIPE))
-    return plan, plan_files(plan, date="2026-12-02")
+    return plan, plan_files(plan, date="2026-12-02", plots=True)
+
+
+def _plots(contents):
+    return {name: data for name, data in contents.items() if name.startswith("plots/")}
 
 
 def _assert_fits(layout):
@@ -46,12 +50,16 @@ def _assert_fits(layout):
         # No table runs past the printable width, and none needs a scroll bar inside.
         assert table["right"] <= width + 0.5
         assert table["scroll"] <= table["client"] + 1
+    for image in layout["images"]:
+        # Every image loads and stays inside the printable width.
+        assert image["loaded"], image["src"]
+        assert image["right"] <= width + 0.5, image["src"]
 
 
 @pytest.mark.parametrize("name", ["bench-sheets.html", "prep-sheet.html", "answer-key.html"])
 def test_sheet_fits_printable_width_and_names_every_mixture(files, name):
     plan, contents = files
-    layout = measure_layout(contents[name])
+    layout = measure_layout(contents[name], assets=_plots(contents))
     _assert_fits(layout)
     text = layout["text"]
     if name != "prep-sheet.html":
@@ -73,9 +81,24 @@ def test_bench_sheets_pdf_has_one_page_per_bench(files, tmp_path):
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
 
+def test_answer_key_shows_every_plot_inside_the_printable_width(files):
+    _, contents = files
+    svgs = sorted(name for name in contents if name.startswith("plots/") and name.endswith("svg"))
+    assert svgs == ["plots/bound-fraction.svg", "plots/coverage.svg", "plots/ladder.svg"]
+    layout = measure_layout(contents["answer-key.html"], assets=_plots(contents))
+    _assert_fits(layout)
+    assert sorted(image["src"] for image in layout["images"]) == svgs
+    for image in layout["images"]:
+        # Shown at the SVG's own size (6.6 in = 634 px), so its text prints at 9-11 pt.
+        assert image["width"] == pytest.approx(6.6 * 96, abs=1)
+
+
 @pytest.mark.parametrize("name", ["prep-sheet.html", "answer-key.html"])
 def test_other_sheets_print_to_pdf(files, tmp_path, name):
     _, contents = files
+    for plot, data in _plots(contents).items():
+        (tmp_path / plot).parent.mkdir(exist_ok=True)
+        (tmp_path / plot).write_bytes(data)
     html = tmp_path / name
     html.write_text(contents[name])
     pdf = tmp_path / "out.pdf"

@@ -1,0 +1,389 @@
+"""Tests of planner.report.plots: valid files, same bytes every run, labels, plotted data.
+
+The plotted data are read back from the figure objects (each series carries a ``gid``) and
+compared with the plan they were drawn from, or with formulas typed here.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import re
+import subprocess
+import sys
+import xml.etree.ElementTree as ET
+from pathlib import Path
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from planner.cli import app
+from planner.design.plan import design_plan
+from planner.planfile import load_plan
+from planner.predict.montecarlo import simulate
+from planner.report.outdir import plan_files
+from planner.report.plots import (
+    PLAN_PLOTS,
+    available_plan_plots,
+    bound_fraction_figure,
+    coverage_figure,
+    figure_png,
+    figure_svg,
+    histogram_figure,
+    k_histogram_png,
+    ladder_figure,
+    plan_plots,
+    simulation_plots,
+)
+from tests.report.conftest import make_inputs, make_plan
+
+ROOT = Path(__file__).resolve().parents[2]
+DATE = "2026-12-02"
+# The eight bytes every PNG starts with, then the IHDR chunk (ISO/IEC 15948, 5.2 and 11.2.2).
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
+SVG = "{http://www.w3.org/2000/svg}"
+
+
+@pytest.fixture(scope="module")
+def default_plan():
+    return design_plan(load_plan(ROOT / "planner" / "data" / "default.toml"))
+
+
+@pytest.fixture(scope="module")
+def simulation(default_plan):
+    return simulate(
+        default_plan.inputs, default_plan.mixtures, trials=400, rng=np.random.default_rng(2)
+    )
+
+
+def _series(figure, gid):
+    """The Line2D of one series, found by its gid."""
+    found = [line for line in figure.axes[0].get_lines() if line.get_gid() == gid]
+    assert len(found) == 1, f"expected one series {gid!r}, found {len(found)}"
+    return found[0]
+
+
+def _svg_texts(svg: bytes) -> list[str]:
+    root = ET.fromstring(svg)
+    assert root.tag == SVG + "svg"
+    return ["".join(node.itertext()) for node in root.iter(SVG + "text")]
+
+
+def _assert_png(data: bytes) -> None:
+    assert data.startswith(PNG_SIGNATURE)
+    assert data[12:16] == b"IHDR"
+    width, height = int.from_bytes(data[16:20], "big"), int.from_bytes(data[20:24], "big")
+    # 6.6 in wide at 150 dpi.
+    assert width == 990
+    assert 300 < height < 1500
+    assert data.endswith(b"IEND\xaeB`\x82")
+
+
+# ---------------------------------------------------------------------------------------------
+# Files
+# ---------------------------------------------------------------------------------------------
+
+
+def test_plan_plots_are_valid_png_and_svg(plan):
+    files = plan_plots(plan)
+    assert sorted(files) == sorted(
+        f"plots/{stem}.{ext}" for stem in PLAN_PLOTS for ext in ("png", "svg")
+    )
+    for name, data in files.items():
+        if name.endswith(".png"):
+            _assert_png(data)
+        else:
+            assert _svg_texts(data)  # parses as SVG and has text
+            # Printed at its natural size inside the A4 printable width (703 px = 527 pt).
+            width = ET.fromstring(data).get("width")
+            assert width is not None
+            assert width.endswith("pt")
+            assert float(width[:-2]) <= 527
+
+
+def test_plan_plots_are_byte_identical_on_two_runs(plan):
+    assert plan_plots(plan) == plan_plots(plan)
+
+
+def test_files_carry_no_date_or_version(plan):
+    for name, data in plan_plots(plan).items():
+        assert b"<dc:date>" not in data, name
+        assert b"matplotlib v" not in data.lower(), name
+
+
+def test_simulation_plots_valid_identical_and_labelled(simulation):
+    files = simulation_plots(simulation)
+    assert sorted(files) == [
+        "K-histogram.png",
+        "K-histogram.svg",
+        "epsilon-histogram.png",
+        "epsilon-histogram.svg",
+    ]
+    _assert_png(files["K-histogram.png"])
+    _assert_png(files["epsilon-histogram.png"])
+    assert files == simulation_plots(simulation)
+    assert "K [L/mol]" in _svg_texts(files["K-histogram.svg"])
+    assert "ε [L mol⁻¹ cm⁻¹]" in _svg_texts(files["epsilon-histogram.svg"])
+    assert "benches per bin [count]" in _svg_texts(files["epsilon-histogram.svg"])
+    # The shortcut still gives the K histogram's PNG.
+    assert k_histogram_png(simulation) == files["K-histogram.png"]
+
+
+# ---------------------------------------------------------------------------------------------
+# Labels and plotted data
+# ---------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("stem", "labels"),
+    [
+        (
+            "ladder",
+            [
+                "FeSCN2+ concentration at equilibrium [mol/L]",
+                "predicted reading A [unitless]",
+                "Beer-Lambert absorbance (no stray light) [unitless]",
+            ],
+        ),
+        (
+            "bound-fraction",
+            ["Fe3+ total (reagent in excess) [mol/L]", "bound fraction of SCN- [unitless]"],
+        ),
+        ("coverage", ["bound fraction of SCN- [unitless]", "test mixture"]),
+    ],
+)
+def test_svg_has_axis_labels_as_text(plan, stem, labels):
+    texts = _svg_texts(plan_plots(plan)[f"plots/{stem}.svg"])
+    for label in labels:
+        assert label in texts
+
+
+def test_ladder_points_are_the_plans_standards(plan):
+    figure = ladder_figure(plan)
+    standards = _series(figure, "standards")
+    # conftest: S1 and S2 have FeSCN2+ 7.5e-5 and 7.27e-5 mol/L and read 0.357 and 0.346.
+    assert list(standards.get_xdata()) == [7.5e-5, 7.27e-5]
+    assert list(standards.get_ydata()) == [0.357, 0.346]
+    assert list(standards.get_xdata()) == [
+        m.equilibrium_M["FeSCN2+"] for m in plan.by_role("standard")
+    ]
+    blank = _series(figure, "blank")
+    assert list(blank.get_xdata()) == [0.0]
+    assert list(blank.get_ydata()) == [0.012]
+    labels = {text.get_text() for text in figure.axes[0].texts}
+    assert {"S1", "S2", "B1"} <= labels
+
+
+def test_ladder_curves_follow_the_stray_light_formula(plan):
+    figure = ladder_figure(plan)
+    beer_lambert = np.asarray(_series(figure, "beer-lambert").get_ydata())
+    reading = np.asarray(_series(figure, "stray-light").get_ydata())
+    s = 0.001  # conftest: stray_light
+    # A_obs = log10((1 + s) / (10^-A + s)) (DESIGN.md section 3).
+    np.testing.assert_allclose(reading, np.log10((1 + s) / (10.0**-beer_lambert + s)), rtol=1e-12)
+    # The Beer-Lambert line is straight with slope b eps = 1 cm x 4600 L/(mol cm).
+    x = np.asarray(_series(figure, "beer-lambert").get_xdata())
+    np.testing.assert_allclose(np.diff(beer_lambert) / np.diff(x), 4600.0, rtol=1e-9)
+    # The window is the shaded band 0.1-0.9.
+    (band,) = [p for p in figure.axes[0].patches if p.get_gid() == "window"]
+    box = band.get_bbox()
+    assert (box.y0, box.y1) == pytest.approx((0.1, 0.9))
+
+
+def _one_to_one_plan():
+    inputs = make_inputs()
+    reaction = dataclasses.replace(inputs.reaction, species=inputs.reaction.species[:1])
+    return make_plan(dataclasses.replace(inputs, reaction=reaction))
+
+
+def test_bound_fraction_sweep_matches_the_one_to_one_quadratic():
+    plan = _one_to_one_plan()
+    figure = bound_fraction_figure(plan)
+    sweep = _series(figure, "sweep")
+    excess_M = np.asarray(sweep.get_xdata())
+    bound = np.asarray(sweep.get_ydata())
+    K = 100.0  # conftest: log_beta 2.0
+    limiting_M = 2e-4 * 4.123456789012  # conftest: the larger standard's SCN- total (S1)
+    # [ML] is the smaller root of [ML]^2 - (M + L + 1/K)[ML] + M L = 0 (mass balances of
+    # M + L = ML), written as 2ML / (s + sqrt(s^2 - 4ML)) to avoid cancellation.
+    s = excess_M + limiting_M + 1.0 / K
+    complex_M = 2 * excess_M * limiting_M / (s + np.sqrt(s**2 - 4 * excess_M * limiting_M))
+    np.testing.assert_allclose(bound, complex_M / limiting_M, rtol=1e-8, atol=1e-12)
+    assert np.all(np.diff(excess_M) > 0)
+    # Log axis in mol/L.
+    assert figure.axes[0].get_xscale() == "log"
+
+
+def test_bound_fraction_marks_tolerance_needed_excess_and_standards():
+    plan = _one_to_one_plan()
+    figure = bound_fraction_figure(plan)
+    assert list(_series(figure, "tolerance").get_ydata()) == pytest.approx([0.98, 0.98])
+    # DESIGN.md section 3: [M]total = (1 - tol)[L]total + (1 - tol)/(K tol).
+    tol, K, limiting_M = 0.02, 100.0, 2e-4 * 4.123456789012
+    needed_M = (1 - tol) * limiting_M + (1 - tol) / (K * tol)
+    assert _series(figure, "needed").get_xdata()[0] == pytest.approx(needed_M, rel=2e-3)
+    standards = _series(figure, "standards")
+    # conftest: both standards hold 5 mL of 0.2 mol/L iron in 10 mL, bound fraction 0.909.
+    assert list(standards.get_xdata()) == pytest.approx([0.1, 0.1])
+    assert list(standards.get_ydata()) == [0.909, 0.909]
+    labels = {text.get_text() for text in figure.axes[0].texts}
+    assert "S1, S2" in labels
+    # The strongest excess stock (iron, 0.2 mol/L) bounds the hatched region.
+    (beyond,) = [p for p in figure.axes[0].patches if p.get_gid() == "beyond-stock"]
+    assert beyond.get_bbox().x0 == pytest.approx(0.2)
+
+
+def test_bound_fraction_shows_the_coloured_share_when_another_product_holds_some():
+    # With iron in excess (the fixture), Fe(SCN)2+ holds almost no thiocyanate: no extra
+    # curve. With thiocyanate in excess (the recipe), it holds much of the iron.
+    figure = bound_fraction_figure(make_plan())
+    assert not [line for line in figure.axes[0].get_lines() if line.get_gid() == "coloured-only"]
+    recipe = design_plan(load_plan(ROOT / "recipes" / "iron-thiocyanate-ligand-excess.toml"))
+    figure = bound_fraction_figure(recipe)
+    coloured = np.asarray(_series(figure, "coloured-only").get_ydata())
+    bound = np.asarray(_series(figure, "sweep").get_ydata())
+    assert np.all(coloured <= bound + 1e-12)
+    assert float(np.max(bound - coloured)) > 0.1
+
+
+def test_coverage_points_are_the_plans_tests(plan):
+    figure = coverage_figure(plan)
+    tests = _series(figure, "tests")
+    # conftest: T1 and T2 are bound 0.45 and 0.425.
+    assert list(tests.get_xdata()) == [0.45, 0.425]
+    axes = figure.axes[0]
+    rows = dict(zip(axes.get_yticks(), (t.get_text() for t in axes.get_yticklabels()), strict=True))
+    assert [rows[y] for y in tests.get_ydata()] == ["T1", "T2"]
+    (band,) = [p for p in axes.patches if p.get_gid() == "informative"]
+    assert (band.get_bbox().x0, band.get_bbox().x1) == pytest.approx((0.2, 0.8))
+    edges = [line.get_xdata()[0] for line in axes.get_lines() if line.get_gid() == "design-range"]
+    assert edges == pytest.approx([0.15, 0.85])
+
+
+def test_histograms_mark_the_true_values(simulation):
+    k_figure = histogram_figure(simulation, "K")
+    assert _series(k_figure, "true").get_xdata()[0] == simulation.K_true
+    epsilon_figure = histogram_figure(simulation, "epsilon")
+    assert _series(epsilon_figure, "true").get_xdata()[0] == simulation.epsilon_true
+    assert simulation.epsilon_true == pytest.approx(4700.0)  # default.toml: epsilon = 4700
+
+
+def test_figure_functions_serialise_any_figure(plan):
+    figure = coverage_figure(plan)
+    assert figure_png(figure) == figure_png(figure)
+    assert figure_svg(figure) == figure_svg(figure)
+
+
+# ---------------------------------------------------------------------------------------------
+# Which plots apply, and the answer key
+# ---------------------------------------------------------------------------------------------
+
+
+def test_plots_that_do_not_apply_are_left_out(plan):
+    no_tests = dataclasses.replace(
+        plan, mixtures=tuple(m for m in plan.mixtures if m.role != "test")
+    )
+    assert available_plan_plots(no_tests) == ("ladder", "bound-fraction")
+    with pytest.raises(ValueError, match="coverage"):
+        coverage_figure(no_tests)
+    no_standards = dataclasses.replace(
+        plan, mixtures=tuple(m for m in plan.mixtures if m.role != "standard")
+    )
+    assert available_plan_plots(no_standards) == ("coverage",)
+    with pytest.raises(ValueError, match="ladder"):
+        ladder_figure(no_standards)
+    files = plan_files(no_tests, date=DATE, plots=True)
+    assert "plots/coverage.svg" not in files
+    assert "plots/coverage.svg" not in files["answer-key.html"]
+
+
+_IMG = re.compile(r'<img src="([^"]+)"')
+_MD_IMAGE = re.compile(r"!\[[^\]]*\]\(([^)]+)\)")
+
+
+@pytest.mark.parametrize("drop", [(), ("test",)])
+def test_answer_key_references_each_plot_in_the_folder(plan, drop):
+    plan = dataclasses.replace(plan, mixtures=tuple(m for m in plan.mixtures if m.role not in drop))
+    files = plan_files(plan, date=DATE, plots=True)
+    svgs = sorted(name for name in files if name.startswith("plots/") and name.endswith(".svg"))
+    pngs = sorted(name for name in files if name.startswith("plots/") and name.endswith(".png"))
+    assert svgs
+    assert sorted(_IMG.findall(files["answer-key.html"])) == svgs
+    assert sorted(_MD_IMAGE.findall(files["answer-key.md"])) == pngs
+    # Sized to the printable width.
+    assert ".plot img { display: block; max-width: 100%;" in files["answer-key.html"]
+
+
+def test_without_plots_the_answer_key_has_no_images(plan):
+    files = plan_files(plan, date=DATE)
+    assert not [name for name in files if name.startswith("plots/")]
+    assert "<img" not in files["answer-key.html"]
+    assert "](plots/" not in files["answer-key.md"]
+
+
+# ---------------------------------------------------------------------------------------------
+# Command line
+# ---------------------------------------------------------------------------------------------
+
+
+def test_plan_out_writes_the_plots(tmp_path):
+    runner = CliRunner()
+    first, second = tmp_path / "a", tmp_path / "b"
+    for folder in (first, second):
+        result = runner.invoke(app, ["plan", "--out", str(folder), "--date", DATE, "-q"])
+        assert result.exit_code == 0, result.stderr
+    names = sorted(p.name for p in (first / "plots").iterdir())
+    assert names == sorted(f"{stem}.{ext}" for stem in PLAN_PLOTS for ext in ("png", "svg"))
+    for path in (first / "plots").iterdir():
+        assert (second / "plots" / path.name).read_bytes() == path.read_bytes(), path.name
+    html = (first / "answer-key.html").read_text()
+    for stem in PLAN_PLOTS:
+        assert f'src="plots/{stem}.svg"' in html
+
+
+def test_plan_without_out_does_not_import_matplotlib():
+    code = (
+        "import sys\n"
+        "from planner.cli import main\n"
+        "sys.argv = ['planner', 'plan', '--quiet']\n"
+        "try:\n"
+        "    main()\n"
+        "except SystemExit:\n"
+        "    pass\n"
+        "print('matplotlib' in sys.modules)\n"
+    )
+    done = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=ROOT
+    )
+    assert done.stdout.strip() == "False"
+
+
+def test_tick_labels_use_powers_of_ten_without_mathtext(plan):
+    texts = _svg_texts(plan_plots(plan)["plots/bound-fraction.svg"])
+    assert any(re.fullmatch(r"10⁻[¹²³⁴⁵⁶⁷⁸⁹]", t) for t in texts)
+    assert not any("$" in t for t in texts)
+
+
+def test_plan_out_leaves_a_fresh_home_untouched(tmp_path):
+    # matplotlib would create ~/.config/matplotlib and ~/.cache/matplotlib (font list) on
+    # first use; the planner gives it a scratch folder instead when they do not exist.
+    home = tmp_path / "home"
+    (home / "tmp").mkdir(parents=True)
+    environment = {
+        "PATH": "/usr/bin:/bin",
+        "PYTHONPATH": str(ROOT),
+        "PYTHONDONTWRITEBYTECODE": "1",
+        "HOME": str(home),
+        "TMPDIR": str(home / "tmp"),
+    }
+    done = subprocess.run(
+        [sys.executable, "-m", "planner", "plan", "--out", str(tmp_path / "out"), "-q"],
+        env=environment,
+        capture_output=True,
+        text=True,
+        check=False,
+        cwd=tmp_path,
+    )
+    assert done.returncode == 0, done.stderr
+    assert (tmp_path / "out" / "plots" / "ladder.svg").is_file()
+    assert sorted(p.relative_to(home).as_posix() for p in home.rglob("*")) == ["tmp"]
