@@ -45,7 +45,9 @@ app = typer.Typer(
     name="planner",
     help=(
         "Plan spectrophotometric equilibrium-constant experiments: exact equilibria, recipes "
-        "the shelf can deliver, predicted results, pipetting sheets and answer keys."
+        "the shelf can deliver, predicted results, pipetting sheets and answer keys.\n\n"
+        "Exit status: 0 all checks pass, 1 a check failed, 2 the input could not be used, "
+        "3 an internal error (a bug: please report it)."
     ),
     no_args_is_help=True,
     add_completion=False,
@@ -115,7 +117,7 @@ def check(
             "--tolerance",
             help="Accepted relative error of the all-bound assumption, e.g. 0.02 for 2 %.",
         ),
-    ] = 0.01,
+    ] = 0.02,
     output_format: Annotated[
         OutputFormat, typer.Option("--format", help="text for people, json for programs.")
     ] = OutputFormat.text,
@@ -207,7 +209,7 @@ def _today() -> str:
     epilog=(
         "Examples:\n\n"
         "  planner plan                      plan the embedded default scenario\n\n"
-        "  planner plan recipes/iron-thiocyanate.toml --out sheets/\n\n"
+        "  planner plan recipes/iron-thiocyanate-flasks.toml --out sheets/\n\n"
         "  planner plan my-plan.toml --format json > plan.json"
     )
 )

@@ -100,7 +100,7 @@ def min_excess_M(K: float, limiting_M: float, tolerance: float) -> float:
 
 
 def check_assumption(
-    K: float, excess_M: float, limiting_M: float, tolerance: float = 0.01
+    K: float, excess_M: float, limiting_M: float, tolerance: float = 0.02
 ) -> AssumptionCheck:
     """Exact bound fraction of the limiting reagent and the excess the tolerance needs.
 

@@ -443,7 +443,7 @@ def _prep_context(plan: Plan, date: str) -> dict[str, Any]:
         f"To prepare = session need × (1 + margin {plain(100 * session.margin, 3)} %) + a dead "
         f"volume of {plain(plan.totals.dead_volume_mL, 3)} mL per stock assumed left unusable in "
         "each bench container. Per section = per bench × benches per section × replicates; "
-        "session = per section × sections."
+        "session = the sum over sections."
     )
     labels_line = (
         f"Print one label per bench container ({benches}) and one per prep flask of each stock."
