@@ -58,6 +58,8 @@ _GRADUATED_KINDS = frozenset({"graduated-pipette", "buret", "graduated-cylinder"
 #: Devices whose standards define no tolerance classes.
 _CLASSLESS_KINDS = frozenset({"piston-pipette", "tube"})
 
+#: Largest vessel or device volume [mL], as volume_mL accepts.
+_LARGEST_VOLUME_mL = 5000.0
 _FLASK_VESSEL = re.compile(r"flask-(\d+(?:\.\d+)?)")
 _TOML_LOCATION = re.compile(r"\s*\(at line (\d+), column (\d+)\)\s*$")
 #: Relative tolerance for "equal" volumes written in different ways (25 vs 25.000000001).
@@ -68,6 +70,37 @@ _SAME_VOLUME_RTOL = 1e-9
 # --------------------------------------------------------------------------------------------
 
 _Positive = Annotated[float, Field(gt=0)]
+# Piston-pipette settings [µL]: at least 0.01 µL (no piston pipette is set finer) and at most
+# 5000 mL, the largest capacity volume_mL accepts; 1e308 overflowed the picolitre grid
+# (found by fuzzing).
+_Microlitres = Annotated[float, Field(ge=0.01, le=5_000_000)]
+
+#: Largest |log10 beta| accepted. log_beta = 1e308 overflowed the solver (found by fuzzing);
+#: within +-60 every product of beta and a concentration, and its square, stays far inside
+#: float range, and no complex of a spectrophotometric study comes near the limit (the
+#: largest overall constants of common complexes are about 1e45, e.g. hexacyanoferrate(III),
+#: from memory).
+LOG_BETA_LIMIT = 60.0
+#: Largest molar absorptivity [L mol-1 cm-1]. The strongest absorbers known are near 1e6
+#: (from memory); 1e308 overflowed the Beer-Lambert sum (found by fuzzing).
+EPSILON_LIMIT = 1e7
+#: Largest |stoichiometric coefficient|: larger ones are a typo, and huge ints overflow floats.
+COEFFICIENT_LIMIT = 20
+#: Most reaction components, product species, stocks and [[glassware]] entries. The candidate
+#: search enumerates every combination of stock volumes and the shelf enumerates every
+#: combination of up to three deliveries, so a plan with thousands of entries would run for
+#: hours or exhaust memory; these limits are far above any bench (thirty devices, a handful
+#: of stocks) and keep a plan to seconds.
+MAX_COMPONENTS = 10
+MAX_SPECIES = 30
+MAX_STOCKS = 12
+MAX_GLASSWARE = 40
+#: Most readings one graduated device or piston pipette may have (a 100 mL buret read to
+#: 0.01 mL has 10 000). Finer divisions or steps multiply the candidate search and, at
+#: 1e-9 mL, asked for hundreds of gigabytes.
+MAX_READINGS = 20_000
+
+_Coefficient = Annotated[int, Field(ge=-COEFFICIENT_LIMIT, le=COEFFICIENT_LIMIT)]
 _Fraction = Annotated[float, Field(gt=0, lt=1)]
 _Absorbance = Annotated[float, Field(ge=0, le=4)]
 
@@ -84,20 +117,29 @@ class _SpeciesModel(_Model):
     """One ``[[reaction.species]]`` table: a product species and its constant."""
 
     name: str = Field(min_length=1, description="the product species name, e.g. 'FeSCN2+'")
-    formula: dict[str, int] = Field(
+    formula: dict[str, _Coefficient] = Field(
         min_length=1,
-        description='the coefficient of each reaction component, e.g. { "Fe3+" = 1, "SCN-" = 1 }',
+        description="the coefficient of each reaction component, -20 to 20, "
+        'e.g. { "Fe3+" = 1, "SCN-" = 1 }',
     )
     log_beta: float | None = Field(
-        None, description="the log10 of the overall formation constant; give log_beta or K"
+        None,
+        ge=-LOG_BETA_LIMIT,
+        le=LOG_BETA_LIMIT,
+        description="the log10 of the overall formation constant, -60 to 60; give log_beta or K",
     )
     K: float | None = Field(
         None,
-        gt=0,
-        description="the overall formation constant beta [(mol/L)^(1-n)], > 0; give K or log_beta",
+        ge=10.0**-LOG_BETA_LIMIT,
+        le=10.0**LOG_BETA_LIMIT,
+        description="the overall formation constant beta [(mol/L)^(1-n)], 1e-60 to 1e60; "
+        "give K or log_beta",
     )
     epsilon: float = Field(
-        0.0, ge=0, description="the molar absorptivity [L mol-1 cm-1] at the wavelength, >= 0"
+        0.0,
+        ge=0,
+        le=EPSILON_LIMIT,
+        description="the molar absorptivity [L mol-1 cm-1] at the wavelength, 0 to 1e7",
     )
 
 
@@ -111,14 +153,18 @@ class _ReactionModel(_Model):
         ge=0, le=10, description="the ionic strength the constants refer to [mol/L], 0 to 10"
     )
     components: list[str] = Field(
-        min_length=1, description='the list of free reagent ions, e.g. ["Fe3+", "SCN-"]'
+        min_length=1,
+        max_length=MAX_COMPONENTS,
+        description='the list of free reagent ions (at most 10), e.g. ["Fe3+", "SCN-"]',
     )
     species: list[_SpeciesModel] = Field(
-        min_length=1, description="one [[reaction.species]] table per product species"
+        min_length=1,
+        max_length=MAX_SPECIES,
+        description="one [[reaction.species]] table per product species (at most 30)",
     )
-    component_epsilon: dict[str, Annotated[float, Field(ge=0)]] = Field(
+    component_epsilon: dict[str, Annotated[float, Field(ge=0, le=EPSILON_LIMIT)]] = Field(
         default_factory=dict,
-        description="a table of molar absorptivities [L mol-1 cm-1] of free components, >= 0",
+        description="a table of molar absorptivities [L mol-1 cm-1] of free components, 0 to 1e7",
     )
 
 
@@ -195,22 +241,24 @@ class _GlasswareModel(_Model):
 
     kind: str = Field(description="one of " + ", ".join(DEVICE_KINDS))
     volume_mL: float | None = Field(
-        None, gt=0, le=5000, description="the nominal capacity [mL], > 0 and at most 5000"
+        None, ge=0.001, le=5000, description="the nominal capacity [mL], 0.001 to 5000"
     )
     device_class: Literal["A", "B"] = Field(
         "A", alias="class", description='the tolerance class, "A" or "B"'
     )
     count: int = Field(1, ge=1, le=1000, description="how many a bench has, 1 to 1000")
-    range_uL: list[_Positive] | None = Field(
+    range_uL: list[_Microlitres] | None = Field(
         None,
         min_length=2,
         max_length=2,
-        description="the [low, high] adjustable range of a piston pipette [µL], 0 < low < high",
+        description="the [low, high] adjustable range of a piston pipette [µL], "
+        "0.01 <= low < high <= 5e6",
     )
     step_uL: float | None = Field(
         None,
-        gt=0,
-        description="the setting step of a piston pipette [µL], > 0 and at most range low",
+        ge=0.001,
+        description="the setting step of a piston pipette [µL], at least 0.001 and at most "
+        "range low",
     )
     division_mL: float | None = Field(
         None,
@@ -240,9 +288,11 @@ class _DesignModel(_Model):
     )
     assumption_tolerance: float = Field(
         0.02,
-        gt=0,
+        # 1e-6 at least: a ppm is far below any photometric precision, and 5e-324 made the
+        # smallest sufficient excess divide by zero (found by fuzzing).
+        ge=1e-6,
         lt=1,
-        description="the accepted relative error of 'all of it is bound', 0 < tol < 1",
+        description="the accepted relative error of 'all of it is bound', 1e-6 <= tol < 1",
     )
     vessel: str = Field("tube", description='"tube" or a volumetric flask such as "flask-25"')
     total_volume_mL: float | None = Field(
@@ -288,7 +338,10 @@ class _SessionModel(_Model):
         description="the extra stock fraction beyond the need, 0 to 1 (0.15 = 15 %)",
     )
     dead_volume_mL: float = Field(
-        5.0, ge=0, description="the unusable volume per stock and dispensing device [mL], >= 0"
+        5.0,
+        ge=0,
+        le=1000,
+        description="the unusable volume per stock and dispensing device [mL], 0 to 1000",
     )
 
 
@@ -298,9 +351,13 @@ class _PlanModel(_Model):
     title: str = Field("", description="free text shown on every sheet")
     reaction: _ReactionModel = Field(description="a [reaction] table")
     instrument: _InstrumentModel = Field(description="an [instrument] table")
-    stocks: list[_StockModel] = Field(min_length=1, description="one [[stocks]] table per stock")
+    stocks: list[_StockModel] = Field(
+        min_length=1, max_length=MAX_STOCKS, description="one [[stocks]] table per stock"
+    )
     glassware: list[_GlasswareModel] = Field(
-        min_length=1, description="one [[glassware]] table per kind of device on the shelf"
+        min_length=1,
+        max_length=MAX_GLASSWARE,
+        description="one [[glassware]] table per kind of device on the shelf (at most 40)",
     )
     design: _DesignModel = Field(description="a [design] table")
     session: _SessionModel = Field(default_factory=_SessionModel, description="a [session] table")
@@ -328,11 +385,26 @@ def _fail(field: str, problem: str, value: object = _NO_VALUE, hint: str = "") -
     raise _PlanError(field, problem, value, hint)
 
 
+#: Longest key shown whole in an error's field path; longer keys are shortened like values.
+_LONGEST_KEY_SHOWN = 100
+_LONG_KEY = re.compile(r"[^.\[\]]{" + str(_LONGEST_KEY_SHOWN + 1) + ",}")
+
+
+def _short_field(field: str) -> str:
+    """The field path with any key of more than 100 characters cut to its start.
+
+    Found by fuzzing: a megabyte-long key went whole into the message, and printing it took
+    the terminal half a minute.
+    """
+    return _LONG_KEY.sub(lambda m: f"{m[0][:60]}...({len(m[0])} characters)", field)
+
+
 def _to_plan_file_error(problem: _PlanError, source: str) -> PlanFileError:
     text = problem.problem if source == "<plan>" else f"{problem.problem} in {source}"
+    field = _short_field(problem.field)
     if problem.value is _NO_VALUE:
-        return PlanFileError(text, field=problem.field, hint=problem.hint)
-    return PlanFileError(text, field=problem.field, value=problem.value, hint=problem.hint)
+        return PlanFileError(text, field=field, hint=problem.hint)
+    return PlanFileError(text, field=field, value=problem.value, hint=problem.hint)
 
 
 def _path(loc: Sequence[int | str]) -> str:
@@ -452,7 +524,10 @@ def _from_validation_error(exc: ValidationError) -> _PlanError:
         unknown = str(loc[-1])
         allowed = sorted(_keys(holder)) if holder is not None else []
         lowered = {name.lower(): name for name in allowed}
-        close = difflib.get_close_matches(unknown.lower(), list(lowered), n=1, cutoff=0.6)
+        # No suggestion for a key far longer than any plan key (difflib is quadratic in it).
+        close = []
+        if len(unknown) <= _LONGEST_KEY_SHOWN:
+            close = difflib.get_close_matches(unknown.lower(), list(lowered), n=1, cutoff=0.6)
         where = _table_name(loc[:-1])
         hint = f"allowed keys in {where}: {', '.join(allowed)}"
         if close:
@@ -554,6 +629,8 @@ def _check_charge(field: str, name: str) -> None:
 
 
 def _reaction(model: _ReactionModel) -> Reaction:
+    from planner.chem.species import COUNTER_ANION, COUNTER_CATION
+
     components = tuple(model.components)
     for index, name in enumerate(components):
         field = f"reaction.components[{index}]"
@@ -561,6 +638,16 @@ def _reaction(model: _ReactionModel) -> Reaction:
         if name in components[:index]:
             _fail(field, "component listed twice", name, "list each component once")
         _check_charge(field, name)
+        if name in (COUNTER_ANION, COUNTER_CATION):
+            # Found by fuzzing: the unnamed counter-ion that makes a stock neutral is called
+            # X- or X+ (planner.chem.species.COUNTER_ANION), so a component of that name
+            # silently received every stock's counter-ion as reagent.
+            _fail(
+                field,
+                "this name is reserved for the unnamed counter-ion that makes a stock neutral",
+                name,
+                "give the component another name, e.g. 'L-' or 'Y-'",
+            )
 
     species: list[ProductSpecies] = []
     formulas: list[dict[str, int]] = []
@@ -734,6 +821,7 @@ def _stocks(models: Sequence[_StockModel], components: Sequence[str]) -> tuple[S
                         "missing, and the stock contains no reaction component",
                         hint="name the ion this solid supplies, one of the stock's contains_M keys",
                     )
+            _check_solid_formula(f"{field}.solid.formula", entry.solid.formula)
             solid = Solid(
                 formula=entry.solid.formula, purity=float(entry.solid.purity), provides=provides
             )
@@ -749,6 +837,20 @@ def _stocks(models: Sequence[_StockModel], components: Sequence[str]) -> tuple[S
         )
 
     return tuple(stocks)
+
+
+def _check_solid_formula(field: str, formula: str) -> None:
+    """The prep sheet weighs the solid out, so its formula must give a molar mass.
+
+    Found by fuzzing: an unreadable formula was only noticed when the prep sheet was built,
+    with a message naming ``formula`` instead of the stock.
+    """
+    from planner.chem.species import molar_mass_g_per_mol
+
+    try:
+        molar_mass_g_per_mol(formula)
+    except InvalidInputError as exc:
+        _fail(field, exc.problem, formula, exc.hint)
 
 
 def _check_supplied(components: Sequence[str], stocks: Sequence[Stock]) -> None:
@@ -862,7 +964,7 @@ def _device(index: int, entry: _GlasswareModel) -> Device:
             "give the maximum permissible error in mL, e.g. 0.01 for a 5 mL pipette",
         )
 
-    return Device(
+    device = Device(
         kind=kind,
         volume_mL=float(volume_mL),
         device_class="" if kind in _CLASSLESS_KINDS else entry.device_class,
@@ -873,6 +975,43 @@ def _device(index: int, entry: _GlasswareModel) -> Device:
         min_delivery_mL=None if entry.min_delivery_mL is None else float(entry.min_delivery_mL),
         tolerance_mL=None if entry.tolerance_mL is None else float(entry.tolerance_mL),
     )
+    _check_device_model(field, device)
+    return device
+
+
+def _check_device_model(field: str, device: Device) -> None:
+    """The glassware model must be able to use the device, or the design fails later.
+
+    Found by fuzzing: a size without a tolerance-table row (a 7 mL transfer pipette), or a
+    division so fine that its readings cannot be listed, was only noticed deep in the design,
+    with a message naming ``volume_mL`` instead of the [[glassware]] entry.
+    """
+    # Imported here: planner.lab.glassware is only needed once the structure is valid.
+    from planner.lab.glassware import reading_count, standard_uncertainty_mL
+
+    piston = device.kind == "piston-pipette"
+    try:
+        readings = reading_count(device)
+        if device.kind != "tube":
+            standard_uncertainty_mL(device)
+    except InvalidInputError as exc:
+        # The core names its own argument; a piston pipette's size is written as range_uL.
+        key = {"device_class": "class", "": "volume_mL"}.get(exc.field, exc.field)
+        if piston and key == "volume_mL":
+            key = "range_uL"
+        hint = exc.hint
+        if "table" in exc.problem:
+            hint += "; or give the device's own tolerance_mL (from its certificate)"
+        _fail(f"{field}.{key}", exc.problem, exc.value if exc.has_value else _NO_VALUE, hint)
+    if readings > MAX_READINGS:
+        key = "step_uL" if piston else "division_mL"
+        _fail(
+            f"{field}.{key}",
+            f"{device.id} would have {readings} readings, more than the {MAX_READINGS} the "
+            "planner lists",
+            getattr(device, key),
+            f"give a coarser {key} (the reading resolution the bench really uses)",
+        )
 
 
 def _glassware(models: Sequence[_GlasswareModel]) -> tuple[Device, ...]:
@@ -945,7 +1084,15 @@ def _design(
                 vessel,
                 'write "tube" or a volumetric flask size in mL, e.g. "flask-25"',
             )
+        if flask_mL > _LARGEST_VOLUME_mL:
+            _fail(
+                "design.vessel",
+                f"larger than the largest flask the planner accepts ({_LARGEST_VOLUME_mL:g} mL)",
+                vessel,
+                'give the flask size in mL, e.g. "flask-25"',
+            )
         vessel = f"flask-{_format_size(flask_mL)}"
+        _check_flask(vessel, flask_mL, devices)
         total_mL = flask_mL if model.total_volume_mL is None else model.total_volume_mL
         if not math.isclose(total_mL, flask_mL, rel_tol=_SAME_VOLUME_RTOL):
             relation = "larger than" if total_mL > flask_mL else "different from"
@@ -994,6 +1141,81 @@ def _design(
     )
 
 
+def _check_flask(vessel: str, flask_mL: float, devices: Sequence[Device]) -> None:
+    """A flask vessel needs a tolerance: its [[glassware]] entry, or a table row for its size.
+
+    The design takes the flask from the shelf, or else a class A flask of that size from the
+    ISO 1042 table (planner.design.candidates.flask_device); a size the table lacks used to
+    fail deep in the design with a message naming ``volume_mL``.
+    """
+    from planner.lab.glassware import standard_uncertainty_mL
+
+    on_shelf = any(
+        device.kind == "volumetric-flask" and abs(device.volume_mL - flask_mL) < 1e-9
+        for device in devices
+    )
+    if on_shelf:
+        return  # its tolerance was checked with the [[glassware]] entry
+    try:
+        standard_uncertainty_mL(Device(kind="volumetric-flask", volume_mL=flask_mL))
+    except InvalidInputError as exc:
+        _fail(
+            "design.vessel",
+            f"no volumetric flask of this size on the shelf, and {exc.problem}",
+            vessel,
+            'list the flask in [[glassware]] (kind = "volumetric-flask", with its '
+            f"tolerance_mL), or use a size the table holds: {exc.hint}",
+        )
+
+
+def _check_species_use(reaction: Reaction, stocks: Sequence[Stock], limiting: str) -> None:
+    """Cross-checks of species against the design and the stocks (found by fuzzing)."""
+    if not any(sp.formula.get(limiting, 0) > 0 for sp in reaction.species):
+        # Without a product holding it, no mixture is coloured by the limiting reagent and
+        # the design had no coloured species to work with (an internal error before).
+        _fail(
+            "design.limiting",
+            "no product species holds the limiting reagent",
+            limiting,
+            "name a component that appears with a positive coefficient in some "
+            "reaction.species formula",
+        )
+    for index, sp in enumerate(reaction.species):
+        for name, coefficient in sp.formula.items():
+            if coefficient >= 0:
+                continue
+            # A species that releases a component (M(OH) written with -1 H+) is defined only
+            # where some of that component is present: with none, the model would need
+            # water's own equilibrium, which it does not have, and the solver gave a wrong
+            # balance. Every mixture holds it exactly when every stock does.
+            for position, stock in enumerate(stocks):
+                if name not in stock.contains_M:
+                    _fail(
+                        f"reaction.species[{index}].formula.{name}",
+                        f"a component with a negative coefficient must be in every stock, "
+                        f"and stocks[{position}] ({stock.id!r}) has none",
+                        coefficient,
+                        f"add {name!r} to every stock's contains_M (e.g. the medium they "
+                        "share), or write the species with positive coefficients",
+                    )
+
+
+def _check_combinations(devices: Sequence[Device], total_mL: float) -> None:
+    """The shelf's delivery combinations must be few enough to list (found by fuzzing)."""
+    from planner.lab.glassware import MAX_COMBINATIONS, combination_count
+
+    count = combination_count(devices, max_volume_mL=total_mL)
+    if count > MAX_COMBINATIONS:
+        _fail(
+            "glassware",
+            f"the shelf gives {count} ways to deliver volumes up to {_format_size(total_mL)} mL "
+            f"with up to three deliveries, more than the {MAX_COMBINATIONS} the planner lists",
+            len(devices),
+            "list fewer devices, or give graduated devices a coarser division_mL "
+            "(piston pipettes a coarser step_uL)",
+        )
+
+
 def _session(model: _SessionModel) -> SessionSettings:
     return SessionSettings(
         sections=model.sections,
@@ -1020,6 +1242,8 @@ def _build(data: Mapping[str, Any]) -> PlanInputs:
     design = _design(plan.design, reaction.components, stocks, devices)
     # After the design: a limiting reagent in no stock gets its own, more telling message.
     _check_supplied(reaction.components, stocks)
+    _check_species_use(reaction, stocks, design.limiting)
+    _check_combinations(devices, design.total_volume_mL)
     if instrument.cuvette_fill_mL > design.total_volume_mL:
         _fail(
             "instrument.cuvette_fill_mL",
@@ -1102,6 +1326,21 @@ def parse_plan(text: str, *, source: str = "<plan>") -> PlanInputs:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise _syntax_error(exc, text, source) from None
+    except RecursionError:
+        # Found by fuzzing: tomllib parses nested arrays and inline tables recursively, so
+        # some thousands of "[" exhaust the stack (an internal error before).
+        raise PlanFileError(
+            f"TOML in {source} is nested too deeply to read",
+            hint="a plan file nests lists and tables only a few levels deep",
+        ) from None
+    except ValueError as exc:
+        # Found by fuzzing: an integer of more than 4300 digits hits Python's limit on
+        # converting text to int (sys.get_int_max_str_digits), raised as a plain ValueError.
+        reason = "a number has too many digits" if "digits" in str(exc) else str(exc)
+        raise PlanFileError(
+            f"TOML in {source} cannot be read: {reason}",
+            hint="numbers in a plan file have a few digits; check for a pasted run of digits",
+        ) from None
     return plan_from_mapping(data, source=source)
 
 
@@ -1265,5 +1504,6 @@ def _syntax_error(exc: tomllib.TOMLDecodeError, text: str, source: str) -> PlanF
     lines = text.splitlines()
     problem = f"TOML syntax error in {source} at line {line}, column {column}: {reason}"
     if 1 <= line <= len(lines):
-        return PlanFileError(problem, value=lines[line - 1].strip(), hint=hint)
+        # Shortened like any value: a megabyte-long line went whole into the message before.
+        return PlanFileError(problem, value=_shown(lines[line - 1].strip()), hint=hint)
     return PlanFileError(problem, hint=hint)

@@ -1159,3 +1159,173 @@ def test_cuvette_fill_larger_than_total_volume():
     error = _error(data)
     _assert_names(error, "instrument.cuvette_fill_mL")
     assert "total_volume_mL" in str(error)
+
+
+# --- limits and cross-checks found by fuzzing (tests/test_fuzz.py) ---------------------------
+# Each of these inputs used to end in an internal error (exit 3), a hang, a memory error, or a
+# message naming a core argument instead of the plan key; the expected key paths are written
+# out by hand from IRON_PLAN.
+
+
+def _set(path: tuple[Any, ...], value: Any):
+    def edit(data: dict[str, Any]) -> None:
+        target = data
+        for part in path[:-1]:
+            target = target[part]
+        target[path[-1]] = value
+
+    return edit
+
+
+def _add_stocks(data: dict[str, Any]) -> None:
+    data["stocks"] += [{"id": f"extra-{i}", "contains_M": {"Fe3+": 0.01}} for i in range(10)]
+
+
+def _add_devices(data: dict[str, Any]) -> None:
+    data["glassware"] += [{"kind": "tube", "volume_mL": 20 + i} for i in range(37)]
+
+
+def _fine_shelf(data: dict[str, Any]) -> None:
+    # Twenty pipettes and eight finely read pipettes: some 2e7 ways to deliver up to 12 mL.
+    data["glassware"] = [
+        {"kind": "transfer-pipette", "volume_mL": 0.103 + 0.1 * i, "tolerance_mL": 0.001}
+        for i in range(20)
+    ] + [
+        {
+            "kind": "graduated-pipette",
+            "volume_mL": 5 + 0.25 * i,
+            "tolerance_mL": 0.02,
+            "division_mL": 0.0005,
+        }
+        for i in range(8)
+    ]
+
+
+def _untabled_piston(data: dict[str, Any]) -> None:
+    # A 700 µL piston pipette without its own tolerance: ISO 8655-2 has no such row.
+    data["glassware"][2]["range_uL"] = [100, 700]
+    del data["glassware"][2]["tolerance_mL"]
+
+
+def _limiting_in_no_species(data: dict[str, Any]) -> None:
+    data["reaction"]["components"].append("H+")
+    data["design"]["limiting"] = "H+"
+
+
+@pytest.mark.parametrize(
+    ("edit", "field", "words"),
+    [
+        (
+            _set(("reaction", "species", 1, "log_beta"), 1e308),
+            "reaction.species[1].log_beta",
+            "at most 60",
+        ),
+        (_set(("reaction", "species", 0, "K"), 1e-300), "reaction.species[0].K", "at least"),
+        (
+            _set(("reaction", "species", 1, "formula", "SCN-"), 400),
+            "reaction.species[1].formula.SCN-",
+            "at most 20",
+        ),
+        (
+            _set(("reaction", "species", 1, "formula", "SCN-"), -1),
+            "reaction.species[1].formula.SCN-",
+            "every stock",
+        ),
+        (_limiting_in_no_species, "design.limiting", "no product species"),
+        (_set(("glassware", 0, "volume_mL"), 7), "glassware[0].volume_mL", "ISO 648"),
+        (_set(("glassware", 1, "division_mL"), 1e-9), "glassware[1].division_mL", "readings"),
+        (_set(("glassware", 2, "step_uL"), 0.01), "glassware[2].step_uL", "readings"),
+        (_set(("glassware", 2, "range_uL"), [100, 1e308]), "glassware[2].range_uL[1]", "at most"),
+        (_untabled_piston, "glassware[2].range_uL", "ISO 8655"),
+        (_set(("glassware", 3, "volume_mL"), 1e-300), "glassware[3].volume_mL", "at least"),
+        (_set(("session", "dead_volume_mL"), 1e308), "session.dead_volume_mL", "at most"),
+        (
+            _set(("reaction", "species", 0, "epsilon"), 1e308),
+            "reaction.species[0].epsilon",
+            "at most",
+        ),
+        (
+            _set(("reaction", "component_epsilon"), {"Fe3+": 1e308}),
+            "reaction.component_epsilon.Fe3+",
+            "at most",
+        ),
+        (
+            _set(("stocks", 0, "solid", "formula"), "Xx9"),
+            "stocks[0].solid.formula",
+            "unknown element",
+        ),
+        (_add_stocks, "stocks", "at most 12"),
+        (_add_devices, "glassware", "at most 40"),
+        (_fine_shelf, "glassware", "ways to deliver"),
+    ],
+)
+def test_limits_found_by_fuzzing_name_the_key(edit, field, words):
+    data = _data()
+    edit(data)
+    error = _error(data)
+    _assert_names(error, field)
+    assert words in str(error)
+
+
+@pytest.mark.parametrize(
+    ("vessel", "words"),
+    [
+        ("flask-7", "no ISO 1042"),
+        ("flask-99999", "largest flask"),
+        ("flask-" + "9" * 400, "largest"),
+    ],
+)
+def test_flask_vessel_needs_a_tolerance_and_a_sane_size(vessel, words):
+    data = _data(COPPER_PLAN)
+    data["design"]["vessel"] = vessel
+    data["design"].pop("total_volume_mL", None)
+    error = _error(data)
+    _assert_names(error, "design.vessel")
+    assert words in str(error)
+
+
+def test_flask_vessel_of_an_odd_size_listed_with_its_tolerance_is_accepted():
+    data = _data(COPPER_PLAN)
+    data["design"]["vessel"] = "flask-30"
+    data["design"].pop("total_volume_mL", None)
+    data["glassware"].append({"kind": "volumetric-flask", "volume_mL": 30, "tolerance_mL": 0.05})
+    assert plan_from_mapping(data).design.total_volume_mL == 30.0
+
+
+@pytest.mark.parametrize(
+    ("text", "words"),
+    [
+        ("deep = " + "[" * 100_000 + "]" * 100_000, "nested too deeply"),
+        ("deep = " + "{a = " * 50_000 + "1" + "}" * 50_000, "nested too deeply"),
+        ("title = " + "7" * 5000, "too many digits"),
+    ],
+)
+def test_toml_the_reader_cannot_hold_is_a_plan_file_error(text, words):
+    with pytest.raises(PlanFileError, match=words):
+        parse_plan(text)
+
+
+def test_a_huge_unknown_key_is_shortened_in_the_message():
+    data = _data()
+    data["design"]["k" * 5000] = 1
+    error = _error(data)
+    assert error.field == "design." + "k" * 60 + "...(5000 characters)"
+    assert len(str(error)) < 2000
+
+
+def test_a_huge_line_with_a_syntax_error_is_shortened_in_the_message():
+    with pytest.raises(PlanFileError) as info:
+        parse_plan('title = "x"\n' + "= " + "x" * 100_000)
+    assert "line 2" in str(info.value)
+    assert len(str(info.value)) < 1000
+
+
+@pytest.mark.parametrize("name", ["X-", "X+"])
+def test_counter_ion_names_are_reserved_for_counter_ions(name):
+    # X- and X+ name the unnamed counter-ion that neutralises a stock; a component of that
+    # name silently took every stock's counter-ion as reagent (found by fuzzing).
+    data = _data()
+    data["reaction"]["components"][1] = name
+    error = _error(data)
+    _assert_names(error, "reaction.components[1]")
+    assert "reserved" in str(error)

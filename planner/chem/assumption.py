@@ -32,6 +32,19 @@ __all__ = ["PRACTICAL_FREE_EXCESS_M", "AssumptionCheck", "check_assumption", "mi
 #: constant refers to (common practice).
 PRACTICAL_FREE_EXCESS_M = 1.0
 
+# Accepted inputs, found by fuzzing to keep every result finite and right (K and the
+# tolerance as the plan file accepts them, planner.planfile). Beyond them the arithmetic
+# broke down: a tolerance of 5e-324 made K * tol underflow to 0 (ZeroDivisionError),
+# concentrations of 1e308 overflowed the quadratic root, K = 1e308 printed overflow
+# warnings, and a limiting total of 1e-300 underflowed its free part to 0, so a fully bound
+# reagent was reported as not bound at all.
+_K_LIMITS = (1e-60, 1e60)  # [L/mol]
+# [mol/L]: far beyond any solution (water itself is 55 mol/L), but a what-if check may ask
+# about excesses above the 20 mol/L a stock may hold; 1e6 keeps K * c within float range.
+_LARGEST_M = 1e6
+_SMALLEST_LIMITING_M = 1e-30  # [mol/L]: under one ion per cubic metre
+_SMALLEST_TOLERANCE = 1e-6  # [unitless]: a ppm is far below any photometric precision
+
 
 @dataclass(frozen=True, slots=True)
 class AssumptionCheck:
@@ -122,7 +135,8 @@ def check_assumption(
     Raises
     ------
     InvalidInputError
-        For K <= 0, a negative or non-finite concentration, or a tolerance outside (0, 1).
+        For K outside 1e-60 to 1e60 L/mol, an excess outside 0 to 1e6 mol/L, a limiting
+        total outside 1e-30 to 1e6 mol/L, a non-finite value, or a tolerance outside [1e-6, 1).
 
     Examples
     --------
@@ -131,31 +145,31 @@ def check_assumption(
     (0.907, 'insufficient', 0.5)
     """
     _require(
-        np.isfinite(K) and K > 0,
+        bool(np.isfinite(K)) and _K_LIMITS[0] <= K <= _K_LIMITS[1],
         "K",
         K,
-        "the formation constant must be > 0",
+        "the formation constant must be > 0 (from 1e-60 to 1e60)",
         "give K in L/mol, e.g. 98",
     )
     _require(
-        np.isfinite(excess_M) and excess_M >= 0,
+        bool(np.isfinite(excess_M)) and 0 <= excess_M <= _LARGEST_M,
         "excess",
         excess_M,
-        "the excess concentration must be >= 0",
+        "the excess concentration must be >= 0 (at most 1e6 mol/L)",
         "give the total concentration of the reagent in excess in mol/L, e.g. 0.1",
     )
     _require(
-        np.isfinite(limiting_M) and limiting_M > 0,
+        bool(np.isfinite(limiting_M)) and _SMALLEST_LIMITING_M <= limiting_M <= _LARGEST_M,
         "limiting",
         limiting_M,
-        "the limiting-reagent concentration must be > 0",
+        "the limiting-reagent concentration must be > 0 (from 1e-30 to 1e6 mol/L)",
         "give its total concentration in mol/L, e.g. 1.5e-4",
     )
     _require(
-        np.isfinite(tolerance) and 0 < tolerance < 1,
+        bool(np.isfinite(tolerance)) and _SMALLEST_TOLERANCE <= tolerance < 1,
         "tolerance",
         tolerance,
-        "the tolerance must lie strictly between 0 and 1",
+        "the tolerance must lie strictly between 0 and 1 (at least 1e-6)",
         "give the accepted relative error as a fraction, e.g. 0.02 for 2 %",
     )
     complex_M = float(one_to_one_complex_M(excess_M, limiting_M, K))

@@ -132,6 +132,30 @@ def _one_to_one_free(
     )
 
 
+def _one_to_one_log_free(
+    metal_total_M: NDArray[np.float64], ligand_total_M: NDArray[np.float64], K: float
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Natural logarithms of free M and free L of the 1:1 system (the root of
+    :func:`_one_to_one_free`), without its underflow.
+
+    The free amount of the component in deficit can fall below the smallest float when a
+    zero total's 1e-280 stand-in meets a large K (1e-280 / 1e60 = 1e-340): the root is then
+    0 and its logarithm -inf. Its logarithm, ln(2 T_b) - ln((1 + K d) + sqrt(...)), does not
+    underflow. The component in excess is small + d, and either d > 0 or the small root is
+    about sqrt(T_b / K), far from underflow, so its logarithm is taken directly.
+    """
+    small = np.minimum(metal_total_M, ligand_total_M)
+    excess = np.abs(metal_total_M - ligand_total_M)
+    linear = 1.0 + K * excess
+    ln_small = np.log(2.0 * small) - np.log(linear + np.sqrt(linear * linear + 4.0 * K * small))
+    ln_large = np.log(np.exp(ln_small) + excess)
+    metal_is_small = metal_total_M <= ligand_total_M
+    return (
+        np.where(metal_is_small, ln_small, ln_large),
+        np.where(metal_is_small, ln_large, ln_small),
+    )
+
+
 def bound_fraction(
     species_M: NDArray[np.float64],
     stoichiometry: NDArray[np.float64],
@@ -314,7 +338,13 @@ def _newton(
     iterations = 0
     while iterations < _MAX_NEWTON:
         gradient = free + matrix.T @ species - ta
-        done = np.all(np.abs(gradient) <= _RTOL * ta, axis=0)
+        # Converged when each residual is small against the largest terms of its balance:
+        # with positive coefficients those sum to the total T, but a species with a negative
+        # coefficient (M(OH) written with -1 H+) can hold far more than T of the component,
+        # and then a residual of 1e-12 T is below the rounding of those terms (it never came
+        # within reach and the solver reported non-convergence).
+        scale = np.maximum(ta, free + np.abs(matrix.T) @ species)
+        done = np.all(np.abs(gradient) <= _RTOL * scale, axis=0)
         if np.any(done):
             x[:, active[done]] = xa[:, done]
             keep = ~done
@@ -386,9 +416,7 @@ def _start(
     best = max(one_to_one, key=lambda i: logs[i])
     first, second = np.flatnonzero(matrix[best])
     x = np.log(totals)
-    free_first, free_second = _one_to_one_free(totals[first], totals[second], 10.0 ** logs[best])
-    x[first] = np.log(free_first)
-    x[second] = np.log(free_second)
+    x[first], x[second] = _one_to_one_log_free(totals[first], totals[second], 10.0 ** logs[best])
     # Two sweeps pull the start back when another species (a strong 1:2, say) dominates.
     return _pcf_start(totals, matrix, logs * _LN10, x, sweeps=2)
 
@@ -462,8 +490,8 @@ def solve_equilibrium(
     ln_beta = logs * _LN10
 
     if _is_one_to_one(matrix):
-        free_metal, free_ligand = _one_to_one_free(work[:, 0], work[:, 1], 10.0 ** logs[0])
-        x = np.log(np.stack([free_metal, free_ligand], axis=1))
+        ln_metal, ln_ligand = _one_to_one_log_free(work[:, 0], work[:, 1], 10.0 ** logs[0])
+        x = np.stack([ln_metal, ln_ligand], axis=1)
         iterations = 0
     else:
         work_t = np.ascontiguousarray(work.T)

@@ -7,6 +7,8 @@ failed checks that say which constraint binds and what would fix it.
 
 from __future__ import annotations
 
+import dataclasses
+import math
 from collections.abc import Sequence
 
 import numpy as np
@@ -119,7 +121,23 @@ def _prediction(
             for n, index in enumerate(tests, start=1)
         ),
     ]
-    return prediction_from(propagate(inputs, chosen))
+    # A test whose predicted product equals a reagent's total makes the usual 1:1 expression
+    # divide by zero: that analysis then has no prediction to offer (the exact fit still
+    # does), so the plan carries none rather than an infinity.
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        prediction = prediction_from(propagate(inputs, chosen))
+    return prediction if _all_finite(prediction) else None
+
+
+def _all_finite(value: object) -> bool:
+    """True when every number in a (nested) dataclass, tuple or float is finite."""
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return all(_all_finite(getattr(value, f.name)) for f in dataclasses.fields(value))
+    if isinstance(value, (tuple, list)):
+        return all(_all_finite(v) for v in value)
+    if isinstance(value, float):
+        return math.isfinite(value)
+    return True
 
 
 def _feasibility(inputs: PlanInputs, candidates: CandidateSet, n_standards: int) -> list[Check]:
@@ -234,13 +252,18 @@ def design_plan(
     checks = list(_feasibility(inputs, candidates, len(standards.standards)))
     checks.extend(verify_plan(inputs, mixtures, totals))
     prediction = _prediction(inputs, candidates, standards.blank, standards.standards, tests.tests)
-    notes = (
+    notes = [
         "Order of addition: in tubes the diluent first, then the excess reagent, the limiting "
         "reagent last; in flasks the reagents first, then the diluent to the mark "
         "(common practice).",
-        f"Test mixtures chosen to minimise the predicted u(K)/K of the mean K "
-        f"({100 * tests.objective:.2f} %) among {tests.eligible} eligible mixtures.",
-    )
+    ]
+    if np.isfinite(tests.objective):
+        notes.append(
+            f"Test mixtures chosen to minimise the predicted u(K)/K of the mean K "
+            f"({100 * tests.objective:.2f} %) among {tests.eligible} eligible mixtures."
+        )
+    else:
+        notes.append("No test mixture met the window and bound-fraction constraints.")
     return Plan(
         inputs=inputs,
         mixtures=tuple(mixtures),
@@ -248,6 +271,6 @@ def design_plan(
         preparations=preparations(inputs, totals),
         checks=tuple(checks),
         prediction=prediction,
-        notes=notes,
+        notes=tuple(notes),
         design_objective=tests.objective if np.isfinite(tests.objective) else None,
     )

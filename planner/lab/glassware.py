@@ -55,17 +55,20 @@ from planner.errors import InvalidInputError
 from planner.inputs import DEVICE_KINDS, Device
 
 __all__ = [
+    "MAX_COMBINATIONS",
     "TOLERANCE_SOURCES",
     "ASTM_TOLERANCES_mL",
     "DeliverableVolume",
     "ISO_4788_DIVISIONS_mL",
     "ISO_8655_2_ERRORS_uL",
     "ISO_TOLERANCES_mL",
+    "combination_count",
     "combination_uncertainty_mL",
     "deliverable_volumes",
     "devices_by_id",
     "is_deliverable",
     "piston_errors_uL",
+    "reading_count",
     "single_volumes_mL",
     "standard_uncertainty_mL",
     "table_tolerance_mL",
@@ -92,6 +95,11 @@ _CLASSED_KINDS = frozenset(
     }
 )
 _DEVICE_CLASSES = ("A", "B")
+
+#: Most (option, volume) pairs :func:`deliverable_volumes` lists. Thirty catalogue devices
+#: give at most about 1.2 million; 1.6e7 took 2.7 s and 660 MB, and 9e7 (twenty pipettes
+#: with twenty finely read graded devices, found by fuzzing) 25 s and 5 GB.
+MAX_COMBINATIONS = 5_000_000
 
 _V = TypeVar("_V")
 
@@ -779,6 +787,29 @@ def _piston_grid(device: Device) -> _Grid:
     return _Grid(low_pL + first_k * step_pL, step_pL, count)
 
 
+def reading_count(device: Device) -> int:
+    """How many volumes one use of the device can deliver, without listing them.
+
+    Parameters
+    ----------
+    device
+        Any glassware kind.
+
+    Returns
+    -------
+    int
+        ``len(single_volumes_mL(device))`` [unitless]: 1 for a fixed-volume device, 0 for a
+        vessel. Cheap for any division or step, so a plan reader can refuse a grid too fine
+        to list before anything allocates it.
+
+    Raises
+    ------
+    InvalidInputError
+        As :func:`single_volumes_mL`.
+    """
+    return _grid(device).count
+
+
 def single_volumes_mL(device: Device) -> NDArray[np.float64]:
     """Every volume one use of the device can deliver, ascending [mL].
 
@@ -914,6 +945,65 @@ def _fixed_multisets(
     return found
 
 
+def _templates(glassware: Sequence[Device], max_deliveries: int, high_pL: int) -> list[_Template]:
+    """Every option shape of :func:`deliverable_volumes`, best first (see its Notes)."""
+    fixed: list[tuple[str, int, float]] = []
+    graded: list[tuple[str, _Grid, float]] = []
+    for device_id, device in devices_by_id(glassware).items():
+        grid = _grid(device)
+        if grid.count == 0:
+            continue
+        u2 = standard_uncertainty_mL(device) ** 2
+        if grid.count == 1:
+            fixed.append((device_id, grid.first_pL, u2))
+        else:
+            graded.append((device_id, grid, u2))
+    # Largest fixed volume first inside an option (7 mL reads "5 mL + 2 mL").
+    fixed.sort(key=lambda item: (-item[1], item[0]))
+
+    templates: list[_Template] = []
+    for ids, total_pL, u2 in _fixed_multisets(fixed, max_deliveries, high_pL):
+        if ids:
+            templates.append(_Template(ids, total_pL, None, math.sqrt(u2)))
+        if len(ids) < max_deliveries:
+            for device_id, grid, grid_u2 in graded:
+                if total_pL + grid.first_pL <= high_pL:
+                    option = (*ids, device_id)
+                    templates.append(_Template(option, total_pL, grid, math.sqrt(u2 + grid_u2)))
+    # Rounding u to 1e-12 mL keeps ties that differ only by float summation order as ties.
+    templates.sort(key=lambda t: (len(t.option), round(t.u_mL, 12), t.option))
+
+    return templates
+
+
+def _entry_count(templates: Sequence[_Template]) -> int:
+    """Volumes the templates list before duplicates merge (an upper bound on the work)."""
+    return sum(1 if t.graded is None else t.graded.count for t in templates)
+
+
+def combination_count(
+    glassware: Sequence[Device], *, max_volume_mL: float, max_deliveries: int = 3
+) -> int:
+    """How many (option, volume) pairs :func:`deliverable_volumes` would list, cheaply.
+
+    Parameters
+    ----------
+    glassware
+        The shelf.
+    max_volume_mL
+        Largest volume wanted [mL].
+    max_deliveries
+        Most deliveries in one option [unitless].
+
+    Returns
+    -------
+    int
+        The number of pairs before equal volumes merge [unitless]; ``deliverable_volumes``
+        refuses a shelf with more than :data:`MAX_COMBINATIONS`.
+    """
+    return _entry_count(_templates(glassware, max_deliveries, _to_pL(max_volume_mL) + 1))
+
+
 def deliverable_volumes(
     glassware: Sequence[Device],
     *,
@@ -979,31 +1069,20 @@ def deliverable_volumes(
     if high_pL < low_pL:
         return ()
 
-    fixed: list[tuple[str, int, float]] = []
-    graded: list[tuple[str, _Grid, float]] = []
-    for device_id, device in devices_by_id(glassware).items():
-        grid = _grid(device)
-        if grid.count == 0:
-            continue
-        u2 = standard_uncertainty_mL(device) ** 2
-        if grid.count == 1:
-            fixed.append((device_id, grid.first_pL, u2))
-        else:
-            graded.append((device_id, grid, u2))
-    # Largest fixed volume first inside an option (7 mL reads "5 mL + 2 mL").
-    fixed.sort(key=lambda item: (-item[1], item[0]))
-
-    templates: list[_Template] = []
-    for ids, total_pL, u2 in _fixed_multisets(fixed, max_deliveries, high_pL):
-        if ids:
-            templates.append(_Template(ids, total_pL, None, math.sqrt(u2)))
-        if len(ids) < max_deliveries:
-            for device_id, grid, grid_u2 in graded:
-                if total_pL + grid.first_pL <= high_pL:
-                    option = (*ids, device_id)
-                    templates.append(_Template(option, total_pL, grid, math.sqrt(u2 + grid_u2)))
-    # Rounding u to 1e-12 mL keeps ties that differ only by float summation order as ties.
-    templates.sort(key=lambda t: (len(t.option), round(t.u_mL, 12), t.option))
+    templates = _templates(glassware, max_deliveries, high_pL)
+    entries = _entry_count(templates)
+    if entries > MAX_COMBINATIONS:
+        # Guard found by fuzzing: twenty pipettes and twenty finely read graded devices gave
+        # about 1e8 combinations (25 s, 5 GB); refuse before allocating them.
+        raise InvalidInputError(
+            f"the shelf gives {entries} ways to deliver volumes up to "
+            f"{_format_number(max_volume_mL)} mL, more than the {MAX_COMBINATIONS} the "
+            "planner lists",
+            field="glassware",
+            value=len(glassware),
+            hint="list fewer devices, or give graduated devices a coarser division_mL "
+            "(piston pipettes a coarser step_uL)",
+        )
 
     volume_parts: list[NDArray[np.int64]] = []
     rank_parts: list[NDArray[np.int64]] = []

@@ -245,7 +245,7 @@ def check_output_target(target: Path, *, force: bool) -> None:
     OutputError
         ``target`` is a file, or a non-empty folder and ``force`` is false.
     """
-    _check_target(Path(target), force=force)
+    _check_target(Path(os.path.normpath(os.path.abspath(target))), force=force)
 
 
 def write_output_folder(target: Path, files: Mapping[str, bytes | str], *, force: bool) -> None:
@@ -274,7 +274,8 @@ def write_output_folder(target: Path, files: Mapping[str, bytes | str], *, force
         contains ``..``, a drive or a backslash, or collides with another; the folder could not
         be written (the message names the folder).
     """
-    target = Path(target)
+    # Lexically normalised, so "sub/x/../named" creates only sub/named (no empty sub/x).
+    target = Path(os.path.normpath(os.path.abspath(target)))
     contents = _check_names(files)
     _check_target(target, force=force)
     parent = target.parent

@@ -53,6 +53,12 @@ def test_one_percent_at_k_near_100_is_out_of_practical_reach():
         ({"tolerance": 0.0}, "tolerance"),
         ({"tolerance": 1.0}, "tolerance"),
         ({"tolerance": float("nan")}, "tolerance"),
+        # Found by fuzzing: each of these used to end in an internal error or a wrong answer.
+        ({"tolerance": 5e-324}, "tolerance"),  # K * tol underflowed: ZeroDivisionError
+        ({"excess_M": 1e308, "limiting_M": 1e308}, "excess"),  # the root overflowed
+        ({"K": 1e308}, "K"),  # overflow warnings
+        ({"K": float("inf")}, "K"),
+        ({"limiting_M": 1e-300}, "limiting"),  # its free part underflowed: "not bound"
     ],
 )
 def test_invalid_arguments_name_the_field(kwargs, field):
@@ -83,3 +89,13 @@ def test_bound_fraction_rises_with_excess(k, limiting, low, factor):
     higher = check_assumption(k, low * factor, limiting).bound_fraction
     assert 0.0 <= lower <= 1.0
     assert higher >= lower
+
+
+def test_extremes_of_the_accepted_range_stay_finite_and_right():
+    # K = 1e60 L/mol, 1e6 mol/L excess, 1e-30 mol/L limiting: K[M]free is about 1e66, so by
+    # equation (1) the limiting reagent is bound to within 1e-66, i.e. exactly 1 in floats;
+    # the smallest free excess for tol = 1e-6 is (1 - 1e-6)/(1e60 * 1e-6) = 9.99999e-55.
+    result = check_assumption(1e60, 1e6, 1e-30, 1e-6)
+    assert result.bound_fraction == 1.0
+    assert result.verdict == "ok"
+    assert result.min_free_excess_M == pytest.approx(9.99999e-55, rel=1e-12)

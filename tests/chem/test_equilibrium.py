@@ -172,3 +172,37 @@ def test_vectorised_batch_spanning_the_whole_range():
             solved = solve_equilibrium(totals, ONE_AND_TWO, log_beta)
         recomputed = solved.free_M + solved.species_M @ ONE_AND_TWO
         assert np.max(np.abs(recomputed - totals) / totals) <= 1e-10, log_beta
+
+
+# --- regressions found by fuzzing (tests/test_fuzz.py) ---------------------------------------
+
+
+@pytest.mark.parametrize("matrix", [ONE_TO_ONE, ONE_AND_TWO], ids=["1:1 closed form", "Newton"])
+def test_zero_total_with_a_huge_constant_gives_exact_zeros(matrix):
+    # log beta 60: the free deficit component of a zero total's 1e-280 stand-in is about
+    # 1e-341, below the smallest float; its logarithm was -inf ("divide by zero in log",
+    # an internal error under warnings-as-errors). Expected: the blank rule, exact zeros.
+    logs = [60.0] if matrix is ONE_TO_ONE else [60.0, 61.0]
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        solved = solve_equilibrium([[0.4, 0.0], [0.0, 6e-4]], matrix, logs)
+    assert solved.free_M[0, 1] == 0.0
+    assert solved.free_M[1, 0] == 0.0
+    assert np.all(solved.species_M == 0.0)
+    assert solved.free_M[0, 0] == pytest.approx(0.4, rel=1e-14)
+    assert solved.free_M[1, 1] == pytest.approx(6e-4, rel=1e-14)
+
+
+def test_negative_coefficient_species_far_above_the_total_converges():
+    # M + L = ML and M - L (a species releasing L, as M(OH) releases H+): with T_L = 1e-12 and
+    # T_M = 0.4 the released L (about 0.38 mol/L) dwarfs T_L, and a residual of 1e-12 T_L is
+    # below the rounding of the terms, so the solver used to report non-convergence. The
+    # balance must hold to rounding of its largest terms: |c_L + s1 - s2 - T_L| <= 1e-12 x 0.4.
+    matrix = np.array([[1.0, 1.0], [1.0, -1.0]])
+    totals = np.array([[0.4, 1e-12]])
+    solved = solve_equilibrium(totals, matrix, [1.99, 2.8363])
+    free_m, free_l = solved.free_M[0]
+    s1, s2 = solved.species_M[0]
+    assert free_m + s1 + s2 == pytest.approx(0.4, rel=1e-12)
+    assert abs(free_l + s1 - s2 - 1e-12) <= 1e-12 * 0.4
+    assert s2 == pytest.approx(10**2.8363 * free_m / free_l, rel=1e-12)

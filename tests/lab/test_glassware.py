@@ -17,15 +17,18 @@ from hypothesis import strategies as st
 from planner.errors import InvalidInputError
 from planner.inputs import Device
 from planner.lab.glassware import (
+    MAX_COMBINATIONS,
     ASTM_TOLERANCES_mL,
     DeliverableVolume,
     ISO_8655_2_ERRORS_uL,
     ISO_TOLERANCES_mL,
+    combination_count,
     combination_uncertainty_mL,
     deliverable_volumes,
     devices_by_id,
     is_deliverable,
     piston_errors_uL,
+    reading_count,
     single_volumes_mL,
     standard_uncertainty_mL,
     table_tolerance_mL,
@@ -566,3 +569,48 @@ def test_is_deliverable_agrees_with_enumeration(shelf, max_volume_mL, max_delive
     # Half a reading off the grid is never deliverable with the same option.
     nudge_mL = 0.5 * (1e-4 if n_graded else 1e-3)
     assert not is_deliverable(shelf, volume_mL + nudge_mL, option)
+
+
+# --- limits found by fuzzing (tests/test_fuzz.py) --------------------------------------------
+
+
+def test_reading_count_matches_the_listed_volumes():
+    for device in (*TARGET_SHELF, Device(kind="tube", volume_mL=10.0)):
+        assert reading_count(device) == len(single_volumes_mL(device))
+    # 25 mL buret read to 0.01 mL from 0.10 mL: 2491 readings (0.10, 0.11, ..., 25.00).
+    assert reading_count(BURET_25) == 2491
+    # Cheap for any division: 1e-9 mL would need 25e9 readings (hundreds of GB to list).
+    fine = Device(kind="buret", volume_mL=25.0, division_mL=1e-9)
+    assert reading_count(fine) == 24_900_000_001
+
+
+def test_combination_count_bounds_deliverable_volumes():
+    count = combination_count(TARGET_SHELF, max_volume_mL=10.0)
+    listed = deliverable_volumes(TARGET_SHELF, max_volume_mL=10.0)
+    options = sum(len(entry.options) for entry in listed)
+    # Every listed option is one counted pair; pairs beyond 10 mL are counted, not listed.
+    assert options <= count
+    assert count < MAX_COMBINATIONS
+
+
+def test_too_many_combinations_are_refused_before_listing():
+    # Twenty pipettes and eight finely read graduated pipettes: about 2e7 pairs up to 12 mL,
+    # which took seconds and gigabytes before the guard.
+    shelf = [
+        Device(kind="transfer-pipette", volume_mL=0.103 + 0.1 * i, tolerance_mL=0.001)
+        for i in range(20)
+    ] + [
+        Device(
+            kind="graduated-pipette",
+            volume_mL=5 + 0.25 * i,
+            tolerance_mL=0.02,
+            division_mL=0.0005,
+        )
+        for i in range(8)
+    ]
+    assert combination_count(shelf, max_volume_mL=12.0) > MAX_COMBINATIONS
+    started = time.perf_counter()
+    with pytest.raises(InvalidInputError, match="ways to deliver") as info:
+        deliverable_volumes(shelf, max_volume_mL=12.0)
+    assert info.value.field == "glassware"
+    assert time.perf_counter() - started < 1.0

@@ -1,0 +1,24 @@
+"""Hypothesis settings profiles for the whole test suite.
+
+``ci`` (the default) is the bounded profile CI runs: 100 examples per property unless a test
+asks for its own number. ``long`` gives every property twenty times as many examples, for a
+deeper search before a release::
+
+    HYPOTHESIS_PROFILE=long /work/venv/bin/pytest tests/test_fuzz.py
+
+Tests that set their own example count scale it with :func:`tests.strategies.budget`, so
+the profile decides the depth everywhere.
+"""
+
+from __future__ import annotations
+
+import os
+
+from hypothesis import settings
+
+from tests.strategies import CI_EXAMPLES
+
+# print_blob: a failure prints the exact example to replay with @reproduce_failure.
+settings.register_profile("ci", max_examples=CI_EXAMPLES, print_blob=True)
+settings.register_profile("long", max_examples=20 * CI_EXAMPLES, print_blob=True)
+settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci"))

@@ -1,0 +1,538 @@
+"""Fuzzing ``planner plan FILE --format json`` with malformed and extreme plan files.
+
+Two promises are tested through the command line (typer's CliRunner on planner.cli.app):
+
+- a plan file the planner cannot use exits 2 with a message on stderr, never a traceback,
+  and when the fault sits in one key the message begins with that key's path
+  (``error: stocks[1].contains_M.Fe3+: ...``);
+- an extreme but valid plan (K from 1e-2 to 1e12 L/mol, stocks from 1e-8 to 5 mol/L, one
+  device or thirty) either plans (exit 0) or fails named checks (exit 1), never exits 3
+  (internal error), and its JSON holds no NaN or infinity anywhere.
+
+Plans are drawn from valid pieces by :mod:`tests.strategies` and then broken one fault at a
+time, so each example knows which key is at fault. Every plan here is invented for the tests.
+
+Example counts follow the hypothesis profile (tests/conftest.py). CI runs the bounded
+``ci`` profile, about 2100 examples in all; the long profile runs twenty times as many::
+
+    HYPOTHESIS_PROFILE=long /work/venv/bin/pytest tests/test_fuzz.py
+"""
+
+from __future__ import annotations
+
+import copy
+import json
+import math
+import re
+import tomllib
+from pathlib import Path
+from typing import Any
+
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from typer.testing import CliRunner
+
+from planner.cli import app
+from tests.strategies import (
+    budget,
+    get_at,
+    key_paths,
+    path_text,
+    plan_dicts,
+    set_at,
+    toml_text,
+)
+
+runner = CliRunner()
+ROOT = Path(__file__).resolve().parents[1]
+
+# Every key a plan file knows, in any table (DESIGN.md section 4 and docs/plan-file.md); an
+# "unknown key" drawn by a test must not be one of them.
+KNOWN_KEYS = frozenset(
+    " ".join(
+        (
+            "title reaction instrument stocks glassware design session temperature_C",
+            "ionic_strength_M components species component_epsilon name formula log_beta K",
+            "epsilon wavelength_nm path_length_cm absorbance_window absorbance_sd stray_light",
+            "cuvette_fill_mL id contains_M relative_uncertainty available_mL solid diluent",
+            "purity provides kind volume_mL class count range_uL step_uL division_mL",
+            "min_delivery_mL tolerance_mL standards tests limiting assumption_tolerance vessel",
+            "total_volume_mL bound_fraction_span bound_fraction_range ionic_strength_spread",
+            "blanks sections benches_per_section replicates margin dead_volume_mL",
+        )
+    ).split()
+)
+NON_FINITE_WORD = re.compile(r"(?i)\b(nan|inf|infinity)\b")
+# Whole CLI runs take tens of milliseconds to a second, and plans are big examples.
+FUZZ = {
+    "deadline": None,
+    "suppress_health_check": [HealthCheck.too_slow, HealthCheck.data_too_large],
+}
+
+
+@pytest.fixture(scope="module")
+def plan_path(tmp_path_factory):
+    """One file, rewritten by every example (hypothesis forbids function-scoped fixtures)."""
+    return tmp_path_factory.mktemp("fuzz") / "plan.toml"
+
+
+def run_plan(path: Path, content: str | bytes):
+    if isinstance(content, str):
+        path.write_text(content, encoding="utf-8")
+    else:
+        path.write_bytes(content)
+    # catch_exceptions=False: an exception escaping the CLI fails the test loudly instead of
+    # being folded into exit code 1.
+    return runner.invoke(app, ["plan", str(path), "--format", "json"], catch_exceptions=False)
+
+
+def squeeze(text: str) -> str:
+    """Text without whitespace: rich wraps long messages at the terminal width."""
+    return re.sub(r"\s+", "", text)
+
+
+def assert_no_traceback(result) -> None:
+    # Exit 3 first: its traceback (the bug's location) is then shown in the failure.
+    assert result.exit_code != 3, result.stderr[-3000:]
+    assert "Traceback" not in result.stdout
+    assert "Traceback" not in result.stderr
+
+
+def assert_input_error(result, *paths: str) -> None:
+    """Exit 2, nothing on stdout, and (when paths are given) the message starts with one."""
+    assert_no_traceback(result)
+    assert result.exit_code == 2, (result.exit_code, result.stderr[-2000:])
+    assert result.stdout == ""
+    message = squeeze(result.stderr)
+    assert message.startswith("error:"), result.stderr
+    if paths:
+        heads = [squeeze(f"error: {path}:") for path in paths]
+        assert any(message.startswith(head) for head in heads), (paths, result.stderr[:2000])
+
+
+def _reject_constant(name: str) -> Any:
+    raise AssertionError(f"the JSON holds the non-finite constant {name}")
+
+
+def assert_finite_document(document: Any, *, words: bool, where: str = "") -> None:
+    """Every number of the document is finite; with ``words``, no text says nan or inf."""
+    if isinstance(document, dict):
+        for key, value in document.items():
+            # The inputs block repeats the plan's own text, which may be anything.
+            check_words = words and key != "inputs"
+            assert_finite_document(value, words=check_words, where=f"{where}.{key}")
+    elif isinstance(document, list):
+        for index, value in enumerate(document):
+            assert_finite_document(value, words=words, where=f"{where}[{index}]")
+    elif isinstance(document, float):
+        assert math.isfinite(document), where
+    elif isinstance(document, str) and words:
+        assert not NON_FINITE_WORD.search(document), (where, document)
+
+
+def assert_plans_or_fails_named_checks(result, *, words: bool = True) -> dict[str, Any]:
+    """Exit 0 or 1, one JSON document, exit 1 exactly when a named check fails."""
+    assert_no_traceback(result)
+    assert result.exit_code in (0, 1), (result.exit_code, result.stderr[-2000:])
+    document = json.loads(result.stdout, parse_constant=_reject_constant)
+    assert_finite_document(document, words=words)
+    assert document["schema"] == "planner.plan/1"
+    checks = document["checks"]
+    for check in checks:
+        assert isinstance(check["name"], str)
+        assert check["name"]
+        assert check["status"] in ("pass", "warn", "fail")
+    failed = [check["name"] for check in checks if check["status"] == "fail"]
+    assert bool(failed) == (result.exit_code == 1), (result.exit_code, failed)
+    return document
+
+
+def doc_paths(*documents: Any) -> list[str]:
+    """Every key path of the documents, longest first (so the most specific one matches)."""
+    found = {path_text(path) for document in documents for path, _ in key_paths(document)}
+    return sorted(found, key=len, reverse=True)
+
+
+@settings(max_examples=budget(100), **FUZZ)
+@given(plan=plan_dicts())
+def test_the_toml_writer_round_trips(plan):
+    # The fuzz tests read their faults from the dicts, so the text must say exactly that.
+    assert tomllib.loads(toml_text(plan)) == plan
+
+
+# ---------------------------------------------------------------------------------------------
+# (a) Malformed plan files
+# ---------------------------------------------------------------------------------------------
+
+# Lines that can never be valid TOML, whatever precedes them (key names are not plan keys).
+JUNK_LINES = (
+    "= 1",
+    "[",
+    "[[stocks]",
+    "[design",
+    "junk_key =",
+    'junk_key = "unterminated',
+    "junk_key = [1, 2",
+    "junk_key = {a = 1",
+    "junk_key = 1 2",
+    "junk_key = tru",
+    "junk_key = 01",
+    "junk_key = 1__0",
+    "junk_key = 1.",
+    "junk_key = .5",
+    "junk_key = 0x",
+    "junk_key = 1979-13-45",
+    "junk_key = 'single\nquoted'",
+    'junk key = "spaces need quotes"',
+    "junk_key = \x00",
+    "junk_key = '''",
+    "a.b = 1\na = 2",
+    '"unterminated',
+    "junk_key = { a = 1, a = 2 }",
+    "junk_key = [1,,2]",
+)
+
+
+@st.composite
+def broken_toml(draw) -> str | bytes:
+    """A valid plan's text made unreadable in one place."""
+    text = toml_text(draw(plan_dicts(max_devices=6)))
+    lines = text.splitlines()
+    how = draw(st.sampled_from(("junk", "cut", "duplicate", "bytes")))
+    if how == "junk":
+        at = draw(st.integers(0, len(lines)))
+        lines.insert(at, draw(st.sampled_from(JUNK_LINES)))
+        return "\n".join(lines) + "\n"
+    if how == "cut":
+        # Cut the file right after an opening quote, bracket or brace: it ends inside it.
+        openings = [m.end() for m in re.finditer(r'= (\[|\{|")', text)]
+        return text[: draw(st.sampled_from(openings))]
+    if how == "duplicate":
+        # A key given twice in one table is a TOML error (not a plan-file one).
+        assignments = [i for i, line in enumerate(lines) if re.match(r"^\S+ = ", line)]
+        at = draw(st.sampled_from(assignments))
+        lines.insert(at + 1, lines[at])
+        return "\n".join(lines) + "\n"
+    # Bytes that are not UTF-8 (a Latin-1 file, a stray binary blob).
+    data = text.encode("utf-8")
+    at = draw(st.integers(0, len(data)))
+    return (
+        data[:at] + draw(st.sampled_from((b"\xff", b"\xc3\x28", b"\xe9t\xe9", b"\x80"))) + data[at:]
+    )
+
+
+@settings(max_examples=budget(300), **FUZZ)
+@given(content=broken_toml())
+def test_broken_toml_exits_2_with_a_location(plan_path, content):
+    result = run_plan(plan_path, content)
+    assert_input_error(result)
+    message = squeeze(result.stderr)
+    if isinstance(content, bytes):
+        assert "isnotUTF-8text" in message, result.stderr
+    else:
+        assert "TOMLsyntaxerror" in message, result.stderr
+        assert "atline" in message or "attheendofthefile" in message, result.stderr
+
+
+def _required_paths(plan: dict[str, Any]) -> list[tuple[tuple[str | int, ...], str]]:
+    """(key path to delete, path the message must name) for every key the plan cannot lack."""
+    found: list[tuple[tuple[str | int, ...], str]] = [
+        ((key,), key) for key in ("reaction", "instrument", "stocks", "glassware", "design")
+    ]
+    found += [
+        (("reaction", key), f"reaction.{key}")
+        for key in ("ionic_strength_M", "components", "species")
+    ]
+    for index, species in enumerate(plan["reaction"]["species"]):
+        base = ("reaction", "species", index)
+        found += [((*base, "name"), path_text((*base, "name")))]
+        found += [((*base, "formula"), path_text((*base, "formula")))]
+        constant = "K" if "K" in species else "log_beta"
+        found.append(((*base, constant), path_text(base)))  # "needs log_beta or K"
+    found.append((("instrument", "wavelength_nm"), "instrument.wavelength_nm"))
+    for index, stock in enumerate(plan["stocks"]):
+        found.append((("stocks", index, "id"), f"stocks[{index}].id"))
+        if not stock.get("diluent"):
+            found.append((("stocks", index, "contains_M"), f"stocks[{index}].contains_M"))
+    for index, device in enumerate(plan["glassware"]):
+        found.append((("glassware", index, "kind"), f"glassware[{index}].kind"))
+        keys = ("range_uL", "step_uL") if device["kind"] == "piston-pipette" else ("volume_mL",)
+        found += [(("glassware", index, key), f"glassware[{index}].{key}") for key in keys]
+    found.append((("design", "limiting"), "design.limiting"))
+    if plan["design"]["vessel"] == "tube":
+        found.append((("design", "total_volume_mL"), "design.total_volume_mL"))
+    return found
+
+
+@settings(max_examples=budget(200), **FUZZ)
+@given(plan=plan_dicts(max_devices=6), data=st.data())
+def test_missing_required_key_names_it(plan_path, plan, data):
+    path, named = data.draw(st.sampled_from(_required_paths(plan)))
+    del get_at(plan, path[:-1])[path[-1]]
+    result = run_plan(plan_path, toml_text(plan))
+    assert_input_error(result, named)
+
+
+# Tables whose keys the plan file defines (contains_M and formula take any ion name).
+def _model_tables(plan: dict[str, Any]) -> list[tuple[str | int, ...]]:
+    tables: list[tuple[str | int, ...]] = [(), ("reaction",), ("instrument",), ("design",)]
+    tables += [("reaction", "species", i) for i in range(len(plan["reaction"]["species"]))]
+    tables += [("stocks", i) for i in range(len(plan["stocks"]))]
+    tables += [("stocks", i, "solid") for i, s in enumerate(plan["stocks"]) if "solid" in s]
+    tables += [("glassware", i) for i in range(len(plan["glassware"]))]
+    if "session" in plan:
+        tables.append(("session",))
+    return tables
+
+
+NAMES = st.text(
+    alphabet=st.characters(exclude_categories=("Cs", "Cc", "Zs", "Zl", "Zp")),
+    min_size=1,
+    max_size=30,
+)
+SCALARS = st.one_of(
+    st.integers(-5, 5), st.floats(-10, 10), st.booleans(), NAMES, st.lists(st.integers(0, 3))
+)
+
+
+@settings(max_examples=budget(300), **FUZZ)
+@given(plan=plan_dicts(max_devices=6), data=st.data())
+def test_unknown_key_names_it(plan_path, plan, data):
+    table_path = data.draw(st.sampled_from(_model_tables(plan)))
+    table = get_at(plan, table_path)
+    if data.draw(st.booleans()) and table:
+        # A typo of a key the table has: one character inserted.
+        existing = data.draw(st.sampled_from(sorted(table)))
+        at = data.draw(st.integers(0, len(existing)))
+        key = existing[:at] + data.draw(NAMES.map(lambda t: t[0])) + existing[at:]
+    else:
+        key = data.draw(NAMES)
+    if key in KNOWN_KEYS:
+        key += "_x"
+    table[key] = data.draw(SCALARS)
+    result = run_plan(plan_path, toml_text(plan))
+    assert_input_error(result, path_text((*table_path, key)))
+    assert "unknownkey" in squeeze(result.stderr)
+
+
+def _kind(value: Any) -> str:
+    if isinstance(value, bool):
+        return "bool"
+    if isinstance(value, (int, float)):
+        return "number"
+    if isinstance(value, str):
+        return "string"
+    if isinstance(value, list):
+        return "list"
+    return "table"
+
+
+OTHER_TYPES = {
+    "bool": (True, False),
+    "number": (0, 1.5, -3),
+    "string": ("", "x", "1.0", "true"),
+    "list": ([], [1, "a"], [[1]]),
+    "table": ({}, {"a": 1}),
+}
+
+
+@settings(max_examples=budget(400), **FUZZ)
+@given(plan=plan_dicts(max_devices=6), data=st.data())
+def test_wrong_type_names_the_key(plan_path, plan, data):
+    paths = [path for path, _ in key_paths(plan)]
+    path = data.draw(st.sampled_from(paths))
+    kind = _kind(get_at(plan, path))
+    other = data.draw(st.sampled_from(sorted(k for k in OTHER_TYPES if k != kind)))
+    set_at(plan, path, copy.deepcopy(data.draw(st.sampled_from(OTHER_TYPES[other]))))
+    result = run_plan(plan_path, toml_text(plan))
+    assert_input_error(result, path_text(path))
+
+
+NON_FINITE = (math.nan, math.inf, -math.inf, "nan", "inf", "NaN", "-Infinity")
+ABSURD = (
+    -1,
+    -1.0,
+    0,
+    0.0,
+    -0.0,
+    1e308,
+    -1e308,
+    5e-324,
+    1e-300,
+    10**30,
+    -(10**30),
+    2**63 - 1,
+    -(2**63),
+    123456789,
+)
+
+
+@settings(max_examples=budget(600), **FUZZ)
+@given(plan=plan_dicts(max_devices=6), data=st.data())
+def test_absurd_numbers_never_crash(plan_path, plan, data):
+    original = copy.deepcopy(plan)
+    numbers = [path for path, value in key_paths(plan) if _kind(value) == "number"]
+    path = data.draw(st.sampled_from(numbers))
+    value = data.draw(st.sampled_from(NON_FINITE + ABSURD))
+    set_at(plan, path, value)
+    result = run_plan(plan_path, toml_text(plan))
+    if value in NON_FINITE or (isinstance(value, float) and math.isnan(value)):
+        # No plan key takes nan, infinity or text that spells them.
+        assert_input_error(result, path_text(path))
+    elif result.exit_code == 2:
+        assert_input_error(result, *doc_paths(original, plan))
+    else:
+        assert_plans_or_fails_named_checks(result)
+
+
+UNICODE = st.text(
+    alphabet=st.characters(exclude_categories=("Cs",)), min_size=0, max_size=40
+) | st.sampled_from(
+    ("Fe³⁺", "SCN⁻", "铁", "железо", "حديد", "🧪", "e\u0301", "\u200b", "Ａ", "x" * 20_000)
+)
+
+
+@settings(max_examples=budget(200), **FUZZ)
+@given(plan=plan_dicts(max_devices=6), data=st.data())
+def test_unicode_and_long_strings_never_crash(plan_path, plan, data):
+    original = copy.deepcopy(plan)
+    strings = [path for path, value in key_paths(plan) if isinstance(value, str)]
+    path = data.draw(st.sampled_from(strings))
+    set_at(plan, path, data.draw(UNICODE))
+    result = run_plan(plan_path, toml_text(plan))
+    if result.exit_code == 2:
+        assert_input_error(result, *doc_paths(original, plan))
+    else:
+        # A unicode id or title is a valid plan; its text may say anything, so only the
+        # numbers are checked for NaN and infinity.
+        assert_plans_or_fails_named_checks(result, words=False)
+
+
+def _default_plan_text() -> str:
+    return (ROOT / "planner" / "data" / "default.toml").read_text(encoding="utf-8")
+
+
+def _stock_entry(index: int) -> str:
+    return f'[[stocks]]\nid = "s{index}"\ncontains_M = {{ "Fe3+" = 0.01 }}\n'
+
+
+def _device_entry(index: int) -> str:
+    return f'[[glassware]]\nkind = "tube"\nvolume_mL = {10 + index * 0.001:.3f}\n'
+
+
+HUGE_CASES = {
+    # name: (builder of a text of a few MB, the key path the message names or None)
+    "thirty thousand stocks": (
+        lambda: _default_plan_text() + "".join(_stock_entry(i) for i in range(30_000)),
+        "stocks",
+    ),
+    "a hundred thousand devices": (
+        lambda: _default_plan_text() + "".join(_device_entry(i) for i in range(100_000)),
+        "glassware",
+    ),
+    "three megabytes of text in a number": (
+        lambda: _default_plan_text().replace(
+            "wavelength_nm = 450", f'wavelength_nm = "{"4" * 3_000_000}"'
+        ),
+        "instrument.wavelength_nm",
+    ),
+    "a number with a million digits": (
+        lambda: _default_plan_text().replace(
+            "wavelength_nm = 450", f"wavelength_nm = {'4' * 1_000_000}"
+        ),
+        None,
+    ),
+    "lists nested a million deep": (
+        lambda: _default_plan_text() + "deep = " + "[" * 1_000_000 + "]" * 1_000_000 + "\n",
+        None,
+    ),
+    "tables nested a quarter million deep": (
+        lambda: _default_plan_text() + "deep = " + "{a = " * 250_000 + "1" + "}" * 250_000,
+        None,
+    ),
+    "three megabytes of garbage": (
+        lambda: _default_plan_text() + "\n" + "@!$%^&*#" * 400_000,
+        None,
+    ),
+    "a ten-megabyte key": (
+        lambda: _default_plan_text().replace("[design]", f"[design]\n{'k' * 10_000_000} = 1"),
+        # Keys longer than 100 characters are shortened in the message.
+        "design." + "k" * 60 + "...(10000000characters)",
+    ),
+}
+
+
+@pytest.mark.parametrize("case", sorted(HUGE_CASES))
+def test_huge_malformed_files_exit_2(tmp_path, case):
+    build, named = HUGE_CASES[case]
+    text = build()
+    assert len(text) > 1_000_000
+    result = run_plan(tmp_path / "huge.toml", text)
+    if named is None:
+        assert_input_error(result)
+    else:
+        assert_input_error(result, named)
+    # A value or key too long to quote is shortened: the message stays readable.
+    assert len(result.stderr) < 5_000
+
+
+@pytest.mark.parametrize(
+    ("case", "edit"),
+    [
+        ("three-megabyte comment", lambda text: text + "# " + "comment " * 400_000 + "\n"),
+        (
+            "three-megabyte title",
+            lambda text: text.replace('title = "', 'title = "' + "t" * 3_000_000, 1),
+        ),
+    ],
+)
+def test_huge_valid_files_plan(tmp_path, case, edit):
+    result = run_plan(tmp_path / "huge.toml", edit(_default_plan_text()))
+    assert_plans_or_fails_named_checks(result, words=False)
+
+
+# ---------------------------------------------------------------------------------------------
+# (b) Extreme but valid plans
+# ---------------------------------------------------------------------------------------------
+
+
+@settings(max_examples=budget(600), **FUZZ)
+@given(plan=plan_dicts())
+def test_valid_plans_plan_or_fail_named_checks(plan_path, plan):
+    result = run_plan(plan_path, toml_text(plan))
+    assert_plans_or_fails_named_checks(result)
+
+
+@settings(max_examples=budget(100), **FUZZ)
+@given(plan=plan_dicts(min_devices=30, max_devices=30))
+def test_thirty_devices_plan_or_fail_named_checks(plan_path, plan):
+    assert len(plan["glassware"]) >= 30
+    result = run_plan(plan_path, toml_text(plan))
+    assert_plans_or_fails_named_checks(result)
+
+
+@settings(max_examples=budget(100), **FUZZ)
+@given(plan=plan_dicts(min_devices=1, max_devices=1))
+def test_one_device_plans_or_fails_named_checks(plan_path, plan):
+    delivering = [d for d in plan["glassware"] if d["kind"] != "tube"]
+    assert len(delivering) == 1
+    result = run_plan(plan_path, toml_text(plan))
+    assert_plans_or_fails_named_checks(result)
+
+
+@pytest.mark.parametrize("K", [1e-2, 1e12])
+@pytest.mark.parametrize("metal_M", [1e-8, 5.0])
+@pytest.mark.parametrize("ligand_M", [1e-8, 5.0])
+def test_corners_of_the_physical_ranges(tmp_path, K, metal_M, ligand_M):
+    # The default plan with its 1:1 constant and both reagent stocks at the ends of the
+    # ranges of tests/strategies.py (both iron stocks at metal_M).
+    text = _default_plan_text()
+    text = text.replace("K = 98", f"K = {K!r}")
+    text = re.sub(r'"Fe3\+" = 0\.0?40?', f'"Fe3+" = {metal_M!r}', text)
+    text = text.replace('"SCN-" = 6.0e-4', f'"SCN-" = {ligand_M!r}')
+    assert f"K = {K!r}" in text
+    assert text.count(f'"Fe3+" = {metal_M!r}') == 2
+    assert f'"SCN-" = {ligand_M!r}' in text
+    result = run_plan(tmp_path / "corner.toml", text)
+    assert_plans_or_fails_named_checks(result)
