@@ -33,7 +33,7 @@ from typing import Annotated, Any, Literal, NoReturn, get_args, get_origin
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 from pydantic.fields import FieldInfo
 
-from planner.errors import InvalidInputError, PlanFileError
+from planner.errors import InvalidInputError, PlanFileError, PlannerError
 from planner.inputs import (
     DEVICE_KINDS,
     DesignSettings,
@@ -1364,22 +1364,29 @@ def load_plan(path: str | os.PathLike[str]) -> PlanInputs:
         names the path.
     """
     name = os.fspath(path)
+    return parse_plan(read_text(name, "plan file", PlanFileError), source=name)
+
+
+def read_text(name: str, what: str, error: type[PlannerError]) -> str:
+    """A UTF-8 text file (byte-order mark allowed), or ``error`` naming the path.
+
+    Shared by the readers of plan files and of saved plan results.
+    """
     try:
         raw = Path(name).read_bytes()
     except OSError as exc:
         reason = exc.strerror or type(exc).__name__
-        raise PlanFileError(
-            f"cannot read the plan file {name} ({reason})",
+        raise error(
+            f"cannot read the {what} {name} ({reason})",
             hint="check the path and that the file is readable",
         ) from None
     try:
-        text = raw.decode("utf-8-sig")
+        return raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
-        raise PlanFileError(
-            f"the plan file {name} is not UTF-8 text (bad byte at offset {exc.start})",
+        raise error(
+            f"the {what} {name} is not UTF-8 text (bad byte at offset {exc.start})",
             hint="save the file as UTF-8",
         ) from None
-    return parse_plan(text, source=name)
 
 
 def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:

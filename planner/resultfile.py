@@ -34,14 +34,13 @@ import os
 from collections import Counter
 from collections.abc import Sequence
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Any, Literal, NoReturn
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from planner.errors import PlanFileError, ResultFileError
 from planner.inputs import PlanInputs
-from planner.planfile import plan_from_mapping
+from planner.planfile import plan_from_mapping, read_text
 from planner.result import Addition, Check, Mixture, Totals
 
 __all__ = ["SCHEMA", "SavedPlan", "load_result", "parse_result"]
@@ -523,19 +522,4 @@ def load_result(path: str | os.PathLike[str]) -> SavedPlan:
         message names the path.
     """
     name = os.fspath(path)
-    try:
-        raw = Path(name).read_bytes()
-    except OSError as exc:
-        reason = exc.strerror or type(exc).__name__
-        raise ResultFileError(
-            f"cannot read the plan result {name} ({reason})",
-            hint="check the path and that the file is readable",
-        ) from None
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise ResultFileError(
-            f"the plan result {name} is not UTF-8 text (bad byte at offset {exc.start})",
-            hint="save the file as UTF-8",
-        ) from None
-    return parse_result(text, source=name)
+    return parse_result(read_text(name, "plan result", ResultFileError), source=name)
