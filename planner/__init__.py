@@ -25,14 +25,14 @@ __all__ = ["design_plan", "load_plan", "simulate", "verify_plan", "write_reports
 
 _HOMES = {
     "load_plan": "planner.planfile",
-    "design_plan": "planner.design.plan",
+    "design_plan": "planner.pipeline",
     "verify_plan": "planner.verify",
     "simulate": "planner.predict.montecarlo",
     "write_reports": "planner.report",
 }
 
 if TYPE_CHECKING:
-    from planner.design.plan import design_plan
+    from planner.pipeline import design_plan
     from planner.planfile import load_plan
     from planner.predict.montecarlo import simulate
     from planner.report import write_reports

@@ -255,7 +255,7 @@ def plan(
     """
 
     def body() -> int:
-        from planner.design.plan import design_plan
+        from planner.pipeline import design_plan
 
         if pdf and out is None:
             from planner.errors import InvalidInputError
@@ -451,7 +451,7 @@ def variants(
         from rich.console import Console
         from rich.progress import Progress
 
-        from planner.design.variants import design_variants
+        from planner.pipeline import design_variants
         from planner.report.variants_index import variants_files
 
         inputs = _load(file)
@@ -546,7 +546,7 @@ def simulate(
         from rich.console import Console
         from rich.progress import Progress
 
-        from planner.design.plan import design_plan
+        from planner.pipeline import design_plan
         from planner.predict.montecarlo import simulate as run_virtual_class
         from planner.predict.uncertainty import propagate
 
@@ -556,7 +556,9 @@ def simulate(
 
             check_output_target(out, force=force)  # before the simulation and the plots
         designed = design_plan(inputs)
-        gum = propagate(designed.inputs, designed.mixtures)
+        # The pipeline's prediction, run once; a plan it could not analyse gets the budget's
+        # own error (what is missing) from propagate.
+        gum = designed.uncertainty or propagate(designed.inputs, designed.mixtures)
         err = Console(stderr=True, highlight=False, quiet=quiet)
         if designed.failed:
             err.print("[bold red]note:[/] the plan fails a check; run planner plan for details")

@@ -41,6 +41,18 @@ DEVICE_KINDS = (
 )
 
 
+def _vessel_flask(design: DesignSettings, glassware: tuple[Device, ...]) -> Device | None:
+    """The volumetric flask the vessel names: from the shelf, else a class A flask of that size
+    (its tolerance from the ISO 1042 table); None for tubes."""
+    volume = design.flask_volume_mL
+    if volume is None:
+        return None
+    for device in glassware:
+        if device.kind == "volumetric-flask" and abs(device.volume_mL - volume) < 1e-9:
+            return device
+    return Device(kind="volumetric-flask", volume_mL=volume, device_class="A")
+
+
 def _format_size(value: float) -> str:
     """Shortest exact decimal for a device size (5 -> '5', 0.5 -> '0.5')."""
     text = f"{value:.6f}".rstrip("0").rstrip(".")
@@ -269,6 +281,11 @@ class DesignSettings:
         [unitless]; a larger spread is a warning.
     blanks
         Number of reagent blanks.
+    measured_species
+        The product species whose K and eps the experiment measures, as the plan file names
+        it (``design.measured_species``), or None to let the planner choose the one absorbing
+        product that holds the limiting reagent. The resolved choice is
+        :attr:`PlanInputs.measured`.
     """
 
     standards: int
@@ -281,6 +298,7 @@ class DesignSettings:
     bound_fraction_range: tuple[float, float] = (0.15, 0.85)
     ionic_strength_spread: float = 0.5
     blanks: int = 1
+    measured_species: str | None = None
 
     @property
     def vessel_kind(self) -> str:
@@ -325,9 +343,64 @@ class SessionSettings:
         return self.sections * self.benches_per_section * self.replicates
 
 
+def measured_species_index(reaction: Reaction, design: DesignSettings) -> int:
+    """Index of the measured product species: the one whose K and eps the experiment gives.
+
+    The plan file's ``design.measured_species`` when given; otherwise the only absorbing
+    product that holds the limiting reagent, or, when none absorbs, the first product that
+    holds it.
+
+    Raises
+    ------
+    InvalidInputError
+        With field ``design.measured_species`` when the named species is not a product holding
+        the limiting reagent, or when it is not named and more than one such product absorbs.
+    """
+    from planner.errors import InvalidInputError
+
+    limiting = design.limiting
+    holding = [i for i, sp in enumerate(reaction.species) if sp.formula.get(limiting, 0) > 0]
+    names = [reaction.species[i].name for i in holding]
+    if design.measured_species is not None:
+        if design.measured_species not in names:
+            raise InvalidInputError(
+                f"not a product species that holds the limiting reagent {limiting}",
+                field="design.measured_species",
+                value=design.measured_species,
+                hint=f"name one of {', '.join(names) or 'the reaction.species'}",
+            )
+        return holding[names.index(design.measured_species)]
+    absorbing = [i for i in holding if reaction.species[i].epsilon > 0]
+    if len(absorbing) > 1:
+        raise InvalidInputError(
+            "more than one product that holds the limiting reagent absorbs, so which one's K "
+            "the experiment measures is ambiguous",
+            field="design.measured_species",
+            value=", ".join(reaction.species[i].name for i in absorbing),
+            hint="name the measured species in [design], e.g. measured_species = "
+            f'"{reaction.species[absorbing[0]].name}"',
+        )
+    if absorbing:
+        return absorbing[0]
+    if not holding:
+        raise InvalidInputError(
+            "no product species holds the limiting reagent",
+            field="design.limiting",
+            value=limiting,
+            hint="name a component with a positive coefficient in a reaction.species formula",
+        )
+    return holding[0]
+
+
 @dataclass(frozen=True, slots=True)
 class PlanInputs:
-    """Everything a plan file says, validated and unit-normalised."""
+    """Everything a plan file says, validated and unit-normalised.
+
+    Besides the plan file's own values it carries the roles derived from them, computed once
+    here so that every stage agrees: :attr:`measured` (index of the measured product
+    species), :attr:`excess` (the component that is in excess in that product, or None) and
+    :attr:`flask` (the vessel's volumetric flask, or None for tubes).
+    """
 
     title: str
     reaction: Reaction
@@ -336,6 +409,22 @@ class PlanInputs:
     glassware: tuple[Device, ...]
     design: DesignSettings
     session: SessionSettings
+    measured: int = field(init=False, compare=False, repr=False)
+    excess: str | None = field(init=False, compare=False, repr=False)
+    flask: Device | None = field(init=False, compare=False, repr=False)
+
+    def __post_init__(self) -> None:
+        measured = measured_species_index(self.reaction, self.design)
+        formula = self.reaction.species[measured].formula
+        partners = [c for c, n in formula.items() if c != self.design.limiting and n > 0]
+        object.__setattr__(self, "measured", measured)
+        object.__setattr__(self, "excess", partners[0] if partners else None)
+        object.__setattr__(self, "flask", _vessel_flask(self.design, self.glassware))
+
+    @property
+    def measured_species(self) -> ProductSpecies:
+        """The measured product species (see :func:`measured_species_index`)."""
+        return self.reaction.species[self.measured]
 
     def stock(self, stock_id: str) -> Stock:
         """The stock with this id (KeyError if absent)."""

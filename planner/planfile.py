@@ -45,6 +45,7 @@ from planner.inputs import (
     SessionSettings,
     Solid,
     Stock,
+    measured_species_index,
 )
 
 __all__ = ["load_plan", "parse_plan", "plan_from_mapping", "plan_to_mapping"]
@@ -315,6 +316,12 @@ class _DesignModel(_Model):
     )
     ionic_strength_spread: float = Field(
         0.5, ge=0, le=1, description="the largest accepted (max-min)/max ionic strength, 0 to 1"
+    )
+    measured_species: str | None = Field(
+        None,
+        min_length=1,
+        description="the product species whose K the experiment measures, one of "
+        "reaction.species (needed when more than one product absorbs)",
     )
     blanks: int = Field(1, ge=1, le=10, description="the number of reagent blanks, 1 to 10")
 
@@ -1138,6 +1145,7 @@ def _design(
         bound_fraction_range=(float(low), float(high)),
         ionic_strength_spread=float(model.ionic_strength_spread),
         blanks=model.blanks,
+        measured_species=model.measured_species,
     )
 
 
@@ -1243,6 +1251,10 @@ def _build(data: Mapping[str, Any]) -> PlanInputs:
     # After the design: a limiting reagent in no stock gets its own, more telling message.
     _check_supplied(reaction.components, stocks)
     _check_species_use(reaction, stocks, design.limiting)
+    try:
+        measured_species_index(reaction, design)
+    except InvalidInputError as exc:
+        _fail(exc.field, exc.problem, exc.value, exc.hint)
     _check_combinations(devices, design.total_volume_mL)
     if instrument.cuvette_fill_mL > design.total_volume_mL:
         _fail(
@@ -1449,6 +1461,11 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
             "bound_fraction_range": list(design.bound_fraction_range),
             "ionic_strength_spread": design.ionic_strength_spread,
             "blanks": design.blanks,
+            **(
+                {"measured_species": design.measured_species}
+                if design.measured_species is not None
+                else {}
+            ),
         },
         "session": {
             "sections": session.sections,

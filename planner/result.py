@@ -13,16 +13,24 @@ from planner.inputs import PlanInputs
 
 __all__ = [
     "CHECK_STATUSES",
+    "COVERAGE_FACTOR_95",
     "ROLES",
     "Addition",
+    "Budget",
     "Check",
+    "Contributor",
     "Mixture",
+    "MixtureUncertainty",
     "Plan",
     "Prediction",
     "StockPreparation",
     "Totals",
+    "UncertaintyResult",
 ]
 
+#: Coverage factor of a 95 % interval for a normal distribution, k = 1.960 (JCGM 100:2008,
+#: Table G.1) [unitless].
+COVERAGE_FACTOR_95 = 1.960
 #: Mixture roles, in the order sheets list them.
 ROLES = ("blank", "standard", "test")
 #: Check statuses, worst first.
@@ -239,11 +247,151 @@ class Prediction:
 
 
 @dataclass(frozen=True, slots=True)
+class Contributor:
+    """One input's contribution to a measurand's uncertainty.
+
+    Attributes
+    ----------
+    input
+        What the input is, e.g. ``"reading of T3"`` or ``"buret-25mL delivering thiocyanate
+        into S2"``.
+    kind
+        ``"stock"``, ``"device-systematic"``, ``"delivery-random"``, ``"flask"`` or
+        ``"reading"``.
+    standard_uncertainty
+        u of the input, in ``unit``.
+    unit
+        ``"relative"`` (stock concentrations), ``"mL"`` or ``"absorbance"``.
+    sensitivity
+        Sensitivity coefficient of the measurand to the input [measurand unit per input unit].
+    contribution
+        |sensitivity| x u [measurand unit].
+    share
+        Fraction of the measurand's variance from this input [unitless]; the shares sum to 1.
+    formula
+        The sensitivity coefficient as the chain of model derivatives, each given by the
+        formula sympy derived.
+    """
+
+    input: str
+    kind: str
+    standard_uncertainty: float
+    unit: str
+    sensitivity: float
+    contribution: float
+    share: float
+    formula: str
+
+
+@dataclass(frozen=True, slots=True)
+class Budget:
+    """The uncertainty budget of one measurand.
+
+    Attributes
+    ----------
+    measurand
+        ``"epsilon"`` (curve through the origin), ``"epsilon_intercept"`` or ``"K"`` (mean K).
+    value
+        Estimate the usual analysis gives from the predicted readings [``unit``].
+    standard_uncertainty
+        Combined standard uncertainty [``unit``].
+    unit
+        ``"L mol-1 cm-1"`` or ``"L/mol"``.
+    contributors
+        Every input with a non-zero contribution, largest first.
+    """
+
+    measurand: str
+    value: float
+    standard_uncertainty: float
+    unit: str
+    contributors: tuple[Contributor, ...]
+
+    @property
+    def ci95(self) -> tuple[float, float]:
+        """value -/+ 1.96 u, the 95 % interval of a normal distribution [``unit``]."""
+        half = COVERAGE_FACTOR_95 * self.standard_uncertainty
+        return (self.value - half, self.value + half)
+
+
+@dataclass(frozen=True, slots=True)
+class MixtureUncertainty:
+    """First-order uncertainty of one mixture's composition and reading.
+
+    Attributes
+    ----------
+    id
+        Mixture id.
+    totals_M
+        Nominal total of each component [mol/L].
+    u_totals_M
+        Its standard uncertainty from stocks, deliveries and final volume [mol/L].
+    absorbance
+        Predicted reading (stray light applied, blank not subtracted) [unitless].
+    u_absorbance
+        Standard uncertainty of the reading: the composition's uncertainty through the
+        equilibrium and the photometer, plus the reading noise [unitless].
+    """
+
+    id: str
+    totals_M: dict[str, float]
+    u_totals_M: dict[str, float]
+    absorbance: float
+    u_absorbance: float
+
+    @property
+    def absorbance_ci95(self) -> tuple[float, float]:
+        """The reading's 95 % interval, absorbance -/+ 1.96 u [unitless]."""
+        half = COVERAGE_FACTOR_95 * self.u_absorbance
+        return (self.absorbance - half, self.absorbance + half)
+
+
+@dataclass(frozen=True, slots=True)
+class UncertaintyResult:
+    """The first-order prediction of the usual analysis.
+
+    Attributes
+    ----------
+    epsilon
+        Budget of the molar absorptivity from the curve through the origin.
+    epsilon_intercept
+        Budget of the molar absorptivity from the curve with an intercept.
+    K
+        Budget of the mean K (with eps from the curve through the origin).
+    K_per_test
+        (K, u(K)) of each test mixture, in plan order [L/mol].
+    mixtures
+        Per mixture composition and reading uncertainty, in plan order.
+    K_true
+        K the plan assumes [L/mol].
+    epsilon_true
+        Molar absorptivity the plan assumes [L mol⁻¹ cm⁻¹].
+    """
+
+    epsilon: Budget
+    epsilon_intercept: Budget
+    K: Budget
+    K_per_test: tuple[tuple[float, float], ...]
+    mixtures: tuple[MixtureUncertainty, ...]
+    K_true: float
+    epsilon_true: float
+    test_ids: tuple[str, ...] = field(default=())
+
+    @property
+    def K_bias_from_assumption(self) -> float:
+        """Relative bias of the mean K against the true K [unitless]."""
+        return self.K.value / self.K_true - 1.0
+
+
+@dataclass(frozen=True, slots=True)
 class Plan:
     """A finished plan: inputs, mixtures, totals, preparation, checks and prediction.
 
     ``design_objective`` is the value of the test-set objective the design minimised (by
     default the predicted relative SD of the mean K [unitless]); None when not designed.
+    ``uncertainty`` is the whole first-order prediction (every budget and every mixture's
+    u(A)) the prediction stage made; ``prediction`` and each mixture's ``u_absorbance`` are
+    read from it. None for a plan that cannot be analysed or was read back from a file.
     """
 
     inputs: PlanInputs
@@ -254,6 +402,7 @@ class Plan:
     prediction: Prediction | None
     notes: tuple[str, ...] = field(default=())
     design_objective: float | None = None
+    uncertainty: UncertaintyResult | None = None
 
     @property
     def failed(self) -> bool:

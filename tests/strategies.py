@@ -484,6 +484,9 @@ def plan_dicts(
         "ionic_strength_spread": draw(st.sampled_from((0.0, 0.25, 0.5, 1.0))),
         "blanks": draw(st.integers(1, 3)),
     }
+    if len(species) > 1 and species[1]["epsilon"] > 0:
+        # Two absorbing products: the plan file must say whose K is measured.
+        design["measured_species"] = species[draw(st.integers(0, 1))]["name"]
     session = {
         "sections": draw(st.sampled_from((1, 3, 20, 1000))),
         "benches_per_section": draw(st.sampled_from((1, 12, 1000))),

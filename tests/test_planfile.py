@@ -178,6 +178,7 @@ count = 12
 
 [design]
 limiting = "Cu2+"
+measured_species = "CuL+"
 vessel = "flask-25"
 """
 

@@ -16,8 +16,8 @@ from typing import Any
 
 import pytest
 
-from planner.design.plan import design_plan
 from planner.errors import ResultFileError
+from planner.pipeline import design_plan
 from planner.planfile import load_plan
 from planner.report.plan_json import plan_json
 from planner.result import Plan

@@ -1,7 +1,7 @@
 """Tests of planner.verify: the independent re-check of a finished plan, through saved JSON.
 
 The plan under test is the embedded default scenario (``planner/data/default.toml``, invented
-for this project), designed by :func:`planner.design.plan.design_plan`, written as the
+for this project), designed by :func:`planner.pipeline.design_plan`, written as the
 ``planner.plan/1`` document and read back with :func:`planner.resultfile.parse_result`. The
 broken plans are copies of that document edited the way a person editing ``plan.json`` by
 hand would. Every edited number is derived from the plan's own recipe, and every expected
@@ -19,7 +19,7 @@ from typing import Any
 
 import pytest
 
-from planner.design.plan import design_plan
+from planner.pipeline import design_plan
 from planner.planfile import load_plan, plan_from_mapping, plan_to_mapping
 from planner.report.plan_json import plan_json
 from planner.result import Check, Plan

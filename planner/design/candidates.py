@@ -39,7 +39,6 @@ __all__ = [
     "Option",
     "candidate_set",
     "evaluate",
-    "flask_device",
     "stock_order",
 ]
 
@@ -167,17 +166,6 @@ def stock_order(inputs: PlanInputs) -> tuple[Stock, ...]:
     return tuple(diluent + excess + last)
 
 
-def flask_device(inputs: PlanInputs) -> Device | None:
-    """The volumetric flask the vessel names, from the shelf (None for tubes)."""
-    volume = inputs.design.flask_volume_mL
-    if volume is None:
-        return None
-    for device in inputs.glassware:
-        if device.kind == "volumetric-flask" and abs(device.volume_mL - volume) < 1e-9:
-            return device
-    return Device(kind="volumetric-flask", volume_mL=volume, device_class="A")
-
-
 def _thin(volumes: Sequence[DeliverableVolume], shelf: dict[str, Device]) -> list[Option]:
     """Keep discrete volumes; thin long graded runs to a round step."""
     options = [
@@ -258,7 +246,7 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
     if diluent is not None:
         rest = total_mL - used
         if in_flask:
-            flask = flask_device(inputs)
+            flask = inputs.flask
             assert flask is not None
             diluent_options: list[Option] = [Option(volume_mL=0.0, devices=(flask.id,), u_mL=0.0)]
             index_columns.append(np.zeros(len(rest), dtype=np.int64))
@@ -301,7 +289,7 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
         deliveries += count[option_index[:, j]] if n_options[j] else 0
         u_squared += u[option_index[:, j]] ** 2
     if in_flask:
-        flask = flask_device(inputs)
+        flask = inputs.flask
         assert flask is not None
         total_u_mL = np.full(len(volumes_mL), standard_uncertainty_mL(flask))
         deliveries -= 1  # filling to the mark is not a measured delivery
@@ -404,7 +392,7 @@ def evaluate(
     observed = np.asarray(observed_absorbance(true_a, inputs.instrument.stray_light), dtype=float)
     limiting = reaction.components.index(inputs.design.limiting)
     fraction = bound_fraction(solved.species_M, matrix, limiting, totals)
-    coloured = coloured_species_index(inputs)
+    coloured = inputs.measured
     safe = np.where(totals[:, limiting] > 0, totals[:, limiting], 1.0)
     coloured_fraction = np.where(
         totals[:, limiting] > 0,
@@ -425,11 +413,3 @@ def evaluate(
         coloured_fraction=coloured_fraction,
         ionic_strength_M=strength,
     )
-
-
-def coloured_species_index(inputs: PlanInputs) -> int:
-    """Index of the coloured product: the most absorbing species holding the limiting reagent."""
-    reaction = inputs.reaction
-    limiting = inputs.design.limiting
-    holding = [i for i, sp in enumerate(reaction.species) if sp.formula.get(limiting, 0) > 0]
-    return max(holding, key=lambda i: (reaction.species[i].epsilon, -i))

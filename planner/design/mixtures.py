@@ -18,7 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from planner.design.candidates import CandidateSet, coloured_species_index
+from planner.design.candidates import CandidateSet
 from planner.inputs import PlanInputs
 
 __all__ = [
@@ -84,13 +84,8 @@ def per_mixture_relative_u_K(
     ev = candidates.evaluation
     reaction = inputs.reaction
     limiting = reaction.components.index(inputs.design.limiting)
-    coloured = coloured_species_index(inputs)
-    partners = [
-        j
-        for j, c in enumerate(reaction.components)
-        if j != limiting and reaction.species[coloured].formula.get(c, 0) > 0
-    ]
-    excess = partners[0] if partners else limiting
+    coloured = inputs.measured
+    excess = reaction.components.index(inputs.excess) if inputs.excess is not None else limiting
     x = ev.species_M[indices, coloured]
     m0 = ev.total_M[indices, excess]
     l0 = ev.total_M[indices, limiting]
@@ -165,13 +160,8 @@ def _x_sensitivity(
     ev = candidates.evaluation
     reaction = inputs.reaction
     limiting = reaction.components.index(inputs.design.limiting)
-    coloured = coloured_species_index(inputs)
-    partners = [
-        j
-        for j, c in enumerate(reaction.components)
-        if j != limiting and reaction.species[coloured].formula.get(c, 0) > 0
-    ]
-    excess = partners[0] if partners else limiting
+    coloured = inputs.measured
+    excess = reaction.components.index(inputs.excess) if inputs.excess is not None else limiting
     x = ev.species_M[indices, coloured]
     free_m = np.maximum(ev.total_M[indices, excess] - x, 1e-300)
     free_l = np.maximum(ev.total_M[indices, limiting] - x, 1e-300)

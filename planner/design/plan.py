@@ -1,29 +1,60 @@
-"""The whole design: candidates -> standards and tests -> recipes -> totals -> checks.
+"""The design stage: candidates -> standards and tests -> recipes.
 
-:func:`design_plan` is a pure function of the validated inputs. Every plan it returns has
-been through :func:`planner.verify.verify_plan`; an infeasible plan still comes back, with
-failed checks that say which constraint binds and what would fix it.
+:func:`design_recipes` is a pure function of the validated inputs and returns recipes only:
+the mixtures with their predicted state, the stock totals and preparations, and the
+feasibility findings of the design itself. Verification and prediction are later stages,
+run once by :mod:`planner.pipeline`; this package imports neither.
 """
 
 from __future__ import annotations
 
-import dataclasses
-import math
 from collections.abc import Sequence
+from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
 
-from planner.design.candidates import CandidateSet, candidate_set, coloured_species_index
+from planner.design.candidates import CandidateSet, candidate_set
 from planner.design.logistics import preparations, stock_totals
 from planner.design.mixtures import Objective, choose_tests, mean_K_objective
 from planner.design.standards import choose_standards
 from planner.inputs import PlanInputs
-from planner.predict.uncertainty import prediction_from, propagate
-from planner.result import Addition, Check, Mixture, Plan, Prediction
-from planner.verify import verify_plan
+from planner.result import Addition, Check, Mixture, StockPreparation, Totals
 
-__all__ = ["design_plan", "mixture_from_candidate"]
+__all__ = ["Design", "design_recipes", "mixture_from_candidate"]
+
+
+@dataclass(frozen=True, slots=True)
+class Design:
+    """What the design stage hands on: recipes, totals and the design's own findings.
+
+    Attributes
+    ----------
+    inputs
+        The validated plan.
+    mixtures
+        Blanks, standards and tests, in that order, with their predicted state; their
+        ``u_absorbance`` is NaN until the prediction stage fills it.
+    totals
+        Stock totals per bench, session and to prepare.
+    preparations
+        How to prepare each stock.
+    checks
+        The design's feasibility findings (which constraint binds), before verification.
+    notes
+        Notes for the sheets.
+    objective
+        The value of the test-set objective the design minimised, or None when no test set
+        met the constraints [unitless].
+    """
+
+    inputs: PlanInputs
+    mixtures: tuple[Mixture, ...]
+    totals: Totals
+    preparations: tuple[StockPreparation, ...]
+    checks: tuple[Check, ...]
+    notes: tuple[str, ...]
+    objective: float | None
 
 
 def mixture_from_candidate(
@@ -67,13 +98,6 @@ def mixture_from_candidate(
     equilibrium.update(
         {sp.name: float(ev.species_M[index, i]) for i, sp in enumerate(reaction.species)}
     )
-    limiting = reaction.components.index(inputs.design.limiting)
-    net = float(ev.true_absorbance[index])
-    u_absorbance = float(
-        np.hypot(
-            inputs.instrument.absorbance_sd, net * candidates.u_relative_total[index, limiting]
-        )
-    )
     return Mixture(
         id=mixture_id,
         role=role,
@@ -82,62 +106,10 @@ def mixture_from_candidate(
         initial_M=initial,
         equilibrium_M=equilibrium,
         absorbance=float(ev.absorbance[index]),
-        u_absorbance=u_absorbance,
+        u_absorbance=float("nan"),  # the prediction stage's, see planner.pipeline
         bound_fraction=float(ev.bound_fraction[index]),
         ionic_strength_M=float(ev.ionic_strength_M[index]),
     )
-
-
-def _excess_component(inputs: PlanInputs) -> int | None:
-    reaction = inputs.reaction
-    limiting = inputs.design.limiting
-    coloured = reaction.species[coloured_species_index(inputs)]
-    partners = [c for c, n in coloured.formula.items() if c != limiting and n > 0]
-    return reaction.components.index(partners[0]) if partners else None
-
-
-def _prediction(
-    inputs: PlanInputs,
-    candidates: CandidateSet,
-    blank: int,
-    standards: Sequence[int],
-    tests: Sequence[int],
-) -> Prediction | None:
-    """The usual analysis's expected result, from the GUM budget of planner.predict.uncertainty.
-
-    The same propagation ``planner simulate`` reports, on the recipes as the sheets give them.
-    """
-    excess = _excess_component(inputs)
-    if blank < 0 or len(standards) < 1 or len(tests) < 1 or excess is None:
-        return None
-    chosen = [
-        mixture_from_candidate(inputs, candidates, blank, "B1", "blank"),
-        *(
-            mixture_from_candidate(inputs, candidates, index, f"S{n}", "standard")
-            for n, index in enumerate(standards, start=1)
-        ),
-        *(
-            mixture_from_candidate(inputs, candidates, index, f"T{n}", "test")
-            for n, index in enumerate(tests, start=1)
-        ),
-    ]
-    # A test whose predicted product equals a reagent's total makes the usual 1:1 expression
-    # divide by zero: that analysis then has no prediction to offer (the exact fit still
-    # does), so the plan carries none rather than an infinity.
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        prediction = prediction_from(propagate(inputs, chosen))
-    return prediction if _all_finite(prediction) else None
-
-
-def _all_finite(value: object) -> bool:
-    """True when every number in a (nested) dataclass, tuple or float is finite."""
-    if dataclasses.is_dataclass(value) and not isinstance(value, type):
-        return all(_all_finite(getattr(value, f.name)) for f in dataclasses.fields(value))
-    if isinstance(value, (tuple, list)):
-        return all(_all_finite(v) for v in value)
-    if isinstance(value, float):
-        return math.isfinite(value)
-    return True
 
 
 def _feasibility(inputs: PlanInputs, candidates: CandidateSet, n_standards: int) -> list[Check]:
@@ -200,14 +172,14 @@ def _epsilon_relative_u(
     return inputs.instrument.absorbance_sd / total if total > 0 else 0.0
 
 
-def design_plan(
+def design_recipes(
     inputs: PlanInputs,
     objective: Objective | None = None,
     *,
     candidates: CandidateSet | None = None,
     allowed: NDArray[np.bool_] | None = None,
-) -> Plan:
-    """Design, verify and predict a complete plan.
+) -> Design:
+    """Design the recipes of a plan: blanks, standards and tests, with their totals.
 
     Parameters
     ----------
@@ -225,8 +197,9 @@ def design_plan(
 
     Returns
     -------
-    Plan
-        With ``checks`` from the verifier, failed checks describing what binds.
+    Design
+        With the design's feasibility findings; verification and prediction follow in
+        :func:`planner.pipeline.design_plan`.
     """
     if candidates is None:
         candidates = candidate_set(inputs)
@@ -249,9 +222,6 @@ def design_plan(
         mixtures.append(mixture_from_candidate(inputs, candidates, index, f"T{n}", "test"))
 
     totals = stock_totals(inputs, mixtures)
-    checks = list(_feasibility(inputs, candidates, len(standards.standards)))
-    checks.extend(verify_plan(inputs, mixtures, totals))
-    prediction = _prediction(inputs, candidates, standards.blank, standards.standards, tests.tests)
     notes = [
         "Order of addition: in tubes the diluent first, then the excess reagent, the limiting "
         "reagent last; in flasks the reagents first, then the diluent to the mark "
@@ -264,13 +234,12 @@ def design_plan(
         )
     else:
         notes.append("No test mixture met the window and bound-fraction constraints.")
-    return Plan(
+    return Design(
         inputs=inputs,
         mixtures=tuple(mixtures),
         totals=totals,
         preparations=preparations(inputs, totals),
-        checks=tuple(checks),
-        prediction=prediction,
+        checks=tuple(_feasibility(inputs, candidates, len(standards.standards))),
         notes=tuple(notes),
-        design_objective=tests.objective if np.isfinite(tests.objective) else None,
+        objective=float(tests.objective) if np.isfinite(tests.objective) else None,
     )

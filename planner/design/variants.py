@@ -26,13 +26,18 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import NDArray
 
-from planner.design.candidates import candidate_set
-from planner.design.plan import design_plan
+from planner.design.candidates import CandidateSet, candidate_set
 from planner.inputs import PlanInputs
 from planner.result import Plan
 
-__all__ = ["VariantSet", "design_variants", "recipe_key"]
+__all__ = ["PlanMaker", "VariantSet", "design_variants", "recipe_key"]
+
+#: Makes one verified, predicted plan from the inputs, the shared candidates and an optional
+#: mask of allowed candidates (:func:`planner.pipeline.design_plan`, passed in by the
+#: pipeline so that this package needs neither verification nor prediction).
+PlanMaker = Callable[[PlanInputs, CandidateSet, NDArray[np.bool_] | None], Plan]
 
 # Best section's objective x this is the worst accepted (any two within +/-20 % of each other).
 _DIFFICULTY_BAND = 1.2
@@ -85,6 +90,7 @@ def design_variants(
     inputs: PlanInputs,
     sections: int,
     rng: np.random.Generator,
+    make_plan: PlanMaker,
     progress: Callable[[int, int], None] | None = None,
 ) -> VariantSet:
     """Design ``sections`` distinct, verified recipe sets of equal difficulty.
@@ -93,6 +99,9 @@ def design_variants(
     ----------
     inputs
         The plan; its session describes one section's benches.
+    make_plan
+        Makes one whole plan (design, verification, prediction) from the one-section inputs,
+        the shared candidates and a mask.
     sections
         Number of sections (>= 1).
     rng
@@ -109,7 +118,7 @@ def design_variants(
         inputs, session=dataclasses.replace(inputs.session, sections=1)
     )
     candidates = candidate_set(one_section)
-    reference = design_plan(one_section, candidates=candidates)
+    reference = make_plan(one_section, candidates, None)
     best = reference.design_objective
     plans: list[Plan] = []
     objectives: list[float] = []
@@ -125,7 +134,7 @@ def design_variants(
     while len(plans) < sections and tries < _TRIES_PER_SECTION * sections and plans:
         tries += 1
         allowed = rng.random(candidates.size) < _KEEP_FRACTION
-        plan = design_plan(one_section, candidates=candidates, allowed=allowed)
+        plan = make_plan(one_section, candidates, allowed)
         if plan.failed or plan.design_objective is None:
             continue
         assert best is not None

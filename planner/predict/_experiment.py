@@ -42,7 +42,6 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from planner.design.candidates import coloured_species_index, flask_device
 from planner.errors import InvalidInputError
 from planner.inputs import Device, PlanInputs
 from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
@@ -213,22 +212,24 @@ def delivery_split_mL(device: Device) -> tuple[float, float, bool]:
     )
 
 
-def _excess_component(inputs: PlanInputs, coloured: int) -> int:
-    reaction = inputs.reaction
-    limiting = inputs.design.limiting
-    partners = [c for c, n in reaction.species[coloured].formula.items() if c != limiting and n > 0]
-    if not partners:
+def _excess_column(inputs: PlanInputs, required: bool) -> int:
+    """Column of the measured product's excess reagent (``PlanInputs.excess``)."""
+    if inputs.excess is not None:
+        return inputs.reaction.components.index(inputs.excess)
+    if required:
         raise InvalidInputError(
-            "the coloured product holds no reagent besides the limiting one, so the usual "
-            "1:1 analysis has no excess reagent",
+            "the measured product holds no reagent besides the limiting one, so the all-bound "
+            "analysis has no excess reagent",
             field="reaction.species",
-            value=reaction.species[coloured].name,
-            hint="give the coloured product's formula with both reagents",
+            value=inputs.measured_species.name,
+            hint="give the measured product's formula with both reagents",
         )
-    return reaction.components.index(partners[0])
+    return inputs.reaction.components.index(inputs.design.limiting)
 
 
-def bench_experiment(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> BenchExperiment:
+def bench_experiment(
+    inputs: PlanInputs, mixtures: Sequence[Mixture], *, for_analysis: bool = True
+) -> BenchExperiment:
     """Describe one bench's set of mixtures for the uncertainty models.
 
     Parameters
@@ -236,8 +237,12 @@ def bench_experiment(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> BenchEx
     inputs
         The validated plan.
     mixtures
-        The plan's mixtures (blank, standards, tests), as :func:`planner.design.plan.design_plan`
-        makes them.
+        The plan's mixtures (blank, standards, tests), as the design stage makes them.
+    for_analysis
+        True (default): the set must hold a blank, a standard and a test, and the coloured
+        product an excess partner, as the analyses need. False: any mixtures, for the
+        readings' own uncertainty only (``excess`` is then the limiting component when the
+        product has no partner).
 
     Returns
     -------
@@ -250,7 +255,7 @@ def bench_experiment(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> BenchEx
         (field ``additions.devices``); a coloured product without an excess partner.
     """
     roles = [m.role for m in mixtures]
-    for role in ("blank", "standard", "test"):
+    for role in ("blank", "standard", "test") if for_analysis else ():
         if role not in roles:
             raise InvalidInputError(
                 f"the plan has no {role} mixture, so the analysis cannot be predicted",
@@ -269,7 +274,7 @@ def bench_experiment(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> BenchEx
     diluent = stock_ids.index(diluent_stock.id) if diluent_stock is not None else None
     in_flask = inputs.design.vessel_kind == "volumetric-flask"
     shelf = devices_by_id(inputs.glassware)
-    flask = flask_device(inputs)
+    flask = inputs.flask
     u_flask = standard_uncertainty_mL(flask) if flask is not None else 0.0
 
     volumes = np.zeros((len(mixtures), len(stock_ids)))
@@ -296,7 +301,7 @@ def bench_experiment(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> BenchEx
     totals_volume = np.array([m.total_volume_mL for m in mixtures], dtype=float)
     totals = volumes @ stock_M / totals_volume[:, None]
 
-    coloured = coloured_species_index(inputs)
+    coloured = inputs.measured
     species = reaction.species[coloured]
 
     def rows(role: str) -> NDArray[np.int64]:
@@ -322,7 +327,7 @@ def bench_experiment(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> BenchEx
         totals_M=totals,
         readings=np.array([m.absorbance for m in mixtures], dtype=float),
         limiting=components.index(inputs.design.limiting),
-        excess=_excess_component(inputs, coloured),
+        excess=_excess_column(inputs, required=for_analysis),
         coloured=coloured,
         path_length_cm=inputs.instrument.path_length_cm,
         absorbance_sd=inputs.instrument.absorbance_sd,

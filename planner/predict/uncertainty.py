@@ -44,7 +44,7 @@ from __future__ import annotations
 
 import functools
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, cast
 
 import numpy as np
@@ -54,7 +54,15 @@ from planner.chem.equilibrium import solve_equilibrium
 from planner.inputs import PlanInputs
 from planner.lab.photometer import observed_absorbance, true_absorbance
 from planner.predict._experiment import BenchExperiment, bench_experiment
-from planner.result import Mixture, Prediction
+from planner.result import (
+    COVERAGE_FACTOR_95,
+    Budget,
+    Contributor,
+    Mixture,
+    MixtureUncertainty,
+    Prediction,
+    UncertaintyResult,
+)
 
 __all__ = [
     "COVERAGE_FACTOR_95",
@@ -64,153 +72,14 @@ __all__ = [
     "UncertaintyResult",
     "prediction_from",
     "propagate",
+    "reading_uncertainties",
 ]
 
-#: Coverage factor of a 95 % interval for a normal distribution, k = 1.960 (JCGM 100:2008,
-#: Table G.1) [unitless].
-COVERAGE_FACTOR_95 = 1.960
 # Relative step of the central differences of the equilibrium and photometer (the only
 # sensitivity that has no closed form): the truncation error is ~1e-12 relative, far below 0.1 %.
 _EQUILIBRIUM_STEP = 1e-6
 
 _Function = Callable[..., Any]
-
-
-@dataclass(frozen=True, slots=True)
-class Contributor:
-    """One input's contribution to a measurand's uncertainty.
-
-    Attributes
-    ----------
-    input
-        What the input is, e.g. ``"reading of T3"`` or ``"buret-25mL delivering thiocyanate
-        into S2"``.
-    kind
-        ``"stock"``, ``"device-systematic"``, ``"delivery-random"``, ``"flask"`` or
-        ``"reading"``.
-    standard_uncertainty
-        u of the input, in ``unit``.
-    unit
-        ``"relative"`` (stock concentrations), ``"mL"`` or ``"absorbance"``.
-    sensitivity
-        Sensitivity coefficient of the measurand to the input [measurand unit per input unit].
-    contribution
-        |sensitivity| x u [measurand unit].
-    share
-        Fraction of the measurand's variance from this input [unitless]; the shares sum to 1.
-    formula
-        The sensitivity coefficient as the chain of model derivatives, each given by the
-        formula sympy derived.
-    """
-
-    input: str
-    kind: str
-    standard_uncertainty: float
-    unit: str
-    sensitivity: float
-    contribution: float
-    share: float
-    formula: str
-
-
-@dataclass(frozen=True, slots=True)
-class Budget:
-    """The uncertainty budget of one measurand.
-
-    Attributes
-    ----------
-    measurand
-        ``"epsilon"`` (curve through the origin), ``"epsilon_intercept"`` or ``"K"`` (mean K).
-    value
-        Estimate the usual analysis gives from the predicted readings [``unit``].
-    standard_uncertainty
-        Combined standard uncertainty [``unit``].
-    unit
-        ``"L mol-1 cm-1"`` or ``"L/mol"``.
-    contributors
-        Every input with a non-zero contribution, largest first.
-    """
-
-    measurand: str
-    value: float
-    standard_uncertainty: float
-    unit: str
-    contributors: tuple[Contributor, ...]
-
-    @property
-    def ci95(self) -> tuple[float, float]:
-        """value -/+ 1.96 u, the 95 % interval of a normal distribution [``unit``]."""
-        half = COVERAGE_FACTOR_95 * self.standard_uncertainty
-        return (self.value - half, self.value + half)
-
-
-@dataclass(frozen=True, slots=True)
-class MixtureUncertainty:
-    """First-order uncertainty of one mixture's composition and reading.
-
-    Attributes
-    ----------
-    id
-        Mixture id.
-    totals_M
-        Nominal total of each component [mol/L].
-    u_totals_M
-        Its standard uncertainty from stocks, deliveries and final volume [mol/L].
-    absorbance
-        Predicted reading (stray light applied, blank not subtracted) [unitless].
-    u_absorbance
-        Standard uncertainty of the reading: the composition's uncertainty through the
-        equilibrium and the photometer, plus the reading noise [unitless].
-    """
-
-    id: str
-    totals_M: dict[str, float]
-    u_totals_M: dict[str, float]
-    absorbance: float
-    u_absorbance: float
-
-    @property
-    def absorbance_ci95(self) -> tuple[float, float]:
-        """The reading's 95 % interval, absorbance -/+ 1.96 u [unitless]."""
-        half = COVERAGE_FACTOR_95 * self.u_absorbance
-        return (self.absorbance - half, self.absorbance + half)
-
-
-@dataclass(frozen=True, slots=True)
-class UncertaintyResult:
-    """The first-order prediction of the usual analysis.
-
-    Attributes
-    ----------
-    epsilon
-        Budget of the molar absorptivity from the curve through the origin.
-    epsilon_intercept
-        Budget of the molar absorptivity from the curve with an intercept.
-    K
-        Budget of the mean K (with eps from the curve through the origin).
-    K_per_test
-        (K, u(K)) of each test mixture, in plan order [L/mol].
-    mixtures
-        Per mixture composition and reading uncertainty, in plan order.
-    K_true
-        K the plan assumes [L/mol].
-    epsilon_true
-        Molar absorptivity the plan assumes [L mol⁻¹ cm⁻¹].
-    """
-
-    epsilon: Budget
-    epsilon_intercept: Budget
-    K: Budget
-    K_per_test: tuple[tuple[float, float], ...]
-    mixtures: tuple[MixtureUncertainty, ...]
-    K_true: float
-    epsilon_true: float
-    test_ids: tuple[str, ...] = field(default=())
-
-    @property
-    def K_bias_from_assumption(self) -> float:
-        """Relative bias of the mean K against the true K [unitless]."""
-        return self.K.value / self.K_true - 1.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -722,6 +591,54 @@ def _reading_sensitivity(inputs: PlanInputs, ex: BenchExperiment) -> NDArray[np.
     return result
 
 
+def _per_mixture(
+    inputs: PlanInputs, ex: BenchExperiment, elementary: _Inputs
+) -> tuple[MixtureUncertainty, ...]:
+    """Each mixture's composition and reading uncertainty (the reading responds to the actual
+    composition through the equilibrium and the photometer, plus the reading noise)."""
+    u = elementary.u
+    jac = elementary.totals_jacobian
+    u_totals = np.sqrt(np.einsum("mjz,z->mj", jac**2, u**2))
+    d_reading = _reading_sensitivity(inputs, ex)
+    reading_gradient = np.einsum("mj,mjz->mz", d_reading, jac)
+    u_reading = np.sqrt(((reading_gradient * u[None, :]) ** 2).sum(axis=1) + ex.absorbance_sd**2)
+    return tuple(
+        MixtureUncertainty(
+            id=mixture_id,
+            totals_M={c: float(ex.totals_M[m, j]) for j, c in enumerate(ex.components)},
+            u_totals_M={c: float(u_totals[m, j]) for j, c in enumerate(ex.components)},
+            absorbance=float(ex.readings[m]),
+            u_absorbance=float(u_reading[m]),
+        )
+        for m, mixture_id in enumerate(ex.mixture_ids)
+    )
+
+
+def reading_uncertainties(
+    inputs: PlanInputs, mixtures: Sequence[Mixture]
+) -> tuple[MixtureUncertainty, ...]:
+    """First-order uncertainty of every mixture's composition and reading, any set of mixtures.
+
+    The same per-mixture part as :func:`propagate` (which needs a blank, a standard and a test
+    for the analysis), for plans that cannot be analysed, so that every plan's u(A) comes from
+    one model.
+
+    Parameters
+    ----------
+    inputs
+        The validated plan.
+    mixtures
+        Any mixtures of the plan.
+
+    Returns
+    -------
+    tuple of MixtureUncertainty
+        In plan order.
+    """
+    ex = bench_experiment(inputs, mixtures, for_analysis=False)
+    return _per_mixture(inputs, ex, _elementary_inputs(ex, _models()))
+
+
 def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyResult:
     """First-order uncertainty of the usual analysis of one bench's set of mixtures.
 
@@ -787,23 +704,7 @@ def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyRes
     )
     u = elementary.u
     u_k = np.sqrt(((gradients.g_K * u[None, :]) ** 2).sum(axis=1))
-
-    # Each mixture's composition and reading (the reading responds to the actual composition).
-    jac = elementary.totals_jacobian
-    u_totals = np.sqrt(np.einsum("mjz,z->mj", jac**2, u**2))
-    d_reading = _reading_sensitivity(inputs, ex)
-    reading_gradient = np.einsum("mj,mjz->mz", d_reading, jac)
-    u_reading = np.sqrt(((reading_gradient * u[None, :]) ** 2).sum(axis=1) + ex.absorbance_sd**2)
-    per_mixture = tuple(
-        MixtureUncertainty(
-            id=mixture_id,
-            totals_M={c: float(ex.totals_M[m, j]) for j, c in enumerate(ex.components)},
-            u_totals_M={c: float(u_totals[m, j]) for j, c in enumerate(ex.components)},
-            absorbance=float(ex.readings[m]),
-            u_absorbance=float(u_reading[m]),
-        )
-        for m, mixture_id in enumerate(ex.mixture_ids)
-    )
+    per_mixture = _per_mixture(inputs, ex, elementary)
     return UncertaintyResult(
         epsilon=epsilon,
         epsilon_intercept=epsilon_i,

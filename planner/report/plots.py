@@ -48,7 +48,7 @@ if TYPE_CHECKING:
     from matplotlib.figure import Figure
 
     from planner.predict.montecarlo import Simulation, Summary
-    from planner.result import Mixture, Plan
+    from planner.result import Plan
 
 __all__ = [
     "PLAN_PLOTS",
@@ -282,29 +282,6 @@ def _both(stem: str, figure: Figure) -> dict[str, bytes]:
 # ---------------------------------------------------------------------------------------------
 
 
-def _coloured_index(plan: Plan) -> int | None:
-    """The most absorbing product species holding the limiting reagent (the design's rule)."""
-    reaction = plan.inputs.reaction
-    limiting = plan.inputs.design.limiting
-    holding = [i for i, sp in enumerate(reaction.species) if sp.formula.get(limiting, 0) > 0]
-    if not holding:
-        return None
-    return max(holding, key=lambda i: (reaction.species[i].epsilon, -i))
-
-
-def _excess_component(plan: Plan, standards: Sequence[Mixture]) -> str | None:
-    """The reagent in excess: the coloured product's other component with the largest total."""
-    index = _coloured_index(plan)
-    if index is None:
-        return None
-    formula = plan.inputs.reaction.species[index].formula
-    limiting = plan.inputs.design.limiting
-    others = [c for c in plan.inputs.reaction.components if c != limiting and formula.get(c, 0)]
-    if not others:
-        return None
-    return max(others, key=lambda c: max(m.initial_M.get(c, 0.0) for m in standards))
-
-
 def available_plan_plots(plan: Plan) -> tuple[str, ...]:
     """The plan figures that apply to a plan, by stem (a subset of :data:`PLAN_PLOTS`).
 
@@ -313,14 +290,13 @@ def available_plan_plots(plan: Plan) -> tuple[str, ...]:
     the limiting reagent; the coverage figure needs test mixtures.
     """
     standards = plan.by_role("standard")
-    index = _coloured_index(plan)
     names = []
-    if standards and index is not None:
+    if standards:
         limiting = plan.inputs.design.limiting
-        if plan.inputs.reaction.species[index].epsilon > 0:
+        if plan.inputs.measured_species.epsilon > 0:
             names.append("ladder")
         holding = any(m.initial_M.get(limiting, 0.0) > 0 for m in standards)
-        if holding and _excess_component(plan, standards) is not None:
+        if holding and plan.inputs.excess is not None:
             names.append("bound-fraction")
     if plan.by_role("test"):
         names.append("coverage")
@@ -395,9 +371,7 @@ def ladder_figure(plan: Plan) -> Figure:
     )
 
     _not_applicable(plan, "ladder")
-    index = _coloured_index(plan)
-    assert index is not None
-    species = plan.inputs.reaction.species[index]
+    species = plan.inputs.measured_species
     product = species.name
     limiting = plan.inputs.design.limiting
     coefficient = species.formula[limiting]
@@ -558,8 +532,7 @@ def _sweep(
     totals[:, excess_index] = excess_M
     solved = solve_equilibrium(totals, matrix, reaction.log_beta())
     bound = bound_fraction(solved.species_M, matrix, limiting, totals)
-    coloured = _coloured_index(plan)
-    assert coloured is not None
+    coloured = plan.inputs.measured
     in_coloured = solved.species_M[:, coloured] * matrix[coloured, limiting] / totals[:, limiting]
     return bound, in_coloured
 
@@ -612,7 +585,7 @@ def bound_fraction_figure(plan: Plan) -> Figure:
     """
     _not_applicable(plan, "bound-fraction")
     standards = plan.by_role("standard")
-    excess = _excess_component(plan, standards)
+    excess = plan.inputs.excess
     assert excess is not None
     reaction = plan.inputs.reaction
     components = reaction.components
@@ -692,7 +665,7 @@ def bound_fraction_figure(plan: Plan) -> Figure:
             )
         # Drawn only when it can be told apart from the curve of all products (1 % of the axis).
         if float(np.max(bound_high - coloured_high)) > 0.01:
-            coloured = reaction.species[_coloured_index(plan) or 0].name
+            coloured = plan.inputs.measured_species.name
             axes.plot(
                 x,
                 coloured_high,

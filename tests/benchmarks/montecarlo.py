@@ -18,7 +18,7 @@ from importlib.resources import files
 
 import numpy as np
 
-from planner.design.plan import design_plan
+from planner.pipeline import design_plan
 from planner.planfile import parse_plan
 from planner.predict.montecarlo import simulate
 

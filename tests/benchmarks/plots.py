@@ -23,7 +23,7 @@ import time
 _BODY = """
 import sys
 from planner.cli import _load
-from planner.design.plan import design_plan
+from planner.pipeline import design_plan
 from planner.report.outdir import plan_files, write_output_folder
 plan = design_plan(_load(None))
 files = plan_files(plan, date="2026-12-02", plots=sys.argv[1] == "plots")

@@ -14,7 +14,7 @@ from importlib.resources import files
 
 import numpy as np
 
-from planner.design.variants import design_variants
+from planner.pipeline import design_variants
 from planner.planfile import parse_plan
 from planner.report.variants_index import variants_files
 

@@ -14,7 +14,7 @@ from pathlib import Path
 import pytest
 
 from planner.design.candidates import candidate_set
-from planner.design.plan import design_plan
+from planner.pipeline import design_plan
 from planner.planfile import plan_from_mapping
 
 ROOT = Path(__file__).resolve().parents[2]

@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 
 from planner.chem.equilibrium import one_to_one_complex_M
-from planner.design.plan import design_plan
 from planner.lab.glassware import is_deliverable
+from planner.pipeline import design_plan
 from planner.planfile import load_plan
 
 ROOT = Path(__file__).resolve().parents[2]

@@ -9,7 +9,8 @@ import pytest
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.design.variants import design_variants, recipe_key
+from planner.design.variants import recipe_key
+from planner.pipeline import design_variants
 from planner.planfile import load_plan
 from planner.verify import verify_plan
 

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import pytest
 
-from planner.design.plan import design_plan
+from planner.pipeline import design_plan
 from planner.planfile import load_plan
 
 ROOT = Path(__file__).resolve().parents[2]

@@ -6,7 +6,7 @@ import dataclasses
 
 import pytest
 
-from planner.design.plan import design_plan
+from planner.pipeline import design_plan
 from planner.planfile import load_plan
 from planner.report.sheets import answer_key_html, answer_key_md
 from tests.predict.conftest import DEFAULT

@@ -13,8 +13,7 @@ import pytest
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.design.plan import design_plan
-from planner.design.variants import design_variants
+from planner.pipeline import design_plan, design_variants
 from planner.planfile import load_plan
 from planner.report.browser import (
     PRINTABLE_WIDTH_PX,

@@ -18,7 +18,7 @@ import pytest
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.design.plan import design_plan
+from planner.pipeline import design_plan
 from planner.planfile import load_plan
 from planner.predict.montecarlo import simulate
 from planner.report.outdir import plan_files

@@ -1,0 +1,151 @@
+"""The pipeline: design -> prediction -> verification, each stage run once.
+
+Every command and the public API go through here, so a number on any screen, sheet or JSON
+document comes from one stage, computed once:
+
+- :func:`planner.design.plan.design_recipes` chooses the recipes (and nothing else);
+- :func:`planner.predict.uncertainty.propagate` predicts the all-bound analysis's result and
+  every mixture's reading uncertainty u(A), once, on the final mixtures (all blanks
+  included); the plan keeps that whole prediction (:attr:`planner.result.Plan.uncertainty`);
+- :func:`planner.verify.verify_plan` re-checks the finished recipes from first principles.
+
+The layers below never call upward: ``design`` imports neither ``predict`` nor ``verify``;
+variants receive :func:`design_plan` as a callable.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Callable
+
+import numpy as np
+from numpy.typing import NDArray
+
+from planner.design.candidates import CandidateSet
+from planner.design.mixtures import Objective
+from planner.design.plan import design_recipes
+from planner.design.variants import VariantSet
+from planner.inputs import PlanInputs
+from planner.result import Mixture, Plan, Prediction, UncertaintyResult
+
+__all__ = ["design_plan", "design_variants", "predict_mixtures"]
+
+
+def _all_finite(value: object) -> bool:
+    """True when every number in a (nested) dataclass, tuple, dict or float is finite."""
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return all(_all_finite(getattr(value, f.name)) for f in dataclasses.fields(value))
+    if isinstance(value, (tuple, list)):
+        return all(_all_finite(v) for v in value)
+    if isinstance(value, dict):
+        return all(_all_finite(v) for v in value.values())
+    if isinstance(value, float):
+        return math.isfinite(value)
+    return True
+
+
+def predict_mixtures(
+    inputs: PlanInputs, mixtures: tuple[Mixture, ...]
+) -> tuple[tuple[Mixture, ...], UncertaintyResult | None, Prediction | None]:
+    """The prediction stage: every mixture's u(A), and the analysis's predicted result.
+
+    Parameters
+    ----------
+    inputs
+        The validated plan.
+    mixtures
+        The designed mixtures (``u_absorbance`` not yet filled).
+
+    Returns
+    -------
+    tuple
+        (the mixtures with ``u_absorbance`` from the first-order budget, the whole budget or
+        None when the plan cannot be analysed, the plan's ``prediction`` block or None when
+        the analysis has no finite result).
+    """
+    from planner.predict.uncertainty import prediction_from, propagate, reading_uncertainties
+
+    if not mixtures:
+        return mixtures, None, None
+    roles = {m.role for m in mixtures}
+    result: UncertaintyResult | None = None
+    prediction: Prediction | None = None
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        if {"blank", "standard", "test"} <= roles and inputs.excess is not None:
+            result = propagate(inputs, mixtures)
+            per_mixture = result.mixtures
+            # A test whose predicted product equals a reagent's total makes the 1:1 expression
+            # divide by zero: that analysis then has no prediction to offer (the global fit
+            # still does), so the plan carries none rather than an infinity.
+            candidate = prediction_from(result)
+            prediction = candidate if _all_finite(candidate) else None
+            if prediction is None:
+                result = None
+        else:
+            per_mixture = reading_uncertainties(inputs, mixtures)
+    by_id = {m.id: m.u_absorbance for m in per_mixture}
+    filled = tuple(dataclasses.replace(m, u_absorbance=by_id[m.id]) for m in mixtures)
+    return filled, result, prediction
+
+
+def design_plan(
+    inputs: PlanInputs,
+    objective: Objective | None = None,
+    *,
+    candidates: CandidateSet | None = None,
+    allowed: NDArray[np.bool_] | None = None,
+) -> Plan:
+    """Design, predict and verify a complete plan.
+
+    Parameters
+    ----------
+    inputs
+        Validated plan inputs.
+    objective
+        Scores a set of test mixtures (lower is better); see
+        :func:`planner.design.plan.design_recipes`.
+    candidates
+        Candidates already enumerated for these inputs (variants reuse one set).
+    allowed
+        Optional mask of the candidates standards and tests may use.
+
+    Returns
+    -------
+    Plan
+        With the design's feasibility findings and the verifier's checks; failed checks say
+        what binds. ``prediction``, ``uncertainty`` and every ``u_absorbance`` come from one
+        run of the prediction stage.
+    """
+    from planner.verify import verify_plan
+
+    design = design_recipes(inputs, objective, candidates=candidates, allowed=allowed)
+    mixtures, uncertainty, prediction = predict_mixtures(inputs, design.mixtures)
+    checks = design.checks + tuple(verify_plan(inputs, mixtures, design.totals))
+    return Plan(
+        inputs=inputs,
+        mixtures=mixtures,
+        totals=design.totals,
+        preparations=design.preparations,
+        checks=checks,
+        prediction=prediction,
+        notes=design.notes,
+        design_objective=design.objective,
+        uncertainty=uncertainty,
+    )
+
+
+def design_variants(
+    inputs: PlanInputs,
+    sections: int,
+    rng: np.random.Generator,
+    progress: Callable[[int, int], None] | None = None,
+) -> VariantSet:
+    """Distinct, verified per-section plans of equal difficulty (see
+    :func:`planner.design.variants.design_variants`), each made by :func:`design_plan`."""
+    from planner.design import variants
+
+    def make(one: PlanInputs, candidates: CandidateSet, allowed: NDArray[np.bool_] | None) -> Plan:
+        return design_plan(one, candidates=candidates, allowed=allowed)
+
+    return variants.design_variants(inputs, sections, rng, make, progress)

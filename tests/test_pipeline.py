@@ -1,0 +1,155 @@
+"""The pipeline runs each stage once, so every number on a sheet comes from one place.
+
+These are consistency checks between the commands' outputs (plan.json, the answer key and
+``planner simulate``): the same quantity must be the same number wherever it is printed.
+They are regression checks of our own design, not outside references.
+"""
+
+from __future__ import annotations
+
+import ast
+import json
+import re
+import tomllib
+from pathlib import Path
+
+import pytest
+from typer.testing import CliRunner
+
+from planner.cli import app
+
+runner = CliRunner()
+ROOT = Path(__file__).resolve().parents[1]
+DEFAULT = ROOT / "planner" / "data" / "default.toml"
+COVERAGE_95 = 1.960  # JCGM 100:2008, Table G.1: k for a 95 % interval of a normal distribution
+
+
+def _run(*args: str) -> str:
+    result = runner.invoke(app, list(args), catch_exceptions=False)
+    assert result.exit_code in (0, 1), result.output
+    return result.stdout
+
+
+def _with_blanks(tmp_path: Path, blanks: int) -> Path:
+    text = DEFAULT.read_text(encoding="utf-8")
+    assert "blanks" not in tomllib.loads(text)["design"]
+    text = text.replace("[design]\n", f"[design]\nblanks = {blanks}\n", 1)
+    path = tmp_path / f"blanks-{blanks}.toml"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+@pytest.fixture(scope="module", params=["default", "three-blanks"])
+def documents(request, tmp_path_factory):
+    if request.param == "default":
+        args: tuple[str, ...] = ()
+    else:
+        args = (str(_with_blanks(tmp_path_factory.mktemp("plan"), 3)),)
+    plan = json.loads(_run("plan", *args, "--format", "json"))
+    simulated = json.loads(
+        _run("simulate", *args, "--trials", "200", "--seed", "1", "--format", "json")
+    )
+    return plan, simulated
+
+
+def test_every_u_absorbance_is_the_first_order_one_simulate_reports(documents):
+    plan, simulated = documents
+    first_order = {m["id"]: m["gum_u_absorbance"] for m in simulated["mixtures"]}
+    assert set(first_order) == {m["id"] for m in plan["mixtures"]}
+    for mixture in plan["mixtures"]:
+        assert mixture["u_absorbance"] == pytest.approx(first_order[mixture["id"]], rel=1e-12)
+
+
+def test_plan_uncertainties_equal_the_first_order_ones_of_simulate(documents):
+    plan, simulated = documents
+    gum = simulated["gum"]
+    assert plan["prediction"]["u_epsilon"] == pytest.approx(gum["epsilon"]["u"], rel=0.01)
+    assert plan["prediction"]["u_K"] == pytest.approx(gum["K"]["u"], rel=0.01)
+    assert plan["prediction"]["epsilon"] == pytest.approx(gum["epsilon"]["value"], rel=1e-12)
+    assert plan["prediction"]["K"] == pytest.approx(gum["K"]["value"], rel=1e-12)
+
+
+def test_three_blanks_are_all_in_the_prediction(tmp_path):
+    # Averaging three blank readings lowers the blank's share of u(eps): a plan that used one
+    # blank in its prediction (and three in simulate) reported a larger u(eps).
+    one = json.loads(_run("plan", str(_with_blanks(tmp_path, 1)), "--format", "json"))
+    three = json.loads(_run("plan", str(_with_blanks(tmp_path, 3)), "--format", "json"))
+    assert three["prediction"]["u_epsilon"] < one["prediction"]["u_epsilon"]
+
+
+def test_answer_key_reading_ranges_are_1_96_u_of_plan_json(tmp_path):
+    out = tmp_path / "out"
+    _run("plan", "--out", str(out), "--date", "2026-12-03")
+    plan = json.loads((out / "plan.json").read_text(encoding="utf-8"))
+    key = (out / "answer-key.md").read_text(encoding="utf-8")
+    for mixture in plan["mixtures"]:
+        a, u = mixture["absorbance"], mixture["u_absorbance"]
+        low, high = a - COVERAGE_95 * u, a + COVERAGE_95 * u
+        row = re.search(rf"\| Reading of {mixture['id']} \| (-?[0-9.]+) \| (-?[0-9.]+) \|", key)
+        assert row is not None, mixture["id"]
+        assert row.group(1) == f"{low:.3f}"
+        assert row.group(2) == f"{high:.3f}"
+
+
+# ---------------------------------------------------------------------------------------------
+# The layers: no package imports one above it, and design does not import predict.
+# ---------------------------------------------------------------------------------------------
+
+# Rank of each unit of the package: a module may import units of its own rank or below only.
+_RANKS = {
+    "errors": 0,
+    "inputs": 1,
+    "chem": 2,
+    "lab": 2,
+    "result": 3,
+    "design": 4,
+    "verify": 4,
+    "predict": 4,
+    "pipeline": 5,
+    "planfile": 5,
+    "resultfile": 6,
+    "report": 7,
+    "cli": 8,
+    "__init__": 8,
+    "__main__": 9,
+}
+# Pairs of the same rank that must not import each other, in either direction.
+_APART = {("design", "predict"), ("design", "verify"), ("verify", "predict")}
+
+
+def _unit(module: str) -> str:
+    parts = module.split(".")
+    return parts[1] if len(parts) > 1 else "__init__"
+
+
+def _imports():
+    for path in sorted((ROOT / "planner").rglob("*.py")):
+        relative = path.relative_to(ROOT).with_suffix("")
+        unit = relative.parts[1] if len(relative.parts) > 1 else "__init__"
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            names: list[str] = []
+            if isinstance(node, ast.ImportFrom) and node.module and node.level == 0:
+                names = [node.module]
+            elif isinstance(node, ast.Import):
+                names = [alias.name for alias in node.names]
+            for name in names:
+                if name == "planner" or name.startswith("planner."):
+                    yield str(relative), unit, _unit(name)
+
+
+def test_no_unit_imports_one_above_it():
+    upward = [
+        f"{where} ({unit}) imports {target}"
+        for where, unit, target in _imports()
+        if target != unit and _RANKS[target] > _RANKS[unit]
+    ]
+    assert upward == []
+
+
+def test_design_verify_and_predict_do_not_import_each_other():
+    crossing = [
+        f"{where} imports {target}"
+        for where, unit, target in _imports()
+        if (unit, target) in _APART or (target, unit) in _APART
+    ]
+    assert crossing == []
