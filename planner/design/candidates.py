@@ -167,23 +167,30 @@ def stock_order(inputs: PlanInputs) -> tuple[Stock, ...]:
 
 
 def _thin(volumes: Sequence[DeliverableVolume], shelf: dict[str, Device]) -> list[Option]:
-    """Keep discrete volumes; thin long graded runs to a round step."""
-    options = [
+    """Keep discrete volumes; thin long graded runs to a round step.
+
+    Thinning looks at the volumes alone, so the delivery uncertainty is computed only for the
+    volumes kept (a shelf of fifteen graded devices lists some 15 000 volumes, of which at
+    most :data:`_MAX_GRADED_VOLUMES` survive).
+    """
+    kept = list(volumes)
+    if len(kept) > _MAX_GRADED_VOLUMES:
+        for step in _ROUND_STEPS_mL:
+            step_nL = round(step * _NL_PER_ML)
+            rounded = [v for v in kept if round(v.volume_mL * _NL_PER_ML) % step_nL == 0]
+            if len(rounded) <= _MAX_GRADED_VOLUMES:
+                kept = rounded
+                break
+        else:
+            kept = kept[:: max(1, len(kept) // _MAX_GRADED_VOLUMES)]
+    return [
         Option(
             volume_mL=v.volume_mL,
             devices=v.best,
             u_mL=combination_uncertainty_mL(shelf, v.best, v.volume_mL),
         )
-        for v in volumes
+        for v in kept
     ]
-    if len(options) <= _MAX_GRADED_VOLUMES:
-        return options
-    for step in _ROUND_STEPS_mL:
-        step_nL = round(step * _NL_PER_ML)
-        kept = [o for o in options if round(o.volume_mL * _NL_PER_ML) % step_nL == 0]
-        if len(kept) <= _MAX_GRADED_VOLUMES:
-            return kept
-    return options[:: max(1, len(options) // _MAX_GRADED_VOLUMES)]
 
 
 def _volume_key(volume_mL: float) -> int:
