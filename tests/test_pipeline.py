@@ -102,6 +102,7 @@ _RANKS = {
     "chem": 2,
     "lab": 2,
     "result": 3,
+    "forward": 3,
     "design": 4,
     "verify": 4,
     "predict": 4,

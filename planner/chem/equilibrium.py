@@ -223,9 +223,7 @@ def _check_inputs(
     return totals, matrix, logs
 
 
-def _small_product(
-    left: NDArray[np.float64], right: NDArray[np.float64]
-) -> NDArray[np.float64]:
+def _small_product(left: NDArray[np.float64], right: NDArray[np.float64]) -> NDArray[np.float64]:
     """left @ right for a small left matrix (a, b) and a long right (b, n), or a vector.
 
     Written as b scaled vector additions instead of a BLAS call: for a handful of components
@@ -245,7 +243,7 @@ def _small_product(
             if left[i, k] != 0.0:
                 row = row + left[i, k] * right[k]
         rows.append(row)
-    return np.stack(rows) if rows else np.zeros((0,) + right.shape[1:])
+    return np.stack(rows) if rows else np.zeros((0, *right.shape[1:]))
 
 
 def _species_log(

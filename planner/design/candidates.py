@@ -21,8 +21,9 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from planner.chem.equilibrium import bound_fraction, solve_equilibrium
+from planner.chem.equilibrium import bound_fraction
 from planner.chem.mixing import IonTable, ion_table, ionic_strength_after_reaction_M, mix_M
+from planner.forward import predict_readings
 from planner.inputs import Device, PlanInputs, Stock
 from planner.lab.glassware import (
     DeliverableVolume,
@@ -31,7 +32,6 @@ from planner.lab.glassware import (
     devices_by_id,
     standard_uncertainty_mL,
 )
-from planner.lab.photometer import observed_absorbance, true_absorbance
 
 __all__ = [
     "CandidateSet",
@@ -391,12 +391,8 @@ def evaluate(
         if col is not None:
             totals[:, j] = initial[:, col]
     matrix = reaction.stoichiometry()
-    solved = solve_equilibrium(totals, matrix, reaction.log_beta())
-    absorbers = np.concatenate([solved.species_M, solved.free_M], axis=1)
-    epsilon = np.concatenate([reaction.species_epsilon(), reaction.free_epsilon()])
-    path = inputs.instrument.path_length_cm
-    true_a = np.asarray(true_absorbance(absorbers, epsilon, path), dtype=float)
-    observed = np.asarray(observed_absorbance(true_a, inputs.instrument.stray_light), dtype=float)
+    solved = predict_readings(reaction, inputs.instrument, totals)
+    true_a, observed = solved.true_absorbance, solved.absorbance
     limiting = reaction.components.index(inputs.design.limiting)
     fraction = bound_fraction(solved.species_M, matrix, limiting, totals)
     coloured = inputs.measured

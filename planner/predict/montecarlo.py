@@ -54,10 +54,9 @@ from numpy.typing import NDArray
 from scipy.interpolate import CubicSpline
 from scipy.optimize import least_squares
 
-from planner.chem.equilibrium import solve_equilibrium
 from planner.errors import InvalidInputError
+from planner.forward import predict_readings
 from planner.inputs import PlanInputs
-from planner.lab.photometer import observed_absorbance
 from planner.predict._experiment import BenchExperiment, bench_experiment, triangular_half_width
 from planner.predict.analysis import taught_epsilon, taught_K
 from planner.result import Mixture
@@ -291,15 +290,8 @@ def _simulate_readings(
 
     amounts = np.einsum("tms,sj->tmj", volumes * stock_factor[:, None, :], ex.stock_M)
     totals = np.maximum(amounts / total[:, :, None], 0.0).reshape(n * n_mix, -1)
-    reaction = inputs.reaction
-    solved = solve_equilibrium(totals, reaction.stoichiometry(), reaction.log_beta())
-    per_cm = solved.species_M @ reaction.species_epsilon() + solved.free_M @ (
-        reaction.free_epsilon()
-    )
-    true_a = (ex.path_length_cm * per_cm).reshape(n, n_mix)
-    result: NDArray[np.float64] = (
-        observed_absorbance(true_a, ex.stray_light) + ex.absorbance_sd * noise
-    )
+    readings = predict_readings(inputs.reaction, inputs.instrument, totals).absorbance
+    result: NDArray[np.float64] = readings.reshape(n, n_mix) + ex.absorbance_sd * noise
     return result
 
 
@@ -319,7 +311,6 @@ class _ExactModel:
 
 def _exact_model(inputs: PlanInputs, ex: BenchExperiment) -> _ExactModel:
     reaction = inputs.reaction
-    matrix = reaction.stoichiometry()
     logs = reaction.log_beta()
     others = reaction.species_epsilon().copy()
     others[ex.coloured] = 0.0
@@ -330,9 +321,13 @@ def _exact_model(inputs: PlanInputs, ex: BenchExperiment) -> _ExactModel:
     for i, node in enumerate(nodes):
         trial_logs = logs.copy()
         trial_logs[ex.coloured] = node
-        solved = solve_equilibrium(ex.totals_M, matrix, trial_logs)
+        # The forward model with the measured species made transparent gives every other
+        # absorber's share h; its concentration g comes with it.
+        solved = predict_readings(
+            reaction, inputs.instrument, ex.totals_M, log_beta=trial_logs, species_epsilon=others
+        )
         table[i, :n_mix] = solved.species_M[:, ex.coloured]
-        table[i, n_mix:] = solved.species_M @ others + solved.free_M @ reaction.free_epsilon()
+        table[i, n_mix:] = solved.true_absorbance / ex.path_length_cm
     return _ExactModel(
         gh=CubicSpline(nodes, table, axis=0), low=float(nodes[0]), high=float(nodes[-1])
     )
@@ -478,10 +473,7 @@ def exact_fit_least_squares(
     """
     ex = bench_experiment(inputs, mixtures)
     reaction = inputs.reaction
-    matrix = reaction.stoichiometry()
     logs = reaction.log_beta()
-    others = reaction.species_epsilon().copy()
-    others[ex.coloured] = 0.0
     fit = np.concatenate([ex.standards, ex.tests])
     data = np.asarray(readings, dtype=float)
     net = data[fit] - data[ex.blanks].mean()
@@ -490,13 +482,11 @@ def exact_fit_least_squares(
     def residuals(theta: NDArray[np.float64]) -> NDArray[np.float64]:
         trial = logs.copy()
         trial[ex.coloured] = theta[1]
-        solved = solve_equilibrium(ex.totals_M, matrix, trial)
-        per_cm = (
-            theta[0] * scale * solved.species_M[:, ex.coloured]
-            + solved.species_M @ others
-            + solved.free_M @ reaction.free_epsilon()
-        )
-        observed = observed_absorbance(ex.path_length_cm * per_cm, ex.stray_light)
+        epsilon = reaction.species_epsilon().copy()
+        epsilon[ex.coloured] = theta[0] * scale
+        observed = predict_readings(
+            reaction, inputs.instrument, ex.totals_M, log_beta=trial, species_epsilon=epsilon
+        ).absorbance
         result: NDArray[np.float64] = observed[fit] - observed[ex.blanks].mean() - net
         return result
 

@@ -50,9 +50,8 @@ from typing import Any, cast
 import numpy as np
 from numpy.typing import NDArray
 
-from planner.chem.equilibrium import solve_equilibrium
+from planner.forward import predict_readings
 from planner.inputs import PlanInputs
-from planner.lab.photometer import observed_absorbance, true_absorbance
 from planner.predict._experiment import BenchExperiment, bench_experiment
 from planner.result import (
     COVERAGE_FACTOR_95,
@@ -565,16 +564,9 @@ def _reading_sensitivity(inputs: PlanInputs, ex: BenchExperiment) -> NDArray[np.
     difference (JCGM 100:2008, 5.1.3, note 2, allows sensitivity coefficients found
     numerically), with a relative step of 1e-6.
     """
-    reaction = inputs.reaction
-    matrix = reaction.stoichiometry()
-    logs = reaction.log_beta()
-    absorptivity = np.concatenate([reaction.species_epsilon(), reaction.free_epsilon()])
 
     def reading(totals: NDArray[np.float64]) -> NDArray[np.float64]:
-        solved = solve_equilibrium(totals, matrix, logs)
-        absorbers = np.concatenate([solved.species_M, solved.free_M], axis=1)
-        a = true_absorbance(absorbers, absorptivity, ex.path_length_cm)
-        return np.asarray(observed_absorbance(a, ex.stray_light), dtype=float)
+        return predict_readings(inputs.reaction, inputs.instrument, totals).absorbance
 
     result = np.zeros_like(ex.totals_M)
     for j in range(len(ex.components)):

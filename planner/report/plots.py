@@ -523,18 +523,13 @@ def _sweep(
 
     Returns (all products, the coloured product only), each shape (n,) [unitless].
     """
-    from planner.chem.equilibrium import bound_fraction, solve_equilibrium
+    from planner.forward import bound_fraction_sweep
 
-    reaction = plan.inputs.reaction
-    matrix = reaction.stoichiometry()
-    limiting = reaction.components.index(plan.inputs.design.limiting)
-    totals = np.tile(base_totals_M, (excess_M.size, 1))
-    totals[:, excess_index] = excess_M
-    solved = solve_equilibrium(totals, matrix, reaction.log_beta())
-    bound = bound_fraction(solved.species_M, matrix, limiting, totals)
-    coloured = plan.inputs.measured
-    in_coloured = solved.species_M[:, coloured] * matrix[coloured, limiting] / totals[:, limiting]
-    return bound, in_coloured
+    inputs = plan.inputs
+    limiting = inputs.reaction.components.index(inputs.design.limiting)
+    return bound_fraction_sweep(
+        inputs.reaction, base_totals_M, limiting, inputs.measured, excess_index, excess_M
+    )
 
 
 def _crossing(x: NDArray[np.float64], y: NDArray[np.float64], level: float) -> float | None:

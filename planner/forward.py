@@ -1,0 +1,140 @@
+"""The forward model: component totals -> equilibrium -> Beer-Lambert -> photometer reading.
+
+One function, :func:`predict_readings`, turns the total concentration of every reaction
+component in a batch of mixtures into what the photometer reads: the exact mass-action
+equilibrium (:func:`planner.chem.equilibrium.solve_equilibrium`), the absorbance of every
+absorber, product species and free components alike (Beer-Lambert with several absorbers), and
+the stray-light response of the photometer. The design's candidates, the first-order
+prediction, the virtual class (Monte Carlo), the global fit and the figures all call it, so
+they cannot disagree about a reading. :mod:`planner.verify` keeps its own re-derivation on
+purpose (it checks this model's results).
+
+References
+----------
+Skoog, Holler and Crouch, Principles of Instrumental Analysis, 7th ed., 2017, sections 13B-1
+(Beer's law for mixtures) and 13B-2 (stray radiation), from memory.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from planner.chem.equilibrium import bound_fraction, solve_equilibrium
+from planner.inputs import Instrument, Reaction
+from planner.lab.photometer import observed_absorbance, true_absorbance
+
+__all__ = ["Readings", "bound_fraction_sweep", "predict_readings"]
+
+
+@dataclass(frozen=True, slots=True)
+class Readings:
+    """The forward model's result for a batch of mixtures.
+
+    Attributes
+    ----------
+    free_M
+        Free concentration of each component, shape (n, n_components) [mol/L].
+    species_M
+        Concentration of each product species, shape (n, n_species) [mol/L].
+    true_absorbance
+        Beer-Lambert absorbance of every absorber together, shape (n,) [unitless].
+    absorbance
+        The photometer's reading, stray light applied, blank not subtracted, shape (n,)
+        [unitless].
+    """
+
+    free_M: NDArray[np.float64]
+    species_M: NDArray[np.float64]
+    true_absorbance: NDArray[np.float64]
+    absorbance: NDArray[np.float64]
+
+
+def predict_readings(
+    reaction: Reaction,
+    instrument: Instrument,
+    total_M: ArrayLike,
+    *,
+    log_beta: ArrayLike | None = None,
+    species_epsilon: ArrayLike | None = None,
+) -> Readings:
+    """Predict the photometer reading of every mixture from its component totals.
+
+    Parameters
+    ----------
+    reaction
+        Components, product species (formulae, constants, absorptivities) and the absorbing
+        free components.
+    instrument
+        Path length and stray light.
+    total_M
+        Total of each component in each mixture, shape (n, n_components) [mol/L].
+    log_beta
+        log10 beta of each product species, shape (n_species,), instead of the reaction's
+        (the global fit varies the measured species' constant).
+    species_epsilon
+        Molar absorptivity of each product species, shape (n_species,), instead of the
+        reaction's [L mol⁻¹ cm⁻¹].
+
+    Returns
+    -------
+    Readings
+    """
+    totals = np.asarray(total_M, dtype=float)
+    logs = reaction.log_beta() if log_beta is None else np.asarray(log_beta, dtype=float)
+    epsilon = (
+        reaction.species_epsilon()
+        if species_epsilon is None
+        else np.asarray(species_epsilon, dtype=float)
+    )
+    solved = solve_equilibrium(totals, reaction.stoichiometry(), logs)
+    absorbers = np.concatenate([solved.species_M, solved.free_M], axis=1)
+    absorptivity = np.concatenate([epsilon, reaction.free_epsilon()])
+    true_a = np.asarray(
+        true_absorbance(absorbers, absorptivity, instrument.path_length_cm), dtype=float
+    )
+    return Readings(
+        free_M=solved.free_M,
+        species_M=solved.species_M,
+        true_absorbance=true_a,
+        absorbance=observed_absorbance(true_a, instrument.stray_light),
+    )
+
+
+def bound_fraction_sweep(
+    reaction: Reaction,
+    base_total_M: NDArray[np.float64],
+    limiting: int,
+    measured: int,
+    excess: int,
+    excess_M: NDArray[np.float64],
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Bound fraction of the limiting reagent as the excess reagent's total is swept.
+
+    Parameters
+    ----------
+    reaction
+        The reaction.
+    base_total_M
+        Component totals the sweep starts from, shape (n_components,) [mol/L].
+    limiting, measured, excess
+        Column of the limiting component, row of the measured species, column of the excess
+        component.
+    excess_M
+        Totals of the excess component to evaluate, shape (n,) [mol/L].
+
+    Returns
+    -------
+    tuple
+        (fraction held in all products, fraction held in the measured species alone), each
+        shape (n,) [unitless], weighted by coefficient.
+    """
+    matrix = reaction.stoichiometry()
+    totals = np.tile(np.asarray(base_total_M, dtype=float), (excess_M.size, 1))
+    totals[:, excess] = excess_M
+    solved = solve_equilibrium(totals, matrix, reaction.log_beta())
+    bound = bound_fraction(solved.species_M, matrix, limiting, totals)
+    in_measured = solved.species_M[:, measured] * matrix[measured, limiting] / totals[:, limiting]
+    return bound, in_measured
