@@ -103,6 +103,7 @@ _RANKS = {
     "lab": 2,
     "result": 3,
     "forward": 3,
+    "analysis": 3,
     "design": 4,
     "verify": 4,
     "predict": 4,

@@ -18,6 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
+from planner.analysis import all_bound_K_log_sensitivities
 from planner.design.candidates import CandidateSet
 from planner.inputs import PlanInputs
 
@@ -89,11 +90,7 @@ def per_mixture_relative_u_K(
     x = ev.species_M[indices, coloured]
     m0 = ev.total_M[indices, excess]
     l0 = ev.total_M[indices, limiting]
-    free_m = np.maximum(m0 - x, 1e-300)
-    free_l = np.maximum(l0 - x, 1e-300)
-    s_x = 1.0 + x / free_m + x / free_l
-    s_m = m0 / free_m
-    s_l = l0 / free_l
+    s_x, s_m, s_l = all_bound_K_log_sensitivities(x, m0, l0)
     a_net = np.maximum(ev.true_absorbance[indices], 1e-12)
     u_x = inputs.instrument.absorbance_sd / a_net
     u_m = candidates.u_relative_total[indices, excess]
@@ -163,10 +160,10 @@ def _x_sensitivity(
     coloured = inputs.measured
     excess = reaction.components.index(inputs.excess) if inputs.excess is not None else limiting
     x = ev.species_M[indices, coloured]
-    free_m = np.maximum(ev.total_M[indices, excess] - x, 1e-300)
-    free_l = np.maximum(ev.total_M[indices, limiting] - x, 1e-300)
-    result: NDArray[np.float64] = 1.0 + x / free_m + x / free_l
-    return result
+    s_x, _, _ = all_bound_K_log_sensitivities(
+        x, ev.total_M[indices, excess], ev.total_M[indices, limiting]
+    )
+    return s_x
 
 
 def _swap_search(

@@ -42,6 +42,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
+from planner.analysis import Layout
 from planner.errors import InvalidInputError
 from planner.inputs import Device, PlanInputs
 from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
@@ -50,6 +51,7 @@ from planner.result import Mixture
 __all__ = [
     "BenchExperiment",
     "Delivery",
+    "analysis_layout",
     "bench_experiment",
     "delivery_split_mL",
     "triangular_half_width",
@@ -334,6 +336,21 @@ def bench_experiment(
         stray_light=inputs.instrument.stray_light,
         K_true=float(10.0**species.log_beta),
         epsilon_true=float(species.epsilon),
+    )
+
+
+def analysis_layout(ex: BenchExperiment) -> Layout:
+    """The set of mixtures as the analyses of :mod:`planner.analysis` see it."""
+    return Layout(
+        totals_M=ex.totals_M,
+        blanks=ex.blanks,
+        standards=ex.standards,
+        tests=ex.tests,
+        limiting=ex.limiting,
+        excess=ex.excess,
+        measured=ex.coloured,
+        epsilon_expected=ex.epsilon_true,
+        K_expected=ex.K_true,
     )
 
 

@@ -15,29 +15,17 @@ distributions by a Monte Carlo method). A trial draws, per the error model of
   through the photometer's stray-light response at the plan's stray-light fraction, plus
   normal noise of SD ``absorbance_sd``.
 
-Every trial is then analysed from the recipe's nominal concentrations, as a class would:
+Every trial is then analysed from the recipe's nominal concentrations, as a class would, by
+the two analyses of :mod:`planner.analysis`:
 
-- **taught**: the limiting reagent assumed fully bound in the standards, the standard curve
-  through the origin and K from each test mixture with the 1:1 expression, averaged
-  (:func:`planner.predict.analysis.taught_epsilon`, :func:`~planner.predict.analysis.taught_K`);
-- **exact**: a global least-squares fit of the coloured product's molar absorptivity and
-  formation constant to every blank-subtracted standard and test reading, with the full
-  equilibrium model (the other species' constants and absorptivities, and the stray light, as
-  the plan gives them).
-
-How the exact fits are vectorised
----------------------------------
-Fitting 1e5 trials one by one with :func:`scipy.optimize.least_squares` would take minutes,
-and the equilibrium solver takes one set of constants per call. But the analyst's model
-depends on the trial only through the readings: at the nominal concentrations, each
-mixture's coloured-product concentration is a smooth function of log10 K alone. That
-function is tabulated once per plan on a fine grid of log10 K (one solve per node) and
-interpolated by cubic splines (interpolation error below 1e-7 relative, far below the noise).
-Every trial is then fitted at once by a vectorised Levenberg-Marquardt iteration (Nocedal and
-Wright, Numerical Optimization, 2nd ed., 2006, section 10.3) on (eps, log10 K), started from
-the trial's own taught estimates. All trials are fitted, none subsampled; the tests check the
-result against :func:`scipy.optimize.least_squares` on the direct model
-(:func:`exact_fit_least_squares`).
+- **all-bound analysis**: the limiting reagent assumed fully bound in the standards, the
+  standard curve through the origin and K from each test mixture with the 1:1 expression,
+  averaged (:func:`planner.analysis.all_bound_mean_K`);
+- **global fit**: a least-squares fit of the measured product's molar absorptivity and
+  formation constant to every blank-subtracted standard and test reading with the full
+  equilibrium model (:func:`planner.analysis.global_fit_batch`, vectorised over all trials,
+  none subsampled; the tests check it against :func:`planner.analysis.global_fit`, which
+  calls scipy.optimize.least_squares on the direct model).
 
 Same inputs, trial count and seed give identical results: all randomness comes from the
 ``numpy.random.Generator`` passed in, drawn in a fixed order in chunks of a fixed size.
@@ -51,14 +39,24 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.interpolate import CubicSpline
-from scipy.optimize import least_squares
 
+from planner.analysis import (
+    all_bound_mean_K,
+    global_fit,
+    global_fit_batch,
+    global_fit_start_offset,
+    global_fit_starts,
+    global_fit_table,
+)
 from planner.errors import InvalidInputError
 from planner.forward import predict_readings
 from planner.inputs import PlanInputs
-from planner.predict._experiment import BenchExperiment, bench_experiment, triangular_half_width
-from planner.predict.analysis import taught_epsilon, taught_K
+from planner.predict._experiment import (
+    BenchExperiment,
+    analysis_layout,
+    bench_experiment,
+    triangular_half_width,
+)
 from planner.result import Mixture
 
 __all__ = [
@@ -74,14 +72,6 @@ __all__ = [
 #: Trials simulated per chunk: 5000 trials x ~10 mixtures keeps the solver's arrays in cache
 #: (measured several times faster than one pass over 1e6 rows) and lets progress be reported.
 CHUNK_TRIALS = 5000
-# The exact model is tabulated over log10 K within this many decades of the plan's value, on
-# nodes this far apart; a fit leaving the table has failed (K off by more than 30x).
-_TABLE_DECADES = 1.5
-_TABLE_STEP = 0.0125
-_MAX_ITERATIONS = 60
-_LN10 = math.log(10.0)
-# Levenberg-Marquardt stops when a step changes no parameter by more than this (relative).
-_STEP_TOLERANCE = 1e-9
 
 Progress = Callable[[int, int], None]
 
@@ -295,225 +285,15 @@ def _simulate_readings(
     return result
 
 
-@dataclass(frozen=True, slots=True)
-class _ExactModel:
-    """The analyst's model at the nominal concentrations, tabulated over log10 K.
-
-    A_true(eps, lg) = b (eps g(lg) + h(lg)) for each mixture: g the coloured product's
-    concentration [mol/L], h the absorbance per cm of every other absorber [1/cm]. One spline
-    holds both, columns [g, h], so one call evaluates every mixture.
-    """
-
-    gh: CubicSpline
-    low: float
-    high: float
-
-
-def _exact_model(inputs: PlanInputs, ex: BenchExperiment) -> _ExactModel:
-    reaction = inputs.reaction
-    logs = reaction.log_beta()
-    others = reaction.species_epsilon().copy()
-    others[ex.coloured] = 0.0
-    centre = float(logs[ex.coloured])
-    nodes = np.arange(-_TABLE_DECADES, _TABLE_DECADES + _TABLE_STEP / 2, _TABLE_STEP) + centre
-    n_mix = len(ex.mixture_ids)
-    table = np.empty((nodes.size, 2 * n_mix))
-    for i, node in enumerate(nodes):
-        trial_logs = logs.copy()
-        trial_logs[ex.coloured] = node
-        # The forward model with the measured species made transparent gives every other
-        # absorber's share h; its concentration g comes with it.
-        solved = predict_readings(
-            reaction, inputs.instrument, ex.totals_M, log_beta=trial_logs, species_epsilon=others
-        )
-        table[i, :n_mix] = solved.species_M[:, ex.coloured]
-        table[i, n_mix:] = solved.true_absorbance / ex.path_length_cm
-    return _ExactModel(
-        gh=CubicSpline(nodes, table, axis=0), low=float(nodes[0]), high=float(nodes[-1])
-    )
-
-
-def _exact_residuals(
-    ex: BenchExperiment,
-    model: _ExactModel,
-    theta: NDArray[np.float64],
-    net: NDArray[np.float64],
-    scale: float,
-) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
-    """Residuals and their derivatives in eps / scale and in log10 K, each (n, n_fit)."""
-    b = ex.path_length_cm
-    s = ex.stray_light
-    n_mix = len(ex.mixture_ids)
-    epsilon = theta[:, 0:1] * scale
-    values = model.gh(theta[:, 1])
-    slopes = model.gh(theta[:, 1], 1)
-    g = values[:, :n_mix]
-    true_a = b * (epsilon * g + values[:, n_mix:])
-    transmitted = np.exp(-_LN10 * true_a)
-    # A_obs = log10((1 + s)/(10^-A + s)), so d A_obs / d A = 10^-A / (10^-A + s).
-    observed = math.log10(1.0 + s) - np.log10(transmitted + s)
-    slope = transmitted / (transmitted + s)
-    d_eps = (slope * b * scale) * g
-    d_lg = (slope * b) * (epsilon * slopes[:, :n_mix] + slopes[:, n_mix:])
-    fit = np.concatenate([ex.standards, ex.tests])
-
-    def net_of_blank(a: NDArray[np.float64]) -> NDArray[np.float64]:
-        result: NDArray[np.float64] = a[:, fit] - a[:, ex.blanks].mean(axis=1, keepdims=True)
-        return result
-
-    return net_of_blank(observed) - net[:, fit], net_of_blank(d_eps), net_of_blank(d_lg)
-
-
-def _fit_exact(
-    ex: BenchExperiment,
-    model: _ExactModel,
-    net: NDArray[np.float64],
-    start: NDArray[np.float64],
-) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-    """Vectorised Levenberg-Marquardt fit of (eps, log10 K) per trial; NaN where it fails.
-
-    ``start`` is (n, 2): eps [L mol⁻¹ cm⁻¹] and log10 K of each trial's starting point.
-    """
-    n = net.shape[0]
-    scale = ex.epsilon_true if ex.epsilon_true > 0 else 1.0
-    theta = np.stack([start[:, 0] / scale, np.clip(start[:, 1], model.low, model.high)], axis=1)
-    damping = np.full(n, 1e-6)
-    active = np.ones(n, dtype=bool)
-    converged = np.zeros(n, dtype=bool)
-    residual, j_eps, j_lg = _exact_residuals(ex, model, theta, net, scale)
-    cost = (residual**2).sum(axis=1)
-    for _ in range(_MAX_ITERATIONS):
-        idx = np.flatnonzero(active)
-        if idx.size == 0:
-            break
-        th, r, je, jl = theta[idx], residual[idx], j_eps[idx], j_lg[idx]
-        lam = damping[idx]
-        # (J^T J + lambda diag(J^T J)) step = -J^T r, solved in closed form for 2 parameters.
-        a11 = (je * je).sum(axis=1) * (1 + lam)
-        a22 = (jl * jl).sum(axis=1) * (1 + lam)
-        a12 = (je * jl).sum(axis=1)
-        g1 = (je * r).sum(axis=1)
-        g2 = (jl * r).sum(axis=1)
-        det = a11 * a22 - a12 * a12
-        singular = ~(det > 0)
-        safe = np.where(singular, 1.0, det)
-        step = np.stack([-(a22 * g1 - a12 * g2) / safe, -(a11 * g2 - a12 * g1) / safe], axis=1)
-        step[singular] = 0.0
-        candidate = th + step
-        # A molar absorptivity is not negative, and log10 K stays inside the table.
-        candidate[:, 0] = np.maximum(candidate[:, 0], 0.0)
-        candidate[:, 1] = np.clip(candidate[:, 1], model.low, model.high)
-        with np.errstate(over="ignore", invalid="ignore"):
-            new_r, new_je, new_jl = _exact_residuals(ex, model, candidate, net[idx], scale)
-        new_cost = (new_r**2).sum(axis=1)
-        better = (new_cost <= cost[idx]) & ~singular  # False for a NaN cost
-        accepted = idx[better]
-        theta[accepted] = candidate[better]
-        residual[accepted] = new_r[better]
-        j_eps[accepted] = new_je[better]
-        j_lg[accepted] = new_jl[better]
-        cost[accepted] = new_cost[better]
-        damping[idx] = np.where(better, lam * 0.1, lam * 10.0)
-        small = np.all(np.abs(step) <= _STEP_TOLERANCE * (1.0 + np.abs(th)), axis=1)
-        # Finished: a tiny step that lowered the cost, or a tiny undamped step that could not
-        # (the minimum to rounding), or damping grown huge; a singular normal matrix fails.
-        finished = ((small & (better | (lam < 1.0))) | (damping[idx] > 1e12)) & ~singular
-        converged[idx[finished]] = True
-        active[idx[finished | singular]] = False
-    edge = (theta[:, 1] <= model.low) | (theta[:, 1] >= model.high)
-    ok = converged & ~edge & (theta[:, 0] > 0)
-    epsilon = np.where(ok, theta[:, 0] * scale, np.nan)
-    k = np.where(ok, 10.0 ** theta[:, 1], np.nan)
-    return epsilon, k
-
-
-def _starts(
-    ex: BenchExperiment,
-    model: _ExactModel,
-    eps_taught: NDArray[np.float64],
-    k_taught: NDArray[np.float64],
-    offset: tuple[float, float],
-) -> NDArray[np.float64]:
-    """Start each fit at its taught estimates moved by the taught analysis's known offset.
-
-    ``offset`` is (eps, log10 K) of the exact fit minus the taught analysis on the noise-free
-    readings, so the start lies within the noise of the minimum and the fit needs a few steps.
-    The start does not choose the minimum, only how fast it is reached; where the taught
-    values are unusable (K not positive) the fit starts from the plan's constants.
-    """
-    usable = np.isfinite(k_taught) & (k_taught > 0) & np.isfinite(eps_taught) & (eps_taught > 0)
-    lg = np.log10(np.where(usable, k_taught, 1.0)) + offset[1]
-    eps = eps_taught + offset[0]
-    eps = np.where(usable & (eps > 0), eps, ex.epsilon_true)
-    lg = np.where(usable, lg, math.log10(ex.K_true))
-    return np.stack([eps, np.clip(lg, model.low, model.high)], axis=1)
-
-
 def exact_fit_least_squares(
     inputs: PlanInputs, mixtures: Sequence[Mixture], readings: NDArray[np.float64]
 ) -> tuple[float, float]:
-    """The exact analysis of one set of readings with scipy.optimize.least_squares.
+    """The global fit of one bench's readings by :func:`planner.analysis.global_fit`.
 
-    The reference for the vectorised fit of :func:`simulate`: the equilibrium is solved
-    directly at every evaluation, without the tabulation.
-
-    Parameters
-    ----------
-    inputs
-        The validated plan.
-    mixtures
-        The plan's mixtures.
-    readings
-        One bench's readings, one per mixture in plan order, blank not subtracted [unitless].
-
-    Returns
-    -------
-    tuple of float
-        (eps [L mol⁻¹ cm⁻¹], K [L/mol]) of the coloured product.
+    Returns (eps [L mol⁻¹ cm⁻¹], K) of the measured product.
     """
     ex = bench_experiment(inputs, mixtures)
-    reaction = inputs.reaction
-    logs = reaction.log_beta()
-    fit = np.concatenate([ex.standards, ex.tests])
-    data = np.asarray(readings, dtype=float)
-    net = data[fit] - data[ex.blanks].mean()
-    scale = ex.epsilon_true if ex.epsilon_true > 0 else 1.0
-
-    def residuals(theta: NDArray[np.float64]) -> NDArray[np.float64]:
-        trial = logs.copy()
-        trial[ex.coloured] = theta[1]
-        epsilon = reaction.species_epsilon().copy()
-        epsilon[ex.coloured] = theta[0] * scale
-        observed = predict_readings(
-            reaction, inputs.instrument, ex.totals_M, log_beta=trial, species_epsilon=epsilon
-        ).absorbance
-        result: NDArray[np.float64] = observed[fit] - observed[ex.blanks].mean() - net
-        return result
-
-    solution = least_squares(
-        residuals, np.array([1.0, logs[ex.coloured]]), method="lm", xtol=1e-14, ftol=1e-14
-    )
-    return float(solution.x[0] * scale), float(10.0 ** solution.x[1])
-
-
-def _start_offset(ex: BenchExperiment, model: _ExactModel) -> tuple[float, float]:
-    """(eps, log10 K) of the exact fit minus the taught analysis on the noise-free readings."""
-    b = ex.path_length_cm
-    net = (ex.readings - ex.readings[ex.blanks].mean())[None, :]
-    eps = taught_epsilon(ex.totals_M[ex.standards, ex.limiting][None, :], net[:, ex.standards], b)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        k = taught_K(
-            eps,
-            ex.totals_M[ex.tests, ex.excess],
-            ex.totals_M[ex.tests, ex.limiting],
-            net[:, ex.tests],
-            b,
-        ).mean(axis=1)
-    plan_start = np.array([[ex.epsilon_true, math.log10(ex.K_true)]])
-    fitted_eps, fitted_k = _fit_exact(ex, model, net, plan_start)
-    if not (np.isfinite(fitted_k[0]) and np.isfinite(k[0]) and k[0] > 0):
-        return (0.0, 0.0)
-    return (float(fitted_eps[0] - eps[0]), float(math.log10(fitted_k[0] / k[0])))
+    return global_fit(inputs.reaction, inputs.instrument, analysis_layout(ex), readings)
 
 
 def simulate(
@@ -560,6 +340,7 @@ def simulate(
             hint="ask for 10000 or more trials for stable 95 % intervals",
         )
     ex = bench_experiment(inputs, mixtures)
+    layout = analysis_layout(ex)
     draw = _draw_arrays(ex)
     b = ex.path_length_cm
     n_mix = len(ex.mixture_ids)
@@ -569,27 +350,29 @@ def simulate(
     k_tests = np.empty((trials, ex.tests.size))
     eps_exact = np.empty(trials)
     k_exact = np.empty(trials)
-    std_l = ex.totals_M[ex.standards, ex.limiting]
-    test_m = ex.totals_M[ex.tests, ex.excess]
-    test_l = ex.totals_M[ex.tests, ex.limiting]
-    model = _exact_model(inputs, ex) if exact else None
-    offset = _start_offset(ex, model) if model is not None else (0.0, 0.0)
+    table = global_fit_table(inputs.reaction, inputs.instrument, layout) if exact else None
+    offset = (
+        global_fit_start_offset(table, layout, inputs.instrument, ex.readings)
+        if table is not None
+        else (0.0, 0.0)
+    )
     for start in range(0, trials, CHUNK_TRIALS):
         n = min(CHUNK_TRIALS, trials - start)
         chunk = slice(start, start + n)
         a = _simulate_readings(inputs, ex, draw, n, rng)
         net = a - a[:, ex.blanks].mean(axis=1, keepdims=True)
-        eps = taught_epsilon(np.broadcast_to(std_l, (n, std_l.size)), net[:, ex.standards], b)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            k = taught_K(eps, test_m, test_l, net[:, ex.tests], b)
+        eps, k = all_bound_mean_K(layout, net, b)
+        with np.errstate(invalid="ignore"):
             k_mean = k.mean(axis=1)
         readings[chunk] = a
         eps_taught[chunk] = eps
         k_taught[chunk] = k_mean
         k_tests[chunk] = k
-        if model is not None:
-            starts = _starts(ex, model, eps, k_mean, offset)
-            eps_exact[chunk], k_exact[chunk] = _fit_exact(ex, model, net, starts)
+        if table is not None:
+            starts = global_fit_starts(table, layout, eps, k_mean, offset)
+            eps_exact[chunk], k_exact[chunk] = global_fit_batch(
+                table, layout, inputs.instrument, net, starts
+            )
         else:
             eps_exact[chunk] = k_exact[chunk] = np.nan
         if progress is not None:

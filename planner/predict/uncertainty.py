@@ -1,6 +1,6 @@
 """First-order uncertainty budget of the usual analysis (GUM, JCGM 100:2008).
 
-The usual analysis of the class's readings (:mod:`planner.predict.analysis`) computes, from the
+The all-bound analysis of the class's readings (:mod:`planner.analysis`) computes, from the
 recipe's nominal concentrations and the blank-subtracted readings, the molar absorptivity from
 the standard curve and K from each test mixture with the 1:1 expression. This module
 propagates every input uncertainty of one bench's set of mixtures into those results, with the
@@ -50,6 +50,7 @@ from typing import Any, cast
 import numpy as np
 from numpy.typing import NDArray
 
+from planner.analysis import all_bound_K_from_x
 from planner.forward import predict_readings
 from planner.inputs import PlanInputs
 from planner.predict._experiment import BenchExperiment, bench_experiment
@@ -124,9 +125,9 @@ def symbolic_models() -> tuple[dict[str, Any], dict[str, tuple[Any, ...]], dict[
     sum_ca, sum_cc = c_k * (A_k - A_0) + P - A_0 * C, c_k**2 + Q
     intercept = (n * sum_ca - sum_c * sum_a) / (b * (n * sum_cc - sum_c**2))
     curve_args = (c_k, A_k, A_0, P, C, Q, S, n, b)
-    # 3. K of one test mixture with the 1:1 expression.
+    # 3. K of one test mixture with the 1:1 expression, written once in planner.analysis.
     product = (A - A_0) / (eps * b)
-    k_model = x / ((M - x) * (L - x))
+    k_model = all_bound_K_from_x(x, M, L)
     derivatives |= {
         "ε": origin,
         "∂ε/∂c_k": sp.diff(origin, c_k),
