@@ -1,0 +1,158 @@
+"""The virtual class's figures: histograms of K and eps by analysis.
+
+See :mod:`planner.report.plots`.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING, Literal
+
+import numpy as np
+from numpy.typing import NDArray
+
+from planner.report._format import significant
+from planner.report.plots._style import (
+    _INK,
+    _OCHRE,
+    _PNG_DPI,
+    _TEAL,
+    _both,
+    _finish,
+    _new_figure,
+    _style,
+    figure_png,
+)
+
+if TYPE_CHECKING:
+    from matplotlib.figure import Figure
+
+    from planner.predict.montecarlo import Simulation, Summary
+
+
+_BINS = 60
+
+
+# ---------------------------------------------------------------------------------------------
+# 4. The virtual class
+# ---------------------------------------------------------------------------------------------
+
+
+def _finite(values: NDArray[np.float64]) -> NDArray[np.float64]:
+    result: NDArray[np.float64] = values[np.isfinite(values)]
+    return result
+
+
+def histogram_figure(simulation: Simulation, quantity: Literal["K", "epsilon"] = "K") -> Figure:
+    """Histogram of K or of eps over the virtual class, taught and exact analyses.
+
+    Parameters
+    ----------
+    simulation
+        From :func:`planner.predict.montecarlo.simulate`.
+    quantity
+        ``"K"`` (formation constant [L/mol]) or ``"epsilon"`` (molar absorptivity of the
+        coloured product [L mol⁻¹ cm⁻¹]).
+
+    Returns
+    -------
+    Figure
+        One axes: the quantity on x, benches per bin on y; the taught analysis filled
+        (``gid`` ``taught``), the exact fit as a hatched outline (``exact``), the true value as
+        a dashed line (``true``), and each analysis's 95 % interval as a bar along the top; the
+        legend sits below the axes so it never hides the data.
+    """
+    if quantity == "K":
+        taught, exact = _finite(simulation.K_taught), _finite(simulation.K_exact)
+        true_value = simulation.K_true
+        summaries: tuple[Summary, Summary] = (simulation.taught.K, simulation.exact.K)
+        symbol, unit = "K", "L/mol"
+    else:
+        taught = _finite(simulation.epsilon_taught)
+        exact = _finite(simulation.epsilon_exact)
+        true_value = simulation.epsilon_true
+        summaries = (simulation.taught.epsilon, simulation.exact.epsilon)
+        symbol, unit = "ε", "L mol⁻¹ cm⁻¹"
+    both = np.concatenate([taught, exact]) if exact.size else taught
+    low, high = (float(v) for v in np.quantile(both, [0.0005, 0.9995]))
+    low, high = min(low, true_value), max(high, true_value)
+    pad = 0.03 * (high - low) if high > low else 1.0
+    bins = [float(edge) for edge in np.linspace(low - pad, high + pad, _BINS + 1)]
+
+    with _style():
+        figure, axes = _new_figure(3.9)
+        axes.hist(
+            taught,
+            bins=bins,
+            color=_TEAL,
+            edgecolor=_TEAL,
+            alpha=0.85,
+            gid="taught",
+            label=f"taught analysis (mean {significant(summaries[0].mean, 4)} {unit})",
+        )
+        if exact.size:
+            axes.hist(
+                exact,
+                bins=bins,
+                histtype="step",
+                color=_OCHRE,
+                linewidth=2.0,
+                hatch="///",
+                fill=False,
+                gid="exact",
+                label=f"exact fit (mean {significant(summaries[1].mean, 4)} {unit})",
+            )
+        axes.axvline(
+            true_value,
+            color=_INK,
+            linestyle="--",
+            linewidth=1.4,
+            gid="true",
+            label=f"true {symbol} {significant(true_value, 4)} {unit}",
+        )
+        top = axes.get_ylim()[1]
+        for summary, colour, height, name in (
+            (summaries[0], _TEAL, 1.04, "taught"),
+            (summaries[1], _OCHRE, 1.09, "exact"),
+        ):
+            if summary.valid:
+                axes.plot(
+                    list(summary.ci95),
+                    [top * height] * 2,
+                    color=colour,
+                    linewidth=3,
+                    solid_capstyle="butt",
+                    label=f"{name}: 95 % interval",
+                )
+        axes.set_ylim(0, top * 1.15)
+        axes.set_xlabel(f"{symbol} [{unit}]")
+        axes.set_ylabel("benches per bin [count]")
+        axes.set_title(
+            f"Virtual class of {simulation.trials} benches: {symbol} by analysis", loc="left"
+        )
+        return _finish(figure, axes)
+
+
+def k_histogram_png(simulation: Simulation, *, dpi: int = _PNG_DPI) -> bytes:
+    """Histogram of K over the virtual class (see :func:`histogram_figure`), as PNG bytes.
+
+    Parameters
+    ----------
+    simulation
+        From :func:`planner.predict.montecarlo.simulate`.
+    dpi
+        Resolution [dots per inch].
+    """
+    return figure_png(histogram_figure(simulation, "K"), dpi=dpi)
+
+
+def epsilon_histogram_png(simulation: Simulation, *, dpi: int = _PNG_DPI) -> bytes:
+    """Histogram of eps over the virtual class (see :func:`histogram_figure`), as PNG bytes."""
+    return figure_png(histogram_figure(simulation, "epsilon"), dpi=dpi)
+
+
+def simulation_plots(simulation: Simulation) -> dict[str, bytes]:
+    """``K-histogram`` and ``epsilon-histogram``, each as ``.png`` and ``.svg`` bytes."""
+    files: dict[str, bytes] = {}
+    files.update(_both("K-histogram", histogram_figure(simulation, "K")))
+    files.update(_both("epsilon-histogram", histogram_figure(simulation, "epsilon")))
+    return files
