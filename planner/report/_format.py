@@ -2,7 +2,8 @@
 
 Machine outputs (JSON, CSV) keep full precision; everything here rounds for reading. Volumes are
 shown to the reading resolution of the device that delivers them, other quantities to a few
-significant figures.
+significant figures. :func:`markdown_text` and :func:`csv_text` make text from the plan file
+(titles, stock ids, species names, notes) inert in Markdown and in a spreadsheet.
 """
 
 from __future__ import annotations
@@ -19,10 +20,12 @@ __all__ = [
     "DeviceName",
     "addition_decimals",
     "additions_of",
+    "csv_text",
     "device_name",
     "devices_long",
     "devices_short",
     "is_to_the_mark",
+    "markdown_text",
     "percent",
     "plain",
     "scientific",
@@ -269,3 +272,138 @@ def additions_of(mixture: Mixture, stock_id: str) -> tuple[Addition, ...]:
     return tuple(
         sorted((a for a in mixture.additions if a.stock == stock_id), key=lambda a: a.order)
     )
+
+
+# ---------------------------------------------------------------------------------------------
+# Text from the plan file, made inert for the reader's tools
+# ---------------------------------------------------------------------------------------------
+
+#: Characters with inline meaning in CommonMark and GitHub Flavored Markdown, backslash-escaped
+#: anywhere: backslash and backtick (escapes, code spans), ``*`` ``_`` ``~`` (emphasis,
+#: strikethrough), ``[`` ``]`` (links, images, footnotes) and ``|`` (table cells). ``.``,
+#: ``(``, ``)``, ``+``, ``-`` and ``#`` are left alone in the middle of a text, so ``0.10``,
+#: ``Fe(SCN)2+`` and ``-12.3 %`` read as written.
+_MARKDOWN_INLINE = re.compile(r"([\\`*_~\[\]|])")
+#: ``<``, ``>`` (raw HTML, autolinks, block quotes) and ``&`` (entity references) become
+#: entity references, which every Markdown dialect passes to HTML as the character itself;
+#: a backslash before them is CommonMark's, not every renderer's (Gruber's original Markdown
+#: escapes only ``\`*_{}[]()#+-.!``, from memory), and the text keeps no ``<`` at all.
+_HTML_SPECIAL = {"&": "&amp;", "<": "&lt;", ">": "&gt;"}
+_HTML_SPECIAL_PATTERN = re.compile("[&<>]")
+#: Line endings of CommonMark (section 2.1): a value never spans lines of the sheet.
+_LINE_BREAK = re.compile(r"\r\n|[\r\n]")
+#: A value's start that would open a block if the template put it at the start of a line:
+#: an ATX heading (``#`` to ``######`` then a space or nothing), a bullet (``+`` then a space
+#: or nothing, ``-`` then a space), an ordered-list marker (up to nine digits, ``.`` or ``)``,
+#: then a space or nothing), a thematic break or setext underline (a run of ``=``, or of two
+#: or more ``-``). A lone ``-`` is kept: it is the sheets' "no value" placeholder in table
+#: cells. CommonMark 0.31.2 sections 4.1, 4.2, 4.3 and 5.2-5.3.
+_BLOCK_START = re.compile(
+    r"^(?P<space>[ \t]*)(?:"
+    r"(?P<heading>#{1,6})(?=[ \t]|$)"
+    r"|(?P<bullet>\+(?=[ \t]|$)|-(?=[ \t]))"
+    r"|(?P<digits>[0-9]{1,9})(?P<delimiter>[.)])(?=[ \t]|$)"
+    r"|(?P<rule>=(?=[-= \t]*$)|-(?=[ \t]*[-=][-= \t]*$))"
+    r")"
+)
+#: A run of ``#`` at a value's end, after a space or tab: in a heading line it would be read as
+#: the optional closing sequence and dropped (CommonMark 0.31.2 section 4.2).
+_HEADING_CLOSE = re.compile(r"(?<=[ \t])#+[ \t]*$")
+
+
+def markdown_text(value: object) -> str:
+    r"""``value`` as text that Markdown shows literally, on one line.
+
+    Line breaks (``\n``, ``\r``) become spaces, so a value cannot start a table row, a heading
+    or a list of its own; NUL characters are dropped. The characters with inline meaning in
+    CommonMark and GitHub Flavored Markdown (backslash, backtick, ``*``, ``_``, ``~``, ``[``,
+    ``]``, ``|``) are backslash-escaped wherever they are, and ``<``, ``>``, ``&`` become the
+    entity references ``&lt;``, ``&gt;``, ``&amp;``, so no raw HTML, link, emphasis or extra
+    table cell comes out of a title or a stock id. A block marker at the value's start (``#``,
+    ``- ``, ``+``, ``1.``, ``---``, ``=``) is escaped too, in case the template places the
+    value at the start of a line, and so is a run of ``#`` at its end after a space, which a
+    heading would drop as its closing sequence. A lone ``-`` is kept, as the placeholder of an
+    empty table cell (the templates never put a value alone at the start of a line, where it
+    would open an empty list item). Other characters, the dot among them, are kept, so numbers
+    (``0.10``, ``-0.5``, ``7.500e-5``) read as written.
+
+    Parameters
+    ----------
+    value
+        Anything; ``str(value)`` is escaped.
+
+    Returns
+    -------
+    str
+        The escaped text.
+
+    References
+    ----------
+    CommonMark Spec 0.31.2 (2024), sections 2.1 (line endings), 2.4 (backslash escapes: any
+    ASCII punctuation character may be escaped), 2.5 (entity references), 4.1-4.3 (thematic
+    breaks, ATX and setext headings), 5.2-5.3 (list items) and 6 (inlines); GitHub Flavored
+    Markdown Spec 0.29-gfm (2019), section 4.10 (tables: ``\|`` inside a cell). Section
+    numbers from memory.
+
+    Examples
+    --------
+    >>> markdown_text("a | b <i>")
+    'a \\| b &lt;i&gt;'
+    >>> markdown_text("0.10")
+    '0.10'
+    >>> markdown_text("# heading")
+    '\\# heading'
+    """
+    text = _LINE_BREAK.sub(" ", str(value)).replace("\0", "")
+    text = _MARKDOWN_INLINE.sub(r"\\\1", text)
+    text = _HTML_SPECIAL_PATTERN.sub(lambda special: _HTML_SPECIAL[special[0]], text)
+    text = _HEADING_CLOSE.sub(lambda closing: "\\" + closing[0], text)
+    match = _BLOCK_START.match(text)
+    if match is None:
+        return text
+    space = match["space"]
+    rest = text[match.end() :]
+    if match["digits"] is not None:
+        return f"{space}{match['digits']}\\{match['delimiter']}{rest}"
+    marker = match["heading"] or match["bullet"] or match["rule"]
+    return f"{space}\\{marker}{rest}"
+
+
+#: First characters that make a spreadsheet read a cell as a formula (or, for tab and carriage
+#: return, hide one behind white space): OWASP, "CSV Injection",
+#: owasp.org/www-community/attacks/CSV_Injection (``=``, ``+``, ``-``, ``@``, tab, carriage
+#: return; from memory); OWASP Application Security Verification Standard 5.0.0 (2025),
+#: requirement 1.2.10 (``=``, ``+``, ``-``, ``@``, tab and NUL, with RFC 4180 quoting); MITRE
+#: CWE-1236, "Improper Neutralization of Formula Elements in a CSV File".
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def csv_text(value: str) -> str:
+    """A text cell for a CSV file that a spreadsheet will not run as a formula.
+
+    Common practice (OWASP CSV injection guidance): a text cell that starts with ``=``, ``+``,
+    ``-``, ``@``, a tab or a carriage return gets a leading apostrophe, which spreadsheets
+    take as "this cell is text" (the cell then shows the apostrophe or hides it, but never
+    evaluates). NUL characters, which no text cell needs and some readers stop at, are
+    dropped first. Only text cells (ids, names) go through here: numbers the code writes,
+    negative ones included, stay numbers. Quoting is the csv module's (RFC 4180).
+
+    Parameters
+    ----------
+    value
+        The text of one cell.
+
+    Returns
+    -------
+    str
+        The cell's text, with an apostrophe in front when it would start a formula.
+
+    Examples
+    --------
+    >>> csv_text("=1+1")
+    "'=1+1"
+    >>> csv_text("iron")
+    'iron'
+    """
+    text = value.replace("\0", "")
+    return "'" + text if text.startswith(_FORMULA_START) else text

@@ -9,23 +9,33 @@ business (:mod:`planner.report.outdir` for an output folder).
 The Python side builds small view objects with every number already rounded for people
 (volumes to their device's reading resolution, other values to 3-4 significant figures); the
 templates only lay them out. The cautions come from :mod:`planner.report.cautions`.
+
+Text from the plan file (title, stock ids, species names, notes) is made inert in every
+output without the templates having to ask: the HTML templates autoescape every value, the
+Markdown templates pass every value through :func:`planner.report._format.markdown_text`
+(a jinja2 ``finalize`` hook), and every text cell of the CSV goes through
+:func:`planner.report._format.csv_text`.
 """
 
 from __future__ import annotations
 
+import csv
 import functools
+import io
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
 import jinja2
-import pandas as pd
 
 from planner.report._format import (
     addition_decimals,
     additions_of,
+    csv_text,
     devices_long,
     is_to_the_mark,
+    markdown_text,
     percent,
     plain,
     scientific,
@@ -76,28 +86,29 @@ class BenchSlot:
 # ---------------------------------------------------------------------------------------------
 
 
-def _md_cell(value: object) -> str:
-    """Text safe inside a Markdown table cell: no line breaks, pipes escaped."""
-    return str(value).replace("\\", "\\\\").replace("|", "\\|").replace("\n", " ")
-
-
 @functools.cache
-def _environment() -> jinja2.Environment:
-    environment = jinja2.Environment(
+def _environment(markdown: bool) -> jinja2.Environment:
+    """The jinja2 environment of the HTML templates, or of the Markdown ones.
+
+    Every ``{{ value }}`` is escaped on the way out, so a template cannot forget to: HTML by
+    autoescaping, Markdown by the ``finalize`` hook, which jinja2 applies to the result of
+    every expression (constants included) before it is written. Markdown a template means
+    as Markdown (``**``, ``[ ]``, ``______``) is template text, never an expression.
+    """
+    return jinja2.Environment(
         loader=jinja2.PackageLoader("planner.report", "templates"),
-        # HTML templates escape every value; Markdown ones escape table cells with ``md``.
-        autoescape=jinja2.select_autoescape(enabled_extensions=("html",)),
+        autoescape=not markdown,
+        finalize=markdown_text if markdown else None,
         undefined=jinja2.StrictUndefined,
         trim_blocks=True,
         lstrip_blocks=True,
         keep_trailing_newline=True,
     )
-    environment.filters["md"] = _md_cell
-    return environment
 
 
 def _render(name: str, **context: Any) -> str:
-    return _environment().get_template(name).render(**context)
+    """Render the template ``name`` (``*.md`` or ``*.html``) with its escaping."""
+    return _environment(name.endswith(".md")).get_template(name).render(**context)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -377,7 +388,6 @@ def _labels(plan: Plan) -> list[_Label]:
         if hazards:
             lines.append("Caution: " + "; ".join(hazards))
         lines.append(f"Plan: {plan.inputs.title}")
-        lines.append("Made on: ____________  by: ____________")
         labels.append(_Label(stock=stock.id, lines=tuple(lines)))
     return labels
 
@@ -694,6 +704,12 @@ def answer_key_html(plan: Plan, *, date: str, plots: Sequence[str] = ()) -> str:
 # ---------------------------------------------------------------------------------------------
 
 
+def _csv_number(value: float) -> str:
+    """A number cell: the shortest text that reads back as the same float; empty for NaN."""
+    value = float(value)
+    return "" if math.isnan(value) else repr(value)
+
+
 def mixtures_csv(plan: Plan) -> str:
     """The mixtures as CSV, one row per mixture, at full float precision.
 
@@ -708,27 +724,22 @@ def mixtures_csv(plan: Plan) -> str:
         Columns ``id``, ``role``, ``total_volume_mL``, ``volume_<stock>_mL`` for each stock in
         order of addition [mL], ``absorbance``, ``u_absorbance``, ``bound_fraction``,
         ``ionic_strength_M`` [mol/L], and ``<species>_M`` for each product species [mol/L].
-        Lines end in ``\\n`` on every platform.
+        Lines end in ``\\n`` on every platform; a cell holding a comma, a quote or a line
+        break is quoted (RFC 4180, Python's csv module).
+
+    Notes
+    -----
+    Numbers are written as Python writes a float, the shortest text that reads back as the
+    same value (``-0.5``, ``7.5e-05``), and stay numbers in a spreadsheet. Text cells (the
+    mixture ids and roles, and the column names, which hold stock ids and species names
+    from the plan file) follow the common practice (OWASP CSV injection guidance) of a
+    leading apostrophe when they start with ``=``, ``+``, ``-``, ``@``, a tab or a carriage
+    return, so that no spreadsheet runs them as a formula; NUL characters are dropped (see
+    :func:`planner.report._format.csv_text`).
     """
     stocks = stocks_in_addition_order(plan)
     species = plan.inputs.reaction.species_names()
-    records = []
-    for m in plan.mixtures:
-        record: dict[str, object] = {
-            "id": m.id,
-            "role": m.role,
-            "total_volume_mL": m.total_volume_mL,
-        }
-        for stock_id in stocks:
-            record[f"volume_{stock_id}_mL"] = m.volume_of(stock_id)
-        record["absorbance"] = m.absorbance
-        record["u_absorbance"] = m.u_absorbance
-        record["bound_fraction"] = m.bound_fraction
-        record["ionic_strength_M"] = m.ionic_strength_M
-        for name in species:
-            record[f"{name}_M"] = m.equilibrium_M.get(name, 0.0)
-        records.append(record)
-    columns = [
+    header = [
         "id",
         "role",
         "total_volume_mL",
@@ -739,5 +750,18 @@ def mixtures_csv(plan: Plan) -> str:
         "ionic_strength_M",
         *(f"{name}_M" for name in species),
     ]
-    frame = pd.DataFrame.from_records(records, columns=columns)
-    return frame.to_csv(index=False, lineterminator="\n")
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n", quoting=csv.QUOTE_MINIMAL)
+    writer.writerow([csv_text(name) for name in header])
+    for m in plan.mixtures:
+        numbers = [
+            m.total_volume_mL,
+            *(m.volume_of(stock_id) for stock_id in stocks),
+            m.absorbance,
+            m.u_absorbance,
+            m.bound_fraction,
+            m.ionic_strength_M,
+            *(m.equilibrium_M.get(name, 0.0) for name in species),
+        ]
+        writer.writerow([csv_text(m.id), csv_text(m.role), *(_csv_number(x) for x in numbers)])
+    return buffer.getvalue()

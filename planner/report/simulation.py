@@ -227,19 +227,26 @@ def _budget_table(budget: Budget, label: str, *, formulas: bool) -> Table:
     if formulas:
         table.add_column("Coefficient", overflow="fold", ratio=2)
     for row in budget.contributors[:TERMINAL_BUDGET_ROWS]:
-        cells = [
-            row.input,
+        cells: list[str | Text] = [
+            # Texts, not strings: input names and formulas hold stock ids and species names,
+            # which rich would read as console markup.
+            Text(row.input),
             _input_u(row.standard_uncertainty, row.unit),
             significant(row.sensitivity, 3),
             percent(row.share, 3),
         ]
         if formulas:
-            cells.append(row.formula.split(", where ", 1)[0])
+            cells.append(Text(row.formula.split(", where ", 1)[0]))
         table.add_row(*cells)
     rest = budget.contributors[TERMINAL_BUDGET_ROWS:]
     if rest:
-        cells = [f"{len(rest)} more inputs", "", "", percent(sum(r.share for r in rest), 3)]
-        table.add_row(*cells, *([""] if formulas else []))
+        table.add_row(
+            f"{len(rest)} more inputs",
+            "",
+            "",
+            percent(sum(r.share for r in rest), 3),
+            *([""] if formulas else []),
+        )
     return table
 
 

@@ -3,6 +3,11 @@
 :func:`render_plan` builds a rich renderable and writes nothing; the CLI owns the Console. The
 layout is meant to be read at a glance in 80 columns: statuses are spelled out as well as
 coloured, so the summary reads the same without colour (``NO_COLOR``) or on paper.
+
+Text that comes from the plan file (title, stock ids, check details that quote them, notes)
+enters the renderable only as :class:`rich.text.Text`, never as a string: rich reads a string
+cell as console markup (``[bold]``, ``[link=...]``) and emoji codes (``:warning:``), a Text
+as the characters it holds.
 """
 
 from __future__ import annotations
@@ -30,6 +35,11 @@ from planner.result import Mixture, Plan
 __all__ = ["render_plan"]
 
 _STATUS_STYLE = {"fail": "bold red", "warn": "bold yellow", "pass": "green"}
+
+
+def _plain(text: str) -> Text:
+    """Text shown as written: no console markup, no emoji codes."""
+    return Text(text)
 
 
 def _status(status: str) -> Text:
@@ -68,11 +78,11 @@ def _checks_table(plan: Plan) -> Table:
     table.add_column("check", overflow="fold")
     table.add_column("detail", ratio=1, overflow="fold")
     for check in checks_worst_first(plan.checks):
-        table.add_row(_status(check.status), check.name, check.detail)
+        table.add_row(_status(check.status), _plain(check.name), _plain(check.detail))
     return table
 
 
-def _cell(plan: Plan, mixture: Mixture, stock_id: str) -> str:
+def _cell(plan: Plan, mixture: Mixture, stock_id: str) -> Text:
     parts = []
     for addition in additions_of(mixture, stock_id):
         if is_to_the_mark(addition):
@@ -81,7 +91,7 @@ def _cell(plan: Plan, mixture: Mixture, stock_id: str) -> str:
             decimals = addition_decimals(plan.inputs, addition)
             devices = devices_short(addition.devices)
             parts.append(f"{volume(addition.volume_mL, decimals)} {devices}".strip())
-    return "; ".join(parts) if parts else "-"
+    return _plain("; ".join(parts) if parts else "-")
 
 
 def _device_legend(plan: Plan) -> Text:
@@ -109,13 +119,13 @@ def _mixtures_table(plan: Plan) -> Table:
     table.add_column("id", no_wrap=True)
     table.add_column("role")
     for stock_id in stocks:
-        table.add_column(stock_id, overflow="fold")
+        table.add_column(_plain(stock_id), overflow="fold")
     table.add_column("A", justify="right", no_wrap=True)
     table.add_column("bound", justify="right", no_wrap=True)
     for mixture in plan.mixtures:
         table.add_row(
-            mixture.id,
-            mixture.role,
+            _plain(mixture.id),
+            _plain(mixture.role),
             *(_cell(plan, mixture, stock_id) for stock_id in stocks),
             f"{mixture.absorbance:.3f}",
             f"{mixture.bound_fraction:.3f}",
@@ -147,7 +157,7 @@ def _totals_table(plan: Plan) -> Table:
         else:
             available = Text(significant(available_mL))
         table.add_row(
-            stock_id,
+            _plain(stock_id),
             significant(totals.per_bench.get(stock_id, 0.0)),
             significant(totals.session.get(stock_id, 0.0)),
             significant(needed_mL),
