@@ -1,6 +1,7 @@
 """Command line: parse arguments, call the API, map errors to exit codes.
 
-Exit codes: 0 every check passes, 1 some check failed, 2 invalid input, 3 internal error.
+Exit codes: 0 every check passes, 1 some check failed, 2 invalid input, 3 internal error;
+128 + the signal's number (130, 143) when stopped by SIGINT or SIGTERM.
 Heavy libraries are imported inside the commands so start-up stays fast.
 """
 
@@ -8,13 +9,15 @@ from __future__ import annotations
 
 import enum
 import os
+import signal
 import sys
 import tempfile
+import threading
 import traceback
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import TYPE_CHECKING, Annotated, TypeVar
+from typing import TYPE_CHECKING, Annotated, Any, TypeVar
 
 import typer
 
@@ -32,6 +35,13 @@ EXIT_OK = 0
 EXIT_CHECK_FAILED = 1
 EXIT_INVALID_INPUT = 2
 EXIT_INTERNAL = 3
+#: Help of --force, the same for every command that writes a folder.
+_FORCE_HELP = (
+    "Replace an --out folder that the planner wrote before (it holds a .planner-output file "
+    "listing its files). Never replaces a folder the planner did not write, one holding other "
+    "files, the current or home folder, the file-system root, or a folder holding them or "
+    "the plan file."
+)
 
 
 class OutputFormat(enum.StrEnum):
@@ -66,10 +76,54 @@ def _root() -> None:
     """
 
 
-def _run(action: Callable[[], T]) -> T:
-    """Run a command body; project errors exit 2 with a message, anything else exits 3."""
+class _Stopped(KeyboardInterrupt):
+    """SIGTERM or SIGINT, raised where the command is, so that every ``finally`` and ``with``
+    on the way out runs: Chromium's process group is killed, temporary folders are removed,
+    and an output folder being written is left as it was."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum
+
+
+@contextmanager
+def _signals_stop_the_command() -> Iterator[None]:
+    """Turn SIGTERM and SIGINT into :class:`_Stopped` for the duration of a command body.
+
+    The first signal raises; later ones are ignored, so the clean-up it starts is not cut
+    short. Signals that were ignored when the planner started (``nohup``) stay ignored.
+    """
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous: dict[signal.Signals, Any] = {}
+
+    def stop(signum: int, frame: object) -> None:
+        for caught in previous:
+            signal.signal(caught, signal.SIG_IGN)
+        raise _Stopped(signum)
+
+    for number in (signal.SIGTERM, signal.SIGINT):
+        if signal.getsignal(number) is not signal.SIG_IGN:
+            previous[number] = signal.signal(number, stop)
     try:
-        return action()
+        yield
+    finally:
+        for number, handler in previous.items():
+            # None: a handler set outside Python, which cannot be put back; the default then.
+            signal.signal(number, signal.SIG_DFL if handler is None else handler)
+
+
+def _run(action: Callable[[], T]) -> T:
+    """Run a command body; project errors exit 2 with a message, anything else exits 3.
+
+    SIGTERM and Ctrl-C stop it cleanly (see :func:`_signals_stop_the_command`), with a one-line
+    message and the shell's status for a signal, 128 + its number (130 for Ctrl-C, 143 for
+    SIGTERM).
+    """
+    try:
+        with _signals_stop_the_command():
+            return action()
     except PlannerError as error:
         from rich.console import Console
         from rich.markup import escape
@@ -77,7 +131,14 @@ def _run(action: Callable[[], T]) -> T:
         console = Console(stderr=True, highlight=False)
         console.print(f"[bold red]error:[/] {escape(str(error))}")
         raise typer.Exit(EXIT_INVALID_INPUT) from None
-    except (typer.Exit, typer.Abort, KeyboardInterrupt):
+    except KeyboardInterrupt as stop:
+        signum = stop.signum if isinstance(stop, _Stopped) else int(signal.SIGINT)
+        sys.stderr.write(
+            f"planner: stopped by {signal.Signals(signum).name}; temporary files removed, "
+            "any --out folder left whole (old or new)\n"
+        )
+        raise typer.Exit(128 + signum) from None
+    except (typer.Exit, typer.Abort):
         raise
     except Exception:
         sys.stderr.write(
@@ -162,6 +223,11 @@ def _load(file: Path | None) -> PlanInputs:
     return load_plan(file)
 
 
+def _reads(file: Path | None) -> tuple[Path, ...]:
+    """The files a command reads, which its output folder must never hold."""
+    return () if file is None else (file,)
+
+
 def _matplotlib_folders() -> tuple[Path, ...]:
     """Where matplotlib keeps its configuration and caches when MPLCONFIGDIR is not set (as
     its documentation gives them: the XDG folders on Linux and FreeBSD, ~/.matplotlib
@@ -229,9 +295,7 @@ def plan(
     output_format: Annotated[
         OutputFormat, typer.Option("--format", help="text for people, json for programs.")
     ] = OutputFormat.text,
-    force: Annotated[
-        bool, typer.Option("--force", help="Replace a non-empty --out folder.")
-    ] = False,
+    force: Annotated[bool, typer.Option("--force", help=_FORCE_HELP)] = False,
     date: Annotated[
         str | None,
         typer.Option("--date", help="Date printed on the sheets (default: today), YYYY-MM-DD."),
@@ -267,18 +331,20 @@ def plan(
         if out is not None:
             from planner.report.outdir import check_output_target
 
-            check_output_target(out, force=force)  # before the design and the plots
+            # Before the design and the plots.
+            check_output_target(out, force=force, protect=_reads(file))
         result = design_plan(inputs)
         if out is not None:
             from planner.report.outdir import plan_files, write_output_folder
 
+            sheet_date = date or _today()
             with _private_plot_caches():
-                files = plan_files(result, date=date or _today(), plots=True)
+                files = plan_files(result, date=sheet_date, plots=True)
             if pdf:
                 from planner.report.browser import pdfs_for
 
-                files.update(pdfs_for(files))
-            write_output_folder(out, files, force=force)
+                files.update(pdfs_for(files, date=sheet_date))
+            write_output_folder(out, files, force=force, protect=_reads(file))
         if quiet:
             pass
         elif output_format is OutputFormat.json:
@@ -379,29 +445,19 @@ def init(
         "plan.toml"
     ),
 ) -> None:
-    """Write a commented starter plan file (never overwrites an existing file)."""
+    """Write a commented starter plan file (never overwrites an existing file).
+
+    The file appears whole or not at all (written beside, flushed to disk, then named), so a
+    full disk or an interrupt leaves no empty or partial file.
+    """
 
     def body() -> int:
         from importlib.resources import files
 
-        from planner.errors import OutputError
+        from planner.report.outdir import write_new_file
 
-        if path.exists():
-            raise OutputError(
-                "file exists; not overwriting it",
-                field=str(path),
-                hint="choose another PATH or remove the file first",
-            )
         text = files("planner").joinpath("data/starter.toml").read_text(encoding="utf-8")
-        try:
-            with path.open("x", encoding="utf-8") as handle:
-                handle.write(text)
-        except OSError as error:
-            raise OutputError(
-                f"cannot write the file ({error.strerror})",
-                field=str(path),
-                hint="choose a folder you can write to",
-            ) from None
+        write_new_file(path, text.encode("utf-8"))
         from rich.console import Console
 
         Console(stderr=True, highlight=False).print(
@@ -425,9 +481,7 @@ def variants(
     sections: Annotated[int, typer.Option("--sections", min=1, help="Number of sections.")],
     seed: Annotated[int, typer.Option("--seed", help="Seed; the same seed gives the same sets.")],
     out: Annotated[Path, typer.Option("--out", help="Folder for the section folders.")],
-    force: Annotated[
-        bool, typer.Option("--force", help="Replace a non-empty --out folder.")
-    ] = False,
+    force: Annotated[bool, typer.Option("--force", help=_FORCE_HELP)] = False,
     date: Annotated[
         str | None,
         typer.Option("--date", help="Date printed on the sheets (default: today), YYYY-MM-DD."),
@@ -452,9 +506,11 @@ def variants(
         from rich.progress import Progress
 
         from planner.pipeline import design_variants
+        from planner.report.outdir import check_output_target, write_output_folder
         from planner.report.variants_index import variants_files
 
         inputs = _load(file)
+        check_output_target(out, force=force, protect=_reads(file))  # before the design
         err = Console(stderr=True, highlight=False, quiet=quiet)
         with Progress(console=err, transient=True, disable=quiet) as progress:
             task = progress.add_task("designing sections", total=sections)
@@ -467,10 +523,11 @@ def variants(
         if not found.plans:
             Console(stderr=True, highlight=False).print(f"[bold red]no variants:[/] {found.reason}")
             return EXIT_CHECK_FAILED
-        from planner.report.outdir import write_output_folder
-
         write_output_folder(
-            out, variants_files(found.plans, date=date or _today(), seed=seed), force=force
+            out,
+            variants_files(found.plans, date=date or _today(), seed=seed),
+            force=force,
+            protect=_reads(file),
         )
         err.print(f"wrote {len(found.plans)} section folder(s) and an index to {out}/")
         if not found.complete:
@@ -524,9 +581,7 @@ def simulate(
             "epsilon-histogram, each .png and .svg.",
         ),
     ] = None,
-    force: Annotated[
-        bool, typer.Option("--force", help="Replace a non-empty --out folder.")
-    ] = False,
+    force: Annotated[bool, typer.Option("--force", help=_FORCE_HELP)] = False,
     quiet: Annotated[
         bool, typer.Option("--quiet", "-q", help="Print nothing but errors; the exit status tells.")
     ] = False,
@@ -554,7 +609,8 @@ def simulate(
         if out is not None:
             from planner.report.outdir import check_output_target
 
-            check_output_target(out, force=force)  # before the simulation and the plots
+            # Before the simulation and the plots.
+            check_output_target(out, force=force, protect=_reads(file))
         designed = design_plan(inputs)
         # The pipeline's prediction, run once; a plan it could not analyse gets the budget's
         # own error (what is missing) from propagate.
@@ -582,7 +638,7 @@ def simulate(
             files: dict[str, str | bytes] = {"simulation.json": document}
             with _private_plot_caches():
                 files.update(simulation_plots(result))
-            write_output_folder(out, files, force=force)
+            write_output_folder(out, files, force=force, protect=_reads(file))
         if quiet:
             pass
         elif output_format is OutputFormat.json:

@@ -4,7 +4,7 @@
 asks for its own number. ``long`` gives every property twenty times as many examples, for a
 deeper search before a release::
 
-    HYPOTHESIS_PROFILE=long /work/venv/bin/pytest tests/test_fuzz.py
+    HYPOTHESIS_PROFILE=long python -m pytest tests/test_fuzz.py
 
 Tests that set their own example count scale it with :func:`tests.strategies.budget`, so
 the profile decides the depth everywhere.

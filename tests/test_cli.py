@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import errno
 import json
+import os
 from pathlib import Path
 
 import pytest
@@ -173,6 +175,10 @@ def test_plan_out_writes_folder_and_refuses_non_empty(tmp_path):
     assert "--force" in again.stderr
     forced = run("plan", "--out", str(out), "--force", "--date", "2026-12-02")
     assert forced.exit_code == 0
+    # The folder carries the marker that lets the next --force replace it, and it does.
+    assert (out / ".planner-output").read_text().startswith("# Written by planner")
+    assert run("plan", "--out", str(out), "--force", "--date", "2026-12-03").exit_code == 0
+    assert "2026-12-03" in (out / "prep-sheet.md").read_text()
 
 
 def test_verify_round_trip_and_hand_edit(tmp_path):
@@ -203,6 +209,149 @@ def test_verify_unreadable_json_exits_2(tmp_path):
     result = run("verify", str(path))
     assert result.exit_code == 2
     assert "Traceback" not in result.stderr
+
+
+def _everything(folder: Path) -> dict[str, bytes | None]:
+    """Every entry under folder: file bytes, or None for a folder."""
+    return {
+        path.relative_to(folder).as_posix(): None if path.is_dir() else path.read_bytes()
+        for path in sorted(folder.rglob("*"))
+    }
+
+
+_WRITERS = {
+    "plan": ["plan", "plan.toml", "--date", "2026-12-02"],
+    "simulate": ["simulate", "plan.toml", "--trials", "300"],
+    "variants": ["variants", "plan.toml", "--sections", "1", "--seed", "1"],
+}
+
+
+@pytest.mark.parametrize("command", sorted(_WRITERS))
+def test_force_never_deletes_the_users_files_in_the_current_folder(tmp_path, monkeypatch, command):
+    # Issue 9: "planner plan plan.toml --out . --force" in a folder holding the plan file and a
+    # document deleted both.
+    work = tmp_path / "work"
+    work.mkdir()
+    (work / "plan.toml").write_bytes((ROOT / "recipes" / "copper-ligand-excess.toml").read_bytes())
+    (work / "thesis.odt").write_bytes(b"years of work")
+    monkeypatch.chdir(work)
+    before = _everything(tmp_path)
+    result = run(*_WRITERS[command], "--out", ".", "--force")
+    assert result.exit_code == 2
+    message = " ".join(result.stderr.split())
+    assert "--out:" in message
+    assert "the current folder" in message
+    assert "Fix:" in message
+    assert "Traceback" not in result.stderr
+    assert _everything(tmp_path) == before
+
+
+def test_force_refuses_a_users_folder_named_through_dotdot(tmp_path, monkeypatch):
+    # Issue 9: "--out v/sub/.. --force" replaced v itself, the user's folder.
+    folder = tmp_path / "v"
+    (folder / "sub").mkdir(parents=True)
+    (folder / "data.csv").write_text("1,2\n")
+    monkeypatch.chdir(tmp_path)
+    before = _everything(tmp_path)
+    result = run("plan", "--out", "v/sub/..", "--force", "--date", "2026-12-02")
+    assert result.exit_code == 2
+    message = " ".join(result.stderr.split())
+    assert "--out:" in message
+    assert ".planner-output" in message
+    assert _everything(tmp_path) == before
+
+
+def test_force_refuses_the_folder_holding_the_plan_file(tmp_path):
+    inputs = tmp_path / "inputs"
+    assert run("plan", "--out", str(inputs), "--date", "2026-12-02").exit_code == 0
+    plan = inputs / "mine.toml"  # saved by the user inside a planner output folder
+    plan.write_bytes((ROOT / "planner" / "data" / "default.toml").read_bytes())
+    before = _everything(tmp_path)
+    result = run("plan", str(plan), "--out", str(inputs), "--force", "--date", "2026-12-02")
+    assert result.exit_code == 2
+    assert "holds the plan file" in " ".join(result.stderr.split())
+    assert _everything(tmp_path) == before
+
+
+def test_variants_checks_the_folder_before_designing(tmp_path, monkeypatch):
+    import planner.design.variants
+
+    def not_before_the_check(*args, **kwargs):
+        raise AssertionError("designed before the output folder was checked")
+
+    monkeypatch.setattr(planner.design.variants, "design_variants", not_before_the_check)
+    taken = tmp_path / "taken"
+    taken.mkdir()
+    (taken / "notes.txt").write_text("mine")
+    recipe = str(ROOT / "recipes" / "copper-ligand-excess.toml")
+    result = run("variants", recipe, "--sections", "2", "--seed", "1", "--out", str(taken))
+    assert result.exit_code == 2
+    assert "--out:" in result.stderr
+
+
+def test_interrupt_exits_130_with_a_line_and_no_traceback(monkeypatch):
+    import planner.pipeline
+
+    def interrupted(*args, **kwargs):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(planner.pipeline, "design_plan", interrupted)
+    result = run("plan")
+    # 128 + SIGINT (2), the status a shell gives a command stopped by Ctrl-C.
+    assert result.exit_code == 130
+    assert "SIGINT" in result.stderr
+    assert "Traceback" not in result.stderr
+    assert len(result.stderr.splitlines()) == 1
+
+
+def test_init_on_a_full_disk_leaves_no_file(tmp_path, monkeypatch):
+    # Issue 9: "planner init" on a full disk left an empty file behind.
+    from planner.report import outdir
+
+    def full_disk(descriptor, data):
+        os.write(descriptor, data[:100])
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+    monkeypatch.setattr(outdir, "_write_fd", full_disk)
+    target = tmp_path / "plan.toml"
+    result = run("init", str(target))
+    assert result.exit_code == 2
+    message = " ".join(result.stderr.split())
+    assert str(target) in message
+    assert os.strerror(errno.ENOSPC) in message
+    assert "Traceback" not in result.stderr
+    assert list(tmp_path.iterdir()) == []
+
+
+def _file_size_limit():
+    # In the child before exec: files may grow to 200 bytes at most, and a write beyond that
+    # fails with EFBIG instead of sending SIGXFSZ (POSIX setrlimit, RLIMIT_FSIZE): a real
+    # failure half-way through the file, as on a full disk, with no code of ours replaced.
+    import resource
+    import signal
+
+    signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
+    resource.setrlimit(resource.RLIMIT_FSIZE, (200, 200))
+
+
+def test_init_failing_half_way_leaves_no_file_in_a_real_process(tmp_path):
+    import subprocess
+    import sys
+
+    done = subprocess.run(
+        [sys.executable, "-m", "planner", "init", "plan.toml"],
+        cwd=tmp_path,
+        env={**os.environ, "PYTHONPATH": str(ROOT), "PYTHONDONTWRITEBYTECODE": "1"},
+        preexec_fn=_file_size_limit,
+        capture_output=True,
+        text=True,
+        timeout=60,
+        check=False,
+    )
+    assert done.returncode == 2, done.stderr
+    assert os.strerror(errno.EFBIG) in " ".join(done.stderr.split())
+    assert "Traceback" not in done.stderr
+    assert list(tmp_path.iterdir()) == []
 
 
 def test_init_writes_a_plan_that_plans_and_refuses_overwrite(tmp_path):

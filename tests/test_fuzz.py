@@ -15,7 +15,7 @@ time, so each example knows which key is at fault. Every plan here is invented f
 Example counts follow the hypothesis profile (tests/conftest.py). CI runs the bounded
 ``ci`` profile, about 2100 examples in all; the long profile runs twenty times as many::
 
-    HYPOTHESIS_PROFILE=long /work/venv/bin/pytest tests/test_fuzz.py
+    HYPOTHESIS_PROFILE=long python -m pytest tests/test_fuzz.py
 """
 
 from __future__ import annotations

@@ -77,6 +77,7 @@ def test_out_folder_with_histogram(tmp_path):
     assert result.exit_code == 0, result.stderr
     assert result.stdout == ""  # --quiet
     assert sorted(p.name for p in target.iterdir()) == [
+        ".planner-output",  # the marker that lets --force replace the folder later
         "K-histogram.png",
         "K-histogram.svg",
         "epsilon-histogram.png",

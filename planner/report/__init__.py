@@ -26,7 +26,9 @@ def write_reports(
     date
         Date printed on the sheets.
     force
-        Replace a non-empty folder.
+        Replace a non-empty folder that the planner wrote (it carries a ``.planner-output``
+        file) and that holds nothing else; never the current, home or root folder or a folder
+        holding one of them (see :func:`planner.report.outdir.write_output_folder`).
     plots
         Also draw the plots into ``plots/`` (PNG and SVG) and show them on the answer key.
     """

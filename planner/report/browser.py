@@ -2,17 +2,29 @@
 
 Chromium is an optional program (Debian's ``chromium`` package); nothing else in the planner
 needs it. Every call runs it with no network, no first-run work and a fresh profile, and waits
-for it with a time limit.
+for it with a time limit. Its profile and its temporary files go into a scratch folder of the
+planner's (``planner-*`` in the temporary folder), and it runs in a process group of its own.
+However the call ends (done, time limit, an error, or Ctrl-C or SIGTERM, which the command
+line turns into an exception), the group is killed and the scratch folder removed.
+
+The PDFs are the same bytes for the same sheets: Chromium stamps the time of printing into
+the document information (``/CreationDate``, ``/ModDate``), which :func:`html_to_pdf`
+replaces with the sheets' date.
 """
 
 from __future__ import annotations
 
+import datetime
 import json
+import os
 import re
 import shutil
+import signal
 import subprocess
 import tempfile
-from collections.abc import Mapping
+import time
+from collections.abc import Iterator, Mapping
+from contextlib import contextmanager, suppress
 from pathlib import Path
 
 from planner.errors import OutputError
@@ -20,6 +32,7 @@ from planner.errors import OutputError
 __all__ = [
     "PRINTABLE_WIDTH_PX",
     "chromium_path",
+    "fixed_pdf_dates",
     "html_to_pdf",
     "html_to_png",
     "measure_layout",
@@ -59,44 +72,162 @@ def chromium_path() -> str | None:
     return None
 
 
-def _run(arguments: list[str], profile: Path) -> subprocess.CompletedProcess[str]:
+@contextmanager
+def _scratch(kind: str) -> Iterator[Path]:
+    """A private temporary folder ``planner-<kind>-*``, removed on the way out, however left."""
+    folder = Path(tempfile.mkdtemp(prefix=f"planner-{kind}-"))
+    try:
+        yield folder
+    finally:
+        # Chromium's killed helpers may still be letting go of files in its profile for a
+        # moment after the group is killed, so the removal is retried for up to a second.
+        for _ in range(50):
+            shutil.rmtree(folder, ignore_errors=True)
+            if not os.path.lexists(folder):
+                break
+            time.sleep(0.02)
+
+
+def _end(process: subprocess.Popen[str]) -> None:
+    """Kill Chromium's whole process group (its renderers and helpers too) and reap it.
+
+    SIGINT and SIGTERM wait until this is done (blocked, then delivered), so a stop that comes
+    now cannot leave the group running.
+    """
+    blocking = hasattr(signal, "pthread_sigmask")
+    if blocking:
+        before = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT, signal.SIGTERM})
+    try:
+        if hasattr(os, "killpg"):
+            with suppress(ProcessLookupError, PermissionError):  # the group is already gone
+                os.killpg(process.pid, signal.SIGKILL)
+        else:  # Windows has no process groups
+            process.kill()
+        for stream in (process.stdout, process.stderr):
+            if stream is not None:
+                stream.close()
+        with suppress(subprocess.TimeoutExpired):
+            process.wait(timeout=10)
+    finally:
+        if blocking:
+            signal.pthread_sigmask(signal.SIG_SETMASK, before)
+
+
+def _run(arguments: list[str], scratch: Path) -> subprocess.CompletedProcess[str]:
+    """Run Chromium with its profile, temporary files and home folder inside ``scratch``, a
+    folder of :func:`_scratch`, so that removing it removes all Chromium wrote, even when it
+    was killed."""
     executable = chromium_path()
     if executable is None:
         raise OutputError("Chromium is needed for PDF output and was not found", hint=_HOW_TO_GET)
-    command = [executable, *_FLAGS, f"--user-data-dir={profile}", *arguments]
+    command = [executable, *_FLAGS, f"--user-data-dir={scratch / 'profile'}", *arguments]
+    home = scratch / "home"
+    (scratch / "tmp").mkdir(exist_ok=True)
+    home.mkdir(exist_ok=True)
+    # Chromium's crash-report database and desktop settings cache would otherwise go into the
+    # user's home folder (~/.config/chromium, ~/.cache): the planner writes only where told.
+    env = {
+        **os.environ,
+        "TMPDIR": str(scratch / "tmp"),
+        "HOME": str(home),
+        "XDG_CONFIG_HOME": str(home / ".config"),
+        "XDG_CACHE_HOME": str(home / ".cache"),
+    }
+    # A session of its own: a signal to the planner's terminal group does not reach Chromium,
+    # and _end kills every process Chromium started, whatever ends the call.
+    process = subprocess.Popen(
+        command,
+        env=env,
+        stdin=subprocess.DEVNULL,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        start_new_session=True,
+    )
     try:
-        return subprocess.run(
-            command, capture_output=True, text=True, timeout=_TIMEOUT_S, check=False
-        )
+        stdout, stderr = process.communicate(timeout=_TIMEOUT_S)
     except subprocess.TimeoutExpired:
         raise OutputError(
             f"Chromium did not finish within {_TIMEOUT_S} s", hint="run again, or print the HTML"
         ) from None
+    finally:
+        _end(process)
+    return subprocess.CompletedProcess(command, process.returncode, stdout, stderr)
 
 
-def html_to_pdf(html: Path, pdf: Path) -> None:
-    """Print an HTML file to PDF with its own @page rules, no browser header or footer."""
-    with tempfile.TemporaryDirectory() as profile:
+#: The date stamped into a PDF when the sheets' date is not a calendar date (YYYY-MM-DD).
+_PDF_EPOCH = "19700101"
+_PDF_DATES = re.compile(rb"/(?:CreationDate|ModDate)\s*\((D:[^()\\]*)\)")
+
+
+def _pdf_day(date: str | None) -> str:
+    """The sheets' date as YYYYMMDD, or the Unix epoch's day when it is not a calendar date."""
+    if date is not None and re.fullmatch(r"\d{4}-\d{2}-\d{2}", date):
+        try:
+            return datetime.date.fromisoformat(date).strftime("%Y%m%d")
+        except ValueError:
+            pass
+    return _PDF_EPOCH
+
+
+def fixed_pdf_dates(pdf: bytes, date: str | None = None) -> bytes:
+    """A PDF with its creation and modification dates set to ``date`` at 00:00 UTC.
+
+    Each date string is replaced in place by one no longer than it, padded with spaces after
+    the closing parenthesis (white space between PDF tokens, PDF 1.7, ISO 32000-1:2008,
+    7.2.2), so every byte offset in the cross-reference table stays right. Dates follow the
+    PDF date format ``D:YYYYMMDDHHmmSSOHH'mm'`` (ISO 32000-1:2008, 7.9.4).
+
+    Parameters
+    ----------
+    pdf
+        The document as Chromium wrote it.
+    date
+        ``YYYY-MM-DD``; anything else (or None) stamps 1970-01-01.
+    """
+    day = _pdf_day(date)
+    forms = [f"D:{day}000000+00'00'", f"D:{day}000000Z", f"D:{day}", f"D:{day[:4]}"]
+
+    def fix(match: re.Match[bytes]) -> bytes:
+        old = match.group(1)
+        for form in forms:
+            new = form.encode("ascii")
+            if len(new) <= len(old):
+                head = match.group(0)[: match.start(1) - match.start(0)]
+                return head + new + b")" + b" " * (len(old) - len(new))
+        return match.group(0)
+
+    return _PDF_DATES.sub(fix, pdf)
+
+
+def html_to_pdf(html: Path, pdf: Path, *, date: str | None = None) -> None:
+    """Print an HTML file to PDF with its own @page rules, no browser header or footer.
+
+    The PDF's creation and modification dates are ``date`` (``YYYY-MM-DD``) at 00:00 UTC, or
+    1970-01-01 without one, so the same page always prints to the same bytes.
+    """
+    with _scratch("chromium") as scratch:
         done = _run(
             [f"--print-to-pdf={pdf}", "--no-pdf-header-footer", html.resolve().as_uri()],
-            Path(profile),
+            scratch,
         )
     if not pdf.exists() or pdf.stat().st_size == 0:
         raise OutputError(
             f"Chromium made no PDF of {html.name}", hint=done.stderr.strip()[-300:] or _HOW_TO_GET
         )
+    pdf.write_bytes(fixed_pdf_dates(pdf.read_bytes(), date))
 
 
 def html_to_png(html: Path, png: Path, *, width_px: int = 900, height_px: int = 1270) -> None:
     """Screenshot an HTML file (screen media) to PNG."""
-    with tempfile.TemporaryDirectory() as profile:
+    with _scratch("chromium") as scratch:
         _run(
             [
                 f"--screenshot={png}",
                 f"--window-size={width_px},{height_px}",
                 html.resolve().as_uri(),
             ],
-            Path(profile),
+            scratch,
         )
     if not png.exists():
         raise OutputError(f"Chromium made no screenshot of {html.name}", hint=_HOW_TO_GET)
@@ -172,10 +303,10 @@ def measure_layout(
         (number of ``.page`` blocks).
     """
     probed = html_text.replace("</body>", _PROBE + "</body>")
-    with tempfile.TemporaryDirectory() as folder:
+    with _scratch("layout") as folder:
         if assets:
-            _write_assets(Path(folder), assets)
-        page = Path(folder) / "page.html"
+            _write_assets(folder, assets)
+        page = folder / "page.html"
         page.write_text(probed, encoding="utf-8")
         done = _run(
             [
@@ -184,7 +315,7 @@ def measure_layout(
                 "--dump-dom",
                 page.as_uri(),
             ],
-            Path(folder) / "profile",
+            folder,
         )
     found = re.search(r'<pre id="layout-probe">(.*?)</pre>', done.stdout, re.DOTALL)
     if not found:
@@ -201,22 +332,23 @@ def pdf_page_count(pdf: bytes) -> int:
     return len(re.findall(rb"/Type\s*/Page(?![a-zA-Z])", pdf))
 
 
-def pdfs_for(files: Mapping[str, str | bytes]) -> dict[str, bytes]:
+def pdfs_for(files: Mapping[str, str | bytes], *, date: str | None = None) -> dict[str, bytes]:
     """PDF twins of the top-level ``.html`` files of an output folder, keyed ``name.pdf``.
 
     Sheets in sub-folders (one per bench) are left out: ``bench-sheets.pdf`` already holds
     every bench, one per page. The whole folder is laid out in a private temporary folder
     (so the plots the answer key shows from ``plots/`` are there), and nothing half-made
-    reaches the output folder, which is written afterwards in one atomic step.
+    reaches the output folder, which is written afterwards in one atomic step. The PDFs'
+    dates are ``date`` (the sheets' date, see :func:`html_to_pdf`).
     """
     result: dict[str, bytes] = {}
-    with tempfile.TemporaryDirectory() as folder:
-        _write_assets(Path(folder), files)
+    with _scratch("pdf") as folder:
+        _write_assets(folder, files)
         for name, text in files.items():
             if not name.endswith(".html") or "/" in name or not isinstance(text, str):
                 continue
-            html = Path(folder) / name
+            html = folder / name
             pdf = html.with_suffix(".pdf")
-            html_to_pdf(html, pdf)
+            html_to_pdf(html, pdf, date=date)
             result[name.removesuffix(".html") + ".pdf"] = pdf.read_bytes()
     return result

@@ -2,9 +2,12 @@
 
 :func:`plan_files` builds the folder's contents as text (and, on request, the plots as PNG and
 SVG bytes under ``plots/``), keyed by relative file name;
-:func:`write_output_folder` is the one place in the report layer that writes files. It builds
-the whole folder beside the target and swaps it in with renames, so a reader never sees a
-half-written folder and a failure leaves the previous folder as it was.
+:func:`write_output_folder` and :func:`write_new_file` are the one place in the report layer
+that writes files. The folder is built whole beside the target and swapped in (one atomic
+exchange where Linux offers it), so a reader never sees a half-written folder and a failure
+leaves the previous folder as it was. Every output folder carries a marker file,
+:data:`MARKER_NAME`, listing what the planner wrote; ``--force`` replaces only such a folder,
+and never the current, home or root folder or a folder holding them or the plan file.
 
 Bench sheets: every bench of a section makes the same recipes, so a sheet differs between
 benches only in its header. Up to :data:`MAX_BENCH_FILES` benches in the whole session, each
@@ -16,10 +19,17 @@ to be copied for every bench, keeps the folder browsable. In both cases
 
 from __future__ import annotations
 
+import contextlib
+import ctypes
+import errno
+import functools
 import os
+import platform
+import secrets
 import shutil
+import sys
 import tempfile
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path, PurePosixPath, PureWindowsPath
 from typing import Literal, overload
 
@@ -38,10 +48,12 @@ from planner.report.sheets import (
 from planner.result import Plan
 
 __all__ = [
+    "MARKER_NAME",
     "MAX_BENCH_FILES",
     "bench_slots",
     "check_output_target",
     "plan_files",
+    "write_new_file",
     "write_output_folder",
 ]
 
@@ -211,51 +223,368 @@ def _check_names(files: Mapping[str, bytes | str]) -> dict[PurePosixPath, bytes]
     return contents
 
 
-def _write_file(path: Path, data: bytes) -> None:
-    """Write one new file (exclusive create, bytes as given: no newline translation)."""
-    with path.open("xb") as handle:
-        handle.write(data)
+#: The file every output folder of the planner carries: it says what wrote the folder and lists
+#: the files the planner put there, so that ``--force`` replaces only a folder the planner
+#: wrote, and only while it holds nothing else. No date in it: the same inputs give the same
+#: bytes.
+MARKER_NAME = ".planner-output"
+_MARKER_HEADER = (
+    "# Written by planner. planner --force replaces this folder only while it holds nothing "
+    "but the files listed below."
+)
+#: Files a file manager leaves in any folder it shows (macOS Finder, Windows Explorer): not the
+#: user's work, so they do not stop --force.
+_FILE_MANAGER_LITTER = frozenset({".DS_Store", "Thumbs.db"})
+_BACKUP_SUFFIX = ".planner-backup"
 
 
-def _check_target(target: Path, *, force: bool) -> None:
+def _marker(contents: Mapping[PurePosixPath, bytes]) -> bytes:
+    names = sorted(path.as_posix() for path in contents)
+    return ("\n".join([_MARKER_HEADER, *names]) + "\n").encode("utf-8")
+
+
+def _listing(folder: Path) -> frozenset[str] | None:
+    """The files a planner output folder lists in its marker, or None when it has none."""
+    marker = folder / MARKER_NAME
+    try:
+        if marker.is_symlink() or not marker.is_file():
+            return None
+        lines = marker.read_text(encoding="utf-8").splitlines()
+    except (OSError, UnicodeDecodeError):
+        return None
+    if not lines or not lines[0].startswith("# Written by planner"):
+        return None
+    return frozenset(line for line in lines[1:] if line)
+
+
+def _foreign(folder: Path, listed: frozenset[str]) -> list[str]:
+    """Entries of a planner output folder that its marker does not list (the user's own)."""
+    folders = {
+        parent.as_posix()
+        for name in listed
+        for parent in PurePosixPath(name).parents
+        if parent != PurePosixPath(".")
+    }
+    found: list[str] = []
+
+    def walk(path: Path, prefix: str) -> None:
+        with os.scandir(path) as entries:
+            for entry in entries:
+                name = prefix + entry.name
+                if entry.is_dir(follow_symlinks=False):
+                    if name in folders:
+                        walk(Path(entry.path), name + "/")
+                    else:
+                        found.append(name + "/")
+                elif not (
+                    name == MARKER_NAME or name in listed or entry.name in _FILE_MANAGER_LITTER
+                ):
+                    found.append(name)
+
+    walk(folder, "")
+    return sorted(found)
+
+
+def _identity(path: str | Path) -> tuple[int, int] | None:
+    try:
+        status = os.stat(path)
+    except (OSError, ValueError):
+        return None
+    return (status.st_dev, status.st_ino)
+
+
+def _guarded(protect: Sequence[Path]) -> dict[tuple[int, int], str]:
+    """Folders that --out may never name, by (device, inode), each with the reason.
+
+    The root of the file system, the current folder, the home folder and every folder that
+    holds one of them or one of the ``protect`` files (the plan file): replacing any of them
+    would delete the user's own files, marker or not.
+    """
+    guarded: dict[tuple[int, int], str] = {}
+
+    def add(path: Path | str, itself: str | None, holder: str) -> None:
+        for chain in (Path(os.path.realpath(path)), Path(os.path.abspath(path))):
+            for depth, folder in enumerate([chain, *chain.parents]):
+                key = _identity(folder)
+                if key is None or key in guarded or (depth == 0 and itself is None):
+                    continue
+                guarded[key] = itself if depth == 0 and itself is not None else holder
+
+    add(Path(os.sep), "the root of the file system", "the root of the file system")
+    try:
+        cwd: str | None = os.getcwd()
+    except OSError:  # the current folder was deleted: nothing there left to protect
+        cwd = None
+    if cwd is not None:
+        add(cwd, "the current folder", "a folder that holds the current folder")
+        # The shell's name for it, which may run through symbolic links.
+        logical = os.environ.get("PWD")
+        if logical and os.path.isabs(logical) and _identity(logical) == _identity(cwd):
+            add(logical, "the current folder", "a folder that holds the current folder")
+    try:
+        home: Path | None = Path.home()
+    except (RuntimeError, KeyError):
+        home = None
+    if home is not None:
+        add(home, "the home folder", "a folder that holds the home folder")
+    for path in protect:
+        add(path, None, f"a folder that holds the plan file {path}")
+    return guarded
+
+
+def _backup_path(target: Path) -> Path:
+    return target.with_name(f".{target.name}{_BACKUP_SUFFIX}")
+
+
+def _recover(target: Path) -> None:
+    """Put back an output folder that an interrupted two-rename swap left beside its place.
+
+    Only where renameat2's exchange is unavailable is a folder swapped with two renames; a
+    kill between them leaves ``target`` missing and the old folder, marker and all, at
+    ``.<name>.planner-backup`` beside it. The next run that finds it so renames it back.
+    """
+    if target.exists() or target.is_symlink():
+        return
+    backup = _backup_path(target)
+    if backup.is_symlink() or not backup.is_dir() or _listing(backup) is None:
+        return
+    try:
+        os.rename(backup, target)
+    except OSError as error:
+        raise OutputError(
+            f"the previous output folder is at {backup} (a run was interrupted while replacing "
+            f"it) and could not be put back: {error.strerror or error}",
+            field="--out",
+            value=str(target),
+            hint=f"rename {backup.name} back to {target.name} by hand",
+        ) from error
+
+
+def _refuse(target: Path, problem: str, hint: str) -> OutputError:
+    return OutputError(problem, field="--out", value=str(target), hint=hint)
+
+
+def _check_target(given: Path, target: Path, *, force: bool, protect: Sequence[Path] = ()) -> None:
+    """Refuse ``target`` (``given`` normalised) as an output folder, or return."""
+    _recover(target)
     if not target.exists() and not target.is_symlink():
         return
+    if target.is_symlink():
+        raise _refuse(
+            target,
+            f"the output path {target} is a symbolic link",
+            "name the folder it points to, or a new folder",
+        )
     if not target.is_dir():
-        raise OutputError(
+        raise _refuse(
+            target,
             f"the output path {target} exists and is not a folder",
-            field="--out",
-            value=str(target),
-            hint="choose a folder name that is not taken by a file",
+            "choose a folder name that is not taken by a file",
         )
-    if not force and any(target.iterdir()):
-        raise OutputError(
+    guarded = _guarded(protect)
+    for candidate in (target, Path(os.path.realpath(given))):
+        reason = guarded.get(_identity(candidate) or (-1, -1))
+        if reason is not None:
+            raise _refuse(
+                target,
+                f"the output folder {target} is {reason}; the planner replaces its output "
+                "folder as a whole and never replaces that one",
+                "name a new folder for the output, e.g. --out sheets",
+            )
+    if not any(target.iterdir()):
+        return
+    listed = _listing(target)
+    if listed is None:
+        raise _refuse(
+            target,
+            f"the output folder {target} exists, is not empty and was not written by the "
+            f"planner (it has no {MARKER_NAME} file), so not even --force replaces it",
+            "choose another folder, or move its files away yourself first",
+        )
+    if not force:
+        raise _refuse(
+            target,
             f"the output folder {target} exists and is not empty",
-            field="--out",
-            value=str(target),
-            hint="pass --force to replace it, or choose another folder",
+            "pass --force to replace it, or choose another folder",
+        )
+    foreign = _foreign(target, listed)
+    if foreign:
+        shown = ", ".join(foreign[:5]) + (
+            f" and {len(foreign) - 5} more" if len(foreign) > 5 else ""
+        )
+        raise _refuse(
+            target,
+            f"the output folder {target} holds files the planner did not write ({shown}), "
+            "so --force does not replace it",
+            "move those files out of the folder (or close the program that made them), then "
+            "run again",
         )
 
 
-def check_output_target(target: Path, *, force: bool) -> None:
+def _normalised(target: Path) -> Path:
+    # Lexically normalised, so "sub/x/../named" creates only sub/named (no empty sub/x).
+    return Path(os.path.normpath(os.path.abspath(target)))
+
+
+def check_output_target(target: Path, *, force: bool, protect: Sequence[Path] = ()) -> None:
     """Refuse an output folder early, before the work of filling it (same rules and errors as
     :func:`write_output_folder`, which checks again when it writes).
+
+    A folder that an interrupted replacement left at ``.<name>.planner-backup`` beside
+    ``target`` (``target`` itself missing) is first put back.
 
     Raises
     ------
     OutputError
-        ``target`` is a file, or a non-empty folder and ``force`` is false.
+        See :func:`write_output_folder`.
     """
-    _check_target(Path(os.path.normpath(os.path.abspath(target))), force=force)
+    _check_target(target, _normalised(target), force=force, protect=protect)
 
 
-def write_output_folder(target: Path, files: Mapping[str, bytes | str], *, force: bool) -> None:
+# renameat2(2), Linux 3.15 and later: RENAME_EXCHANGE swaps two paths in one step.
+_AT_FDCWD = -100
+_RENAME_NOREPLACE = 1
+_RENAME_EXCHANGE = 2
+#: System call numbers of renameat2, for a C library without the wrapper (glibc before 2.28),
+#: from the kernel's syscall tables (arch/*/entry/syscalls, include/uapi/asm-generic/unistd.h).
+_SYSCALL_RENAMEAT2 = {
+    "x86_64": 316,
+    "amd64": 316,
+    "i386": 353,
+    "i686": 353,
+    "aarch64": 276,
+    "arm64": 276,
+    "riscv64": 276,
+    "loongarch64": 276,
+    "armv7l": 382,
+    "ppc64le": 357,
+    "ppc64": 357,
+    "s390x": 347,
+}
+_UNSUPPORTED = frozenset({errno.ENOSYS, errno.EINVAL, errno.ENOTSUP, errno.EOPNOTSUPP})
+
+_Renameat2 = Callable[[bytes, bytes, int], int]
+
+
+def _load_renameat2(*, symbol: bool = True) -> _Renameat2 | None:
+    """renameat2 from the C library (its wrapper, or with ``symbol`` false the raw system
+    call), as ``call(old, new, flags) -> 0 or -1 (errno set)``; None off Linux."""
+    if not sys.platform.startswith("linux"):
+        return None
+    try:
+        libc = ctypes.CDLL(None, use_errno=True)
+    except OSError:
+        return None
+    wrapper = getattr(libc, "renameat2", None) if symbol else None
+    if wrapper is not None:
+        wrapper.argtypes = [
+            ctypes.c_int,
+            ctypes.c_char_p,
+            ctypes.c_int,
+            ctypes.c_char_p,
+            ctypes.c_uint,
+        ]
+        wrapper.restype = ctypes.c_int
+
+        def call(old: bytes, new: bytes, flags: int) -> int:
+            return int(wrapper(_AT_FDCWD, old, _AT_FDCWD, new, flags))
+
+        return call
+    number = _SYSCALL_RENAMEAT2.get(platform.machine().lower())
+    syscall = getattr(libc, "syscall", None)
+    if number is None or syscall is None:
+        return None
+    syscall.restype = ctypes.c_long
+
+    def raw(old: bytes, new: bytes, flags: int) -> int:
+        return int(
+            syscall(
+                ctypes.c_long(number),
+                ctypes.c_int(_AT_FDCWD),
+                ctypes.c_char_p(old),
+                ctypes.c_int(_AT_FDCWD),
+                ctypes.c_char_p(new),
+                ctypes.c_uint(flags),
+            )
+        )
+
+    return raw
+
+
+@functools.cache
+def _renameat2() -> _Renameat2 | None:
+    return _load_renameat2()
+
+
+def _renameat2_flags(old: Path, new: Path, flags: int) -> bool:
+    """renameat2 with ``flags``: True when done, False when this system or file system cannot
+    (so the caller falls back), OSError on any other failure."""
+    call = _renameat2()
+    if call is None:
+        return False
+    if call(os.fsencode(old), os.fsencode(new), flags) == 0:
+        return True
+    code = ctypes.get_errno()
+    if code in _UNSUPPORTED:
+        return False
+    raise OSError(code, os.strerror(code), str(new))
+
+
+def _rename_exchange(first: Path, second: Path) -> bool:
+    """Swap two existing paths in one atomic step (renameat2 RENAME_EXCHANGE): True when done,
+    False when unsupported here."""
+    return _renameat2_flags(first, second, _RENAME_EXCHANGE)
+
+
+def _swap_in(fresh: Path, target: Path) -> None:
+    """Put the folder ``fresh`` at ``target`` in place of the folder there; the old one ends
+    at ``fresh`` (exchange) or in the backup (two renames), and is the caller's to delete.
+
+    With renameat2's exchange, ``target`` names the old or the new folder at every instant.
+    Without it (another system, or a file system that cannot exchange), two renames: the old
+    folder goes to ``.<name>.planner-backup`` beside ``target`` and the new one takes its
+    place; a kill between the two leaves ``target`` missing, and the next run puts the backup
+    back (:func:`_recover`).
+    """
+    if _rename_exchange(fresh, target):
+        return
+    backup = _backup_path(target)
+    if backup.exists() or backup.is_symlink():
+        if backup.is_symlink() or not backup.is_dir() or _listing(backup) is None:
+            raise _refuse(
+                target,
+                f"{backup} is in the way of replacing the output folder",
+                "move it away",
+            )
+        shutil.rmtree(backup)  # an old output an interrupted run had already replaced
+    os.replace(target, backup)
+    try:
+        os.replace(fresh, target)
+    except BaseException:
+        if not target.exists():
+            os.replace(backup, target)
+        raise
+    os.replace(backup, fresh)
+
+
+def write_output_folder(
+    target: Path,
+    files: Mapping[str, bytes | str],
+    *,
+    force: bool,
+    protect: Sequence[Path] = (),
+) -> None:
     """Write a folder of files, replacing ``target`` as a whole.
 
-    The files are written into a fresh folder inside a temporary folder beside ``target`` (same
-    parent, so the renames that follow stay on one file system and are atomic). Then an
-    existing ``target`` is renamed away, the new folder is renamed in, and the old one is
-    deleted. On any failure before the new folder is in place, the temporary folder is removed
-    and an existing ``target`` is left as it was.
+    The files, and the :data:`MARKER_NAME` file listing them, are written into a fresh folder
+    inside a temporary folder beside ``target`` (same parent, so the renames that follow stay
+    on one file system and are atomic). A new ``target`` is then a rename away; an existing
+    one is exchanged with the new folder in one step (Linux renameat2, RENAME_EXCHANGE) and
+    the old folder deleted, so ``target`` holds the old or the new folder at every instant.
+    Where the exchange is not available, two renames with a backup beside ``target`` that the
+    next run restores if a kill came between them (:func:`check_output_target`). On any
+    failure before the new folder is in place, the temporary folder is removed and an
+    existing ``target`` is left as it was.
 
     Parameters
     ----------
@@ -265,23 +594,38 @@ def write_output_folder(target: Path, files: Mapping[str, bytes | str], *, force
         Relative file name (``/``-separated, e.g. ``benches/section-01.md``) -> content; text
         is written as UTF-8 exactly as given.
     force
-        Replace a ``target`` that exists and is not empty. An empty folder is always replaced.
+        Replace an existing, non-empty ``target`` that the planner wrote (it carries the
+        marker file) and that holds nothing but the files the marker lists. An empty folder
+        is replaced without it.
+    protect
+        Files the command reads (the plan file): a folder holding one is never replaced.
 
     Raises
     ------
     OutputError
-        ``target`` is not empty and ``force`` is false, or is a file; a file name is absolute,
-        contains ``..``, a drive or a backslash, or collides with another; the folder could not
-        be written (the message names the folder).
+        ``target`` is a file or a symbolic link; it is the root of the file system, the
+        current or the home folder, or holds one of them or a ``protect`` file; it is not
+        empty and ``force`` is false, or it has no marker, or holds files the marker does not
+        list; a file name is absolute, contains ``..``, a drive or a backslash, is the
+        marker's, or collides with another; the folder could not be written (the message
+        names the folder).
     """
-    # Lexically normalised, so "sub/x/../named" creates only sub/named (no empty sub/x).
-    target = Path(os.path.normpath(os.path.abspath(target)))
+    given = target
+    target = _normalised(target)
     contents = _check_names(files)
-    _check_target(target, force=force)
+    if PurePosixPath(MARKER_NAME) in contents:
+        raise OutputError(
+            "an output file has the name the planner keeps for its marker",
+            field="files",
+            value=MARKER_NAME,
+            hint="give the file another name",
+        )
+    contents[PurePosixPath(MARKER_NAME)] = _marker(contents)
+    _check_target(given, target, force=force, protect=protect)
     parent = target.parent
     try:
         parent.mkdir(parents=True, exist_ok=True)
-        staging = Path(tempfile.mkdtemp(prefix=f".{target.name}.tmp-", dir=parent))
+        staging = Path(tempfile.mkdtemp(prefix=f".{target.name}.planner-tmp-", dir=parent))
     except OSError as error:
         raise OutputError(
             f"cannot create the output folder {target}: {error.strerror or error}",
@@ -290,8 +634,6 @@ def write_output_folder(target: Path, files: Mapping[str, bytes | str], *, force
             hint="check that the parent folder exists and is writable",
         ) from error
     fresh = staging / "new"
-    previous = staging / "old"
-    moved_away = False
     try:
         # mkdir honours the umask; mkdtemp's own folder is private (0700), which is why it only
         # serves as a holder and never becomes the output folder itself.
@@ -301,12 +643,10 @@ def write_output_folder(target: Path, files: Mapping[str, bytes | str], *, force
             destination.parent.mkdir(parents=True, exist_ok=True)
             _write_file(destination, data)
         if target.exists() or target.is_symlink():
-            os.replace(target, previous)
-            moved_away = True
-        os.replace(fresh, target)
+            _swap_in(fresh, target)
+        else:
+            os.replace(fresh, target)
     except BaseException as error:
-        if moved_away and not target.exists():
-            os.replace(previous, target)
         shutil.rmtree(staging, ignore_errors=True)
         if isinstance(error, OSError):
             raise OutputError(
@@ -317,6 +657,7 @@ def write_output_folder(target: Path, files: Mapping[str, bytes | str], *, force
                 "any previous folder was left as it was",
             ) from error
         raise
+    # The new folder is in place; what is left in staging is the old one.
     try:
         shutil.rmtree(staging)
     except OSError as error:
@@ -327,3 +668,92 @@ def write_output_folder(target: Path, files: Mapping[str, bytes | str], *, force
             value=str(staging),
             hint="delete that folder by hand",
         ) from error
+    except BaseException:
+        shutil.rmtree(staging, ignore_errors=True)
+        raise
+
+
+def _write_file(path: Path, data: bytes) -> None:
+    """Write one new file (exclusive create, bytes as given: no newline translation)."""
+    with path.open("xb") as handle:
+        handle.write(data)
+
+
+def _write_fd(descriptor: int, data: bytes) -> None:
+    """All of ``data`` to an open file descriptor (os.write may write less than asked)."""
+    view = memoryview(data)
+    while view:
+        written = os.write(descriptor, view)
+        view = view[written:]
+
+
+def _publish(temporary: Path, target: Path) -> None:
+    """Give a finished file its name, never replacing a file that took the name meanwhile."""
+    if _renameat2_flags(temporary, target, _RENAME_NOREPLACE):
+        return
+    try:
+        os.link(temporary, target)
+    except FileExistsError:
+        raise
+    except OSError:
+        # A file system without hard links: a plain rename, after one last look.
+        if target.exists() or target.is_symlink():
+            raise FileExistsError(errno.EEXIST, os.strerror(errno.EEXIST), str(target)) from None
+        os.replace(temporary, target)
+        return
+    os.unlink(temporary)
+
+
+def write_new_file(path: Path, data: bytes) -> None:
+    """Write a new file atomically: the whole ``data`` or no file at all, never over another.
+
+    The bytes go to a temporary file in the same folder, are flushed to disk (fsync), and the
+    file is then given its name in one step; on any failure (a full disk, an interrupt) the
+    temporary file is removed and nothing is left at ``path``.
+
+    Raises
+    ------
+    OutputError
+        ``path`` exists (the field is the path), or the file could not be written.
+    """
+    target = Path(os.path.abspath(path))
+
+    def exists() -> OutputError:
+        return OutputError(
+            "file exists; not overwriting it",
+            field=str(path),
+            hint="choose another PATH or remove the file first",
+        )
+
+    if target.exists() or target.is_symlink():
+        raise exists()
+    temporary: Path | None = None
+    try:
+        flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_BINARY", 0)
+        while temporary is None:
+            candidate = target.with_name(f".{target.name}.{secrets.token_hex(4)}.planner-tmp")
+            try:
+                # Mode 0o666 before the umask, as a plain open() would create it.
+                descriptor = os.open(candidate, flags, 0o666)
+            except FileExistsError:
+                continue
+            temporary = candidate
+        try:
+            _write_fd(descriptor, data)
+            os.fsync(descriptor)
+        finally:
+            os.close(descriptor)
+        _publish(temporary, target)
+        temporary = None
+    except FileExistsError:
+        raise exists() from None
+    except OSError as error:
+        raise OutputError(
+            f"cannot write the file ({error.strerror or error})",
+            field=str(path),
+            hint="free some disk space or choose a folder you can write to; nothing was written",
+        ) from None
+    finally:
+        if temporary is not None:
+            with contextlib.suppress(OSError):
+                temporary.unlink()

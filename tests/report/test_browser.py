@@ -6,6 +6,12 @@ when it is missing, because printing is part of the job.
 
 from __future__ import annotations
 
+import os
+import signal
+import subprocess
+import sys
+import time
+from contextlib import suppress
 from pathlib import Path
 
 import numpy as np
@@ -18,6 +24,7 @@ from planner.planfile import load_plan
 from planner.report.browser import (
     PRINTABLE_WIDTH_PX,
     chromium_path,
+    fixed_pdf_dates,
     html_to_pdf,
     html_to_png,
     measure_layout,
@@ -114,14 +121,152 @@ def test_variants_index_fits():
     assert "section-02/" in layout["text"]
 
 
-def test_plan_pdf_option_writes_pdfs(tmp_path):
-    out = tmp_path / "sheets"
-    result = CliRunner().invoke(
-        app, ["plan", str(RECIPE), "--out", str(out), "--pdf", "--date", "2026-12-02"]
+def test_plan_pdf_option_writes_the_same_pdfs_every_run(tmp_path):
+    # Issue 9: Chromium stamps the time of printing into every PDF, so two runs differed.
+    # The runs take several seconds each, so the clock has moved on between them.
+    pdfs = []
+    for folder in ("sheets", "again"):
+        out = tmp_path / folder
+        result = CliRunner().invoke(
+            app, ["plan", str(RECIPE), "--out", str(out), "--pdf", "--date", "2026-12-02"]
+        )
+        assert result.exit_code == 0, result.stderr
+        pdfs.append({name: (out / name).read_bytes() for name in PDF_NAMES})
+    for name in PDF_NAMES:
+        first = pdfs[0][name]
+        assert first.startswith(b"%PDF")
+        # The dates are the sheets' date at midnight UTC, in the PDF date format
+        # (ISO 32000-1:2008, 7.9.4).
+        assert b"/CreationDate (D:20261202000000+00'00')" in first
+        assert b"/ModDate (D:20261202000000+00'00')" in first
+        assert pdfs[1][name] == first, f"{name} differs between two identical runs"
+
+
+PDF_NAMES = ("bench-sheets.pdf", "prep-sheet.pdf", "answer-key.pdf")
+
+# A small PDF in Chromium's layout (invented): an information dictionary with both dates, in
+# the two forms of the PDF date format, and a cross-reference table pointing at each object.
+_INFO = (
+    b"<</Producer (Skia/PDF m156)\n"
+    b"/CreationDate (D:20261203114423+01'00')\n"
+    b"/ModDate (D:20261203114424Z)>>"
+)
+
+
+def _tiny_pdf():
+    body = b"%PDF-1.4\n1 0 obj\n" + _INFO + b"\nendobj\n2 0 obj\n<</Type /Catalog>>\nendobj\n"
+    offsets = [body.index(b"1 0 obj"), body.index(b"2 0 obj")]
+    xref = b"xref\n0 3\n0000000000 65535 f \n" + b"".join(
+        b"%010d 00000 n \n" % offset for offset in offsets
     )
-    assert result.exit_code == 0, result.stderr
-    for name in ("bench-sheets.pdf", "prep-sheet.pdf", "answer-key.pdf"):
-        assert (out / name).read_bytes().startswith(b"%PDF")
+    trailer = b"trailer\n<</Size 3 /Root 2 0 R /Info 1 0 R>>\nstartxref\n%d\n%%%%EOF\n"
+    return body + xref + trailer % len(body), offsets
+
+
+def test_fixed_pdf_dates_keep_every_byte_offset():
+    pdf, offsets = _tiny_pdf()
+    fixed = fixed_pdf_dates(pdf, "2026-12-02")
+    assert len(fixed) == len(pdf)
+    # Each offset of the cross-reference table still points at its object, and the file
+    # after the information dictionary is unchanged byte for byte.
+    for number, offset in enumerate(offsets, start=1):
+        assert fixed[offset:].startswith(b"%d 0 obj" % number)
+    tail = pdf.index(b">>") + 2
+    assert fixed[tail:] == pdf[tail:]
+    assert b"/CreationDate (D:20261202000000+00'00')\n" in fixed
+    # The shorter form D:...Z keeps its length and its form.
+    assert b"/ModDate (D:20261202000000Z)>>" in fixed
+    assert b"/Producer (Skia/PDF m156)" in fixed
+    # A date of another length (22 characters, the offset without its closing apostrophe)
+    # takes the longest form that fits (17) and 5 spaces after the parenthesis.
+    other = b"/ModDate (D:20261203114424-05'00)>>"
+    assert fixed_pdf_dates(other, "2026-12-02") == b"/ModDate (D:20261202000000Z)     >>"
+    # A date that is not a calendar date stamps the Unix epoch's day instead.
+    assert b"/CreationDate (D:19700101000000+00'00')" in fixed_pdf_dates(pdf, "week 3")
+
+
+def _processes():
+    """Running processes, read from /proc: pid -> (process group, command line); zombies
+    (finished, waiting for their parent to collect them) are left out."""
+    found = {}
+    for entry in Path("/proc").iterdir():
+        if not entry.name.isdigit():
+            continue
+        try:
+            stat = (entry / "stat").read_text()
+            command = (
+                (entry / "cmdline").read_bytes().replace(b"\0", b" ").decode("utf-8", "replace")
+            )
+        except OSError:
+            continue
+        fields = stat[stat.rindex(")") + 2 :].split()
+        if fields[0] != "Z":
+            found[int(entry.name)] = (int(fields[2]), command)
+    return found
+
+
+@pytest.mark.parametrize("signum", [signal.SIGTERM, signal.SIGINT])
+def test_stopping_plan_pdf_ends_chromium_and_removes_temporaries(tmp_path, signum):
+    # Issue 9: a SIGTERM or Ctrl-C while printing left Chromium running and a temporary copy
+    # of the output behind.
+    home, scratch, work = tmp_path / "home", tmp_path / "tmp", tmp_path / "work"
+    for folder in (home, scratch, work):
+        folder.mkdir()
+    env = {
+        **os.environ,
+        "PYTHONPATH": str(ROOT),
+        "PYTHONDONTWRITEBYTECODE": "1",
+        "HOME": str(home),
+        "TMPDIR": str(scratch),
+        "XDG_CONFIG_HOME": str(home / ".config"),
+        "XDG_CACHE_HOME": str(home / ".cache"),
+    }
+    command = ["plan", str(RECIPE), "--pdf", "--out", "sheets", "--date", "2026-12-02"]
+    planner = subprocess.Popen(
+        [sys.executable, "-m", "planner", *command],
+        cwd=work,
+        env=env,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        start_new_session=True,
+    )
+    groups: set[int] = set()
+    try:
+        deadline = time.monotonic() + 90
+        while not groups and planner.poll() is None and time.monotonic() < deadline:
+            groups = {
+                group
+                for group, line in _processes().values()
+                if str(scratch) in line and "chrom" in line
+            }
+            time.sleep(0.05)
+        assert groups, "Chromium was never seen running"
+        planner.send_signal(signum)
+        _, stderr = planner.communicate(timeout=30)
+        assert planner.returncode == 128 + signum, stderr
+        assert signal.Signals(signum).name in stderr
+        assert "Traceback" not in stderr
+        assert len(stderr.strip().splitlines()) == 1
+        # Chromium's process group is gone at once; its crash handler, in a session of its
+        # own, leaves by itself when the browser has gone (allowed a few seconds).
+        assert not [pid for pid, (group, _) in _processes().items() if group in groups]
+        deadline = time.monotonic() + 5
+        while True:
+            left = {pid: line for pid, (_, line) in _processes().items() if str(tmp_path) in line}
+            if not left or time.monotonic() > deadline:
+                break
+            time.sleep(0.1)
+        assert left == {}
+        assert sorted(scratch.iterdir()) == []
+        assert sorted(work.iterdir()) == []  # no output folder, no staging folder
+    finally:
+        if planner.poll() is None:
+            planner.kill()
+            planner.wait()
+        for group in groups:
+            with suppress(ProcessLookupError, PermissionError):
+                os.killpg(group, signal.SIGKILL)
 
 
 def test_plan_pdf_without_out_is_refused():
