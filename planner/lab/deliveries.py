@@ -1,0 +1,673 @@
+"""The volumes a shelf can deliver: per-device grids and combinations of deliveries.
+
+A recipe may only ask for volumes that the glassware on the bench can actually deliver. This
+module lists every volume one use of a device can deliver, on an exact integer grid, and every
+way to make a volume from several deliveries, fewest deliveries first, with the combination's
+standard uncertainty from :mod:`planner.lab.tolerances`.
+
+Volumes are handled internally as integers in picolitres (1 pL = 1e-9 mL), so that grids such
+as 0.10, 0.11, ... 25.00 mL never drift (0.1 + 0.2 != 0.3 in floats) and two deliveries that
+should give the same volume always do. Public functions take and return millilitres.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from planner.errors import InvalidInputError
+from planner.inputs import Device
+from planner.lab.tolerances import (
+    _MATCH_PL,
+    _PL_PER_ML,
+    _PL_PER_UL,
+    _VESSEL_KINDS,
+    ISO_4788_DIVISIONS_mL,
+    _check_kind,
+    _format_number,
+    _is_fixed_volume,
+    _lookup,
+    _SIZE_MATCH_mL,
+    _to_pL,
+    standard_uncertainty_mL,
+)
+
+__all__ = [
+    "MAX_COMBINATIONS",
+    "DeliverableVolume",
+    "combination_count",
+    "combination_uncertainty_mL",
+    "deliverable_volumes",
+    "devices_by_id",
+    "is_deliverable",
+    "reading_count",
+    "single_volumes_mL",
+]
+
+#: Most (option, volume) pairs :func:`deliverable_volumes` lists. Thirty catalogue devices
+#: give at most about 1.2 million; 1.6e7 took 2.7 s and 660 MB, and 9e7 (twenty pipettes
+#: with twenty finely read graded devices, found by fuzzing) 25 s and 5 GB.
+MAX_COMBINATIONS = 5_000_000
+
+
+# ---------------------------------------------------------------------------------------------
+# Delivery grids
+# ---------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, slots=True)
+class _Grid:
+    """Volumes one use of a device delivers: first + k * step for k in 0..count-1 [pL]."""
+
+    first_pL: int
+    step_pL: int
+    count: int
+
+    @property
+    def last_pL(self) -> int:
+        return self.first_pL + (self.count - 1) * self.step_pL
+
+    def values_pL(self) -> NDArray[np.int64]:
+        return self.first_pL + self.step_pL * np.arange(self.count, dtype=np.int64)
+
+    def nearest_one_pL(self, target_pL: float) -> int:
+        """Grid point nearest one target [pL]; the scalar twin of :meth:`nearest_pL`."""
+        if self.step_pL == 0:
+            return self.first_pL
+        index = min(max(round((target_pL - self.first_pL) / self.step_pL), 0), self.count - 1)
+        return self.first_pL + self.step_pL * index
+
+    def nearest_pL(self, targets_pL: NDArray[np.float64]) -> NDArray[np.int64]:
+        """Grid point nearest each target [pL] (the end points outside the range)."""
+        if self.step_pL == 0:
+            return np.full(targets_pL.shape, self.first_pL, dtype=np.int64)
+        index = np.rint((targets_pL - self.first_pL) / self.step_pL)
+        index = np.clip(index, 0, self.count - 1).astype(np.int64)
+        return self.first_pL + self.step_pL * index
+
+
+_NO_GRID = _Grid(0, 0, 0)
+
+
+def _ceil_div(numerator: int, denominator: int) -> int:
+    return -(-numerator // denominator)
+
+
+def _positive_pL(value_mL: float, field: str, device: Device) -> int:
+    value_pL = _to_pL(value_mL) if math.isfinite(value_mL) else 0
+    if value_pL <= 0:
+        raise InvalidInputError(
+            f"must be a positive volume for {device.id}",
+            field=field,
+            value=value_mL,
+            hint="give a positive number",
+        )
+    return value_pL
+
+
+def _default_division_mL(device: Device) -> float:
+    """Reading resolution when the device gives none [mL]."""
+    if device.kind == "buret":
+        # DESIGN.md contract detail 5: a buret reads to 0.01 mL.
+        return 0.01
+    if device.kind == "graduated-pipette":
+        # DESIGN.md contract detail 5: 0.01 mL up to 2 mL capacity, else 0.1 mL.
+        return 0.01 if device.volume_mL <= 2.0 + _SIZE_MATCH_mL else 0.1
+    # Graduated cylinder: the ISO 4788 scale division of its size (from memory), else 1 % of
+    # capacity (common practice).
+    division = _lookup(ISO_4788_DIVISIONS_mL, device.volume_mL)
+    return division if division is not None else 0.01 * device.volume_mL
+
+
+def _default_min_delivery_mL(device: Device) -> float:
+    """Smallest sensible delivery when the device gives none [mL]."""
+    if device.kind == "buret":
+        # DESIGN.md contract detail 5: 0.10 mL at least.
+        return 0.10
+    # Graduated pipettes and cylinders: 10 % of capacity (common practice: the meniscus
+    # reading error is a large share of anything smaller).
+    return 0.1 * device.volume_mL
+
+
+def _grid(device: Device) -> _Grid:
+    """Exact integer grid of the volumes one use of the device delivers."""
+    _check_kind(device)
+    if device.kind in _VESSEL_KINDS:
+        return _NO_GRID
+    if _is_fixed_volume(device):
+        return _Grid(_positive_pL(device.volume_mL, "volume_mL", device), 0, 1)
+    if device.kind == "piston-pipette":
+        return _piston_grid(device)
+    capacity_pL = _positive_pL(device.volume_mL, "volume_mL", device)
+    division_mL = (
+        device.division_mL if device.division_mL is not None else _default_division_mL(device)
+    )
+    division_pL = _positive_pL(division_mL, "division_mL", device)
+    min_mL = (
+        device.min_delivery_mL
+        if device.min_delivery_mL is not None
+        else _default_min_delivery_mL(device)
+    )
+    # Readings are differences of two marks, so deliveries are whole divisions; a delivery of
+    # zero divisions is no delivery.
+    first_k = max(1, _ceil_div(_to_pL(min_mL), division_pL))
+    last_k = capacity_pL // division_pL
+    count = max(0, last_k - first_k + 1)
+    return _Grid(first_k * division_pL, division_pL, count)
+
+
+def _piston_grid(device: Device) -> _Grid:
+    assert device.range_uL is not None  # fixed-volume pipettes are handled by the caller
+    low_uL, high_uL = device.range_uL
+    if device.step_uL is None:
+        raise InvalidInputError(
+            f"a variable piston pipette needs its setting step ({device.id})",
+            field="step_uL",
+            value=None,
+            hint="give step_uL, e.g. 1 for a 100-1000 µL pipette",
+        )
+    low_pL = round(low_uL * _PL_PER_UL)
+    high_pL = round(high_uL * _PL_PER_UL)
+    step_pL = round(device.step_uL * _PL_PER_UL)
+    if not (0 < low_pL <= high_pL):
+        raise InvalidInputError(
+            f"piston pipette range must be 0 < low <= high ({device.id})",
+            field="range_uL",
+            value=device.range_uL,
+            hint="give [low, high] in µL, e.g. [100, 1000]",
+        )
+    if step_pL <= 0:
+        raise InvalidInputError(
+            f"piston pipette step must be positive ({device.id})",
+            field="step_uL",
+            value=device.step_uL,
+            hint="give the setting step in µL, e.g. 1",
+        )
+    first_k = 0
+    if device.min_delivery_mL is not None:
+        first_k = max(0, _ceil_div(_to_pL(device.min_delivery_mL) - low_pL, step_pL))
+    last_k = (high_pL - low_pL) // step_pL
+    count = max(0, last_k - first_k + 1)
+    return _Grid(low_pL + first_k * step_pL, step_pL, count)
+
+
+def reading_count(device: Device) -> int:
+    """How many volumes one use of the device can deliver, without listing them.
+
+    Parameters
+    ----------
+    device
+        Any glassware kind.
+
+    Returns
+    -------
+    int
+        ``len(single_volumes_mL(device))`` [unitless]: 1 for a fixed-volume device, 0 for a
+        vessel. Cheap for any division or step, so a plan reader can refuse a grid too fine
+        to list before anything allocates it.
+
+    Raises
+    ------
+    InvalidInputError
+        As :func:`single_volumes_mL`.
+    """
+    return _grid(device).count
+
+
+def single_volumes_mL(device: Device) -> NDArray[np.float64]:
+    """Every volume one use of the device can deliver, ascending [mL].
+
+    Parameters
+    ----------
+    device
+        Any glassware kind.
+
+    Returns
+    -------
+    numpy.ndarray
+        Shape (n,), rounded to 1e-9 mL [mL]:
+
+        - transfer pipette, fixed piston pipette (no ``range_uL``): its nominal volume;
+        - graduated pipette: multiples of ``division_mL`` (default 0.01 mL up to 2 mL
+          capacity, else 0.1 mL; DESIGN.md contract detail 5) from ``min_delivery_mL``
+          (default 10 % of capacity, common practice) to capacity;
+        - buret: multiples of ``division_mL`` (default 0.01 mL) from ``min_delivery_mL``
+          (default 0.10 mL; contract detail 5) to capacity;
+        - piston pipette: ``range_uL`` low to high in ``step_uL`` (from the first setting at or
+          above ``min_delivery_mL`` when given);
+        - graduated cylinder: multiples of ``division_mL`` (default the ISO 4788 scale division
+          of its size, from memory, else 1 % of capacity, common practice) from 10 % of
+          capacity (common practice) to capacity;
+        - volumetric flask, tube: empty (vessels, not delivery devices).
+
+    Raises
+    ------
+    InvalidInputError
+        An unknown kind (field ``kind``), a non-positive size, division or step, or a variable
+        piston pipette without ``step_uL``.
+
+    Examples
+    --------
+    >>> single_volumes_mL(Device(kind="buret", volume_mL=25.0))[[0, -1]].tolist()
+    [0.1, 25.0]
+    """
+    values_pL = _grid(device).values_pL()
+    return np.round(values_pL / _PL_PER_ML, 9)
+
+
+# ---------------------------------------------------------------------------------------------
+# Combinations of deliveries
+# ---------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, slots=True)
+class DeliverableVolume:
+    """A volume the shelf can deliver and every way to deliver it.
+
+    Attributes
+    ----------
+    volume_mL
+        The volume [mL], rounded to 1e-9 mL.
+    options
+        Each option is a tuple of device ids (``Device.id``), one per delivery; a repeated
+        delivery repeats the id. Ordered fewest deliveries first, then smallest combined
+        standard uncertainty, then by the ids. Inside an option, fixed-volume devices come
+        first (largest first), then the graded device.
+    """
+
+    volume_mL: float
+    options: tuple[tuple[str, ...], ...]
+
+    @property
+    def best(self) -> tuple[str, ...]:
+        """The preferred option: fewest deliveries, then smallest uncertainty."""
+        return self.options[0]
+
+
+@dataclass(frozen=True, slots=True)
+class _Template:
+    """A multiset of fixed deliveries plus at most one graded delivery."""
+
+    option: tuple[str, ...]
+    fixed_pL: int
+    graded: _Grid | None
+    u_mL: float
+
+
+def devices_by_id(glassware: Sequence[Device]) -> dict[str, Device]:
+    """Map each device id to its device.
+
+    Parameters
+    ----------
+    glassware
+        The shelf.
+
+    Returns
+    -------
+    dict
+        ``Device.id`` -> device, in shelf order. Identical repeated entries collapse to one.
+
+    Raises
+    ------
+    InvalidInputError
+        Two different devices share an id (ids are kind plus size, so for example a class A
+        and a class B 10 mL transfer pipette cannot both be listed); field ``glassware``.
+    """
+    shelf: dict[str, Device] = {}
+    for device in glassware:
+        known = shelf.setdefault(device.id, device)
+        if known != device:
+            raise InvalidInputError(
+                "two different devices share one id",
+                field="glassware",
+                value=device.id,
+                hint="list each kind and size once (ids are kind plus size)",
+            )
+    return shelf
+
+
+def _fixed_multisets(
+    fixed: Sequence[tuple[str, int, float]], max_count: int, limit_pL: int
+) -> list[tuple[tuple[str, ...], int, float]]:
+    """All multisets of at most ``max_count`` fixed deliveries with sum <= limit.
+
+    Items of ``fixed`` are (id, volume [pL], u² [mL²]); multisets keep the order of ``fixed``
+    (indices never decrease), so each is produced once. Returns (ids, sum [pL], sum of u²).
+    """
+    found: list[tuple[tuple[str, ...], int, float]] = []
+
+    def extend(start: int, ids: tuple[str, ...], total_pL: int, u2: float) -> None:
+        found.append((ids, total_pL, u2))
+        if len(ids) == max_count:
+            return
+        for index in range(start, len(fixed)):
+            device_id, volume_pL, device_u2 = fixed[index]
+            if total_pL + volume_pL <= limit_pL:
+                extend(index, (*ids, device_id), total_pL + volume_pL, u2 + device_u2)
+
+    extend(0, (), 0, 0.0)
+    return found
+
+
+def _templates(glassware: Sequence[Device], max_deliveries: int, high_pL: int) -> list[_Template]:
+    """Every option shape of :func:`deliverable_volumes`, best first (see its Notes)."""
+    fixed: list[tuple[str, int, float]] = []
+    graded: list[tuple[str, _Grid, float]] = []
+    for device_id, device in devices_by_id(glassware).items():
+        grid = _grid(device)
+        if grid.count == 0:
+            continue
+        u2 = standard_uncertainty_mL(device) ** 2
+        if grid.count == 1:
+            fixed.append((device_id, grid.first_pL, u2))
+        else:
+            graded.append((device_id, grid, u2))
+    # Largest fixed volume first inside an option (7 mL reads "5 mL + 2 mL").
+    fixed.sort(key=lambda item: (-item[1], item[0]))
+
+    templates: list[_Template] = []
+    for ids, total_pL, u2 in _fixed_multisets(fixed, max_deliveries, high_pL):
+        if ids:
+            templates.append(_Template(ids, total_pL, None, math.sqrt(u2)))
+        if len(ids) < max_deliveries:
+            for device_id, grid, grid_u2 in graded:
+                if total_pL + grid.first_pL <= high_pL:
+                    option = (*ids, device_id)
+                    templates.append(_Template(option, total_pL, grid, math.sqrt(u2 + grid_u2)))
+    # Rounding u to 1e-12 mL keeps ties that differ only by float summation order as ties.
+    templates.sort(key=lambda t: (len(t.option), round(t.u_mL, 12), t.option))
+
+    return templates
+
+
+def _entry_count(templates: Sequence[_Template]) -> int:
+    """Volumes the templates list before duplicates merge (an upper bound on the work)."""
+    return sum(1 if t.graded is None else t.graded.count for t in templates)
+
+
+def combination_count(
+    glassware: Sequence[Device], *, max_volume_mL: float, max_deliveries: int = 3
+) -> int:
+    """How many (option, volume) pairs :func:`deliverable_volumes` would list, cheaply.
+
+    Parameters
+    ----------
+    glassware
+        The shelf.
+    max_volume_mL
+        Largest volume wanted [mL].
+    max_deliveries
+        Most deliveries in one option [unitless].
+
+    Returns
+    -------
+    int
+        The number of pairs before equal volumes merge [unitless]; ``deliverable_volumes``
+        refuses a shelf with more than :data:`MAX_COMBINATIONS`.
+    """
+    return _entry_count(_templates(glassware, max_deliveries, _to_pL(max_volume_mL) + 1))
+
+
+def deliverable_volumes(
+    glassware: Sequence[Device],
+    *,
+    max_volume_mL: float,
+    max_deliveries: int = 3,
+    min_volume_mL: float = 0.0,
+) -> tuple[DeliverableVolume, ...]:
+    """Every volume the shelf can deliver with up to ``max_deliveries`` deliveries.
+
+    Parameters
+    ----------
+    glassware
+        The shelf. Vessels (flasks, tubes) deliver nothing and are skipped.
+    max_volume_mL
+        Largest volume wanted [mL] (inclusive, +1e-9 mL).
+    max_deliveries
+        Most deliveries in one option [unitless], at least 1.
+    min_volume_mL
+        Smallest volume wanted [mL] (inclusive, -1e-9 mL). Zero deliveries (0 mL) are never
+        listed.
+
+    Returns
+    -------
+    tuple of DeliverableVolume
+        Ascending by volume; each with every option found, best first.
+
+    Raises
+    ------
+    InvalidInputError
+        ``max_deliveries`` < 1 or a non-finite volume bound; any error of
+        :func:`standard_uncertainty_mL` or :func:`single_volumes_mL` for a device on the shelf.
+
+    Notes
+    -----
+    Devices with one volume (transfer pipettes, fixed piston pipettes, graded devices whose
+    range holds a single reading) are *fixed*; devices with several readings (graduated
+    pipettes, burets, variable piston pipettes, cylinders) are *graded*. An option is a
+    multiset of fixed deliveries plus **at most one graded delivery**. Two graded deliveries
+    are not enumerated: any volume on a graded device's grid already needs only one delivery,
+    and pairs or triples of thousand-point grids would give millions of options for nothing
+    better. Every volume a single device can deliver therefore appears, with its
+    single-delivery option. :func:`is_deliverable` still accepts options with several graded
+    deliveries (a hand-written plan may use them).
+
+    Every tolerance here is independent of the delivered volume (full-capacity rule for
+    graded glassware; absolute ISO 8655-2 limits for piston pipettes), so an option's combined
+    uncertainty is fixed and the options are ranked once, not per volume.
+    """
+    if max_deliveries < 1:
+        raise InvalidInputError(
+            "at least one delivery is needed",
+            field="max_deliveries",
+            value=max_deliveries,
+            hint="give max_deliveries >= 1",
+        )
+    for name, bound in (("max_volume_mL", max_volume_mL), ("min_volume_mL", min_volume_mL)):
+        if not math.isfinite(bound):
+            raise InvalidInputError(
+                "volume bound must be finite", field=name, value=bound, hint="give a number"
+            )
+    high_pL = _to_pL(max_volume_mL) + int(_MATCH_PL)
+    low_pL = max(1, _to_pL(min_volume_mL) - int(_MATCH_PL))
+    if high_pL < low_pL:
+        return ()
+
+    templates = _templates(glassware, max_deliveries, high_pL)
+    entries = _entry_count(templates)
+    if entries > MAX_COMBINATIONS:
+        # Guard found by fuzzing: twenty pipettes and twenty finely read graded devices gave
+        # about 1e8 combinations (25 s, 5 GB); refuse before allocating them.
+        raise InvalidInputError(
+            f"the shelf gives {entries} ways to deliver volumes up to "
+            f"{_format_number(max_volume_mL)} mL, more than the {MAX_COMBINATIONS} the "
+            "planner lists",
+            field="glassware",
+            value=len(glassware),
+            hint="list fewer devices, or give graduated devices a coarser division_mL "
+            "(piston pipettes a coarser step_uL)",
+        )
+
+    volume_parts: list[NDArray[np.int64]] = []
+    rank_parts: list[NDArray[np.int64]] = []
+    for rank, template in enumerate(templates):
+        if template.graded is None:
+            volumes_pL = np.array([template.fixed_pL], dtype=np.int64)
+        else:
+            volumes_pL = template.fixed_pL + template.graded.values_pL()
+        volumes_pL = volumes_pL[(volumes_pL >= low_pL) & (volumes_pL <= high_pL)]
+        volume_parts.append(volumes_pL)
+        rank_parts.append(np.full(volumes_pL.shape, rank, dtype=np.int64))
+    if not volume_parts:
+        return ()
+    all_volumes_pL = np.concatenate(volume_parts)
+    all_ranks = np.concatenate(rank_parts)
+    if all_volumes_pL.size == 0:
+        return ()
+    order = np.lexsort((all_ranks, all_volumes_pL))
+    sorted_volumes_pL = all_volumes_pL[order]
+    sorted_ranks = all_ranks[order].tolist()
+    starts = np.flatnonzero(np.diff(sorted_volumes_pL)) + 1
+    bounds = [0, *starts.tolist(), len(sorted_ranks)]
+    volumes_mL = np.round(sorted_volumes_pL[bounds[:-1]] / _PL_PER_ML, 9).tolist()
+    options_by_rank = [template.option for template in templates]
+    return tuple(
+        DeliverableVolume(
+            volume_mL=volume_mL,
+            options=tuple(options_by_rank[rank] for rank in sorted_ranks[start:end]),
+        )
+        for volume_mL, start, end in zip(volumes_mL, bounds[:-1], bounds[1:], strict=True)
+    )
+
+
+def _graded_parts(grids: Sequence[_Grid], target_pL: float) -> list[int] | None:
+    """Readings, one per grid, that sum to the target within 1 pL, or None."""
+    head = grids[0]
+    if len(grids) == 1:
+        point = head.nearest_one_pL(target_pL)
+        return [point] if abs(point - target_pL) <= _MATCH_PL else None
+    rest = grids[1:]
+    rest_low_pL = sum(grid.first_pL for grid in rest)
+    rest_high_pL = sum(grid.last_pL for grid in rest)
+    candidates_pL = head.values_pL()
+    remainders_pL = target_pL - candidates_pL
+    keep = (remainders_pL >= rest_low_pL - _MATCH_PL) & (remainders_pL <= rest_high_pL + _MATCH_PL)
+    candidates_pL = candidates_pL[keep]
+    if len(rest) == 1:
+        # Two graded deliveries: test every reading of the first at once.
+        remainders_pL = target_pL - candidates_pL.astype(np.float64)
+        points_pL = rest[0].nearest_pL(remainders_pL)
+        hits = np.flatnonzero(np.abs(points_pL - remainders_pL) <= _MATCH_PL)
+        if hits.size == 0:
+            return None
+        return [int(candidates_pL[hits[0]]), int(points_pL[hits[0]])]
+    for candidate_pL in candidates_pL.tolist():
+        parts = _graded_parts(rest, target_pL - candidate_pL)
+        if parts is not None:
+            return [candidate_pL, *parts]
+    return None
+
+
+def _split_pL(
+    shelf: Mapping[str, Device], option: Sequence[str], target_pL: float
+) -> list[int] | None:
+    """What each delivery of the option gives [pL] to make the target, or None if it cannot."""
+    readings_pL = [0] * len(option)
+    fixed_total_pL = 0
+    graded: list[tuple[int, _Grid]] = []
+    for position, device_id in enumerate(option):
+        grid = _grid(shelf[device_id])
+        if grid.count == 0:
+            return None
+        if grid.count == 1:
+            readings_pL[position] = grid.first_pL
+            fixed_total_pL += grid.first_pL
+        else:
+            graded.append((position, grid))
+    remainder_pL = target_pL - fixed_total_pL
+    if not graded:
+        return readings_pL if abs(remainder_pL) <= _MATCH_PL else None
+    parts_pL = _graded_parts([grid for _, grid in graded], remainder_pL)
+    if parts_pL is None:
+        return None
+    for (position, _), part_pL in zip(graded, parts_pL, strict=True):
+        readings_pL[position] = part_pL
+    return readings_pL
+
+
+def is_deliverable(glassware: Sequence[Device], volume_mL: float, option: Sequence[str]) -> bool:
+    """Whether the named devices can deliver exactly this volume.
+
+    Parameters
+    ----------
+    glassware
+        The shelf.
+    volume_mL
+        Volume to deliver [mL].
+    option
+        Device ids, one per delivery (a repeated id is a repeated delivery).
+
+    Returns
+    -------
+    bool
+        True when every id is on the shelf and the nominal volumes of the fixed devices plus
+        one reading on each graded device's grid (:func:`single_volumes_mL`) sum to
+        ``volume_mL`` within 1e-9 mL. False for an empty option, a non-positive volume, or a
+        vessel in the option (filling a flask to the mark is not a delivery).
+
+    Notes
+    -----
+    Checked from the devices directly, not looked up in :func:`deliverable_volumes`, so that
+    an independent verifier can use it. Several graded deliveries in one option are allowed.
+    """
+    if not option or not math.isfinite(volume_mL) or volume_mL <= 0.0:
+        return False
+    shelf = devices_by_id(glassware)
+    if any(device_id not in shelf for device_id in option):
+        return False
+    return _split_pL(shelf, option, volume_mL * _PL_PER_ML) is not None
+
+
+def combination_uncertainty_mL(
+    devices: Mapping[str, Device], option: Sequence[str], volume_mL: float
+) -> float:
+    """Combined standard uncertainty of delivering a volume with an option [mL].
+
+    Parameters
+    ----------
+    devices
+        Device id -> device, e.g. from :func:`devices_by_id`.
+    option
+        Device ids, one per delivery.
+    volume_mL
+        Total volume delivered [mL].
+
+    Returns
+    -------
+    float
+        Root sum of squares of the deliveries' standard uncertainties [mL]. Fixed devices
+        deliver their nominal volume; a graded device delivers the rest, ``volume_mL`` minus
+        the fixed parts (with several graded devices, the first split found on their grids).
+
+    Raises
+    ------
+    InvalidInputError
+        An empty option or an id not in ``devices`` (field ``option``); an option that cannot
+        deliver the volume (field ``volume_mL``; check with :func:`is_deliverable` first).
+
+    Notes
+    -----
+    Deliveries are independent, so their variances add (JCGM 100:2008, GUM, eq. 10, with unit
+    sensitivity coefficients).
+    """
+    if not option:
+        raise InvalidInputError(
+            "an option needs at least one delivery",
+            field="option",
+            value=tuple(option),
+            hint="name the device ids, one per delivery",
+        )
+    for device_id in option:
+        if device_id not in devices:
+            raise InvalidInputError(
+                "device not on the shelf",
+                field="option",
+                value=device_id,
+                hint=f"use one of {', '.join(sorted(devices))}",
+            )
+    readings_pL = _split_pL(devices, option, volume_mL * _PL_PER_ML)
+    if readings_pL is None:
+        raise InvalidInputError(
+            f"the option {' + '.join(option)} cannot deliver this volume",
+            field="volume_mL",
+            value=volume_mL,
+            hint="choose an option from deliverable_volumes or check with is_deliverable",
+        )
+    variance_mL2 = 0.0
+    for device_id, reading_pL in zip(option, readings_pL, strict=True):
+        variance_mL2 += standard_uncertainty_mL(devices[device_id], reading_pL / _PL_PER_ML) ** 2
+    return math.sqrt(variance_mL2)
