@@ -25,6 +25,7 @@ from planner.lab.tolerances import (
     _MATCH_PL,
     _PL_PER_ML,
     _PL_PER_UL,
+    _UL_PER_ML,
     _VESSEL_KINDS,
     ISO_4788_DIVISIONS_mL,
     _check_kind,
@@ -45,6 +46,7 @@ __all__ = [
     "devices_by_id",
     "is_deliverable",
     "reading_count",
+    "reading_step_mL",
     "single_volumes_mL",
 ]
 
@@ -121,6 +123,17 @@ def _default_division_mL(device: Device) -> float:
     # capacity (common practice).
     division = _lookup(ISO_4788_DIVISIONS_mL, device.volume_mL)
     return division if division is not None else 0.01 * device.volume_mL
+
+
+def reading_step_mL(device: Device) -> float | None:
+    """The finest step a device delivers in [mL]: a graduated device's division (its own, or
+    the default of :func:`_default_division_mL`), a piston pipette's setting step; None for
+    fixed-volume glassware and vessels, which deliver one volume."""
+    if device.kind in _VESSEL_KINDS or _is_fixed_volume(device):
+        return None
+    if device.kind == "piston-pipette":
+        return (device.step_uL or 1.0) / _UL_PER_ML
+    return device.division_mL if device.division_mL is not None else _default_division_mL(device)
 
 
 def _default_min_delivery_mL(device: Device) -> float:

@@ -188,30 +188,14 @@ def _decimals_of_step(step_mL: float) -> int:
     return decimals
 
 
-def _device_decimals(device: Device | None, kind: str) -> int:
-    """Decimal places a device's deliveries are read to.
+def _device_decimals(device: Device | None) -> int:
+    """Decimal places a device's deliveries are read to: those of its reading step
+    (:func:`planner.lab.deliveries.reading_step_mL`); fixed-volume glassware is written to
+    0.01 mL (common practice for class A pipettes and flasks)."""
+    from planner.lab.deliveries import reading_step_mL
 
-    Fixed-volume glassware is written to 0.01 mL (common practice for class A pipettes and
-    flasks). Graduated devices use their division, or the defaults of DESIGN.md contract
-    detail 5 (buret 0.01 mL; graduated pipette 0.01 mL up to 2 mL capacity, else 0.1 mL);
-    a cylinder without a division is read to 1 % of its capacity (common practice). A piston
-    pipette shows its setting step.
-    """
-    if device is None:
-        return 2
-    if kind == "piston-pipette":
-        return _decimals_of_step((device.step_uL or 1.0) / 1000.0)
-    if kind in ("buret", "graduated-pipette", "graduated-cylinder"):
-        division = device.division_mL
-        if division is None:
-            if kind == "buret":
-                division = 0.01
-            elif kind == "graduated-pipette":
-                division = 0.01 if device.volume_mL <= 2.0 else 0.1
-            else:
-                division = 0.01 * device.volume_mL
-        return _decimals_of_step(division)
-    return 2
+    step = reading_step_mL(device) if device is not None else None
+    return _decimals_of_step(step) if step is not None else 2
 
 
 def addition_decimals(inputs: PlanInputs, addition: Addition) -> int:
@@ -219,10 +203,7 @@ def addition_decimals(inputs: PlanInputs, addition: Addition) -> int:
     shelf = {device.id: device for device in inputs.glassware}
     if not addition.devices:
         return 2
-    return max(
-        _device_decimals(shelf.get(device_id), device_name(device_id).kind)
-        for device_id in addition.devices
-    )
+    return max(_device_decimals(shelf.get(device_id)) for device_id in addition.devices)
 
 
 def volume(value_mL: float, decimals: int = 2) -> str:
