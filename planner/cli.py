@@ -126,10 +126,11 @@ def _run(action: Callable[[], T]) -> T:
             return action()
     except PlannerError as error:
         from rich.console import Console
-        from rich.markup import escape
+        from rich.text import Text
 
         console = Console(stderr=True, highlight=False)
-        console.print(f"[bold red]error:[/] {escape(str(error))}")
+        # Text, not markup: an error quotes the user's values, which may hold "[...]" or ":x:".
+        console.print(Text.assemble(("error:", "bold red"), " ", str(error)))
         raise typer.Exit(EXIT_INVALID_INPUT) from None
     except KeyboardInterrupt as stop:
         signum = stop.signum if isinstance(stop, _Stopped) else int(signal.SIGINT)
@@ -358,9 +359,7 @@ def plan(
 
             Console(highlight=False).print(render_plan(result))
         if out is not None and not quiet:
-            from rich.console import Console
-
-            Console(stderr=True, highlight=False).print(f"wrote {out}/")
+            _tell(f"wrote {out}/")
         return EXIT_CHECK_FAILED if result.failed else EXIT_OK
 
     code = _run(body)
@@ -370,18 +369,19 @@ def plan(
 
 def _render_checks(checks: tuple[Check, ...]) -> None:
     from rich.console import Console
-    from rich.table import Table
 
-    from planner.report.plan_json import checks_worst_first
+    from planner.report.terminal import render_checks
 
-    table = Table(title="Verification", show_lines=False)
-    table.add_column("status")
-    table.add_column("check")
-    table.add_column("detail", overflow="fold")
-    style = {"fail": "bold red", "warn": "yellow", "pass": "green"}
-    for item in checks_worst_first(checks):
-        table.add_row(f"[{style[item.status]}]{item.status.upper()}[/]", item.name, item.detail)
-    Console(highlight=False).print(table)
+    Console(highlight=False).print(render_checks(checks))
+
+
+def _tell(message: str, *, heading: str = "", style: str = "") -> None:
+    """One line on stderr, printed literally (paths and reasons may hold rich markup)."""
+    from rich.console import Console
+    from rich.text import Text
+
+    line = Text.assemble((heading, style), " ", message) if heading else Text(message)
+    Console(stderr=True, highlight=False).print(line)
 
 
 @app.command(
@@ -458,11 +458,8 @@ def init(
 
         text = files("planner").joinpath("data/starter.toml").read_text(encoding="utf-8")
         write_new_file(path, text.encode("utf-8"))
-        from rich.console import Console
 
-        Console(stderr=True, highlight=False).print(
-            f"wrote {path}; edit it, then run: planner plan {path}"
-        )
+        _tell(f"wrote {path}; edit it, then run: planner plan {path}")
         return EXIT_OK
 
     _run(body)
@@ -521,7 +518,7 @@ def variants(
                 progress=lambda done, total: progress.update(task, completed=done),
             )
         if not found.plans:
-            Console(stderr=True, highlight=False).print(f"[bold red]no variants:[/] {found.reason}")
+            _tell(found.reason, heading="no variants:", style="bold red")
             return EXIT_CHECK_FAILED
         write_output_folder(
             out,
@@ -529,11 +526,10 @@ def variants(
             force=force,
             protect=_reads(file),
         )
-        err.print(f"wrote {len(found.plans)} section folder(s) and an index to {out}/")
+        if not quiet:
+            _tell(f"wrote {len(found.plans)} section folder(s) and an index to {out}/")
         if not found.complete:
-            Console(stderr=True, highlight=False).print(
-                f"[bold red]only {len(found.plans)} of {sections}:[/] {found.reason}"
-            )
+            _tell(found.reason, heading=f"only {len(found.plans)} of {sections}:", style="bold red")
             return EXIT_CHECK_FAILED
         return EXIT_OK
 
@@ -647,8 +643,8 @@ def simulate(
             console = Console(highlight=False)
             # The coefficients' formulas need room; narrower terminals get them in the JSON.
             console.print(render_simulation(result, gum, formulas=console.width >= 140))
-        if out is not None:
-            err.print(f"wrote {out}/")
+        if out is not None and not quiet:
+            _tell(f"wrote {out}/")
         return EXIT_CHECK_FAILED if designed.failed else EXIT_OK
 
     code = _run(body)

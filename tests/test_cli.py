@@ -392,3 +392,12 @@ def test_no_color_is_honoured():
 def test_terminal_summary_fits_80_columns():
     result = runner.invoke(app, ["plan"], env={"COLUMNS": "80"})
     assert max(len(line) for line in result.stdout.splitlines()) <= 80
+
+
+def test_an_output_path_with_rich_markup_is_printed_literally(tmp_path, monkeypatch):
+    # rich read "[/]" in the folder's name as markup: the folder was written, then exit 3.
+    monkeypatch.chdir(tmp_path)
+    result = run("plan", "--out", "x[/]y", "--date", "2026-12-03")
+    assert result.exit_code == 0, result.stderr
+    assert "wrote x[/]y/" in result.stderr
+    assert (tmp_path / "x[/]y" / "plan.json").is_file()

@@ -30,9 +30,9 @@ from planner.report._format import (
     volume,
 )
 from planner.report.plan_json import checks_worst_first
-from planner.result import Mixture, Plan
+from planner.result import Check, Mixture, Plan
 
-__all__ = ["render_plan"]
+__all__ = ["render_checks", "render_plan"]
 
 _STATUS_STYLE = {"fail": "bold red", "warn": "bold yellow", "pass": "green"}
 
@@ -205,3 +205,20 @@ def render_plan(plan: Plan) -> RenderableType:
     if plan.notes:
         parts.append(Text("Notes:\n" + "\n".join(f"- {note}" for note in plan.notes)))
     return Group(*parts)
+
+
+def render_checks(checks: tuple[Check, ...]) -> RenderableType:
+    """The checks of ``planner verify`` as a table, failures first; every cell printed
+    literally (details quote stock ids and species names from the plan file)."""
+    table = Table(title="Verification", show_lines=False)
+    table.add_column("status")
+    table.add_column("check")
+    table.add_column("detail", overflow="fold")
+    style = {"fail": "bold red", "warn": "yellow", "pass": "green"}
+    for item in checks_worst_first(checks):
+        table.add_row(
+            Text(item.status.upper(), style=style.get(item.status, "")),
+            Text(item.name),
+            Text(item.detail),
+        )
+    return table
