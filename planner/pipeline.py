@@ -27,9 +27,12 @@ from planner.design.mixtures import Objective
 from planner.design.plan import design_recipes
 from planner.design.variants import VariantSet
 from planner.inputs import PlanInputs
-from planner.result import Mixture, Plan, Prediction, UncertaintyResult
+from planner.result import Check, Mixture, Plan, Prediction, UncertaintyResult
 
-__all__ = ["design_plan", "design_variants", "predict_mixtures"]
+__all__ = ["design_plan", "design_variants", "meaningless_numbers", "predict_mixtures"]
+
+#: Name of the check that a plan's predicted numbers mean something.
+PREDICTION_CHECK = "prediction-meaningful"
 
 
 def _all_finite(value: object) -> bool:
@@ -89,6 +92,65 @@ def predict_mixtures(
     return filled, result, prediction
 
 
+def meaningless_numbers(prediction: Prediction) -> list[str]:
+    """What in a prediction would print as a meaningless number.
+
+    A formation constant, a molar absorptivity and their uncertainties are positive and finite;
+    so is every end of a range a class is told to expect for them. A zero or negative K (a
+    test whose predicted product exceeds what the 1:1 expression allows, or a range wider
+    than the value) says that the analysis cannot determine K on this plan.
+
+    Returns
+    -------
+    list of str
+        One phrase per problem, empty when every number means something.
+    """
+    problems: list[str] = []
+
+    def positive(value: float | None, what: str) -> None:
+        if value is not None and not (math.isfinite(value) and value > 0):
+            problems.append(f"{what} would be {value:.4g}")
+
+    positive(prediction.epsilon, "eps")
+    positive(prediction.u_epsilon, "u(eps)")
+    positive(prediction.K, "the mean K")
+    positive(prediction.u_K, "u(K)")
+    if prediction.epsilon_ci95 is not None:
+        positive(prediction.epsilon_ci95[0], "the low end of the 95 % range of eps")
+    if prediction.K_ci95 is not None:
+        positive(prediction.K_ci95[0], "the low end of the 95 % range of K")
+    for n, (k, u) in enumerate(zip(prediction.K_per_test, prediction.u_K_per_test, strict=False)):
+        positive(k, f"K from test {n + 1}")
+        positive(u, f"u(K) of test {n + 1}")
+    for n, (low, _) in enumerate(prediction.K_per_test_ci95):
+        positive(low, f"the low end of the 95 % range of K from test {n + 1}")
+    return problems
+
+
+def _prediction_check(prediction: Prediction | None) -> tuple[Prediction | None, tuple[Check, ...]]:
+    """Keep a prediction only when all its numbers mean something; otherwise a failed check."""
+    if prediction is None:
+        return None, ()
+    problems = meaningless_numbers(prediction)
+    if not problems:
+        return prediction, (
+            Check(PREDICTION_CHECK, "pass", "every predicted K, eps and range is positive"),
+        )
+    shown = "; ".join(problems[:4]) + (
+        f"; and {len(problems) - 4} more" if len(problems) > 4 else ""
+    )
+    return None, (
+        Check(
+            PREDICTION_CHECK,
+            "fail",
+            f"the all-bound analysis of this plan would print meaningless numbers ({shown}), "
+            "so the answer key carries none: the standards' limiting reagent is too far from "
+            "all bound or the tests too close to it; raise the excess in the standards, "
+            "choose tests with more free limiting reagent, or use the global fit",
+        ),
+    )
+
+
 def design_plan(
     inputs: PlanInputs,
     objective: Objective | None = None,
@@ -121,7 +183,10 @@ def design_plan(
 
     design = design_recipes(inputs, objective, candidates=candidates, allowed=allowed)
     mixtures, uncertainty, prediction = predict_mixtures(inputs, design.mixtures)
-    checks = design.checks + tuple(verify_plan(inputs, mixtures, design.totals))
+    prediction, meaningful = _prediction_check(prediction)
+    if prediction is None:
+        uncertainty = None
+    checks = design.checks + tuple(verify_plan(inputs, mixtures, design.totals)) + meaningful
     return Plan(
         inputs=inputs,
         mixtures=mixtures,

@@ -155,3 +155,56 @@ def test_design_verify_and_predict_do_not_import_each_other():
         if (unit, target) in _APART or (target, unit) in _APART
     ]
     assert crossing == []
+
+
+# ---------------------------------------------------------------------------------------------
+# Never a meaningless number
+# ---------------------------------------------------------------------------------------------
+
+
+def test_a_dominant_one_to_two_product_fails_instead_of_printing_a_negative_K():
+    # In this recipe Fe(SCN)2+ dominates, so the 1:1 all-bound expression gave a mean K of
+    # about -2355 L/mol (and negative K for two tests) on the answer key.
+    plan = json.loads(
+        _run(
+            "plan",
+            str(ROOT / "recipes" / "iron-thiocyanate-ligand-excess.toml"),
+            "--format",
+            "json",
+        )
+    )
+    check = next(c for c in plan["checks"] if c["name"] == "prediction-meaningful")
+    assert check["status"] == "fail"
+    assert "K" in check["detail"]
+    assert plan["prediction"] is None
+
+
+def test_meaningless_numbers_names_each_problem():
+    from planner.pipeline import meaningless_numbers
+    from planner.result import Prediction
+
+    good = Prediction(
+        epsilon=4500.0,
+        u_epsilon=30.0,
+        K=100.0,
+        u_K=3.0,
+        K_bias_from_assumption=0.02,
+        K_true=98.0,
+        epsilon_true=4700.0,
+        K_per_test=(99.0, 101.0),
+        u_K_per_test=(4.0, 5.0),
+        epsilon_ci95=(4441.2, 4558.8),
+        K_ci95=(94.1, 105.9),
+        K_per_test_ci95=((91.2, 106.8), (91.2, 110.8)),
+    )
+    assert meaningless_numbers(good) == []
+    import dataclasses
+
+    bad = dataclasses.replace(
+        good, K_per_test=(99.0, -15.0), K_ci95=(-3.0, 203.0), u_epsilon=float("nan")
+    )
+    problems = meaningless_numbers(bad)
+    assert len(problems) == 3
+    assert any("test 2" in p for p in problems)
+    assert any("range of K" in p for p in problems)
+    assert any("u(eps)" in p for p in problems)
