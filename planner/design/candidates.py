@@ -130,6 +130,11 @@ class CandidateSet:
     u_relative_total
         Relative standard uncertainty of each component's total concentration from stock
         concentrations, deliveries and final volume, shape (n, n_components) [unitless].
+    u_absorbance
+        Screening estimate of each reading's standard uncertainty: the component totals'
+        uncertainties through the forward model's sensitivity, plus the reading noise, shape
+        (n,) [unitless]. The plan's own u(A) comes from the prediction stage, which also
+        carries the correlations this estimate leaves out.
     ions
         The ion table of the stocks, in the same stock order.
     evaluation
@@ -143,6 +148,7 @@ class CandidateSet:
     total_volume_mL: float
     deliveries: NDArray[np.int64]
     u_relative_total: NDArray[np.float64]
+    u_absorbance: NDArray[np.float64]
     ions: IonTable
     evaluation: Evaluation
 
@@ -311,6 +317,8 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
         inputs, stocks_in_order, columns, option_index, volumes_mL, total_u_mL / total_mL
     )
 
+    u_absorbance = _reading_uncertainty(inputs, evaluation, u_relative_total)
+
     return CandidateSet(
         stock_ids=tuple(stock_ids),
         options=tuple(columns),
@@ -319,9 +327,37 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
         total_volume_mL=total_mL,
         deliveries=deliveries,
         u_relative_total=u_relative_total,
+        u_absorbance=u_absorbance,
         ions=ions,
         evaluation=evaluation,
     )
+
+
+# Relative step of the one-sided difference of the forward model (truncation ~1e-6 relative,
+# ample for a screening estimate).
+_READING_STEP = 1e-6
+
+
+def _reading_uncertainty(
+    inputs: PlanInputs, evaluation: Evaluation, u_relative_total: NDArray[np.float64]
+) -> NDArray[np.float64]:
+    """u(A) of each candidate: sqrt(u_read^2 + sum_j (dA/dT_j u(T_j))^2) (GUM, JCGM 100:2008,
+    eq. 10, components taken as independent), dA/dT_j by a one-sided difference of
+    :func:`planner.forward.predict_readings`."""
+    totals = evaluation.total_M
+    variance = np.full(totals.shape[0], inputs.instrument.absorbance_sd**2)
+    for j in range(totals.shape[1]):
+        step = _READING_STEP * totals[:, j]
+        present = step > 0
+        if not np.any(present):
+            continue
+        moved = totals[present].copy()
+        moved[:, j] += step[present]
+        shifted = predict_readings(inputs.reaction, inputs.instrument, moved).absorbance
+        slope = (shifted - evaluation.absorbance[present]) / step[present]
+        variance[present] += (slope * u_relative_total[present, j] * totals[present, j]) ** 2
+    result: NDArray[np.float64] = np.sqrt(variance)
+    return result
 
 
 def _relative_total_uncertainty(

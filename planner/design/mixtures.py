@@ -250,7 +250,8 @@ def choose_tests(
     ev = candidates.evaluation
     f_low, f_high = design.bound_fraction_range
     fraction = ev.bound_fraction
-    margin = 2.0 * inputs.instrument.absorbance_sd
+    # Every reading +/- 2 u(A) inside the window, so a real bench stays inside it.
+    margin = 2.0 * candidates.u_absorbance
     eligible = (
         (ev.absorbance >= low + margin)
         & (ev.absorbance <= high - margin)

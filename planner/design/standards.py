@@ -116,8 +116,8 @@ def choose_standards(
         else np.zeros((candidates.size, 0), dtype=np.int64)
     )
     absorbance = evaluation.absorbance
-    # Two reading SDs inside the window, so noise does not push a standard out of it.
-    margin = 2.0 * inputs.instrument.absorbance_sd
+    # Every reading +/- 2 u(A) inside the window, so a real bench stays inside it.
+    margin = 2.0 * candidates.u_absorbance
     in_window = (absorbance >= low + margin) & (absorbance <= high - margin)
     usable = has_limiting & in_window & np.any(groups > 0, axis=1)
     if excess_columns and not np.any(usable):

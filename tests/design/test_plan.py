@@ -28,10 +28,16 @@ def test_recipes_exist():
     assert len(PLANS) >= 5
 
 
+# Where the 1:2 product dominates, the all-bound analysis gives a negative mean K: the plan
+# must say so with a failed check instead of printing it (the recipe shows exactly that).
+EXPECTED_FAILURES = {"iron-thiocyanate-ligand-excess": {"prediction-meaningful"}}
+
+
 def test_verifies_clean(planned):
-    _, plan = planned
-    failed = [(c.name, c.detail) for c in plan.checks if c.status == "fail"]
-    assert not failed
+    inputs, plan = planned
+    failed = {c.name for c in plan.checks if c.status == "fail"}
+    stem = next(p.stem for p in PLANS if load_plan(p) == inputs)
+    assert failed == EXPECTED_FAILURES.get(stem, set())
 
 
 def test_counts_and_roles(planned):
