@@ -45,6 +45,8 @@ __all__ = [
 # Most graded volumes per stock kept for the search (design grid), and the round steps tried
 # to thin a grid, in mL (common practice: staff set and read round volumes fastest).
 _MAX_GRADED_VOLUMES = 120
+# Least share of a flask the diluent fills to the mark (common practice).
+_FLASK_DILUENT_SHARE = 0.1
 _ROUND_STEPS_mL = (0.01, 0.02, 0.05, 0.1, 0.2, 0.25, 0.5, 1.0, 2.0, 5.0)
 # Most candidates evaluated; more reagent stocks thin each stock's list further.
 _MAX_CANDIDATES = 150_000
@@ -248,6 +250,10 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
     volumes = option_volumes[grid] if reagents else np.zeros((1, 0))
     used = volumes.sum(axis=1)
     keep = used <= total_mL + 1e-9
+    if in_flask:
+        # The diluent makes up to the mark: a flask filled to the mark by the reagents alone
+        # leaves nothing to adjust with (common practice: at least a tenth of the flask).
+        keep &= used <= (1.0 - _FLASK_DILUENT_SHARE) * total_mL + 1e-9
     if not in_flask and diluent is None:
         keep &= np.abs(used - total_mL) <= 1e-9
     grid, volumes, used = grid[keep], volumes[keep], used[keep]

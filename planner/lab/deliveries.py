@@ -139,8 +139,9 @@ def reading_step_mL(device: Device) -> float | None:
 def _default_min_delivery_mL(device: Device) -> float:
     """Smallest sensible delivery when the device gives none [mL]."""
     if device.kind == "buret":
-        # DESIGN.md contract detail 5: 0.10 mL at least.
-        return 0.10
+        # 1.00 mL per delivery (common practice: a smaller buret delivery is mostly the two
+        # reading errors and the drop at the tip); a smaller buret, its capacity.
+        return min(1.0, device.volume_mL)
     # Graduated pipettes and cylinders: 10 % of capacity (common practice: the meniscus
     # reading error is a large share of anything smaller).
     return 0.1 * device.volume_mL

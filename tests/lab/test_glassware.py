@@ -294,15 +294,15 @@ def test_transfer_pipette_delivers_its_nominal_volume():
 
 
 def test_buret_grid():
-    # DESIGN.md contract detail 5: a buret reads to 0.01 mL, 0.10 mL at least, up to capacity:
-    # (25.00 - 0.10) / 0.01 + 1 = 2491 readings.
+    # DESIGN.md contract detail 5: a buret reads to 0.01 mL; it delivers 1.00 mL at least
+    # (common practice, issue 11), up to capacity: (25.00 - 1.00) / 0.01 + 1 = 2401 readings.
     values = single_volumes_mL(BURET_25)
-    assert values.size == 2491
-    assert values[0] == 0.1
+    assert values.size == 2401
+    assert values[0] == 1.0
     assert values[-1] == 25.0
-    assert np.array_equal(values, np.arange(10, 2501) / 100)
-    # Integer grid: the 21st reading is exactly the float 0.3, not 0.30000000000000004.
-    assert values[20] == 0.3
+    assert np.array_equal(values, np.arange(100, 2501) / 100)
+    # Integer grid: the 31st reading is exactly the float 1.3, not 1.3000000000000003.
+    assert values[30] == 1.3
     assert np.array_equal(values, np.round(values, 9))
 
 
@@ -478,7 +478,7 @@ def test_is_deliverable_accepts_and_rejects():
     assert not is_deliverable(shelf, 12.345, ("buret-25mL",))  # between 0.01 mL readings
     assert not is_deliverable(shelf, 0.05, ("buret-25mL",))  # below the 0.10 mL minimum
     assert not is_deliverable(shelf, 25.01, ("buret-25mL",))  # above capacity
-    assert is_deliverable(shelf, 0.1 + 0.2, ("buret-25mL",))  # float drift does not matter
+    assert is_deliverable(shelf, 0.7 + 0.6, ("buret-25mL",))  # float drift does not matter
     assert not is_deliverable(shelf, 0.0995, ("piston-pipette-100-1000uL",))
     assert is_deliverable(shelf, 40.0, ("buret-25mL", "buret-25mL"))  # two graded deliveries
     assert not is_deliverable(shelf, 7.0, ("transfer-pipette-7mL",))  # not on the shelf
@@ -577,11 +577,11 @@ def test_is_deliverable_agrees_with_enumeration(shelf, max_volume_mL, max_delive
 def test_reading_count_matches_the_listed_volumes():
     for device in (*TARGET_SHELF, Device(kind="tube", volume_mL=10.0)):
         assert reading_count(device) == len(single_volumes_mL(device))
-    # 25 mL buret read to 0.01 mL from 0.10 mL: 2491 readings (0.10, 0.11, ..., 25.00).
-    assert reading_count(BURET_25) == 2491
+    # 25 mL buret read to 0.01 mL from 1.00 mL: 2401 readings (1.00, 1.01, ..., 25.00).
+    assert reading_count(BURET_25) == 2401
     # Cheap for any division: 1e-9 mL would need 25e9 readings (hundreds of GB to list).
     fine = Device(kind="buret", volume_mL=25.0, division_mL=1e-9)
-    assert reading_count(fine) == 24_900_000_001
+    assert reading_count(fine) == 24_000_000_001
 
 
 def test_combination_count_bounds_deliverable_volumes():

@@ -28,7 +28,7 @@ from hypothesis import strategies as st
 from markdown_it import MarkdownIt
 from rich.console import Console
 
-from planner.design.plan import design_plan
+from planner.pipeline import design_plan
 from planner.planfile import parse_plan
 from planner.predict.montecarlo import simulate
 from planner.predict.uncertainty import propagate
