@@ -14,6 +14,7 @@ import dataclasses
 import json
 import math
 import re
+import subprocess
 import sys
 from collections.abc import Iterator
 from importlib.resources import as_file, files
@@ -786,3 +787,17 @@ def test_verify_work_is_linear_in_the_mixtures(default_plan: Plan) -> None:
     small, large = _work(saved, 40), _work(saved, 160)
     n_small, n_large = len(saved.mixtures) + 40, len(saved.mixtures) + 160
     assert large / small <= 1.1 * n_large / n_small, (small, large)
+
+
+def test_verifier_imports_neither_design_nor_predict() -> None:
+    # The verifier must not reuse the code it checks (DEVELOPERS.md, "Layers and import
+    # direction"): import it alone in a fresh interpreter and list what came with it.
+    code = (
+        "import sys, planner.verify, planner.verify_prediction; "
+        "print(sorted(m for m in sys.modules "
+        "if m.startswith(('planner.design', 'planner.predict'))))"
+    )
+    done = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=ROOT
+    )
+    assert done.stdout.strip() == "[]"
