@@ -411,10 +411,12 @@ def verify(
 
     def body() -> int:
         from planner.resultfile import load_result
-        from planner.verify import verify_plan
+        from planner.verify import verify_result
 
         saved = load_result(result_file)
-        checks = verify_plan(saved.inputs, saved.mixtures, saved.totals)
+        checks = verify_result(
+            saved.inputs, saved.mixtures, saved.totals, saved.preparations, saved.prediction
+        )
         if quiet:
             pass
         elif output_format is OutputFormat.json:

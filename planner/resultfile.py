@@ -1,7 +1,7 @@
 """Saved plan results: ``plan.json`` text back to the stage results, for re-verification.
 
 This is the boundary layer of ``planner verify`` (DESIGN.md section 5, "Contract 2"): it reads
-a plan result, perhaps edited by hand, and rebuilds what :func:`planner.verify.verify_plan`
+a plan result, perhaps edited by hand, and rebuilds what :func:`planner.verify.verify_result`
 needs. It checks structure only (every key known, every value of the right type and finite);
 whether the recipes make sense is the verifier's job, so a hand-edited plan with wrong volumes
 reads without error and then fails its checks.
@@ -14,11 +14,15 @@ Rules of the reader:
 - a mixture, an addition, ``totals_mL`` and a check may hold only the keys of the contract, so
   a misspelt key in a hand edit is caught rather than ignored; unknown *top-level* keys are
   allowed, because consumers may add blocks of their own;
-- ``title``, ``prediction``, ``preparation`` and ``notes`` are not needed for verification
-  and are not read; ``checks`` may be left out; ``totals_mL.dead_volume_mL`` defaults to the
-  plan's ``session.dead_volume_mL``;
+- ``preparation`` (a list of stocks to prepare) and ``prediction`` (an object, or null) hold
+  only the keys the planner writes, each of them; both may be left out, and verification
+  then says so. ``title`` and ``notes`` are not read; ``checks`` may be left out;
+  ``totals_mL.dead_volume_mL`` defaults to the plan's ``session.dead_volume_mL``;
 - NaN and infinity (which strict JSON does not have, and the planner never writes) are
-  errors wherever they appear, as are repeated keys in one object.
+  errors wherever they appear, as are repeated keys in one object;
+- outside ``inputs`` (which the plan-file rules bound), a number larger in size than
+  :data:`LARGEST_NUMBER` is an error: no quantity of a plan comes near it, and arithmetic on
+  such numbers (a volume of 1e308 mL in picolitres, say) overflows.
 
 Every failure raises :class:`planner.errors.ResultFileError` whose message names the dotted
 key path (``mixtures[3].additions[1].volume_mL``, 0-based list indices), the value received
@@ -41,12 +45,18 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError
 from planner.errors import PlanFileError, ResultFileError
 from planner.inputs import PlanInputs
 from planner.planfile import plan_from_mapping, read_text
-from planner.result import Addition, Check, Mixture, Totals
+from planner.result import Addition, Check, Mixture, Prediction, StockPreparation, Totals
 
-__all__ = ["SCHEMA", "SavedPlan", "load_result", "parse_result"]
+__all__ = ["LARGEST_NUMBER", "SCHEMA", "SavedPlan", "load_result", "parse_result"]
 
 #: The schema name and version this reader understands.
 SCHEMA = "planner.plan/1"
+
+#: Largest size of a number a plan result may hold outside ``inputs``. Volumes are at most
+#: thousands of mL, concentrations tens of mol/L and K at most 10^(log beta limit); 1e100
+#: leaves every product of two or three such numbers finite in double precision (IEEE 754,
+#: largest finite value about 1.8e308).
+LARGEST_NUMBER = 1e100
 
 _DEFAULT_SOURCE = "<result>"
 
@@ -66,12 +76,18 @@ class SavedPlan:
     stated_checks
         The checks the document reports, in document order (empty when it has none); the
         verifier's own findings replace them, and a difference shows a hand edit.
+    preparations
+        The ``preparation`` block, in document order, or None when the document has none.
+    prediction
+        The ``prediction`` block, or None when the document has none or states null.
     """
 
     inputs: PlanInputs
     mixtures: tuple[Mixture, ...]
     totals: Totals
     stated_checks: tuple[Check, ...]
+    preparations: tuple[StockPreparation, ...] | None = None
+    prediction: Prediction | None = None
 
 
 # --------------------------------------------------------------------------------------------
@@ -139,6 +155,30 @@ class _CheckModel(_Model):
     detail: str = Field(description="what was found, in double quotes")
 
 
+class _PreparationModel(_Model):
+    stock: str = Field(description="the id of a stock in inputs.stocks, in double quotes")
+    flask_mL: float = Field(description="the volumetric flask to make it in [mL], a number")
+    flasks: int = Field(description="how many such flasks, a whole number")
+    solid_formula: str = Field(description='the solid to weigh, e.g. "KSCN", or ""')
+    molar_mass_g_per_mol: float = Field(description="the solid's molar mass [g/mol], a number")
+    purity: float = Field(description="the mass fraction of the compound in the solid, a number")
+    mass_g: float = Field(description="the mass of solid per flask [g], a number")
+    provides: str = Field(description='the ion the solid provides, e.g. "SCN-", or ""')
+    concentration_M: float = Field(description="that ion's concentration [mol/L], a number")
+    medium: str = Field(description="what the stock is made up in, for the label")
+
+
+class _PredictionModel(_Model):
+    epsilon: float = Field(description="the molar absorptivity [L mol-1 cm-1], a number")
+    u_epsilon: float = Field(description="its standard uncertainty, a number")
+    K: float = Field(description="the mean K over the tests [L/mol], a number")
+    u_K: float = Field(description="its standard uncertainty, a number")
+    K_bias_from_assumption: float = Field(description="K / K_true - 1, a number")
+    K_true: float = Field(description="the K the plan assumes [L/mol], a number")
+    epsilon_true: float = Field(description="the absorptivity the plan assumes, a number")
+    K_per_test: list[float] = Field(description="the K of each test mixture, a list of numbers")
+
+
 class _DocumentModel(_Model):
     # Consumers may add top-level blocks of their own; only the contract's nested objects are
     # closed.
@@ -153,6 +193,12 @@ class _DocumentModel(_Model):
     )
     checks: list[_CheckModel] = Field(
         default_factory=list, description="the list of checks, each { name, status, detail }"
+    )
+    preparation: list[_PreparationModel] | None = Field(
+        None, description="the list of stocks to prepare, each an object"
+    )
+    prediction: _PredictionModel | None = Field(
+        None, description="the prediction of the usual analysis, an object or null"
     )
 
 
@@ -220,6 +266,8 @@ _NESTED: dict[tuple[type[_Model], str], type[_Model]] = {
     (_DocumentModel, "mixtures"): _MixtureModel,
     (_DocumentModel, "totals_mL"): _TotalsModel,
     (_DocumentModel, "checks"): _CheckModel,
+    (_DocumentModel, "preparation"): _PreparationModel,
+    (_DocumentModel, "prediction"): _PredictionModel,
     (_MixtureModel, "additions"): _AdditionModel,
 }
 
@@ -354,6 +402,18 @@ def _plain(value: Any, loc: tuple[int | str, ...]) -> Any:
             value,
             "write the number itself; the planner never writes NaN",
         )
+    if (
+        isinstance(value, (int, float))
+        and not isinstance(value, bool)
+        and loc[:1] != ("inputs",)
+        and abs(value) > LARGEST_NUMBER
+    ):
+        _fail(
+            _path(loc),
+            f"number too large for a plan result (more than {LARGEST_NUMBER:g} in size)",
+            _shown(value),
+            "write the intended value; no quantity of a plan comes near this size",
+        )
     return value
 
 
@@ -445,6 +505,36 @@ def _totals(model: _TotalsModel, inputs: PlanInputs) -> Totals:
     )
 
 
+def _preparation(model: _PreparationModel) -> StockPreparation:
+    return StockPreparation(
+        stock=model.stock,
+        flask_mL=float(model.flask_mL),
+        flasks=model.flasks,
+        solid_formula=model.solid_formula,
+        molar_mass_g_per_mol=float(model.molar_mass_g_per_mol),
+        purity=float(model.purity),
+        mass_g=float(model.mass_g),
+        provides=model.provides,
+        concentration_M=float(model.concentration_M),
+        medium=model.medium,
+    )
+
+
+def _prediction(model: _PredictionModel | None) -> Prediction | None:
+    if model is None:
+        return None
+    return Prediction(
+        epsilon=float(model.epsilon),
+        u_epsilon=float(model.u_epsilon),
+        K=float(model.K),
+        u_K=float(model.u_K),
+        K_bias_from_assumption=float(model.K_bias_from_assumption),
+        K_true=float(model.K_true),
+        epsilon_true=float(model.epsilon_true),
+        K_per_test=tuple(float(k) for k in model.K_per_test),
+    )
+
+
 def _build(text: str, source: str) -> SavedPlan:
     document = _document(text)
     _check_schema(document)
@@ -458,6 +548,10 @@ def _build(text: str, source: str) -> SavedPlan:
         mixtures=tuple(_mixture(m) for m in model.mixtures),
         totals=_totals(model.totals_mL, inputs),
         stated_checks=tuple(Check(c.name, c.status, c.detail) for c in model.checks),
+        preparations=(
+            None if model.preparation is None else tuple(_preparation(p) for p in model.preparation)
+        ),
+        prediction=_prediction(model.prediction),
     )
 
 
@@ -479,8 +573,8 @@ def parse_result(text: str, *, source: str = _DEFAULT_SOURCE) -> SavedPlan:
     Returns
     -------
     SavedPlan
-        Inputs, mixtures, totals [mL] and stated checks, ready for
-        :func:`planner.verify.verify_plan`.
+        Inputs, mixtures, totals [mL], stated checks, preparation and prediction, ready for
+        :func:`planner.verify.verify_result`.
 
     Raises
     ------
@@ -494,7 +588,8 @@ def parse_result(text: str, *, source: str = _DEFAULT_SOURCE) -> SavedPlan:
     Examples
     --------
     >>> saved = parse_result(Path("out/plan.json").read_text())  # doctest: +SKIP
-    >>> verify_plan(saved.inputs, saved.mixtures, saved.totals)  # doctest: +SKIP
+    >>> verify_result(saved.inputs, saved.mixtures, saved.totals,
+    ...               saved.preparations, saved.prediction)  # doctest: +SKIP
     """
     try:
         return _build(text, source)

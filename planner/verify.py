@@ -1,36 +1,51 @@
 """Independent re-check of a finished plan from first principles.
 
-Nothing here calls the optimiser or the prediction (this module imports neither
-:mod:`planner.design` nor :mod:`planner.predict`): every recipe is re-mixed from its additions,
-re-solved and re-read, every volume is checked against the devices it names and the shelf,
-and every total is recomputed. The findings are the plan's ``checks``: data, never
-exceptions.
+Nothing here calls the optimiser or the prediction (this module, and
+:mod:`planner.verify_prediction` which it uses, import neither :mod:`planner.design` nor
+:mod:`planner.predict`): every recipe is re-mixed from its additions, re-solved and re-read,
+every volume is checked against the devices it names and the shelf, every total, every
+reading's uncertainty, every stock's preparation and the prediction are recomputed, and every
+stated number is compared with its recomputation. The findings are the plan's ``checks``:
+data, never exceptions.
+
+:func:`verify_plan` checks the recipes, their stated state and the totals (the design runs it
+on every plan it makes); :func:`verify_result` adds the two blocks the design makes after
+verification, ``preparation`` and ``prediction``, for a saved result (``planner verify``).
 """
 
 from __future__ import annotations
 
-from collections import defaultdict
-from collections.abc import Sequence
+import math
+from collections import Counter, defaultdict
+from collections.abc import Mapping, Sequence
 
 import numpy as np
 
 from planner.chem.assumption import min_excess_M
 from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, mix_M
-from planner.inputs import PlanInputs
-from planner.lab.glassware import is_deliverable
+from planner.chem.species import molar_mass_g_per_mol
+from planner.inputs import Device, PlanInputs, Stock
+from planner.lab.glassware import (
+    devices_by_id,
+    is_deliverable,
+    piston_errors_uL,
+    standard_uncertainty_mL,
+)
 from planner.lab.photometer import observed_absorbance, true_absorbance
-from planner.result import Check, Mixture, Totals
+from planner.result import Check, Mixture, Prediction, StockPreparation, Totals
+from planner.verify_prediction import RecomputedPrediction, recompute_prediction, vessel_flask
 
-__all__ = ["CHECK_NAMES", "verify_plan"]
+__all__ = ["CHECK_NAMES", "RESULT_CHECK_NAMES", "verify_plan", "verify_result"]
 
-#: Stable names of the checks, in the order they are run.
+#: Stable names of the checks of :func:`verify_plan`, in the order they are run.
 CHECK_NAMES = (
     "mixture-count",
     "deliverable-volumes",
     "volume-totals",
     "concentrations",
     "absorbance-window",
+    "reading-uncertainty",
     "limiting-reagent-assumption",
     "product-speciation",
     "bound-fraction-coverage",
@@ -40,6 +55,10 @@ CHECK_NAMES = (
     "cuvette-fill",
     "device-count",
 )
+#: Stable names of the checks of :func:`verify_result` (a saved plan result), in order: those
+#: of :func:`verify_plan`, then the prep room's ``preparation`` and the answer key's
+#: ``prediction``.
+RESULT_CHECK_NAMES = (*CHECK_NAMES, "preparation", "prediction")
 
 # Relative agreement required between stated and recomputed numbers: JSON keeps full float
 # precision, so anything beyond rounding (1e-12) is an edit or a bug; 1e-7 leaves room for
@@ -47,6 +66,22 @@ CHECK_NAMES = (
 _RTOL = 1e-7
 _ATOL_ABSORBANCE = 1e-7
 _ATOL_VOLUME_mL = 1e-6
+# The equilibrium solver stops when every mass-balance residual is below 1e-12 of its total
+# (planner.chem.equilibrium), so no concentration it gives is off by more than about that
+# much of the largest total; ten times that is the absolute floor of the comparison.
+_ATOL_EQUILIBRIUM = 1e-11
+# The prediction is a longer chain of arithmetic (a least-squares slope, the 1:1 expression,
+# a sum of squares over every input), done here in another order than in the design.
+_RTOL_PREDICTION = 1e-6
+# A stated prediction may also differ from the recomputation by this many times how far the
+# recomputation moves under a change of its inputs in their last digits
+# (planner.verify_prediction.ROUNDING_PROBE): an ill-conditioned K is decided by rounding.
+_NOISE = 100.0
+# Stock flasks of the prep room (ISO 1042 nominal capacities, from memory): the rule of
+# docs/methods.md section 13, restated here so that the verifier does not import the design.
+_STOCK_FLASKS_mL = (100.0, 250.0, 500.0, 1000.0, 2000.0)
+# Problems listed in one check's detail before "and N more".
+_MAX_LISTED = 8
 
 
 def _fmt(value: float) -> str:
@@ -86,24 +121,76 @@ def verify_plan(
     -------
     tuple of Check
         One per name in :data:`CHECK_NAMES`, in that order.
+
+    Notes
+    -----
+    The work is linear in the number of mixtures: one vectorised mass-action solution for
+    all of them, and a constant amount of work per addition.
     """
-    checks = [
+    return tuple(_plan_checks(inputs, mixtures, totals, _State(inputs, mixtures)))
+
+
+def verify_result(
+    inputs: PlanInputs,
+    mixtures: Sequence[Mixture],
+    totals: Totals,
+    preparations: Sequence[StockPreparation] | None,
+    prediction: Prediction | None,
+) -> tuple[Check, ...]:
+    """Re-check a saved plan result: everything :func:`verify_plan` checks, the preparation
+    of every stock and the prediction.
+
+    Parameters
+    ----------
+    inputs
+        The validated plan inputs.
+    mixtures
+        The plan's mixtures with their stated state.
+    totals
+        The plan's stated stock totals [mL].
+    preparations
+        The stated ``preparation`` block, or None when the result has none.
+    prediction
+        The stated ``prediction`` block, or None when the result has none (or states null).
+
+    Returns
+    -------
+    tuple of Check
+        One per name in :data:`RESULT_CHECK_NAMES`, in that order. ``preparation`` fails
+        when a flask, a flask count, a formula, a molar mass, a purity, a mass, the ion a solid
+        provides, its concentration or the medium differs from a recomputation from the
+        inputs and the recomputed stock totals, or when a stock is missing, repeated or
+        unknown; it warns when the result has no preparation block. ``prediction`` fails
+        when any number of the block differs from :func:`planner.verify_prediction.
+        recompute_prediction`, or when the block states numbers the recipes cannot give; it
+        warns when the result states no prediction though the recipes give one.
+    """
+    state = _State(inputs, mixtures)
+    checks = _plan_checks(inputs, mixtures, totals, state)
+    checks.append(_preparation(inputs, mixtures, preparations))
+    checks.append(_prediction(inputs, mixtures, state, prediction))
+    return tuple(checks)
+
+
+def _plan_checks(
+    inputs: PlanInputs, mixtures: Sequence[Mixture], totals: Totals, state: _State
+) -> list[Check]:
+    return [
         _mixture_count(inputs, mixtures),
         _deliverable(inputs, mixtures),
         _volume_totals(inputs, mixtures),
+        _concentrations(inputs, mixtures, state),
+        _window(inputs, mixtures, state),
+        _reading_uncertainty(inputs, mixtures, state),
+        _assumption(inputs, mixtures, state),
+        _speciation(inputs, mixtures, state),
+        _coverage(inputs, mixtures, state),
+        _ionic_strength(inputs, mixtures, state),
+        _stock_totals(inputs, mixtures, totals),
+        _inventory(inputs, totals),
+        _cuvette(inputs, mixtures),
+        _device_count(inputs, mixtures),
     ]
-    recomputed = _recompute(inputs, mixtures)
-    checks.append(_concentrations(inputs, mixtures, recomputed))
-    checks.append(_window(inputs, mixtures, recomputed))
-    checks.append(_assumption(inputs, mixtures, recomputed))
-    checks.append(_speciation(inputs, mixtures, recomputed))
-    checks.append(_coverage(inputs, mixtures, recomputed))
-    checks.append(_ionic_strength(inputs, mixtures, recomputed))
-    checks.append(_stock_totals(inputs, mixtures, totals))
-    checks.append(_inventory(inputs, totals))
-    checks.append(_cuvette(inputs, mixtures))
-    checks.append(_device_count(inputs, mixtures))
-    return tuple(checks)
 
 
 class _State:
@@ -139,11 +226,11 @@ class _State:
         self.species = solved.species_M
         absorbers = np.concatenate([self.species, self.free], axis=1)
         epsilon = np.concatenate([reaction.species_epsilon(), reaction.free_epsilon()])
+        self.net_absorbance = np.asarray(
+            true_absorbance(absorbers, epsilon, inputs.instrument.path_length_cm), dtype=float
+        )
         self.absorbance = np.asarray(
-            observed_absorbance(
-                true_absorbance(absorbers, epsilon, inputs.instrument.path_length_cm),
-                inputs.instrument.stray_light,
-            ),
+            observed_absorbance(self.net_absorbance, inputs.instrument.stray_light),
             dtype=float,
         )
         limiting = reaction.components.index(inputs.design.limiting)
@@ -154,14 +241,17 @@ class _State:
         )
 
 
-def _recompute(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> _State:
-    return _State(inputs, mixtures)
-
-
 def _check(name: str, problems: list[str], ok_detail: str, *, warn: bool = False) -> Check:
     if not problems:
         return Check(name, "pass", ok_detail)
     return Check(name, "warn" if warn else "fail", "; ".join(problems))
+
+
+def _listed(problems: list[str]) -> list[str]:
+    """The first problems, and how many more there are."""
+    if len(problems) <= _MAX_LISTED:
+        return problems
+    return [*problems[:_MAX_LISTED], f"and {len(problems) - _MAX_LISTED} more"]
 
 
 def _mixture_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
@@ -185,8 +275,13 @@ def _mixture_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
         )
     if counts["blank"] < 1:
         problems.append("no reagent blank: add one mixture with every reagent but the limiting one")
-    ids = [m.id for m in mixtures]
-    duplicates = sorted({i for i in ids if ids.count(i) > 1})
+    elif counts["blank"] != design.blanks:
+        problems.append(
+            f"{counts['blank']} blanks where the plan asks for {design.blanks} "
+            "(design.blanks): give every blank the same recipe, as many as asked"
+        )
+    # Counted once each (a Counter), so the check stays linear in the number of mixtures.
+    duplicates = sorted(i for i, n in Counter(m.id for m in mixtures).items() if n > 1)
     if duplicates:
         problems.append(f"mixture ids used twice: {_names(duplicates)}")
     bad_roles = [m.id for m in mixtures if m.role not in ("blank", "standard", "test")]
@@ -208,7 +303,8 @@ def _mixture_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
 
 
 def _deliverable(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
-    shelf = {d.id for d in inputs.glassware}
+    devices = devices_by_id(inputs.glassware)
+    shelf = set(devices)
     flask_id = (
         f"volumetric-flask-{inputs.design.flask_volume_mL:g}mL"
         if inputs.design.flask_volume_mL is not None
@@ -239,7 +335,7 @@ def _deliverable(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
                     f"{where}: {_names(missing)} not on the shelf (the glassware list has "
                     f"{_names(sorted(shelf))})"
                 )
-            elif not a.devices or not is_deliverable(inputs.glassware, a.volume_mL, a.devices):
+            elif not _deliverable_with(inputs, devices, a.volume_mL, a.devices):
                 problems.append(
                     f"{where}: cannot be delivered with {' + '.join(a.devices) or 'no device'}; "
                     "choose a volume on the device's scale or another device"
@@ -249,6 +345,21 @@ def _deliverable(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
         problems,
         "every volume is deliverable with the devices named, all on the shelf",
     )
+
+
+def _deliverable_with(
+    inputs: PlanInputs, devices: Mapping[str, Device], volume_mL: float, option: Sequence[str]
+) -> bool:
+    """Whether the named devices (all on the shelf) deliver exactly this volume.
+
+    A volume beyond what the devices hold together cannot be delivered; it is refused
+    before the exact test, which counts in picolitres and would overflow on a number such
+    as 1e308 mL.
+    """
+    capacity = sum(devices[d].volume_mL for d in option)
+    if not option or not volume_mL <= capacity * (1 + 1e-9):
+        return False
+    return is_deliverable(inputs.glassware, volume_mL, option)
 
 
 def _volume_totals(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
@@ -281,26 +392,53 @@ def _close(stated: float, computed: float, rtol: float = _RTOL, atol: float = 1e
 
 
 def _concentrations(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> Check:
+    """Every stated initial and equilibrium concentration against a fresh solution.
+
+    An ion or species the recomputation does not have, or has at zero, must be absent or
+    zero; one it has above zero must be stated and agree.
+    """
     problems = []
     reaction = inputs.reaction
     names = list(reaction.components) + list(reaction.species_names())
+    known_ions = set(state.ions.names)
+    known_names = set(names)
     for i, m in enumerate(mixtures):
         for k, ion in enumerate(state.ions.names):
             expected = float(state.initial[i, k])
             stated = m.initial_M.get(ion)
-            if expected > 0 and (stated is None or not _close(stated, expected)):
-                problems.append(f"{m.id} initial {ion}: {_pair(stated, expected)} mol/L")
+            if expected > 0:
+                if stated is None or not _close(stated, expected):
+                    problems.append(f"{m.id} initial {ion}: {_pair(stated, expected)} mol/L")
+            elif stated is not None and stated != 0:
+                problems.append(
+                    f"{m.id} initial {ion}: stated {stated:.4g}, recomputed 0 mol/L (none of "
+                    "its stocks is added)"
+                )
+        for ion in sorted(set(m.initial_M) - known_ions):
+            if m.initial_M[ion] != 0:
+                problems.append(
+                    f"{m.id} initial {ion}: stated {m.initial_M[ion]:.4g} mol/L, but no stock "
+                    "of the plan contains it"
+                )
         recomputed = np.concatenate([state.free[i], state.species[i]])
         scale = max(float(np.max(state.components[i])), 1e-300)
-        for name, expected in zip(names, recomputed, strict=True):
+        for name, value in zip(names, recomputed, strict=True):
+            expected = float(value)
             stated = m.equilibrium_M.get(name)
-            if stated is None or not _close(stated, float(expected), 1e-6, 1e-9 * scale):
+            if stated is None:
+                if expected != 0:
+                    problems.append(f"{m.id} equilibrium {name}: {_pair(stated, expected)} mol/L")
+            elif not _close(stated, expected, 1e-6, _ATOL_EQUILIBRIUM * scale):
+                problems.append(f"{m.id} equilibrium {name}: {_pair(stated, expected)} mol/L")
+        for name in sorted(set(m.equilibrium_M) - known_names):
+            if m.equilibrium_M[name] != 0:
                 problems.append(
-                    f"{m.id} equilibrium {name}: {_pair(stated, float(expected))} mol/L"
+                    f"{m.id} equilibrium {name}: stated {m.equilibrium_M[name]:.4g} mol/L, but "
+                    "the reaction has no component or species of that name"
                 )
     return _check(
         "concentrations",
-        problems[:8] + ([f"and {len(problems) - 8} more"] if len(problems) > 8 else []),
+        _listed(problems),
         "initial and equilibrium concentrations agree with a fresh mass-action solution",
     )
 
@@ -331,6 +469,135 @@ def _window(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> C
         problems,
         f"every standard and test reads inside {low:g}-{high:g}",
     )
+
+
+def _readings_of(inputs: PlanInputs, totals: np.ndarray) -> np.ndarray:
+    """The photometer reading of component totals (n, n_components), re-derived here."""
+    reaction = inputs.reaction
+    solved = solve_equilibrium(totals, reaction.stoichiometry(), reaction.log_beta())
+    absorbers = np.concatenate([solved.species_M, solved.free_M], axis=1)
+    epsilon = np.concatenate([reaction.species_epsilon(), reaction.free_epsilon()])
+    net = true_absorbance(absorbers, epsilon, inputs.instrument.path_length_cm)
+    return np.asarray(observed_absorbance(net, inputs.instrument.stray_light), dtype=float)
+
+
+def _delivery_split_mL(device: Device) -> tuple[float, float] | None:
+    """(u systematic per device, u random per delivery) [mL], or None for a vessel."""
+    if device.kind == "piston-pipette":
+        assert device.range_uL is not None
+        _, random_uL = piston_errors_uL(device, device.range_uL[1])
+        return standard_uncertainty_mL(device), random_uL / 1000.0
+    if device.kind in {"transfer-pipette", "volumetric-flask"}:
+        return standard_uncertainty_mL(device), 0.0
+    if device.kind in {"buret", "graduated-pipette", "graduated-cylinder"}:
+        return 0.0, standard_uncertainty_mL(device)
+    return None
+
+
+# Relative step of the central difference of the reading (as any first-order budget may find
+# one sensitivity numerically, JCGM 100:2008, 5.1.3 note 2).
+_READING_STEP = 1e-6
+
+
+def _reading_u(
+    inputs: PlanInputs, mixture: Mixture, totals: np.ndarray, devices: Mapping[str, Device]
+) -> float | str:
+    """u(A) of one mixture as the plan states it, or why it cannot be recomputed.
+
+    u(A)^2 = sd^2 + sum_z (sum_j dA/dT_j dT_j/dz u(z))^2 over the mixture's independent
+    inputs z (JCGM 100:2008, eq. 10): each stock's relative error (dT/dr_s = C_s V_s / V),
+    each device's systematic error (its deliveries into the mixture add up), each delivery's
+    random error (dT/dV_s = (C_s - T)/V in a tube, (C_s - C_d)/V in a flask made up to the
+    mark with diluent d) and the flask's volume (dT/dV = (C_d - T)/V). dA/dT_j is a central
+    difference of the re-derived reading, step 1e-6 T_j. The error model is docs/methods.md
+    section 10's; this derivation shares no code with the prediction stage.
+    """
+    components = inputs.reaction.components
+    flask = vessel_flask(inputs)
+    diluent = inputs.diluent
+    stocks = {st.id: st for st in inputs.stocks}
+    volume_mL = inputs.design.total_volume_mL
+    concentration = {
+        sid: np.array([st.contains_M.get(c, 0.0) for c in components]) for sid, st in stocks.items()
+    }
+    diluent_M = concentration[diluent.id] if diluent is not None else np.zeros(len(components))
+    volume_of: dict[str, float] = defaultdict(float)
+    columns: list[np.ndarray] = []
+    u: list[float] = []
+    systematic: dict[str, int] = {}
+    for a in mixture.additions:
+        if a.stock not in stocks:
+            return f"adds {a.stock!r}, which is not a stock of the plan"
+        volume_of[a.stock] += a.volume_mL
+        if flask is not None and diluent is not None and a.stock == diluent.id:
+            continue  # to the mark: the flask's volume, not a measured delivery
+        if (
+            not a.devices
+            or any(d not in devices for d in a.devices)
+            or not _deliverable_with(inputs, devices, a.volume_mL, a.devices)
+        ):
+            return f"cannot deliver {a.volume_mL:g} mL of {a.stock} as stated"
+        reference = diluent_M if flask is not None else totals
+        d_total = (concentration[a.stock] - reference) / volume_mL
+        for device_id in a.devices:
+            split = _delivery_split_mL(devices[device_id])
+            if split is None:
+                return f"{device_id} does not measure a delivery"
+            u_sys, u_rand = split
+            if u_sys > 0:
+                if device_id not in systematic:
+                    systematic[device_id] = len(columns)
+                    columns.append(np.zeros(len(components)))
+                    u.append(u_sys)
+                columns[systematic[device_id]] = columns[systematic[device_id]] + d_total
+            if u_rand > 0:
+                columns.append(d_total)
+                u.append(u_rand)
+    for stock_id, volume in volume_of.items():
+        relative = stocks[stock_id].relative_uncertainty
+        if relative > 0 and volume > 0:
+            columns.append(concentration[stock_id] * volume / volume_mL)
+            u.append(relative)
+    if flask is not None:
+        columns.append((diluent_M - totals) / volume_mL)
+        u.append(standard_uncertainty_mL(flask))
+    slope = np.zeros(len(components))
+    for j in range(len(components)):
+        step = _READING_STEP * totals[j]
+        if step <= 0:
+            continue
+        moved = np.array([totals, totals])
+        moved[0, j] += step
+        moved[1, j] -= step
+        up, down = _readings_of(inputs, moved)
+        slope[j] = (up - down) / (2.0 * step)
+    variance = inputs.instrument.absorbance_sd**2
+    for column, value in zip(columns, u, strict=True):
+        variance += (float(slope @ column) * value) ** 2
+    return math.sqrt(variance)
+
+
+def _reading_uncertainty(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> Check:
+    devices = devices_by_id(inputs.glassware)
+    problems = []
+    unchecked = []
+    for i, m in enumerate(mixtures):
+        computed = _reading_u(inputs, m, state.components[i], devices)
+        if isinstance(computed, str):
+            # A recipe that cannot be made fails deliverable-volumes; its u(A) has no value.
+            unchecked.append(m.id)
+        elif not _close(m.u_absorbance, computed, _RTOL, 1e-15):
+            problems.append(f"{m.id} u(A): {_pair(m.u_absorbance, computed)}")
+    detail = (
+        "every stated u(A) agrees with the reading noise and the composition's uncertainty "
+        "from stocks, glassware and flask, read through the equilibrium and the photometer"
+    )
+    if unchecked:
+        detail += (
+            f", except {_names(unchecked)}, whose recipes cannot be delivered as stated "
+            "(see deliverable-volumes)"
+        )
+    return _check("reading-uncertainty", _listed(problems), detail)
 
 
 def _excess_partner(inputs: PlanInputs) -> tuple[str | None, float | None]:
@@ -492,26 +759,41 @@ def _ionic_strength(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _Sta
     return Check("ionic-strength", "pass", detail)
 
 
+def _expected_totals(
+    inputs: PlanInputs, mixtures: Sequence[Mixture]
+) -> dict[str, dict[str, float]]:
+    """Stock volumes per bench, section, session and to prepare, from the recipes [mL].
+
+    to_prepare = session x (1 + margin) + dead volume x bench containers, for a stock the
+    recipes use (docs/methods.md section 13).
+    """
+    session = inputs.session
+    containers = session.sections * session.benches_per_section
+    expected: dict[str, dict[str, float]] = {
+        key: {} for key in ("per_bench", "per_section", "session", "to_prepare")
+    }
+    for st in inputs.stocks:
+        # Summed mixture by mixture, as the design sums them, so the two agree to the bit.
+        bench = sum(m.volume_of(st.id) for m in mixtures)
+        expected["per_bench"][st.id] = bench
+        expected["per_section"][st.id] = bench * session.benches_per_section * session.replicates
+        expected["session"][st.id] = bench * session.sets
+        expected["to_prepare"][st.id] = (
+            bench * session.sets * (1 + session.margin) + session.dead_volume_mL * containers
+            if bench > 0
+            else 0.0
+        )
+    return expected
+
+
 def _stock_totals(inputs: PlanInputs, mixtures: Sequence[Mixture], totals: Totals) -> Check:
     session = inputs.session
     problems = []
-    containers = session.sections * session.benches_per_section
-    for st in inputs.stocks:
-        bench = sum(m.volume_of(st.id) for m in mixtures)
-        expected = {
-            "per_bench": bench,
-            "per_section": bench * session.benches_per_section * session.replicates,
-            "session": bench * session.sets,
-            "to_prepare": (
-                bench * session.sets * (1 + session.margin) + session.dead_volume_mL * containers
-                if bench > 0
-                else 0.0
-            ),
-        }
-        for key, value in expected.items():
-            stated = getattr(totals, key).get(st.id)
+    for key, volumes in _expected_totals(inputs, mixtures).items():
+        for stock_id, value in volumes.items():
+            stated = getattr(totals, key).get(stock_id)
             if stated is None or not _close(stated, value, 1e-9, 1e-9):
-                problems.append(f"{key} {st.id}: {_pair(stated, value)} mL")
+                problems.append(f"{key} {stock_id}: {_pair(stated, value)} mL")
     known = {st.id for st in inputs.stocks}
     for key in ("per_bench", "per_section", "session", "to_prepare"):
         strangers = sorted(set(getattr(totals, key)) - known)
@@ -572,3 +854,239 @@ def _device_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
         "each stock has its own delivery device on every bench",
         warn=True,
     )
+
+
+def _medium(diluent: Stock | None) -> str:
+    """What a stock is made up in, as the label says: the diluent's composition, or water."""
+    if diluent is None or not diluent.contains_M:
+        return "water"
+    parts = ", ".join(f"{ion} {conc:g} mol/L" for ion, conc in diluent.contains_M.items())
+    return f"{diluent.id} ({parts})"
+
+
+def _stock_flasks(volume_mL: float) -> tuple[float, int]:
+    """The smallest usual flask that holds the volume, else as many of the largest as needed."""
+    for size in _STOCK_FLASKS_mL:
+        if size >= volume_mL:
+            return size, 1
+    size = _STOCK_FLASKS_mL[-1]
+    return size, math.ceil(volume_mL / size)
+
+
+def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) -> StockPreparation:
+    """How the prep room makes one stock, from the inputs alone (docs/methods.md section 13).
+
+    The mass of solid for one flask is m = c V M / purity (amount c V of the provided ion, one
+    formula unit per ion; Harris, Quantitative Chemical Analysis, 9th ed., 2016, ch. 1), with
+    the molar mass from the periodictable package (:func:`planner.chem.species.
+    molar_mass_g_per_mol`).
+    """
+    flask_mL, flasks = _stock_flasks(volume_mL)
+    medium = _medium(inputs.diluent)
+    solid = stock.solid
+    if solid is None:
+        return StockPreparation(
+            stock=stock.id,
+            flask_mL=flask_mL,
+            flasks=flasks,
+            solid_formula="",
+            molar_mass_g_per_mol=0.0,
+            purity=1.0,
+            mass_g=0.0,
+            provides="",
+            concentration_M=0.0,
+            medium="" if stock.diluent else medium,
+        )
+    components = inputs.reaction.components
+    provides = solid.provides or next(
+        (ion for ion in stock.contains_M if ion in components), next(iter(stock.contains_M))
+    )
+    concentration = stock.contains_M.get(provides, 0.0)
+    molar_mass = molar_mass_g_per_mol(solid.formula)
+    return StockPreparation(
+        stock=stock.id,
+        flask_mL=flask_mL,
+        flasks=flasks,
+        solid_formula=solid.formula,
+        molar_mass_g_per_mol=molar_mass,
+        purity=solid.purity,
+        mass_g=concentration * flask_mL / 1000.0 * molar_mass / solid.purity,
+        provides=provides,
+        concentration_M=concentration,
+        medium=medium,
+    )
+
+
+def _text_key(key: str, text: str) -> object:
+    """A preparation text in a form to compare: the medium's ions in any order.
+
+    The saved inputs list a stock's ions in sorted order (the JSON has sorted keys) while the
+    design wrote the medium in the plan file's order, so the order carries no meaning.
+    """
+    if key != "medium" or not text.endswith(")") or " (" not in text:
+        return text
+    name, _, parts = text[:-1].partition(" (")
+    return (name, frozenset(parts.split(", ")))
+
+
+# The numbers of a stock's preparation, with their units and relative tolerances: exact for
+# what is copied from the inputs or counted, rounding only for the computed molar mass and mass.
+_PREPARATION_NUMBERS = (
+    ("flask_mL", "mL", 0.0),
+    ("flasks", "", 0.0),
+    ("molar_mass_g_per_mol", "g/mol", 1e-9),
+    ("purity", "", 0.0),
+    ("mass_g", "g", 1e-9),
+    ("concentration_M", "mol/L", 0.0),
+)
+_PREPARATION_TEXTS = ("solid_formula", "provides", "medium")
+
+
+def _preparation(
+    inputs: PlanInputs,
+    mixtures: Sequence[Mixture],
+    stated: Sequence[StockPreparation] | None,
+) -> Check:
+    to_prepare = _expected_totals(inputs, mixtures)["to_prepare"]
+    expected = {
+        st.id: _expected_preparation(inputs, st, to_prepare[st.id])
+        for st in inputs.stocks
+        if to_prepare[st.id] > 0
+    }
+    if stated is None:
+        return Check(
+            "preparation",
+            "warn",
+            f"the result states no preparation, though {len(expected)} stock(s) must be "
+            "prepared: plan again to get the prep sheet",
+        )
+    problems = []
+    counts = Counter(p.stock for p in stated)
+    for stock_id in sorted(i for i, n in counts.items() if n > 1):
+        problems.append(f"{stock_id} is listed {counts[stock_id]} times")
+    for stock_id in [i for i in expected if i not in counts]:
+        problems.append(
+            f"{stock_id} is missing: {to_prepare[stock_id]:.0f} mL of it must be prepared"
+        )
+    for p in stated:
+        want = expected.get(p.stock)
+        if want is None:
+            why = "not a stock of the plan" if p.stock not in to_prepare else "not used"
+            problems.append(f"{p.stock} is listed but {why}: nothing to prepare")
+            continue
+        for key, unit, rtol in _PREPARATION_NUMBERS:
+            value, target = float(getattr(p, key)), float(getattr(want, key))
+            if not _close(value, target, rtol, 0.0):
+                problems.append(f"{p.stock} {key}: {_pair(value, target)} {unit}".rstrip())
+        for key in _PREPARATION_TEXTS:
+            text, target_text = getattr(p, key), getattr(want, key)
+            if _text_key(key, text) != _text_key(key, target_text):
+                problems.append(f"{p.stock} {key}: stated {text!r}, recomputed {target_text!r}")
+    return _check(
+        "preparation",
+        _listed(problems),
+        f"flasks, solids, purities and masses of the {len(expected)} stock(s) to prepare agree "
+        "with the inputs and the stock totals",
+    )
+
+
+# The prediction's numbers in the order the answer key gives them.
+_PREDICTION_NUMBERS = (
+    "epsilon",
+    "u_epsilon",
+    "K",
+    "u_K",
+    "K_bias_from_assumption",
+    "K_true",
+    "epsilon_true",
+)
+
+
+# Coverage factor of a 95 % range of a normal distribution (JCGM 100:2008, Table G.1).
+_K95 = 1.960
+
+
+def _meaningless(recomputed: RecomputedPrediction) -> list[str]:
+    """The numbers of a recomputed prediction that would print as meaningless: a K, an eps,
+    an uncertainty or the low end of a 95 % range that is not positive and finite."""
+    values = {
+        "eps": recomputed.epsilon,
+        "u(eps)": recomputed.u_epsilon,
+        "mean K": recomputed.K,
+        "u(K)": recomputed.u_K,
+        "low end of the range of eps": recomputed.epsilon - _K95 * recomputed.u_epsilon,
+        "low end of the range of K": recomputed.K - _K95 * recomputed.u_K,
+    }
+    values.update({f"K of test {n}": k for n, k in enumerate(recomputed.K_per_test, start=1)})
+    return [
+        f"{name} {value:.4g}"
+        for name, value in values.items()
+        if not (math.isfinite(value) and value > 0)
+    ]
+
+
+def _prediction(
+    inputs: PlanInputs,
+    mixtures: Sequence[Mixture],
+    state: _State,
+    stated: Prediction | None,
+) -> Check:
+    recomputed = recompute_prediction(inputs, mixtures, state.components, state.absorbance)
+    if isinstance(recomputed, RecomputedPrediction):
+        meaningless = _meaningless(recomputed)
+        if meaningless:
+            return Check(
+                "prediction",
+                "fail",
+                "the all-bound analysis of these recipes gives meaningless numbers ("
+                + "; ".join(meaningless[:4])
+                + "), so no answer key can state them: the standards are too far from all "
+                "bound or the tests too close to it",
+            )
+    if stated is None:
+        if isinstance(recomputed, RecomputedPrediction):
+            return Check(
+                "prediction",
+                "warn",
+                "the result states no prediction, though the recipes give one (mean K "
+                f"{recomputed.K:.4g} L/mol): plan again to get the answer key",
+            )
+        return Check("prediction", "pass", f"no prediction stated, and none made: {recomputed}")
+    if isinstance(recomputed, str):
+        return Check(
+            "prediction",
+            "fail",
+            f"the result states a prediction, but the recipes give none: {recomputed}",
+        )
+    problems = []
+    for key in _PREDICTION_NUMBERS:
+        value, target = float(getattr(stated, key)), float(getattr(recomputed, key))
+        # The bias is a small difference (K/K_true - 1), so it is compared on K's scale.
+        atol = _RTOL_PREDICTION if key == "K_bias_from_assumption" else 0.0
+        if not _close(value, target, _RTOL_PREDICTION, atol + _NOISE * recomputed.rounding[key]):
+            problems.append(f"{key}: {_pair(value, target)}")
+    tests = [m.id for m in mixtures if m.role == "test"]
+    if len(stated.K_per_test) != len(recomputed.K_per_test):
+        problems.append(
+            f"K_per_test lists {len(stated.K_per_test)} values for {len(tests)} test mixtures"
+        )
+    else:
+        for test_id, value, target, rounding in zip(
+            tests,
+            stated.K_per_test,
+            recomputed.K_per_test,
+            recomputed.rounding_per_test,
+            strict=True,
+        ):
+            if not _close(float(value), target, _RTOL_PREDICTION, _NOISE * rounding):
+                problems.append(f"K_per_test of {test_id}: {_pair(float(value), target)}")
+    detail = (
+        f"eps {recomputed.epsilon:.4g} ± {recomputed.u_epsilon:.2g} L mol-1 cm-1 and mean K "
+        f"{recomputed.K:.4g} ± {recomputed.u_K:.2g} L/mol agree with a fresh derivation"
+    )
+    if not recomputed.rounding["K"] <= _RTOL_PREDICTION * abs(recomputed.K):
+        detail += (
+            "; K is ill-conditioned here (its last digits change it by more than a millionth), "
+            "so it is compared only as closely as rounding allows"
+        )
+    return _check("prediction", _listed(problems), detail)

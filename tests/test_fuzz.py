@@ -536,3 +536,132 @@ def test_corners_of_the_physical_ranges(tmp_path, K, metal_M, ligand_M):
     assert f'"SCN-" = {ligand_M!r}' in text
     result = run_plan(tmp_path / "corner.toml", text)
     assert_plans_or_fails_named_checks(result)
+
+
+# ---------------------------------------------------------------------------------------------
+# (c) Tampered plan results: planner verify never accepts a changed number
+# ---------------------------------------------------------------------------------------------
+#
+# The embedded default plan is designed once and written as plan.json; each example changes
+# one number of one block by a factor far from 1 and runs ``planner verify``. A changed number
+# must make it exit 1 (a failed check) or 2 (a result file error), never 0 and never 3.
+
+# Blocks of the document, each a predicate on a number's key path: every block gets an equal
+# share of the examples, however many numbers it holds.
+TAMPER_BLOCKS = {
+    "mixtures": lambda p: p[0] == "mixtures" and len(p) == 3,
+    "additions": lambda p: p[0] == "mixtures" and p[2] == "additions",
+    "initial_M": lambda p: p[0] == "mixtures" and p[2] == "initial_M",
+    "equilibrium_M": lambda p: p[0] == "mixtures" and p[2] == "equilibrium_M",
+    "totals_mL": lambda p: p[0] == "totals_mL",
+    "preparation": lambda p: p[0] == "preparation",
+    "prediction": lambda p: p[0] == "prediction",
+    "inputs": lambda p: p[0] == "inputs",
+}
+# Numbers of the inputs block that no stated number derives from: a plan that meets the
+# changed value is still right, so verify may pass it (and fails it when the plan no longer
+# meets it). Each with the reason.
+UNCHECKED_INPUTS = {
+    ("reaction", "temperature_C"): "the temperature the constants refer to: a label",
+    ("reaction", "ionic_strength_M"): "the medium the constants refer to: quoted, not used",
+    ("instrument", "wavelength_nm"): "the working wavelength: epsilon is given at it",
+    ("stocks", "available_mL"): "a limit: stock-inventory fails only when it is exceeded",
+    ("design", "assumption_tolerance"): "a limit: the assumption check fails only beyond it",
+    ("instrument", "absorbance_window"): "a limit: the window check fails only outside it",
+    ("instrument", "cuvette_fill_mL"): "a limit: cuvette-fill fails only below it",
+    ("design", "bound_fraction_range"): "advice: bound-fraction-coverage only warns",
+    ("design", "bound_fraction_span"): "advice: bound-fraction-coverage only warns",
+    ("design", "ionic_strength_spread"): "advice: ionic-strength only warns on the spread",
+    ("glassware", "count"): "advice: device-count only warns",
+}
+FACTORS = st.one_of(
+    st.sampled_from((10.0, 0.1, 2.0, 0.5, -1.0, 1e3, 1e-3)),
+    st.floats(1.5, 1e6),
+    st.floats(1e-6, 0.67),
+    st.floats(-1e6, -1e-6),
+)
+
+
+def _device_id(entry: dict[str, Any]) -> str:
+    """The device id of a glassware entry of the default plan (no piston pipettes there)."""
+    return f"{entry['kind']}-{entry['volume_mL']:g}mL"
+
+
+def _unchecked_input(document: dict[str, Any], path: tuple[Any, ...]) -> str | None:
+    """Why an inputs number may change without verify failing, or None when it may not."""
+    if path[0] != "inputs":
+        return None
+    table, key = path[1], path[3] if path[1] in ("stocks", "glassware") else path[2]
+    if (table, key) in UNCHECKED_INPUTS:
+        return UNCHECKED_INPUTS[table, key]
+    used_devices = {
+        device
+        for mixture in document["mixtures"]
+        for step in mixture["additions"]
+        for device in step["devices"]
+    }
+    if table == "glassware" and _device_id(document["inputs"]["glassware"][path[2]]) not in (
+        used_devices
+    ):
+        return "a device no recipe uses"
+    if table == "stocks" and key == "relative_uncertainty":
+        stock = document["inputs"]["stocks"][path[2]]
+        limiting = document["inputs"]["design"]["limiting"]
+        in_tests = any(
+            step["stock"] == stock["id"]
+            for mixture in document["mixtures"]
+            if mixture["role"] == "test"
+            for step in mixture["additions"]
+        )
+        if limiting not in stock["contains_M"] and not in_tests:
+            # u(A) follows the limiting reagent only; the prediction's u(K) the tests' excess.
+            return "a stock that feeds neither the limiting reagent nor a test"
+    return None
+
+
+@pytest.fixture(scope="module")
+def saved_default_plan() -> str:
+    from planner.pipeline import design_plan
+    from planner.planfile import load_plan
+    from planner.report.plan_json import plan_json
+
+    return plan_json(design_plan(load_plan(ROOT / "planner" / "data" / "default.toml")))
+
+
+@pytest.fixture(scope="module")
+def result_path(tmp_path_factory):
+    return tmp_path_factory.mktemp("tampered") / "plan.json"
+
+
+def test_untampered_default_result_verifies(saved_default_plan, result_path):
+    # The baseline of the property below: the plan as written passes.
+    result_path.write_text(saved_default_plan, encoding="utf-8")
+    result = runner.invoke(app, ["verify", str(result_path)], catch_exceptions=False)
+    assert result.exit_code == 0, result.stdout[-3000:]
+
+
+@settings(max_examples=budget(300), **FUZZ)
+@given(data=st.data())
+def test_tampered_result_never_verifies(saved_default_plan, result_path, data):
+    document = json.loads(saved_default_plan)
+    block = data.draw(st.sampled_from(sorted(TAMPER_BLOCKS)), label="block")
+    numbers = [
+        (path, value)
+        for path, value in key_paths(document)
+        if _kind(value) == "number" and value != 0 and TAMPER_BLOCKS[block](path)
+    ]
+    path, value = data.draw(st.sampled_from(numbers), label="number")
+    if isinstance(value, int):
+        # A count or an order stays whole (a fraction is a type error, tested elsewhere).
+        changed = value * data.draw(st.sampled_from((2, 3, 10, -1)), label="factor")
+    else:
+        changed = value * data.draw(FACTORS, label="factor")
+    set_at(document, path, changed)
+    result_path.write_text(json.dumps(document), encoding="utf-8")
+    result = runner.invoke(app, ["verify", str(result_path)], catch_exceptions=False)
+    assert_no_traceback(result)
+    why = _unchecked_input(document, path)
+    if why is None:
+        assert result.exit_code in (1, 2), (path_text(path), value, changed, result.stdout[-2000:])
+    else:
+        assert result.exit_code in (0, 1, 2), (path_text(path), why)

@@ -21,7 +21,7 @@ from planner.pipeline import design_plan
 from planner.planfile import load_plan
 from planner.report.plan_json import plan_json
 from planner.result import Plan
-from planner.resultfile import SCHEMA, SavedPlan, load_result, parse_result
+from planner.resultfile import LARGEST_NUMBER, SCHEMA, SavedPlan, load_result, parse_result
 
 Document = dict[str, Any]
 
@@ -312,3 +312,80 @@ def test_result_file_error_is_a_value_error(document: Document) -> None:
     # errors.py: invalid input is also a ValueError.
     document["schema"] = "other"
     assert isinstance(error_of(document), ValueError)
+
+
+# --------------------------------------------------------------------------------------------
+# The preparation and prediction blocks, and numbers too large for a plan
+# --------------------------------------------------------------------------------------------
+
+
+def test_preparation_and_prediction_read_back(default_plan: Plan, text: str) -> None:
+    saved = parse_result(text)
+    # The document holds every stock's preparation and the prediction at full precision
+    # (DESIGN.md section 5, contract detail 1), so they come back equal.
+    assert saved.preparations == default_plan.preparations
+    assert default_plan.prediction is not None
+    assert saved.prediction is not None
+    for key in ("epsilon", "u_epsilon", "K", "u_K", "K_bias_from_assumption", "K_true"):
+        assert getattr(saved.prediction, key) == getattr(default_plan.prediction, key)
+    assert saved.prediction.K_per_test == default_plan.prediction.K_per_test
+
+
+def test_missing_or_null_blocks_read_as_none(document: Document) -> None:
+    document["prediction"] = None
+    del document["preparation"]
+    saved = parse_result(json.dumps(document))
+    assert saved.prediction is None
+    assert saved.preparations is None
+
+
+def test_unknown_key_in_a_preparation(document: Document) -> None:
+    entry = document["preparation"][1]
+    entry["mass_mg"] = entry.pop("mass_g")
+    error = error_of(document)
+    assert error.field == "preparation[1].mass_mg"
+    assert "did you mean 'mass_g'?" in str(error)
+
+
+def test_missing_key_in_the_prediction(document: Document) -> None:
+    del document["prediction"]["u_K"]
+    error = error_of(document)
+    assert error.field == "prediction.u_K"
+    assert "missing required key" in str(error)
+
+
+def test_fractional_flask_count_is_refused(document: Document) -> None:
+    document["preparation"][0]["flasks"] = 1.5
+    error = error_of(document)
+    assert error.field == "preparation[0].flasks"
+    assert "a whole number" in str(error)
+
+
+@pytest.mark.parametrize(
+    ("path", "value"),
+    [
+        (("mixtures", 2, "additions", 1, "volume_mL"), 1e308),
+        (("mixtures", 2, "absorbance"), -1e200),
+        (("totals_mL", "to_prepare", "acid"), 1e101),
+        (("preparation", 0, "mass_g"), 1.7976931348623157e308),
+        (("prediction", "K_per_test", 0), 10**400),
+    ],
+)
+def test_numbers_too_large_for_a_plan_are_refused(document: Document, path, value) -> None:
+    # LARGEST_NUMBER = 1e100: 1e308 mL in picolitres (x 1e9) is beyond the largest double,
+    # about 1.8e308 (IEEE 754 binary64).
+    target: Any = document
+    for key in path[:-1]:
+        target = target[key]
+    target[path[-1]] = value
+    error = error_of(document)
+    dotted = ".".join(f"[{p}]" if isinstance(p, int) else p for p in path).replace(".[", "[")
+    assert error.field == dotted
+    assert str(error).startswith(f"{dotted}: number too large for a plan result")
+    assert LARGEST_NUMBER == 1e100
+
+
+def test_large_numbers_in_inputs_are_left_to_the_plan_file_rules(document: Document) -> None:
+    # available_mL has no upper bound in a plan file (planner/planfile.py).
+    document["inputs"]["stocks"][0]["available_mL"] = 1e150
+    assert parse_result(json.dumps(document)).inputs.stocks[0].available_mL == 1e150

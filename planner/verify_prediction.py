@@ -1,0 +1,408 @@
+"""Independent re-derivation of a plan's ``prediction`` block, for :mod:`planner.verify`.
+
+The prediction is what the answer key states: the molar absorptivity and the mean K the
+usual analysis will report from one bench's readings, their standard uncertainties, the K of
+each test mixture, and the bias of K against the K the plan assumes. The design computes it
+with :mod:`planner.predict.uncertainty`, whose sensitivity coefficients sympy derives. This
+module derives the same numbers a second way and, like :mod:`planner.verify`, imports neither
+:mod:`planner.design` nor :mod:`planner.predict`, so a mistake in either shows up as a
+disagreement instead of being copied:
+
+- the analysis is re-done from the verifier's own re-mixed component totals and re-read
+  absorbances (not the stated ones);
+- the sensitivity coefficients are derived by hand (written out below), not by sympy;
+- the error model's inputs are re-listed from the recipes, the shelf and the tolerance tables
+  of :mod:`planner.lab.glassware`.
+
+What is shared with the design is the *definition* of the prediction, which any
+re-derivation has to share: the usual analysis and the error model of docs/methods.md
+sections 9 and 10, and the recipes the design chose (every reagent blank, every standard and
+every test, as the answer key uses them).
+
+The usual analysis
+------------------
+With c_k the limiting reagent's nominal total in standard k, A_k its reading and A_0 the
+blank's, b the path length, the curve through the origin gives
+
+    eps = P / (b S),  P = sum_k c_k (A_k - A_0),  S = sum_k c_k^2;
+
+test i, with nominal totals M_i (excess) and L_i (limiting), gives
+
+    x_i = (A_i - A_0) / (eps b),  K_i = x_i / ((M_i - x_i)(L_i - x_i)),
+
+and the answer key states the mean K and K / K_true - 1.
+
+Sensitivity coefficients (hand derivation)
+------------------------------------------
+    d eps/d c_k = ((A_k - A_0) - 2 b eps c_k) / (b S)
+    d eps/d A_k = c_k / (b S)
+    d eps/d A_0 = -(sum_k c_k) / (b S)
+    d K_i/d x_i = (M_i L_i - x_i^2) / ((M_i - x_i)(L_i - x_i))^2
+    d K_i/d M_i = -x_i / ((M_i - x_i)^2 (L_i - x_i))
+    d K_i/d L_i = -x_i / ((M_i - x_i)(L_i - x_i)^2)
+    d x_i/d A_i = 1 / (eps b),  d x_i/d A_0 = -1 / (eps b),  d x_i/d eps = -x_i / eps
+
+and for the mean K, D = d mean(K)/d eps = (1/n) sum_i dK_i/dx_i dx_i/d eps. A component total
+c = sum_s C_s (1 + r_s) V_s / V responds to a stock's relative error r_s by C_s V_s / V; to a
+delivered volume V_s by (C_s - c) / V in a tube (the volume made is the sum delivered) and by
+(C_s - C_d) / V in a flask made up to the mark with diluent d; to the flask's own volume by
+(C_d - c) / V. The readings respond only to their own noise. The standard uncertainty is then
+u(y)^2 = sum_z (dy/dz u(z))^2 over the independent inputs z (JCGM 100:2008, eq. 10): one
+relative error per stock, one systematic error per device id (shared by all its deliveries),
+one random error per delivery, one volume error per flask, one noise per reading.
+
+Each input touches one mixture, except a stock's and a device's, which are as many as the
+shelf holds; so the work is linear in the number of mixtures.
+
+References
+----------
+JCGM 100:2008, Evaluation of measurement data -- Guide to the expression of uncertainty in
+measurement (GUM), 5.1 (eq. 10) and 5.1.3.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from planner.inputs import Device, PlanInputs
+from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
+from planner.result import Mixture
+
+__all__ = ["ROUNDING_PROBE", "RecomputedPrediction", "recompute_prediction", "vessel_flask"]
+
+#: Relative change of the inputs that probes how much rounding the prediction amplifies:
+#: about ten units in the last place of a double (IEEE 754 binary64, unit roundoff 1.1e-16).
+ROUNDING_PROBE = 1e-15
+
+_UL_PER_ML = 1000.0
+# How each kind of device errs (docs/methods.md section 9): one-mark glassware repeats its
+# calibration error at every use (systematic per device); graduated glassware reads two
+# different points of its scale per delivery (random per delivery); piston pipettes have both
+# (ISO 8655-2 gives a systematic and a random limit).
+_ONE_MARK = frozenset({"transfer-pipette", "volumetric-flask"})
+_GRADUATED = frozenset({"buret", "graduated-pipette", "graduated-cylinder"})
+
+
+@dataclass(frozen=True, slots=True)
+class RecomputedPrediction:
+    """The prediction block, re-derived.
+
+    Attributes
+    ----------
+    epsilon, u_epsilon
+        Molar absorptivity from the curve through the origin and its standard uncertainty
+        [L mol⁻¹ cm⁻¹].
+    K, u_K
+        Mean K over the tests and its standard uncertainty [L/mol].
+    K_bias_from_assumption
+        K / K_true - 1 [unitless].
+    K_true
+        The coloured product's formation constant the plan assumes [L/mol].
+    epsilon_true
+        The coloured product's molar absorptivity the plan assumes [L mol⁻¹ cm⁻¹].
+    K_per_test
+        K of each test mixture, in plan order [L/mol].
+    rounding
+        For each of the other numbers, by name, how far it moves when the blank reading or
+        the component totals change by :data:`ROUNDING_PROBE` of their value (in the number's
+        unit; infinite when such a change reaches a singularity). Near zero for a well-posed
+        plan; large when a test's product nearly equals a reagent's total, so that the last
+        digits of the inputs decide the result.
+    rounding_per_test
+        The same for each entry of ``K_per_test`` [L/mol].
+    """
+
+    epsilon: float
+    u_epsilon: float
+    K: float
+    u_K: float
+    K_bias_from_assumption: float
+    K_true: float
+    epsilon_true: float
+    K_per_test: tuple[float, ...]
+    rounding: dict[str, float]
+    rounding_per_test: tuple[float, ...]
+
+
+def _split_mL(device: Device) -> tuple[float, float] | None:
+    """(u of the device's systematic error, u of one delivery's random error) [mL]."""
+    if device.kind == "piston-pipette":
+        _, random_uL = piston_errors_uL(device, device.volume_mL * _UL_PER_ML)
+        return standard_uncertainty_mL(device), random_uL / _UL_PER_ML
+    if device.kind in _ONE_MARK:
+        return standard_uncertainty_mL(device), 0.0
+    if device.kind in _GRADUATED:
+        return 0.0, standard_uncertainty_mL(device)
+    return None
+
+
+def _square(value: float) -> float:
+    """value², infinite rather than an OverflowError when it does not fit a float."""
+    return value * value
+
+
+def _root(value: float) -> float:
+    """sqrt of a variance, nan for a nan one (math.sqrt would raise on it only when < 0)."""
+    return math.sqrt(value) if value >= 0 else math.nan
+
+
+def vessel_flask(inputs: PlanInputs) -> Device | None:
+    """The volumetric flask each mixture is made up in: the shelf's, else a class A one."""
+    volume = inputs.design.flask_volume_mL
+    if volume is None:
+        return None
+    for device in inputs.glassware:
+        if device.kind == "volumetric-flask" and abs(device.volume_mL - volume) < 1e-9:
+            return device
+    return Device(kind="volumetric-flask", volume_mL=volume, device_class="A")
+
+
+def recompute_prediction(
+    inputs: PlanInputs,
+    mixtures: Sequence[Mixture],
+    totals_M: NDArray[np.float64],
+    readings: NDArray[np.float64],
+) -> RecomputedPrediction | str:
+    """Re-derive the prediction block of a plan (see the module notes).
+
+    Parameters
+    ----------
+    inputs
+        The plan's inputs.
+    mixtures
+        The plan's mixtures, in plan order (only roles and additions are read).
+    totals_M
+        Nominal total of each reaction component in each mixture, re-mixed from the
+        additions, shape (n_mixtures, n_components) [mol/L].
+    readings
+        Re-computed photometer reading of each mixture (stray light applied, blank not
+        subtracted), shape (n_mixtures,) [unitless].
+
+    Returns
+    -------
+    RecomputedPrediction or str
+        The numbers, or why the usual analysis gives none for these recipes (no blank,
+        standard or test; no excess partner in the coloured product; a device that does not
+        measure; a non-finite result such as a test whose product equals a reagent's total).
+    """
+    reaction = inputs.reaction
+    limiting_name = inputs.design.limiting
+    holding = [i for i, sp in enumerate(reaction.species) if sp.formula.get(limiting_name, 0) > 0]
+    if not holding:
+        return f"no product species holds the limiting reagent {limiting_name}"
+    # The measured species is part of the validated inputs (design.measured_species, or the
+    # one absorbing product holding the limiting reagent).
+    coloured = inputs.measured_species
+    partners = [c for c, n in coloured.formula.items() if c != limiting_name and n > 0]
+    if not partners:
+        return f"the coloured product {coloured.name} holds no reagent besides {limiting_name}"
+    limiting = reaction.components.index(limiting_name)
+    excess = reaction.components.index(partners[0])
+
+    blanks = [i for i, m in enumerate(mixtures) if m.role == "blank"]
+    standards = [i for i, m in enumerate(mixtures) if m.role == "standard"]
+    tests = [i for i, m in enumerate(mixtures) if m.role == "test"]
+    if not blanks or not standards or not tests:
+        return "the usual analysis needs a blank, a standard and a test mixture"
+    # The prediction uses every blank (their mean is the blank reading), every standard and
+    # every test.
+    chosen = [*blanks, *standards, *tests]
+    n_blank, n_std, n_test = len(blanks), len(standards), len(tests)
+    rows_blank = np.arange(n_blank)
+    rows_std = np.arange(n_blank, n_blank + n_std)
+    rows_test = np.arange(n_blank + n_std, n_blank + n_std + n_test)
+
+    stock_ids = [st.id for st in inputs.stocks]
+    column_of = {sid: j for j, sid in enumerate(stock_ids)}
+    stock_M = np.array(
+        [[st.contains_M.get(c, 0.0) for c in (limiting_name, partners[0])] for st in inputs.stocks],
+        dtype=float,
+    ).reshape(len(stock_ids), 2)
+    diluent = inputs.diluent
+    diluent_column = column_of[diluent.id] if diluent is not None else None
+    in_flask = inputs.design.vessel_kind == "volumetric-flask"
+    volume_mL = inputs.design.total_volume_mL
+    shelf = devices_by_id(inputs.glassware)
+
+    # Per chosen mixture: the stock volumes, and every measured delivery.
+    volumes = np.zeros((len(chosen), len(stock_ids)))
+    deliveries: list[tuple[int, int, str, float, float]] = []
+    for row, index in enumerate(chosen):
+        for addition in mixtures[index].additions:
+            column = column_of.get(addition.stock)
+            if column is None:
+                return f"{mixtures[index].id} adds {addition.stock!r}, which is not a stock"
+            volumes[row, column] += addition.volume_mL
+            if in_flask and column == diluent_column:
+                continue  # to the mark: the flask's volume, not a measured delivery
+            for device_id in addition.devices:
+                device = shelf.get(device_id)
+                split = None if device is None else _split_mL(device)
+                if split is None:
+                    return f"{mixtures[index].id}: {device_id} does not measure a delivery"
+                deliveries.append((row, column, device_id, *split))
+
+    def evaluate(totals: NDArray[np.float64], reads: NDArray[np.float64]) -> list[float]:
+        """[eps, u(eps), mean K, u(mean K), K of each test] for these totals and readings."""
+        with np.errstate(all="ignore"):
+            epsilon, u_epsilon, k_tests, u_k = _propagate(
+                inputs,
+                totals,
+                reads,
+                rows_blank,
+                rows_std,
+                rows_test,
+                stock_M,
+                volumes,
+                deliveries,
+                diluent_column,
+                volume_mL,
+            )
+        return [epsilon, u_epsilon, float(np.mean(k_tests)), u_k, *k_tests.tolist()]
+
+    base_totals = totals_M[chosen][:, [limiting, excess]]
+    base_readings = readings[chosen]
+    numbers = evaluate(base_totals, base_readings)
+    if not all(math.isfinite(v) for v in numbers):
+        return "the usual analysis gives no finite result for these recipes"
+    # How far the result moves when the blank reading or the totals change in their last
+    # digits: the rounding that another, equally valid order of the same arithmetic makes.
+    spread = [0.0] * len(numbers)
+    blank_up, blank_down = base_readings.copy(), base_readings.copy()
+    blank_up[rows_blank] *= 1.0 + ROUNDING_PROBE
+    blank_down[rows_blank] *= 1.0 - ROUNDING_PROBE
+    for totals, reads in (
+        (base_totals, blank_up),
+        (base_totals, blank_down),
+        (base_totals * (1.0 + ROUNDING_PROBE), base_readings),
+        (base_totals * (1.0 - ROUNDING_PROBE), base_readings),
+    ):
+        for i, (moved, value) in enumerate(zip(evaluate(totals, reads), numbers, strict=True)):
+            # A probe that reaches a singularity makes the value worth nothing: inf.
+            spread[i] = max(spread[i], abs(moved - value) if math.isfinite(moved) else math.inf)
+    k_true = float(10.0**coloured.log_beta)
+    epsilon, u_epsilon, k_mean, u_k, *k_tests = numbers
+    return RecomputedPrediction(
+        epsilon=epsilon,
+        u_epsilon=u_epsilon,
+        K=k_mean,
+        u_K=u_k,
+        K_bias_from_assumption=k_mean / k_true - 1.0,
+        K_true=k_true,
+        epsilon_true=float(coloured.epsilon),
+        K_per_test=tuple(k_tests),
+        rounding={
+            "epsilon": spread[0],
+            "u_epsilon": spread[1],
+            "K": spread[2],
+            "u_K": spread[3],
+            "K_bias_from_assumption": spread[2] / k_true,
+            "K_true": 0.0,
+            "epsilon_true": 0.0,
+        },
+        rounding_per_test=tuple(spread[4:]),
+    )
+
+
+def _propagate(
+    inputs: PlanInputs,
+    totals: NDArray[np.float64],
+    readings: NDArray[np.float64],
+    rows_blank: NDArray[np.int64],
+    rows_std: NDArray[np.int64],
+    rows_test: NDArray[np.int64],
+    stock_M: NDArray[np.float64],
+    volumes: NDArray[np.float64],
+    deliveries: Sequence[tuple[int, int, str, float, float]],
+    diluent_column: int | None,
+    volume_mL: float,
+) -> tuple[float, float, NDArray[np.float64], float]:
+    """eps, u(eps), K of each test and u(mean K); the first rows are the blanks (A_0 is their
+    mean, so each blank reading carries 1/n_blanks of d/dA_0), columns (L, M)."""
+    # numpy scalars throughout, so that a division by zero gives inf or nan (under the
+    # caller's errstate) and the result is reported as not finite.
+    b = np.float64(inputs.instrument.path_length_cm)
+    a0 = np.mean(readings[rows_blank])
+    n_blank = len(rows_blank)
+    c = totals[rows_std, 0]
+    a = readings[rows_std]
+    s = np.sum(c * c)
+    epsilon = np.sum(c * (a - a0)) / (b * s)
+    d_eps_c = ((a - a0) - 2.0 * b * epsilon * c) / (b * s)
+    d_eps_a = c / (b * s)
+    d_eps_a0 = -np.sum(c) / (b * s)
+
+    big_m = totals[rows_test, 1]
+    big_l = totals[rows_test, 0]
+    x = (readings[rows_test] - a0) / (epsilon * b)
+    k_tests = x / ((big_m - x) * (big_l - x))
+    denominator = (big_m - x) * (big_l - x)
+    d_k_x = (big_m * big_l - x * x) / (denominator * denominator)
+    d_k_m = -x / ((big_m - x) * (big_m - x) * (big_l - x))
+    d_k_l = -x / ((big_m - x) * (big_l - x) * (big_l - x))
+    n_test = len(rows_test)
+    d_mean_eps = np.sum(d_k_x * (-x / epsilon)) / n_test
+
+    # d(measurand)/d(component total) of every chosen mixture, columns (L, M).
+    n = len(readings)
+    w_eps = np.zeros((n, 2))
+    w_eps[rows_std, 0] = d_eps_c
+    w_k = d_mean_eps * w_eps
+    w_k[rows_test, 0] += d_k_l / n_test
+    w_k[rows_test, 1] += d_k_m / n_test
+
+    var_eps = 0.0
+    var_k = 0.0
+    # Stock concentrations: dc/dr_s = C_s V_s / V in every mixture.
+    for column, stock in enumerate(inputs.stocks):
+        u = stock.relative_uncertainty
+        if u <= 0:
+            continue
+        dc = volumes[:, column, None] * stock_M[None, column, :] / volume_mL
+        var_eps += _square(float(np.sum(w_eps * dc)) * u)
+        var_k += _square(float(np.sum(w_k * dc)) * u)
+
+    # Deliveries: systematic errors add up per device id, random ones stand alone.
+    diluent_M = stock_M[diluent_column] if diluent_column is not None else np.zeros(2)
+    in_flask = inputs.design.vessel_kind == "volumetric-flask"
+    systematic: dict[str, list[float]] = {}
+    for row, column, device_id, u_sys, u_rand in deliveries:
+        reference = diluent_M if in_flask else totals[row]
+        dc = (stock_M[column] - reference) / volume_mL
+        g_eps = float(np.dot(w_eps[row], dc))
+        g_k = float(np.dot(w_k[row], dc))
+        if u_sys > 0:
+            total = systematic.setdefault(device_id, [0.0, 0.0, u_sys])
+            total[0] += g_eps
+            total[1] += g_k
+        if u_rand > 0:
+            var_eps += _square(g_eps * u_rand)
+            var_k += _square(g_k * u_rand)
+    for g_eps, g_k, u_sys in systematic.values():
+        var_eps += _square(g_eps * u_sys)
+        var_k += _square(g_k * u_sys)
+
+    # Each mixture's own flask: dc/dV_f = (C_d - c) / V.
+    flask = vessel_flask(inputs)
+    if flask is not None:
+        u_flask = standard_uncertainty_mL(flask)
+        dc = (diluent_M[None, :] - totals) / volume_mL
+        var_eps += float(np.sum((np.sum(w_eps * dc, axis=1) * u_flask) ** 2))
+        var_k += float(np.sum((np.sum(w_k * dc, axis=1) * u_flask) ** 2))
+
+    # Readings: each its own noise.
+    sd = inputs.instrument.absorbance_sd
+    g_eps_read = np.zeros(n)
+    g_eps_read[rows_std] = d_eps_a
+    g_eps_read[rows_blank] = d_eps_a0 / n_blank
+    g_k_read = d_mean_eps * g_eps_read
+    g_k_read[rows_test] += d_k_x / (epsilon * b) / n_test
+    g_k_read[rows_blank] += np.sum(d_k_x * (-1.0 / (epsilon * b))) / n_test / n_blank
+    var_eps += float(np.sum((g_eps_read * sd) ** 2))
+    var_k += float(np.sum((g_k_read * sd) ** 2))
+    return float(epsilon), _root(var_eps), k_tests, _root(var_k)
