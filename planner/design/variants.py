@@ -29,10 +29,17 @@ import numpy as np
 
 from planner.design.candidates import candidate_set
 from planner.design.plan import design_plan
+from planner.errors import InvalidInputError
 from planner.inputs import PlanInputs
 from planner.result import Plan
 
-__all__ = ["VariantSet", "design_variants", "recipe_key"]
+__all__ = ["MAX_SECTIONS", "VariantSet", "design_variants", "recipe_key"]
+
+#: Most sections one call designs: each is a full design (about 0.2 s) with its own folder of
+#: sheets (about 0.3 MB), and up to _TRIES_PER_SECTION draws are made per section, so 100
+#: sections take tens of seconds to a few minutes. No course runs more sections of one lab;
+#: a count of a million ran for days (found by fuzzing).
+MAX_SECTIONS = 100
 
 # Best section's objective x this is the worst accepted (any two within +/-20 % of each other).
 _DIFFICULTY_BAND = 1.2
@@ -94,7 +101,7 @@ def design_variants(
     inputs
         The plan; its session describes one section's benches.
     sections
-        Number of sections (>= 1).
+        Number of sections, 1 to :data:`MAX_SECTIONS`.
     rng
         The one random generator (from the command's seed).
     progress
@@ -104,7 +111,19 @@ def design_variants(
     -------
     VariantSet
         Possibly fewer plans than requested, with the reason.
+
+    Raises
+    ------
+    InvalidInputError
+        For a number of sections outside 1 to :data:`MAX_SECTIONS` (field ``sections``).
     """
+    if not 1 <= sections <= MAX_SECTIONS:
+        raise InvalidInputError(
+            f"the number of sections must be from 1 to {MAX_SECTIONS}",
+            field="sections",
+            value=sections,
+            hint=f"ask for at most {MAX_SECTIONS} sections",
+        )
     one_section = dataclasses.replace(
         inputs, session=dataclasses.replace(inputs.session, sections=1)
     )
