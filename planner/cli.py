@@ -14,7 +14,7 @@ import sys
 import tempfile
 import threading
 import traceback
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Mapping
 from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Annotated, Any, TypeVar
@@ -42,6 +42,18 @@ _FORCE_HELP = (
     "files, the current or home folder, the file-system root, or a folder holding them or "
     "the plan file."
 )
+
+#: Most trials of planner simulate: 1e7 take minutes and about 2 GiB for the default plan
+#: (the Monte Carlo also refuses trials x mixtures beyond its memory budget). Equal to
+#: planner.predict.montecarlo.MAX_TRIALS, kept here so the command line starts without
+#: scipy (tests/test_simulate.py checks they agree).
+_MAX_TRIALS = 10_000_000
+#: Most sections of planner variants: 100 take about 20 s and 30 MB of sheets. Equal to
+#: planner.design.variants.MAX_SECTIONS (tests/design/test_variants.py checks).
+_MAX_SECTIONS = 100
+#: Largest --seed: seeds are whole numbers from 0 to 2**32 - 1, the range numpy's legacy
+#: seeding and most tools accept (common practice); numpy's Generator refuses negative ones.
+_MAX_SEED = 2**32 - 1
 
 
 class OutputFormat(enum.StrEnum):
@@ -74,6 +86,54 @@ def _root() -> None:
     Exit status: 0 all checks pass, 1 a check failed, 2 the input could not be used,
     3 an internal error (a bug: please report it).
     """
+    _safe_streams()
+
+
+def _safe_streams() -> None:
+    """Never fail on a character the output's encoding cannot hold.
+
+    Reports carry µ, ×, ± and whatever a plan file names; with PYTHONIOENCODING=ascii or a
+    Latin-1 terminal, writing them raised UnicodeEncodeError (an internal error, found by
+    testing under such locales). Such characters are written as backslash escapes (``\\xd7``)
+    instead; the JSON documents are ASCII already. The streams keep their encoding, so a UTF-8
+    terminal shows every character as it is.
+    """
+    for stream in (sys.stdout, sys.stderr):
+        reconfigure = getattr(stream, "reconfigure", None)
+        if reconfigure is not None:
+            reconfigure(errors="backslashreplace")
+
+
+@contextmanager
+def _options(names: Mapping[str, str]) -> Iterator[None]:
+    """An error about a core argument names the command-line option it came from."""
+    try:
+        yield
+    except PlannerError as error:
+        if error.field in names:
+            raise error.renamed(names[error.field]) from None
+        raise
+
+
+def _sheet_date(date: str | None) -> str:
+    """The --date of the sheets, an ISO date (YYYY-MM-DD, a real date), or today."""
+    import datetime
+    import re
+
+    from planner.errors import InvalidInputError
+
+    if date is None:
+        return _today()
+    hint = "give a real calendar date as YYYY-MM-DD, e.g. 2026-09-14, or leave --date out"
+    # fromisoformat alone would also take 20260914 and 2026-W38-1.
+    if not re.fullmatch(r"[0-9]{4}-[0-9]{2}-[0-9]{2}", date):
+        raise InvalidInputError("not an ISO date YYYY-MM-DD", field="--date", value=date, hint=hint)
+    try:
+        return datetime.date.fromisoformat(date).isoformat()
+    except ValueError:
+        raise InvalidInputError(
+            "no such day in the calendar", field="--date", value=date, hint=hint
+        ) from None
 
 
 class _Stopped(KeyboardInterrupt):
@@ -163,21 +223,28 @@ def _write_stdout(text: str) -> None:
 )
 def check(
     k: Annotated[
-        float, typer.Option("--k", help="Formation constant K of the 1:1 complex [L/mol].")
+        float,
+        typer.Option("--k", help="Formation constant K of the 1:1 complex [L/mol], 1e-60 to 1e60."),
     ],
     excess: Annotated[
         float,
-        typer.Option("--excess", help="Total concentration of the reagent in excess [mol/L]."),
+        typer.Option(
+            "--excess", help="Total concentration of the reagent in excess [mol/L], 0 to 1e6."
+        ),
     ],
     limiting: Annotated[
         float,
-        typer.Option("--limiting", help="Total concentration of the limiting reagent [mol/L]."),
+        typer.Option(
+            "--limiting",
+            help="Total concentration of the limiting reagent [mol/L], 1e-30 to 1e6.",
+        ),
     ],
     tolerance: Annotated[
         float,
         typer.Option(
             "--tolerance",
-            help="Accepted relative error of the all-bound assumption, e.g. 0.02 for 2 %.",
+            help="Accepted relative error of the all-bound assumption, e.g. 0.02 for 2 % "
+            "(1e-6 to below 1).",
         ),
     ] = 0.02,
     output_format: Annotated[
@@ -188,13 +255,17 @@ def check(
 
     Solves the 1:1 equilibrium exactly and reports the bound fraction of the limiting reagent,
     the relative error of the assumption, and the smallest total excess that meets the
-    tolerance. Exit status 1 when the excess is insufficient.
+    tolerance. Exit status 1 when the excess is insufficient, 2 for a value outside the
+    accepted ranges: K from 1e-60 to 1e60 L/mol, excess from 0 to 1e6 mol/L, limiting from
+    1e-30 to 1e6 mol/L, tolerance from 1e-6 to below 1 (nan and inf are refused).
     """
 
     def body() -> int:
         from planner.chem.assumption import check_assumption
 
-        result = check_assumption(k, excess, limiting, tolerance)
+        names = {"K": "--k", "excess": "--excess", "limiting": "--limiting"}
+        with _options({**names, "tolerance": "--tolerance"}):
+            result = check_assumption(k, excess, limiting, tolerance)
         if output_format is OutputFormat.json:
             from planner.report.check_text import check_document
             from planner.report.jsonout import dumps
@@ -283,7 +354,10 @@ def _today() -> str:
 def plan(
     file: Annotated[
         Path | None,
-        typer.Argument(help="Plan file (TOML). Omit it to plan the embedded default scenario."),
+        typer.Argument(
+            help="Plan file (TOML, a regular file of at most 1 MiB). Omit it to plan the "
+            "embedded default scenario."
+        ),
     ] = None,
     out: Annotated[
         Path | None,
@@ -299,7 +373,10 @@ def plan(
     force: Annotated[bool, typer.Option("--force", help=_FORCE_HELP)] = False,
     date: Annotated[
         str | None,
-        typer.Option("--date", help="Date printed on the sheets (default: today), YYYY-MM-DD."),
+        typer.Option(
+            "--date",
+            help="Date printed on the sheets (default: today), an ISO date YYYY-MM-DD.",
+        ),
     ] = None,
     pdf: Annotated[
         bool,
@@ -322,6 +399,7 @@ def plan(
     def body() -> int:
         from planner.pipeline import design_plan
 
+        sheet_date = _sheet_date(date)
         if pdf and out is None:
             from planner.errors import InvalidInputError
 
@@ -393,7 +471,10 @@ def _tell(message: str, *, heading: str = "", style: str = "") -> None:
 )
 def verify(
     result_file: Annotated[
-        Path, typer.Argument(help="A saved plan result (plan.json), perhaps edited by hand.")
+        Path,
+        typer.Argument(
+            help="A saved plan result (plan.json, at most 8 MiB), perhaps edited by hand."
+        ),
     ],
     output_format: Annotated[
         OutputFormat, typer.Option("--format", help="text for people, json for programs.")
@@ -476,14 +557,38 @@ def init(
     )
 )
 def variants(
-    file: Annotated[Path, typer.Argument(help="Plan file (TOML); its session is one section.")],
-    sections: Annotated[int, typer.Option("--sections", min=1, help="Number of sections.")],
-    seed: Annotated[int, typer.Option("--seed", help="Seed; the same seed gives the same sets.")],
+    file: Annotated[
+        Path,
+        typer.Argument(
+            help="Plan file (TOML, a regular file of at most 1 MiB); its session is one section."
+        ),
+    ],
+    sections: Annotated[
+        int,
+        typer.Option(
+            "--sections",
+            min=1,
+            max=_MAX_SECTIONS,
+            help=f"Number of sections, 1 to {_MAX_SECTIONS}.",
+        ),
+    ],
+    seed: Annotated[
+        int,
+        typer.Option(
+            "--seed",
+            min=0,
+            max=_MAX_SEED,
+            help=f"Seed, 0 to {_MAX_SEED}; the same seed gives the same sets.",
+        ),
+    ],
     out: Annotated[Path, typer.Option("--out", help="Folder for the section folders.")],
     force: Annotated[bool, typer.Option("--force", help=_FORCE_HELP)] = False,
     date: Annotated[
         str | None,
-        typer.Option("--date", help="Date printed on the sheets (default: today), YYYY-MM-DD."),
+        typer.Option(
+            "--date",
+            help="Date printed on the sheets (default: today), an ISO date YYYY-MM-DD.",
+        ),
     ] = None,
     quiet: Annotated[
         bool, typer.Option("--quiet", "-q", help="Print nothing but errors; the exit status tells.")
@@ -508,10 +613,14 @@ def variants(
         from planner.report.outdir import check_output_target, write_output_folder
         from planner.report.variants_index import variants_files
 
+        sheet_date = _sheet_date(date)
         inputs = _load(file)
         check_output_target(out, force=force, protect=_reads(file))  # before the design
         err = Console(stderr=True, highlight=False, quiet=quiet)
-        with Progress(console=err, transient=True, disable=quiet) as progress:
+        with (
+            _options({"sections": "--sections"}),
+            Progress(console=err, transient=True, disable=quiet) as progress,
+        ):
             task = progress.add_task("designing sections", total=sections)
             found = design_variants(
                 inputs,
@@ -524,7 +633,7 @@ def variants(
             return EXIT_CHECK_FAILED
         write_output_folder(
             out,
-            variants_files(found.plans, date=date or _today(), seed=seed),
+            variants_files(found.plans, date=sheet_date, seed=seed),
             force=force,
             protect=_reads(file),
         )
@@ -557,16 +666,29 @@ _PROGRESS_FROM_TRIALS = 20_000
 def simulate(
     file: Annotated[
         Path | None,
-        typer.Argument(help="Plan file (TOML). Omit it to simulate the embedded default plan."),
+        typer.Argument(
+            help="Plan file (TOML, a regular file of at most 1 MiB). Omit it to simulate the "
+            "embedded default plan."
+        ),
     ] = None,
     trials: Annotated[
         int,
         typer.Option(
-            "--trials", min=2, help="Benches to simulate (1e5 takes about a second or two)."
+            "--trials",
+            min=2,
+            max=_MAX_TRIALS,
+            help=f"Benches to simulate, 2 to {_MAX_TRIALS} (1e5 take about a second or two); "
+            "the simulation may use 2 GiB of memory, so plans with many mixtures allow fewer.",
         ),
     ] = 100_000,
     seed: Annotated[
-        int, typer.Option("--seed", help="Seed; the same seed gives exactly the same results.")
+        int,
+        typer.Option(
+            "--seed",
+            min=0,
+            max=_MAX_SEED,
+            help=f"Seed, 0 to {_MAX_SEED}; the same seed gives exactly the same results.",
+        ),
     ] = 0,
     output_format: Annotated[
         OutputFormat, typer.Option("--format", help="text for people, json for programs.")
@@ -619,13 +741,14 @@ def simulate(
         show = not quiet and trials >= _PROGRESS_FROM_TRIALS
         with Progress(console=err, transient=True, disable=not show) as progress:
             task = progress.add_task("simulating benches", total=trials)
-            result = run_virtual_class(
-                designed.inputs,
-                designed.mixtures,
-                trials=trials,
-                rng=np.random.default_rng(seed),
-                progress=lambda done, total: progress.update(task, completed=done),
-            )
+            with _options({"trials": "--trials"}):
+                result = run_virtual_class(
+                    designed.inputs,
+                    designed.mixtures,
+                    trials=trials,
+                    rng=np.random.default_rng(seed),
+                    progress=lambda done, total: progress.update(task, completed=done),
+                )
         from planner.report.simulation import render_simulation, simulation_json
 
         document = simulation_json(result, gum, title=inputs.title, seed=seed)
@@ -656,4 +779,5 @@ def simulate(
 
 def main() -> None:
     """Console-script entry point."""
+    _safe_streams()  # also for what is printed before a command runs (usage errors, help)
     app()

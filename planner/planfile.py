@@ -25,15 +25,22 @@ import difflib
 import math
 import os
 import re
+import stat
 import tomllib
 from collections.abc import Mapping, Sequence
-from pathlib import Path
 from typing import Annotated, Any, Literal, NoReturn, get_args, get_origin
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 from pydantic.fields import FieldInfo
 
-from planner.errors import InvalidInputError, PlanFileError, PlannerError
+from planner.errors import (
+    KEY_LIMIT,
+    InvalidInputError,
+    PlanFileError,
+    PlannerError,
+    ResultFileError,
+    shown,
+)
 from planner.inputs import (
     DEVICE_KINDS,
     DesignSettings,
@@ -48,7 +55,25 @@ from planner.inputs import (
     measured_species_index,
 )
 
-__all__ = ["load_plan", "parse_plan", "plan_from_mapping", "plan_to_mapping"]
+__all__ = [
+    "MAX_PLAN_FILE_BYTES",
+    "MAX_RESULT_FILE_BYTES",
+    "load_plan",
+    "parse_plan",
+    "plan_from_mapping",
+    "plan_to_mapping",
+]
+
+#: Largest plan file read [bytes], 1 MiB. A plan file is a few kilobytes (the embedded default
+#: is about 2 kB, and 40 devices, 12 stocks and 30 species stay below 20 kB); reading stops
+#: here, so a wrong path (a disk image, /dev/zero) cannot exhaust memory.
+MAX_PLAN_FILE_BYTES = 2**20
+#: Largest saved plan result (plan.json) read by planner verify [bytes], 8 MiB. A result holds
+#: the plan's inputs plus every mixture with its concentrations: about 20 kB for the default,
+#: under 1 MB for 210 mixtures of 12 stocks, and it repeats the plan file's text (its title
+#: twice), so its limit is larger than a plan file's.
+MAX_RESULT_FILE_BYTES = 8 * 2**20
+_TYPICAL_SIZE = {"plan file": "a few kilobytes", "plan result": "tens to hundreds of kilobytes"}
 
 #: Devices that deliver a measured volume (the rest are vessels).
 _DELIVERING_KINDS = frozenset(
@@ -100,6 +125,12 @@ MAX_GLASSWARE = 40
 #: 0.01 mL has 10 000). Finer divisions or steps multiply the candidate search and, at
 #: 1e-9 mL, asked for hundreds of gigabytes.
 MAX_READINGS = 20_000
+
+#: Lowest purity of a solid to weigh out [mass fraction]. Reagents bought for solutions of
+#: known concentration are sold at 0.95 and above (common practice); below 0.5 the "solid"
+#: is mostly something else and is a typo, and a purity of 5e-324 made an infinite mass on
+#: the prep sheet (found by fuzzing).
+MIN_PURITY = 0.5
 
 _Coefficient = Annotated[int, Field(ge=-COEFFICIENT_LIMIT, le=COEFFICIENT_LIMIT)]
 _Fraction = Annotated[float, Field(gt=0, lt=1)]
@@ -205,7 +236,10 @@ class _SolidModel(_Model):
         min_length=1, description="the formula of the solid with its water, e.g. 'Fe(NO3)3(H2O)9'"
     )
     purity: float = Field(
-        1.0, gt=0, le=1, description="the mass fraction of the named compound, 0 < purity <= 1"
+        1.0,
+        ge=MIN_PURITY,
+        le=1,
+        description="the mass fraction of the named compound, 0.5 <= purity <= 1",
     )
     provides: str = Field(
         "", description="the stock ion this solid supplies (one of the stock's contains_M keys)"
@@ -392,23 +426,9 @@ def _fail(field: str, problem: str, value: object = _NO_VALUE, hint: str = "") -
     raise _PlanError(field, problem, value, hint)
 
 
-#: Longest key shown whole in an error's field path; longer keys are shortened like values.
-_LONGEST_KEY_SHOWN = 100
-_LONG_KEY = re.compile(r"[^.\[\]]{" + str(_LONGEST_KEY_SHOWN + 1) + ",}")
-
-
-def _short_field(field: str) -> str:
-    """The field path with any key of more than 100 characters cut to its start.
-
-    Found by fuzzing: a megabyte-long key went whole into the message, and printing it took
-    the terminal half a minute.
-    """
-    return _LONG_KEY.sub(lambda m: f"{m[0][:60]}...({len(m[0])} characters)", field)
-
-
 def _to_plan_file_error(problem: _PlanError, source: str) -> PlanFileError:
     text = problem.problem if source == "<plan>" else f"{problem.problem} in {source}"
-    field = _short_field(problem.field)
+    field = problem.field  # PlannerError shortens it, and the value, for the message
     if problem.value is _NO_VALUE:
         return PlanFileError(text, field=field, hint=problem.hint)
     return PlanFileError(text, field=field, value=problem.value, hint=problem.hint)
@@ -468,23 +488,6 @@ def _walk(
     return holder, info, name
 
 
-class _Abbreviated(str):
-    """Text shown as is in an error message, for a value too long to quote whole."""
-
-    __slots__ = ()
-
-    def __repr__(self) -> str:
-        return str(self)
-
-
-def _shown(value: object, limit: int = 80) -> object:
-    """The value itself, or its shortened repr when that is longer than ``limit`` characters."""
-    text = repr(value)
-    if len(text) <= limit:
-        return value
-    return _Abbreviated(text[: limit - 3] + "...")
-
-
 def _table_name(loc: Sequence[int | str]) -> str:
     """How a person finds a table: ``[design]``, ``[[stocks]]`` entry, ``stocks[0].solid``."""
     if not loc:
@@ -525,7 +528,7 @@ def _from_validation_error(exc: ValidationError) -> _PlanError:
     holder, info, key = _walk(loc)
     # The field's description, read as "<key> is <description>", says what would be valid.
     description = f"{key} is {info.description}" if info is not None and info.description else ""
-    given = _shown(error["input"])
+    given = error["input"]
 
     if kind == "extra_forbidden":
         unknown = str(loc[-1])
@@ -533,12 +536,12 @@ def _from_validation_error(exc: ValidationError) -> _PlanError:
         lowered = {name.lower(): name for name in allowed}
         # No suggestion for a key far longer than any plan key (difflib is quadratic in it).
         close = []
-        if len(unknown) <= _LONGEST_KEY_SHOWN:
+        if len(unknown) <= KEY_LIMIT:
             close = difflib.get_close_matches(unknown.lower(), list(lowered), n=1, cutoff=0.6)
         where = _table_name(loc[:-1])
         hint = f"allowed keys in {where}: {', '.join(allowed)}"
         if close:
-            hint = f"did you mean {lowered[close[0]]!r}? " + hint
+            hint = f"did you mean {shown(lowered[close[0]])}? " + hint
         return _PlanError(field, "unknown key", given, hint)
 
     if kind == "missing":
@@ -605,12 +608,12 @@ def _format_size(value: float) -> str:
 
 
 def _choices(names: Sequence[str]) -> str:
-    return ", ".join(repr(name) for name in names)
+    return ", ".join(shown(name) for name in names)
 
 
 def _suggest(name: str, names: Sequence[str]) -> str:
     close = difflib.get_close_matches(name, list(names), n=1, cutoff=0.6)
-    return f"did you mean {close[0]!r}? " if close else ""
+    return f"did you mean {shown(close[0])}? " if close else ""
 
 
 def _check_name(field: str, name: str, what: str) -> None:
@@ -843,6 +846,17 @@ def _stocks(models: Sequence[_StockModel], components: Sequence[str]) -> tuple[S
             )
         )
 
+    if all(stock.diluent for stock in stocks):
+        # Found by fuzzing: with the diluent as the only stock there is nothing to vary
+        # against it (every mixture is the diluent itself), and the design had no reagent
+        # stock to enumerate (an internal error before).
+        _fail(
+            "stocks",
+            "the diluent is the only stock",
+            [stock.id for stock in stocks],
+            "list each reagent stock in its own [[stocks]] table; the diluent only dilutes "
+            "and fills up",
+        )
     return tuple(stocks)
 
 
@@ -868,7 +882,7 @@ def _check_supplied(components: Sequence[str], stocks: Sequence[Stock]) -> None:
                 f"reaction.components[{index}]",
                 "no stock contains this component",
                 name,
-                f"add {name!r} to the contains_M of the stock that supplies it",
+                f"add {shown(name)} to the contains_M of the stock that supplies it",
             )
 
 
@@ -1061,7 +1075,7 @@ def _design(
             "design.limiting",
             "no stock contains the limiting reagent",
             model.limiting,
-            f"add {model.limiting!r} to the contains_M of the stock that supplies it",
+            f"add {shown(model.limiting)} to the contains_M of the stock that supplies it",
         )
 
     vessel = model.vessel
@@ -1201,9 +1215,9 @@ def _check_species_use(reaction: Reaction, stocks: Sequence[Stock], limiting: st
                     _fail(
                         f"reaction.species[{index}].formula.{name}",
                         f"a component with a negative coefficient must be in every stock, "
-                        f"and stocks[{position}] ({stock.id!r}) has none",
+                        f"and stocks[{position}] ({shown(stock.id)}) has none",
                         coefficient,
-                        f"add {name!r} to every stock's contains_M (e.g. the medium they "
+                        f"add {shown(name)} to every stock's contains_M (e.g. the medium they "
                         "share), or write the species with positive coefficients",
                     )
 
@@ -1234,10 +1248,39 @@ def _session(model: _SessionModel) -> SessionSettings:
     )
 
 
+def _check_no_nul(data: Mapping[str, Any]) -> None:
+    """No text of the plan, key or value, may hold a NUL character.
+
+    TOML writes it as an escape (``"\\u0000"``), so it passes the syntax; but it ends text in C
+    libraries, file names and browsers, so an id or title holding one would be printed cut
+    short or not at all. Walked without recursion, in document order: a saved result's JSON
+    may nest deeply.
+    """
+    pending: list[tuple[tuple[int | str, ...], Any]] = [((), data)]
+    while pending:
+        loc, value = pending.pop()
+        if isinstance(value, str):
+            if "\x00" in value:
+                _fail(_path(loc), "contains a NUL character", value, _NUL_HINT)
+        elif isinstance(value, Mapping):
+            children: list[tuple[tuple[int | str, ...], Any]] = []
+            for key, item in value.items():
+                if isinstance(key, str) and "\x00" in key:
+                    _fail(_path((*loc, key)), "the key contains a NUL character", key, _NUL_HINT)
+                children.append(((*loc, str(key)), item))
+            pending.extend(reversed(children))
+        elif isinstance(value, list):
+            pending.extend(reversed([((*loc, i), item) for i, item in enumerate(value)]))
+
+
+_NUL_HINT = "remove the \\u0000 (NUL) character; plan-file text cannot hold it"
+
+
 def _build(data: Mapping[str, Any]) -> PlanInputs:
     """Validate a plan mapping (the parsed TOML) and build the dataclasses, or raise _PlanError."""
     if not isinstance(data, Mapping):
         _fail("", "a plan must be a table of keys", type(data).__name__, "see docs/plan-file.md")
+    _check_no_nul(data)
     try:
         plan = _PlanModel.model_validate(dict(data))
     except ValidationError as exc:
@@ -1382,16 +1425,34 @@ def load_plan(path: str | os.PathLike[str]) -> PlanInputs:
 def read_text(name: str, what: str, error: type[PlannerError]) -> str:
     """A UTF-8 text file (byte-order mark allowed), or ``error`` naming the path.
 
-    Shared by the readers of plan files and of saved plan results.
+    Shared by the readers of plan files and of saved plan results. Only a regular file is
+    read, and only up to its size limit (:data:`MAX_PLAN_FILE_BYTES` for a plan file,
+    :data:`MAX_RESULT_FILE_BYTES` for a saved result, whose ``error`` is a
+    :class:`~planner.errors.ResultFileError`): a FIFO blocked forever, ``/dev/zero`` was read
+    until memory ran out, and a directory gave an operating-system message.
     """
+    limit = MAX_RESULT_FILE_BYTES if issubclass(error, ResultFileError) else MAX_PLAN_FILE_BYTES
     try:
-        raw = Path(name).read_bytes()
+        # stat first, so that a FIFO is never opened (opening one for reading waits for a
+        # writer); O_NONBLOCK keeps a FIFO swapped in after the stat from blocking, and the
+        # fstat of the open file is the check that counts.
+        _check_regular(os.stat(name), name, what, error, limit)
+        flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_BINARY", 0)
+        descriptor = os.open(name, flags)
+        try:
+            _check_regular(os.fstat(descriptor), name, what, error, limit)
+            with os.fdopen(descriptor, "rb", closefd=False) as handle:
+                raw = handle.read(limit + 1)  # one byte more tells a file that grew
+        finally:
+            os.close(descriptor)
     except OSError as exc:
         reason = exc.strerror or type(exc).__name__
         raise error(
             f"cannot read the {what} {name} ({reason})",
             hint="check the path and that the file is readable",
         ) from None
+    if len(raw) > limit:
+        _too_large(name, what, error, limit)
     try:
         return raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
@@ -1399,6 +1460,44 @@ def read_text(name: str, what: str, error: type[PlannerError]) -> str:
             f"the {what} {name} is not UTF-8 text (bad byte at offset {exc.start})",
             hint="save the file as UTF-8",
         ) from None
+
+
+def _check_regular(
+    status: os.stat_result, name: str, what: str, error: type[PlannerError], limit: int
+) -> None:
+    mode = status.st_mode
+    if not stat.S_ISREG(mode):
+        kind = next(
+            (
+                text
+                for test, text in (
+                    (stat.S_ISDIR, "a directory"),
+                    (stat.S_ISFIFO, "a FIFO (named pipe)"),
+                    (stat.S_ISCHR, "a character device"),
+                    (stat.S_ISBLK, "a block device"),
+                    (stat.S_ISSOCK, "a socket"),
+                )
+                if test(mode)
+            ),
+            "not a regular file",
+        )
+        raise error(
+            f"cannot read the {what} {name}: it is {kind}, not a regular file",
+            hint=f"give the path of the {what} itself (a file of at most {_size(limit)})",
+        )
+    if status.st_size > limit:
+        _too_large(name, what, error, limit)
+
+
+def _size(limit: int) -> str:
+    return f"{limit // 2**20} MiB"
+
+
+def _too_large(name: str, what: str, error: type[PlannerError], limit: int) -> NoReturn:
+    raise error(
+        f"the {what} {name} is larger than {_size(limit)}, the most the planner reads",
+        hint=f"check the path: a {what} is {_TYPICAL_SIZE.get(what, 'far smaller')}",
+    )
 
 
 def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
@@ -1529,5 +1628,5 @@ def _syntax_error(exc: tomllib.TOMLDecodeError, text: str, source: str) -> PlanF
     problem = f"TOML syntax error in {source} at line {line}, column {column}: {reason}"
     if 1 <= line <= len(lines):
         # Shortened like any value: a megabyte-long line went whole into the message before.
-        return PlanFileError(problem, value=_shown(lines[line - 1].strip()), hint=hint)
+        return PlanFileError(problem, value=lines[line - 1].strip(), hint=hint)
     return PlanFileError(problem, hint=hint)

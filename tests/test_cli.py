@@ -5,6 +5,9 @@ from __future__ import annotations
 import errno
 import json
 import os
+import subprocess
+import sys
+import time
 from pathlib import Path
 
 import pytest
@@ -81,20 +84,58 @@ def test_check_sufficient_excess_exits_0():
 @pytest.mark.parametrize(
     ("args", "field"),
     [
-        (["--k", "0", "--excess", "0.1", "--limiting", "1e-4"], "K"),
-        (["--k", "-3", "--excess", "0.1", "--limiting", "1e-4"], "K"),
-        (["--k", "98", "--excess", "-0.1", "--limiting", "1e-4"], "excess"),
-        (["--k", "98", "--excess", "0.1", "--limiting", "-1e-4"], "limiting"),
-        (["--k", "98", "--excess", "0.1", "--limiting", "1e-4", "--tolerance", "1.5"], "tolerance"),
-        (["--k", "98", "--excess", "0.1", "--limiting", "1e-4", "--tolerance", "0"], "tolerance"),
+        (["--k", "0", "--excess", "0.1", "--limiting", "1e-4"], "--k"),
+        (["--k", "-3", "--excess", "0.1", "--limiting", "1e-4"], "--k"),
+        (["--k", "nan", "--excess", "0.1", "--limiting", "1e-4"], "--k"),
+        (["--k", "1e308", "--excess", "0.1", "--limiting", "1e-4"], "--k"),
+        (["--k", "98", "--excess", "-0.1", "--limiting", "1e-4"], "--excess"),
+        (["--k", "98", "--excess", "inf", "--limiting", "1e-4"], "--excess"),
+        (["--k", "98", "--excess", "1e308", "--limiting", "1e-4"], "--excess"),
+        (["--k", "98", "--excess", "0.1", "--limiting", "-1e-4"], "--limiting"),
+        (["--k", "98", "--excess", "0.1", "--limiting", "-inf"], "--limiting"),
+        (
+            ["--k", "98", "--excess", "0.1", "--limiting", "1e-4", "--tolerance", "1.5"],
+            "--tolerance",
+        ),
+        (["--k", "98", "--excess", "0.1", "--limiting", "1e-4", "--tolerance", "0"], "--tolerance"),
+        (
+            ["--k", "98", "--excess", "0.1", "--limiting", "1e-4", "--tolerance", "nan"],
+            "--tolerance",
+        ),
     ],
 )
-def test_check_bad_values_exit_2_with_field(args, field):
+def test_check_bad_values_exit_2_naming_the_option(args, field):
+    # Issue 9: the message names the option as typed (--k, not the core's argument K) and
+    # the fix.
     result = run("check", *args)
     assert result.exit_code == 2
-    assert f"{field}:" in result.stderr
+    message = " ".join(result.stderr.split())
+    assert message.startswith(f"error: {field}: ")
+    assert "Fix:" in message
     assert result.stdout == ""
     assert "Traceback" not in result.stderr
+
+
+@pytest.mark.parametrize("excess", ["0", "-0", "0.0", "1e-300"])
+def test_check_with_no_excess_explains_instead_of_crashing(excess):
+    # Issue 9: --excess 0 divided by the bound fraction 0 in the text report (exit 3). With
+    # no excess nothing is bound: f = K[M]free / (1 + K[M]free) = 0 (Connors 1987, eq. 2.7).
+    result = run("check", "--k", "98", "--excess", excess, "--limiting", "0.5")
+    assert result.exit_code == 1, result.stderr
+    assert "Traceback" not in result.stderr
+    text = " ".join(result.stdout.split())
+    assert "none of the limiting reagent is bound" in text
+    assert "roles are swapped" in text  # the excess is below the limiting total
+    assert "inf" not in text
+    assert "-0 " not in text
+
+
+def test_check_json_with_minus_zero_excess_reports_zero():
+    result = run("check", "--k", "98", "--excess", "-0", "--limiting", "0.5", "--format", "json")
+    assert result.exit_code == 1
+    document = json.loads(result.stdout)
+    assert document["bound_fraction"] == 0.0
+    assert str(document["excess_M"]) == "0.0"  # not -0.0
 
 
 def test_plan_default_json_has_every_contract_key():
@@ -401,3 +442,145 @@ def test_an_output_path_with_rich_markup_is_printed_literally(tmp_path, monkeypa
     assert result.exit_code == 0, result.stderr
     assert "wrote x[/]y/" in result.stderr
     assert (tmp_path / "x[/]y" / "plan.json").is_file()
+
+
+@pytest.mark.parametrize("command", ["plan", "variants"])
+@pytest.mark.parametrize(
+    ("date", "problem"),
+    [
+        ("notadate", "not an ISO date"),
+        ("20261202", "not an ISO date"),  # fromisoformat alone accepts it
+        ("2026-W49-3", "not an ISO date"),
+        ("2026-02-30", "no such day"),
+        ("2026-13-01", "no such day"),
+        ("2026-12-02x", "not an ISO date"),
+    ],
+)
+def test_date_must_be_an_iso_date(tmp_path, command, date, problem):
+    # Issue 9: --date was printed on the sheets as given, whatever it was.
+    recipe = str(ROOT / "planner" / "data" / "default.toml")
+    args = {
+        "plan": ["plan", "--out", str(tmp_path / "out"), "--date", date],
+        "variants": [
+            "variants",
+            recipe,
+            "--sections",
+            "1",
+            "--seed",
+            "1",
+            "--out",
+            str(tmp_path / "out"),
+            "--date",
+            date,
+        ],
+    }[command]
+    result = run(*args)
+    assert result.exit_code == 2
+    message = " ".join(result.stderr.split())
+    assert message.startswith("error: --date: "), message
+    assert problem in message
+    assert not (tmp_path / "out").exists()
+
+
+def test_a_valid_date_is_printed_on_the_sheets(tmp_path):
+    out = tmp_path / "out"
+    result = run("plan", "--out", str(out), "--date", "2028-02-29", "-q")  # a leap day
+    assert result.exit_code == 0, result.stderr
+    assert "Date: 2028-02-29" in (out / "prep-sheet.md").read_text(encoding="utf-8")
+
+
+def test_text_output_survives_an_ascii_stream():
+    # Issue 9: the summary prints × and ±; on a stream that cannot encode them (ASCII, as
+    # PYTHONIOENCODING=ascii gives) the write raised UnicodeEncodeError, an internal error.
+    ascii_runner = CliRunner(charset="ascii")
+    result = ascii_runner.invoke(app, ["plan"], catch_exceptions=False)
+    assert result.exit_code == 0, result.stderr
+    assert "\\xd7" in result.stdout  # × (U+00D7) written as its escape
+    assert "Traceback" not in result.stderr
+
+
+def _python_m_planner(*args: str, env: dict[str, str] | None = None, timeout: float = 60):
+    environment = {**os.environ, "PYTHONPATH": str(ROOT), "NO_COLOR": "1", **(env or {})}
+    return subprocess.run(
+        [sys.executable, "-m", "planner", *args],
+        env=environment,
+        capture_output=True,
+        timeout=timeout,
+        check=False,
+    )
+
+
+@pytest.mark.parametrize(
+    "env",
+    [
+        {"PYTHONIOENCODING": "ascii"},
+        {"PYTHONIOENCODING": "ascii:strict"},  # stderr strict too
+        {"PYTHONIOENCODING": "latin-1", "LC_ALL": "C"},
+    ],
+)
+def test_whole_process_output_survives_a_narrow_encoding(tmp_path, env):
+    # Titles and names may hold anything: ⁺ (U+207A) and → (U+2192) are in neither ASCII
+    # nor Latin-1 (ISO/IEC 8859-1), ³ and × are in Latin-1 only.
+    default = (ROOT / "planner" / "data" / "default.toml").read_text(encoding="utf-8")
+    good = tmp_path / "good.toml"
+    good.write_text(default.replace('title = "', 'title = "Fe³⁺ → ×2 ', 1), encoding="utf-8")
+    bad = tmp_path / "bad.toml"
+    bad.write_text('title = "x"\n[reaction]\ncomponentz = ["L⁻"]\n', encoding="utf-8")
+    encoding = env["PYTHONIOENCODING"].split(":")[0]
+    for path, code in ((good, 0), (bad, 2)):
+        done = _python_m_planner("plan", str(path), env=env)
+        assert done.returncode == code, done.stderr.decode("latin-1")[-2000:]
+        assert b"Traceback" not in done.stderr
+        done.stdout.decode(encoding)  # the stream's own encoding, escapes for the rest
+        if code == 0:
+            assert b"Fe\\u207a" in done.stdout.replace(b"\xb3", b"").replace(b"\\xb3", b"")
+    assert b"componentz" in done.stderr  # the error message itself got through
+    assert b"\\u207b" in done.stderr  # L⁻ (U+207B) as its escape
+
+
+# Issue 9, "done when": each of these answers within seconds with exit 0, 1 or 2 and no
+# traceback (whole processes, so a hang shows as a timeout).
+
+
+def test_done_when_check_with_zero_excess():
+    done = _python_m_planner("check", "--k", "98", "--excess", "0", "--limiting", "0.5")
+    assert done.returncode in (0, 1, 2)
+    assert b"Traceback" not in done.stderr + done.stdout
+
+
+def test_done_when_simulate_with_a_billion_trials():
+    started = time.monotonic()
+    done = _python_m_planner("simulate", "--trials", "1000000000", timeout=30)
+    assert time.monotonic() - started < 30
+    assert done.returncode == 2
+    assert b"Traceback" not in done.stderr + done.stdout
+    message = b" ".join(done.stderr.split())
+    assert b"--trials" in message
+    assert b"10000000" in message  # the largest allowed value
+
+
+def test_done_when_plan_of_a_fifo(tmp_path):
+    fifo = tmp_path / "plan.toml"
+    os.mkfifo(fifo)  # nobody ever writes to it: reading it would wait forever
+    done = _python_m_planner("plan", str(fifo), timeout=20)
+    assert done.returncode == 2
+    assert b"Traceback" not in done.stderr + done.stdout
+    assert b"FIFO" in done.stderr
+
+
+@pytest.mark.parametrize("special", ["fifo", "/dev/zero", "directory"])
+def test_verify_refuses_special_files(tmp_path, special):
+    # Issue 9: the saved-result reader is the plan-file reader; /dev/zero was read until
+    # memory ran out and a FIFO blocked forever.
+    if special == "fifo":
+        path = tmp_path / "plan.json"
+        os.mkfifo(path)
+    elif special == "directory":
+        path = tmp_path
+    else:
+        path = Path(special)
+    result = run("verify", str(path))
+    assert result.exit_code == 2
+    message = " ".join(result.stderr.split())
+    assert "not a regular file" in message
+    assert "Traceback" not in result.stderr

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 import math
+import os
 import re
 import tomllib
 from pathlib import Path
@@ -30,7 +31,14 @@ from planner.inputs import (
     Solid,
     Stock,
 )
-from planner.planfile import load_plan, parse_plan, plan_from_mapping, plan_to_mapping
+from planner.planfile import (
+    MAX_PLAN_FILE_BYTES,
+    MAX_RESULT_FILE_BYTES,
+    load_plan,
+    parse_plan,
+    plan_from_mapping,
+    plan_to_mapping,
+)
 
 # An invented iron(III)/thiocyanate-like plan for tubes, with every section written out.
 IRON_PLAN = """\
@@ -1330,3 +1338,181 @@ def test_counter_ion_names_are_reserved_for_counter_ions(name):
     error = _error(data)
     _assert_names(error, "reaction.components[1]")
     assert "reserved" in str(error)
+
+
+# --- issue 9: every input answered, nothing hangs ----------------------------------------------
+
+
+def test_the_diluent_as_the_only_stock_is_refused():
+    # Issue 9: the diluent holding both reagents, and no other stock, crashed the design
+    # ("cannot reshape array", exit 3).
+    data = _data()
+    diluent = data["stocks"][2]
+    diluent["contains_M"] = {"Fe3+": 0.2, "SCN-": 0.0016, "H+": 0.4}
+    data["stocks"] = [diluent]
+    error = _error(data)
+    _assert_names(error, "stocks")
+    assert "diluent is the only stock" in str(error)
+
+
+@pytest.mark.parametrize("purity", [5e-324, 1e-300, 0.1, 0.4999])
+def test_implausible_purity_is_refused(purity):
+    # Issue 9: a purity of 5e-324 made an infinite mass and a crash while writing the sheets.
+    data = _data()
+    data["stocks"][0]["solid"]["purity"] = purity
+    error = _error(data)
+    _assert_names(error, "stocks[0].solid.purity")
+    assert "at least 0.5" in str(error)
+
+
+def test_purity_of_one_half_is_accepted():
+    data = _data()
+    data["stocks"][0]["solid"]["purity"] = 0.5
+    assert plan_from_mapping(data).stock("iron").solid.purity == 0.5
+
+
+@pytest.mark.parametrize(
+    "formula",
+    [
+        "(H2O)99999999999999999999",  # the finding
+        "KSCN·1001H2O",  # a hydrate count above 1000
+        "Fe(NO3)3(H2O)" + "9" * 5000,  # more digits than int() converts
+        "((H1000)1000)",  # 1e6 atoms
+        "Pb1000",  # 207 000 g/mol
+    ],
+)
+def test_implausible_solid_formula_is_refused(formula):
+    data = _data()
+    data["stocks"][1]["solid"]["formula"] = formula
+    error = _error(data)
+    _assert_names(error, "stocks[1].solid.formula")
+    assert len(str(error)) < 600
+
+
+@pytest.mark.parametrize(
+    ("path", "field"),
+    [
+        (("title",), "title"),
+        (("stocks", 1, "id"), "stocks[1].id"),
+        (("reaction", "species", 0, "name"), "reaction.species[0].name"),
+        (("reaction", "components", 1), "reaction.components[1]"),
+        (("stocks", 0, "solid", "formula"), "stocks[0].solid.formula"),
+        (("design", "vessel"), "design.vessel"),
+    ],
+)
+def test_nul_characters_in_text_are_refused(path, field):
+    # Issue 9: a NUL character went through to the sheets (where it ends C strings).
+    data = _data()
+    target = data
+    for key in path[:-1]:
+        target = target[key]
+    target[path[-1]] = "a\x00" + str(target[path[-1]])
+    error = _error(data)
+    _assert_names(error, field)
+    assert "NUL" in str(error)
+
+
+def test_nul_characters_in_keys_are_refused():
+    data = _data()
+    data["stocks"][0]["contains_M"]["Fe\x003+"] = 0.1
+    error = _error(data)
+    _assert_names(error, "stocks[0].contains_M.Fe\x003+")
+    assert "NUL" in str(error)
+
+
+def test_nul_written_as_a_toml_escape_is_refused():
+    text = IRON_PLAN.replace('title = "Invented', 'title = "\\u0000Invented')
+    with pytest.raises(PlanFileError, match="NUL") as info:
+        parse_plan(text)
+    assert info.value.field == "title"
+
+
+def test_nul_check_copes_with_deep_nesting():
+    # Walked without recursion: a mapping nested deeper than the recursion limit.
+    deep: Any = "x\x00"
+    for _ in range(5000):
+        deep = [deep]
+    data = _data()
+    data["title"] = deep
+    error = _error(data)
+    assert error.field == "title" + "[0]" * 5000
+    assert "NUL" in str(error)
+
+
+@pytest.mark.parametrize(
+    "where",
+    [
+        ("reaction", "components", 1),  # quoted in a hint of another key ("use one of ...")
+        ("design", "limiting"),
+        ("stocks", 0, "solid", "formula"),
+        ("glassware", 0, "kind"),
+        ("design", "vessel"),
+    ],
+)
+def test_every_message_shortens_a_thirty_kilobyte_value(where):
+    # Issue 9: messages echoed values of 30 kB though docs/plan-file.md says they are
+    # shortened (values to 80 characters, keys to 100).
+    data = _data()
+    target = data
+    for key in where[:-1]:
+        target = target[key]
+    target[where[-1]] = "Q" * 30_000
+    error = _error(data)
+    assert len(str(error)) < 1500, str(error)[:300]
+    assert "Q" * 101 not in str(error)
+
+
+# The reader of plan files and saved results refuses what it cannot read in bounded time.
+
+
+def test_a_fifo_is_refused_without_blocking(tmp_path):
+    fifo = tmp_path / "plan.toml"
+    os.mkfifo(fifo)  # nobody writes: opening it for reading would wait forever
+    with pytest.raises(PlanFileError, match="FIFO") as info:
+        load_plan(fifo)
+    assert str(fifo) in str(info.value)
+
+
+@pytest.mark.parametrize(("path", "kind"), [("/dev/null", "device"), ("/dev/zero", "device")])
+def test_devices_are_refused(path, kind):
+    # /dev/zero was read until memory ran out.
+    with pytest.raises(PlanFileError, match=kind) as info:
+        load_plan(path)
+    assert path in str(info.value)
+
+
+def test_a_directory_is_refused_as_such(tmp_path):
+    with pytest.raises(PlanFileError, match="it is a directory"):
+        load_plan(tmp_path)
+
+
+def test_a_file_above_one_mebibyte_is_refused(tmp_path):
+    path = tmp_path / "huge.toml"
+    path.write_text(IRON_PLAN + "# " + "x" * MAX_PLAN_FILE_BYTES + "\n", encoding="utf-8")
+    with pytest.raises(PlanFileError, match="larger than 1 MiB") as info:
+        load_plan(path)
+    assert str(path) in str(info.value)
+
+
+def test_a_file_of_exactly_the_limit_is_read(tmp_path):
+    path = tmp_path / "full.toml"
+    text = IRON_PLAN + "#"
+    text += "x" * (MAX_PLAN_FILE_BYTES - len(text.encode("utf-8")) - 1) + "\n"
+    path.write_text(text, encoding="utf-8")
+    assert path.stat().st_size == MAX_PLAN_FILE_BYTES == 2**20
+    assert load_plan(path) == parse_plan(IRON_PLAN)
+
+
+def test_a_saved_result_may_be_larger_than_a_plan_file(tmp_path):
+    # The same reader serves planner verify with its own, larger limit (8 MiB).
+    from planner.errors import ResultFileError
+    from planner.planfile import read_text
+
+    path = tmp_path / "plan.json"
+    path.write_text(" " * (2 * MAX_PLAN_FILE_BYTES), encoding="utf-8")
+    assert len(read_text(str(path), "plan result", ResultFileError)) == 2 * MAX_PLAN_FILE_BYTES
+    with pytest.raises(PlanFileError, match="larger than 1 MiB"):
+        read_text(str(path), "plan file", PlanFileError)
+    path.write_text(" " * (MAX_RESULT_FILE_BYTES + 1), encoding="utf-8")
+    with pytest.raises(ResultFileError, match="larger than 8 MiB"):
+        read_text(str(path), "plan result", ResultFileError)

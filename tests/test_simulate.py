@@ -130,3 +130,28 @@ def test_unreadable_plan_exits_2(tmp_path):
     assert result.exit_code == 2
     assert "Traceback" not in result.stderr
     assert result.stdout == ""
+
+
+@pytest.mark.parametrize(
+    ("args", "option"),
+    [
+        (["--trials", "1000000000"], "--trials"),  # asked for 82 GiB before (issue 9)
+        (["--trials", "10000001"], "--trials"),
+        (["--trials", "1e9"], "--trials"),
+        (["--seed", "-1"], "--seed"),  # numpy refuses negative seeds: exit 3 before
+        (["--seed", str(2**32)], "--seed"),
+        (["--seed", str(10**40)], "--seed"),
+    ],
+)
+def test_out_of_range_arguments_exit_2_naming_the_option(args, option):
+    result = run("simulate", *args)
+    assert result.exit_code == 2
+    assert option in result.stderr
+    assert result.stdout == ""
+    assert "Traceback" not in result.stderr
+
+
+def test_the_largest_seed_is_accepted():
+    result = run("simulate", "--trials", "20", "--seed", str(2**32 - 1), "--format", "json")
+    assert result.exit_code == 0, result.stderr
+    assert json.loads(result.stdout)["seed"] == 2**32 - 1

@@ -172,6 +172,7 @@ def check_assumption(
         "the tolerance must lie strictly between 0 and 1 (at least 1e-6)",
         "give the accepted relative error as a fraction, e.g. 0.02 for 2 %",
     )
+    excess_M = float(excess_M) + 0.0  # -0.0 (accepted as 0) becomes 0.0: no "-0" in reports
     complex_M = float(one_to_one_complex_M(excess_M, limiting_M, K))
     fraction = complex_M / limiting_M
     free_needed = (1.0 - tolerance) / (K * tolerance)

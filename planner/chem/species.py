@@ -22,12 +22,16 @@ from collections.abc import Mapping, Sequence
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from planner.errors import InvalidInputError
+from planner.errors import InvalidInputError, shown
 
 __all__ = [
+    "CHARGE_LIMIT",
     "COUNTER_ANION",
     "COUNTER_CATION",
+    "MAX_FORMULA_ATOMS",
+    "MAX_FORMULA_COUNT",
     "POLYATOMIC_SUBSCRIPT_ENDINGS",
+    "MAX_MOLAR_MASS_g_per_mol",
     "charge_from_name",
     "ionic_strength_M",
     "molar_mass_g_per_mol",
@@ -40,6 +44,20 @@ COUNTER_ANION = "X-"
 
 #: Name of the unspecified monovalent cation added to make a negatively charged stock neutral.
 COUNTER_CATION = "X+"
+
+#: Largest |charge number| a name may carry. The most highly charged ions met in solution
+#: chemistry are polyoxometalates of charge about -14 (from memory); a charge written as
+#: "Fe^99999+" or with thousands of signs is a typo, and a charge of thousands of digits
+#: could not even be converted to a number (found by fuzzing).
+CHARGE_LIMIT = 30
+
+#: Limits on the formula of a solid to weigh out (found by fuzzing: "(H2O)99999999999999999999"
+#: was accepted with a molar mass of 1.8e21 g/mol). The salts and hydrates a prep room weighs
+#: have a few dozen atoms and molar masses below about 1000 g/mol; the limits are far above
+#: them (common practice) and reject typos and pasted runs of digits.
+MAX_FORMULA_COUNT = 1000  #: largest count written in a formula (element, group or hydrate)
+MAX_FORMULA_ATOMS = 10_000  #: most atoms in one formula unit
+MAX_MOLAR_MASS_g_per_mol = 1e5  #: largest molar mass [g/mol]
 
 #: Formula endings of common polyatomic ions and neutral ligands whose formula ends in a digit
 #: that is a subscript, not a charge. When a name ends in one of these followed by a single
@@ -134,7 +152,12 @@ def _explicit_charge(name: str, body: str, charge_text: str) -> int:
     _check_body(name, body)
     match = _EXPLICIT_CHARGE.match(charge_text)
     if match is None:
-        raise _bad_name(name, f"the explicit charge {charge_text!r} is not like '2-', '+' or '-2'")
+        raise _bad_name(
+            name, f"the explicit charge {shown(charge_text)} is not like '2-', '+' or '-2'"
+        )
+    magnitude = match["mag"] or match["mag2"] or ""
+    if len(magnitude) > len(str(CHARGE_LIMIT)):  # before int(): thousands of digits fail there
+        raise _bad_name(name, f"the charge is larger than {CHARGE_LIMIT} in size")
     if match["signs"]:
         signs = match["signs"]
         if len(set(signs)) > 1:
@@ -162,7 +185,8 @@ def charge_from_name(name: str) -> int:
     ------
     InvalidInputError
         With field ``"name"`` for an empty name, a name that is only a charge, a sign, caret or
-        space in the middle, mixed signs, or a signed charge of zero.
+        space in the middle, mixed signs, a signed charge of zero, or a charge larger than
+        :data:`CHARGE_LIMIT` in size.
 
     Notes
     -----
@@ -199,6 +223,14 @@ def charge_from_name(name: str) -> int:
         raise InvalidInputError(
             "a species name must be text", field="name", value=name, hint=_NAME_HINT
         )
+    charge = _charge(name)
+    if abs(charge) > CHARGE_LIMIT:
+        raise _bad_name(name, f"the charge is larger than {CHARGE_LIMIT} in size")
+    return charge
+
+
+def _charge(name: str) -> int:
+    """The rules of :func:`charge_from_name`, without the size limit."""
     text = name.strip().translate(_MINUS_SIGNS)
     if not text:
         raise _bad_name(name, "the name is empty")
@@ -418,6 +450,7 @@ _HYDRATE_SEPARATOR = re.compile(r"\s*[·•∙⋅.*+]\s*|\s+")
 _FORMULA_PART = re.compile(r"(?P<coefficient>[0-9]+(?:\.[0-9]+)?)?(?P<body>[^·•∙⋅.*+\s]*)")
 _FORMULA_BODY = re.compile(r"^(?:[A-Z][a-z]?[0-9]*|[()0-9])+$")
 _ZERO_COUNT = re.compile(r"(?<![0-9])0")
+_COUNT = re.compile(r"[0-9]+")
 
 _FORMULA_HINT = (
     "write element symbols with integer counts and parentheses, with any water of "
@@ -425,14 +458,20 @@ _FORMULA_HINT = (
 )
 
 
-def _bad_formula(formula: str, problem: str) -> InvalidInputError:
-    return InvalidInputError(problem, field="formula", value=formula, hint=_FORMULA_HINT)
+_LIMITS_HINT = (
+    f"check the formula for a typo: counts up to {MAX_FORMULA_COUNT}, at most "
+    f"{MAX_FORMULA_ATOMS} atoms and {MAX_MOLAR_MASS_g_per_mol:g} g/mol, e.g. 'Fe(NO3)3·9H2O'"
+)
+
+
+def _bad_formula(formula: str, problem: str, hint: str = _FORMULA_HINT) -> InvalidInputError:
+    return InvalidInputError(problem, field="formula", value=formula, hint=hint)
 
 
 def _check_formula_body(formula: str, body: str) -> None:
     """Check one formula part: element symbols, integer counts, balanced parentheses."""
     if not body or not _FORMULA_BODY.match(body):
-        raise _bad_formula(formula, f"the formula part {body!r} is not a chemical formula")
+        raise _bad_formula(formula, f"the formula part {shown(body)} is not a chemical formula")
     depth = 0
     previous = ""
     for ch in body:
@@ -510,7 +549,10 @@ def molar_mass_g_per_mol(formula: str) -> float:
     ------
     InvalidInputError
         With field ``"formula"`` for an empty formula, an unknown element symbol, unbalanced
-        parentheses, a zero count or any character that is not part of a formula.
+        parentheses, a zero count, any character that is not part of a formula, or a formula
+        beyond the limits of a solid to weigh out: a count above :data:`MAX_FORMULA_COUNT`,
+        more than :data:`MAX_FORMULA_ATOMS` atoms or a molar mass above
+        :data:`MAX_MOLAR_MASS_g_per_mol`.
 
     Notes
     -----
@@ -531,16 +573,39 @@ def molar_mass_g_per_mol(formula: str) -> float:
     """
     if not isinstance(formula, str) or not formula.strip():
         raise _bad_formula(str(formula), "the formula is empty")
+    for count in _COUNT.findall(formula):
+        # The digits' length first: int() of thousands of digits fails (found by fuzzing).
+        if len(count.lstrip("0")) > len(str(MAX_FORMULA_COUNT)) or int(count) > MAX_FORMULA_COUNT:
+            raise _bad_formula(
+                formula, f"a count in the formula is larger than {MAX_FORMULA_COUNT}", _LIMITS_HINT
+            )
     canonical = _canonical_formula(formula)
 
     import periodictable
 
     try:
-        mass = float(periodictable.formula(canonical).mass)
+        compound = periodictable.formula(canonical)
+        # Counted before the mass: nested groups multiply counts beyond float range.
+        too_many = sum(compound.atoms.values()) > MAX_FORMULA_ATOMS
+        mass = math.inf if too_many else float(compound.mass)
     except ValueError as err:  # unknown element symbol
         raise _bad_formula(formula, f"the formula names an unknown element ({err})") from err
     except Exception as err:  # periodictable's parser raises pyparsing errors
         raise _bad_formula(formula, "the formula cannot be read") from err
+    if too_many:
+        raise _bad_formula(
+            formula,
+            f"the formula has more than the {MAX_FORMULA_ATOMS} atoms a solid to weigh out may "
+            "have",
+            _LIMITS_HINT,
+        )
     if not math.isfinite(mass) or mass <= 0.0:
         raise _bad_formula(formula, "the formula has no mass")
+    if mass > MAX_MOLAR_MASS_g_per_mol:
+        raise _bad_formula(
+            formula,
+            f"the molar mass is {mass:.4g} g/mol, above the {MAX_MOLAR_MASS_g_per_mol:g} g/mol "
+            "a solid to weigh out may have",
+            _LIMITS_HINT,
+        )
     return mass

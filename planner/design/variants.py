@@ -29,15 +29,22 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.design.candidates import CandidateSet, candidate_set
+from planner.errors import InvalidInputError
 from planner.inputs import PlanInputs
 from planner.result import Plan
 
-__all__ = ["PlanMaker", "VariantSet", "design_variants", "recipe_key"]
+__all__ = ["MAX_SECTIONS", "PlanMaker", "VariantSet", "design_variants", "recipe_key"]
 
 #: Makes one verified, predicted plan from the inputs, the shared candidates and an optional
 #: mask of allowed candidates (:func:`planner.pipeline.design_plan`, passed in by the
 #: pipeline so that this package needs neither verification nor prediction).
 PlanMaker = Callable[[PlanInputs, CandidateSet, NDArray[np.bool_] | None], Plan]
+
+#: Most sections one call designs: each is a full design (about 0.2 s) with its own folder of
+#: sheets (about 0.3 MB), and up to _TRIES_PER_SECTION draws are made per section, so 100
+#: sections take tens of seconds to a few minutes. No course runs more sections of one lab;
+#: a count of a million ran for days (found by fuzzing).
+MAX_SECTIONS = 100
 
 # Best section's objective x this is the worst accepted (any two within +/-20 % of each other).
 _DIFFICULTY_BAND = 1.2
@@ -103,7 +110,7 @@ def design_variants(
         Makes one whole plan (design, verification, prediction) from the one-section inputs,
         the shared candidates and a mask.
     sections
-        Number of sections (>= 1).
+        Number of sections, 1 to :data:`MAX_SECTIONS`.
     rng
         The one random generator (from the command's seed).
     progress
@@ -113,7 +120,19 @@ def design_variants(
     -------
     VariantSet
         Possibly fewer plans than requested, with the reason.
+
+    Raises
+    ------
+    InvalidInputError
+        For a number of sections outside 1 to :data:`MAX_SECTIONS` (field ``sections``).
     """
+    if not 1 <= sections <= MAX_SECTIONS:
+        raise InvalidInputError(
+            f"the number of sections must be from 1 to {MAX_SECTIONS}",
+            field="sections",
+            value=sections,
+            hint=f"ask for at most {MAX_SECTIONS} sections",
+        )
     one_section = dataclasses.replace(
         inputs, session=dataclasses.replace(inputs.session, sections=1)
     )

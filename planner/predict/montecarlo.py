@@ -61,17 +61,33 @@ from planner.result import Mixture
 
 __all__ = [
     "CHUNK_TRIALS",
+    "MAX_TRIALS",
+    "MEMORY_BUDGET_BYTES",
     "AnalysisSummary",
     "Simulation",
     "Summary",
     "coverage_interval",
     "exact_fit_least_squares",
+    "largest_trials",
     "simulate",
 ]
 
 #: Trials simulated per chunk: 5000 trials x ~10 mixtures keeps the solver's arrays in cache
 #: (measured several times faster than one pass over 1e6 rows) and lets progress be reported.
 CHUNK_TRIALS = 5000
+#: Most trials of one simulation: 1e7 take minutes at the measured 1e5 trials/s
+#: (docs/performance.md), and the 95 % limits are already stable to about 0.1 % of the SD at
+#: 1e6 (JCGM 101:2008, 7.2: M = 1e6 is the usual choice for 95 % coverage).
+MAX_TRIALS = 10_000_000
+#: Memory the per-trial arrays may take [bytes], 2 GiB: a laptop's share, so that a mistyped
+#: trial count is refused at once instead of swapping or being killed (found by fuzzing:
+#: 1e9 trials asked for 82 GiB).
+MEMORY_BUDGET_BYTES = 2 * 2**30
+# Per trial, in float64 values: every reading and every test's K (kept for the summaries),
+# four per-trial results (eps and K of each analysis) and about six working copies (the
+# finite values, their sort and deviations for each summary; the histograms' copies).
+_KEPT_PER_TRIAL = 4
+_WORKING_PER_TRIAL = 6
 
 Progress = Callable[[int, int], None]
 
@@ -296,6 +312,36 @@ def exact_fit_least_squares(
     return global_fit(inputs.reaction, inputs.instrument, analysis_layout(ex), readings)
 
 
+def _bytes_per_trial(n_mixtures: int, n_tests: int) -> int:
+    return 8 * (n_mixtures + n_tests + _KEPT_PER_TRIAL + _WORKING_PER_TRIAL)
+
+
+def largest_trials(n_mixtures: int, n_tests: int) -> int:
+    """The most trials a plan of this size may simulate.
+
+    Parameters
+    ----------
+    n_mixtures
+        Mixtures of one bench (blanks, standards and tests).
+    n_tests
+        Test mixtures among them.
+
+    Returns
+    -------
+    int
+        :data:`MAX_TRIALS`, or fewer where the per-trial arrays of so many mixtures would
+        exceed :data:`MEMORY_BUDGET_BYTES`.
+
+    Examples
+    --------
+    >>> largest_trials(11, 5) == MAX_TRIALS
+    True
+    >>> largest_trials(211, 100)
+    836247
+    """
+    return min(MAX_TRIALS, MEMORY_BUDGET_BYTES // _bytes_per_trial(n_mixtures, n_tests))
+
+
 def simulate(
     inputs: PlanInputs,
     mixtures: Sequence[Mixture],
@@ -314,7 +360,8 @@ def simulate(
     mixtures
         The plan's mixtures (at least one blank, one standard and one test).
     trials
-        Number of benches to simulate, >= 2.
+        Number of benches to simulate, from 2 to :func:`largest_trials` of the plan (at most
+        :data:`MAX_TRIALS`; fewer when the arrays would exceed :data:`MEMORY_BUDGET_BYTES`).
     rng
         The only source of randomness; a generator from the user's seed.
     progress
@@ -330,7 +377,8 @@ def simulate(
     Raises
     ------
     InvalidInputError
-        Fewer than 2 trials (field ``trials``), or a plan without blank, standard or test.
+        Fewer than 2 trials or more than the plan allows (field ``trials``; checked before
+        anything is allocated), or a plan without blank, standard or test.
     """
     if trials < 2:
         raise InvalidInputError(
@@ -340,6 +388,22 @@ def simulate(
             hint="ask for 10000 or more trials for stable 95 % intervals",
         )
     ex = bench_experiment(inputs, mixtures)
+    largest = largest_trials(len(ex.mixture_ids), int(ex.tests.size))
+    if trials > largest:
+        needed_GiB = trials * _bytes_per_trial(len(ex.mixture_ids), int(ex.tests.size)) / 2**30
+        reason = (
+            f"more than the {MAX_TRIALS} a simulation may run"
+            if largest == MAX_TRIALS
+            else f"{trials} trials of {len(ex.mixture_ids)} mixtures would need about "
+            f"{needed_GiB:.3g} GiB, more than the {MEMORY_BUDGET_BYTES / 2**30:g} GiB a "
+            "simulation may use"
+        )
+        raise InvalidInputError(
+            f"too many trials: {reason}",
+            field="trials",
+            value=trials,
+            hint=f"ask for at most {largest} trials (1e5 give stable 95 % intervals)",
+        )
     layout = analysis_layout(ex)
     draw = _draw_arrays(ex)
     b = ex.path_length_cm

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 from rich.console import Group
@@ -13,6 +14,10 @@ from planner.chem.assumption import PRACTICAL_FREE_EXCESS_M, AssumptionCheck
 from planner.chem.equilibrium import one_to_one_complex_M
 
 __all__ = ["check_document", "render_check"]
+
+# A bound fraction below 1e-6 (one part in a million bound) is "practically none": the factor
+# 1/f then says nothing a person can use.
+_LARGEST_FACTOR_SHOWN = 1e6
 
 
 def check_document(result: AssumptionCheck) -> dict[str, Any]:
@@ -43,6 +48,26 @@ def _diluted_fraction(result: AssumptionCheck) -> float:
     return float(diluted) / (result.limiting_M / 10)
 
 
+def _bias_sentence(result: AssumptionCheck) -> str:
+    """What an insufficient excess does to eps and K; the factor 1/f only where f > 0.
+
+    Found by fuzzing: with no excess at all nothing is bound (f = 0), and 1/f divided by zero.
+    """
+    factor = 1.0 / result.bound_fraction if result.bound_fraction > 0 else math.inf
+    if not math.isfinite(factor) or factor > _LARGEST_FACTOR_SHOWN:
+        return (
+            "Practically none of the limiting reagent is bound, so standards made this way "
+            "show almost no coloured product: a molar absorptivity measured from them "
+            "(assuming all of it is bound) comes out near zero, and K cannot be found."
+        )
+    return (
+        f"A molar absorptivity measured from such standards (assuming all of the limiting "
+        f"reagent is bound) comes out {_pct(-result.epsilon_bias)} low, and every "
+        f"product concentration derived from it too high by the factor "
+        f"{factor:.4g}, which biases K."
+    )
+
+
 def render_check(result: AssumptionCheck) -> Group:
     """A rich renderable with the figures and a plain-language explanation."""
     ok = result.verdict == "ok"
@@ -68,11 +93,12 @@ def render_check(result: AssumptionCheck) -> Group:
         f"{_pct(_diluted_fraction(result))}.",
     ]
     if not ok:
+        lines.append(_bias_sentence(result))
+    if result.excess_M < result.limiting_M:
         lines.append(
-            f"A molar absorptivity measured from such standards (assuming all of the limiting "
-            f"reagent is bound) comes out {_pct(-result.epsilon_bias)} low, and every "
-            f"product concentration derived from it too high by the factor "
-            f"{1 / result.bound_fraction:.4g}, which biases K."
+            f"The excess total ({result.excess_M:.4g} mol/L) is below the limiting total "
+            f"({result.limiting_M:.4g} mol/L): the roles are swapped, the reagent called "
+            "the excess runs short, so this mixture cannot serve as a standard."
         )
     if not result.practical:
         lines.append(
@@ -83,8 +109,11 @@ def render_check(result: AssumptionCheck) -> Group:
             "exact equilibrium model."
         )
     elif not ok:
-        lines.append(
-            f"Raise the total excess to at least {result.min_excess_M:.4g} mol/L, or accept a "
-            f"tolerance of {_pct(result.assumption_error)}."
+        # Accepting the present error is advice only while most of the reagent is bound.
+        accept = (
+            f", or accept a tolerance of {_pct(result.assumption_error)}"
+            if result.assumption_error < 0.5
+            else ""
         )
+        lines.append(f"Raise the total excess to at least {result.min_excess_M:.4g} mol/L{accept}.")
     return Group(table, Panel(Text("\n".join(lines)), title=verdict, title_align="left"))

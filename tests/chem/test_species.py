@@ -334,3 +334,50 @@ def test_bad_formula_names_the_field(formula):
         molar_mass_g_per_mol(formula)
     assert info.value.field == "formula"
     assert "Fe(NO3)3·9H2O" in info.value.hint
+
+
+# Issue 9: implausible formulas and charges are refused with a message, never a crash.
+
+
+@pytest.mark.parametrize(
+    ("formula", "words"),
+    [
+        ("(H2O)99999999999999999999", "larger than 1000"),  # was 1.8e21 g/mol
+        ("KSCN·1001H2O", "larger than 1000"),
+        ("KSCN." + "9" * 5000 + "H2O", "larger than 1000"),  # int() refuses > 4300 digits
+        ("K" + "9" * 5000, "larger than 1000"),
+        ("((H1000)1000)", "more than the 10000 atoms"),
+        ("((((((H1000)1000)1000)1000)1000)1000)", "more than the 10000 atoms"),
+        # 1000 lead atoms: 1000 x 207.2 g/mol (IUPAC 2021 standard atomic weight of Pb)
+        ("Pb1000", "above the 100000 g/mol"),
+    ],
+)
+def test_implausible_formula_is_refused(formula, words):
+    with pytest.raises(InvalidInputError, match=r"^formula: ") as info:
+        molar_mass_g_per_mol(formula)
+    assert words in str(info.value)
+    assert len(str(info.value)) < 600  # the value is shortened (docs/plan-file.md)
+
+
+@pytest.mark.parametrize(
+    ("formula", "expected_g_per_mol"),
+    [
+        # Just inside the limits: 1000 iron atoms, 1000 x 55.845 g/mol; C1000H1000 is
+        # 1000 x (12.011 + 1.008) g/mol (IUPAC 2021 abridged standard atomic weights).
+        ("Fe1000", 55_845.0),
+        ("C1000H1000", 13_019.0),
+    ],
+)
+def test_formulas_inside_the_limits_still_weigh(formula, expected_g_per_mol):
+    assert molar_mass_g_per_mol(formula) == pytest.approx(expected_g_per_mol, rel=1e-4)
+
+
+@pytest.mark.parametrize("name", ["Fe^" + "9" * 5000 + "+", "Fe^99+", "X" + "+" * 31, "Y^31-"])
+def test_implausible_charge_is_refused(name):
+    with pytest.raises(InvalidInputError, match=r"^name: ") as info:
+        charge_from_name(name)
+    assert "larger than 30" in str(info.value)
+
+
+def test_charge_of_thirty_is_read():
+    assert charge_from_name("Y^30-") == -30

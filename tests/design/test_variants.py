@@ -92,3 +92,40 @@ def test_cli_variants_twice_byte_identical(tmp_path):
         assert (tmp_path / "a" / name).read_bytes() == (tmp_path / "b" / name).read_bytes()
     sheet = (tmp_path / "a" / "section-03" / "benches").glob("*.md")
     assert any("Section 3 of 6" in p.read_text() for p in sheet)
+
+
+# Issue 9: --sections had no upper bound (a million sections ran for days).
+
+
+def test_the_command_line_bound_is_the_core_bound():
+    from planner import cli
+    from planner.design.variants import MAX_SECTIONS
+
+    assert cli._MAX_SECTIONS == MAX_SECTIONS == 100
+
+
+@pytest.mark.parametrize("sections", [0, -1, 101, 1_000_000])
+def test_sections_outside_the_bounds_are_refused(sections):
+    from planner.design.variants import MAX_SECTIONS
+    from planner.errors import InvalidInputError
+
+    with pytest.raises(InvalidInputError, match=r"^sections: ") as info:
+        design_variants(load_plan(RECIPE), sections, np.random.default_rng(1))
+    assert f"at most {MAX_SECTIONS}" in str(info.value)
+
+
+@pytest.mark.parametrize(
+    ("args", "option"),
+    [
+        (["--sections", "1000000", "--seed", "1"], "--sections"),
+        (["--sections", "0", "--seed", "1"], "--sections"),
+        (["--sections", "2", "--seed", "-1"], "--seed"),  # numpy refused it: exit 3 before
+        (["--sections", "2", "--seed", str(2**32)], "--seed"),
+    ],
+)
+def test_cli_bounds_exit_2_naming_the_option(tmp_path, args, option):
+    result = CliRunner().invoke(app, ["variants", str(RECIPE), *args, "--out", str(tmp_path / "v")])
+    assert result.exit_code == 2
+    assert option in result.stderr
+    assert "Traceback" not in result.stderr
+    assert not (tmp_path / "v").exists()

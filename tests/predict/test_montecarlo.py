@@ -16,8 +16,11 @@ from scipy.optimize import brentq
 from planner.errors import InvalidInputError
 from planner.predict.montecarlo import (
     CHUNK_TRIALS,
+    MAX_TRIALS,
+    MEMORY_BUDGET_BYTES,
     coverage_interval,
     exact_fit_least_squares,
+    largest_trials,
     simulate,
 )
 from planner.predict.uncertainty import propagate
@@ -238,3 +241,43 @@ def test_coverage_interval_of_a_normal_sample():
 def test_too_few_trials_is_refused(default_plan):
     with pytest.raises(InvalidInputError, match="trials"):
         simulate(default_plan.inputs, default_plan.mixtures, trials=1, rng=np.random.default_rng(0))
+
+
+# Issue 9: --trials 1e9 tried to allocate 82 GiB. The trial count is bounded, and so is the
+# memory of trials x mixtures; both are refused before anything is allocated.
+
+
+def test_largest_trials_follows_the_memory_budget():
+    # Hand count: 8 bytes x (211 mixtures + 100 tests + 4 kept + 6 working) = 2568 bytes a
+    # trial; 2 GiB / 2568 bytes = 836 247 trials (integer part).
+    assert MEMORY_BUDGET_BYTES == 2 * 1024**3
+    assert largest_trials(211, 100) == 836_247
+    assert largest_trials(11, 5) == MAX_TRIALS == 10_000_000
+
+
+def test_the_command_line_bound_is_the_core_bound():
+    from planner import cli
+
+    assert cli._MAX_TRIALS == MAX_TRIALS
+
+
+@pytest.mark.parametrize("trials", [MAX_TRIALS + 1, 10**9, 10**30])
+def test_too_many_trials_are_refused_at_once(default_plan, trials):
+    with pytest.raises(InvalidInputError, match=r"^trials: too many trials") as info:
+        simulate(
+            default_plan.inputs, default_plan.mixtures, trials=trials, rng=np.random.default_rng(0)
+        )
+    assert f"at most {MAX_TRIALS} trials" in str(info.value)
+
+
+def test_trials_beyond_the_memory_budget_of_a_big_plan_are_refused(default_plan):
+    # The default plan with its test mixtures repeated 40 times: 211 mixtures, 205 tests.
+    tests = [m for m in default_plan.mixtures if m.role == "test"]
+    many = list(default_plan.mixtures) + [
+        dataclasses.replace(m, id=f"{m.id}-{i}") for i in range(40) for m in tests
+    ]
+    largest = largest_trials(len(many), 205)
+    assert largest < MAX_TRIALS
+    with pytest.raises(InvalidInputError, match="GiB") as info:
+        simulate(default_plan.inputs, many, trials=largest + 1, rng=np.random.default_rng(0))
+    assert f"at most {largest} trials" in str(info.value)
