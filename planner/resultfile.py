@@ -8,7 +8,7 @@ reads without error and then fails its checks.
 
 Rules of the reader:
 
-- the document is a JSON object whose ``schema`` is ``"planner.plan/1"``;
+- the document is a JSON object whose ``schema`` is ``"planner.plan/2"``;
 - ``inputs`` is validated exactly as a plan file is, by
   :func:`planner.planfile.plan_from_mapping`;
 - a mixture, an addition, ``totals_mL`` and a check may hold only the keys of the contract, so
@@ -50,7 +50,7 @@ from planner.result import Addition, Check, Mixture, Prediction, StockPreparatio
 __all__ = ["LARGEST_NUMBER", "SCHEMA", "SavedPlan", "load_result", "parse_result"]
 
 #: The schema name and version this reader understands.
-SCHEMA = "planner.plan/1"
+SCHEMA = "planner.plan/2"
 
 #: Largest size of a number a plan result may hold outside ``inputs``. Volumes are at most
 #: thousands of mL, concentrations tens of mol/L and K at most 10^(log beta limit); 1e100
@@ -566,7 +566,7 @@ def parse_result(text: str, *, source: str = _DEFAULT_SOURCE) -> SavedPlan:
     Parameters
     ----------
     text
-        The document (schema ``planner.plan/1``, DESIGN.md section 5).
+        The document (schema ``planner.plan/2``, DESIGN.md section 5).
     source
         Name of where the text came from, quoted in error messages.
 

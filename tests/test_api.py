@@ -23,7 +23,7 @@ def test_public_api_end_to_end(tmp_path):
     assert result is not None
     planner.write_reports(plan, tmp_path / "sheets", date="2026-12-02")
     saved = json.loads((tmp_path / "sheets" / "plan.json").read_text())
-    assert saved["schema"] == "planner.plan/1"
+    assert saved["schema"] == "planner.plan/2"
     assert sorted(planner.__all__) == sorted(
         ["load_plan", "design_plan", "verify_plan", "simulate", "write_reports"]
     )

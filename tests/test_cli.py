@@ -145,7 +145,7 @@ def test_plan_default_json_has_every_contract_key():
     # DESIGN section 5 keys.
     for key in ("schema", "title", "inputs", "mixtures", "totals_mL", "checks", "prediction"):
         assert key in document
-    assert document["schema"] == "planner.plan/1"
+    assert document["schema"] == "planner.plan/2"
     for key in ("per_bench", "session", "to_prepare"):
         assert key in document["totals_mL"]
     for key in ("epsilon", "u_epsilon", "K", "u_K", "K_bias_from_assumption"):
@@ -209,7 +209,7 @@ def test_plan_out_writes_folder_and_refuses_non_empty(tmp_path):
     first = run("plan", "--out", str(out), "--date", "2026-12-02")
     assert first.exit_code == 0, first.stderr
     saved = json.loads((out / "plan.json").read_text())
-    assert saved["schema"] == "planner.plan/1"
+    assert saved["schema"] == "planner.plan/2"
     assert (out / "mixtures.csv").exists()
     again = run("plan", "--out", str(out))
     assert again.exit_code == 2

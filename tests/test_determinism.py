@@ -124,7 +124,7 @@ def test_json_on_stdout_is_byte_identical_and_matches_the_folder(sandbox):
     second = run_planner(args, cwd=work, home=home, hash_seed="2")
     assert first.returncode in (0, 1), first.stderr
     assert first.stdout == second.stdout
-    assert json.loads(first.stdout)["schema"] == "planner.plan/1"
+    assert json.loads(first.stdout)["schema"] == "planner.plan/2"
     assert (work / "A" / "plan.json").read_text(encoding="utf-8") == first.stdout
 
 

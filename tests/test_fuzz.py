@@ -151,7 +151,7 @@ def assert_plans_or_fails_named_checks(result, *, words: bool = True) -> dict[st
     assert result.exit_code in (0, 1), (result.exit_code, result.stderr[-2000:])
     document = json.loads(result.stdout, parse_constant=_reject_constant)
     assert_finite_document(document, words=words)
-    assert document["schema"] == "planner.plan/1"
+    assert document["schema"] == "planner.plan/2"
     checks = document["checks"]
     for check in checks:
         assert isinstance(check["name"], str)

@@ -61,7 +61,7 @@ def error_of(document_or_text: Document | str, source: str = "plan.json") -> Res
 
 def test_schema_is_the_contract_name() -> None:
     # DESIGN.md section 5.
-    assert SCHEMA == "planner.plan/1"
+    assert SCHEMA == "planner.plan/2"
 
 
 def test_written_plan_reads_back(default_plan: Plan, text: str) -> None:
@@ -132,7 +132,7 @@ def test_top_level_must_be_an_object() -> None:
     assert "must be a JSON object" in str(error)
 
 
-@pytest.mark.parametrize("schema", ["planner.plan/2", "planner.plan", 1])
+@pytest.mark.parametrize("schema", ["planner.plan/1", "planner.plan/3", "planner.plan", 1])
 def test_wrong_schema(document: Document, schema: object) -> None:
     document["schema"] = schema
     error = error_of(document)
@@ -293,7 +293,7 @@ def test_load_result_names_a_missing_file(tmp_path: Path) -> None:
 
 def test_load_result_refuses_non_utf8(tmp_path: Path) -> None:
     path = tmp_path / "plan.json"
-    path.write_bytes(b'{"schema": "planner.plan/1", "title": "\xff"}')
+    path.write_bytes(b'{"schema": "planner.plan/2", "title": "\xff"}')
     with pytest.raises(ResultFileError, match="not UTF-8 text"):
         load_result(path)
 

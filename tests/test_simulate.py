@@ -31,16 +31,16 @@ def document():
 
 def test_json_contract(document):
     # Issue 4 item 4: epsilon and K, each {analysis: {mean, sd, ci95}}, plus the bias.
-    assert document["schema"] == "planner.simulate/1"
+    assert document["schema"] == "planner.simulate/2"
     for quantity in ("epsilon", "K"):
-        assert set(document[quantity]) == {"taught", "exact"}
+        assert set(document[quantity]) == {"all_bound", "global_fit"}
         for analysis in document[quantity].values():
             assert set(analysis) == {"mean", "sd", "ci95"}
             low, high = analysis["ci95"]
             assert low < analysis["mean"] < high
             assert analysis["sd"] > 0
     bias = document["K_bias_from_assumption"]
-    assert bias == pytest.approx(document["K"]["taught"]["mean"] / document["K_true"] - 1)
+    assert bias == pytest.approx(document["K"]["all_bound"]["mean"] / document["K_true"] - 1)
     assert document["trials"] == 400
     assert document["seed"] == 3
 
@@ -66,7 +66,7 @@ def test_same_seed_same_bytes():
 def test_text_output():
     result = run("simulate", "--trials", "300")
     assert result.exit_code == 0, result.stderr
-    for expected in ("taught", "exact", "Uncertainty budget", "all-bound assumption"):
+    for expected in ("all-bound", "global fit", "Uncertainty budget", "against the true K"):
         assert expected in result.stdout
     assert result.stderr == ""  # no progress bar below 20000 trials, nothing else either
 
@@ -155,3 +155,14 @@ def test_the_largest_seed_is_accepted():
     result = run("simulate", "--trials", "20", "--seed", str(2**32 - 1), "--format", "json")
     assert result.exit_code == 0, result.stderr
     assert json.loads(result.stdout)["seed"] == 2**32 - 1
+
+
+def test_no_screen_or_document_says_taught():
+    # Issue 10: the two analyses are the all-bound analysis and the global fit everywhere.
+    text = run("simulate", "--trials", "300").stdout
+    document = run("simulate", "--trials", "300", "--format", "json").stdout
+    for output in (text, document):
+        assert "taught" not in output.lower()
+        assert "exact" not in output.lower()
+    assert '"all_bound"' in document
+    assert '"global_fit"' in document

@@ -2,7 +2,7 @@
 
 The plan under test is the embedded default scenario (``planner/data/default.toml``, invented
 for this project), designed by :func:`planner.pipeline.design_plan`, written as the
-``planner.plan/1`` document and read back with :func:`planner.resultfile.parse_result`. The
+``planner.plan/2`` document and read back with :func:`planner.resultfile.parse_result`. The
 broken plans are copies of that document edited the way a person editing ``plan.json`` by
 hand would. Every edited number is derived from the plan's own recipe, and every expected
 number says where it comes from; none is computed by the verifier under test.

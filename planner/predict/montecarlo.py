@@ -67,7 +67,7 @@ __all__ = [
     "Simulation",
     "Summary",
     "coverage_interval",
-    "exact_fit_least_squares",
+    "global_fit_least_squares",
     "largest_trials",
     "simulate",
 ]
@@ -126,7 +126,7 @@ class AnalysisSummary:
     epsilon
         Molar absorptivity of the coloured product [L mol⁻¹ cm⁻¹].
     K
-        Formation constant (mean over the tests for the taught analysis) [L/mol].
+        Formation constant (mean over the tests for the all-bound analysis) [L/mol].
     """
 
     epsilon: Summary
@@ -141,10 +141,10 @@ class Simulation:
     ----------
     trials
         Number of trials (benches) simulated.
-    taught, exact
+    all_bound, global_fit
         The two analyses.
     K_bias_from_assumption
-        Relative bias of the taught analysis's mean K against the true K [unitless].
+        Relative bias of the all-bound analysis's mean K against the true K [unitless].
     K_true, epsilon_true
         What the plan assumes [L/mol], [L mol⁻¹ cm⁻¹].
     mixture_ids
@@ -154,19 +154,19 @@ class Simulation:
     test_ids
         Test mixtures in plan order.
     K_per_test
-        Distribution of each test's K under the taught analysis [L/mol].
-    exact_failed
-        Trials whose exact fit did not converge inside the tabulated range (left out of the
-        exact analysis's statistics).
-    K_taught, K_exact, epsilon_taught, epsilon_exact
+        Distribution of each test's K under the all-bound analysis [L/mol].
+    global_fit_failed
+        Trials whose global fit did not converge inside the tabulated range (left out of the
+        global fit's statistics).
+    K_all_bound, K_global_fit, epsilon_all_bound, epsilon_global_fit
         Every trial's value, shape (trials,); NaN where a fit failed.
     trial_readings
         Every trial's readings, shape (trials, n_mixtures) [unitless].
     """
 
     trials: int
-    taught: AnalysisSummary
-    exact: AnalysisSummary
+    all_bound: AnalysisSummary
+    global_fit: AnalysisSummary
     K_bias_from_assumption: float
     K_true: float
     epsilon_true: float
@@ -174,11 +174,11 @@ class Simulation:
     readings: tuple[Summary, ...]
     test_ids: tuple[str, ...]
     K_per_test: tuple[Summary, ...]
-    exact_failed: int
-    K_taught: NDArray[np.float64]
-    K_exact: NDArray[np.float64]
-    epsilon_taught: NDArray[np.float64]
-    epsilon_exact: NDArray[np.float64]
+    global_fit_failed: int
+    K_all_bound: NDArray[np.float64]
+    K_global_fit: NDArray[np.float64]
+    epsilon_all_bound: NDArray[np.float64]
+    epsilon_global_fit: NDArray[np.float64]
     trial_readings: NDArray[np.float64]
 
 
@@ -301,7 +301,7 @@ def _simulate_readings(
     return result
 
 
-def exact_fit_least_squares(
+def global_fit_least_squares(
     inputs: PlanInputs, mixtures: Sequence[Mixture], readings: NDArray[np.float64]
 ) -> tuple[float, float]:
     """The global fit of one bench's readings by :func:`planner.analysis.global_fit`.
@@ -349,7 +349,7 @@ def simulate(
     trials: int,
     rng: np.random.Generator,
     progress: Progress | None = None,
-    exact: bool = True,
+    global_fit: bool = True,
 ) -> Simulation:
     """Run the virtual class.
 
@@ -366,8 +366,8 @@ def simulate(
         The only source of randomness; a generator from the user's seed.
     progress
         Called as ``progress(done, trials)`` after every chunk of :data:`CHUNK_TRIALS`.
-    exact
-        Also run the exact analysis (False leaves its values NaN: the taught analysis alone,
+    global_fit
+        Also run the global fit (False leaves its values NaN: the all-bound analysis alone,
         for timing or a quick look).
 
     Returns
@@ -409,12 +409,12 @@ def simulate(
     b = ex.path_length_cm
     n_mix = len(ex.mixture_ids)
     readings = np.empty((trials, n_mix))
-    eps_taught = np.empty(trials)
-    k_taught = np.empty(trials)
+    eps_all_bound = np.empty(trials)
+    k_all_bound = np.empty(trials)
     k_tests = np.empty((trials, ex.tests.size))
-    eps_exact = np.empty(trials)
-    k_exact = np.empty(trials)
-    table = global_fit_table(inputs.reaction, inputs.instrument, layout) if exact else None
+    eps_global_fit = np.empty(trials)
+    k_global_fit = np.empty(trials)
+    table = global_fit_table(inputs.reaction, inputs.instrument, layout) if global_fit else None
     offset = (
         global_fit_start_offset(table, layout, inputs.instrument, ex.readings)
         if table is not None
@@ -429,35 +429,35 @@ def simulate(
         with np.errstate(invalid="ignore"):
             k_mean = k.mean(axis=1)
         readings[chunk] = a
-        eps_taught[chunk] = eps
-        k_taught[chunk] = k_mean
+        eps_all_bound[chunk] = eps
+        k_all_bound[chunk] = k_mean
         k_tests[chunk] = k
         if table is not None:
             starts = global_fit_starts(table, layout, eps, k_mean, offset)
-            eps_exact[chunk], k_exact[chunk] = global_fit_batch(
+            eps_global_fit[chunk], k_global_fit[chunk] = global_fit_batch(
                 table, layout, inputs.instrument, net, starts
             )
         else:
-            eps_exact[chunk] = k_exact[chunk] = np.nan
+            eps_global_fit[chunk] = k_global_fit[chunk] = np.nan
         if progress is not None:
             progress(start + n, trials)
-    taught = AnalysisSummary(epsilon=_summary(eps_taught), K=_summary(k_taught))
-    fitted = AnalysisSummary(epsilon=_summary(eps_exact), K=_summary(k_exact))
+    all_bound = AnalysisSummary(epsilon=_summary(eps_all_bound), K=_summary(k_all_bound))
+    fitted = AnalysisSummary(epsilon=_summary(eps_global_fit), K=_summary(k_global_fit))
     return Simulation(
         trials=trials,
-        taught=taught,
-        exact=fitted,
-        K_bias_from_assumption=taught.K.mean / ex.K_true - 1.0,
+        all_bound=all_bound,
+        global_fit=fitted,
+        K_bias_from_assumption=all_bound.K.mean / ex.K_true - 1.0,
         K_true=ex.K_true,
         epsilon_true=ex.epsilon_true,
         mixture_ids=ex.mixture_ids,
         readings=tuple(_summary(readings[:, m]) for m in range(n_mix)),
         test_ids=tuple(ex.mixture_ids[i] for i in ex.tests),
         K_per_test=tuple(_summary(k_tests[:, i]) for i in range(ex.tests.size)),
-        exact_failed=int(np.count_nonzero(~np.isfinite(k_exact))) if exact else 0,
-        K_taught=k_taught,
-        K_exact=k_exact,
-        epsilon_taught=eps_taught,
-        epsilon_exact=eps_exact,
+        global_fit_failed=int(np.count_nonzero(~np.isfinite(k_global_fit))) if global_fit else 0,
+        K_all_bound=k_all_bound,
+        K_global_fit=k_global_fit,
+        epsilon_all_bound=eps_all_bound,
+        epsilon_global_fit=eps_global_fit,
         trial_readings=readings,
     )

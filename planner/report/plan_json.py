@@ -1,4 +1,4 @@
-"""The plan result as a JSON document, schema ``planner.plan/1`` (DESIGN.md section 5).
+"""The plan result as a JSON document, schema ``planner.plan/2`` (DESIGN.md section 5).
 
 Numbers keep full float precision; :func:`plan_json` serialises with sorted keys through
 :func:`planner.report.jsonout.dumps`. Besides the keys of the contract, the document carries
@@ -15,7 +15,7 @@ from planner.result import CHECK_STATUSES, Addition, Check, Mixture, Plan, Predi
 __all__ = ["SCHEMA", "checks_worst_first", "plan_document", "plan_json"]
 
 #: Schema name and version of the document.
-SCHEMA = "planner.plan/1"
+SCHEMA = "planner.plan/2"
 
 
 def checks_worst_first(checks: tuple[Check, ...]) -> tuple[Check, ...]:

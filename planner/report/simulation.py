@@ -1,8 +1,8 @@
 """The virtual class and its uncertainty budget, for people (rich) and programs (JSON).
 
 :func:`simulation_document` is the ``planner simulate --format json`` document, schema
-``planner.simulate/1``: ``epsilon`` and ``K``, each ``{analysis: {mean, sd, ci95}}`` for the
-analyses ``taught`` and ``exact``, and ``K_bias_from_assumption`` (relative), plus the
+``planner.simulate/2``: ``epsilon`` and ``K``, each ``{analysis: {mean, sd, ci95}}`` for the
+analyses ``all_bound`` and ``global_fit``, and ``K_bias_from_assumption`` (relative), plus the
 first-order budget, per-mixture and per-test ranges and the Monte Carlo details.
 :func:`render_simulation` builds the terminal tables. Nothing here writes anything.
 """
@@ -25,11 +25,11 @@ from planner.report.jsonout import dumps
 __all__ = ["SCHEMA", "render_simulation", "simulation_document", "simulation_json"]
 
 #: Schema name and version of the document.
-SCHEMA = "planner.simulate/1"
+SCHEMA = "planner.simulate/2"
 #: Budget rows shown in the terminal (the JSON holds them all).
 TERMINAL_BUDGET_ROWS = 8
 
-_EXACT_METHOD = (
+_GLOBAL_FIT_METHOD = (
     "global least-squares fit of eps and K with the full equilibrium model, every trial, by a "
     "vectorised Levenberg-Marquardt iteration on the model tabulated over log10 K "
     "(checked against scipy.optimize.least_squares)"
@@ -90,22 +90,25 @@ def simulation_document(
     Returns
     -------
     dict
-        ``schema``, ``title``, ``trials``, ``seed``, ``epsilon`` and ``K`` (``taught`` and
-        ``exact``, each ``mean``, ``sd``, ``ci95``), ``K_bias_from_assumption``, ``K_true``,
+        ``schema``, ``title``, ``trials``, ``seed``, ``epsilon`` and ``K`` (``all_bound`` and
+        ``global_fit``, each ``mean``, ``sd``, ``ci95``), ``K_bias_from_assumption``, ``K_true``,
         ``epsilon_true``, ``gum`` (value, u, 95 % interval and budget of ``epsilon``,
         ``epsilon_intercept`` and ``K``), ``mixtures`` (each reading's distribution and
         first-order u), ``K_per_test`` and ``monte_carlo`` (standard errors of the means,
-        failed exact fits, chunk size, method). A value no trial gave is ``null``.
+        failed global fits, chunk size, method). A value no trial gave is ``null``.
     """
-    taught, exact = simulation.taught, simulation.exact
+    all_bound, global_fit = simulation.all_bound, simulation.global_fit
     by_id = {m.id: m for m in gum.mixtures}
     return {
         "schema": SCHEMA,
         "title": title,
         "trials": simulation.trials,
         "seed": seed,
-        "epsilon": {"taught": _summary(taught.epsilon), "exact": _summary(exact.epsilon)},
-        "K": {"taught": _summary(taught.K), "exact": _summary(exact.K)},
+        "epsilon": {
+            "all_bound": _summary(all_bound.epsilon),
+            "global_fit": _summary(global_fit.epsilon),
+        },
+        "K": {"all_bound": _summary(all_bound.K), "global_fit": _summary(global_fit.K)},
         "K_bias_from_assumption": _number(simulation.K_bias_from_assumption),
         "K_true": simulation.K_true,
         "epsilon_true": simulation.epsilon_true,
@@ -124,23 +127,23 @@ def simulation_document(
             for mixture_id, summary in zip(simulation.mixture_ids, simulation.readings, strict=True)
         ],
         "K_per_test": [
-            {"id": test_id, "taught": _summary(summary)}
+            {"id": test_id, "all_bound": _summary(summary)}
             for test_id, summary in zip(simulation.test_ids, simulation.K_per_test, strict=True)
         ],
         "monte_carlo": {
             "standard_error_of_mean": {
                 "epsilon": {
-                    "taught": _number(taught.epsilon.standard_error),
-                    "exact": _number(exact.epsilon.standard_error),
+                    "all_bound": _number(all_bound.epsilon.standard_error),
+                    "global_fit": _number(global_fit.epsilon.standard_error),
                 },
                 "K": {
-                    "taught": _number(taught.K.standard_error),
-                    "exact": _number(exact.K.standard_error),
+                    "all_bound": _number(all_bound.K.standard_error),
+                    "global_fit": _number(global_fit.K.standard_error),
                 },
             },
-            "exact_failed": simulation.exact_failed,
+            "global_fit_failed": simulation.global_fit_failed,
             "chunk_trials": CHUNK_TRIALS,
-            "exact_method": _EXACT_METHOD,
+            "global_fit_method": _GLOBAL_FIT_METHOD,
         },
     }
 
@@ -173,7 +176,10 @@ def _results_table(simulation: Simulation, gum: UncertaintyResult) -> Table:
     table.add_column("K mean", justify="right")
     table.add_column("sd", justify="right")
     table.add_column("K 95 %", justify="right")
-    for name, analysis in (("taught", simulation.taught), ("exact", simulation.exact)):
+    for name, analysis in (
+        ("all-bound", simulation.all_bound),
+        ("global fit", simulation.global_fit),
+    ):
         table.add_row(
             name,
             _text(analysis.epsilon.mean),
@@ -184,7 +190,7 @@ def _results_table(simulation: Simulation, gum: UncertaintyResult) -> Table:
             _interval(analysis.K.ci95),
         )
     table.add_row(
-        "taught, GUM",
+        "all-bound, GUM",
         _text(gum.epsilon.value),
         _text(gum.epsilon.standard_uncertainty, 2),
         _interval(gum.epsilon.ci95),
@@ -194,9 +200,10 @@ def _results_table(simulation: Simulation, gum: UncertaintyResult) -> Table:
         style="dim",
     )
     table.caption = (
-        "eps in L mol⁻¹ cm⁻¹, K in L/mol. taught: limiting reagent assumed fully bound in the "
-        "standards, curve through the origin, 1:1 K averaged over the tests; exact: global "
-        "fit with the equilibrium model; GUM: first-order prediction of the taught analysis."
+        "eps in L mol⁻¹ cm⁻¹, K in L/mol. all-bound: limiting reagent assumed fully bound in the "
+        "standards, curve through the origin, 1:1 K averaged over the tests; global fit: eps "
+        "and K fitted together with the full equilibrium model; GUM: first-order prediction of "
+        "the all-bound analysis."
     )
     table.caption_justify = "left"
     return table
@@ -268,11 +275,11 @@ def render_simulation(
     Returns
     -------
     rich renderable
-        The results per analysis, the bias of the taught analysis, and the first-order
+        The results per analysis, the bias of the all-bound analysis, and the first-order
         budgets of K and eps (largest contributors first; ``--format json`` lists every
         contributor with its coefficient's full formula).
     """
-    bias = Text("Bias of the taught K from the all-bound assumption: ", style="bold")
+    bias = Text("Bias of the all-bound K against the true K: ", style="bold")
     bias.append(
         f"{percent(simulation.K_bias_from_assumption, 3, signed=True)}"
         if math.isfinite(simulation.K_bias_from_assumption)
@@ -284,15 +291,17 @@ def render_simulation(
         style="",
     )
     parts: list[RenderableType] = [_results_table(simulation, gum), bias]
-    if simulation.exact_failed:
+    if simulation.global_fit_failed:
         parts.append(
             Text(
-                f"{simulation.exact_failed} exact fit(s) did not converge and are left out.",
+                f"{simulation.global_fit_failed} global fit(s) did not converge and are left out.",
                 style="yellow",
             )
         )
-    parts.append(_budget_table(gum.K, "the mean K (taught)", formulas=formulas))
-    parts.append(_budget_table(gum.epsilon, "eps (taught, through the origin)", formulas=formulas))
+    parts.append(_budget_table(gum.K, "the mean K (all-bound)", formulas=formulas))
+    parts.append(
+        _budget_table(gum.epsilon, "eps (all_bound, through the origin)", formulas=formulas)
+    )
     if not formulas:
         parts.append(
             Text(

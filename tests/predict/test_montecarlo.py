@@ -19,7 +19,7 @@ from planner.predict.montecarlo import (
     MAX_TRIALS,
     MEMORY_BUDGET_BYTES,
     coverage_interval,
-    exact_fit_least_squares,
+    global_fit_least_squares,
     largest_trials,
     simulate,
 )
@@ -63,17 +63,17 @@ def test_gum_and_monte_carlo_agree_where_near_linear(default_plan, default_simul
     # Issue 4: within 10 %. (Measured: 1 % for eps, 1 % for K.) With 20000 trials the SD
     # itself carries ~0.5 % Monte Carlo error.
     gum = propagate(default_plan.inputs, default_plan.mixtures)
-    taught = default_simulation.taught
-    assert taught.epsilon.sd == pytest.approx(gum.epsilon.standard_uncertainty, rel=0.10)
-    assert taught.K.sd == pytest.approx(gum.K.standard_uncertainty, rel=0.10)
+    all_bound = default_simulation.all_bound
+    assert all_bound.epsilon.sd == pytest.approx(gum.epsilon.standard_uncertainty, rel=0.10)
+    assert all_bound.K.sd == pytest.approx(gum.K.standard_uncertainty, rel=0.10)
     # And the means agree to within the second-order terms (~1e-4 relative).
-    assert taught.epsilon.mean == pytest.approx(gum.epsilon.value, rel=1e-3)
-    assert taught.K.mean == pytest.approx(gum.K.value, rel=1e-3)
+    assert all_bound.epsilon.mean == pytest.approx(gum.epsilon.value, rel=1e-3)
+    assert all_bound.K.mean == pytest.approx(gum.K.value, rel=1e-3)
 
 
-def test_taught_bias_matches_the_bound_fraction_derivation(default_plan):
+def test_all_bound_bias_matches_the_bound_fraction_derivation(default_plan):
     # Hand derivation (issue 4, "Done when"): the standards hold only a fraction f of the
-    # limiting reagent as FeSCN2+, so the curve through the origin gives eps_taught =
+    # limiting reagent as FeSCN2+, so the curve through the origin gives eps_all_bound =
     # eps * f_bar, with f_bar = sum(L^2 f) / sum(L^2) (the least-squares weight of each
     # standard). Each test's product is then read as x / f_bar instead of x, and
     # K_i = (x/f_bar) / ((M - x/f_bar)(L - x/f_bar)), averaged over the tests.
@@ -98,23 +98,23 @@ def test_taught_bias_matches_the_bound_fraction_derivation(default_plan):
     expected = float(np.mean(k_hand))
 
     sim = simulate(
-        inputs, default_plan.mixtures, trials=5000, rng=np.random.default_rng(11), exact=False
+        inputs, default_plan.mixtures, trials=5000, rng=np.random.default_rng(11), global_fit=False
     )
     # Within the Monte Carlo error: 3 standard errors of the mean (~0.04 L/mol here), plus
     # the mean's second-order term, which a first-order derivation leaves out: of order
     # (u(K)/K)^2 ~ 1e-4 relative (measured ~0.015 L/mol with 1e5 trials), allowed as 2e-4.
-    tolerance = 3 * sim.taught.K.standard_error + SECOND_ORDER * expected
-    assert abs(sim.taught.K.mean - expected) <= tolerance
-    assert sim.K_bias_from_assumption == pytest.approx(sim.taught.K.mean / K1 - 1.0)
+    tolerance = 3 * sim.all_bound.K.standard_error + SECOND_ORDER * expected
+    assert abs(sim.all_bound.K.mean - expected) <= tolerance
+    assert sim.K_bias_from_assumption == pytest.approx(sim.all_bound.K.mean / K1 - 1.0)
     # positive, and larger than the standards' 4 % shortfall alone (the 1:1 K amplifies it)
     assert sim.K_bias_from_assumption > 1.0 - f_bar
 
 
-def test_taught_bias_with_stray_light(default_plan):
+def test_all_bound_bias_with_stray_light(default_plan):
     # The same derivation on the unmodified default plan, with every reading passed through
     # the stray-light response A_obs = log10((1 + s)/(10^-A + s)) (Skoog, Holler and Crouch,
     # Principles of Instrumental Analysis, 7th ed., 2017, section 13B-2, from memory) before
-    # the taught analysis: eps_taught = sum(L A_obs) / (b sum L^2), x = A_obs / (b eps_taught).
+    # the all-bound analysis: eps = sum(L A_obs) / (b sum L^2), x = A_obs / (b eps).
     s = default_plan.inputs.instrument.stray_light
     b = default_plan.inputs.instrument.path_length_cm
 
@@ -129,36 +129,38 @@ def test_taught_bias_with_stray_light(default_plan):
             for m in standards
         ]
     )
-    eps_taught = (l_std * a_std).sum() / (b * (l_std**2).sum())
+    eps_all_bound = (l_std * a_std).sum() / (b * (l_std**2).sum())
     k_hand = []
     for m in default_plan.by_role("test"):
         iron, thiocyanate = m.initial_M["Fe3+"], m.initial_M["SCN-"]
-        x = observed(b * EPSILON * _complex_M(iron, thiocyanate)) / (b * eps_taught)
+        x = observed(b * EPSILON * _complex_M(iron, thiocyanate)) / (b * eps_all_bound)
         k_hand.append(x / ((iron - x) * (thiocyanate - x)))
     sim = simulate(
         default_plan.inputs,
         default_plan.mixtures,
         trials=5000,
         rng=np.random.default_rng(12),
-        exact=False,
+        global_fit=False,
     )
     # Tolerances as in the previous test: 3 standard errors plus the second-order term.
     expected = float(np.mean(k_hand))
-    tolerance = 3 * sim.taught.K.standard_error + SECOND_ORDER * expected
-    assert abs(sim.taught.K.mean - expected) <= tolerance
-    tolerance = 3 * sim.taught.epsilon.standard_error + SECOND_ORDER * eps_taught
-    assert abs(sim.taught.epsilon.mean - eps_taught) <= tolerance
+    tolerance = 3 * sim.all_bound.K.standard_error + SECOND_ORDER * expected
+    assert abs(sim.all_bound.K.mean - expected) <= tolerance
+    tolerance = 3 * sim.all_bound.epsilon.standard_error + SECOND_ORDER * eps_all_bound
+    assert abs(sim.all_bound.epsilon.mean - eps_all_bound) <= tolerance
 
 
 def test_exact_analysis_recovers_true_constants(default_simulation):
-    # The exact fit uses the full equilibrium model, so it is unbiased to first order: the
+    # The global fit uses the full equilibrium model, so it is unbiased to first order: the
     # true K (98 L/mol) and eps (4700) lie within one SD of its mean (issue 4, "Done when").
-    exact = default_simulation.exact
-    assert default_simulation.exact_failed == 0
-    assert abs(exact.K.mean - K1) <= exact.K.sd
-    assert abs(exact.epsilon.mean - EPSILON) <= exact.epsilon.sd
+    global_fit = default_simulation.global_fit
+    assert default_simulation.global_fit_failed == 0
+    assert abs(global_fit.K.mean - K1) <= global_fit.K.sd
+    assert abs(global_fit.epsilon.mean - EPSILON) <= global_fit.epsilon.sd
     # Tighter: within 3 Monte Carlo standard errors plus the second-order term.
-    assert exact.K.mean == pytest.approx(K1, abs=3 * exact.K.standard_error + SECOND_ORDER * K1)
+    assert global_fit.K.mean == pytest.approx(
+        K1, abs=3 * global_fit.K.standard_error + SECOND_ORDER * K1
+    )
 
 
 def test_vectorised_exact_fit_matches_least_squares(default_plan):
@@ -168,9 +170,9 @@ def test_vectorised_exact_fit_matches_least_squares(default_plan):
     )
     for trial in range(3):
         readings = sim.trial_readings[trial]
-        eps, k = exact_fit_least_squares(default_plan.inputs, default_plan.mixtures, readings)
-        assert sim.epsilon_exact[trial] == pytest.approx(eps, rel=1e-7)
-        assert sim.K_exact[trial] == pytest.approx(k, rel=1e-7)
+        eps, k = global_fit_least_squares(default_plan.inputs, default_plan.mixtures, readings)
+        assert sim.epsilon_global_fit[trial] == pytest.approx(eps, rel=1e-7)
+        assert sim.K_global_fit[trial] == pytest.approx(k, rel=1e-7)
 
 
 def test_same_seed_same_result(default_plan):
@@ -183,10 +185,10 @@ def test_same_seed_same_result(default_plan):
         )
 
     first, second, other = run(7), run(7), run(8)
-    assert np.array_equal(first.K_taught, second.K_taught)
-    assert np.array_equal(first.K_exact, second.K_exact, equal_nan=True)
-    assert first.taught == second.taught
-    assert not np.array_equal(first.K_taught, other.K_taught)
+    assert np.array_equal(first.K_all_bound, second.K_all_bound)
+    assert np.array_equal(first.K_global_fit, second.K_global_fit, equal_nan=True)
+    assert first.all_bound == second.all_bound
+    assert not np.array_equal(first.K_all_bound, other.K_all_bound)
 
 
 def test_progress_reports_every_chunk(default_plan):
@@ -197,7 +199,7 @@ def test_progress_reports_every_chunk(default_plan):
         trials=CHUNK_TRIALS + 10,
         rng=np.random.default_rng(1),
         progress=lambda done, total: calls.append((done, total)),
-        exact=False,
+        global_fit=False,
     )
     assert calls == [(CHUNK_TRIALS, CHUNK_TRIALS + 10), (CHUNK_TRIALS + 10, CHUNK_TRIALS + 10)]
 
@@ -216,8 +218,8 @@ def test_piston_and_flask_plans_run(piston_plan, flask_plan):
         sim = simulate(plan.inputs, plan.mixtures, trials=2000, rng=np.random.default_rng(3))
         gum = propagate(plan.inputs, plan.mixtures)
         # 2000 trials: the SD carries ~1.6 % Monte Carlo error; the issue's 10 % holds.
-        assert sim.taught.K.sd == pytest.approx(gum.K.standard_uncertainty, rel=0.10)
-        assert sim.exact_failed == 0
+        assert sim.all_bound.K.sd == pytest.approx(gum.K.standard_uncertainty, rel=0.10)
+        assert sim.global_fit_failed == 0
 
 
 def test_coverage_interval_rule():

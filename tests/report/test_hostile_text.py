@@ -416,7 +416,7 @@ def test_terminal_prints_rich_markup_literally(hostile):
 
 def test_simulation_budget_prints_stock_ids_literally(hostile):
     result = simulate(
-        hostile.inputs, hostile.mixtures, trials=200, rng=np.random.default_rng(1), exact=False
+        hostile.inputs, hostile.mixtures, trials=200, rng=np.random.default_rng(1), global_fit=False
     )
     gum = propagate(hostile.inputs, hostile.mixtures)
     text = _terminal(render_simulation(result, gum, formulas=True), width=400)

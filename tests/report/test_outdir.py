@@ -80,7 +80,7 @@ def test_plan_files_one_sheet_per_bench(plan):
     assert "Section 2 of 2" in files["benches/section-02-bench-03.md"]
     assert "Bench 3 of 3" in files["benches/section-02-bench-03.md"]
     assert files["bench-sheets.html"].count('<section class="page">') == 6
-    assert json.loads(files["plan.json"])["schema"] == "planner.plan/1"
+    assert json.loads(files["plan.json"])["schema"] == "planner.plan/2"
     assert DATE in files["prep-sheet.md"]
 
 

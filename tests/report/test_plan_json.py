@@ -50,7 +50,7 @@ PREDICTION_KEYS = {
 def test_document_has_every_contract_key(plan):
     document = json.loads(plan_json(plan))
     assert set(document) == TOP_KEYS
-    assert document["schema"] == SCHEMA == "planner.plan/1"
+    assert document["schema"] == SCHEMA == "planner.plan/2"
     assert document["title"] == plan.inputs.title
     assert [m["id"] for m in document["mixtures"]] == ["B1", "S1", "S2", "T1", "T2"]
     for mixture in document["mixtures"]:

@@ -43,7 +43,7 @@ def _finite(values: NDArray[np.float64]) -> NDArray[np.float64]:
 
 
 def histogram_figure(simulation: Simulation, quantity: Literal["K", "epsilon"] = "K") -> Figure:
-    """Histogram of K or of eps over the virtual class, taught and exact analyses.
+    """Histogram of K or of eps over the virtual class, all-bound and global-fit analyses.
 
     Parameters
     ----------
@@ -56,23 +56,23 @@ def histogram_figure(simulation: Simulation, quantity: Literal["K", "epsilon"] =
     Returns
     -------
     Figure
-        One axes: the quantity on x, benches per bin on y; the taught analysis filled
-        (``gid`` ``taught``), the exact fit as a hatched outline (``exact``), the true value as
-        a dashed line (``true``), and each analysis's 95 % interval as a bar along the top; the
-        legend sits below the axes so it never hides the data.
+        One axes: the quantity on x, benches per bin on y; the all-bound analysis filled
+        (``gid`` ``all_bound``), the global fit as a hatched outline (``global_fit``), the
+        true value as a dashed line (``true``), and each analysis's 95 % interval as a bar
+        along the top; the legend sits below the axes so it never hides the data.
     """
     if quantity == "K":
-        taught, exact = _finite(simulation.K_taught), _finite(simulation.K_exact)
+        all_bound, global_fit = _finite(simulation.K_all_bound), _finite(simulation.K_global_fit)
         true_value = simulation.K_true
-        summaries: tuple[Summary, Summary] = (simulation.taught.K, simulation.exact.K)
+        summaries: tuple[Summary, Summary] = (simulation.all_bound.K, simulation.global_fit.K)
         symbol, unit = "K", "L/mol"
     else:
-        taught = _finite(simulation.epsilon_taught)
-        exact = _finite(simulation.epsilon_exact)
+        all_bound = _finite(simulation.epsilon_all_bound)
+        global_fit = _finite(simulation.epsilon_global_fit)
         true_value = simulation.epsilon_true
-        summaries = (simulation.taught.epsilon, simulation.exact.epsilon)
+        summaries = (simulation.all_bound.epsilon, simulation.global_fit.epsilon)
         symbol, unit = "ε", "L mol⁻¹ cm⁻¹"
-    both = np.concatenate([taught, exact]) if exact.size else taught
+    both = np.concatenate([all_bound, global_fit]) if global_fit.size else all_bound
     low, high = (float(v) for v in np.quantile(both, [0.0005, 0.9995]))
     low, high = min(low, true_value), max(high, true_value)
     pad = 0.03 * (high - low) if high > low else 1.0
@@ -81,25 +81,25 @@ def histogram_figure(simulation: Simulation, quantity: Literal["K", "epsilon"] =
     with _style():
         figure, axes = _new_figure(3.9)
         axes.hist(
-            taught,
+            all_bound,
             bins=bins,
             color=_TEAL,
             edgecolor=_TEAL,
             alpha=0.85,
-            gid="taught",
-            label=f"taught analysis (mean {significant(summaries[0].mean, 4)} {unit})",
+            gid="all_bound",
+            label=f"all-bound analysis (mean {significant(summaries[0].mean, 4)} {unit})",
         )
-        if exact.size:
+        if global_fit.size:
             axes.hist(
-                exact,
+                global_fit,
                 bins=bins,
                 histtype="step",
                 color=_OCHRE,
                 linewidth=2.0,
                 hatch="///",
                 fill=False,
-                gid="exact",
-                label=f"exact fit (mean {significant(summaries[1].mean, 4)} {unit})",
+                gid="global_fit",
+                label=f"global fit (mean {significant(summaries[1].mean, 4)} {unit})",
             )
         axes.axvline(
             true_value,
@@ -111,8 +111,8 @@ def histogram_figure(simulation: Simulation, quantity: Literal["K", "epsilon"] =
         )
         top = axes.get_ylim()[1]
         for summary, colour, height, name in (
-            (summaries[0], _TEAL, 1.04, "taught"),
-            (summaries[1], _OCHRE, 1.09, "exact"),
+            (summaries[0], _TEAL, 1.04, "all_bound"),
+            (summaries[1], _OCHRE, 1.09, "global_fit"),
         ):
             if summary.valid:
                 axes.plot(
