@@ -820,9 +820,9 @@ def _designed_default():
 
 @contextlib.contextmanager
 def _one_design():
-    """planner.design.plan.design_plan answers at once with the default plan, designed once."""
+    """planner.pipeline.design_plan answers at once with the default plan, designed once."""
     designed = _designed_default()
-    with mock.patch("planner.design.plan.design_plan", return_value=designed):
+    with mock.patch("planner.pipeline.design_plan", return_value=designed):
         yield
 
 
@@ -869,9 +869,9 @@ def test_variants_answers_any_sections_and_seed(sections, seed, sections_text, s
         out = Path(folder) / "variants"
         args = ["variants", recipe, "--sections", sections_arg, "--seed", seed_arg]
         args += ["--out", str(out), "-q"]
-        # planner.design.variants imported its helpers by name: patch its copies.
+        # The pipeline hands variants its design_plan; variants imported candidate_set by name.
         with (
-            mock.patch("planner.design.variants.design_plan", return_value=_designed_default()),
+            mock.patch("planner.pipeline.design_plan", return_value=_designed_default()),
             mock.patch("planner.design.variants.candidate_set", return_value=mock.Mock(size=4)),
         ):
             result = runner.invoke(app, args, catch_exceptions=False)
