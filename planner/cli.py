@@ -628,21 +628,25 @@ def variants(
                 np.random.default_rng(seed),
                 progress=lambda done, total: progress.update(task, completed=done),
             )
-        if not found.plans:
+        if not found.plans or found.combined is None:
             _tell(found.reason, heading="no variants:", style="bold red")
             return EXIT_CHECK_FAILED
         write_output_folder(
             out,
-            variants_files(found.plans, date=sheet_date, seed=seed),
+            variants_files(found.plans, combined=found.combined, date=sheet_date, seed=seed),
             force=force,
             protect=_reads(file),
         )
         if not quiet:
             _tell(f"wrote {len(found.plans)} section folder(s) and an index to {out}/")
+        session_failed = [c for c in found.combined.checks if c.status == "fail"]
+        for check in session_failed:
+            # Each section may pass while the session as a whole does not (stock too short).
+            _tell(check.detail, heading=f"{check.name}:", style="bold red")
         if not found.complete:
             _tell(found.reason, heading=f"only {len(found.plans)} of {sections}:", style="bold red")
             return EXIT_CHECK_FAILED
-        return EXIT_OK
+        return EXIT_CHECK_FAILED if session_failed else EXIT_OK
 
     code = _run(body)
     if code:

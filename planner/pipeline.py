@@ -29,7 +29,13 @@ from planner.design.variants import VariantSet
 from planner.inputs import PlanInputs
 from planner.result import Check, Mixture, Plan, Prediction, UncertaintyResult
 
-__all__ = ["design_plan", "design_variants", "meaningless_numbers", "predict_mixtures"]
+__all__ = [
+    "combined_plan",
+    "design_plan",
+    "design_variants",
+    "meaningless_numbers",
+    "predict_mixtures",
+]
 
 #: Name of the check that a plan's predicted numbers mean something.
 PREDICTION_CHECK = "prediction-meaningful"
@@ -210,7 +216,47 @@ def design_variants(
     :func:`planner.design.variants.design_variants`), each made by :func:`design_plan`."""
     from planner.design import variants
 
-    def make(one: PlanInputs, candidates: CandidateSet, allowed: NDArray[np.bool_] | None) -> Plan:
-        return design_plan(one, candidates=candidates, allowed=allowed)
+    found = variants.design_variants(inputs, sections, rng, _make_section_plan, progress)
+    if not found.plans:
+        return found
+    return dataclasses.replace(found, combined=combined_plan(found.plans))
 
-    return variants.design_variants(inputs, sections, rng, make, progress)
+
+def _make_section_plan(
+    one: PlanInputs, candidates: CandidateSet, allowed: NDArray[np.bool_] | None
+) -> Plan:
+    return design_plan(one, candidates=candidates, allowed=allowed)
+
+
+def combined_plan(plans: tuple[Plan, ...]) -> Plan:
+    """A plan standing for every section together, for the combined prep-room sheet.
+
+    Its session counts all sections, its totals are the sections' totals added up, its
+    preparation is made for those totals, and its checks are each section's checks that did
+    not pass, prefixed with the section, followed by ``stock-inventory`` on the combined totals
+    (each section may fit the stock on the shelf while the whole session does not).
+    """
+    from planner.design.logistics import combined_totals, preparations
+    from planner.verify import inventory_check
+
+    first = plans[0]
+    inputs = dataclasses.replace(
+        first.inputs, session=dataclasses.replace(first.inputs.session, sections=len(plans))
+    )
+    totals = combined_totals([p.totals for p in plans])
+    session = inventory_check(inputs, totals)
+    sections = [
+        Check(c.name, c.status, f"section {n}: {c.detail}")
+        for n, p in enumerate(plans, start=1)
+        for c in p.checks
+        if c.status != "pass"
+    ]
+    whole = Check(session.name, session.status, f"all sections together: {session.detail}")
+    checks = (*sections, whole)
+    return dataclasses.replace(
+        first,
+        inputs=inputs,
+        totals=totals,
+        preparations=preparations(inputs, totals),
+        checks=checks,
+    )

@@ -36,7 +36,13 @@ from planner.lab.photometer import observed_absorbance, true_absorbance
 from planner.result import Check, Mixture, Prediction, StockPreparation, Totals
 from planner.verify_prediction import RecomputedPrediction, recompute_prediction, vessel_flask
 
-__all__ = ["CHECK_NAMES", "RESULT_CHECK_NAMES", "verify_plan", "verify_result"]
+__all__ = [
+    "CHECK_NAMES",
+    "RESULT_CHECK_NAMES",
+    "inventory_check",
+    "verify_plan",
+    "verify_result",
+]
 
 #: Stable names of the checks of :func:`verify_plan`, in the order they are run.
 CHECK_NAMES = (
@@ -810,6 +816,13 @@ def _stock_totals(inputs: PlanInputs, mixtures: Sequence[Mixture], totals: Total
         f"per-bench totals x {session.sets} sets, + {100 * session.margin:g} % margin and "
         f"{session.dead_volume_mL:g} mL dead volume per bench container",
     )
+
+
+def inventory_check(inputs: PlanInputs, totals: Totals) -> Check:
+    """The ``stock-inventory`` check of some totals: does every stock with an ``available_mL``
+    cover what the totals ask to prepare? (Also run on the combined totals of all sections of
+    ``planner variants``.)"""
+    return _inventory(inputs, totals)
 
 
 def _inventory(inputs: PlanInputs, totals: Totals) -> Check:

@@ -70,12 +70,16 @@ class VariantSet:
         allow more.
     objectives
         Each section's design objective (predicted relative SD of mean K) [unitless].
+    combined
+        A plan standing for every section together (the whole session's totals and
+        preparation, and its checks), filled by :func:`planner.pipeline.design_variants`.
     """
 
     plans: tuple[Plan, ...]
     requested: int
     reason: str
     objectives: tuple[float, ...]
+    combined: Plan | None = None
 
     @property
     def complete(self) -> bool:

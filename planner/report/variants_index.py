@@ -2,18 +2,16 @@
 
 from __future__ import annotations
 
-import dataclasses
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from planner.design.logistics import combined_totals, preparations
 from planner.report._format import percent, significant
 from planner.report.cautions import cautions_for
 from planner.report.outdir import plan_files
 from planner.report.sheets import _render, prep_sheet_html, prep_sheet_md
-from planner.result import Check, Plan
+from planner.result import Plan
 
-__all__ = ["combined_plan", "variants_files"]
+__all__ = ["variants_files"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -25,42 +23,19 @@ class _SectionRow:
     bias: str
 
 
-def combined_plan(plans: Sequence[Plan]) -> Plan:
-    """A plan standing for every section together, for the combined prep-room sheet.
-
-    Its session counts all sections, its totals are the sections' totals added up, and its
-    checks are each section's checks that did not pass, prefixed with the section.
-    """
-    first = plans[0]
-    inputs = dataclasses.replace(
-        first.inputs, session=dataclasses.replace(first.inputs.session, sections=len(plans))
-    )
-    totals = combined_totals([p.totals for p in plans])
-    checks = tuple(
-        Check(c.name, c.status, f"section {n}: {c.detail}")
-        for n, p in enumerate(plans, start=1)
-        for c in p.checks
-        if c.status != "pass"
-    )
-    return dataclasses.replace(
-        first,
-        inputs=inputs,
-        totals=totals,
-        preparations=preparations(inputs, totals),
-        checks=checks,
-    )
-
-
 def _folder(number: int, width: int) -> str:
     return f"section-{number:0{width}d}"
 
 
-def variants_files(plans: Sequence[Plan], *, date: str, seed: int) -> dict[str, str]:
+def variants_files(
+    plans: Sequence[Plan], *, combined: Plan, date: str, seed: int
+) -> dict[str, str]:
     """Every file of the variants folder.
 
     ``section-NN/`` holds each section's plan folder (bench sheets, prep sheet, answer key,
-    plan.json, CSV); ``index.md``/``index.html`` list the sections, and
-    ``prep-sheet.md``/``.html`` give the stock totals of all sections together.
+    plan.json, CSV); ``index.md``/``index.html`` list the sections and the whole session's
+    checks that did not pass, and ``prep-sheet.md``/``.html`` give the stock totals of all
+    sections together (``combined``, from :func:`planner.pipeline.combined_plan`).
     """
     width = max(2, len(str(len(plans))))
     files: dict[str, str] = {}
@@ -81,8 +56,9 @@ def variants_files(plans: Sequence[Plan], *, date: str, seed: int) -> dict[str, 
                 bias=percent(prediction.K_bias_from_assumption, signed=True) if prediction else "-",
             )
         )
-    together = combined_plan(plans)
+    together = combined
     context = {
+        "failed": tuple(c for c in combined.checks if c.status == "fail"),
         "title": plans[0].inputs.title,
         "date": date,
         "seed": seed,

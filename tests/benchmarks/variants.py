@@ -29,7 +29,9 @@ def main() -> int:
     start = time.perf_counter()
     found = design_variants(inputs, args.sections, np.random.default_rng(args.seed))
     designed_s = time.perf_counter() - start
-    contents = variants_files(found.plans, date="2026-12-02", seed=args.seed)
+    contents = variants_files(
+        found.plans, combined=found.combined, date="2026-12-02", seed=args.seed
+    )
     total_s = time.perf_counter() - start
     objectives = np.array(found.objectives)
     figures = {

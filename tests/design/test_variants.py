@@ -69,7 +69,7 @@ def test_cli_variants_twice_byte_identical(tmp_path):
                 "variants",
                 str(RECIPE),
                 "--sections",
-                "6",
+                "3",
                 "--seed",
                 "1",
                 "--out",
@@ -129,3 +129,36 @@ def test_cli_bounds_exit_2_naming_the_option(tmp_path, args, option):
     assert option in result.stderr
     assert "Traceback" not in result.stderr
     assert not (tmp_path / "v").exists()
+
+
+def test_a_session_short_of_stock_fails_though_each_section_fits(tmp_path):
+    # Issue 11: variants exited 0 while its combined prep sheet was short by 3280 mL. Each
+    # section's plan checks its own stock need; the session needs the sum.
+    from typer.testing import CliRunner
+
+    from planner.cli import app
+    from planner.pipeline import design_plan
+    from planner.planfile import plan_from_mapping, plan_to_mapping
+
+    mapping = plan_to_mapping(load_plan(RECIPE))
+    mapping["session"]["sections"] = 1  # variants plan each section as a session of one
+    need = design_plan(plan_from_mapping(mapping)).totals.to_prepare["thiocyanate"]
+    stock = next(st for st in mapping["stocks"] if st["id"] == "thiocyanate")
+    # Room for one section and a half: every section passes, three together do not.
+    stock["available_mL"] = round(1.5 * need)
+    from tests.strategies import toml_text
+
+    path = tmp_path / "short.toml"
+    path.write_text(toml_text(mapping), encoding="utf-8")
+    assert design_plan(plan_from_mapping(mapping)).failed is False
+    result = CliRunner().invoke(
+        app,
+        ["variants", str(path), "--sections", "3", "--seed", "1", "--out", str(tmp_path / "v")],
+        catch_exceptions=False,
+    )
+    assert result.exit_code == 1, result.stderr
+    assert "stock-inventory" in result.stderr
+    assert "all sections together" in result.stderr
+    index = (tmp_path / "v" / "index.md").read_text(encoding="utf-8")
+    assert "FAIL stock\\-inventory" in index or "FAIL stock-inventory" in index
+    assert "thiocyanate" in index

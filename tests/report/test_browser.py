@@ -19,7 +19,7 @@ import pytest
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.pipeline import design_plan, design_variants
+from planner.pipeline import combined_plan, design_plan, design_variants
 from planner.planfile import load_plan
 from planner.report.browser import (
     PRINTABLE_WIDTH_PX,
@@ -115,7 +115,9 @@ def test_other_sheets_print_to_pdf(files, tmp_path, name):
 def test_variants_index_fits():
     inputs = load_plan(RECIPE)
     found = design_variants(inputs, 2, np.random.default_rng(5))
-    contents = variants_files(found.plans, date="2026-12-02", seed=5)
+    contents = variants_files(
+        found.plans, combined=combined_plan(found.plans), date="2026-12-02", seed=5
+    )
     layout = measure_layout(contents["index.html"])
     _assert_fits(layout)
     assert "section-02/" in layout["text"]

@@ -28,7 +28,7 @@ from hypothesis import strategies as st
 from markdown_it import MarkdownIt
 from rich.console import Console
 
-from planner.pipeline import design_plan
+from planner.pipeline import combined_plan, design_plan
 from planner.planfile import parse_plan
 from planner.predict.montecarlo import simulate
 from planner.predict.uncertainty import propagate
@@ -95,7 +95,9 @@ def benign():
 
 def _markdown_sheets(plan):
     out = {n: t for n, t in plan_files(plan, date=DATE).items() if n.endswith(".md")}
-    for name, text in variants_files([plan], date=DATE, seed=1).items():
+    for name, text in variants_files(
+        [plan], combined=combined_plan((plan,)), date=DATE, seed=1
+    ).items():
         if name in ("index.md", "prep-sheet.md"):
             out[f"variants/{name}"] = text
     return out
@@ -103,7 +105,9 @@ def _markdown_sheets(plan):
 
 def _html_sheets(plan):
     out = {n: t for n, t in plan_files(plan, date=DATE).items() if n.endswith(".html")}
-    for name, text in variants_files([plan], date=DATE, seed=1).items():
+    for name, text in variants_files(
+        [plan], combined=combined_plan((plan,)), date=DATE, seed=1
+    ).items():
         if name in ("index.html", "prep-sheet.html"):
             out[f"variants/{name}"] = text
     return out
