@@ -86,7 +86,7 @@ def test_cli_variants_twice_byte_identical(tmp_path):
         p.relative_to(tmp_path / "b") for p in (tmp_path / "b").rglob("*") if p.is_file()
     )
     assert files_a == files_b
-    assert Path("section-06/plan.json") in files_a
+    assert Path("section-03/plan.json") in files_a
     assert Path("index.html") in files_a
     for name in files_a:
         assert (tmp_path / "a" / name).read_bytes() == (tmp_path / "b" / name).read_bytes()
