@@ -550,7 +550,7 @@ def _figures(plan: Plan, stems: Sequence[str]) -> tuple[_Figure, ...]:
             "Predicted reading of each standard (filled circles) and of the blank (square) "
             "against the coloured product's concentration, inside the photometer's linear "
             "window (band); the solid curve is the photometer's response with stray light, "
-            "the dashed line Beer-Lambert without it. Hollow circles: where the usual analysis "
+            "the dashed line Beer-Lambert without it. Hollow circles: where the all-bound analysis "
             f"places the standards, taking all of the {limiting} as the coloured product.",
         ),
         "bound-fraction": (
@@ -681,7 +681,7 @@ def answer_key_md(plan: Plan, *, date: str, plots: Sequence[str] = ()) -> str:
     str
         Per mixture the expected absorbance (blank not subtracted), the concentration of each
         coloured product and the bound fraction of the limiting reagent; the molar
-        absorptivity and K the usual analysis is expected to give, with uncertainties and the
+        absorptivity and K the all-bound analysis is expected to give, with uncertainties and the
         bias of K, against the values the plan assumes; the 95 % ranges a class will likely
         report for eps, K, each test's K and each reading (value -/+ 1.96 u from the
         first-order budget of :mod:`planner.predict.uncertainty`), for acceptance windows;

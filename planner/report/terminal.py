@@ -171,7 +171,7 @@ def _prediction_line(plan: Plan) -> Text:
     if prediction is None:
         return Text("Prediction: none (the plan gives no test mixtures to analyse).")
     return Text(
-        f"Prediction (usual analysis): K = {significant(prediction.K, 4)} ± "
+        f"Prediction (all-bound analysis): K = {significant(prediction.K, 4)} ± "
         f"{significant(prediction.u_K, 2)} L/mol, bias from the all-bound assumption "
         f"{percent(prediction.K_bias_from_assumption, signed=True)} "
         f"(true K {significant(prediction.K_true, 4)} L/mol)"
@@ -191,7 +191,7 @@ def render_plan(plan: Plan) -> RenderableType:
     rich renderable
         Title and verdict, the checks (failures first), the mixtures with each stock's volume
         and devices, the stock totals against what is available, and the predicted K with its
-        uncertainty and the bias of the usual analysis. Numbers are rounded for reading:
+        uncertainty and the bias of the all-bound analysis. Numbers are rounded for reading:
         volumes to the reading resolution of their device, the rest to 3-4 significant figures.
     """
     parts: list[RenderableType] = [
