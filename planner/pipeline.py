@@ -190,8 +190,6 @@ def design_plan(
     design = design_recipes(inputs, objective, candidates=candidates, allowed=allowed)
     mixtures, uncertainty, prediction = predict_mixtures(inputs, design.mixtures)
     prediction, meaningful = _prediction_check(prediction)
-    if prediction is None:
-        uncertainty = None
     checks = design.checks + tuple(verify_plan(inputs, mixtures, design.totals)) + meaningful
     return Plan(
         inputs=inputs,

@@ -391,7 +391,9 @@ class Plan:
     default the predicted relative SD of the mean K [unitless]); None when not designed.
     ``uncertainty`` is the whole first-order prediction (every budget and every mixture's
     u(A)) the prediction stage made; ``prediction`` and each mixture's ``u_absorbance`` are
-    read from it. None for a plan that cannot be analysed or was read back from a file.
+    read from it (``prediction`` is None when its numbers would mean nothing, the budget is
+    still kept for ``planner simulate``). None for a plan that cannot be analysed or was read
+    back from a file.
     """
 
     inputs: PlanInputs

@@ -29,12 +29,15 @@ from planner.inputs import Device, PlanInputs, Stock
 from planner.lab.glassware import (
     devices_by_id,
     is_deliverable,
-    piston_errors_uL,
     standard_uncertainty_mL,
 )
 from planner.lab.photometer import observed_absorbance, true_absorbance
 from planner.result import Check, Mixture, Prediction, StockPreparation, Totals
-from planner.verify_prediction import RecomputedPrediction, recompute_prediction, vessel_flask
+from planner.verify_prediction import (
+    RecomputedPrediction,
+    delivery_split_mL,
+    recompute_prediction,
+)
 
 __all__ = [
     "CHECK_NAMES",
@@ -227,17 +230,8 @@ class _State:
             if col is not None:
                 self.components[:, j] = self.initial[:, col]
         matrix = reaction.stoichiometry()
-        solved = solve_equilibrium(self.components, matrix, reaction.log_beta())
-        self.free = solved.free_M
-        self.species = solved.species_M
-        absorbers = np.concatenate([self.species, self.free], axis=1)
-        epsilon = np.concatenate([reaction.species_epsilon(), reaction.free_epsilon()])
-        self.net_absorbance = np.asarray(
-            true_absorbance(absorbers, epsilon, inputs.instrument.path_length_cm), dtype=float
-        )
-        self.absorbance = np.asarray(
-            observed_absorbance(self.net_absorbance, inputs.instrument.stray_light),
-            dtype=float,
+        self.free, self.species, self.net_absorbance, self.absorbance = _solve_and_read(
+            inputs, self.components
         )
         limiting = reaction.components.index(inputs.design.limiting)
         self.bound = bound_fraction(self.species, matrix, limiting, self.components)
@@ -477,27 +471,21 @@ def _window(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> C
     )
 
 
-def _readings_of(inputs: PlanInputs, totals: np.ndarray) -> np.ndarray:
-    """The photometer reading of component totals (n, n_components), re-derived here."""
+def _solve_and_read(
+    inputs: PlanInputs, totals: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Free components, species, Beer-Lambert absorbance and photometer reading of component
+    totals (n, n_components), re-derived here (this module keeps its own forward model on
+    purpose, to check planner.forward's)."""
     reaction = inputs.reaction
     solved = solve_equilibrium(totals, reaction.stoichiometry(), reaction.log_beta())
     absorbers = np.concatenate([solved.species_M, solved.free_M], axis=1)
     epsilon = np.concatenate([reaction.species_epsilon(), reaction.free_epsilon()])
-    net = true_absorbance(absorbers, epsilon, inputs.instrument.path_length_cm)
-    return np.asarray(observed_absorbance(net, inputs.instrument.stray_light), dtype=float)
-
-
-def _delivery_split_mL(device: Device) -> tuple[float, float] | None:
-    """(u systematic per device, u random per delivery) [mL], or None for a vessel."""
-    if device.kind == "piston-pipette":
-        assert device.range_uL is not None
-        _, random_uL = piston_errors_uL(device, device.range_uL[1])
-        return standard_uncertainty_mL(device), random_uL / 1000.0
-    if device.kind in {"transfer-pipette", "volumetric-flask"}:
-        return standard_uncertainty_mL(device), 0.0
-    if device.kind in {"buret", "graduated-pipette", "graduated-cylinder"}:
-        return 0.0, standard_uncertainty_mL(device)
-    return None
+    net = np.asarray(
+        true_absorbance(absorbers, epsilon, inputs.instrument.path_length_cm), dtype=float
+    )
+    reading = np.asarray(observed_absorbance(net, inputs.instrument.stray_light), dtype=float)
+    return solved.free_M, solved.species_M, net, reading
 
 
 # Relative step of the central difference of the reading (as any first-order budget may find
@@ -519,7 +507,7 @@ def _reading_u(
     section 10's; this derivation shares no code with the prediction stage.
     """
     components = inputs.reaction.components
-    flask = vessel_flask(inputs)
+    flask = inputs.flask  # the vessel, derived once from the validated inputs
     diluent = inputs.diluent
     stocks = {st.id: st for st in inputs.stocks}
     volume_mL = inputs.design.total_volume_mL
@@ -546,7 +534,7 @@ def _reading_u(
         reference = diluent_M if flask is not None else totals
         d_total = (concentration[a.stock] - reference) / volume_mL
         for device_id in a.devices:
-            split = _delivery_split_mL(devices[device_id])
+            split = delivery_split_mL(devices[device_id])
             if split is None:
                 return f"{device_id} does not measure a delivery"
             u_sys, u_rand = split
@@ -575,7 +563,7 @@ def _reading_u(
         moved = np.array([totals, totals])
         moved[0, j] += step
         moved[1, j] -= step
-        up, down = _readings_of(inputs, moved)
+        up, down = _solve_and_read(inputs, moved)[3]
         slope[j] = (up - down) / (2.0 * step)
     variance = inputs.instrument.absorbance_sd**2
     for column, value in zip(columns, u, strict=True):

@@ -73,7 +73,12 @@ from planner.inputs import Device, PlanInputs
 from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
 from planner.result import Mixture
 
-__all__ = ["ROUNDING_PROBE", "RecomputedPrediction", "recompute_prediction", "vessel_flask"]
+__all__ = [
+    "ROUNDING_PROBE",
+    "RecomputedPrediction",
+    "delivery_split_mL",
+    "recompute_prediction",
+]
 
 #: Relative change of the inputs that probes how much rounding the prediction amplifies:
 #: about ten units in the last place of a double (IEEE 754 binary64, unit roundoff 1.1e-16).
@@ -129,8 +134,10 @@ class RecomputedPrediction:
     rounding_per_test: tuple[float, ...]
 
 
-def _split_mL(device: Device) -> tuple[float, float] | None:
-    """(u of the device's systematic error, u of one delivery's random error) [mL]."""
+def delivery_split_mL(device: Device) -> tuple[float, float] | None:
+    """(u of the device's systematic error, u of one delivery's random error) [mL], or None
+    for a device that does not measure a delivery (the error model of docs/methods.md
+    section 10, re-derived for verify)."""
     if device.kind == "piston-pipette":
         _, random_uL = piston_errors_uL(device, device.volume_mL * _UL_PER_ML)
         return standard_uncertainty_mL(device), random_uL / _UL_PER_ML
@@ -149,17 +156,6 @@ def _square(value: float) -> float:
 def _root(value: float) -> float:
     """sqrt of a variance, nan for a nan one (math.sqrt would raise on it only when < 0)."""
     return math.sqrt(value) if value >= 0 else math.nan
-
-
-def vessel_flask(inputs: PlanInputs) -> Device | None:
-    """The volumetric flask each mixture is made up in: the shelf's, else a class A one."""
-    volume = inputs.design.flask_volume_mL
-    if volume is None:
-        return None
-    for device in inputs.glassware:
-        if device.kind == "volumetric-flask" and abs(device.volume_mL - volume) < 1e-9:
-            return device
-    return Device(kind="volumetric-flask", volume_mL=volume, device_class="A")
 
 
 def recompute_prediction(
@@ -242,7 +238,7 @@ def recompute_prediction(
                 continue  # to the mark: the flask's volume, not a measured delivery
             for device_id in addition.devices:
                 device = shelf.get(device_id)
-                split = None if device is None else _split_mL(device)
+                split = None if device is None else delivery_split_mL(device)
                 if split is None:
                     return f"{mixtures[index].id}: {device_id} does not measure a delivery"
                 deliveries.append((row, column, device_id, *split))
@@ -388,7 +384,7 @@ def _propagate(
         var_k += _square(g_k * u_sys)
 
     # Each mixture's own flask: dc/dV_f = (C_d - c) / V.
-    flask = vessel_flask(inputs)
+    flask = inputs.flask  # the vessel, derived once from the validated inputs
     if flask is not None:
         u_flask = standard_uncertainty_mL(flask)
         dc = (diluent_M[None, :] - totals) / volume_mL
