@@ -714,10 +714,11 @@ def simulate(
 
     Designs the plan, then simulates TRIALS benches making it, each with its own stock
     batches, glassware errors and reading noise, and analyses every bench two ways: the
-    all-bound analysis (limiting reagent assumed fully bound in the standards) and an exact
-    global fit with the equilibrium model. Prints mean, SD and 95 % interval of eps and K per
-    analysis, the bias of the all-bound K, and the first-order uncertainty budget. Exit status 1
-    when the plan itself fails a check (the simulation still runs), 2 on invalid input.
+    all-bound analysis (limiting reagent assumed fully bound in the standards) and the global
+    fit (eps and K fitted together with the full equilibrium model). Prints mean, SD and 95 %
+    interval of eps and K per analysis, the bias of the all-bound K, and the first-order
+    uncertainty budget. Exit status 1 when the plan itself fails a check (the simulation still
+    runs), 2 on invalid input.
     """
 
     def body() -> int:
