@@ -286,6 +286,13 @@ class DesignSettings:
         it (``design.measured_species``), or None to let the planner choose the one absorbing
         product that holds the limiting reagent. The resolved choice is
         :attr:`PlanInputs.measured`.
+    analysis
+        The analysis the tests are designed for: ``"all-bound"`` (switched to the global fit
+        when the all-bound analysis is inapplicable or errs by more than
+        ``K_bias_tolerance``) or ``"global-fit"``.
+    K_bias_tolerance
+        Largest relative error in K the all-bound analysis may carry on noise-free readings
+        [unitless] (default 0.10, common practice).
     """
 
     standards: int
@@ -299,6 +306,8 @@ class DesignSettings:
     ionic_strength_spread: float = 0.5
     blanks: int = 1
     measured_species: str | None = None
+    analysis: str = "all-bound"
+    K_bias_tolerance: float = 0.10
 
     @property
     def vessel_kind(self) -> str:

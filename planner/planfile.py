@@ -358,6 +358,16 @@ class _DesignModel(_Model):
         "reaction.species (needed when more than one product absorbs)",
     )
     blanks: int = Field(1, ge=1, le=10, description="the number of reagent blanks, 1 to 10")
+    analysis: Literal["all-bound", "global-fit"] = Field(
+        "all-bound",
+        description='the analysis the tests are designed for, "all-bound" or "global-fit"',
+    )
+    K_bias_tolerance: float = Field(
+        0.10,
+        gt=0,
+        lt=1,
+        description="the largest relative error in K the all-bound analysis may carry, 0 to 1",
+    )
 
 
 class _SessionModel(_Model):
@@ -1160,6 +1170,8 @@ def _design(
         ionic_strength_spread=float(model.ionic_strength_spread),
         blanks=model.blanks,
         measured_species=model.measured_species,
+        analysis=model.analysis,
+        K_bias_tolerance=float(model.K_bias_tolerance),
     )
 
 
@@ -1560,6 +1572,8 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
             "bound_fraction_range": list(design.bound_fraction_range),
             "ionic_strength_spread": design.ionic_strength_spread,
             "blanks": design.blanks,
+            "analysis": design.analysis,
+            "K_bias_tolerance": design.K_bias_tolerance,
             **(
                 {"measured_species": design.measured_species}
                 if design.measured_species is not None
