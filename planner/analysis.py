@@ -51,6 +51,8 @@ __all__ = [
     "all_bound_epsilon",
     "global_fit",
     "global_fit_batch",
+    "global_fit_gain",
+    "global_fit_jacobian",
     "global_fit_start_offset",
     "global_fit_starts",
     "global_fit_table",
@@ -498,3 +500,80 @@ def global_fit(
         residuals, np.array([1.0, logs[layout.measured]]), method="lm", xtol=1e-14, ftol=1e-14
     )
     return float(solution.x[0] * scale), float(10.0 ** solution.x[1])
+
+
+# Relative step of the central differences of :func:`global_fit_jacobian` (in log10 K and in
+# eps): the truncation error, of order step^2, is below 1e-8 relative.
+_JACOBIAN_STEP = 1e-4
+
+
+def global_fit_jacobian(
+    reaction: Reaction, instrument: Instrument, layout: Layout
+) -> NDArray[np.float64]:
+    """Sensitivity of the fitted net readings to the global fit's parameters, at the plan's.
+
+    Parameters
+    ----------
+    reaction, instrument
+        The plan's reaction and photometer.
+    layout
+        The set of mixtures.
+
+    Returns
+    -------
+    NDArray[np.float64]
+        d(net reading)/d(eps) [L^-1 mol cm] and d(net reading)/d(log10 K) of each fitted row
+        (standards, then tests), shape (n_fitted, 2), by central differences on the forward
+        model (the blank's mean subtracted as in the fit).
+    """
+    logs = reaction.log_beta()
+    epsilons = reaction.species_epsilon()
+    fit = _fitted_rows(layout)
+    lg = float(logs[layout.measured])
+    eps = float(epsilons[layout.measured])
+
+    def net(trial_lg: float, trial_eps: float) -> NDArray[np.float64]:
+        trial_logs = logs.copy()
+        trial_logs[layout.measured] = trial_lg
+        trial_epsilons = epsilons.copy()
+        trial_epsilons[layout.measured] = trial_eps
+        a = predict_readings(
+            reaction,
+            instrument,
+            layout.totals_M,
+            log_beta=trial_logs,
+            species_epsilon=trial_epsilons,
+        ).absorbance
+        # Without a blank the readings are fitted as they are (the blank reads zero).
+        blank = float(a[layout.blanks].mean()) if layout.blanks.size else 0.0
+        result: NDArray[np.float64] = a[fit] - blank
+        return result
+
+    h = _JACOBIAN_STEP
+    d_lg = (net(lg + h, eps) - net(lg - h, eps)) / (2 * h)
+    step_eps = h * eps if eps > 0 else h
+    d_eps = (net(lg, eps + step_eps) - net(lg, eps - step_eps)) / (2 * step_eps)
+    return np.stack([d_eps, d_lg], axis=1)
+
+
+def global_fit_gain(jacobian: NDArray[np.float64]) -> NDArray[np.float64]:
+    """How the global fit's (eps, log10 K) answer small changes of the fitted net readings.
+
+    The fit is unweighted least squares, so to first order d theta = (J^T J)^-1 J^T d A_net
+    (the linearised estimator; e.g. Bard, Nonlinear Parameter Estimation, 1974, ch. 7, from
+    memory). Any reading error model then gives the parameters' covariance G Sigma G^T.
+
+    Parameters
+    ----------
+    jacobian
+        From :func:`global_fit_jacobian`, shape (n_fitted, 2).
+
+    Returns
+    -------
+    NDArray[np.float64]
+        G, shape (2, n_fitted); NaN where J^T J is singular (eps and K not separable).
+    """
+    normal = jacobian.T @ jacobian
+    if not np.all(np.isfinite(normal)) or np.linalg.cond(normal) > 1e14:
+        return np.full((2, jacobian.shape[0]), np.nan)
+    return np.asarray(np.linalg.solve(normal, jacobian.T), dtype=np.float64)

@@ -27,7 +27,14 @@ from planner.design.mixtures import Objective
 from planner.design.plan import design_recipes
 from planner.design.variants import VariantSet
 from planner.inputs import PlanInputs
-from planner.result import Check, Mixture, Plan, Prediction, UncertaintyResult
+from planner.result import (
+    Check,
+    GlobalFitPrediction,
+    Mixture,
+    Plan,
+    Prediction,
+    UncertaintyResult,
+)
 
 __all__ = [
     "combined_plan",
@@ -56,8 +63,10 @@ def _all_finite(value: object) -> bool:
 
 def predict_mixtures(
     inputs: PlanInputs, mixtures: tuple[Mixture, ...]
-) -> tuple[tuple[Mixture, ...], UncertaintyResult | None, Prediction | None]:
-    """The prediction stage: every mixture's u(A), and the analysis's predicted result.
+) -> tuple[
+    tuple[Mixture, ...], UncertaintyResult | None, Prediction | None, GlobalFitPrediction | None
+]:
+    """The prediction stage: every mixture's u(A), and both analyses' predicted results.
 
     Parameters
     ----------
@@ -70,32 +79,40 @@ def predict_mixtures(
     -------
     tuple
         (the mixtures with ``u_absorbance`` from the first-order budget, the whole budget or
-        None when the plan cannot be analysed, the plan's ``prediction`` block or None when
-        the analysis has no finite result).
+        None when the plan cannot be analysed, the all-bound analysis's prediction or None
+        when it has no finite result, the global fit's or None likewise).
     """
-    from planner.predict.uncertainty import prediction_from, propagate, reading_uncertainties
+    from planner.predict.uncertainty import (
+        global_fit_prediction_from,
+        prediction_from,
+        propagate,
+        reading_uncertainties,
+    )
 
     if not mixtures:
-        return mixtures, None, None
+        return mixtures, None, None, None
     roles = {m.role for m in mixtures}
     result: UncertaintyResult | None = None
     prediction: Prediction | None = None
+    fitted: GlobalFitPrediction | None = None
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         if {"blank", "standard", "test"} <= roles and inputs.excess is not None:
             result = propagate(inputs, mixtures)
             per_mixture = result.mixtures
             # A test whose predicted product equals a reagent's total makes the 1:1 expression
             # divide by zero: that analysis then has no prediction to offer (the global fit
-            # still does), so the plan carries none rather than an infinity.
+            # may still have one), so the plan carries none rather than an infinity.
             candidate = prediction_from(result)
             prediction = candidate if _all_finite(candidate) else None
-            if prediction is None:
+            fit = global_fit_prediction_from(result)
+            fitted = fit if fit is not None and _all_finite(fit) else None
+            if prediction is None and fitted is None:
                 result = None
         else:
             per_mixture = reading_uncertainties(inputs, mixtures)
     by_id = {m.id: m.u_absorbance for m in per_mixture}
     filled = tuple(dataclasses.replace(m, u_absorbance=by_id[m.id]) for m in mixtures)
-    return filled, result, prediction
+    return filled, result, prediction, fitted
 
 
 def meaningless_numbers(prediction: Prediction) -> list[str]:
@@ -133,26 +150,94 @@ def meaningless_numbers(prediction: Prediction) -> list[str]:
     return problems
 
 
-def _prediction_check(prediction: Prediction | None) -> tuple[Prediction | None, tuple[Check, ...]]:
-    """Keep a prediction only when all its numbers mean something; otherwise a failed check."""
-    if prediction is None:
-        return None, ()
-    problems = meaningless_numbers(prediction)
-    if not problems:
-        return prediction, (
-            Check(PREDICTION_CHECK, "pass", "every predicted K, eps and range is positive"),
+def _global_fit_problems(fitted: GlobalFitPrediction) -> list[str]:
+    """What in the global fit's prediction would print as a meaningless number."""
+    return [
+        f"{what} would be {value:.4g}"
+        for what, value in (
+            ("the global fit's eps", fitted.epsilon),
+            ("its u(eps)", fitted.u_epsilon),
+            ("the global fit's K", fitted.K),
+            ("its u(K)", fitted.u_K),
+            ("the low end of its 95 % range of K", fitted.K_ci95[0]),
+            ("the low end of its 95 % range of eps", fitted.epsilon_ci95[0]),
         )
-    shown = "; ".join(problems[:4]) + (
+        if not (math.isfinite(value) and value > 0)
+    ]
+
+
+def _shown(problems: list[str]) -> str:
+    return "; ".join(problems[:4]) + (
         f"; and {len(problems) - 4} more" if len(problems) > 4 else ""
     )
-    return None, (
-        Check(
-            PREDICTION_CHECK,
-            "fail",
-            f"the all-bound analysis of this plan would print meaningless numbers ({shown}), "
-            "so the answer key carries none: the standards' limiting reagent is too far from "
-            "all bound or the tests too close to it; raise the excess in the standards, "
-            "choose tests with more free limiting reagent, or use the global fit",
+
+
+def _prediction_check(
+    prediction: Prediction | None, fitted: GlobalFitPrediction | None, analysis: str
+) -> tuple[Prediction | None, GlobalFitPrediction | None, tuple[Check, ...]]:
+    """Keep only predictions whose numbers all mean something, and say so in one check.
+
+    The analysis the plan is designed for must give a meaningful prediction (else the check
+    fails); the other one's is withheld when it would not, and the check says so.
+    """
+    if prediction is None and fitted is None:
+        return None, None, ()
+    bound_problems = (
+        meaningless_numbers(prediction) if prediction is not None else ["no finite value"]
+    )
+    fit_problems = _global_fit_problems(fitted) if fitted is not None else ["no finite value"]
+    kept_bound = prediction if not bound_problems else None
+    kept_fit = fitted if not fit_problems else None
+    if analysis == "all-bound":
+        if not bound_problems:
+            return (
+                kept_bound,
+                kept_fit,
+                (Check(PREDICTION_CHECK, "pass", "every predicted K, eps and range is positive"),),
+            )
+        return (
+            None,
+            kept_fit,
+            (
+                Check(
+                    PREDICTION_CHECK,
+                    "fail",
+                    "the all-bound analysis of this plan would print meaningless numbers "
+                    f"({_shown(bound_problems)}), so the answer key carries none: the standards' "
+                    "limiting reagent is too far from all bound or the tests too close to it; "
+                    "raise the excess in the standards, choose tests with more free limiting "
+                    'reagent, or set design.analysis = "global-fit"',
+                ),
+            ),
+        )
+    if fit_problems:
+        return (
+            kept_bound,
+            None,
+            (
+                Check(
+                    PREDICTION_CHECK,
+                    "fail",
+                    f"the global fit of this plan would print meaningless numbers "
+                    f"({_shown(fit_problems)}): its standards and tests do not separate eps from "
+                    "K; ask for more tests or a wider bound_fraction_range",
+                ),
+            ),
+        )
+    withheld = (
+        "; the all-bound analysis's numbers are withheld, they would mean nothing here"
+        if bound_problems
+        else ""
+    )
+    return (
+        kept_bound,
+        kept_fit,
+        (
+            Check(
+                PREDICTION_CHECK,
+                "pass",
+                f"every predicted K, eps and range of the global fit is positive{withheld}",
+            ),
         ),
     )
 
@@ -188,8 +273,8 @@ def design_plan(
     from planner.verify import verify_plan
 
     design = design_recipes(inputs, objective, candidates=candidates, allowed=allowed)
-    mixtures, uncertainty, prediction = predict_mixtures(inputs, design.mixtures)
-    prediction, meaningful = _prediction_check(prediction)
+    mixtures, uncertainty, prediction, fitted = predict_mixtures(inputs, design.mixtures)
+    prediction, fitted, meaningful = _prediction_check(prediction, fitted, design.analysis)
     checks = design.checks + tuple(verify_plan(inputs, mixtures, design.totals)) + meaningful
     return Plan(
         inputs=inputs,
@@ -201,6 +286,8 @@ def design_plan(
         notes=design.notes,
         design_objective=design.objective,
         uncertainty=uncertainty,
+        analysis=design.analysis,
+        global_fit=fitted,
     )
 
 

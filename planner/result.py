@@ -19,6 +19,7 @@ __all__ = [
     "Budget",
     "Check",
     "Contributor",
+    "GlobalFitPrediction",
     "Mixture",
     "MixtureUncertainty",
     "Plan",
@@ -100,6 +101,12 @@ class Mixture:
     u_absorbance: float
     bound_fraction: float
     ionic_strength_M: float
+
+    @property
+    def absorbance_ci95(self) -> tuple[float, float]:
+        """Range a class will likely read, value -/+ 1.96 u(A) (JCGM 100:2008, 6.3) [unitless]."""
+        half = COVERAGE_FACTOR_95 * self.u_absorbance
+        return (self.absorbance - half, self.absorbance + half)
 
     def volume_of(self, stock_id: str) -> float:
         """Total volume of one stock in this mixture [mL]."""
@@ -247,6 +254,41 @@ class Prediction:
 
 
 @dataclass(frozen=True, slots=True)
+class GlobalFitPrediction:
+    """What the global fit of one bench's readings will report (first order).
+
+    The fit of eps and K with the full equilibrium model to every standard and test reading
+    returns the plan's values from noise-free readings, so the prediction is those values with
+    the standard uncertainties of the first-order budget.
+
+    Attributes
+    ----------
+    epsilon, u_epsilon
+        Molar absorptivity of the measured product and its standard uncertainty
+        [L mol⁻¹ cm⁻¹].
+    K, u_K
+        Its formation constant (beta, in its own units) and standard uncertainty.
+    """
+
+    epsilon: float
+    u_epsilon: float
+    K: float
+    u_K: float
+
+    @property
+    def epsilon_ci95(self) -> tuple[float, float]:
+        """Range a class will likely report for eps, value -/+ 1.96 u [L mol⁻¹ cm⁻¹]."""
+        half = COVERAGE_FACTOR_95 * self.u_epsilon
+        return (self.epsilon - half, self.epsilon + half)
+
+    @property
+    def K_ci95(self) -> tuple[float, float]:
+        """Range a class will likely report for K, value -/+ 1.96 u."""
+        half = COVERAGE_FACTOR_95 * self.u_K
+        return (self.K - half, self.K + half)
+
+
+@dataclass(frozen=True, slots=True)
 class Contributor:
     """One input's contribution to a measurand's uncertainty.
 
@@ -366,6 +408,11 @@ class UncertaintyResult:
         K the plan assumes [L/mol].
     epsilon_true
         Molar absorptivity the plan assumes [L mol⁻¹ cm⁻¹].
+    test_ids
+        Ids of the test mixtures, in plan order.
+    global_fit_epsilon, global_fit_K
+        Budgets of the global fit's eps and K (the fit of every standard and test reading with
+        the full equilibrium model), or None when eps and K cannot be separated.
     """
 
     epsilon: Budget
@@ -376,6 +423,8 @@ class UncertaintyResult:
     K_true: float
     epsilon_true: float
     test_ids: tuple[str, ...] = field(default=())
+    global_fit_epsilon: Budget | None = None
+    global_fit_K: Budget | None = None
 
     @property
     def K_bias_from_assumption(self) -> float:
@@ -393,7 +442,9 @@ class Plan:
     u(A)) the prediction stage made; ``prediction`` and each mixture's ``u_absorbance`` are
     read from it (``prediction`` is None when its numbers would mean nothing, the budget is
     still kept for ``planner simulate``). None for a plan that cannot be analysed or was read
-    back from a file.
+    back from a file. ``analysis`` is the analysis the tests were designed for (``"all-bound"``
+    or ``"global-fit"``, see :func:`planner.design.plan.design_recipes`) and ``global_fit``
+    what the global fit will report (None when its numbers would mean nothing).
     """
 
     inputs: PlanInputs
@@ -405,6 +456,8 @@ class Plan:
     notes: tuple[str, ...] = field(default=())
     design_objective: float | None = None
     uncertainty: UncertaintyResult | None = None
+    analysis: str = "all-bound"
+    global_fit: GlobalFitPrediction | None = None
 
     @property
     def failed(self) -> bool:

@@ -139,3 +139,29 @@ def test_log_sensitivities_are_sympys_derivatives_of_the_one_expression():
     ]  # d ln K / d ln v = (dK/dv) v / K, by sympy (an independent differentiation)
     got = all_bound_K_log_sensitivities(np.array(4e-5), np.array(2e-3), np.array(1e-4))
     assert [float(g) for g in got] == pytest.approx(expected, rel=1e-12)
+
+
+def test_global_fit_gain_predicts_how_scipy_least_squares_answers_a_small_change():
+    # The linearised fit (J^T J)^-1 J^T against the fit itself: scipy.optimize.least_squares
+    # refits readings moved by a small, arbitrary change; the two moves of (eps, log10 K) agree
+    # to first order.
+    from planner.analysis import global_fit_gain, global_fit_jacobian
+
+    layout, totals = _layout()
+    clean = np.array([4000.0 * _complex_M(100.0, m0, l0) for m0, l0 in totals])
+    gain = global_fit_gain(global_fit_jacobian(REACTION, INSTRUMENT, layout))
+    fitted_rows = np.concatenate([layout.standards, layout.tests])
+    change = 1e-4 * np.array([0.3, -0.7, 1.0, 0.4, -0.2, 0.9, -1.0])
+    eps, k = global_fit(REACTION, INSTRUMENT, layout, clean + change)
+    net_change = change[fitted_rows] - change[layout.blanks].mean()
+    predicted = gain @ net_change
+    assert eps - 4000.0 == pytest.approx(predicted[0], rel=2e-3)
+    assert math.log10(k / 100.0) == pytest.approx(predicted[1], rel=2e-3)
+
+
+def test_global_fit_gain_of_inseparable_parameters_is_not_finite():
+    from planner.analysis import global_fit_gain
+
+    # Two identical columns: eps and log10 K move the readings the same way.
+    jacobian = np.array([[1.0, 1.0], [2.0, 2.0], [3.0, 3.0]])
+    assert not np.isfinite(global_fit_gain(jacobian)).any()

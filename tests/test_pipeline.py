@@ -169,9 +169,11 @@ def test_design_verify_and_predict_do_not_import_each_other():
 # ---------------------------------------------------------------------------------------------
 
 
-def test_a_dominant_one_to_two_product_fails_instead_of_printing_a_negative_K():
+def test_a_dominant_one_to_two_product_turns_the_plan_to_the_global_fit():
     # In this recipe Fe(SCN)2+ dominates, so the 1:1 all-bound expression gave a mean K of
-    # about -2355 L/mol (and negative K for two tests) on the answer key.
+    # about -2355 L/mol (and negative K for two tests) on the answer key. The plan now says the
+    # all-bound analysis does not apply, designs for the global fit, and withholds the
+    # all-bound numbers.
     plan = json.loads(
         _run(
             "plan",
@@ -180,10 +182,37 @@ def test_a_dominant_one_to_two_product_fails_instead_of_printing_a_negative_K():
             "json",
         )
     )
-    check = next(c for c in plan["checks"] if c["name"] == "prediction-meaningful")
-    assert check["status"] == "fail"
-    assert "K" in check["detail"]
+    checks = {c["name"]: c for c in plan["checks"]}
+    assert checks["analysis"]["status"] == "warn"
+    assert "Fe(SCN)2+" in checks["analysis"]["detail"]
+    assert "global fit" in checks["analysis"]["detail"]
+    assert checks["prediction-meaningful"]["status"] == "pass"
+    assert "withheld" in checks["prediction-meaningful"]["detail"]
     assert plan["prediction"] is None
+
+
+def test_a_plan_asked_for_the_all_bound_analysis_fails_when_its_numbers_mean_nothing():
+    from planner.pipeline import _prediction_check
+    from planner.result import GlobalFitPrediction, Prediction
+
+    negative = Prediction(
+        epsilon=1500.0,
+        u_epsilon=10.0,
+        K=-2355.0,
+        u_K=300.0,
+        K_bias_from_assumption=-25.0,
+        K_true=98.0,
+        epsilon_true=4700.0,
+    )
+    fitted = GlobalFitPrediction(epsilon=4700.0, u_epsilon=120.0, K=98.0, u_K=3.6)
+    kept, fit, (check,) = _prediction_check(negative, fitted, "all-bound")
+    assert (kept, fit, check.status) == (None, fitted, "fail")
+    kept, fit, (check,) = _prediction_check(negative, fitted, "global-fit")
+    assert (kept, fit, check.status) == (None, fitted, "pass")
+    bad_fit = GlobalFitPrediction(epsilon=4700.0, u_epsilon=120.0, K=98.0, u_K=80.0)
+    kept, fit, (check,) = _prediction_check(None, bad_fit, "global-fit")
+    assert (fit, check.status) == (None, "fail")
+    assert "low end of its 95 % range of K" in check.detail
 
 
 def test_meaningless_numbers_names_each_problem():

@@ -18,16 +18,18 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from planner.analysis import all_bound_K_log_sensitivities
+from planner.analysis import Layout, all_bound_K_log_sensitivities, global_fit_jacobian
 from planner.design.candidates import CandidateSet
 from planner.inputs import PlanInputs
 
 __all__ = [
+    "GlobalFitObjective",
     "MeanKObjective",
     "Objective",
     "TestsChoice",
     "choose_tests",
     "first_order_relative_u_K",
+    "global_fit_objective",
     "mean_K_objective",
     "per_mixture_relative_u_K",
 ]
@@ -150,6 +152,108 @@ def mean_K_objective(epsilon_relative_u: float) -> MeanKObjective:
     return MeanKObjective(epsilon_relative_u)
 
 
+class GlobalFitObjective:
+    """Objective of a plan analysed by the global fit: its predicted u(K)/K from the readings.
+
+    Notes
+    -----
+    The global fit is unweighted least squares on (eps, log10 K), so to first order its
+    covariance is the sandwich (J^T J)^-1 (J^T S J) (J^T J)^-1, J the rows of d(net reading)/d
+    (eps, log10 K) of the standards and tests and S the diagonal of their reading variances
+    u(A)^2 (the candidates' screening estimate, composition included); u(K)/K = ln 10
+    u(log10 K). Minimising it is c-optimal design for log10 K (Atkinson, Donev and Tobias,
+    Optimum Experimental Designs, with SAS, 2007, ch. 10, from memory). Both sums are additive
+    over mixtures, so a swap of one test is scored for every candidate at once. Errors shared
+    by several mixtures (a stock's concentration) are left to the prediction stage's budget.
+
+    Parameters
+    ----------
+    rows
+        J of every candidate, shape (n_candidates, 2).
+    variance
+        u(A)^2 of every candidate, shape (n_candidates,).
+    standards
+        Candidate indices of the standards (their rows are in every set).
+    """
+
+    def __init__(
+        self,
+        rows: NDArray[np.float64],
+        variance: NDArray[np.float64],
+        standards: NDArray[np.int64],
+    ) -> None:
+        self.rows = rows
+        self.variance = variance
+        outer = rows[:, :, None] * rows[:, None, :]
+        self.a = outer
+        self.b = outer * variance[:, None, None]
+        self.a_standards = outer[standards].sum(axis=0)
+        self.b_standards = self.b[standards].sum(axis=0)
+
+    def combine(self, a: NDArray[np.float64], b: NDArray[np.float64]) -> NDArray[np.float64]:
+        """u(K)/K from the summed information matrices, shape (..., 2, 2) (vectorised)."""
+        det = a[..., 0, 0] * a[..., 1, 1] - a[..., 0, 1] * a[..., 1, 0]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            # The (log10 K, log10 K) entry of A^-1 B A^-1, with A^-1 = adj(A)/det(A).
+            r0 = -a[..., 1, 0] / det
+            r1 = a[..., 0, 0] / det
+            var = r0 * r0 * b[..., 0, 0] + 2 * r0 * r1 * b[..., 0, 1] + r1 * r1 * b[..., 1, 1]
+            value = np.log(10.0) * np.sqrt(var)
+        result: NDArray[np.float64] = np.where(np.isfinite(value) & (det > 0), value, np.inf)
+        return result
+
+    def own(self, indices: NDArray[np.int64]) -> NDArray[np.float64]:
+        """u(K)/K each candidate would give with the standards alone beside it."""
+        return self.combine(self.a_standards + self.a[indices], self.b_standards + self.b[indices])
+
+    def swaps(self, members: list[int], pool: NDArray[np.int64]) -> NDArray[np.float64]:
+        """Objective after replacing each member by each pool candidate, (n_members, n_pool)."""
+        a_set = self.a_standards + self.a[members].sum(axis=0)
+        b_set = self.b_standards + self.b[members].sum(axis=0)
+        a = a_set - self.a[members][:, None] + self.a[pool][None, :]
+        b = b_set - self.b[members][:, None] + self.b[pool][None, :]
+        return self.combine(a, b)
+
+    def swaps_within(self, pool: NDArray[np.int64]) -> Callable[[list[int]], NDArray[np.float64]]:
+        """:meth:`swaps` for members given as positions in ``pool`` (see _swap_search)."""
+
+        def swaps(members: list[int]) -> NDArray[np.float64]:
+            return self.swaps([int(i) for i in pool[members]], pool)
+
+        return swaps
+
+    def __call__(
+        self, inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
+    ) -> float:
+        a = self.a_standards + self.a[indices].sum(axis=0)
+        b = self.b_standards + self.b[indices].sum(axis=0)
+        return float(self.combine(a, b))
+
+
+def global_fit_objective(
+    inputs: PlanInputs, candidates: CandidateSet, standards: tuple[int, ...], blank: int
+) -> GlobalFitObjective:
+    """The global fit's objective for tests added to these standards (see
+    :class:`GlobalFitObjective`); the rows come from :func:`planner.analysis.global_fit_jacobian`
+    with every candidate as a test, the blank's mean subtracted."""
+    ev = candidates.evaluation
+    limiting = inputs.reaction.components.index(inputs.design.limiting)
+    excess = inputs.reaction.components.index(inputs.excess) if inputs.excess else limiting
+    layout = Layout(
+        totals_M=ev.total_M,
+        blanks=np.array([blank] if blank >= 0 else [], dtype=np.int64),
+        standards=np.array([], dtype=np.int64),
+        tests=np.arange(candidates.size, dtype=np.int64),
+        limiting=limiting,
+        excess=excess,
+        measured=inputs.measured,
+        epsilon_expected=inputs.measured_species.epsilon,
+        K_expected=10.0**inputs.measured_species.log_beta,
+    )
+    rows = global_fit_jacobian(inputs.reaction, inputs.instrument, layout)
+    return GlobalFitObjective(rows, candidates.u_absorbance**2, np.array(standards, dtype=np.int64))
+
+
 def _x_sensitivity(
     inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
 ) -> NDArray[np.float64]:
@@ -166,40 +270,52 @@ def _x_sensitivity(
     return s_x
 
 
+def _mean_K_swaps(
+    objective: MeanKObjective, own: NDArray[np.float64], sensitivity: NDArray[np.float64]
+) -> Callable[[list[int]], NDArray[np.float64]]:
+    """Scores of every single swap of a set for the default objective (see _swap_search)."""
+
+    def swaps(members: list[int]) -> NDArray[np.float64]:
+        n = len(members)
+        rows = []
+        for slot in range(n):
+            others = members[:slot] + members[slot + 1 :]
+            rows.append(
+                objective.combine(
+                    np.sum(own[others] ** 2) + own**2, np.sum(sensitivity[others]) + sensitivity, n
+                )
+            )
+        return np.array(rows)
+
+    return swaps
+
+
 def _swap_search(
-    objective: MeanKObjective,
+    swaps: Callable[[list[int]], NDArray[np.float64]],
+    current: float,
     members: list[int],
     fraction: NDArray[np.float64],
-    own: NDArray[np.float64],
-    sensitivity: NDArray[np.float64],
     span: float,
     gap: float,
 ) -> list[int]:
     """Improve a test set by single swaps until none lowers the objective (local search).
 
-    Every swap is scored for every pool candidate at once from the objective's sums; a swap
-    must keep the bound-fraction span and the members' separation.
+    ``swaps(members)`` scores replacing each member by each pool candidate at once, shape
+    (n_members, n_pool); a swap must keep the bound-fraction span and the members' separation.
     """
     n = len(members)
     members = list(members)
-    current = float(
-        objective.combine(
-            np.array(np.sum(own[members] ** 2)), np.array(np.sum(sensitivity[members])), n
-        )
-    )
     for _ in range(4 * n):
         best: tuple[float, int, int] | None = None
+        scores = swaps(members)
         for slot in range(n):
             others = members[:slot] + members[slot + 1 :]
-            values = objective.combine(
-                np.sum(own[others] ** 2) + own**2, np.sum(sensitivity[others]) + sensitivity, n
-            )
             f_others = fraction[others]
             spread = np.maximum(f_others.max(), fraction) - np.minimum(f_others.min(), fraction)
             apart = np.min(np.abs(fraction[:, None] - f_others[None, :]), axis=1) >= gap
             admissible = (spread >= span - 1e-12) & apart
             admissible[members] = False
-            values = np.where(admissible, values, np.inf)
+            values = np.where(admissible, scores[slot], np.inf)
             pick = int(np.argmin(values))
             if values[pick] < current * (1 - 1e-12) and (best is None or values[pick] < best[0]):
                 best = (float(values[pick]), slot, pick)
@@ -208,6 +324,18 @@ def _swap_search(
         current, slot, pick = best
         members[slot] = pick
     return members
+
+
+def _own(
+    inputs: PlanInputs,
+    candidates: CandidateSet,
+    indices: NDArray[np.int64],
+    objective: Objective,
+) -> NDArray[np.float64]:
+    """Each candidate's own score, to rank the pool: u(K)/K it gives beside the standards."""
+    if isinstance(objective, GlobalFitObjective):
+        return objective.own(indices)
+    return per_mixture_relative_u_K(inputs, candidates, indices)
 
 
 def choose_tests(
@@ -266,7 +394,7 @@ def choose_tests(
     count = design.tests
     if not indices.size:
         return TestsChoice((), float("inf"), 0.0, 0)
-    own = per_mixture_relative_u_K(inputs, candidates, indices)
+    own = _own(inputs, candidates, indices, objective)
     pool = indices[np.argsort(own, kind="stable")[:_POOL]]
     if isinstance(objective, MeanKObjective):
         # The shared molar-absorptivity term favours tests with a small d ln K/d ln x.
@@ -286,7 +414,7 @@ def choose_tests(
         )
     by_fraction = pool[np.argsort(fraction[pool], kind="stable")]
     f_sorted = fraction[by_fraction]
-    own_pool = per_mixture_relative_u_K(inputs, candidates, by_fraction)
+    own_pool = _own(inputs, candidates, by_fraction, objective)
     best: tuple[float, NDArray[np.int64]] | None = None
     starts: list[tuple[float, list[int]]] = []
     span_needed = design.bound_fraction_span if count > 1 else 0.0
@@ -322,15 +450,19 @@ def choose_tests(
         chosen = by_fraction[picks]
         best = (objective(inputs, candidates, chosen), chosen)
     value, chosen = best
-    if isinstance(objective, MeanKObjective) and count > 1 and starts:
+    swaps: Callable[[list[int]], NDArray[np.float64]] | None = None
+    if isinstance(objective, MeanKObjective):
+        sensitivity_pool = _x_sensitivity(inputs, candidates, by_fraction)
+        swaps = _mean_K_swaps(objective, own_pool, sensitivity_pool)
+    elif isinstance(objective, GlobalFitObjective):
+        swaps = objective.swaps_within(by_fraction)
+
+    if swaps is not None and count > 1 and starts:
         # Local search from the few best distinct starting sets (multi-start: one start can
         # sit in a local optimum that the span constraint walls in).
-        sensitivity_pool = _x_sensitivity(inputs, candidates, by_fraction)
         distinct = {tuple(m): v for v, m in starts}
-        for _, start in sorted((v, list(m)) for m, v in distinct.items())[:_STARTS]:
-            members = _swap_search(
-                objective, start, f_sorted, own_pool, sensitivity_pool, span_needed, gap
-            )
+        for start_value, start in sorted((v, list(m)) for m, v in distinct.items())[:_STARTS]:
+            members = _swap_search(swaps, start_value, start, f_sorted, span_needed, gap)
             candidate = by_fraction[np.array(sorted(members))]
             candidate_value = objective(inputs, candidates, candidate)
             if candidate_value < value:

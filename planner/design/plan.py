@@ -14,10 +14,17 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
+from planner.analysis import Layout, all_bound_mean_K
 from planner.design.candidates import CandidateSet, candidate_set
 from planner.design.logistics import preparations, stock_totals
-from planner.design.mixtures import Objective, choose_tests, mean_K_objective
-from planner.design.standards import choose_standards
+from planner.design.mixtures import (
+    Objective,
+    TestsChoice,
+    choose_tests,
+    global_fit_objective,
+    mean_K_objective,
+)
+from planner.design.standards import StandardsChoice, choose_standards
 from planner.inputs import PlanInputs
 from planner.result import Addition, Check, Mixture, StockPreparation, Totals
 
@@ -46,6 +53,11 @@ class Design:
     objective
         The value of the test-set objective the design minimised, or None when no test set
         met the constraints [unitless].
+    analysis
+        The analysis the tests were designed for, ``"all-bound"`` or ``"global-fit"``.
+    all_bound_error
+        Relative error of the all-bound analysis's K on the plan's noise-free readings, or
+        None when it has no value [unitless].
     """
 
     inputs: PlanInputs
@@ -55,6 +67,8 @@ class Design:
     checks: tuple[Check, ...]
     notes: tuple[str, ...]
     objective: float | None
+    analysis: str = "all-bound"
+    all_bound_error: float | None = None
 
 
 def mixture_from_candidate(
@@ -205,10 +219,9 @@ def design_recipes(
         candidates = candidate_set(inputs)
     standards = choose_standards(inputs, candidates, allowed)
     used = ((standards.blank,) if standards.blank >= 0 else ()) + standards.standards
-    if objective is None:
-        objective = mean_K_objective(_epsilon_relative_u(inputs, candidates, standards.standards))
-    tests = choose_tests(inputs, candidates, exclude=used, objective=objective, allowed=allowed)
-
+    tests, analysis, error, analysis_check = _tests_for_analysis(
+        inputs, candidates, standards, used, objective, allowed
+    )
     mixtures: list[Mixture] = []
     if standards.blank >= 0:
         # design.blanks identical reagent blanks (replicates of one recipe).
@@ -228,9 +241,11 @@ def design_recipes(
         "(common practice).",
     ]
     if np.isfinite(tests.objective):
+        of_what = "of the mean K" if analysis == "all-bound" else "of the global fit's K"
         notes.append(
-            f"Test mixtures chosen to minimise the predicted u(K)/K of the mean K "
-            f"({100 * tests.objective:.2f} %) among {tests.eligible} eligible mixtures."
+            f"Test mixtures chosen to minimise the predicted u(K)/K {of_what} "
+            f"({100 * tests.objective:.2f} % from the readings) among {tests.eligible} "
+            "eligible mixtures."
         )
     else:
         notes.append("No test mixture met the window and bound-fraction constraints.")
@@ -239,7 +254,165 @@ def design_recipes(
         mixtures=tuple(mixtures),
         totals=totals,
         preparations=preparations(inputs, totals),
-        checks=tuple(_feasibility(inputs, candidates, len(standards.standards))),
+        checks=(
+            *_feasibility(inputs, candidates, len(standards.standards)),
+            *((analysis_check,) if tests.tests and standards.standards else ()),
+        ),
         notes=tuple(notes),
         objective=float(tests.objective) if np.isfinite(tests.objective) else None,
+        analysis=analysis,
+        all_bound_error=error,
     )
+
+
+#: Name of the check that says which analysis the tests are designed for, and why.
+ANALYSIS_CHECK = "analysis"
+
+
+def _tests_for_analysis(
+    inputs: PlanInputs,
+    candidates: CandidateSet,
+    standards: StandardsChoice,
+    used: tuple[int, ...],
+    objective: Objective | None,
+    allowed: NDArray[np.bool_] | None,
+) -> tuple[TestsChoice, str, float | None, Check]:
+    """Choose the tests for the analysis the plan will use, and say which and why.
+
+    The all-bound analysis is used when the plan asks for it, it applies to this reaction and
+    these standards (:func:`_all_bound_inapplicable`), and its K errs on the noise-free
+    readings of the chosen set by no more than ``design.K_bias_tolerance``; otherwise the
+    tests are designed for the global fit (:class:`planner.design.mixtures.GlobalFitObjective`).
+
+    Returns
+    -------
+    tuple
+        (the tests, ``"all-bound"`` or ``"global-fit"``, the all-bound analysis's relative
+        error on noise-free readings or None, the ``analysis`` check).
+    """
+    design = inputs.design
+    tolerance = design.K_bias_tolerance
+    floor = standards.achieved_bound_fraction
+    binds = f"the standards bind at least {100 * floor:.1f} % of {design.limiting}"
+    reason = _all_bound_inapplicable(inputs, candidates, standards.standards)
+    if design.analysis == "all-bound" and reason is None:
+        chosen = objective or mean_K_objective(
+            _epsilon_relative_u(inputs, candidates, standards.standards)
+        )
+        tests = choose_tests(inputs, candidates, exclude=used, objective=chosen, allowed=allowed)
+        error = _all_bound_error(inputs, candidates, standards, tests.tests)
+        reason = _all_bound_inapplicable(inputs, candidates, tests.tests)
+        if reason is None and error is not None and abs(error) <= tolerance:
+            return (
+                tests,
+                "all-bound",
+                error,
+                Check(
+                    ANALYSIS_CHECK,
+                    "pass",
+                    f"all-bound analysis: {binds}, so its K errs by {100 * error:+.1f} % on "
+                    f"noise-free readings (tolerance {100 * tolerance:g} %)",
+                ),
+            )
+        if reason is None:
+            reason = (
+                f"its K would err by {100 * error:+.1f} % on noise-free readings ({binds}; "
+                f"tolerance {100 * tolerance:g} %)"
+                if error is not None
+                else f"its K has no value on this shelf ({binds})"
+            )
+    fit = objective or global_fit_objective(
+        inputs, candidates, standards.standards, standards.blank
+    )
+    tests = choose_tests(inputs, candidates, exclude=used, objective=fit, allowed=allowed)
+    error = _all_bound_error(inputs, candidates, standards, tests.tests)
+    if design.analysis == "global-fit":
+        return (
+            tests,
+            "global-fit",
+            error,
+            Check(ANALYSIS_CHECK, "pass", "tests designed for the global fit (design.analysis)"),
+        )
+    return (
+        tests,
+        "global-fit",
+        error,
+        Check(
+            ANALYSIS_CHECK,
+            "warn",
+            f"the all-bound analysis does not suit this plan: {reason}; so the tests are "
+            "designed for the global fit of K and eps with the full equilibrium model, whose "
+            "K and u(K) the answer key gives",
+        ),
+    )
+
+
+def _all_bound_inapplicable(
+    inputs: PlanInputs, candidates: CandidateSet, rows: Sequence[int]
+) -> str | None:
+    """Why the all-bound analysis (a 1:1 expression) does not apply, or None when it does.
+
+    It does not apply when the measured species is not the 1:1 product of the limiting and
+    the excess component, when another product absorbs too, or when, in one of ``rows``,
+    another product holds more of the limiting reagent than the measured one does.
+    """
+    reaction = inputs.reaction
+    measured = inputs.measured_species
+    limiting = inputs.design.limiting
+    if inputs.excess is None or measured.formula != {limiting: 1, inputs.excess: 1}:
+        return (
+            f"{measured.name} is not the 1:1 product of {limiting} and one excess reagent, "
+            "and the all-bound expression is the 1:1 one"
+        )
+    others = [
+        sp.name for i, sp in enumerate(reaction.species) if i != inputs.measured and sp.epsilon
+    ]
+    if others:
+        return f"{', '.join(others)} absorb(s) too, which the all-bound expression ignores"
+    if rows:
+        species = candidates.evaluation.species_M[np.array(rows)]
+        limiting_column = reaction.components.index(limiting)
+        held = species * reaction.stoichiometry()[:, limiting_column][None, :]
+        rivals = [i for i in range(len(reaction.species)) if i != inputs.measured]
+        if rivals:
+            rival = held[:, rivals].max(axis=1)
+            if np.any(rival > held[:, inputs.measured]):
+                worst = rivals[int(np.argmax(held[:, rivals].max(axis=0)))]
+                return (
+                    f"{reaction.species[worst].name} holds more of {limiting} than "
+                    f"{measured.name} in some mixtures"
+                )
+    return None
+
+
+def _all_bound_error(
+    inputs: PlanInputs,
+    candidates: CandidateSet,
+    standards: StandardsChoice,
+    tests: Sequence[int],
+) -> float | None:
+    """Relative error of the all-bound mean K on the set's noise-free readings, or None."""
+    if not tests or not standards.standards or inputs.excess is None:
+        return None
+    ev = candidates.evaluation
+    blank = [standards.blank] if standards.blank >= 0 else []
+    rows = np.array([*blank, *standards.standards, *tests], dtype=np.int64)
+    n_blank, n_std = len(blank), len(standards.standards)
+    components = inputs.reaction.components
+    layout = Layout(
+        totals_M=ev.total_M[rows],
+        blanks=np.arange(n_blank, dtype=np.int64),
+        standards=np.arange(n_blank, n_blank + n_std, dtype=np.int64),
+        tests=np.arange(n_blank + n_std, rows.size, dtype=np.int64),
+        limiting=components.index(inputs.design.limiting),
+        excess=components.index(inputs.excess),
+        measured=inputs.measured,
+        epsilon_expected=inputs.measured_species.epsilon,
+        K_expected=10.0**inputs.measured_species.log_beta,
+    )
+    readings = ev.absorbance[rows]
+    net = readings - (readings[:n_blank].mean() if n_blank else 0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        _, k = all_bound_mean_K(layout, net[None, :], inputs.instrument.path_length_cm)
+        error = float(k.mean()) / layout.K_expected - 1.0
+    return error if np.isfinite(error) and k.mean() > 0 else None

@@ -43,6 +43,7 @@ measurement (GUM), sections 5.1 (eq. 10) and 6.2-6.3 (expanded uncertainty).
 from __future__ import annotations
 
 import functools
+import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any, cast
@@ -50,14 +51,15 @@ from typing import Any, cast
 import numpy as np
 from numpy.typing import NDArray
 
-from planner.analysis import all_bound_K_from_x
+from planner.analysis import all_bound_K_from_x, global_fit_gain, global_fit_jacobian
 from planner.forward import predict_readings
 from planner.inputs import PlanInputs
-from planner.predict._experiment import BenchExperiment, bench_experiment
+from planner.predict._experiment import BenchExperiment, analysis_layout, bench_experiment
 from planner.result import (
     COVERAGE_FACTOR_95,
     Budget,
     Contributor,
+    GlobalFitPrediction,
     Mixture,
     MixtureUncertainty,
     Prediction,
@@ -470,6 +472,19 @@ def _formula(
         "flask": "∂c/∂V_f",
         "reading": "",
     }.get(kind, "∂c/∂V_k")
+    if measurand.endswith("_global_fit"):
+        parameter = "log10 K" if measurand.startswith("K") else "ε"
+        if kind == "reading":
+            return (
+                f"Σ_m G[{parameter}, m]·∂A_net,m/∂A, where G = (JᵀJ)⁻¹Jᵀ is the global fit's gain"
+            )
+        chain = f"Σ_m G[{parameter}, m]·∂A_net,m/∂c·{stage1}"
+        if parameter == "log10 K":
+            chain = f"K·ln 10·{chain}"
+        return (
+            f"{chain}, where G = (JᵀJ)⁻¹Jᵀ is the global fit's gain, ∂A/∂c the forward "
+            "model's sensitivity (central difference)"
+        )
     n_tests = len(ex.tests)
     terms: list[str] = []
     jac = inputs.totals_jacobian[:, :, z]
@@ -584,17 +599,30 @@ def _reading_sensitivity(inputs: PlanInputs, ex: BenchExperiment) -> NDArray[np.
     return result
 
 
-def _per_mixture(
+def _reading_gradient(
     inputs: PlanInputs, ex: BenchExperiment, elementary: _Inputs
+) -> NDArray[np.float64]:
+    """d(reading of mixture m)/d(elementary input z), shape (n_mix, n_z).
+
+    A reading responds to the mixture's actual composition through the equilibrium and the
+    photometer, and to its own reading noise with sensitivity 1.
+    """
+    d_reading = _reading_sensitivity(inputs, ex)
+    gradient = np.einsum("mj,mjz->mz", d_reading, elementary.totals_jacobian)
+    gradient[np.arange(len(ex.mixture_ids)), elementary.reading] += 1.0
+    result: NDArray[np.float64] = gradient
+    return result
+
+
+def _per_mixture(
+    ex: BenchExperiment, elementary: _Inputs, reading_gradient: NDArray[np.float64]
 ) -> tuple[MixtureUncertainty, ...]:
     """Each mixture's composition and reading uncertainty (the reading responds to the actual
     composition through the equilibrium and the photometer, plus the reading noise)."""
     u = elementary.u
     jac = elementary.totals_jacobian
     u_totals = np.sqrt(np.einsum("mjz,z->mj", jac**2, u**2))
-    d_reading = _reading_sensitivity(inputs, ex)
-    reading_gradient = np.einsum("mj,mjz->mz", d_reading, jac)
-    u_reading = np.sqrt(((reading_gradient * u[None, :]) ** 2).sum(axis=1) + ex.absorbance_sd**2)
+    u_reading = np.sqrt(((reading_gradient * u[None, :]) ** 2).sum(axis=1))
     return tuple(
         MixtureUncertainty(
             id=mixture_id,
@@ -629,7 +657,8 @@ def reading_uncertainties(
         In plan order.
     """
     ex = bench_experiment(inputs, mixtures, for_analysis=False)
-    return _per_mixture(inputs, ex, _elementary_inputs(ex, _models()))
+    elementary = _elementary_inputs(ex, _models())
+    return _per_mixture(ex, elementary, _reading_gradient(inputs, ex, elementary))
 
 
 def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyResult:
@@ -697,7 +726,11 @@ def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyRes
     )
     u = elementary.u
     u_k = np.sqrt(((gradients.g_K * u[None, :]) ** 2).sum(axis=1))
-    per_mixture = _per_mixture(inputs, ex, elementary)
+    reading_gradient = _reading_gradient(inputs, ex, elementary)
+    per_mixture = _per_mixture(ex, elementary, reading_gradient)
+    fit_epsilon, fit_K = _global_fit_budgets(
+        inputs, ex, elementary, models, roles, reading_gradient
+    )
     return UncertaintyResult(
         epsilon=epsilon,
         epsilon_intercept=epsilon_i,
@@ -709,7 +742,57 @@ def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyRes
         K_true=ex.K_true,
         epsilon_true=ex.epsilon_true,
         test_ids=tuple(ex.mixture_ids[i] for i in ex.tests),
+        global_fit_epsilon=fit_epsilon,
+        global_fit_K=fit_K,
     )
+
+
+def _global_fit_budgets(
+    inputs: PlanInputs,
+    ex: BenchExperiment,
+    elementary: _Inputs,
+    models: _Models,
+    roles: Sequence[str],
+    reading_gradient: NDArray[np.float64],
+) -> tuple[Budget | None, Budget | None]:
+    """First-order budgets of the global fit's eps and K, or (None, None) when not separable.
+
+    The analyst fits the recipe's nominal totals, so every error of a stock, a delivery or a
+    flask reaches the fitted parameters only through the readings it changes: with G the
+    fit's gain (:func:`planner.analysis.global_fit_gain`), d theta/d z = G d A_net/d z, and
+    GUM eq. 10 (JCGM 100:2008) over the same elementary inputs as the all-bound budgets; the
+    inputs shared by several mixtures (a stock, a device's systematic error, the blank) carry
+    their correlation. On noise-free readings the fit returns the plan's eps and K exactly, so
+    the first-order estimate is those values.
+    """
+    layout = analysis_layout(ex)
+    gain = global_fit_gain(global_fit_jacobian(inputs.reaction, inputs.instrument, layout))
+    if not np.all(np.isfinite(gain)):
+        return None, None
+    fit = np.concatenate([ex.standards, ex.tests])
+    net = reading_gradient[fit] - reading_gradient[ex.blanks].mean(axis=0)
+    theta = gain @ net  # (2, n_z): d eps/dz, d log10 K/dz
+    epsilon = _budget(
+        "epsilon_global_fit",
+        ex.epsilon_true,
+        theta[0],
+        "L mol-1 cm-1",
+        ex,
+        elementary,
+        models,
+        roles,
+    )
+    k = _budget(
+        "K_global_fit",
+        ex.K_true,
+        theta[1] * ex.K_true * math.log(10.0),
+        "L/mol",
+        ex,
+        elementary,
+        models,
+        roles,
+    )
+    return epsilon, k
 
 
 def _interval(value: float, u: float) -> tuple[float, float]:
@@ -748,4 +831,17 @@ def prediction_from(result: UncertaintyResult) -> Prediction:
         K_ci95=result.K.ci95,
         K_per_test_ci95=tuple(_interval(k, u) for k, u in result.K_per_test),
         absorbance_ci95={m.id: m.absorbance_ci95 for m in result.mixtures},
+    )
+
+
+def global_fit_prediction_from(result: UncertaintyResult) -> GlobalFitPrediction | None:
+    """What the global fit will report, from the first-order budget; None when eps and K
+    cannot be separated on this plan."""
+    if result.global_fit_K is None or result.global_fit_epsilon is None:
+        return None
+    return GlobalFitPrediction(
+        epsilon=result.global_fit_epsilon.value,
+        u_epsilon=result.global_fit_epsilon.standard_uncertainty,
+        K=result.global_fit_K.value,
+        u_K=result.global_fit_K.standard_uncertainty,
     )

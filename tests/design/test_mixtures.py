@@ -26,7 +26,12 @@ import numpy as np
 import pytest
 
 from planner.design.candidates import candidate_set
-from planner.design.mixtures import choose_tests, first_order_relative_u_K, mean_K_objective
+from planner.design.mixtures import (
+    choose_tests,
+    first_order_relative_u_K,
+    global_fit_objective,
+    mean_K_objective,
+)
 from planner.design.standards import choose_standards
 from planner.planfile import plan_from_mapping
 
@@ -126,10 +131,18 @@ def _assert_inside(inputs, candidates, chosen):
 # ---------------------------------------------------------------------------------------------
 
 
-@pytest.mark.parametrize("objective_name", ["mean-K", "first-order"])
+def _objective(name, inputs, candidates, exclude, mean_k):
+    if name == "mean-K":
+        return mean_k
+    if name == "global-fit":
+        return global_fit_objective(inputs, candidates, exclude[1:], exclude[0])
+    return first_order_relative_u_K
+
+
+@pytest.mark.parametrize("objective_name", ["mean-K", "first-order", "global-fit"])
 def test_never_worse_than_exhaustive_search(tiny, objective_name):
     inputs, candidates, exclude, mean_k = tiny
-    objective = mean_k if objective_name == "mean-K" else first_order_relative_u_K
+    objective = _objective(objective_name, inputs, candidates, exclude, mean_k)
     count = inputs.design.tests
     eligible = _eligible(inputs, candidates)
     eligible[list(exclude)] = False
@@ -299,3 +312,18 @@ def test_nothing_allowed_gives_no_tests():
     assert result.tests == ()
     assert result.eligible == 0
     assert result.objective == np.inf
+
+
+def test_global_fit_objective_is_the_sandwich_covariance_written_out(tiny):
+    # u(K)/K = ln 10 sqrt([(J^T J)^-1 J^T S J (J^T J)^-1]_{lgK,lgK}) of the unweighted least
+    # squares fit, computed here with numpy.linalg.inv on the set's explicit rows.
+    inputs, candidates, exclude, _ = tiny
+    objective = global_fit_objective(inputs, candidates, exclude[1:], exclude[0])
+    result = choose_tests(inputs, candidates, exclude=exclude, objective=objective)
+    rows = np.array([*exclude[1:], *result.tests])
+    jacobian = objective.rows[rows]
+    covariance_readings = np.diag(candidates.u_absorbance[rows] ** 2)
+    inverse = np.linalg.inv(jacobian.T @ jacobian)
+    sandwich = inverse @ jacobian.T @ covariance_readings @ jacobian @ inverse
+    expected = np.log(10.0) * np.sqrt(sandwich[1, 1])
+    assert result.objective == pytest.approx(expected, rel=1e-9)
