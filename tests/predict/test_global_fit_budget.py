@@ -23,7 +23,8 @@ TOLERANCE = 0.06
 def test_global_fit_u_K_and_u_eps_agree_with_the_virtual_class(name, request):
     plan = request.getfixturevalue(name)
     budget = plan.uncertainty
-    assert budget is not None and budget.global_fit_K is not None
+    assert budget is not None
+    assert budget.global_fit_K is not None
     assert plan.global_fit is not None
     assert plan.global_fit.u_K == budget.global_fit_K.standard_uncertainty
     virtual = simulate(plan.inputs, plan.mixtures, trials=TRIALS, rng=np.random.default_rng(11))
