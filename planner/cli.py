@@ -496,7 +496,13 @@ def verify(
 
         saved = load_result(result_file)
         checks = verify_result(
-            saved.inputs, saved.mixtures, saved.totals, saved.preparations, saved.prediction
+            saved.inputs,
+            saved.mixtures,
+            saved.totals,
+            saved.preparations,
+            saved.prediction,
+            analysis=saved.analysis,
+            global_fit=saved.global_fit,
         )
         if quiet:
             pass

@@ -45,7 +45,15 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError
 from planner.errors import PlanFileError, ResultFileError
 from planner.inputs import PlanInputs
 from planner.planfile import plan_from_mapping, read_text
-from planner.result import Addition, Check, Mixture, Prediction, StockPreparation, Totals
+from planner.result import (
+    Addition,
+    Check,
+    GlobalFitPrediction,
+    Mixture,
+    Prediction,
+    StockPreparation,
+    Totals,
+)
 
 __all__ = ["LARGEST_NUMBER", "SCHEMA", "SavedPlan", "load_result", "parse_result"]
 
@@ -79,7 +87,13 @@ class SavedPlan:
     preparations
         The ``preparation`` block, in document order, or None when the document has none.
     prediction
-        The ``prediction`` block, or None when the document has none or states null.
+        The ``prediction`` block (the all-bound analysis), or None when the document has none
+        or states null.
+    analysis
+        The analysis the plan was designed for (``"all-bound"`` when the document does not
+        say).
+    global_fit
+        The ``global_fit_prediction`` block, or None.
     """
 
     inputs: PlanInputs
@@ -88,6 +102,8 @@ class SavedPlan:
     stated_checks: tuple[Check, ...]
     preparations: tuple[StockPreparation, ...] | None = None
     prediction: Prediction | None = None
+    analysis: str = "all-bound"
+    global_fit: GlobalFitPrediction | None = None
 
 
 # --------------------------------------------------------------------------------------------
@@ -179,6 +195,13 @@ class _PredictionModel(_Model):
     K_per_test: list[float] = Field(description="the K of each test mixture, a list of numbers")
 
 
+class _GlobalFitModel(_Model):
+    epsilon: float = Field(description="the molar absorptivity [L mol-1 cm-1], a number")
+    u_epsilon: float = Field(description="its standard uncertainty, a number")
+    K: float = Field(description="the measured species' K, a number")
+    u_K: float = Field(description="its standard uncertainty, a number")
+
+
 class _DocumentModel(_Model):
     # Consumers may add top-level blocks of their own; only the contract's nested objects are
     # closed.
@@ -198,7 +221,14 @@ class _DocumentModel(_Model):
         None, description="the list of stocks to prepare, each an object"
     )
     prediction: _PredictionModel | None = Field(
-        None, description="the prediction of the usual analysis, an object or null"
+        None, description="the prediction of the all-bound analysis, an object or null"
+    )
+    analysis: Literal["all-bound", "global-fit"] = Field(
+        "all-bound",
+        description='the analysis the plan is designed for, "all-bound" or "global-fit"',
+    )
+    global_fit_prediction: _GlobalFitModel | None = Field(
+        None, description="the prediction of the global fit, an object or null"
     )
 
 
@@ -552,6 +582,17 @@ def _build(text: str, source: str) -> SavedPlan:
             None if model.preparation is None else tuple(_preparation(p) for p in model.preparation)
         ),
         prediction=_prediction(model.prediction),
+        analysis=model.analysis,
+        global_fit=(
+            None
+            if model.global_fit_prediction is None
+            else GlobalFitPrediction(
+                epsilon=float(model.global_fit_prediction.epsilon),
+                u_epsilon=float(model.global_fit_prediction.u_epsilon),
+                K=float(model.global_fit_prediction.K),
+                u_K=float(model.global_fit_prediction.u_K),
+            )
+        ),
     )
 
 

@@ -32,10 +32,19 @@ from planner.lab.glassware import (
     standard_uncertainty_mL,
 )
 from planner.lab.photometer import observed_absorbance, true_absorbance
-from planner.result import Check, Mixture, Prediction, StockPreparation, Totals
+from planner.result import (
+    Check,
+    GlobalFitPrediction,
+    Mixture,
+    Prediction,
+    StockPreparation,
+    Totals,
+)
+from planner.verify_global_fit import RecomputedGlobalFit, recompute_global_fit
 from planner.verify_prediction import (
     RecomputedPrediction,
     delivery_split_mL,
+    measured_deliveries,
     recompute_prediction,
 )
 
@@ -54,6 +63,8 @@ CHECK_NAMES = (
     "volume-totals",
     "concentrations",
     "absorbance-window",
+    "standards-span",
+    "blank-reading",
     "reading-uncertainty",
     "limiting-reagent-assumption",
     "product-speciation",
@@ -86,9 +97,21 @@ _RTOL_PREDICTION = 1e-6
 # recomputation moves under a change of its inputs in their last digits
 # (planner.verify_prediction.ROUNDING_PROBE): an ill-conditioned K is decided by rounding.
 _NOISE = 100.0
+# The global fit's prediction is re-derived by other finite differences (steps 1e-4 in the
+# constants, 1e-6 in the totals) than the prediction stage's, so it agrees to their
+# truncation error, far below 1e-4 relative.
+_RTOL_GLOBAL_FIT = 1e-4
 # Stock flasks of the prep room (ISO 1042 nominal capacities, from memory): the rule of
 # docs/methods.md section 13, restated here so that the verifier does not import the design.
 _STOCK_FLASKS_mL = (100.0, 250.0, 500.0, 1000.0, 2000.0)
+# Every standard and test reading +/- this many u(A) inside the window (2 u: about 95 %).
+_MARGIN_U = 2.0
+# The standards' blank-subtracted readings span at least this share of the window (common
+# practice).
+_STANDARDS_SPAN = 0.5
+# A reagent blank reading above this share of the window's width is worth a warning (common
+# practice).
+_HIGH_BLANK = 0.1
 # Problems listed in one check's detail before "and N more".
 _MAX_LISTED = 8
 
@@ -145,9 +168,12 @@ def verify_result(
     totals: Totals,
     preparations: Sequence[StockPreparation] | None,
     prediction: Prediction | None,
+    *,
+    analysis: str = "all-bound",
+    global_fit: GlobalFitPrediction | None = None,
 ) -> tuple[Check, ...]:
     """Re-check a saved plan result: everything :func:`verify_plan` checks, the preparation
-    of every stock and the prediction.
+    of every stock and the predictions of both analyses.
 
     Parameters
     ----------
@@ -161,6 +187,10 @@ def verify_result(
         The stated ``preparation`` block, or None when the result has none.
     prediction
         The stated ``prediction`` block, or None when the result has none (or states null).
+    analysis
+        The analysis the plan was designed for (``"all-bound"`` or ``"global-fit"``).
+    global_fit
+        The stated global-fit prediction, or None.
 
     Returns
     -------
@@ -177,7 +207,7 @@ def verify_result(
     state = _State(inputs, mixtures)
     checks = _plan_checks(inputs, mixtures, totals, state)
     checks.append(_preparation(inputs, mixtures, preparations))
-    checks.append(_prediction(inputs, mixtures, state, prediction))
+    checks.append(_prediction(inputs, mixtures, state, prediction, analysis, global_fit))
     return tuple(checks)
 
 
@@ -190,6 +220,8 @@ def _plan_checks(
         _volume_totals(inputs, mixtures),
         _concentrations(inputs, mixtures, state),
         _window(inputs, mixtures, state),
+        _standards_span(inputs, mixtures, state),
+        _blank_check(inputs, mixtures, state),
         _reading_uncertainty(inputs, mixtures, state),
         _assumption(inputs, mixtures, state),
         _speciation(inputs, mixtures, state),
@@ -459,6 +491,15 @@ def _window(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> C
                 f"{m.id} ({m.role}) reads {computed:.3f}, outside the window "
                 f"{low:g}-{high:g}: change its limiting-reagent volume"
             )
+        elif m.role != "blank" and math.isfinite(m.u_absorbance):
+            # A real bench reads within +/- 2 u(A) of the prediction about 95 times in 100
+            # (JCGM 100:2008, 6.3): that whole range belongs inside the window.
+            margin = _MARGIN_U * m.u_absorbance
+            if computed - margin < low or computed + margin > high:
+                problems.append(
+                    f"{m.id} ({m.role}) reads {computed:.3f} +/- {margin:.3f} (2 u(A)), which "
+                    f"leaves the window {low:g}-{high:g} on a real bench: move it inward"
+                )
     if not any(m.role != "blank" for m in mixtures):
         problems.append(
             "no mixture reaches the window: use a more concentrated limiting stock, a longer "
@@ -467,20 +508,76 @@ def _window(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> C
     return _check(
         "absorbance-window",
         problems,
-        f"every standard and test reads inside {low:g}-{high:g}",
+        f"every standard and test reads inside {low:g}-{high:g}, by at least 2 u(A)",
     )
 
 
+def _standards_span(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> Check:
+    """The standards' blank-subtracted readings span at least half the window (common
+    practice: a short curve fixes its slope poorly and hides curvature)."""
+    low, high = inputs.instrument.absorbance_window
+    blank = _blank_reading(mixtures, state)
+    net = [
+        float(state.absorbance[i]) - blank for i, m in enumerate(mixtures) if m.role == "standard"
+    ]
+    if len(net) < 2:
+        return Check("standards-span", "pass", "one standard: no curve to span")
+    span = max(net) - min(net)
+    needed = _STANDARDS_SPAN * (high - low)
+    if span + 1e-12 < needed:
+        return Check(
+            "standards-span",
+            "fail",
+            f"the standards' blank-subtracted readings span {span:.3f}, less than half the "
+            f"window ({needed:.3f}): spread the limiting reagent's volumes, or use a "
+            "pipette or buret that delivers a wider range",
+        )
+    return Check(
+        "standards-span",
+        "pass",
+        f"the standards' blank-subtracted readings span {span:.3f} of the window's "
+        f"{high - low:.3f}",
+    )
+
+
+def _blank_reading(mixtures: Sequence[Mixture], state: _State) -> float:
+    """Mean reading of the reagent blanks (0 without one)."""
+    readings = [float(state.absorbance[i]) for i, m in enumerate(mixtures) if m.role == "blank"]
+    return sum(readings) / len(readings) if readings else 0.0
+
+
+def _blank_check(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> Check:
+    """A reagent blank that reads high leaves less of the window to the product."""
+    low, high = inputs.instrument.absorbance_window
+    blank = _blank_reading(mixtures, state)
+    left = high - max(blank, low)
+    if blank > _HIGH_BLANK * (high - low):
+        return Check(
+            "blank-reading",
+            "warn",
+            f"the reagent blank reads {blank:.3f}, so the product has {left:.3f} of the "
+            f"window's {high - low:.3f} left: the excess reagent or the medium absorbs; a "
+            "less concentrated excess or another wavelength leaves more",
+        )
+    return Check("blank-reading", "pass", f"the reagent blank reads {blank:.3f}")
+
+
 def _solve_and_read(
-    inputs: PlanInputs, totals: np.ndarray
+    inputs: PlanInputs,
+    totals: np.ndarray,
+    log_beta: np.ndarray | None = None,
+    species_epsilon: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Free components, species, Beer-Lambert absorbance and photometer reading of component
     totals (n, n_components), re-derived here (this module keeps its own forward model on
-    purpose, to check planner.forward's)."""
+    purpose, to check planner.forward's); ``log_beta`` and ``species_epsilon`` replace the
+    plan's constants when given."""
     reaction = inputs.reaction
-    solved = solve_equilibrium(totals, reaction.stoichiometry(), reaction.log_beta())
+    logs = reaction.log_beta() if log_beta is None else log_beta
+    solved = solve_equilibrium(totals, reaction.stoichiometry(), logs)
     absorbers = np.concatenate([solved.species_M, solved.free_M], axis=1)
-    epsilon = np.concatenate([reaction.species_epsilon(), reaction.free_epsilon()])
+    species = reaction.species_epsilon() if species_epsilon is None else species_epsilon
+    epsilon = np.concatenate([species, reaction.free_epsilon()])
     net = np.asarray(
         true_absorbance(absorbers, epsilon, inputs.instrument.path_length_cm), dtype=float
     )
@@ -1031,8 +1128,82 @@ def _prediction(
     mixtures: Sequence[Mixture],
     state: _State,
     stated: Prediction | None,
+    analysis: str = "all-bound",
+    stated_fit: GlobalFitPrediction | None = None,
 ) -> Check:
+    """The ``prediction`` check: the analysis the plan is designed for, then the other one.
+
+    For a plan designed for the global fit the all-bound block may be null, and must be when
+    the all-bound analysis of the recipes gives meaningless numbers.
+    """
     recomputed = recompute_prediction(inputs, mixtures, state.components, state.absorbance)
+    fit = _global_fit_prediction(inputs, mixtures, state, stated_fit)
+    if analysis == "global-fit":
+        if stated is None:
+            return fit
+        bound = _all_bound_prediction(mixtures, stated, recomputed)
+    else:
+        bound = _all_bound_prediction(mixtures, stated, recomputed)
+    order = {"fail": 0, "warn": 1, "pass": 2}
+    worst = min(bound.status, fit.status, key=order.__getitem__)
+    return Check("prediction", worst, f"{bound.detail}; {fit.detail}")
+
+
+def _global_fit_prediction(
+    inputs: PlanInputs,
+    mixtures: Sequence[Mixture],
+    state: _State,
+    stated: GlobalFitPrediction | None,
+) -> Check:
+    """The global fit's eps, K and their uncertainties against an independent derivation."""
+    listed = measured_deliveries(inputs, mixtures)
+    recomputed = (
+        listed
+        if isinstance(listed, str)
+        else recompute_global_fit(
+            inputs,
+            mixtures,
+            state.components,
+            lambda totals, logs, eps: _solve_and_read(inputs, totals, logs, eps)[3],
+            listed,
+        )
+    )
+    if stated is None:
+        if isinstance(recomputed, RecomputedGlobalFit):
+            return Check(
+                "prediction",
+                "warn",
+                "the result states no global-fit prediction, though the recipes give one "
+                f"(K {recomputed.K:.4g} ± {recomputed.u_K:.2g}): plan again to get it",
+            )
+        return Check("prediction", "pass", f"no global-fit prediction stated: {recomputed}")
+    if isinstance(recomputed, str):
+        return Check(
+            "prediction",
+            "fail",
+            f"the result states a global-fit prediction, but the recipes give none: {recomputed}",
+        )
+    problems = [
+        f"global fit {key}: {_pair(float(getattr(stated, key)), float(getattr(recomputed, key)))}"
+        for key in ("epsilon", "u_epsilon", "K", "u_K")
+        if not _close(
+            float(getattr(stated, key)), float(getattr(recomputed, key)), _RTOL_GLOBAL_FIT, 0.0
+        )
+    ]
+    return _check(
+        "prediction",
+        problems,
+        f"the global fit's eps {recomputed.epsilon:.4g} ± {recomputed.u_epsilon:.2g} and K "
+        f"{recomputed.K:.4g} ± {recomputed.u_K:.2g} agree with a fresh derivation",
+    )
+
+
+def _all_bound_prediction(
+    mixtures: Sequence[Mixture],
+    stated: Prediction | None,
+    recomputed: RecomputedPrediction | str,
+) -> Check:
+    """The all-bound analysis's prediction block against :func:`recompute_prediction`."""
     if isinstance(recomputed, RecomputedPrediction):
         meaningless = _meaningless(recomputed)
         if meaningless:

@@ -77,6 +77,7 @@ __all__ = [
     "ROUNDING_PROBE",
     "RecomputedPrediction",
     "delivery_split_mL",
+    "measured_deliveries",
     "recompute_prediction",
 ]
 
@@ -146,6 +147,40 @@ def delivery_split_mL(device: Device) -> tuple[float, float] | None:
     if device.kind in _GRADUATED:
         return 0.0, standard_uncertainty_mL(device)
     return None
+
+
+def measured_deliveries(
+    inputs: PlanInputs, mixtures: Sequence[Mixture]
+) -> list[tuple[int, int, str, float, float]] | str:
+    """Every measured delivery of the mixtures, with its error model, or why there is none.
+
+    Returns
+    -------
+    list or str
+        (row in ``mixtures``, stock column in ``inputs.stocks``, device id, u of the device's
+        systematic error [mL], u of the delivery's random error [mL]) per delivery; the
+        diluent to a flask's mark is the flask's volume, not a delivery. A string names an
+        addition of an unknown stock or a device that does not measure.
+    """
+    column_of = {st.id: j for j, st in enumerate(inputs.stocks)}
+    diluent = inputs.diluent
+    in_flask = inputs.design.vessel_kind == "volumetric-flask"
+    shelf = devices_by_id(inputs.glassware)
+    deliveries: list[tuple[int, int, str, float, float]] = []
+    for row, mixture in enumerate(mixtures):
+        for addition in mixture.additions:
+            column = column_of.get(addition.stock)
+            if column is None:
+                return f"{mixture.id} adds {addition.stock!r}, which is not a stock"
+            if in_flask and diluent is not None and addition.stock == diluent.id:
+                continue  # to the mark: the flask's volume, not a measured delivery
+            for device_id in addition.devices:
+                device = shelf.get(device_id)
+                split = None if device is None else delivery_split_mL(device)
+                if split is None:
+                    return f"{mixture.id}: {device_id} does not measure a delivery"
+                deliveries.append((row, column, device_id, *split))
+    return deliveries
 
 
 def _square(value: float) -> float:
@@ -221,27 +256,17 @@ def recompute_prediction(
     ).reshape(len(stock_ids), 2)
     diluent = inputs.diluent
     diluent_column = column_of[diluent.id] if diluent is not None else None
-    in_flask = inputs.design.vessel_kind == "volumetric-flask"
     volume_mL = inputs.design.total_volume_mL
-    shelf = devices_by_id(inputs.glassware)
 
     # Per chosen mixture: the stock volumes, and every measured delivery.
     volumes = np.zeros((len(chosen), len(stock_ids)))
-    deliveries: list[tuple[int, int, str, float, float]] = []
+    listed = measured_deliveries(inputs, [mixtures[index] for index in chosen])
+    if isinstance(listed, str):
+        return listed
+    deliveries = listed
     for row, index in enumerate(chosen):
         for addition in mixtures[index].additions:
-            column = column_of.get(addition.stock)
-            if column is None:
-                return f"{mixtures[index].id} adds {addition.stock!r}, which is not a stock"
-            volumes[row, column] += addition.volume_mL
-            if in_flask and column == diluent_column:
-                continue  # to the mark: the flask's volume, not a measured delivery
-            for device_id in addition.devices:
-                device = shelf.get(device_id)
-                split = None if device is None else delivery_split_mL(device)
-                if split is None:
-                    return f"{mixtures[index].id}: {device_id} does not measure a delivery"
-                deliveries.append((row, column, device_id, *split))
+            volumes[row, column_of[addition.stock]] += addition.volume_mL
 
     def evaluate(totals: NDArray[np.float64], reads: NDArray[np.float64]) -> list[float]:
         """[eps, u(eps), mean K, u(mean K), K of each test] for these totals and readings."""

@@ -430,19 +430,52 @@ def test_every_recipe_verifies_untouched(recipe: str, tmp_path: Path) -> None:
     plan = design_plan(load_plan(ROOT / "recipes" / recipe))
     document: Document = json.loads(plan_json(plan))
     code, checks = verify_command(document, tmp_path)
-    # Exactly the plan's own verdict.
-    assert code == (1 if plan.failed else 0)
+    # Exactly the plan's own verdict: every recipe passes.
+    assert not plan.failed
+    assert code == 0, {n: c.detail for n, c in checks.items() if c.status == "fail"}
     assert checks["preparation"].status == "pass"
-    if plan.failed:
-        # The 1:2-dominant recipe: the plan fails prediction-meaningful, and verify finds the
-        # same meaningless all-bound numbers on its own.
-        assert {c.name for c in plan.checks if c.status == "fail"} == {"prediction-meaningful"}
-        assert {n for n, c in checks.items() if c.status == "fail"} == {"prediction"}
-        assert plan.prediction is None
-    else:
-        assert code == 0, {n: c.detail for n, c in checks.items() if c.status == "fail"}
+    assert checks["prediction"].status == "pass"
+    assert plan.global_fit is not None
+    if plan.analysis == "all-bound":
         assert plan.prediction is not None
-        assert checks["prediction"].status == "pass"
+    else:
+        # The 1:2-dominant recipe: designed for the global fit, all-bound numbers withheld.
+        assert plan.prediction is None
+
+
+@pytest.mark.parametrize(
+    ("key", "factor"), [("K", 1.05), ("u_K", 1.2), ("u_epsilon", 0.8), ("epsilon", 1.01)]
+)
+def test_a_changed_global_fit_prediction_fails(
+    document: Document, tmp_path: Path, key: str, factor: float
+) -> None:
+    document["global_fit_prediction"][key] *= factor
+    code, checks = verify_command(document, tmp_path)
+    assert code == 1
+    assert failed(checks) == {"prediction"}
+    assert f"global fit {key}:" in checks["prediction"].detail
+
+
+def test_a_global_fit_plan_stating_meaningless_all_bound_numbers_fails(tmp_path: Path) -> None:
+    plan = design_plan(load_plan(ROOT / "recipes" / "iron-thiocyanate-ligand-excess.toml"))
+    document: Document = json.loads(plan_json(plan))
+    code, checks = verify_command(document, tmp_path)
+    assert code == 0
+    # Someone pastes an all-bound block into the answer key of this plan.
+    document["prediction"] = {
+        "epsilon": 1482.0,
+        "u_epsilon": 9.9,
+        "K": 445.4,
+        "u_K": 161.5,
+        "K_bias_from_assumption": 3.545,
+        "K_true": 98.0,
+        "epsilon_true": 4700.0,
+        "K_per_test": [100.0] * len(plan.by_role("test")),
+    }
+    code, checks = verify_command(document, tmp_path)
+    assert code == 1
+    assert failed(checks) == {"prediction"}
+    assert "meaningless" in checks["prediction"].detail
 
 
 def test_ten_times_the_mass_to_weigh_fails(document: Document, tmp_path: Path) -> None:

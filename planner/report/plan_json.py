@@ -90,7 +90,9 @@ def plan_document(plan: Plan) -> dict[str, Any]:
     dict
         Keys ``schema``, ``title``, ``inputs`` (the validated plan file, as
         :func:`planner.planfile.plan_to_mapping` writes it), ``mixtures``, ``totals_mL``,
-        ``checks`` (failed first, then warnings, then passes), ``prediction`` (or ``None``),
+        ``checks`` (failed first, then warnings, then passes), ``prediction`` (the all-bound
+        analysis's, or ``None``), ``analysis`` (which one the plan is designed for),
+        ``global_fit_prediction`` (or ``None``),
         ``preparation`` and ``notes``. Floats are not rounded.
     """
     # Imported here: planfile pulls in pydantic, which the rest of this module does not need.
@@ -107,6 +109,17 @@ def plan_document(plan: Plan) -> dict[str, Any]:
             for c in checks_worst_first(plan.checks)
         ],
         "prediction": _prediction(plan.prediction),
+        "analysis": plan.analysis,
+        "global_fit_prediction": (
+            None
+            if plan.global_fit is None
+            else {
+                "epsilon": plan.global_fit.epsilon,
+                "u_epsilon": plan.global_fit.u_epsilon,
+                "K": plan.global_fit.K,
+                "u_K": plan.global_fit.u_K,
+            }
+        ),
         "preparation": [
             {
                 "stock": p.stock,

@@ -18,6 +18,8 @@ TOP_KEYS = {
     "totals_mL",
     "checks",
     "prediction",
+    "analysis",
+    "global_fit_prediction",
     "preparation",
     "notes",
 }
