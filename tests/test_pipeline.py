@@ -109,6 +109,7 @@ _RANKS = {
     "verify_prediction": 4,
     "predict": 4,
     "pipeline": 5,
+    "fileio": 5,
     "planfile": 5,
     "resultfile": 6,
     "report": 7,
