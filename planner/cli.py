@@ -72,6 +72,13 @@ _DateOption = Annotated[
         "--date", help="Date printed on the sheets (default: today), an ISO date YYYY-MM-DD."
     ),
 ]
+
+
+def _seed_option(help_text: str) -> Any:
+    """The --seed option, 0 to 2**32 - 1, with the command's own help."""
+    return typer.Option("--seed", min=0, max=_MAX_SEED, help=help_text)
+
+
 _QuietOption = Annotated[
     bool, typer.Option("--quiet", "-q", help="Print nothing but errors; the exit status tells.")
 ]
@@ -563,13 +570,7 @@ def variants(
         ),
     ],
     seed: Annotated[
-        int,
-        typer.Option(
-            "--seed",
-            min=0,
-            max=_MAX_SEED,
-            help=f"Seed, 0 to {_MAX_SEED}; the same seed gives the same sets.",
-        ),
+        int, _seed_option(f"Seed, 0 to {_MAX_SEED}; the same seed gives the same sets.")
     ],
     out: Annotated[Path, typer.Option("--out", help="Folder for the section folders.")],
     force: _ForceOption = False,
@@ -666,13 +667,7 @@ def simulate(
         ),
     ] = 100_000,
     seed: Annotated[
-        int,
-        typer.Option(
-            "--seed",
-            min=0,
-            max=_MAX_SEED,
-            help=f"Seed, 0 to {_MAX_SEED}; the same seed gives exactly the same results.",
-        ),
+        int, _seed_option(f"Seed, 0 to {_MAX_SEED}; the same seed gives exactly the same results.")
     ] = 0,
     output_format: _FormatOption = OutputFormat.text,
     out: Annotated[

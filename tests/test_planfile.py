@@ -33,7 +33,6 @@ from planner.inputs import (
 )
 from planner.planfile import (
     MAX_PLAN_FILE_BYTES,
-    MAX_RESULT_FILE_BYTES,
     load_plan,
     parse_plan,
     plan_from_mapping,

@@ -25,7 +25,7 @@ them; the piston pipette's ``volume_mL`` is filled from the top of its range.
 
 from __future__ import annotations
 
-from planner.fileio import MAX_PLAN_FILE_BYTES, MAX_RESULT_FILE_BYTES
+from planner.fileio.text import MAX_PLAN_FILE_BYTES, MAX_RESULT_FILE_BYTES
 from planner.planfile.reader import load_plan, parse_plan, plan_from_mapping
 from planner.planfile.writer import plan_to_mapping
 

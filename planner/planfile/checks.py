@@ -15,7 +15,7 @@ import re
 from collections.abc import Sequence
 
 from planner.errors import InvalidInputError, shown
-from planner.fileio import NO_VALUE, fail
+from planner.fileio.problems import NO_VALUE, fail
 from planner.inputs import (
     DEVICE_KINDS,
     DesignSettings,
@@ -90,21 +90,29 @@ def plan_inputs(plan: PlanModel) -> PlanInputs:
             instrument.cuvette_fill_mL,
             "a mixture must fill the cuvette: raise the total volume or lower the fill",
         )
-    return PlanInputs(
-        title=plan.title,
-        reaction=reaction,
-        instrument=instrument,
-        stocks=stocks,
-        glassware=devices,
-        design=design,
-        session=_session(plan.session),
-    )
+    session = _session(plan.session)
+    return PlanInputs(plan.title, reaction, instrument, stocks, devices, design, session)
 
 
 def _format_size(value: float) -> str:
     """Shortest decimal for a size, as device ids write it (25.0 -> '25')."""
     text = f"{value:.6f}".rstrip("0").rstrip(".")
     return text or "0"
+
+
+def _ordered(
+    field: str, pair: Sequence[float], example: str, unit: str = ""
+) -> tuple[float, float]:
+    """A [low, high] pair as floats, or a problem when low is not below high."""
+    low, high = pair
+    if not low < high:
+        fail(
+            field,
+            "low end must be below the high end",
+            list(pair),
+            f"write [low, high]{unit}, e.g. {example}",
+        )
+    return float(low), float(high)
 
 
 def _choices(names: Sequence[str]) -> str:
@@ -255,14 +263,7 @@ def _reaction(model: ReactionModel) -> Reaction:
 
 
 def _instrument(model: InstrumentModel) -> Instrument:
-    low, high = model.absorbance_window
-    if not low < high:
-        fail(
-            "instrument.absorbance_window",
-            "low end must be below the high end",
-            list(model.absorbance_window),
-            "write [low, high], e.g. [0.1, 1.0]",
-        )
+    low, high = _ordered("instrument.absorbance_window", model.absorbance_window, "[0.1, 1.0]")
     return Instrument(
         wavelength_nm=float(model.wavelength_nm),
         path_length_cm=float(model.path_length_cm),
@@ -404,14 +405,7 @@ def _device(index: int, entry: GlasswareModel) -> Device:
                 "missing required key for a piston pipette",
                 hint="give range_uL = [low, high] and step_uL, e.g. [100, 1000] and 1",
             )
-        low_uL, high_uL = entry.range_uL
-        if not low_uL < high_uL:
-            fail(
-                f"{field}.range_uL",
-                "low end must be below the high end",
-                list(entry.range_uL),
-                "write [low, high] in µL, e.g. [100, 1000]",
-            )
+        low_uL, high_uL = _ordered(f"{field}.range_uL", entry.range_uL, "[100, 1000]", " in µL")
         if entry.step_uL > low_uL:
             fail(
                 f"{field}.step_uL",
@@ -447,27 +441,23 @@ def _device(index: int, entry: GlasswareModel) -> Device:
 
     if entry.division_mL is not None:
         if kind not in GRADUATED_KINDS:
+            hint = "remove it; division_mL is for graduated pipettes, burets and cylinders"
             fail(
                 f"{field}.division_mL",
                 f"a {kind} has no graduations to read",
                 entry.division_mL,
-                "remove it; division_mL is for graduated pipettes, burets and cylinders",
+                hint,
             )
-        if entry.division_mL >= volume_mL:
-            fail(
-                f"{field}.division_mL",
-                f"must be below the capacity ({_format_size(volume_mL)} mL)",
-                entry.division_mL,
-                "give the reading resolution in mL, e.g. 0.1",
-            )
+        _below_capacity(
+            f"{field}.division_mL",
+            entry.division_mL,
+            volume_mL,
+            "give the reading resolution in mL, e.g. 0.1",
+        )
     if entry.min_delivery_mL is not None:
         if kind not in DELIVERING_KINDS:
-            fail(
-                f"{field}.min_delivery_mL",
-                f"a {kind} is a vessel, it does not deliver",
-                entry.min_delivery_mL,
-                "remove it",
-            )
+            problem = f"a {kind} is a vessel, it does not deliver"
+            fail(f"{field}.min_delivery_mL", problem, entry.min_delivery_mL, "remove it")
         if entry.min_delivery_mL > volume_mL:
             fail(
                 f"{field}.min_delivery_mL",
@@ -475,11 +465,11 @@ def _device(index: int, entry: GlasswareModel) -> Device:
                 entry.min_delivery_mL,
                 "give the smallest volume worth delivering, at most the capacity",
             )
-    if entry.tolerance_mL is not None and entry.tolerance_mL >= volume_mL:
-        fail(
+    if entry.tolerance_mL is not None:
+        _below_capacity(
             f"{field}.tolerance_mL",
-            f"must be below the capacity ({_format_size(volume_mL)} mL)",
             entry.tolerance_mL,
+            volume_mL,
             "give the maximum permissible error in mL, e.g. 0.01 for a 5 mL pipette",
         )
 
@@ -496,6 +486,17 @@ def _device(index: int, entry: GlasswareModel) -> Device:
     )
     _check_device_model(field, device)
     return device
+
+
+def _below_capacity(field: str, value_mL: float, capacity_mL: float, hint: str) -> None:
+    """A device's division or tolerance must be below its capacity."""
+    if value_mL >= capacity_mL:
+        fail(
+            field,
+            f"must be below the capacity ({_format_size(capacity_mL)} mL)",
+            value_mL,
+            hint,
+        )
 
 
 def _check_device_model(field: str, device: Device) -> None:
@@ -630,14 +631,7 @@ def _design(
                 "mark one stock diluent = true",
             )
 
-    low, high = model.bound_fraction_range
-    if not low < high:
-        fail(
-            "design.bound_fraction_range",
-            "low end must be below the high end",
-            list(model.bound_fraction_range),
-            "write [low, high], e.g. [0.15, 0.85]",
-        )
+    low, high = _ordered("design.bound_fraction_range", model.bound_fraction_range, "[0.15, 0.85]")
     if model.bound_fraction_span > high - low:
         fail(
             "design.bound_fraction_span",

@@ -18,8 +18,7 @@ from typing import Any
 from pydantic import ValidationError
 
 from planner.errors import PlanFileError
-from planner.fileio import (
-    PLAN_FILE,
+from planner.fileio.problems import (
     TOML_WORDS,
     ContentError,
     explain,
@@ -27,8 +26,8 @@ from planner.fileio import (
     key_path,
     offending_line,
     public_error,
-    read_text,
 )
+from planner.fileio.text import PLAN_FILE, read_text
 from planner.inputs import PlanInputs
 from planner.planfile.checks import plan_inputs
 from planner.planfile.schema import PlanModel
@@ -168,7 +167,7 @@ def load_plan(path: str | os.PathLike[str]) -> PlanInputs:
     Returns
     -------
     PlanInputs
-        The validated, unit-normalised plan.
+        As :func:`parse_plan` gives it.
 
     Raises
     ------

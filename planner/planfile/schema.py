@@ -2,7 +2,7 @@
 
 Step 1 of reading a plan file (:mod:`planner.planfile`): every key known, every value of the
 right type, every single number in its range. Each field's ``description`` says what would be
-valid; :func:`planner.fileio.explain` quotes it as the fix of a message ("<key> is
+valid; :func:`planner.fileio.problems.explain` quotes it as the fix of a message ("<key> is
 <description>"). Checks that need more than one key are in :mod:`planner.planfile.checks`.
 """
 

@@ -20,17 +20,8 @@ from typing import Any
 from pydantic import ValidationError
 
 from planner.errors import PlanFileError, ResultFileError
-from planner.fileio import (
-    JSON_WORDS,
-    PLAN_RESULT,
-    ContentError,
-    explain,
-    fail,
-    key_path,
-    offending_line,
-    public_error,
-    read_text,
-)
+from planner.fileio import problems
+from planner.fileio.text import PLAN_RESULT, read_text
 from planner.inputs import PlanInputs
 from planner.planfile import plan_from_mapping
 from planner.result import Check, Mixture, Prediction, StockPreparation, Totals
@@ -92,13 +83,13 @@ class _Object(dict[str, Any]):
         self.repeated = [key for key, count in Counter(k for k, _ in pairs).items() if count > 1]
 
 
-def _syntax_error(exc: json.JSONDecodeError, text: str) -> ContentError:
+def _syntax_error(exc: json.JSONDecodeError, text: str) -> problems.ContentError:
     problem = f"JSON syntax error at line {exc.lineno}, column {exc.colno}: {exc.msg.lower()}"
     hint = "check the quotes, brackets, commas and colons near there (JSON has no trailing commas)"
-    line = offending_line(text, exc.lineno)
+    line = problems.offending_line(text, exc.lineno)
     if line is None:
-        return ContentError("", problem, hint=hint)
-    return ContentError("", problem, line, hint)
+        return problems.ContentError("", problem, hint=hint)
+    return problems.ContentError("", problem, line, hint)
 
 
 def _plain(value: Any, loc: tuple[int | str, ...]) -> Any:
@@ -107,8 +98,8 @@ def _plain(value: Any, loc: tuple[int | str, ...]) -> Any:
     if isinstance(value, _Object):
         if value.repeated:
             key = value.repeated[0]
-            fail(
-                key_path((*loc, key)),
+            problems.fail(
+                problems.key_path((*loc, key)),
                 "key given more than once in one object",
                 key,
                 "keep one; JSON readers silently keep the last, so an edit could be lost",
@@ -117,8 +108,8 @@ def _plain(value: Any, loc: tuple[int | str, ...]) -> Any:
     if isinstance(value, list):
         return [_plain(item, (*loc, index)) for index, item in enumerate(value)]
     if isinstance(value, float) and not math.isfinite(value):
-        fail(
-            key_path(loc),
+        problems.fail(
+            problems.key_path(loc),
             "must be a finite number (JSON has no NaN or Infinity)",
             value,
             "write the number itself; the planner never writes NaN",
@@ -129,8 +120,8 @@ def _plain(value: Any, loc: tuple[int | str, ...]) -> Any:
         and loc[:1] != ("inputs",)
         and abs(value) > LARGEST_NUMBER
     ):
-        fail(
-            key_path(loc),
+        problems.fail(
+            problems.key_path(loc),
             f"number too large for a plan result (more than {LARGEST_NUMBER:g} in size)",
             value,
             "write the intended value; no quantity of a plan comes near this size",
@@ -144,9 +135,9 @@ def _document(text: str) -> dict[str, Any]:
     except json.JSONDecodeError as exc:
         raise _syntax_error(exc, text) from None
     except RecursionError:
-        fail("", "JSON nested too deeply to read", hint="this is not a plan result")
+        problems.fail("", "JSON nested too deeply to read", hint="this is not a plan result")
     if not isinstance(parsed, dict):
-        fail(
+        problems.fail(
             "",
             "a plan result must be a JSON object { ... }",
             parsed,
@@ -163,14 +154,14 @@ def _document(text: str) -> dict[str, Any]:
 
 def _check_schema(document: dict[str, Any]) -> None:
     if "schema" not in document:
-        fail(
+        problems.fail(
             "schema",
             "missing required key",
             hint=f'add "schema": "{SCHEMA}" (is this a plan result written by the planner?)',
         )
     schema = document["schema"]
     if schema != SCHEMA:
-        fail(
+        problems.fail(
             "schema",
             "not a schema this version reads",
             schema,
@@ -185,8 +176,8 @@ def _inputs(data: dict[str, Any]) -> PlanInputs:
     except PlanFileError as exc:
         field = f"inputs.{exc.field}" if exc.field else "inputs"
         if exc.has_value:
-            raise ContentError(field, exc.problem, exc.value, exc.hint) from None
-        raise ContentError(field, exc.problem, hint=exc.hint) from None
+            raise problems.ContentError(field, exc.problem, exc.value, exc.hint) from None
+        raise problems.ContentError(field, exc.problem, hint=exc.hint) from None
 
 
 def _build(text: str) -> SavedPlan:
@@ -195,7 +186,7 @@ def _build(text: str) -> SavedPlan:
     try:
         model = PlanDocument.model_validate(document)
     except ValidationError as exc:
-        raise explain(exc, PlanDocument, JSON_WORDS) from None
+        raise problems.explain(exc, PlanDocument, problems.JSON_WORDS) from None
     inputs = _inputs(model.inputs)
     totals = model.totals_mL
     if totals.dead_volume_mL is None:
@@ -253,8 +244,8 @@ def parse_result(text: str, *, source: str = _UNNAMED) -> SavedPlan:
     """
     try:
         return _build(text)
-    except ContentError as problem:
-        raise public_error(problem, ResultFileError, source, _UNNAMED) from None
+    except problems.ContentError as problem:
+        raise problems.public_error(problem, ResultFileError, source, _UNNAMED) from None
 
 
 def load_result(path: str | os.PathLike[str]) -> SavedPlan:
