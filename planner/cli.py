@@ -17,7 +17,7 @@ import traceback
 from collections.abc import Callable, Iterator, Mapping
 from contextlib import contextmanager
 from pathlib import Path
-from typing import TYPE_CHECKING, Annotated, Any, TypeVar
+from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
@@ -28,8 +28,6 @@ if TYPE_CHECKING:
     from planner.result import Check
 
 __all__ = ["app", "main"]
-
-T = TypeVar("T")
 
 EXIT_OK = 0
 EXIT_CHECK_FAILED = 1
@@ -61,6 +59,29 @@ class OutputFormat(enum.StrEnum):
 
     text = "text"
     json = "json"
+
+
+# Options several commands share, each declared once.
+_FormatOption = Annotated[
+    OutputFormat, typer.Option("--format", help="text for people, json for programs.")
+]
+_ForceOption = Annotated[bool, typer.Option("--force", help=_FORCE_HELP)]
+_DateOption = Annotated[
+    str | None,
+    typer.Option(
+        "--date", help="Date printed on the sheets (default: today), an ISO date YYYY-MM-DD."
+    ),
+]
+
+
+def _seed_option(help_text: str) -> Any:
+    """The --seed option, 0 to 2**32 - 1, with the command's own help."""
+    return typer.Option("--seed", min=0, max=_MAX_SEED, help=help_text)
+
+
+_QuietOption = Annotated[
+    bool, typer.Option("--quiet", "-q", help="Print nothing but errors; the exit status tells.")
+]
 
 
 app = typer.Typer(
@@ -174,8 +195,9 @@ def _signals_stop_the_command() -> Iterator[None]:
             signal.signal(number, signal.SIG_DFL if handler is None else handler)
 
 
-def _run(action: Callable[[], T]) -> T:
-    """Run a command body; project errors exit 2 with a message, anything else exits 3.
+def _run(action: Callable[[], int]) -> None:
+    """Run a command body and exit with the status it returns (0 returns normally); project
+    errors exit 2 with a message, anything else exits 3.
 
     SIGTERM and Ctrl-C stop it cleanly (see :func:`_signals_stop_the_command`), with a one-line
     message and the shell's status for a signal, 128 + its number (130 for Ctrl-C, 143 for
@@ -183,7 +205,7 @@ def _run(action: Callable[[], T]) -> T:
     """
     try:
         with _signals_stop_the_command():
-            return action()
+            code = action()
     except PlannerError as error:
         from rich.console import Console
         from rich.text import Text
@@ -207,6 +229,8 @@ def _run(action: Callable[[], T]) -> T:
         )
         sys.stderr.write("".join(traceback.format_exc()))
         raise typer.Exit(EXIT_INTERNAL) from None
+    if code:
+        raise typer.Exit(code)
 
 
 def _write_stdout(text: str) -> None:
@@ -247,9 +271,7 @@ def check(
             "(1e-6 to below 1).",
         ),
     ] = 0.02,
-    output_format: Annotated[
-        OutputFormat, typer.Option("--format", help="text for people, json for programs.")
-    ] = OutputFormat.text,
+    output_format: _FormatOption = OutputFormat.text,
 ) -> None:
     """Is an excess large enough to treat the limiting reagent as fully bound?
 
@@ -279,9 +301,7 @@ def check(
             Console(highlight=False).print(render_check(result))
         return EXIT_OK if result.verdict == "ok" else EXIT_CHECK_FAILED
 
-    code = _run(body)
-    if code:
-        raise typer.Exit(code)
+    _run(body)
 
 
 def _load(file: Path | None) -> PlanInputs:
@@ -298,6 +318,14 @@ def _load(file: Path | None) -> PlanInputs:
 def _reads(file: Path | None) -> tuple[Path, ...]:
     """The files a command reads, which its output folder must never hold."""
     return () if file is None else (file,)
+
+
+def _check_out(out: Path | None, *, force: bool, file: Path | None) -> None:
+    """Refuse an unusable --out folder before the design, the simulation and the plots."""
+    if out is not None:
+        from planner.report.outdir import check_output_target
+
+        check_output_target(out, force=force, protect=_reads(file))
 
 
 def _matplotlib_folders() -> tuple[Path, ...]:
@@ -367,26 +395,16 @@ def plan(
             "(plots/*.png and *.svg).",
         ),
     ] = None,
-    output_format: Annotated[
-        OutputFormat, typer.Option("--format", help="text for people, json for programs.")
-    ] = OutputFormat.text,
-    force: Annotated[bool, typer.Option("--force", help=_FORCE_HELP)] = False,
-    date: Annotated[
-        str | None,
-        typer.Option(
-            "--date",
-            help="Date printed on the sheets (default: today), an ISO date YYYY-MM-DD.",
-        ),
-    ] = None,
+    output_format: _FormatOption = OutputFormat.text,
+    force: _ForceOption = False,
+    date: _DateOption = None,
     pdf: Annotated[
         bool,
         typer.Option(
             "--pdf", help="Also print the sheets to PDF with headless Chromium (needs --out)."
         ),
     ] = False,
-    quiet: Annotated[
-        bool, typer.Option("--quiet", "-q", help="Print nothing but errors; the exit status tells.")
-    ] = False,
+    quiet: _QuietOption = False,
 ) -> None:
     """Design the standards and test mixtures from what is on the shelf, verified.
 
@@ -407,11 +425,7 @@ def plan(
                 "--pdf writes PDF files and needs a folder", field="--pdf", hint="add --out DIR"
             )
         inputs = _load(file)
-        if out is not None:
-            from planner.report.outdir import check_output_target
-
-            # Before the design and the plots.
-            check_output_target(out, force=force, protect=_reads(file))
+        _check_out(out, force=force, file=file)  # before the long work
         result = design_plan(inputs)
         if out is not None:
             from planner.report.outdir import plan_files, write_output_folder
@@ -440,9 +454,7 @@ def plan(
             _tell(f"wrote {out}/")
         return EXIT_CHECK_FAILED if result.failed else EXIT_OK
 
-    code = _run(body)
-    if code:
-        raise typer.Exit(code)
+    _run(body)
 
 
 def _render_checks(checks: tuple[Check, ...]) -> None:
@@ -476,12 +488,8 @@ def verify(
             help="A saved plan result (plan.json, at most 8 MiB), perhaps edited by hand."
         ),
     ],
-    output_format: Annotated[
-        OutputFormat, typer.Option("--format", help="text for people, json for programs.")
-    ] = OutputFormat.text,
-    quiet: Annotated[
-        bool, typer.Option("--quiet", "-q", help="Print nothing but errors; the exit status tells.")
-    ] = False,
+    output_format: _FormatOption = OutputFormat.text,
+    quiet: _QuietOption = False,
 ) -> None:
     """Re-check a saved plan result from first principles.
 
@@ -507,25 +515,14 @@ def verify(
         if quiet:
             pass
         elif output_format is OutputFormat.json:
-            from planner.report.jsonout import dumps
-            from planner.report.plan_json import checks_worst_first
+            from planner.report.verify_json import verify_json
 
-            document = {
-                "schema": "planner.verify/1",
-                "file": str(result_file),
-                "checks": [
-                    {"name": c.name, "status": c.status, "detail": c.detail}
-                    for c in checks_worst_first(checks)
-                ],
-            }
-            _write_stdout(dumps(document))
+            _write_stdout(verify_json(checks, file=str(result_file)))
         else:
             _render_checks(checks)
         return EXIT_CHECK_FAILED if any(c.status == "fail" for c in checks) else EXIT_OK
 
-    code = _run(body)
-    if code:
-        raise typer.Exit(code)
+    _run(body)
 
 
 @app.command(epilog="Examples:\n\n  planner init\n\n  planner init lab-week-3.toml")
@@ -579,26 +576,12 @@ def variants(
         ),
     ],
     seed: Annotated[
-        int,
-        typer.Option(
-            "--seed",
-            min=0,
-            max=_MAX_SEED,
-            help=f"Seed, 0 to {_MAX_SEED}; the same seed gives the same sets.",
-        ),
+        int, _seed_option(f"Seed, 0 to {_MAX_SEED}; the same seed gives the same sets.")
     ],
     out: Annotated[Path, typer.Option("--out", help="Folder for the section folders.")],
-    force: Annotated[bool, typer.Option("--force", help=_FORCE_HELP)] = False,
-    date: Annotated[
-        str | None,
-        typer.Option(
-            "--date",
-            help="Date printed on the sheets (default: today), an ISO date YYYY-MM-DD.",
-        ),
-    ] = None,
-    quiet: Annotated[
-        bool, typer.Option("--quiet", "-q", help="Print nothing but errors; the exit status tells.")
-    ] = False,
+    force: _ForceOption = False,
+    date: _DateOption = None,
+    quiet: _QuietOption = False,
 ) -> None:
     """Distinct, verified recipe sets of equal difficulty, one per section.
 
@@ -616,12 +599,12 @@ def variants(
         from rich.progress import Progress
 
         from planner.pipeline import design_variants
-        from planner.report.outdir import check_output_target, write_output_folder
+        from planner.report.outdir import write_output_folder
         from planner.report.variants_index import variants_files
 
         sheet_date = _sheet_date(date)
         inputs = _load(file)
-        check_output_target(out, force=force, protect=_reads(file))  # before the design
+        _check_out(out, force=force, file=file)  # before the design
         err = Console(stderr=True, highlight=False, quiet=quiet)
         with (
             _options({"sections": "--sections"}),
@@ -654,9 +637,7 @@ def variants(
             return EXIT_CHECK_FAILED
         return EXIT_CHECK_FAILED if session_failed else EXIT_OK
 
-    code = _run(body)
-    if code:
-        raise typer.Exit(code)
+    _run(body)
 
 
 #: Trials from which the simulate command shows a progress bar on stderr.
@@ -692,17 +673,9 @@ def simulate(
         ),
     ] = 100_000,
     seed: Annotated[
-        int,
-        typer.Option(
-            "--seed",
-            min=0,
-            max=_MAX_SEED,
-            help=f"Seed, 0 to {_MAX_SEED}; the same seed gives exactly the same results.",
-        ),
+        int, _seed_option(f"Seed, 0 to {_MAX_SEED}; the same seed gives exactly the same results.")
     ] = 0,
-    output_format: Annotated[
-        OutputFormat, typer.Option("--format", help="text for people, json for programs.")
-    ] = OutputFormat.text,
+    output_format: _FormatOption = OutputFormat.text,
     out: Annotated[
         Path | None,
         typer.Option(
@@ -711,10 +684,8 @@ def simulate(
             "epsilon-histogram, each .png and .svg.",
         ),
     ] = None,
-    force: Annotated[bool, typer.Option("--force", help=_FORCE_HELP)] = False,
-    quiet: Annotated[
-        bool, typer.Option("--quiet", "-q", help="Print nothing but errors; the exit status tells.")
-    ] = False,
+    force: _ForceOption = False,
+    quiet: _QuietOption = False,
 ) -> None:
     """Run the plan as a virtual class: what the benches will measure, and how spread out.
 
@@ -737,11 +708,7 @@ def simulate(
         from planner.predict.uncertainty import propagate
 
         inputs = _load(file)
-        if out is not None:
-            from planner.report.outdir import check_output_target
-
-            # Before the simulation and the plots.
-            check_output_target(out, force=force, protect=_reads(file))
+        _check_out(out, force=force, file=file)  # before the long work
         designed = design_plan(inputs)
         # The pipeline's prediction, run once; a plan it could not analyse gets the budget's
         # own error (what is missing) from propagate.
@@ -783,9 +750,7 @@ def simulate(
             _tell(f"wrote {out}/")
         return EXIT_CHECK_FAILED if designed.failed else EXIT_OK
 
-    code = _run(body)
-    if code:
-        raise typer.Exit(code)
+    _run(body)
 
 
 def main() -> None:

@@ -107,8 +107,10 @@ _RANKS = {
     "design": 4,
     "verify": 4,
     "verify_prediction": 4,
+    "verify_global_fit": 4,
     "predict": 4,
     "pipeline": 5,
+    "fileio": 5,
     "planfile": 5,
     "resultfile": 6,
     "report": 7,
@@ -123,6 +125,8 @@ _APART = {
     ("verify", "predict"),
     ("design", "verify_prediction"),
     ("verify_prediction", "predict"),
+    ("design", "verify_global_fit"),
+    ("verify_global_fit", "predict"),
 }
 
 

@@ -33,7 +33,6 @@ from planner.inputs import (
 )
 from planner.planfile import (
     MAX_PLAN_FILE_BYTES,
-    MAX_RESULT_FILE_BYTES,
     load_plan,
     parse_plan,
     plan_from_mapping,
@@ -1501,18 +1500,3 @@ def test_a_file_of_exactly_the_limit_is_read(tmp_path):
     path.write_text(text, encoding="utf-8")
     assert path.stat().st_size == MAX_PLAN_FILE_BYTES == 2**20
     assert load_plan(path) == parse_plan(IRON_PLAN)
-
-
-def test_a_saved_result_may_be_larger_than_a_plan_file(tmp_path):
-    # The same reader serves planner verify with its own, larger limit (8 MiB).
-    from planner.errors import ResultFileError
-    from planner.planfile import read_text
-
-    path = tmp_path / "plan.json"
-    path.write_text(" " * (2 * MAX_PLAN_FILE_BYTES), encoding="utf-8")
-    assert len(read_text(str(path), "plan result", ResultFileError)) == 2 * MAX_PLAN_FILE_BYTES
-    with pytest.raises(PlanFileError, match="larger than 1 MiB"):
-        read_text(str(path), "plan file", PlanFileError)
-    path.write_text(" " * (MAX_RESULT_FILE_BYTES + 1), encoding="utf-8")
-    with pytest.raises(ResultFileError, match="larger than 8 MiB"):
-        read_text(str(path), "plan result", ResultFileError)

@@ -84,7 +84,7 @@ def test_unknown_top_level_blocks_and_unread_blocks_are_allowed(
     assert saved.mixtures == default_plan.mixtures
     assert saved.stated_checks == ()
     # default.toml gives no dead volume, so the plan file's default of 5 mL applies
-    # (planner/planfile.py, session.dead_volume_mL).
+    # (planner/planfile/schema.py, session.dead_volume_mL).
     assert saved.totals.dead_volume_mL == 5.0
 
 
@@ -386,6 +386,6 @@ def test_numbers_too_large_for_a_plan_are_refused(document: Document, path, valu
 
 
 def test_large_numbers_in_inputs_are_left_to_the_plan_file_rules(document: Document) -> None:
-    # available_mL has no upper bound in a plan file (planner/planfile.py).
+    # available_mL has no upper bound in a plan file (planner/planfile/schema.py).
     document["inputs"]["stocks"][0]["available_mL"] = 1e150
     assert parse_result(json.dumps(document)).inputs.stocks[0].available_mL == 1e150

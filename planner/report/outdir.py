@@ -31,7 +31,6 @@ import sys
 import tempfile
 from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path, PurePosixPath, PureWindowsPath
-from typing import Literal, overload
 
 from planner.errors import OutputError
 from planner.report.plan_json import plan_json
@@ -88,28 +87,6 @@ def _slot_name(slot: BenchSlot, section_width: int, bench_width: int) -> str:
     return name
 
 
-@overload
-def plan_files(
-    plan: Plan,
-    *,
-    date: str,
-    section: int | None = None,
-    of_sections: int | None = None,
-    plots: Literal[False] = False,
-) -> dict[str, str]: ...
-
-
-@overload
-def plan_files(
-    plan: Plan,
-    *,
-    date: str,
-    section: int | None = None,
-    of_sections: int | None = None,
-    plots: bool,
-) -> dict[str, str | bytes]: ...
-
-
 def plan_files(
     plan: Plan,
     *,
@@ -117,7 +94,7 @@ def plan_files(
     section: int | None = None,
     of_sections: int | None = None,
     plots: bool = False,
-) -> dict[str, str] | dict[str, str | bytes]:
+) -> dict[str, str | bytes]:
     """The contents of a plan's output folder.
 
     Parameters
@@ -156,7 +133,7 @@ def plan_files(
         figures = plan_plots(plan)
     # The answer key shows each plot that is in the folder, in the order they were drawn.
     stems = tuple(dict.fromkeys(PurePosixPath(name).stem for name in figures))
-    files: dict[str, str] = {
+    files: dict[str, str | bytes] = {
         "plan.json": plan_json(plan),
         "mixtures.csv": mixtures_csv(plan),
         "prep-sheet.md": prep_sheet_md(plan, date=date),
@@ -171,11 +148,8 @@ def plan_files(
         stem = "benches/" + _slot_name(slot, section_width, bench_width)
         files[stem + ".md"] = markdown
         files[stem + ".html"] = html
-    if not plots:
-        return files
-    every: dict[str, str | bytes] = dict(files)
-    every.update(figures)
-    return every
+    files.update(figures)
+    return files
 
 
 def _relative_path(name: str) -> PurePosixPath:
@@ -351,12 +325,11 @@ def _recover(target: Path) -> None:
     try:
         os.rename(backup, target)
     except OSError as error:
-        raise OutputError(
+        raise _refuse(
+            target,
             f"the previous output folder is at {backup} (a run was interrupted while replacing "
             f"it) and could not be put back: {error.strerror or error}",
-            field="--out",
-            value=str(target),
-            hint=f"rename {backup.name} back to {target.name} by hand",
+            f"rename {backup.name} back to {target.name} by hand",
         ) from error
 
 
@@ -649,11 +622,10 @@ def write_output_folder(
     except BaseException as error:
         shutil.rmtree(staging, ignore_errors=True)
         if isinstance(error, OSError):
-            raise OutputError(
+            raise _refuse(
+                target,
                 f"cannot write the output folder {target}: {error.strerror or error}",
-                field="--out",
-                value=str(target),
-                hint="check the disk space and the permissions of the parent folder; "
+                "check the disk space and the permissions of the parent folder; "
                 "any previous folder was left as it was",
             ) from error
         raise
@@ -661,12 +633,11 @@ def write_output_folder(
     try:
         shutil.rmtree(staging)
     except OSError as error:
-        raise OutputError(
+        raise _refuse(
+            staging,
             f"the new output folder {target} is in place, but the old copy in {staging} could "
             f"not be removed: {error.strerror or error}",
-            field="--out",
-            value=str(staging),
-            hint="delete that folder by hand",
+            "delete that folder by hand",
         ) from error
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)

@@ -1,5 +1,7 @@
 """The plan result as a JSON document, schema ``planner.plan/2`` (DESIGN.md section 5).
 
+The document is the model :class:`planner.resultfile.schema.PlanDocument`, the one
+``planner verify`` reads back: this module fills it from a finished plan and dumps it.
 Numbers keep full float precision; :func:`plan_json` serialises with sorted keys through
 :func:`planner.report.jsonout.dumps`. Besides the keys of the contract, the document carries
 ``preparation`` (how the prep room makes each stock) and ``notes``.
@@ -9,13 +11,21 @@ from __future__ import annotations
 
 from typing import Any
 
+from planner.planfile import plan_to_mapping
 from planner.report.jsonout import dumps
-from planner.result import CHECK_STATUSES, Addition, Check, Mixture, Plan, Prediction, Totals
+from planner.result import CHECK_STATUSES, Check, Plan
+from planner.resultfile.schema import (
+    SCHEMA,
+    CheckEntry,
+    GlobalFitEntry,
+    MixtureEntry,
+    PlanDocument,
+    PredictionEntry,
+    PreparationEntry,
+    TotalsEntry,
+)
 
 __all__ = ["SCHEMA", "checks_worst_first", "plan_document", "plan_json"]
-
-#: Schema name and version of the document.
-SCHEMA = "planner.plan/2"
 
 
 def checks_worst_first(checks: tuple[Check, ...]) -> tuple[Check, ...]:
@@ -28,53 +38,9 @@ def checks_worst_first(checks: tuple[Check, ...]) -> tuple[Check, ...]:
     return tuple(sorted(checks, key=lambda c: rank.get(c.status, len(rank))))
 
 
-def _addition(addition: Addition) -> dict[str, Any]:
-    return {
-        "stock": addition.stock,
-        "volume_mL": addition.volume_mL,
-        "devices": list(addition.devices),
-        "order": addition.order,
-    }
-
-
-def _mixture(mixture: Mixture) -> dict[str, Any]:
-    return {
-        "id": mixture.id,
-        "role": mixture.role,
-        "total_volume_mL": mixture.total_volume_mL,
-        "additions": [_addition(a) for a in mixture.additions],
-        "initial_M": dict(mixture.initial_M),
-        "equilibrium_M": dict(mixture.equilibrium_M),
-        "absorbance": mixture.absorbance,
-        "u_absorbance": mixture.u_absorbance,
-        "bound_fraction": mixture.bound_fraction,
-        "ionic_strength_M": mixture.ionic_strength_M,
-    }
-
-
-def _totals(totals: Totals) -> dict[str, Any]:
-    return {
-        "per_bench": dict(totals.per_bench),
-        "per_section": dict(totals.per_section),
-        "session": dict(totals.session),
-        "to_prepare": dict(totals.to_prepare),
-        "dead_volume_mL": totals.dead_volume_mL,
-    }
-
-
-def _prediction(prediction: Prediction | None) -> dict[str, Any] | None:
-    if prediction is None:
-        return None
-    return {
-        "epsilon": prediction.epsilon,
-        "u_epsilon": prediction.u_epsilon,
-        "K": prediction.K,
-        "u_K": prediction.u_K,
-        "K_bias_from_assumption": prediction.K_bias_from_assumption,
-        "K_true": prediction.K_true,
-        "epsilon_true": prediction.epsilon_true,
-        "K_per_test": list(prediction.K_per_test),
-    }
+def check_entries(checks: tuple[Check, ...]) -> list[dict[str, Any]]:
+    """The checks as the documents list them, ``{name, status, detail}``, worst first."""
+    return [CheckEntry.of(check).model_dump() for check in checks_worst_first(checks)]
 
 
 def plan_document(plan: Plan) -> dict[str, Any]:
@@ -83,7 +49,7 @@ def plan_document(plan: Plan) -> dict[str, Any]:
     Parameters
     ----------
     plan
-        A finished plan.
+        The plan to write, as the pipeline finished it.
 
     Returns
     -------
@@ -95,48 +61,24 @@ def plan_document(plan: Plan) -> dict[str, Any]:
         ``global_fit_prediction`` (or ``None``),
         ``preparation`` and ``notes``. Floats are not rounded.
     """
-    # Imported here: planfile pulls in pydantic, which the rest of this module does not need.
-    from planner.planfile import plan_to_mapping
-
-    return {
-        "schema": SCHEMA,
-        "title": plan.inputs.title,
-        "inputs": plan_to_mapping(plan.inputs),
-        "mixtures": [_mixture(m) for m in plan.mixtures],
-        "totals_mL": _totals(plan.totals),
-        "checks": [
-            {"name": c.name, "status": c.status, "detail": c.detail}
-            for c in checks_worst_first(plan.checks)
-        ],
-        "prediction": _prediction(plan.prediction),
-        "analysis": plan.analysis,
-        "global_fit_prediction": (
-            None
-            if plan.global_fit is None
-            else {
-                "epsilon": plan.global_fit.epsilon,
-                "u_epsilon": plan.global_fit.u_epsilon,
-                "K": plan.global_fit.K,
-                "u_K": plan.global_fit.u_K,
-            }
-        ),
-        "preparation": [
-            {
-                "stock": p.stock,
-                "flask_mL": p.flask_mL,
-                "flasks": p.flasks,
-                "solid_formula": p.solid_formula,
-                "molar_mass_g_per_mol": p.molar_mass_g_per_mol,
-                "purity": p.purity,
-                "mass_g": p.mass_g,
-                "provides": p.provides,
-                "concentration_M": p.concentration_M,
-                "medium": p.medium,
-            }
-            for p in plan.preparations
-        ],
-        "notes": list(plan.notes),
-    }
+    document = PlanDocument.model_validate(
+        {
+            "schema": SCHEMA,
+            "title": plan.inputs.title,
+            "inputs": plan_to_mapping(plan.inputs),
+            "mixtures": [MixtureEntry.of(m) for m in plan.mixtures],
+            "totals_mL": TotalsEntry.of(plan.totals),
+            "checks": [CheckEntry.of(c) for c in checks_worst_first(plan.checks)],
+            "prediction": None if plan.prediction is None else PredictionEntry.of(plan.prediction),
+            "analysis": plan.analysis,
+            "global_fit_prediction": (
+                None if plan.global_fit is None else GlobalFitEntry.of(plan.global_fit)
+            ),
+            "preparation": [PreparationEntry.of(p) for p in plan.preparations],
+            "notes": list(plan.notes),
+        }
+    )
+    return document.model_dump(by_alias=True)
 
 
 def plan_json(plan: Plan) -> str:

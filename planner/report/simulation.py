@@ -163,6 +163,11 @@ def _interval(interval: tuple[float, float], digits: int = 4) -> str:
     return f"{_text(interval[0], digits)} to {_text(interval[1], digits)}"
 
 
+def _spread(mean: float, sd: float, ci95: tuple[float, float]) -> tuple[str, str, str]:
+    """The cells mean, sd and 95 % interval of one quantity."""
+    return _text(mean), _text(sd, 2), _interval(ci95)
+
+
 def _results_table(simulation: Simulation, gum: UncertaintyResult) -> Table:
     table = Table(
         title=f"Virtual class: {simulation.trials} benches",
@@ -182,21 +187,13 @@ def _results_table(simulation: Simulation, gum: UncertaintyResult) -> Table:
     ):
         table.add_row(
             name,
-            _text(analysis.epsilon.mean),
-            _text(analysis.epsilon.sd, 2),
-            _interval(analysis.epsilon.ci95),
-            _text(analysis.K.mean),
-            _text(analysis.K.sd, 2),
-            _interval(analysis.K.ci95),
+            *_spread(analysis.epsilon.mean, analysis.epsilon.sd, analysis.epsilon.ci95),
+            *_spread(analysis.K.mean, analysis.K.sd, analysis.K.ci95),
         )
     table.add_row(
         "all-bound, GUM",
-        _text(gum.epsilon.value),
-        _text(gum.epsilon.standard_uncertainty, 2),
-        _interval(gum.epsilon.ci95),
-        _text(gum.K.value),
-        _text(gum.K.standard_uncertainty, 2),
-        _interval(gum.K.ci95),
+        *_spread(gum.epsilon.value, gum.epsilon.standard_uncertainty, gum.epsilon.ci95),
+        *_spread(gum.K.value, gum.K.standard_uncertainty, gum.K.ci95),
         style="dim",
     )
     table.caption = (
@@ -264,10 +261,8 @@ def render_simulation(
 
     Parameters
     ----------
-    simulation
-        From :func:`planner.predict.montecarlo.simulate`.
-    gum
-        From :func:`planner.predict.uncertainty.propagate` on the same plan.
+    simulation, gum
+        As for :func:`simulation_document`: the virtual class and the first-order budget.
     formulas
         Add each coefficient's chain of derivatives to the budgets (needs a wide terminal;
         the JSON document always has the chain and every derivative's formula).

@@ -29,7 +29,7 @@ def _folder(number: int, width: int) -> str:
 
 def variants_files(
     plans: Sequence[Plan], *, combined: Plan, date: str, seed: int
-) -> dict[str, str]:
+) -> dict[str, str | bytes]:
     """Every file of the variants folder.
 
     ``section-NN/`` holds each section's plan folder (bench sheets, prep sheet, answer key,
@@ -38,7 +38,7 @@ def variants_files(
     sections together (``combined``, from :func:`planner.pipeline.combined_plan`).
     """
     width = max(2, len(str(len(plans))))
-    files: dict[str, str] = {}
+    files: dict[str, str | bytes] = {}
     rows = []
     for number, plan in enumerate(plans, start=1):
         folder = _folder(number, width)
