@@ -7,6 +7,7 @@ absorptivity [L mol⁻¹ cm⁻¹] and ``K`` a formation constant [L/mol].
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 from planner.inputs import PlanInputs
@@ -26,6 +27,7 @@ __all__ = [
     "StockPreparation",
     "Totals",
     "UncertaintyResult",
+    "devices_text",
 ]
 
 #: Coverage factor of a 95 % interval for a normal distribution, k = 1.960 (JCGM 100:2008,
@@ -35,6 +37,22 @@ COVERAGE_FACTOR_95 = 1.960
 ROLES = ("blank", "standard", "test")
 #: Check statuses, worst first.
 CHECK_STATUSES = ("fail", "warn", "pass")
+
+
+def devices_text(devices: Sequence[str]) -> str:
+    """A delivery's devices as people read them, on every screen, sheet and message.
+
+    Each device is named by its id as the plan file's glassware gives it (DESIGN.md contract
+    detail 5: ``transfer-pipette-2mL``, ``buret-25mL``), the one name a device has in the
+    JSON, the terminal, the sheets and the checks; a repeated delivery is counted, in order
+    of first use: ``2 × transfer-pipette-2mL + transfer-pipette-0.5mL``.
+    """
+    counts: dict[str, int] = {}
+    for device_id in devices:
+        counts[device_id] = counts.get(device_id, 0) + 1
+    return " + ".join(
+        device_id if count == 1 else f"{count} × {device_id}" for device_id, count in counts.items()
+    )
 
 
 @dataclass(frozen=True, slots=True)

@@ -32,7 +32,7 @@ from planner.lab.glassware import (
     standard_uncertainty_mL,
 )
 from planner.lab.photometer import observed_absorbance, true_absorbance
-from planner.result import Check, Mixture, Prediction, StockPreparation, Totals
+from planner.result import Check, Mixture, Prediction, StockPreparation, Totals, devices_text
 from planner.verify_prediction import (
     RecomputedPrediction,
     delivery_split_mL,
@@ -337,7 +337,7 @@ def _deliverable(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
                 )
             elif not _deliverable_with(inputs, devices, a.volume_mL, a.devices):
                 problems.append(
-                    f"{where}: cannot be delivered with {' + '.join(a.devices) or 'no device'}; "
+                    f"{where}: cannot be delivered with {devices_text(a.devices) or 'no device'}; "
                     "choose a volume on the device's scale or another device"
                 )
     return _check(

@@ -33,7 +33,7 @@ from planner.report._format import (
     addition_decimals,
     additions_of,
     csv_text,
-    devices_long,
+    devices_text,
     is_to_the_mark,
     markdown_text,
     percent,
@@ -160,13 +160,13 @@ def _recipe_rows(plan: Plan, stocks: Sequence[str]) -> list[_RecipeRow]:
             deliveries = []
             for addition in additions_of(mixture, stock_id):
                 if is_to_the_mark(addition):
-                    deliveries.append(_Delivery("to the mark", devices_long(addition.devices)))
+                    deliveries.append(_Delivery("to the mark", devices_text(addition.devices)))
                 else:
                     decimals = addition_decimals(plan.inputs, addition)
                     deliveries.append(
                         _Delivery(
                             f"{volume(addition.volume_mL, decimals)} mL",
-                            devices_long(addition.devices),
+                            devices_text(addition.devices),
                         )
                     )
             cells.append(tuple(deliveries))
