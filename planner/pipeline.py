@@ -27,7 +27,7 @@ from planner.design.mixtures import Objective
 from planner.design.plan import design_recipes
 from planner.design.variants import VariantSet
 from planner.inputs import PlanInputs
-from planner.result import Check, Mixture, Plan, Prediction, UncertaintyResult
+from planner.result import ROLES, Check, Mixture, Plan, Prediction, UncertaintyResult
 
 __all__ = [
     "combined_plan",
@@ -81,7 +81,7 @@ def predict_mixtures(
     result: UncertaintyResult | None = None
     prediction: Prediction | None = None
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        if {"blank", "standard", "test"} <= roles and inputs.excess is not None:
+        if set(ROLES) <= roles and inputs.excess is not None:
             result = propagate(inputs, mixtures)
             per_mixture = result.mixtures
             # A test whose predicted product equals a reagent's total makes the 1:1 expression

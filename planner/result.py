@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import Literal, get_args
 
 from planner.inputs import PlanInputs
 
@@ -24,7 +25,10 @@ __all__ = [
     "MixtureUncertainty",
     "Plan",
     "Prediction",
+    "Role",
+    "Status",
     "StockPreparation",
+    "StockRole",
     "Totals",
     "UncertaintyResult",
     "devices_text",
@@ -33,10 +37,17 @@ __all__ = [
 #: Coverage factor of a 95 % interval for a normal distribution, k = 1.960 (JCGM 100:2008,
 #: Table G.1) [unitless].
 COVERAGE_FACTOR_95 = 1.960
+#: The role of a mixture: the reagent blank, a calibration standard or a test mixture.
+Role = Literal["blank", "standard", "test"]
 #: Mixture roles, in the order sheets list them.
-ROLES = ("blank", "standard", "test")
+ROLES: tuple[Role, ...] = get_args(Role)
+#: The status of a check (the JSON's ``checks[].status``).
+Status = Literal["fail", "warn", "pass"]
 #: Check statuses, worst first.
-CHECK_STATUSES = ("fail", "warn", "pass")
+CHECK_STATUSES: tuple[Status, ...] = get_args(Status)
+#: A stock's part in the order of addition: the diluent, the stock that brings the limiting
+#: reagent, or one that brings the reagent in excess.
+StockRole = Literal["diluent", "limiting", "excess"]
 
 
 def devices_text(devices: Sequence[str]) -> str:
@@ -109,7 +120,7 @@ class Mixture:
     """
 
     id: str
-    role: str
+    role: Role
     total_volume_mL: float
     additions: tuple[Addition, ...]
     initial_M: dict[str, float]
@@ -139,7 +150,7 @@ class Check:
     """
 
     name: str
-    status: str
+    status: Status
     detail: str
 
 
@@ -429,6 +440,6 @@ class Plan:
         """True when some check failed (the exit status is then 1)."""
         return any(c.status == "fail" for c in self.checks)
 
-    def by_role(self, role: str) -> tuple[Mixture, ...]:
+    def by_role(self, role: Role) -> tuple[Mixture, ...]:
         """The mixtures of one role, in plan order."""
         return tuple(m for m in self.mixtures if m.role == role)

@@ -38,14 +38,23 @@ import os
 from collections import Counter
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any, Literal, NoReturn
+from typing import Any, NoReturn
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from planner.errors import PlanFileError, ResultFileError
 from planner.inputs import PlanInputs
 from planner.planfile import plan_from_mapping, read_text
-from planner.result import Addition, Check, Mixture, Prediction, StockPreparation, Totals
+from planner.result import (
+    Addition,
+    Check,
+    Mixture,
+    Prediction,
+    Role,
+    Status,
+    StockPreparation,
+    Totals,
+)
 
 __all__ = ["LARGEST_NUMBER", "SCHEMA", "SavedPlan", "load_result", "parse_result"]
 
@@ -116,7 +125,7 @@ class _AdditionModel(_Model):
 
 class _MixtureModel(_Model):
     id: str = Field(description='the mixture id, e.g. "S1", in double quotes')
-    role: str = Field(description='one of "blank", "standard", "test"')
+    role: Role = Field(description='one of "blank", "standard", "test"')
     total_volume_mL: float = Field(
         gt=0, description="the final volume of the mixture [mL], a number > 0"
     )
@@ -151,7 +160,7 @@ class _TotalsModel(_Model):
 
 class _CheckModel(_Model):
     name: str = Field(description='the check name, e.g. "absorbance-window"')
-    status: Literal["fail", "warn", "pass"] = Field(description='"pass", "warn" or "fail"')
+    status: Status = Field(description='"pass", "warn" or "fail"')
     detail: str = Field(description="what was found, in double quotes")
 
 

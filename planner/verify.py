@@ -32,7 +32,15 @@ from planner.lab.glassware import (
     standard_uncertainty_mL,
 )
 from planner.lab.photometer import observed_absorbance, true_absorbance
-from planner.result import Check, Mixture, Prediction, StockPreparation, Totals, devices_text
+from planner.result import (
+    ROLES,
+    Check,
+    Mixture,
+    Prediction,
+    StockPreparation,
+    Totals,
+    devices_text,
+)
 from planner.verify_prediction import (
     RecomputedPrediction,
     delivery_split_mL,
@@ -256,9 +264,7 @@ def _listed(problems: list[str]) -> list[str]:
 
 def _mixture_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
     design = inputs.design
-    counts = {
-        role: sum(1 for m in mixtures if m.role == role) for role in ("blank", "standard", "test")
-    }
+    counts = {role: sum(1 for m in mixtures if m.role == role) for role in ROLES}
     problems = []
     if counts["standard"] != design.standards:
         problems.append(
@@ -284,9 +290,9 @@ def _mixture_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
     duplicates = sorted(i for i, n in Counter(m.id for m in mixtures).items() if n > 1)
     if duplicates:
         problems.append(f"mixture ids used twice: {_names(duplicates)}")
-    bad_roles = [m.id for m in mixtures if m.role not in ("blank", "standard", "test")]
+    bad_roles = [m.id for m in mixtures if m.role not in ROLES]
     if bad_roles:
-        problems.append(f"unknown role for {_names(bad_roles)}: use blank, standard or test")
+        problems.append(f"unknown role for {_names(bad_roles)}: use {', '.join(ROLES)}")
     for role in ("standard", "test"):
         recipes = [
             tuple(sorted((a.stock, round(a.volume_mL, 6)) for a in m.additions))

@@ -19,7 +19,7 @@ from planner.design.logistics import preparations, stock_totals
 from planner.design.mixtures import Objective, choose_tests, mean_K_objective
 from planner.design.standards import choose_standards
 from planner.inputs import PlanInputs
-from planner.result import Addition, Check, Mixture, StockPreparation, Totals
+from planner.result import Addition, Check, Mixture, Role, StockPreparation, Totals
 
 __all__ = ["Design", "design_recipes", "mixture_from_candidate"]
 
@@ -58,7 +58,7 @@ class Design:
 
 
 def mixture_from_candidate(
-    inputs: PlanInputs, candidates: CandidateSet, index: int, mixture_id: str, role: str
+    inputs: PlanInputs, candidates: CandidateSet, index: int, mixture_id: str, role: Role
 ) -> Mixture:
     """The recipe and predicted state of one candidate.
 

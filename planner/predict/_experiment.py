@@ -46,7 +46,7 @@ from planner.analysis import Layout
 from planner.errors import InvalidInputError
 from planner.inputs import Device, PlanInputs
 from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
-from planner.result import Mixture
+from planner.result import ROLES, Mixture, Role
 
 __all__ = [
     "BenchExperiment",
@@ -257,7 +257,7 @@ def bench_experiment(
         (field ``additions.devices``); a coloured product without an excess partner.
     """
     roles = [m.role for m in mixtures]
-    for role in ("blank", "standard", "test") if for_analysis else ():
+    for role in ROLES if for_analysis else ():
         if role not in roles:
             raise InvalidInputError(
                 f"the plan has no {role} mixture, so the analysis cannot be predicted",
@@ -306,7 +306,7 @@ def bench_experiment(
     coloured = inputs.measured
     species = reaction.species[coloured]
 
-    def rows(role: str) -> NDArray[np.int64]:
+    def rows(role: Role) -> NDArray[np.int64]:
         return np.array([i for i, r in enumerate(roles) if r == role], dtype=np.int64)
 
     return BenchExperiment(

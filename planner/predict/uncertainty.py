@@ -61,6 +61,7 @@ from planner.result import (
     Mixture,
     MixtureUncertainty,
     Prediction,
+    Role,
     UncertaintyResult,
 )
 
@@ -428,7 +429,7 @@ def _gradients(ex: BenchExperiment, inputs: _Inputs, models: _Models) -> _Gradie
     )
 
 
-def _chain_terms(measurand: str, role: str, component: str, stage1: str, n_tests: int) -> str:
+def _chain_terms(measurand: str, role: Role, component: str, stage1: str, n_tests: int) -> str:
     """The chain of derivatives from one quantity of one mixture to a measurand."""
     mean = f"(1/{n_tests})"
     if measurand in {"epsilon", "epsilon_intercept"}:
@@ -461,7 +462,7 @@ def _formula(
     ex: BenchExperiment,
     inputs: _Inputs,
     models: _Models,
-    roles: Sequence[str],
+    roles: Sequence[Role],
 ) -> str:
     """The coefficient of input z as a chain of model derivatives, with their formulas."""
     kind = inputs.kinds[z]
@@ -528,7 +529,7 @@ def _budget(
     ex: BenchExperiment,
     inputs: _Inputs,
     models: _Models,
-    roles: Sequence[str],
+    roles: Sequence[Role],
 ) -> Budget:
     contributions = gradient * inputs.u
     variance = float((contributions**2).sum())

@@ -12,7 +12,7 @@ import math
 import re
 
 from planner.inputs import Device, PlanInputs
-from planner.result import Addition, Mixture, Plan, devices_text
+from planner.result import Addition, Mixture, Plan, StockRole, devices_text
 
 __all__ = [
     "addition_decimals",
@@ -143,9 +143,9 @@ def stocks_in_addition_order(plan: Plan) -> tuple[str, ...]:
     )
 
 
-def stock_roles(inputs: PlanInputs) -> dict[str, str]:
+def stock_roles(inputs: PlanInputs) -> dict[str, StockRole]:
     """Each stock's part in the order of addition: ``diluent``, ``limiting`` or ``excess``."""
-    roles = {}
+    roles: dict[str, StockRole] = {}
     for stock in inputs.stocks:
         if stock.diluent:
             roles[stock.id] = "diluent"

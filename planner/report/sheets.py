@@ -46,7 +46,7 @@ from planner.report._format import (
 )
 from planner.report.cautions import cautions_for, label_hazards
 from planner.report.plan_json import checks_worst_first
-from planner.result import Plan
+from planner.result import Plan, Role, StockRole
 
 __all__ = [
     "BenchSlot",
@@ -132,7 +132,7 @@ class _Column:
 @dataclass(frozen=True, slots=True)
 class _RecipeRow:
     id: str
-    role: str
+    role: Role
     cells: tuple[tuple[_Delivery, ...], ...]
     total: str
 
@@ -143,12 +143,16 @@ class _BenchPage:
     bench: int | None
 
 
-_PART_WORDS = {"diluent": "diluent", "excess": "reagent in excess", "limiting": "limiting"}
+_PART_WORDS: dict[StockRole, str] = {
+    "diluent": "diluent",
+    "excess": "reagent in excess",
+    "limiting": "limiting",
+}
 
 
-def _part(stock_id: str, role: str) -> str:
+def _part(stock_id: str, role: StockRole | None) -> str:
     """The stock's part in the order of addition, unless its id already says so."""
-    words = _PART_WORDS.get(role, "")
+    words = _PART_WORDS[role] if role is not None else ""
     return "" if words == stock_id else words
 
 
@@ -215,8 +219,7 @@ def _bench_base(plan: Plan, date: str) -> dict[str, Any]:
     roles = stock_roles(plan.inputs)
     stocks = stocks_in_addition_order(plan)
     columns = [
-        _Column(stock=s, position=i + 1, part=_part(s, roles.get(s, "")))
-        for i, s in enumerate(stocks)
+        _Column(stock=s, position=i + 1, part=_part(s, roles.get(s))) for i, s in enumerate(stocks)
     ]
     order_line, making_up_line = _order_lines(plan, columns)
     return {
@@ -510,7 +513,7 @@ def prep_sheet_html(plan: Plan, *, date: str) -> str:
 @dataclass(frozen=True, slots=True)
 class _AnswerRow:
     id: str
-    role: str
+    role: Role
     absorbance: str
     u_absorbance: str
     products: tuple[str, ...]

@@ -29,11 +29,11 @@ from planner.report._format import (
     volume,
 )
 from planner.report.plan_json import checks_worst_first
-from planner.result import Addition, Check, Plan
+from planner.result import CHECK_STATUSES, Addition, Check, Plan, Status
 
 __all__ = ["render_checks", "render_plan"]
 
-_STATUS_STYLE = {"fail": "bold red", "warn": "bold yellow", "pass": "green"}
+_STATUS_STYLE: dict[Status, str] = {"fail": "bold red", "warn": "bold yellow", "pass": "green"}
 
 
 def _plain(text: str) -> Text:
@@ -41,12 +41,13 @@ def _plain(text: str) -> Text:
     return Text(text)
 
 
-def _status(status: str) -> Text:
-    return Text(status.upper(), style=_STATUS_STYLE.get(status, "bold"))
+def _status(status: Status) -> Text:
+    """A check's status spelled out in capitals, coloured as well (the same on every table)."""
+    return Text(status.upper(), style=_STATUS_STYLE[status])
 
 
 def _verdict(plan: Plan) -> Text:
-    counts = {status: sum(c.status == status for c in plan.checks) for status in _STATUS_STYLE}
+    counts = {status: sum(c.status == status for c in plan.checks) for status in CHECK_STATUSES}
     summary = f"{counts['fail']} failed, {counts['warn']} warning(s), {counts['pass']} passed"
     if counts["fail"]:
         return Text(f"PLAN HAS FAILED CHECKS ({summary})", style="bold red")
@@ -211,11 +212,6 @@ def render_checks(checks: tuple[Check, ...]) -> RenderableType:
     table.add_column("status")
     table.add_column("check")
     table.add_column("detail", overflow="fold")
-    style = {"fail": "bold red", "warn": "yellow", "pass": "green"}
     for item in checks_worst_first(checks):
-        table.add_row(
-            Text(item.status.upper(), style=style.get(item.status, "")),
-            Text(item.name),
-            Text(item.detail),
-        )
+        table.add_row(_status(item.status), _plain(item.name), _plain(item.detail))
     return table
