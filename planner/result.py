@@ -417,7 +417,8 @@ class Plan:
     """A finished plan: inputs, mixtures, totals, preparation, checks and prediction.
 
     ``design_objective`` is the value of the test-set objective the design minimised (by
-    default the predicted relative SD of the mean K [unitless]); None when not designed.
+    default the predicted relative standard uncertainty of the mean K, u(K)/K [unitless]); None
+    when not designed.
     ``uncertainty`` is the whole first-order prediction (every budget and every mixture's
     u(A)) the prediction stage made; ``prediction`` and each mixture's ``u_absorbance`` are
     read from it (``prediction`` is None when its numbers would mean nothing, the budget is

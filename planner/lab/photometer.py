@@ -355,7 +355,7 @@ def absorbance_sd_from_transmittance_sd(
 def relative_concentration_error(
     absorbance: ArrayLike, transmittance_sd: ArrayLike
 ) -> NDArray[np.float64]:
-    """Relative standard deviation of a concentration from constant transmittance noise.
+    """Relative standard uncertainty u(c)/c of a concentration from constant transmittance noise.
 
     Parameters
     ----------

@@ -110,7 +110,7 @@ class BenchExperiment:
     stock_M
         Concentration of each component in each stock, shape (n_stocks, n_components)
         [mol/L].
-    stock_u_relative
+    u_relative_stock
         Relative standard uncertainty of each stock's concentrations, shape (n_stocks,)
         [unitless].
     volumes_mL
@@ -158,7 +158,7 @@ class BenchExperiment:
     stock_ids: tuple[str, ...]
     components: tuple[str, ...]
     stock_M: NDArray[np.float64]
-    stock_u_relative: NDArray[np.float64]
+    u_relative_stock: NDArray[np.float64]
     volumes_mL: NDArray[np.float64]
     total_volume_mL: NDArray[np.float64]
     in_flask: bool
@@ -317,7 +317,7 @@ def bench_experiment(
         stock_ids=stock_ids,
         components=components,
         stock_M=stock_M,
-        stock_u_relative=stock_u,
+        u_relative_stock=stock_u,
         volumes_mL=volumes,
         total_volume_mL=totals_volume,
         in_flask=in_flask,

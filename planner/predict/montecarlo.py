@@ -271,7 +271,7 @@ def _simulate_readings(
     """Draw n benches and return their readings, shape (n, n_mix) [unitless]."""
     n_mix, n_stocks = ex.volumes_mL.shape
     # Draw order is fixed (reproducibility): stocks, devices, deliveries, flasks, readings.
-    stock_factor = 1.0 + ex.stock_u_relative * rng.standard_normal((n, n_stocks))
+    stock_factor = 1.0 + ex.u_relative_stock * rng.standard_normal((n, n_stocks))
     systematic = draw.a_systematic * _standard_triangular(rng, (n, draw.a_systematic.size))
     triangular = _standard_triangular(rng, (n, draw.u_random.size))
     normal = rng.standard_normal((n, draw.u_random.size))

@@ -298,12 +298,12 @@ def _elementary_inputs(ex: BenchExperiment, models: _Models) -> _Inputs:
         touches.append(frozenset(int(m) for m in np.flatnonzero(np.any(column != 0, axis=1))))
 
     for s, stock in enumerate(ex.stock_ids):
-        if ex.stock_u_relative[s] > 0:
+        if ex.u_relative_stock[s] > 0:
             add(
                 f"stock {stock} concentration",
                 "stock",
                 "relative",
-                ex.stock_u_relative[s],
+                ex.u_relative_stock[s],
                 dr[:, s],
             )
     for device, u_sys in zip(ex.systematic_devices, ex.u_systematic_mL, strict=True):
