@@ -260,7 +260,7 @@ def _mixing_sensitivities(
     volume = ex.total_volume_mL[:, None, None]
     v_k = ex.volumes_mL[:, :, None]
     c_k = ex.stock_M[None, :, :]
-    amount = (ex.totals_M * ex.total_volume_mL[:, None])[:, None, :]
+    amount = (ex.layout.totals_M * ex.total_volume_mL[:, None])[:, None, :]
     shape = (len(ex.mixture_ids), len(ex.stock_ids), len(ex.components))
     if ex.in_flask:
         d = ex.diluent
@@ -363,10 +363,10 @@ def _curve(
 ) -> tuple[float, NDArray[np.float64]]:
     """Value and gradient of eps (prime "") or eps' (prime "'") from the standard curve."""
     f = models.functions
-    std = ex.standards
-    c = ex.totals_M[std, ex.limiting]
+    std = ex.layout.standards
+    c = ex.layout.totals_M[std, ex.layout.limiting]
     a = ex.readings[std]
-    a0 = float(ex.readings[ex.blanks].mean())
+    a0 = float(ex.readings[ex.layout.blanks].mean())
     b = ex.path_length_cm
     n = float(len(std))
     # Sums over the other standards (the "rest" symbols of the model).
@@ -380,27 +380,27 @@ def _curve(
     d_c = _broadcast(f["∂ε" + prime + "/∂c_k"](*args), shape)
     d_a = _broadcast(f["∂ε" + prime + "/∂A_k"](*args), shape)
     d_a0 = float(_broadcast(f["∂ε" + prime + "/∂A_0"](*args), shape)[0])
-    gradient = np.einsum("k,kz->z", d_c, inputs.totals_jacobian[std, ex.limiting, :])
+    gradient = np.einsum("k,kz->z", d_c, inputs.totals_jacobian[std, ex.layout.limiting, :])
     gradient[inputs.reading[std]] += d_a
-    gradient[inputs.reading[ex.blanks]] += d_a0 / len(ex.blanks)
+    gradient[inputs.reading[ex.layout.blanks]] += d_a0 / len(ex.layout.blanks)
     return value, gradient
 
 
 def _gradients(ex: BenchExperiment, inputs: _Inputs, models: _Models) -> _Gradients:
     f = models.functions
     epsilon, g_eps = _curve(ex, inputs, models, "")
-    if len(ex.standards) >= 2:
+    if len(ex.layout.standards) >= 2:
         epsilon_i, g_eps_i = _curve(ex, inputs, models, "'")
     else:
         # A line with an intercept needs two standards; with one, report the curve through
         # the origin for both rather than a 0/0.
         epsilon_i, g_eps_i = epsilon, g_eps.copy()
-    tst = ex.tests
+    tst = ex.layout.tests
     b = ex.path_length_cm
     a = ex.readings[tst]
-    a0 = float(ex.readings[ex.blanks].mean())
-    m_total = ex.totals_M[tst, ex.excess]
-    l_total = ex.totals_M[tst, ex.limiting]
+    a0 = float(ex.readings[ex.layout.blanks].mean())
+    m_total = ex.layout.totals_M[tst, ex.layout.excess]
+    l_total = ex.layout.totals_M[tst, ex.layout.limiting]
     shape = a.shape
     x = _broadcast(f["x"](a, a0, epsilon, b), shape)
     k = _broadcast(f["K"](x, m_total, l_total), shape)
@@ -413,12 +413,12 @@ def _gradients(ex: BenchExperiment, inputs: _Inputs, models: _Models) -> _Gradie
     jac = inputs.totals_jacobian
     g_k = (
         (dk_dx * dx_deps)[:, None] * g_eps[None, :]
-        + dk_dm[:, None] * jac[tst, ex.excess, :]
-        + dk_dl[:, None] * jac[tst, ex.limiting, :]
+        + dk_dm[:, None] * jac[tst, ex.layout.excess, :]
+        + dk_dl[:, None] * jac[tst, ex.layout.limiting, :]
     )
     g_k[np.arange(len(tst)), inputs.reading[tst]] += dk_dx * dx_da
-    for blank in ex.blanks:
-        g_k[:, inputs.reading[blank]] += dk_dx * dx_da0 / len(ex.blanks)
+    for blank in ex.layout.blanks:
+        g_k[:, inputs.reading[blank]] += dk_dx * dx_da0 / len(ex.layout.blanks)
     return _Gradients(
         epsilon=epsilon,
         g_epsilon=g_eps,
@@ -471,7 +471,7 @@ def _formula(
         "flask": "∂c/∂V_f",
         "reading": "",
     }.get(kind, "∂c/∂V_k")
-    n_tests = len(ex.tests)
+    n_tests = len(ex.layout.tests)
     terms: list[str] = []
     jac = inputs.totals_jacobian[:, :, z]
     for m in sorted(inputs.touches[z]):
@@ -479,8 +479,8 @@ def _formula(
             parts = [("reading", True)]
         else:
             parts = [
-                ("limiting", bool(jac[m, ex.limiting] != 0)),
-                ("excess", bool(jac[m, ex.excess] != 0)),
+                ("limiting", bool(jac[m, ex.layout.limiting] != 0)),
+                ("excess", bool(jac[m, ex.layout.excess] != 0)),
             ]
         for component, present in parts:
             if present:
@@ -570,14 +570,14 @@ def _reading_sensitivity(inputs: PlanInputs, ex: BenchExperiment) -> NDArray[np.
     def reading(totals: NDArray[np.float64]) -> NDArray[np.float64]:
         return predict_readings(inputs.reaction, inputs.instrument, totals).absorbance
 
-    result = np.zeros_like(ex.totals_M)
+    result = np.zeros_like(ex.layout.totals_M)
     for j in range(len(ex.components)):
-        step = _EQUILIBRIUM_STEP * ex.totals_M[:, j]
+        step = _EQUILIBRIUM_STEP * ex.layout.totals_M[:, j]
         present = step > 0
         if not np.any(present):
             continue
-        plus = ex.totals_M.copy()
-        minus = ex.totals_M.copy()
+        plus = ex.layout.totals_M.copy()
+        minus = ex.layout.totals_M.copy()
         plus[:, j] += step
         minus[:, j] -= step
         difference = reading(plus) - reading(minus)
@@ -599,7 +599,7 @@ def _per_mixture(
     return tuple(
         MixtureUncertainty(
             id=mixture_id,
-            totals_M={c: float(ex.totals_M[m, j]) for j, c in enumerate(ex.components)},
+            totals_M={c: float(ex.layout.totals_M[m, j]) for j, c in enumerate(ex.components)},
             u_totals_M={c: float(u_totals[m, j]) for j, c in enumerate(ex.components)},
             absorbance=float(ex.readings[m]),
             u_absorbance=float(u_reading[m]),
@@ -665,7 +665,7 @@ def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyRes
     elementary = _elementary_inputs(ex, models)
     gradients = _gradients(ex, elementary, models)
     roles = [m.role for m in mixtures]
-    n_tests = len(ex.tests)
+    n_tests = len(ex.layout.tests)
     epsilon = _budget(
         "epsilon",
         gradients.epsilon,
@@ -707,9 +707,9 @@ def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyRes
             (float(value), float(sd)) for value, sd in zip(gradients.K, u_k, strict=True)
         ),
         mixtures=per_mixture,
-        K_true=ex.K_true,
-        epsilon_true=ex.epsilon_true,
-        test_ids=tuple(ex.mixture_ids[i] for i in ex.tests),
+        K_true=ex.layout.K_true,
+        epsilon_true=ex.layout.epsilon_true,
+        test_ids=tuple(ex.mixture_ids[i] for i in ex.layout.tests),
     )
 
 
