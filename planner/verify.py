@@ -1016,15 +1016,16 @@ _K95 = 1.960
 def _meaningless(recomputed: RecomputedPrediction) -> list[str]:
     """The numbers of a recomputed prediction that would print as meaningless: a K, an eps,
     an uncertainty or the low end of a 95 % range that is not positive and finite."""
+    fresh = recomputed.prediction
     values = {
-        "eps": recomputed.epsilon,
-        "u(eps)": recomputed.u_epsilon,
-        "mean K": recomputed.K,
-        "u(K)": recomputed.u_K,
-        "low end of the range of eps": recomputed.epsilon - _K95 * recomputed.u_epsilon,
-        "low end of the range of K": recomputed.K - _K95 * recomputed.u_K,
+        "eps": fresh.epsilon,
+        "u(eps)": fresh.u_epsilon,
+        "mean K": fresh.K,
+        "u(K)": fresh.u_K,
+        "low end of the range of eps": fresh.epsilon - _K95 * fresh.u_epsilon,
+        "low end of the range of K": fresh.K - _K95 * fresh.u_K,
     }
-    values.update({f"K of test {n}": k for n, k in enumerate(recomputed.K_per_test, start=1)})
+    values.update({f"K of test {n}": k for n, k in enumerate(fresh.K_per_test, start=1)})
     return [
         f"{name} {value:.4g}"
         for name, value in values.items()
@@ -1056,7 +1057,7 @@ def _prediction(
                 "prediction",
                 "warn",
                 "the result states no prediction, though the recipes give one (mean K "
-                f"{recomputed.K:.4g} L/mol): plan again to get the answer key",
+                f"{recomputed.prediction.K:.4g} L/mol): plan again to get the answer key",
             )
         return Check("prediction", "pass", f"no prediction stated, and none made: {recomputed}")
     if isinstance(recomputed, str):
@@ -1065,15 +1066,16 @@ def _prediction(
             "fail",
             f"the result states a prediction, but the recipes give none: {recomputed}",
         )
+    fresh = recomputed.prediction
     problems = []
     for key in _PREDICTION_NUMBERS:
-        value, target = float(getattr(stated, key)), float(getattr(recomputed, key))
+        value, target = float(getattr(stated, key)), float(getattr(fresh, key))
         # The bias is a small difference (K/K_true - 1), so it is compared on K's scale.
         atol = _RTOL_PREDICTION if key == "K_bias_from_assumption" else 0.0
         if not _close(value, target, _RTOL_PREDICTION, atol + _NOISE * recomputed.rounding[key]):
             problems.append(f"{key}: {_pair(value, target)}")
     tests = [m.id for m in mixtures if m.role == "test"]
-    if len(stated.K_per_test) != len(recomputed.K_per_test):
+    if len(stated.K_per_test) != len(fresh.K_per_test):
         problems.append(
             f"K_per_test lists {len(stated.K_per_test)} values for {len(tests)} test mixtures"
         )
@@ -1081,17 +1083,17 @@ def _prediction(
         for test_id, value, target, rounding in zip(
             tests,
             stated.K_per_test,
-            recomputed.K_per_test,
+            fresh.K_per_test,
             recomputed.rounding_per_test,
             strict=True,
         ):
             if not _close(float(value), target, _RTOL_PREDICTION, _NOISE * rounding):
                 problems.append(f"K_per_test of {test_id}: {_pair(float(value), target)}")
     detail = (
-        f"eps {recomputed.epsilon:.4g} ± {recomputed.u_epsilon:.2g} L mol-1 cm-1 and mean K "
-        f"{recomputed.K:.4g} ± {recomputed.u_K:.2g} L/mol agree with a fresh derivation"
+        f"eps {fresh.epsilon:.4g} ± {fresh.u_epsilon:.2g} L mol-1 cm-1 and mean K "
+        f"{fresh.K:.4g} ± {fresh.u_K:.2g} L/mol agree with a fresh derivation"
     )
-    if not recomputed.rounding["K"] <= _RTOL_PREDICTION * abs(recomputed.K):
+    if not recomputed.rounding["K"] <= _RTOL_PREDICTION * abs(fresh.K):
         detail += (
             "; K is ill-conditioned here (its last digits change it by more than a millionth), "
             "so it is compared only as closely as rounding allows"

@@ -71,7 +71,7 @@ from numpy.typing import NDArray
 
 from planner.inputs import Device, PlanInputs
 from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
-from planner.result import Mixture
+from planner.result import Mixture, Prediction
 
 __all__ = [
     "ROUNDING_PROBE",
@@ -95,41 +95,26 @@ _GRADUATED = frozenset({"buret", "graduated-pipette", "graduated-cylinder"})
 
 @dataclass(frozen=True, slots=True)
 class RecomputedPrediction:
-    """The prediction block, re-derived.
+    """The prediction block, re-derived, with how far rounding of its inputs moves it.
 
     Attributes
     ----------
-    epsilon, u_epsilon
-        Molar absorptivity from the curve through the origin and its standard uncertainty
-        [L mol⁻¹ cm⁻¹].
-    K, u_K
-        Mean K over the tests and its standard uncertainty [L/mol].
-    K_bias_from_assumption
-        K / K_true - 1 [unitless].
-    K_true
-        The coloured product's formation constant the plan assumes [L/mol].
-    epsilon_true
-        The coloured product's molar absorptivity the plan assumes [L mol⁻¹ cm⁻¹].
-    K_per_test
-        K of each test mixture, in plan order [L/mol].
+    prediction
+        The numbers the plan's prediction block states (:class:`planner.result.Prediction`):
+        eps from the curve through the origin, the mean K over the tests, their standard
+        uncertainties, the bias of K against K_true, the constants the plan assumes and each
+        test's K. The ranges and the intercept fit are not re-derived.
     rounding
-        For each of the other numbers, by name, how far it moves when the blank reading or
-        the component totals change by :data:`ROUNDING_PROBE` of their value (in the number's
-        unit; infinite when such a change reaches a singularity). Near zero for a well-posed
-        plan; large when a test's product nearly equals a reagent's total, so that the last
-        digits of the inputs decide the result.
+        For each of the prediction's scalar numbers, by name, how far it moves when the blank
+        reading or the component totals change by :data:`ROUNDING_PROBE` of their value (in
+        the number's unit; infinite when such a change reaches a singularity). Near zero for a
+        well-posed plan; large when a test's product nearly equals a reagent's total, so that
+        the last digits of the inputs decide the result.
     rounding_per_test
-        The same for each entry of ``K_per_test`` [L/mol].
+        The same for each entry of ``prediction.K_per_test`` [L/mol].
     """
 
-    epsilon: float
-    u_epsilon: float
-    K: float
-    u_K: float
-    K_bias_from_assumption: float
-    K_true: float
-    epsilon_true: float
-    K_per_test: tuple[float, ...]
+    prediction: Prediction
     rounding: dict[str, float]
     rounding_per_test: tuple[float, ...]
 
@@ -284,14 +269,16 @@ def recompute_prediction(
     k_true = float(10.0**coloured.log_beta)
     epsilon, u_epsilon, k_mean, u_k, *k_tests = numbers
     return RecomputedPrediction(
-        epsilon=epsilon,
-        u_epsilon=u_epsilon,
-        K=k_mean,
-        u_K=u_k,
-        K_bias_from_assumption=k_mean / k_true - 1.0,
-        K_true=k_true,
-        epsilon_true=float(coloured.epsilon),
-        K_per_test=tuple(k_tests),
+        prediction=Prediction(
+            epsilon=epsilon,
+            u_epsilon=u_epsilon,
+            K=k_mean,
+            u_K=u_k,
+            K_bias_from_assumption=k_mean / k_true - 1.0,
+            K_true=k_true,
+            epsilon_true=float(coloured.epsilon),
+            K_per_test=tuple(k_tests),
+        ),
         rounding={
             "epsilon": spread[0],
             "u_epsilon": spread[1],
