@@ -221,7 +221,7 @@ class StockPreparation:
 
 @dataclass(frozen=True, slots=True)
 class Prediction:
-    """What the usual analysis (limiting reagent all bound in the standards) will report.
+    """What the all-bound analysis (limiting reagent all bound in the standards) will report.
 
     Attributes
     ----------
@@ -240,7 +240,7 @@ class Prediction:
     epsilon_true
         The molar absorptivity the plan assumes for the coloured product [L mol⁻¹ cm⁻¹].
     K_per_test
-        The K each test mixture gives under the usual analysis [L/mol].
+        The K each test mixture gives under the all-bound analysis [L/mol].
     u_K_per_test
         Standard uncertainty of each test's K [L/mol].
     epsilon_intercept
@@ -321,7 +321,7 @@ class Budget:
     measurand
         ``"epsilon"`` (curve through the origin), ``"epsilon_intercept"`` or ``"K"`` (mean K).
     value
-        Estimate the usual analysis gives from the predicted readings [``unit``].
+        Estimate the all-bound analysis gives from the predicted readings [``unit``].
     standard_uncertainty
         Combined standard uncertainty [``unit``].
     unit
@@ -377,7 +377,7 @@ class MixtureUncertainty:
 
 @dataclass(frozen=True, slots=True)
 class UncertaintyResult:
-    """The first-order prediction of the usual analysis.
+    """The first-order prediction of the all-bound analysis.
 
     Attributes
     ----------

@@ -132,7 +132,7 @@ def verify_plan(
     mixtures
         The plan's mixtures with their stated state.
     totals
-        The plan's stated stock totals.
+        The plan's stated stock totals [mL].
 
     Returns
     -------
@@ -159,12 +159,8 @@ def verify_result(
 
     Parameters
     ----------
-    inputs
-        The validated plan inputs.
-    mixtures
-        The plan's mixtures with their stated state.
-    totals
-        The plan's stated stock totals [mL].
+    inputs, mixtures, totals
+        As for :func:`verify_plan`.
     preparations
         The stated ``preparation`` block, or None when the result has none.
     prediction
@@ -654,7 +650,7 @@ def _assumption(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) 
             if needed - (1 - tolerance) * float(state.limiting_total[worst]) > 1.0:
                 detail += (
                     "; that excess is out of practical reach (above about 1 mol/L of free "
-                    "excess), so plan the corrected analysis: fit eps and K together with the "
+                    "excess), so plan the global fit: fit eps and K together with the "
                     "exact equilibrium model"
                 )
     else:
@@ -684,7 +680,7 @@ def _speciation(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) 
             "product-speciation",
             "warn",
             f"up to {100 * worst:.1f} % of the limiting reagent in the standards is bound in "
-            f"products other than {name}; the usual analysis counts it as {name}, so its molar "
+            f"products other than {name}; the all-bound analysis counts it as {name}, so its molar "
             f"absorptivity comes out about {100 * (1 - float(np.min(share))):.0f} % low. Lower "
             "the excess towards where the other products are minor, or fit every species "
             "with the exact model",

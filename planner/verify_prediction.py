@@ -1,7 +1,7 @@
 """Independent re-derivation of a plan's ``prediction`` block, for :mod:`planner.verify`.
 
 The prediction is what the answer key states: the molar absorptivity and the mean K the
-usual analysis will report from one bench's readings, their standard uncertainties, the K of
+all-bound analysis will report from one bench's readings, their standard uncertainties, the K of
 each test mixture, and the bias of K against the K the plan assumes. The design computes it
 with :mod:`planner.predict.uncertainty`, whose sensitivity coefficients sympy derives. This
 module derives the same numbers a second way and, like :mod:`planner.verify`, imports neither
@@ -15,11 +15,11 @@ disagreement instead of being copied:
   of :mod:`planner.lab.glassware`.
 
 What is shared with the design is the *definition* of the prediction, which any
-re-derivation has to share: the usual analysis and the error model of docs/methods.md
+re-derivation has to share: the all-bound analysis and the error model of docs/methods.md
 sections 9 and 10, and the recipes the design chose (every reagent blank, every standard and
 every test, as the answer key uses them).
 
-The usual analysis
+The all-bound analysis
 ------------------
 With c_k the limiting reagent's nominal total in standard k, A_k its reading and A_0 the
 blank's, b the path length, the curve through the origin gives
@@ -167,7 +167,7 @@ def recompute_prediction(
     Returns
     -------
     RecomputedPrediction or str
-        The numbers, or why the usual analysis gives none for these recipes (no blank,
+        The numbers, or why the all-bound analysis gives none for these recipes (no blank,
         standard or test; no excess partner in the coloured product; a device that does not
         measure; a non-finite result such as a test whose product equals a reagent's total).
     """
@@ -189,7 +189,7 @@ def recompute_prediction(
     standards = [i for i, m in enumerate(mixtures) if m.role == "standard"]
     tests = [i for i, m in enumerate(mixtures) if m.role == "test"]
     if not blanks or not standards or not tests:
-        return "the usual analysis needs a blank, a standard and a test mixture"
+        return "the all-bound analysis needs a blank, a standard and a test mixture"
     # The prediction uses every blank (their mean is the blank reading), every standard and
     # every test.
     chosen = [*blanks, *standards, *tests]
@@ -250,7 +250,7 @@ def recompute_prediction(
     base_readings = readings[chosen]
     numbers = evaluate(base_totals, base_readings)
     if not all(math.isfinite(v) for v in numbers):
-        return "the usual analysis gives no finite result for these recipes"
+        return "the all-bound analysis gives no finite result for these recipes"
     # How far the result moves when the blank reading or the totals change in their last
     # digits: the rounding that another, equally valid order of the same arithmetic makes.
     spread = [0.0] * len(numbers)

@@ -355,9 +355,9 @@ def simulate(
     Parameters
     ----------
     inputs
-        The validated plan.
+        The validated plan: its stocks, glassware and photometer give every trial's errors.
     mixtures
-        The plan's mixtures (at least one blank, one standard and one test).
+        The recipes every simulated bench makes (at least a blank, a standard and a test).
     trials
         Number of benches to simulate, from 2 to :func:`largest_trials` of the plan (at most
         :data:`MAX_TRIALS`; fewer when the arrays would exceed :data:`MEMORY_BUDGET_BYTES`).

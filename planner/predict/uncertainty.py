@@ -1,4 +1,4 @@
-"""First-order uncertainty budget of the usual analysis (GUM, JCGM 100:2008).
+"""First-order uncertainty budget of the all-bound analysis (GUM, JCGM 100:2008).
 
 The all-bound analysis of the class's readings (:mod:`planner.analysis`) computes, from the
 recipe's nominal concentrations and the blank-subtracted readings, the molar absorptivity from
@@ -634,7 +634,7 @@ def reading_uncertainties(
 
 
 def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyResult:
-    """First-order uncertainty of the usual analysis of one bench's set of mixtures.
+    """First-order uncertainty of the all-bound analysis of one bench's set of mixtures.
 
     Parameters
     ----------
