@@ -429,31 +429,28 @@ def _gradients(ex: BenchExperiment, inputs: _Inputs, models: _Models) -> _Gradie
     )
 
 
+#: The chain of derivatives from one quantity of one mixture to a measurand, keyed by (the
+#: measurand is K rather than eps, the mixture's role, the quantity): ``{p}`` is the prime of
+#: eps' (the intercept fit), ``{s}`` the first stage (input to total), ``{n}`` the test count.
+_CHAINS: dict[tuple[bool, Role, str], str] = {
+    (False, "standard", "limiting"): "∂ε{p}/∂c_k·{s}",
+    (False, "standard", "reading"): "∂ε{p}/∂A_k",
+    (False, "blank", "reading"): "∂ε{p}/∂A_0/n_blanks",
+    (True, "standard", "limiting"): "∂K_mean/∂ε·∂ε/∂c_k·{s}",
+    (True, "standard", "reading"): "∂K_mean/∂ε·∂ε/∂A_k",
+    (True, "test", "excess"): "(1/{n})·∂K/∂M·{s}",
+    (True, "test", "limiting"): "(1/{n})·∂K/∂L·{s}",
+    (True, "test", "reading"): "(1/{n})·∂K/∂x·∂x/∂A",
+    (True, "blank", "reading"): "(∂K_mean/∂ε·∂ε/∂A_0 + (1/{n})·Σ_i ∂K/∂x·∂x/∂A_0)/n_blanks",
+}
+
+
 def _chain_terms(measurand: str, role: Role, component: str, stage1: str, n_tests: int) -> str:
-    """The chain of derivatives from one quantity of one mixture to a measurand."""
-    mean = f"(1/{n_tests})"
-    if measurand in {"epsilon", "epsilon_intercept"}:
-        prime = "'" if measurand == "epsilon_intercept" else ""
-        if role == "standard" and component == "limiting":
-            return f"∂ε{prime}/∂c_k·{stage1}"
-        if role == "standard" and component == "reading":
-            return f"∂ε{prime}/∂A_k"
-        if role == "blank" and component == "reading":
-            return f"∂ε{prime}/∂A_0/n_blanks"
-        return ""
-    if role == "standard" and component == "limiting":
-        return f"∂K_mean/∂ε·∂ε/∂c_k·{stage1}"
-    if role == "standard" and component == "reading":
-        return "∂K_mean/∂ε·∂ε/∂A_k"
-    if role == "test" and component == "excess":
-        return f"{mean}·∂K/∂M·{stage1}"
-    if role == "test" and component == "limiting":
-        return f"{mean}·∂K/∂L·{stage1}"
-    if role == "test" and component == "reading":
-        return f"{mean}·∂K/∂x·∂x/∂A"
-    if role == "blank" and component == "reading":
-        return f"(∂K_mean/∂ε·∂ε/∂A_0 + {mean}·Σ_i ∂K/∂x·∂x/∂A_0)/n_blanks"
-    return ""
+    """The chain of derivatives from one quantity of one mixture to a measurand ("" when the
+    quantity does not reach it)."""
+    of_K = measurand not in {"epsilon", "epsilon_intercept"}
+    prime = "'" if measurand == "epsilon_intercept" else ""
+    return _CHAINS.get((of_K, role, component), "").format(p=prime, s=stage1, n=n_tests)
 
 
 def _formula(

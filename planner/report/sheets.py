@@ -485,9 +485,9 @@ def prep_sheet_md(plan: Plan, *, date: str) -> str:
     Parameters
     ----------
     plan
-        A finished plan.
+        A finished plan: its stocks, preparations, totals, open checks and notes.
     date
-        The date printed in the header.
+        The date printed in the header (any text; the caller decides).
 
     Returns
     -------
@@ -719,7 +719,7 @@ def mixtures_csv(plan: Plan) -> str:
     Parameters
     ----------
     plan
-        A finished plan.
+        A finished plan; its mixtures are the rows.
 
     Returns
     -------

@@ -183,7 +183,7 @@ def render_plan(plan: Plan) -> RenderableType:
     Parameters
     ----------
     plan
-        A finished plan.
+        A finished plan, its checks and prediction included.
 
     Returns
     -------
