@@ -83,7 +83,7 @@ class Layout:
         Columns of the limiting and the excess component.
     measured
         Row of the measured product species in the reaction.
-    epsilon_expected, K_expected
+    epsilon_true, K_true
         The plan's molar absorptivity [L mol⁻¹ cm⁻¹] and K (the measured species' beta, in
         its own units): the global fit's scale and fallback start.
     """
@@ -95,8 +95,8 @@ class Layout:
     limiting: int
     excess: int
     measured: int
-    epsilon_expected: float
-    K_expected: float
+    epsilon_true: float
+    K_true: float
 
 
 # ---------------------------------------------------------------------------------------------
@@ -330,7 +330,7 @@ def global_fit_batch(
         converge inside the table or gave eps <= 0.
     """
     n = net.shape[0]
-    scale = layout.epsilon_expected if layout.epsilon_expected > 0 else 1.0
+    scale = layout.epsilon_true if layout.epsilon_true > 0 else 1.0
     theta = np.stack([start[:, 0] / scale, np.clip(start[:, 1], table.low, table.high)], axis=1)
     damping = np.full(n, 1e-6)
     active = np.ones(n, dtype=bool)
@@ -407,8 +407,8 @@ def global_fit_starts(
     )
     lg = np.log10(np.where(usable, k_all_bound, 1.0)) + offset[1]
     eps = eps_all_bound + offset[0]
-    eps = np.where(usable & (eps > 0), eps, layout.epsilon_expected)
-    lg = np.where(usable, lg, math.log10(layout.K_expected))
+    eps = np.where(usable & (eps > 0), eps, layout.epsilon_true)
+    lg = np.where(usable, lg, math.log10(layout.K_true))
     return np.stack([eps, np.clip(lg, table.low, table.high)], axis=1)
 
 
@@ -447,7 +447,7 @@ def global_fit_start_offset(
     eps, k_tests = all_bound_mean_K(layout, net, instrument.path_length_cm)
     with np.errstate(invalid="ignore"):
         k = k_tests.mean(axis=1)
-    plan_start = np.array([[layout.epsilon_expected, math.log10(layout.K_expected)]])
+    plan_start = np.array([[layout.epsilon_true, math.log10(layout.K_true)]])
     fitted_eps, fitted_k = global_fit_batch(table, layout, instrument, net, plan_start)
     if not (np.isfinite(fitted_k[0]) and np.isfinite(k[0]) and k[0] > 0):
         return (0.0, 0.0)
@@ -483,7 +483,7 @@ def global_fit(
     fit = _fitted_rows(layout)
     data = np.asarray(readings, dtype=float)
     net = data[fit] - data[layout.blanks].mean()
-    scale = layout.epsilon_expected if layout.epsilon_expected > 0 else 1.0
+    scale = layout.epsilon_true if layout.epsilon_true > 0 else 1.0
 
     def residuals(theta: NDArray[np.float64]) -> NDArray[np.float64]:
         trial = logs.copy()

@@ -28,6 +28,7 @@ from planner.design.plan import design_recipes
 from planner.design.variants import VariantSet
 from planner.inputs import PlanInputs
 from planner.result import (
+    ROLES,
     Check,
     GlobalFitPrediction,
     Mixture,
@@ -96,7 +97,7 @@ def predict_mixtures(
     prediction: Prediction | None = None
     fitted: GlobalFitPrediction | None = None
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        if {"blank", "standard", "test"} <= roles and inputs.excess is not None:
+        if set(ROLES) <= roles and inputs.excess is not None:
             result = propagate(inputs, mixtures)
             per_mixture = result.mixtures
             # A test whose predicted product equals a reagent's total makes the 1:1 expression

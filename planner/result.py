@@ -7,7 +7,9 @@ absorptivity [L mol⁻¹ cm⁻¹] and ``K`` a formation constant [L/mol].
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import Literal, get_args
 
 from planner.inputs import PlanInputs
 
@@ -24,18 +26,45 @@ __all__ = [
     "MixtureUncertainty",
     "Plan",
     "Prediction",
+    "Role",
+    "Status",
     "StockPreparation",
+    "StockRole",
     "Totals",
     "UncertaintyResult",
+    "devices_text",
 ]
 
 #: Coverage factor of a 95 % interval for a normal distribution, k = 1.960 (JCGM 100:2008,
 #: Table G.1) [unitless].
 COVERAGE_FACTOR_95 = 1.960
+#: The role of a mixture: the reagent blank, a calibration standard or a test mixture.
+Role = Literal["blank", "standard", "test"]
 #: Mixture roles, in the order sheets list them.
-ROLES = ("blank", "standard", "test")
+ROLES: tuple[Role, ...] = get_args(Role)
+#: The status of a check (the JSON's ``checks[].status``).
+Status = Literal["fail", "warn", "pass"]
 #: Check statuses, worst first.
-CHECK_STATUSES = ("fail", "warn", "pass")
+CHECK_STATUSES: tuple[Status, ...] = get_args(Status)
+#: A stock's part in the order of addition: the diluent, the stock that brings the limiting
+#: reagent, or one that brings the reagent in excess.
+StockRole = Literal["diluent", "limiting", "excess"]
+
+
+def devices_text(devices: Sequence[str]) -> str:
+    """A delivery's devices as people read them, on every screen, sheet and message.
+
+    Each device is named by its id as the plan file's glassware gives it (DESIGN.md contract
+    detail 5: ``transfer-pipette-2mL``, ``buret-25mL``), the one name a device has in the
+    JSON, the terminal, the sheets and the checks; a repeated delivery is counted, in order
+    of first use: ``2 × transfer-pipette-2mL + transfer-pipette-0.5mL``.
+    """
+    counts: dict[str, int] = {}
+    for device_id in devices:
+        counts[device_id] = counts.get(device_id, 0) + 1
+    return " + ".join(
+        device_id if count == 1 else f"{count} × {device_id}" for device_id, count in counts.items()
+    )
 
 
 @dataclass(frozen=True, slots=True)
@@ -92,7 +121,7 @@ class Mixture:
     """
 
     id: str
-    role: str
+    role: Role
     total_volume_mL: float
     additions: tuple[Addition, ...]
     initial_M: dict[str, float]
@@ -128,7 +157,7 @@ class Check:
     """
 
     name: str
-    status: str
+    status: Status
     detail: str
 
 
@@ -199,7 +228,7 @@ class StockPreparation:
 
 @dataclass(frozen=True, slots=True)
 class Prediction:
-    """What the usual analysis (limiting reagent all bound in the standards) will report.
+    """What the all-bound analysis (limiting reagent all bound in the standards) will report.
 
     Attributes
     ----------
@@ -218,7 +247,7 @@ class Prediction:
     epsilon_true
         The molar absorptivity the plan assumes for the coloured product [L mol⁻¹ cm⁻¹].
     K_per_test
-        The K each test mixture gives under the usual analysis [L/mol].
+        The K each test mixture gives under the all-bound analysis [L/mol].
     u_K_per_test
         Standard uncertainty of each test's K [L/mol].
     epsilon_intercept
@@ -334,7 +363,7 @@ class Budget:
     measurand
         ``"epsilon"`` (curve through the origin), ``"epsilon_intercept"`` or ``"K"`` (mean K).
     value
-        Estimate the usual analysis gives from the predicted readings [``unit``].
+        Estimate the all-bound analysis gives from the predicted readings [``unit``].
     standard_uncertainty
         Combined standard uncertainty [``unit``].
     unit
@@ -390,7 +419,7 @@ class MixtureUncertainty:
 
 @dataclass(frozen=True, slots=True)
 class UncertaintyResult:
-    """The first-order prediction of the usual analysis.
+    """The first-order prediction of the all-bound analysis.
 
     Attributes
     ----------
@@ -437,7 +466,8 @@ class Plan:
     """A finished plan: inputs, mixtures, totals, preparation, checks and prediction.
 
     ``design_objective`` is the value of the test-set objective the design minimised (by
-    default the predicted relative SD of the mean K [unitless]); None when not designed.
+    default the predicted relative standard uncertainty of the mean K, u(K)/K [unitless]); None
+    when not designed.
     ``uncertainty`` is the whole first-order prediction (every budget and every mixture's
     u(A)) the prediction stage made; ``prediction`` and each mixture's ``u_absorbance`` are
     read from it (``prediction`` is None when its numbers would mean nothing, the budget is
@@ -464,6 +494,6 @@ class Plan:
         """True when some check failed (the exit status is then 1)."""
         return any(c.status == "fail" for c in self.checks)
 
-    def by_role(self, role: str) -> tuple[Mixture, ...]:
+    def by_role(self, role: Role) -> tuple[Mixture, ...]:
         """The mixtures of one role, in plan order."""
         return tuple(m for m in self.mixtures if m.role == role)

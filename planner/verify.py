@@ -33,12 +33,14 @@ from planner.lab.glassware import (
 )
 from planner.lab.photometer import observed_absorbance, true_absorbance
 from planner.result import (
+    ROLES,
     Check,
     GlobalFitPrediction,
     Mixture,
     Prediction,
     StockPreparation,
     Totals,
+    devices_text,
 )
 from planner.verify_global_fit import RecomputedGlobalFit, recompute_global_fit
 from planner.verify_prediction import (
@@ -147,7 +149,7 @@ def verify_plan(
     mixtures
         The plan's mixtures with their stated state.
     totals
-        The plan's stated stock totals.
+        The plan's stated stock totals [mL].
 
     Returns
     -------
@@ -177,12 +179,8 @@ def verify_result(
 
     Parameters
     ----------
-    inputs
-        The validated plan inputs.
-    mixtures
-        The plan's mixtures with their stated state.
-    totals
-        The plan's stated stock totals [mL].
+    inputs, mixtures, totals
+        As for :func:`verify_plan`.
     preparations
         The stated ``preparation`` block, or None when the result has none.
     prediction
@@ -288,9 +286,7 @@ def _listed(problems: list[str]) -> list[str]:
 
 def _mixture_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
     design = inputs.design
-    counts = {
-        role: sum(1 for m in mixtures if m.role == role) for role in ("blank", "standard", "test")
-    }
+    counts = {role: sum(1 for m in mixtures if m.role == role) for role in ROLES}
     problems = []
     if counts["standard"] != design.standards:
         problems.append(
@@ -316,9 +312,9 @@ def _mixture_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
     duplicates = sorted(i for i, n in Counter(m.id for m in mixtures).items() if n > 1)
     if duplicates:
         problems.append(f"mixture ids used twice: {_names(duplicates)}")
-    bad_roles = [m.id for m in mixtures if m.role not in ("blank", "standard", "test")]
+    bad_roles = [m.id for m in mixtures if m.role not in ROLES]
     if bad_roles:
-        problems.append(f"unknown role for {_names(bad_roles)}: use blank, standard or test")
+        problems.append(f"unknown role for {_names(bad_roles)}: use {', '.join(ROLES)}")
     for role in ("standard", "test"):
         recipes = [
             tuple(sorted((a.stock, round(a.volume_mL, 6)) for a in m.additions))
@@ -369,7 +365,7 @@ def _deliverable(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
                 )
             elif not _deliverable_with(inputs, devices, a.volume_mL, a.devices):
                 problems.append(
-                    f"{where}: cannot be delivered with {' + '.join(a.devices) or 'no device'}; "
+                    f"{where}: cannot be delivered with {devices_text(a.devices) or 'no device'}; "
                     "choose a volume on the device's scale or another device"
                 )
     return _check(
@@ -745,7 +741,7 @@ def _assumption(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) 
             if needed - (1 - tolerance) * float(state.limiting_total[worst]) > 1.0:
                 detail += (
                     "; that excess is out of practical reach (above about 1 mol/L of free "
-                    "excess), so plan the corrected analysis: fit eps and K together with the "
+                    "excess), so plan the global fit: fit eps and K together with the "
                     "exact equilibrium model"
                 )
     else:
@@ -775,7 +771,7 @@ def _speciation(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) 
             "product-speciation",
             "warn",
             f"up to {100 * worst:.1f} % of the limiting reagent in the standards is bound in "
-            f"products other than {name}; the usual analysis counts it as {name}, so its molar "
+            f"products other than {name}; the all-bound analysis counts it as {name}, so its molar "
             f"absorptivity comes out about {100 * (1 - float(np.min(share))):.0f} % low. Lower "
             "the excess towards where the other products are minor, or fit every species "
             "with the exact model",
@@ -1107,15 +1103,16 @@ _K95 = 1.960
 def _meaningless(recomputed: RecomputedPrediction) -> list[str]:
     """The numbers of a recomputed prediction that would print as meaningless: a K, an eps,
     an uncertainty or the low end of a 95 % range that is not positive and finite."""
+    fresh = recomputed.prediction
     values = {
-        "eps": recomputed.epsilon,
-        "u(eps)": recomputed.u_epsilon,
-        "mean K": recomputed.K,
-        "u(K)": recomputed.u_K,
-        "low end of the range of eps": recomputed.epsilon - _K95 * recomputed.u_epsilon,
-        "low end of the range of K": recomputed.K - _K95 * recomputed.u_K,
+        "eps": fresh.epsilon,
+        "u(eps)": fresh.u_epsilon,
+        "mean K": fresh.K,
+        "u(K)": fresh.u_K,
+        "low end of the range of eps": fresh.epsilon - _K95 * fresh.u_epsilon,
+        "low end of the range of K": fresh.K - _K95 * fresh.u_K,
     }
-    values.update({f"K of test {n}": k for n, k in enumerate(recomputed.K_per_test, start=1)})
+    values.update({f"K of test {n}": k for n, k in enumerate(fresh.K_per_test, start=1)})
     return [
         f"{name} {value:.4g}"
         for name, value in values.items()
@@ -1221,7 +1218,7 @@ def _all_bound_prediction(
                 "prediction",
                 "warn",
                 "the result states no prediction, though the recipes give one (mean K "
-                f"{recomputed.K:.4g} L/mol): plan again to get the answer key",
+                f"{recomputed.prediction.K:.4g} L/mol): plan again to get the answer key",
             )
         return Check("prediction", "pass", f"no prediction stated, and none made: {recomputed}")
     if isinstance(recomputed, str):
@@ -1230,15 +1227,16 @@ def _all_bound_prediction(
             "fail",
             f"the result states a prediction, but the recipes give none: {recomputed}",
         )
+    fresh = recomputed.prediction
     problems = []
     for key in _PREDICTION_NUMBERS:
-        value, target = float(getattr(stated, key)), float(getattr(recomputed, key))
+        value, target = float(getattr(stated, key)), float(getattr(fresh, key))
         # The bias is a small difference (K/K_true - 1), so it is compared on K's scale.
         atol = _RTOL_PREDICTION if key == "K_bias_from_assumption" else 0.0
         if not _close(value, target, _RTOL_PREDICTION, atol + _NOISE * recomputed.rounding[key]):
             problems.append(f"{key}: {_pair(value, target)}")
     tests = [m.id for m in mixtures if m.role == "test"]
-    if len(stated.K_per_test) != len(recomputed.K_per_test):
+    if len(stated.K_per_test) != len(fresh.K_per_test):
         problems.append(
             f"K_per_test lists {len(stated.K_per_test)} values for {len(tests)} test mixtures"
         )
@@ -1246,17 +1244,17 @@ def _all_bound_prediction(
         for test_id, value, target, rounding in zip(
             tests,
             stated.K_per_test,
-            recomputed.K_per_test,
+            fresh.K_per_test,
             recomputed.rounding_per_test,
             strict=True,
         ):
             if not _close(float(value), target, _RTOL_PREDICTION, _NOISE * rounding):
                 problems.append(f"K_per_test of {test_id}: {_pair(float(value), target)}")
     detail = (
-        f"eps {recomputed.epsilon:.4g} ± {recomputed.u_epsilon:.2g} L mol-1 cm-1 and mean K "
-        f"{recomputed.K:.4g} ± {recomputed.u_K:.2g} L/mol agree with a fresh derivation"
+        f"eps {fresh.epsilon:.4g} ± {fresh.u_epsilon:.2g} L mol-1 cm-1 and mean K "
+        f"{fresh.K:.4g} ± {fresh.u_K:.2g} L/mol agree with a fresh derivation"
     )
-    if not recomputed.rounding["K"] <= _RTOL_PREDICTION * abs(recomputed.K):
+    if not recomputed.rounding["K"] <= _RTOL_PREDICTION * abs(fresh.K):
         detail += (
             "; K is ill-conditioned here (its last digits change it by more than a millionth), "
             "so it is compared only as closely as rounding allows"

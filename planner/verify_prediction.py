@@ -1,7 +1,7 @@
 """Independent re-derivation of a plan's ``prediction`` block, for :mod:`planner.verify`.
 
 The prediction is what the answer key states: the molar absorptivity and the mean K the
-usual analysis will report from one bench's readings, their standard uncertainties, the K of
+all-bound analysis will report from one bench's readings, their standard uncertainties, the K of
 each test mixture, and the bias of K against the K the plan assumes. The design computes it
 with :mod:`planner.predict.uncertainty`, whose sensitivity coefficients sympy derives. This
 module derives the same numbers a second way and, like :mod:`planner.verify`, imports neither
@@ -15,11 +15,11 @@ disagreement instead of being copied:
   of :mod:`planner.lab.glassware`.
 
 What is shared with the design is the *definition* of the prediction, which any
-re-derivation has to share: the usual analysis and the error model of docs/methods.md
+re-derivation has to share: the all-bound analysis and the error model of docs/methods.md
 sections 9 and 10, and the recipes the design chose (every reagent blank, every standard and
 every test, as the answer key uses them).
 
-The usual analysis
+The all-bound analysis
 ------------------
 With c_k the limiting reagent's nominal total in standard k, A_k its reading and A_0 the
 blank's, b the path length, the curve through the origin gives
@@ -71,7 +71,7 @@ from numpy.typing import NDArray
 
 from planner.inputs import Device, PlanInputs
 from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
-from planner.result import Mixture
+from planner.result import Mixture, Prediction
 
 __all__ = [
     "ROUNDING_PROBE",
@@ -96,41 +96,26 @@ _GRADUATED = frozenset({"buret", "graduated-pipette", "graduated-cylinder"})
 
 @dataclass(frozen=True, slots=True)
 class RecomputedPrediction:
-    """The prediction block, re-derived.
+    """The prediction block, re-derived, with how far rounding of its inputs moves it.
 
     Attributes
     ----------
-    epsilon, u_epsilon
-        Molar absorptivity from the curve through the origin and its standard uncertainty
-        [L mol⁻¹ cm⁻¹].
-    K, u_K
-        Mean K over the tests and its standard uncertainty [L/mol].
-    K_bias_from_assumption
-        K / K_true - 1 [unitless].
-    K_true
-        The coloured product's formation constant the plan assumes [L/mol].
-    epsilon_true
-        The coloured product's molar absorptivity the plan assumes [L mol⁻¹ cm⁻¹].
-    K_per_test
-        K of each test mixture, in plan order [L/mol].
+    prediction
+        The numbers the plan's prediction block states (:class:`planner.result.Prediction`):
+        eps from the curve through the origin, the mean K over the tests, their standard
+        uncertainties, the bias of K against K_true, the constants the plan assumes and each
+        test's K. The ranges and the intercept fit are not re-derived.
     rounding
-        For each of the other numbers, by name, how far it moves when the blank reading or
-        the component totals change by :data:`ROUNDING_PROBE` of their value (in the number's
-        unit; infinite when such a change reaches a singularity). Near zero for a well-posed
-        plan; large when a test's product nearly equals a reagent's total, so that the last
-        digits of the inputs decide the result.
+        For each of the prediction's scalar numbers, by name, how far it moves when the blank
+        reading or the component totals change by :data:`ROUNDING_PROBE` of their value (in
+        the number's unit; infinite when such a change reaches a singularity). Near zero for a
+        well-posed plan; large when a test's product nearly equals a reagent's total, so that
+        the last digits of the inputs decide the result.
     rounding_per_test
-        The same for each entry of ``K_per_test`` [L/mol].
+        The same for each entry of ``prediction.K_per_test`` [L/mol].
     """
 
-    epsilon: float
-    u_epsilon: float
-    K: float
-    u_K: float
-    K_bias_from_assumption: float
-    K_true: float
-    epsilon_true: float
-    K_per_test: tuple[float, ...]
+    prediction: Prediction
     rounding: dict[str, float]
     rounding_per_test: tuple[float, ...]
 
@@ -217,7 +202,7 @@ def recompute_prediction(
     Returns
     -------
     RecomputedPrediction or str
-        The numbers, or why the usual analysis gives none for these recipes (no blank,
+        The numbers, or why the all-bound analysis gives none for these recipes (no blank,
         standard or test; no excess partner in the coloured product; a device that does not
         measure; a non-finite result such as a test whose product equals a reagent's total).
     """
@@ -239,7 +224,7 @@ def recompute_prediction(
     standards = [i for i, m in enumerate(mixtures) if m.role == "standard"]
     tests = [i for i, m in enumerate(mixtures) if m.role == "test"]
     if not blanks or not standards or not tests:
-        return "the usual analysis needs a blank, a standard and a test mixture"
+        return "the all-bound analysis needs a blank, a standard and a test mixture"
     # The prediction uses every blank (their mean is the blank reading), every standard and
     # every test.
     chosen = [*blanks, *standards, *tests]
@@ -290,7 +275,7 @@ def recompute_prediction(
     base_readings = readings[chosen]
     numbers = evaluate(base_totals, base_readings)
     if not all(math.isfinite(v) for v in numbers):
-        return "the usual analysis gives no finite result for these recipes"
+        return "the all-bound analysis gives no finite result for these recipes"
     # How far the result moves when the blank reading or the totals change in their last
     # digits: the rounding that another, equally valid order of the same arithmetic makes.
     spread = [0.0] * len(numbers)
@@ -309,14 +294,16 @@ def recompute_prediction(
     k_true = float(10.0**coloured.log_beta)
     epsilon, u_epsilon, k_mean, u_k, *k_tests = numbers
     return RecomputedPrediction(
-        epsilon=epsilon,
-        u_epsilon=u_epsilon,
-        K=k_mean,
-        u_K=u_k,
-        K_bias_from_assumption=k_mean / k_true - 1.0,
-        K_true=k_true,
-        epsilon_true=float(coloured.epsilon),
-        K_per_test=tuple(k_tests),
+        prediction=Prediction(
+            epsilon=epsilon,
+            u_epsilon=u_epsilon,
+            K=k_mean,
+            u_K=u_k,
+            K_bias_from_assumption=k_mean / k_true - 1.0,
+            K_true=k_true,
+            epsilon_true=float(coloured.epsilon),
+            K_per_test=tuple(k_tests),
+        ),
         rounding={
             "epsilon": spread[0],
             "u_epsilon": spread[1],

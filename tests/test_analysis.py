@@ -95,8 +95,8 @@ def _layout() -> tuple[Layout, np.ndarray]:
         limiting=1,
         excess=0,
         measured=0,
-        epsilon_expected=4000.0,
-        K_expected=100.0,
+        epsilon_true=4000.0,
+        K_true=100.0,
     )
     return layout, totals
 

@@ -389,3 +389,13 @@ def test_large_numbers_in_inputs_are_left_to_the_plan_file_rules(document: Docum
     # available_mL has no upper bound in a plan file (planner/planfile/schema.py).
     document["inputs"]["stocks"][0]["available_mL"] = 1e150
     assert parse_result(json.dumps(document)).inputs.stocks[0].available_mL == 1e150
+
+
+def test_unknown_mixture_role_is_refused_with_its_field(document: Document) -> None:
+    # A mixture's role is one of the three words of planner.result.Role (docs/nomenclature.md),
+    # read as strictly as a check's status: a misspelt role names its field, not a check.
+    document["mixtures"][1]["role"] = "standards"
+    with pytest.raises(ResultFileError) as caught:
+        parse_result(json.dumps(document))
+    assert caught.value.field == "mixtures[1].role"
+    assert "blank" in str(caught.value)

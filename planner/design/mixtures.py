@@ -247,8 +247,8 @@ def global_fit_objective(
         limiting=limiting,
         excess=excess,
         measured=inputs.measured,
-        epsilon_expected=inputs.measured_species.epsilon,
-        K_expected=10.0**inputs.measured_species.log_beta,
+        epsilon_true=inputs.measured_species.epsilon,
+        K_true=10.0**inputs.measured_species.log_beta,
     )
     rows = global_fit_jacobian(inputs.reaction, inputs.instrument, layout)
     return GlobalFitObjective(rows, candidates.u_absorbance**2, np.array(standards, dtype=np.int64))

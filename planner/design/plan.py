@@ -26,7 +26,7 @@ from planner.design.mixtures import (
 )
 from planner.design.standards import StandardsChoice, choose_standards
 from planner.inputs import PlanInputs
-from planner.result import Addition, Check, Mixture, StockPreparation, Totals
+from planner.result import Addition, Check, Mixture, Role, StockPreparation, Totals
 
 __all__ = ["Design", "design_recipes", "mixture_from_candidate"]
 
@@ -72,7 +72,7 @@ class Design:
 
 
 def mixture_from_candidate(
-    inputs: PlanInputs, candidates: CandidateSet, index: int, mixture_id: str, role: str
+    inputs: PlanInputs, candidates: CandidateSet, index: int, mixture_id: str, role: Role
 ) -> Mixture:
     """The recipe and predicted state of one candidate.
 
@@ -407,12 +407,12 @@ def _all_bound_error(
         limiting=components.index(inputs.design.limiting),
         excess=components.index(inputs.excess),
         measured=inputs.measured,
-        epsilon_expected=inputs.measured_species.epsilon,
-        K_expected=10.0**inputs.measured_species.log_beta,
+        epsilon_true=inputs.measured_species.epsilon,
+        K_true=10.0**inputs.measured_species.log_beta,
     )
     readings = ev.absorbance[rows]
     net = readings - (readings[:n_blank].mean() if n_blank else 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
         _, k = all_bound_mean_K(layout, net[None, :], inputs.instrument.path_length_cm)
-        error = float(k.mean()) / layout.K_expected - 1.0
+        error = float(k.mean()) / layout.K_true - 1.0
     return error if np.isfinite(error) and k.mean() > 0 else None

@@ -31,7 +31,7 @@ from numpy.typing import NDArray
 from planner.design.candidates import CandidateSet, candidate_set
 from planner.errors import InvalidInputError
 from planner.inputs import PlanInputs
-from planner.result import Plan
+from planner.result import Plan, Role
 
 __all__ = ["MAX_SECTIONS", "PlanMaker", "VariantSet", "design_variants", "recipe_key"]
 
@@ -87,7 +87,7 @@ class VariantSet:
         return len(self.plans) == self.requested
 
 
-def recipe_key(plan: Plan, role: str = "test") -> tuple[tuple[tuple[str, float], ...], ...]:
+def recipe_key(plan: Plan, role: Role = "test") -> tuple[tuple[tuple[str, float], ...], ...]:
     """The recipes of one role as a comparable, order-free key."""
     return tuple(
         sorted(

@@ -355,15 +355,12 @@ def absorbance_sd_from_transmittance_sd(
 def relative_concentration_error(
     absorbance: ArrayLike, transmittance_sd: ArrayLike
 ) -> NDArray[np.float64]:
-    """Relative standard deviation of a concentration from constant transmittance noise.
+    """Relative standard uncertainty u(c)/c of a concentration from constant transmittance noise.
 
     Parameters
     ----------
-    absorbance
-        Absorbance A >= 0, any shape [absorbance units].
-    transmittance_sd
-        Standard deviation of the transmittance reading σT [unitless], broadcastable
-        against ``absorbance``.
+    absorbance, transmittance_sd
+        As for :func:`absorbance_sd_from_transmittance_sd`, with A >= 0.
 
     Returns
     -------
@@ -395,7 +392,6 @@ def relative_concentration_error(
     >>> round(float(relative_concentration_error(RINGBOM_OPTIMUM_ABSORBANCE, 0.003)), 5)
     0.00815
     """
-    sd = _check_transmittance_sd(transmittance_sd)
     a = np.asarray(absorbance, dtype=float)
     if not np.all(np.isfinite(a)) or np.any(a < 0.0):
         raise InvalidInputError(
@@ -404,9 +400,9 @@ def relative_concentration_error(
             value=float(a[~np.isfinite(a) | (a < 0.0)].flat[0]) if a.ndim else float(a),
             hint="pass Beer-Lambert absorbances of the sample, not blank-corrected noise",
         )
-    # At A = 0 the relative error is infinite (its limit), and 10^A overflows to inf beyond
-    # A ≈ 308, also its limit; neither should warn.
-    with np.errstate(over="ignore", invalid="ignore"):
-        numerator = _LOG10_E * sd * 10.0**a
-        error = np.where(a > 0.0, numerator / np.where(a > 0.0, a, 1.0), np.inf)
+    # σc/c = σA/A. At A = 0 the relative error is infinite (its limit), and σA overflows to
+    # inf beyond A ≈ 308, also its limit; neither should warn.
+    sd_A = absorbance_sd_from_transmittance_sd(a, transmittance_sd)
+    with np.errstate(invalid="ignore"):
+        error = np.where(a > 0.0, sd_A / np.where(a > 0.0, a, 1.0), np.inf)
     return np.asarray(error, dtype=float)

@@ -46,12 +46,11 @@ from planner.analysis import Layout
 from planner.errors import InvalidInputError
 from planner.inputs import Device, PlanInputs
 from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
-from planner.result import Mixture
+from planner.result import ROLES, Mixture, Role
 
 __all__ = [
     "BenchExperiment",
     "Delivery",
-    "analysis_layout",
     "bench_experiment",
     "delivery_split_mL",
     "triangular_half_width",
@@ -101,8 +100,6 @@ class BenchExperiment:
     ----------
     mixture_ids
         Mixture ids in plan order.
-    blanks, standards, tests
-        Rows of the reagent blanks, calibration standards and test mixtures.
     stock_ids
         Stocks in plan order (columns of ``volumes_mL``).
     components
@@ -110,7 +107,7 @@ class BenchExperiment:
     stock_M
         Concentration of each component in each stock, shape (n_stocks, n_components)
         [mol/L].
-    stock_u_relative
+    u_relative_stock
         Relative standard uncertainty of each stock's concentrations, shape (n_stocks,)
         [unitless].
     volumes_mL
@@ -130,35 +127,26 @@ class BenchExperiment:
         Ids of the devices that carry a systematic error, in first-use order.
     u_systematic_mL
         Standard uncertainty of each of those devices' systematic error, shape (n,) [mL].
-    totals_M
-        Nominal component totals of every mixture, shape (n_mixtures, n_components) [mol/L]:
-        the values an analyst computes from the recipe.
+    layout
+        The set as the analyses see it (:class:`planner.analysis.Layout`): nominal component
+        totals, rows of the blanks, standards and tests, columns of the limiting and excess
+        components, the measured species, and the K and eps the plan assumes.
     readings
         Predicted photometer readings (stray light applied, blank not subtracted), shape
         (n_mixtures,) [unitless].
-    limiting, excess, coloured
-        Index of the limiting component, of the excess component of the coloured product, and
-        of the coloured product species.
     path_length_cm
         Cuvette path length [cm].
     absorbance_sd
         Standard deviation of one reading [unitless].
     stray_light
         Stray-light fraction [unitless].
-    K_true
-        Formation constant of the coloured product the plan assumes [L/mol] (its beta).
-    epsilon_true
-        Molar absorptivity of the coloured product the plan assumes [L mol⁻¹ cm⁻¹].
     """
 
     mixture_ids: tuple[str, ...]
-    blanks: NDArray[np.int64]
-    standards: NDArray[np.int64]
-    tests: NDArray[np.int64]
     stock_ids: tuple[str, ...]
     components: tuple[str, ...]
     stock_M: NDArray[np.float64]
-    stock_u_relative: NDArray[np.float64]
+    u_relative_stock: NDArray[np.float64]
     volumes_mL: NDArray[np.float64]
     total_volume_mL: NDArray[np.float64]
     in_flask: bool
@@ -167,16 +155,11 @@ class BenchExperiment:
     deliveries: tuple[Delivery, ...]
     systematic_devices: tuple[str, ...]
     u_systematic_mL: NDArray[np.float64]
-    totals_M: NDArray[np.float64]
+    layout: Layout
     readings: NDArray[np.float64]
-    limiting: int
-    excess: int
-    coloured: int
     path_length_cm: float
     absorbance_sd: float
     stray_light: float
-    K_true: float
-    epsilon_true: float
 
 
 def delivery_split_mL(device: Device) -> tuple[float, float, bool]:
@@ -257,7 +240,7 @@ def bench_experiment(
         (field ``additions.devices``); a coloured product without an excess partner.
     """
     roles = [m.role for m in mixtures]
-    for role in ("blank", "standard", "test") if for_analysis else ():
+    for role in ROLES if for_analysis else ():
         if role not in roles:
             raise InvalidInputError(
                 f"the plan has no {role} mixture, so the analysis cannot be predicted",
@@ -301,23 +284,29 @@ def bench_experiment(
                     systematic.setdefault(device_id, u_sys)
                 deliveries.append(Delivery(row, column, device_id, u_sys, u_rand, normal))
     totals_volume = np.array([m.total_volume_mL for m in mixtures], dtype=float)
-    totals = volumes @ stock_M / totals_volume[:, None]
 
-    coloured = inputs.measured
-    species = reaction.species[coloured]
+    species = reaction.species[inputs.measured]
 
-    def rows(role: str) -> NDArray[np.int64]:
+    def rows(role: Role) -> NDArray[np.int64]:
         return np.array([i for i, r in enumerate(roles) if r == role], dtype=np.int64)
 
-    return BenchExperiment(
-        mixture_ids=tuple(m.id for m in mixtures),
+    layout = Layout(
+        totals_M=volumes @ stock_M / totals_volume[:, None],
         blanks=rows("blank"),
         standards=rows("standard"),
         tests=rows("test"),
+        limiting=components.index(inputs.design.limiting),
+        excess=_excess_column(inputs, required=for_analysis),
+        measured=inputs.measured,
+        epsilon_true=float(species.epsilon),
+        K_true=float(10.0**species.log_beta),
+    )
+    return BenchExperiment(
+        mixture_ids=tuple(m.id for m in mixtures),
         stock_ids=stock_ids,
         components=components,
         stock_M=stock_M,
-        stock_u_relative=stock_u,
+        u_relative_stock=stock_u,
         volumes_mL=volumes,
         total_volume_mL=totals_volume,
         in_flask=in_flask,
@@ -326,31 +315,11 @@ def bench_experiment(
         deliveries=tuple(deliveries),
         systematic_devices=tuple(systematic),
         u_systematic_mL=np.array(list(systematic.values()), dtype=float),
-        totals_M=totals,
+        layout=layout,
         readings=np.array([m.absorbance for m in mixtures], dtype=float),
-        limiting=components.index(inputs.design.limiting),
-        excess=_excess_column(inputs, required=for_analysis),
-        coloured=coloured,
         path_length_cm=inputs.instrument.path_length_cm,
         absorbance_sd=inputs.instrument.absorbance_sd,
         stray_light=inputs.instrument.stray_light,
-        K_true=float(10.0**species.log_beta),
-        epsilon_true=float(species.epsilon),
-    )
-
-
-def analysis_layout(ex: BenchExperiment) -> Layout:
-    """The set of mixtures as the analyses of :mod:`planner.analysis` see it."""
-    return Layout(
-        totals_M=ex.totals_M,
-        blanks=ex.blanks,
-        standards=ex.standards,
-        tests=ex.tests,
-        limiting=ex.limiting,
-        excess=ex.excess,
-        measured=ex.coloured,
-        epsilon_expected=ex.epsilon_true,
-        K_expected=ex.K_true,
     )
 
 

@@ -53,7 +53,6 @@ from planner.forward import predict_readings
 from planner.inputs import PlanInputs
 from planner.predict._experiment import (
     BenchExperiment,
-    analysis_layout,
     bench_experiment,
     triangular_half_width,
 )
@@ -271,7 +270,7 @@ def _simulate_readings(
     """Draw n benches and return their readings, shape (n, n_mix) [unitless]."""
     n_mix, n_stocks = ex.volumes_mL.shape
     # Draw order is fixed (reproducibility): stocks, devices, deliveries, flasks, readings.
-    stock_factor = 1.0 + ex.stock_u_relative * rng.standard_normal((n, n_stocks))
+    stock_factor = 1.0 + ex.u_relative_stock * rng.standard_normal((n, n_stocks))
     systematic = draw.a_systematic * _standard_triangular(rng, (n, draw.a_systematic.size))
     triangular = _standard_triangular(rng, (n, draw.u_random.size))
     normal = rng.standard_normal((n, draw.u_random.size))
@@ -309,7 +308,7 @@ def global_fit_least_squares(
     Returns (eps [L mol⁻¹ cm⁻¹], K) of the measured product.
     """
     ex = bench_experiment(inputs, mixtures)
-    return global_fit(inputs.reaction, inputs.instrument, analysis_layout(ex), readings)
+    return global_fit(inputs.reaction, inputs.instrument, ex.layout, readings)
 
 
 def _bytes_per_trial(n_mixtures: int, n_tests: int) -> int:
@@ -356,9 +355,9 @@ def simulate(
     Parameters
     ----------
     inputs
-        The validated plan.
+        The validated plan: its stocks, glassware and photometer give every trial's errors.
     mixtures
-        The plan's mixtures (at least one blank, one standard and one test).
+        The recipes every simulated bench makes (at least a blank, a standard and a test).
     trials
         Number of benches to simulate, from 2 to :func:`largest_trials` of the plan (at most
         :data:`MAX_TRIALS`; fewer when the arrays would exceed :data:`MEMORY_BUDGET_BYTES`).
@@ -388,9 +387,11 @@ def simulate(
             hint="ask for 10000 or more trials for stable 95 % intervals",
         )
     ex = bench_experiment(inputs, mixtures)
-    largest = largest_trials(len(ex.mixture_ids), int(ex.tests.size))
+    largest = largest_trials(len(ex.mixture_ids), int(ex.layout.tests.size))
     if trials > largest:
-        needed_GiB = trials * _bytes_per_trial(len(ex.mixture_ids), int(ex.tests.size)) / 2**30
+        needed_GiB = (
+            trials * _bytes_per_trial(len(ex.mixture_ids), int(ex.layout.tests.size)) / 2**30
+        )
         reason = (
             f"more than the {MAX_TRIALS} a simulation may run"
             if largest == MAX_TRIALS
@@ -404,14 +405,14 @@ def simulate(
             value=trials,
             hint=f"ask for at most {largest} trials (1e5 give stable 95 % intervals)",
         )
-    layout = analysis_layout(ex)
+    layout = ex.layout
     draw = _draw_arrays(ex)
     b = ex.path_length_cm
     n_mix = len(ex.mixture_ids)
     readings = np.empty((trials, n_mix))
     eps_all_bound = np.empty(trials)
     k_all_bound = np.empty(trials)
-    k_tests = np.empty((trials, ex.tests.size))
+    k_tests = np.empty((trials, ex.layout.tests.size))
     eps_global_fit = np.empty(trials)
     k_global_fit = np.empty(trials)
     table = global_fit_table(inputs.reaction, inputs.instrument, layout) if global_fit else None
@@ -424,7 +425,7 @@ def simulate(
         n = min(CHUNK_TRIALS, trials - start)
         chunk = slice(start, start + n)
         a = _simulate_readings(inputs, ex, draw, n, rng)
-        net = a - a[:, ex.blanks].mean(axis=1, keepdims=True)
+        net = a - a[:, ex.layout.blanks].mean(axis=1, keepdims=True)
         eps, k = all_bound_mean_K(layout, net, b)
         with np.errstate(invalid="ignore"):
             k_mean = k.mean(axis=1)
@@ -447,13 +448,13 @@ def simulate(
         trials=trials,
         all_bound=all_bound,
         global_fit=fitted,
-        K_bias_from_assumption=all_bound.K.mean / ex.K_true - 1.0,
-        K_true=ex.K_true,
-        epsilon_true=ex.epsilon_true,
+        K_bias_from_assumption=all_bound.K.mean / ex.layout.K_true - 1.0,
+        K_true=ex.layout.K_true,
+        epsilon_true=ex.layout.epsilon_true,
         mixture_ids=ex.mixture_ids,
         readings=tuple(_summary(readings[:, m]) for m in range(n_mix)),
-        test_ids=tuple(ex.mixture_ids[i] for i in ex.tests),
-        K_per_test=tuple(_summary(k_tests[:, i]) for i in range(ex.tests.size)),
+        test_ids=tuple(ex.mixture_ids[i] for i in ex.layout.tests),
+        K_per_test=tuple(_summary(k_tests[:, i]) for i in range(ex.layout.tests.size)),
         global_fit_failed=int(np.count_nonzero(~np.isfinite(k_global_fit))) if global_fit else 0,
         K_all_bound=k_all_bound,
         K_global_fit=k_global_fit,

@@ -1,4 +1,4 @@
-"""First-order uncertainty budget of the usual analysis (GUM, JCGM 100:2008).
+"""First-order uncertainty budget of the all-bound analysis (GUM, JCGM 100:2008).
 
 The all-bound analysis of the class's readings (:mod:`planner.analysis`) computes, from the
 recipe's nominal concentrations and the blank-subtracted readings, the molar absorptivity from
@@ -54,7 +54,7 @@ from numpy.typing import NDArray
 from planner.analysis import all_bound_K_from_x, global_fit_gain, global_fit_jacobian
 from planner.forward import predict_readings
 from planner.inputs import PlanInputs
-from planner.predict._experiment import BenchExperiment, analysis_layout, bench_experiment
+from planner.predict._experiment import BenchExperiment, bench_experiment
 from planner.result import (
     COVERAGE_FACTOR_95,
     Budget,
@@ -63,6 +63,7 @@ from planner.result import (
     Mixture,
     MixtureUncertainty,
     Prediction,
+    Role,
     UncertaintyResult,
 )
 
@@ -261,7 +262,7 @@ def _mixing_sensitivities(
     volume = ex.total_volume_mL[:, None, None]
     v_k = ex.volumes_mL[:, :, None]
     c_k = ex.stock_M[None, :, :]
-    amount = (ex.totals_M * ex.total_volume_mL[:, None])[:, None, :]
+    amount = (ex.layout.totals_M * ex.total_volume_mL[:, None])[:, None, :]
     shape = (len(ex.mixture_ids), len(ex.stock_ids), len(ex.components))
     if ex.in_flask:
         d = ex.diluent
@@ -299,12 +300,12 @@ def _elementary_inputs(ex: BenchExperiment, models: _Models) -> _Inputs:
         touches.append(frozenset(int(m) for m in np.flatnonzero(np.any(column != 0, axis=1))))
 
     for s, stock in enumerate(ex.stock_ids):
-        if ex.stock_u_relative[s] > 0:
+        if ex.u_relative_stock[s] > 0:
             add(
                 f"stock {stock} concentration",
                 "stock",
                 "relative",
-                ex.stock_u_relative[s],
+                ex.u_relative_stock[s],
                 dr[:, s],
             )
     for device, u_sys in zip(ex.systematic_devices, ex.u_systematic_mL, strict=True):
@@ -364,10 +365,10 @@ def _curve(
 ) -> tuple[float, NDArray[np.float64]]:
     """Value and gradient of eps (prime "") or eps' (prime "'") from the standard curve."""
     f = models.functions
-    std = ex.standards
-    c = ex.totals_M[std, ex.limiting]
+    std = ex.layout.standards
+    c = ex.layout.totals_M[std, ex.layout.limiting]
     a = ex.readings[std]
-    a0 = float(ex.readings[ex.blanks].mean())
+    a0 = float(ex.readings[ex.layout.blanks].mean())
     b = ex.path_length_cm
     n = float(len(std))
     # Sums over the other standards (the "rest" symbols of the model).
@@ -381,27 +382,27 @@ def _curve(
     d_c = _broadcast(f["∂ε" + prime + "/∂c_k"](*args), shape)
     d_a = _broadcast(f["∂ε" + prime + "/∂A_k"](*args), shape)
     d_a0 = float(_broadcast(f["∂ε" + prime + "/∂A_0"](*args), shape)[0])
-    gradient = np.einsum("k,kz->z", d_c, inputs.totals_jacobian[std, ex.limiting, :])
+    gradient = np.einsum("k,kz->z", d_c, inputs.totals_jacobian[std, ex.layout.limiting, :])
     gradient[inputs.reading[std]] += d_a
-    gradient[inputs.reading[ex.blanks]] += d_a0 / len(ex.blanks)
+    gradient[inputs.reading[ex.layout.blanks]] += d_a0 / len(ex.layout.blanks)
     return value, gradient
 
 
 def _gradients(ex: BenchExperiment, inputs: _Inputs, models: _Models) -> _Gradients:
     f = models.functions
     epsilon, g_eps = _curve(ex, inputs, models, "")
-    if len(ex.standards) >= 2:
+    if len(ex.layout.standards) >= 2:
         epsilon_i, g_eps_i = _curve(ex, inputs, models, "'")
     else:
         # A line with an intercept needs two standards; with one, report the curve through
         # the origin for both rather than a 0/0.
         epsilon_i, g_eps_i = epsilon, g_eps.copy()
-    tst = ex.tests
+    tst = ex.layout.tests
     b = ex.path_length_cm
     a = ex.readings[tst]
-    a0 = float(ex.readings[ex.blanks].mean())
-    m_total = ex.totals_M[tst, ex.excess]
-    l_total = ex.totals_M[tst, ex.limiting]
+    a0 = float(ex.readings[ex.layout.blanks].mean())
+    m_total = ex.layout.totals_M[tst, ex.layout.excess]
+    l_total = ex.layout.totals_M[tst, ex.layout.limiting]
     shape = a.shape
     x = _broadcast(f["x"](a, a0, epsilon, b), shape)
     k = _broadcast(f["K"](x, m_total, l_total), shape)
@@ -414,12 +415,12 @@ def _gradients(ex: BenchExperiment, inputs: _Inputs, models: _Models) -> _Gradie
     jac = inputs.totals_jacobian
     g_k = (
         (dk_dx * dx_deps)[:, None] * g_eps[None, :]
-        + dk_dm[:, None] * jac[tst, ex.excess, :]
-        + dk_dl[:, None] * jac[tst, ex.limiting, :]
+        + dk_dm[:, None] * jac[tst, ex.layout.excess, :]
+        + dk_dl[:, None] * jac[tst, ex.layout.limiting, :]
     )
     g_k[np.arange(len(tst)), inputs.reading[tst]] += dk_dx * dx_da
-    for blank in ex.blanks:
-        g_k[:, inputs.reading[blank]] += dk_dx * dx_da0 / len(ex.blanks)
+    for blank in ex.layout.blanks:
+        g_k[:, inputs.reading[blank]] += dk_dx * dx_da0 / len(ex.layout.blanks)
     return _Gradients(
         epsilon=epsilon,
         g_epsilon=g_eps,
@@ -430,31 +431,28 @@ def _gradients(ex: BenchExperiment, inputs: _Inputs, models: _Models) -> _Gradie
     )
 
 
-def _chain_terms(measurand: str, role: str, component: str, stage1: str, n_tests: int) -> str:
-    """The chain of derivatives from one quantity of one mixture to a measurand."""
-    mean = f"(1/{n_tests})"
-    if measurand in {"epsilon", "epsilon_intercept"}:
-        prime = "'" if measurand == "epsilon_intercept" else ""
-        if role == "standard" and component == "limiting":
-            return f"∂ε{prime}/∂c_k·{stage1}"
-        if role == "standard" and component == "reading":
-            return f"∂ε{prime}/∂A_k"
-        if role == "blank" and component == "reading":
-            return f"∂ε{prime}/∂A_0/n_blanks"
-        return ""
-    if role == "standard" and component == "limiting":
-        return f"∂K_mean/∂ε·∂ε/∂c_k·{stage1}"
-    if role == "standard" and component == "reading":
-        return "∂K_mean/∂ε·∂ε/∂A_k"
-    if role == "test" and component == "excess":
-        return f"{mean}·∂K/∂M·{stage1}"
-    if role == "test" and component == "limiting":
-        return f"{mean}·∂K/∂L·{stage1}"
-    if role == "test" and component == "reading":
-        return f"{mean}·∂K/∂x·∂x/∂A"
-    if role == "blank" and component == "reading":
-        return f"(∂K_mean/∂ε·∂ε/∂A_0 + {mean}·Σ_i ∂K/∂x·∂x/∂A_0)/n_blanks"
-    return ""
+#: The chain of derivatives from one quantity of one mixture to a measurand, keyed by (the
+#: measurand is K rather than eps, the mixture's role, the quantity): ``{p}`` is the prime of
+#: eps' (the intercept fit), ``{s}`` the first stage (input to total), ``{n}`` the test count.
+_CHAINS: dict[tuple[bool, Role, str], str] = {
+    (False, "standard", "limiting"): "∂ε{p}/∂c_k·{s}",
+    (False, "standard", "reading"): "∂ε{p}/∂A_k",
+    (False, "blank", "reading"): "∂ε{p}/∂A_0/n_blanks",
+    (True, "standard", "limiting"): "∂K_mean/∂ε·∂ε/∂c_k·{s}",
+    (True, "standard", "reading"): "∂K_mean/∂ε·∂ε/∂A_k",
+    (True, "test", "excess"): "(1/{n})·∂K/∂M·{s}",
+    (True, "test", "limiting"): "(1/{n})·∂K/∂L·{s}",
+    (True, "test", "reading"): "(1/{n})·∂K/∂x·∂x/∂A",
+    (True, "blank", "reading"): "(∂K_mean/∂ε·∂ε/∂A_0 + (1/{n})·Σ_i ∂K/∂x·∂x/∂A_0)/n_blanks",
+}
+
+
+def _chain_terms(measurand: str, role: Role, component: str, stage1: str, n_tests: int) -> str:
+    """The chain of derivatives from one quantity of one mixture to a measurand ("" when the
+    quantity does not reach it)."""
+    of_K = measurand not in {"epsilon", "epsilon_intercept"}
+    prime = "'" if measurand == "epsilon_intercept" else ""
+    return _CHAINS.get((of_K, role, component), "").format(p=prime, s=stage1, n=n_tests)
 
 
 def _formula(
@@ -463,7 +461,7 @@ def _formula(
     ex: BenchExperiment,
     inputs: _Inputs,
     models: _Models,
-    roles: Sequence[str],
+    roles: Sequence[Role],
 ) -> str:
     """The coefficient of input z as a chain of model derivatives, with their formulas."""
     kind = inputs.kinds[z]
@@ -485,7 +483,7 @@ def _formula(
             f"{chain}, where G = (JᵀJ)⁻¹Jᵀ is the global fit's gain, ∂A/∂c the forward "
             "model's sensitivity (central difference)"
         )
-    n_tests = len(ex.tests)
+    n_tests = len(ex.layout.tests)
     terms: list[str] = []
     jac = inputs.totals_jacobian[:, :, z]
     for m in sorted(inputs.touches[z]):
@@ -493,8 +491,8 @@ def _formula(
             parts = [("reading", True)]
         else:
             parts = [
-                ("limiting", bool(jac[m, ex.limiting] != 0)),
-                ("excess", bool(jac[m, ex.excess] != 0)),
+                ("limiting", bool(jac[m, ex.layout.limiting] != 0)),
+                ("excess", bool(jac[m, ex.layout.excess] != 0)),
             ]
         for component, present in parts:
             if present:
@@ -543,7 +541,7 @@ def _budget(
     ex: BenchExperiment,
     inputs: _Inputs,
     models: _Models,
-    roles: Sequence[str],
+    roles: Sequence[Role],
 ) -> Budget:
     contributions = gradient * inputs.u
     variance = float((contributions**2).sum())
@@ -584,14 +582,14 @@ def _reading_sensitivity(inputs: PlanInputs, ex: BenchExperiment) -> NDArray[np.
     def reading(totals: NDArray[np.float64]) -> NDArray[np.float64]:
         return predict_readings(inputs.reaction, inputs.instrument, totals).absorbance
 
-    result = np.zeros_like(ex.totals_M)
+    result = np.zeros_like(ex.layout.totals_M)
     for j in range(len(ex.components)):
-        step = _EQUILIBRIUM_STEP * ex.totals_M[:, j]
+        step = _EQUILIBRIUM_STEP * ex.layout.totals_M[:, j]
         present = step > 0
         if not np.any(present):
             continue
-        plus = ex.totals_M.copy()
-        minus = ex.totals_M.copy()
+        plus = ex.layout.totals_M.copy()
+        minus = ex.layout.totals_M.copy()
         plus[:, j] += step
         minus[:, j] -= step
         difference = reading(plus) - reading(minus)
@@ -626,7 +624,7 @@ def _per_mixture(
     return tuple(
         MixtureUncertainty(
             id=mixture_id,
-            totals_M={c: float(ex.totals_M[m, j]) for j, c in enumerate(ex.components)},
+            totals_M={c: float(ex.layout.totals_M[m, j]) for j, c in enumerate(ex.components)},
             u_totals_M={c: float(u_totals[m, j]) for j, c in enumerate(ex.components)},
             absorbance=float(ex.readings[m]),
             u_absorbance=float(u_reading[m]),
@@ -662,7 +660,7 @@ def reading_uncertainties(
 
 
 def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyResult:
-    """First-order uncertainty of the usual analysis of one bench's set of mixtures.
+    """First-order uncertainty of the all-bound analysis of one bench's set of mixtures.
 
     Parameters
     ----------
@@ -693,7 +691,7 @@ def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyRes
     elementary = _elementary_inputs(ex, models)
     gradients = _gradients(ex, elementary, models)
     roles = [m.role for m in mixtures]
-    n_tests = len(ex.tests)
+    n_tests = len(ex.layout.tests)
     epsilon = _budget(
         "epsilon",
         gradients.epsilon,
@@ -739,9 +737,9 @@ def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyRes
             (float(value), float(sd)) for value, sd in zip(gradients.K, u_k, strict=True)
         ),
         mixtures=per_mixture,
-        K_true=ex.K_true,
-        epsilon_true=ex.epsilon_true,
-        test_ids=tuple(ex.mixture_ids[i] for i in ex.tests),
+        K_true=ex.layout.K_true,
+        epsilon_true=ex.layout.epsilon_true,
+        test_ids=tuple(ex.mixture_ids[i] for i in ex.layout.tests),
         global_fit_epsilon=fit_epsilon,
         global_fit_K=fit_K,
     )
@@ -752,7 +750,7 @@ def _global_fit_budgets(
     ex: BenchExperiment,
     elementary: _Inputs,
     models: _Models,
-    roles: Sequence[str],
+    roles: Sequence[Role],
     reading_gradient: NDArray[np.float64],
 ) -> tuple[Budget | None, Budget | None]:
     """First-order budgets of the global fit's eps and K, or (None, None) when not separable.
@@ -765,16 +763,16 @@ def _global_fit_budgets(
     their correlation. On noise-free readings the fit returns the plan's eps and K exactly, so
     the first-order estimate is those values.
     """
-    layout = analysis_layout(ex)
+    layout = ex.layout
     gain = global_fit_gain(global_fit_jacobian(inputs.reaction, inputs.instrument, layout))
     if not np.all(np.isfinite(gain)):
         return None, None
-    fit = np.concatenate([ex.standards, ex.tests])
-    net = reading_gradient[fit] - reading_gradient[ex.blanks].mean(axis=0)
+    fit = np.concatenate([layout.standards, layout.tests])
+    net = reading_gradient[fit] - reading_gradient[layout.blanks].mean(axis=0)
     theta = gain @ net  # (2, n_z): d eps/dz, d log10 K/dz
     epsilon = _budget(
         "epsilon_global_fit",
-        ex.epsilon_true,
+        layout.epsilon_true,
         theta[0],
         "L mol-1 cm-1",
         ex,
@@ -784,8 +782,8 @@ def _global_fit_budgets(
     )
     k = _budget(
         "K_global_fit",
-        ex.K_true,
-        theta[1] * ex.K_true * math.log(10.0),
+        layout.K_true,
+        theta[1] * layout.K_true * math.log(10.0),
         "L/mol",
         ex,
         elementary,

@@ -10,20 +10,15 @@ from __future__ import annotations
 
 import math
 import re
-from collections.abc import Sequence
-from dataclasses import dataclass
 
-from planner.inputs import DEVICE_KINDS, Device, PlanInputs
-from planner.result import Addition, Mixture, Plan
+from planner.inputs import Device, PlanInputs
+from planner.result import Addition, Mixture, Plan, StockRole, devices_text
 
 __all__ = [
-    "DeviceName",
     "addition_decimals",
     "additions_of",
     "csv_text",
-    "device_name",
-    "devices_long",
-    "devices_short",
+    "devices_text",
     "is_to_the_mark",
     "markdown_text",
     "percent",
@@ -34,33 +29,6 @@ __all__ = [
     "stocks_in_addition_order",
     "volume",
 ]
-
-#: One- or two-letter codes for the terminal, where width is scarce.
-_SHORT_CODES = {
-    "transfer-pipette": "P",
-    "graduated-pipette": "GP",
-    "buret": "B",
-    "piston-pipette": "PP",
-    "volumetric-flask": "F",
-    "graduated-cylinder": "C",
-    "tube": "T",
-}
-
-#: Words for the printed sheets.
-_LONG_NAMES = {
-    "transfer-pipette": "pipette",
-    "graduated-pipette": "graduated pipette",
-    "buret": "buret",
-    "piston-pipette": "piston pipette",
-    "volumetric-flask": "flask",
-    "graduated-cylinder": "cylinder",
-    "tube": "tube",
-}
-
-_DEVICE_ID = re.compile(
-    r"^(?P<kind>" + "|".join(re.escape(kind) for kind in DEVICE_KINDS) + r")-"
-    r"(?P<size>[0-9.]+(?:-[0-9.]+)?)(?P<unit>mL|uL)$"
-)
 
 
 def significant(value: float, digits: int = 4) -> str:
@@ -110,70 +78,10 @@ def percent(fraction: float, digits: int = 3, *, signed: bool = False) -> str:
     return f"{text} %"
 
 
-@dataclass(frozen=True, slots=True)
-class DeviceName:
-    """A device id taken apart: kind, the size as written in the id, and the size's unit."""
-
-    kind: str
-    size: str
-    unit: str
-
-    @property
-    def short(self) -> str:
-        """Terminal code, e.g. ``P5``, ``GP10``, ``PP100-1000``."""
-        code = _SHORT_CODES.get(self.kind)
-        if code is None:
-            return self.kind
-        return f"{code}{self.size}"
-
-    @property
-    def long(self) -> str:
-        """Sheet wording, e.g. ``5 mL pipette``, ``100-1000 µL piston pipette``."""
-        words = _LONG_NAMES.get(self.kind)
-        if words is None:
-            return self.kind
-        unit = "µL" if self.unit == "uL" else "mL"
-        return f"{self.size} {unit} {words}"
-
-
-def device_name(device_id: str) -> DeviceName:
-    """Take a device id (DESIGN.md contract detail 5) apart; unknown ids are kept whole."""
-    match = _DEVICE_ID.match(device_id)
-    if match is None:
-        return DeviceName(kind=device_id, size="", unit="")
-    return DeviceName(kind=match["kind"], size=match["size"], unit=match["unit"])
-
-
-def _grouped(devices: Sequence[str]) -> list[tuple[str, int]]:
-    """Device ids with repeat counts, in order of first use."""
-    counts: dict[str, int] = {}
-    for device_id in devices:
-        counts[device_id] = counts.get(device_id, 0) + 1
-    return list(counts.items())
-
-
-def devices_short(devices: Sequence[str]) -> str:
-    """Terminal form of a delivery: ``2×P2+P5``."""
-    parts = []
-    for device_id, count in _grouped(devices):
-        code = device_name(device_id).short
-        parts.append(code if count == 1 else f"{count}×{code}")
-    return "+".join(parts)
-
-
-def devices_long(devices: Sequence[str]) -> str:
-    """Sheet form of a delivery: ``2 × 2 mL pipette + 5 mL pipette``."""
-    parts = []
-    for device_id, count in _grouped(devices):
-        words = device_name(device_id).long
-        parts.append(words if count == 1 else f"{count} × {words}")
-    return " + ".join(parts)
-
-
 def is_to_the_mark(addition: Addition) -> bool:
     """True for the diluent filled to the mark of a volumetric flask (DESIGN.md detail 6)."""
     return bool(addition.devices) and all(
-        device_name(d).kind == "volumetric-flask" for d in addition.devices
+        d.startswith("volumetric-flask-") for d in addition.devices
     )
 
 
@@ -235,9 +143,9 @@ def stocks_in_addition_order(plan: Plan) -> tuple[str, ...]:
     )
 
 
-def stock_roles(inputs: PlanInputs) -> dict[str, str]:
+def stock_roles(inputs: PlanInputs) -> dict[str, StockRole]:
     """Each stock's part in the order of addition: ``diluent``, ``limiting`` or ``excess``."""
-    roles = {}
+    roles: dict[str, StockRole] = {}
     for stock in inputs.stocks:
         if stock.diluent:
             roles[stock.id] = "diluent"

@@ -33,7 +33,7 @@ from planner.report._format import (
     addition_decimals,
     additions_of,
     csv_text,
-    devices_long,
+    devices_text,
     is_to_the_mark,
     markdown_text,
     percent,
@@ -46,7 +46,7 @@ from planner.report._format import (
 )
 from planner.report.cautions import cautions_for, label_hazards
 from planner.report.plan_json import checks_worst_first
-from planner.result import Plan
+from planner.result import Plan, Role, StockRole
 
 __all__ = [
     "BenchSlot",
@@ -132,7 +132,7 @@ class _Column:
 @dataclass(frozen=True, slots=True)
 class _RecipeRow:
     id: str
-    role: str
+    role: Role
     cells: tuple[tuple[_Delivery, ...], ...]
     total: str
 
@@ -143,12 +143,16 @@ class _BenchPage:
     bench: int | None
 
 
-_PART_WORDS = {"diluent": "diluent", "excess": "reagent in excess", "limiting": "limiting"}
+_PART_WORDS: dict[StockRole, str] = {
+    "diluent": "diluent",
+    "excess": "reagent in excess",
+    "limiting": "limiting",
+}
 
 
-def _part(stock_id: str, role: str) -> str:
+def _part(stock_id: str, role: StockRole | None) -> str:
     """The stock's part in the order of addition, unless its id already says so."""
-    words = _PART_WORDS.get(role, "")
+    words = _PART_WORDS[role] if role is not None else ""
     return "" if words == stock_id else words
 
 
@@ -160,13 +164,13 @@ def _recipe_rows(plan: Plan, stocks: Sequence[str]) -> list[_RecipeRow]:
             deliveries = []
             for addition in additions_of(mixture, stock_id):
                 if is_to_the_mark(addition):
-                    deliveries.append(_Delivery("to the mark", devices_long(addition.devices)))
+                    deliveries.append(_Delivery("to the mark", devices_text(addition.devices)))
                 else:
                     decimals = addition_decimals(plan.inputs, addition)
                     deliveries.append(
                         _Delivery(
                             f"{volume(addition.volume_mL, decimals)} mL",
-                            devices_long(addition.devices),
+                            devices_text(addition.devices),
                         )
                     )
             cells.append(tuple(deliveries))
@@ -215,8 +219,7 @@ def _bench_base(plan: Plan, date: str) -> dict[str, Any]:
     roles = stock_roles(plan.inputs)
     stocks = stocks_in_addition_order(plan)
     columns = [
-        _Column(stock=s, position=i + 1, part=_part(s, roles.get(s, "")))
-        for i, s in enumerate(stocks)
+        _Column(stock=s, position=i + 1, part=_part(s, roles.get(s))) for i, s in enumerate(stocks)
     ]
     order_line, making_up_line = _order_lines(plan, columns)
     return {
@@ -482,9 +485,9 @@ def prep_sheet_md(plan: Plan, *, date: str) -> str:
     Parameters
     ----------
     plan
-        A finished plan.
+        A finished plan: its stocks, preparations, totals, open checks and notes.
     date
-        The date printed in the header.
+        The date printed in the header (any text; the caller decides).
 
     Returns
     -------
@@ -510,7 +513,7 @@ def prep_sheet_html(plan: Plan, *, date: str) -> str:
 @dataclass(frozen=True, slots=True)
 class _AnswerRow:
     id: str
-    role: str
+    role: Role
     absorbance: str
     u_absorbance: str
     products: tuple[str, ...]
@@ -716,7 +719,7 @@ def mixtures_csv(plan: Plan) -> str:
     Parameters
     ----------
     plan
-        A finished plan.
+        A finished plan; its mixtures are the rows.
 
     Returns
     -------

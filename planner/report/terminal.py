@@ -20,8 +20,7 @@ from rich.text import Text
 from planner.report._format import (
     addition_decimals,
     additions_of,
-    device_name,
-    devices_short,
+    devices_text,
     is_to_the_mark,
     percent,
     plain,
@@ -30,11 +29,11 @@ from planner.report._format import (
     volume,
 )
 from planner.report.plan_json import checks_worst_first
-from planner.result import Check, Mixture, Plan
+from planner.result import CHECK_STATUSES, Addition, Check, Plan, Status
 
 __all__ = ["render_checks", "render_plan"]
 
-_STATUS_STYLE = {"fail": "bold red", "warn": "bold yellow", "pass": "green"}
+_STATUS_STYLE: dict[Status, str] = {"fail": "bold red", "warn": "bold yellow", "pass": "green"}
 
 
 def _plain(text: str) -> Text:
@@ -42,12 +41,13 @@ def _plain(text: str) -> Text:
     return Text(text)
 
 
-def _status(status: str) -> Text:
-    return Text(status.upper(), style=_STATUS_STYLE.get(status, "bold"))
+def _status(status: Status) -> Text:
+    """A check's status spelled out in capitals, coloured as well (the same on every table)."""
+    return Text(status.upper(), style=_STATUS_STYLE[status])
 
 
 def _verdict(plan: Plan) -> Text:
-    counts = {status: sum(c.status == status for c in plan.checks) for status in _STATUS_STYLE}
+    counts = {status: sum(c.status == status for c in plan.checks) for status in CHECK_STATUSES}
     summary = f"{counts['fail']} failed, {counts['warn']} warning(s), {counts['pass']} passed"
     if counts["fail"]:
         return Text(f"PLAN HAS FAILED CHECKS ({summary})", style="bold red")
@@ -82,54 +82,53 @@ def _checks_table(plan: Plan) -> Table:
     return table
 
 
-def _cell(plan: Plan, mixture: Mixture, stock_id: str) -> Text:
-    parts = []
-    for addition in additions_of(mixture, stock_id):
-        if is_to_the_mark(addition):
-            parts.append(f"to mark {devices_short(addition.devices)}")
-        else:
-            decimals = addition_decimals(plan.inputs, addition)
-            devices = devices_short(addition.devices)
-            parts.append(f"{volume(addition.volume_mL, decimals)} {devices}".strip())
-    return _plain("; ".join(parts) if parts else "-")
-
-
-def _device_legend(plan: Plan) -> Text:
-    used: dict[str, str] = {}
-    for mixture in plan.mixtures:
-        for addition in mixture.additions:
-            for device_id in addition.devices:
-                used.setdefault(device_name(device_id).short, device_id)
-    entries = [f"{code} = {device_id}" for code, device_id in used.items()]
-    return Text("Devices: " + ", ".join(entries) if entries else "Devices: none", style="dim")
+def _delivery(plan: Plan, addition: Addition) -> tuple[str, Text]:
+    """The volume (or "to the mark") and the devices of one addition, as two cells."""
+    if is_to_the_mark(addition):
+        amount = "to the mark"
+    else:
+        amount = volume(addition.volume_mL, addition_decimals(plan.inputs, addition))
+    return amount, _plain(devices_text(addition.devices))
 
 
 def _mixtures_table(plan: Plan) -> Table:
+    """One row per addition, grouped by mixture, so that every device is named by its full id
+    (the name it has in the plan file, the JSON and the sheets) and still fits 80 columns."""
     stocks = stocks_in_addition_order(plan)
     table = Table(
-        title="Mixtures (volumes in mL, columns in order of addition)",
+        title="Mixtures (volumes in mL, stocks in order of addition)",
         title_justify="left",
         box=box.SIMPLE_HEAD,
-        # Width is scarce here: no outer edge, and one space of padding plus the (blank)
-        # column rule between columns, so that four stocks still fit in 80 columns.
         show_edge=False,
         padding=(0, 1, 0, 0),
         pad_edge=False,
     )
     table.add_column("id", no_wrap=True)
-    table.add_column("role")
-    for stock_id in stocks:
-        table.add_column(_plain(stock_id), overflow="fold")
+    table.add_column("role", no_wrap=True)
+    table.add_column("stock", overflow="fold")
+    table.add_column("volume", justify="right", no_wrap=True)
+    table.add_column("devices", ratio=1)
     table.add_column("A", justify="right", no_wrap=True)
     table.add_column("bound", justify="right", no_wrap=True)
     for mixture in plan.mixtures:
-        table.add_row(
+        additions = [a for stock_id in stocks for a in additions_of(mixture, stock_id)]
+        first = (
             _plain(mixture.id),
             _plain(mixture.role),
-            *(_cell(plan, mixture, stock_id) for stock_id in stocks),
-            f"{mixture.absorbance:.3f}",
-            f"{mixture.bound_fraction:.3f}",
         )
+        last = (f"{mixture.absorbance:.3f}", f"{mixture.bound_fraction:.3f}")
+        if not additions:
+            table.add_row(*first, "-", "", "", *last, end_section=True)
+        for i, addition in enumerate(additions):
+            amount, devices = _delivery(plan, addition)
+            table.add_row(
+                *(first if i == 0 else ("", "")),
+                _plain(addition.stock),
+                amount,
+                devices,
+                *(last if i == 0 else ("", "")),
+                end_section=i == len(additions) - 1,
+            )
     return table
 
 
@@ -184,7 +183,7 @@ def render_plan(plan: Plan) -> RenderableType:
     Parameters
     ----------
     plan
-        A finished plan.
+        A finished plan, its checks and prediction included.
 
     Returns
     -------
@@ -198,7 +197,6 @@ def render_plan(plan: Plan) -> RenderableType:
         _header(plan),
         _checks_table(plan),
         _mixtures_table(plan),
-        _device_legend(plan),
         _totals_table(plan),
         _prediction_line(plan),
     ]
@@ -214,11 +212,6 @@ def render_checks(checks: tuple[Check, ...]) -> RenderableType:
     table.add_column("status")
     table.add_column("check")
     table.add_column("detail", overflow="fold")
-    style = {"fail": "bold red", "warn": "yellow", "pass": "green"}
     for item in checks_worst_first(checks):
-        table.add_row(
-            Text(item.status.upper(), style=style.get(item.status, "")),
-            Text(item.name),
-            Text(item.detail),
-        )
+        table.add_row(_status(item.status), _plain(item.name), _plain(item.detail))
     return table

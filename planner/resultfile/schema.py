@@ -26,6 +26,8 @@ from planner.result import (
     GlobalFitPrediction,
     Mixture,
     Prediction,
+    Role,
+    Status,
     StockPreparation,
     Totals,
 )
@@ -120,7 +122,7 @@ class MixtureEntry(Entry):
 
     record = Mixture
     id: str = Field(description='the mixture id, e.g. "S1", in double quotes')
-    role: str = Field(description='one of "blank", "standard", "test"')
+    role: Role = Field(description='one of "blank", "standard", "test"')
     total_volume_mL: float = Field(
         gt=0, description="the final volume of the mixture [mL], a number > 0"
     )
@@ -162,7 +164,7 @@ class CheckEntry(Entry):
 
     record = Check
     name: str = Field(description='the check name, e.g. "absorbance-window"')
-    status: Literal["fail", "warn", "pass"] = Field(description='"pass", "warn" or "fail"')
+    status: Status = Field(description='"pass", "warn" or "fail"')
     detail: str = Field(description="what was found, in double quotes")
 
 

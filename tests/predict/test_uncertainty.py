@@ -1,4 +1,4 @@
-"""Tests of planner.predict.uncertainty: the first-order (GUM) budget of the usual analysis.
+"""Tests of planner.predict.uncertainty: the first-order (GUM) budget of the all-bound analysis.
 
 The reference is the `uncertainties` package (an independent, general-purpose implementation
 of linear error propagation by automatic differentiation): the same measurement model is

@@ -9,9 +9,7 @@ import pytest
 from planner.inputs import Device
 from planner.report._format import (
     addition_decimals,
-    device_name,
-    devices_long,
-    devices_short,
+    devices_text,
     plain,
     scientific,
     significant,
@@ -45,14 +43,13 @@ def test_scientific_and_plain():
     assert plain(1.5e-4) == "1.500e-4"
 
 
-def test_device_names():
-    assert device_name("transfer-pipette-5mL").short == "P5"
-    assert device_name("piston-pipette-100-1000uL").long == "100-1000 µL piston pipette"
-    assert device_name("graduated-cylinder-50mL").long == "50 mL cylinder"
-    assert device_name("mystery").short == "mystery"
+def test_devices_named_by_their_ids():
+    # One name per device on every screen and sheet: the id the plan file's glassware gives
+    # it (DESIGN.md contract detail 5), a repeated delivery counted.
     devices = ("transfer-pipette-2mL", "transfer-pipette-2mL", "transfer-pipette-0.5mL")
-    assert devices_short(devices) == "2×P2+P0.5"
-    assert devices_long(devices) == "2 × 2 mL pipette + 0.5 mL pipette"
+    assert devices_text(devices) == "2 × transfer-pipette-2mL + transfer-pipette-0.5mL"
+    assert devices_text(("piston-pipette-100-1000uL",)) == "piston-pipette-100-1000uL"
+    assert devices_text(()) == ""
 
 
 @pytest.mark.parametrize(

@@ -159,8 +159,8 @@ def test_bench_sheet_markdown(plan):
     assert text.count("[ ]") == 2 + 4 * 3
     header = next(line for line in text.splitlines() if line.startswith("| Mixture"))
     assert header.index("1. diluent") < header.index("2. iron") < header.index("3. thiocyanate")
-    assert "4.00 mL, 2 × 2 mL pipette" in text
-    assert "4.1 mL, 10 mL graduated pipette" in text
+    assert "4.00 mL, 2 × transfer-pipette-2mL" in text
+    assert "4.1 mL, graduated-pipette-10mL" in text
     assert "diluent first, then the reagent in excess, the limiting reagent last" in text
     assert "Tubes: the additions make up the total volume" in text
 
@@ -188,7 +188,7 @@ def test_bench_sheet_in_flasks_says_to_the_mark(plan):
     )
     flask_plan = dataclasses.replace(plan, inputs=inputs, mixtures=mixtures)
     text = bench_sheet_md(flask_plan, date=DATE, slot=BenchSlot(1, 1))
-    assert "[ ] to the mark, 10 mL flask" in text
+    assert "[ ] to the mark, volumetric-flask-10mL" in text
     assert "Flasks are filled to the mark with the diluent (diluent)" in text
     assert "the limiting reagent, the diluent to the mark last" in text
     assert "Tubes:" not in text

@@ -46,10 +46,14 @@ def test_mixtures_volumes_devices_and_readings(plan):
     for mixture_id in ("B1", "S1", "S2", "T1", "T2"):
         assert mixture_id in text
     # S2's thiocyanate: 4.00 mL from two 2 mL transfer pipettes; S1's from a graduated
-    # pipette read to 0.1 mL, so 4.123456789012 shows as 4.1.
-    assert "4.00 2×P2" in text
-    assert "4.1 GP10" in text
-    assert "P2 = transfer-pipette-2mL" in text
+    # pipette read to 0.1 mL, so 4.123456789012 shows as 4.1. Each device is named by its id,
+    # as in the plan file, the JSON and the sheets (no short codes, no legend).
+    lines = [" ".join(line.split()) for line in text.splitlines()]
+    assert "thiocyanate 4.00 2 × transfer-pipette-2mL" in lines
+    assert "thiocyanate 4.1 graduated-pipette-10mL" in lines
+    assert "S2 standard diluent 1.00 buret-25mL 0.346 0.909" in lines
+    assert "Devices:" not in text
+    assert "P2" not in text.replace("pipette-2", "")
     assert "0.357" in text
     assert "0.909" in text
 
