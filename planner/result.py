@@ -10,6 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 from planner.inputs import PlanInputs
+from planner.lab.deliveries import Delivery
 
 __all__ = [
     "CHECK_STATUSES",
@@ -19,6 +20,7 @@ __all__ = [
     "Budget",
     "Check",
     "Contributor",
+    "Delivery",
     "Mixture",
     "MixtureUncertainty",
     "Plan",
@@ -52,12 +54,19 @@ class Addition:
         diluent "to the mark" of a flask, the flask's id.
     order
         Position in the order of addition, from 1.
+    deliveries
+        The deliveries in the order they are made, each a device id and the volume that
+        delivery gives [mL]: a graded device may deliver n times full scale and then the
+        remainder. Their devices are ``devices`` and their volumes sum to ``volume_mL``; for
+        the diluent to the mark of a flask, the flask with the volume it makes up. Empty when
+        not stated (a saved plan from before deliveries were listed).
     """
 
     stock: str
     volume_mL: float
     devices: tuple[str, ...]
     order: int
+    deliveries: tuple[Delivery, ...] = ()
 
 
 @dataclass(frozen=True, slots=True)
