@@ -45,7 +45,15 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError
 from planner.errors import PlanFileError, ResultFileError
 from planner.inputs import PlanInputs
 from planner.planfile import plan_from_mapping, read_text
-from planner.result import Addition, Check, Mixture, Prediction, StockPreparation, Totals
+from planner.result import (
+    Addition,
+    Check,
+    Delivery,
+    Mixture,
+    Prediction,
+    StockPreparation,
+    Totals,
+)
 
 __all__ = ["LARGEST_NUMBER", "SCHEMA", "SavedPlan", "load_result", "parse_result"]
 
@@ -103,6 +111,11 @@ class _Model(BaseModel):
     model_config = ConfigDict(strict=True, extra="forbid", frozen=True, allow_inf_nan=False)
 
 
+class _DeliveryModel(_Model):
+    device: str = Field(description='the device id, e.g. "piston-pipette-100-1000uL"')
+    volume_mL: float = Field(gt=0, description="the volume of this delivery [mL], a number > 0")
+
+
 class _AdditionModel(_Model):
     stock: str = Field(description="the id of a stock in inputs.stocks, in double quotes")
     # Bounds only where a value feeds the verifier's re-mixing: a negative volume would make
@@ -112,6 +125,11 @@ class _AdditionModel(_Model):
         description='the list of device ids, one per delivery, e.g. ["buret-25mL"]'
     )
     order: int = Field(description="the position in the order of addition, a whole number from 1")
+    # Optional: plans saved before deliveries were listed name the devices only.
+    deliveries: list[_DeliveryModel] | None = Field(
+        None,
+        description='the list of deliveries in order, each { "device": id, "volume_mL": v }',
+    )
 
 
 class _MixtureModel(_Model):
@@ -269,6 +287,7 @@ _NESTED: dict[tuple[type[_Model], str], type[_Model]] = {
     (_DocumentModel, "preparation"): _PreparationModel,
     (_DocumentModel, "prediction"): _PredictionModel,
     (_MixtureModel, "additions"): _AdditionModel,
+    (_AdditionModel, "deliveries"): _DeliveryModel,
 }
 
 _EXPECTED = {
@@ -479,6 +498,9 @@ def _mixture(model: _MixtureModel) -> Mixture:
                 volume_mL=float(a.volume_mL),
                 devices=tuple(a.devices),
                 order=a.order,
+                deliveries=tuple(
+                    Delivery(d.device, float(d.volume_mL)) for d in a.deliveries or ()
+                ),
             )
             for a in model.additions
         ),
