@@ -35,9 +35,7 @@ def _addition(addition: Addition) -> dict[str, Any]:
         "devices": list(addition.devices),
         "order": addition.order,
         # Each delivery with its own volume ("2 x 1000 uL, then 650 uL" in the sheets).
-        "deliveries": [
-            {"device": d.device, "volume_mL": d.volume_mL} for d in addition.deliveries
-        ],
+        "deliveries": [{"device": d.device, "volume_mL": d.volume_mL} for d in addition.deliveries],
     }
 
 
