@@ -20,6 +20,7 @@ from rich.text import Text
 from planner.report._format import (
     addition_decimals,
     additions_of,
+    deliveries_text,
     device_name,
     devices_short,
     is_to_the_mark,
@@ -90,7 +91,10 @@ def _cell(plan: Plan, mixture: Mixture, stock_id: str) -> Text:
         else:
             decimals = addition_decimals(plan.inputs, addition)
             devices = devices_short(addition.devices)
+            repeated = deliveries_text(plan.inputs, addition)
             parts.append(f"{volume(addition.volume_mL, decimals)} {devices}".strip())
+            if repeated:
+                parts[-1] += f" ({repeated})"
     return _plain("; ".join(parts) if parts else "-")
 
 
