@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 from typing import Literal, get_args
 
 from planner.inputs import PlanInputs
+from planner.lab.deliveries import Delivery
 
 __all__ = [
     "CHECK_STATUSES",
@@ -21,6 +22,7 @@ __all__ = [
     "Budget",
     "Check",
     "Contributor",
+    "Delivery",
     "GlobalFitPrediction",
     "Mixture",
     "MixtureUncertainty",
@@ -82,12 +84,19 @@ class Addition:
         diluent "to the mark" of a flask, the flask's id.
     order
         Position in the order of addition, from 1.
+    deliveries
+        The deliveries in the order they are made, each a device id and the volume that
+        delivery gives [mL]: a graded device may deliver n times full scale and then the
+        remainder. Their devices are ``devices`` and their volumes sum to ``volume_mL``; for
+        the diluent to the mark of a flask, the flask with the volume it makes up. Empty when
+        not stated (a saved plan from before deliveries were listed).
     """
 
     stock: str
     volume_mL: float
     devices: tuple[str, ...]
     order: int
+    deliveries: tuple[Delivery, ...] = ()
 
 
 @dataclass(frozen=True, slots=True)

@@ -26,6 +26,7 @@ from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, mix_M
 from planner.chem.species import molar_mass_g_per_mol
 from planner.inputs import Device, PlanInputs, Stock
+from planner.lab.deliveries import MAX_DELIVERIES, delivers
 from planner.lab.glassware import (
     devices_by_id,
     is_deliverable,
@@ -34,6 +35,7 @@ from planner.lab.glassware import (
 from planner.lab.photometer import observed_absorbance, true_absorbance
 from planner.result import (
     ROLES,
+    Addition,
     Check,
     GlobalFitPrediction,
     Mixture,
@@ -76,6 +78,7 @@ CHECK_NAMES = (
     "stock-inventory",
     "cuvette-fill",
     "device-count",
+    "buret-per-stock",
 )
 #: Stable names of the checks of :func:`verify_result` (a saved plan result), in order: those
 #: of :func:`verify_plan`, then the prep room's ``preparation`` and the answer key's
@@ -229,6 +232,7 @@ def _plan_checks(
         _inventory(inputs, totals),
         _cuvette(inputs, mixtures),
         _device_count(inputs, mixtures),
+        _burets(inputs, mixtures),
     ]
 
 
@@ -363,6 +367,10 @@ def _deliverable(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
                     f"{where}: {_names(missing)} not on the shelf (the glassware list has "
                     f"{_names(sorted(shelf))})"
                 )
+            elif a.deliveries:
+                problem = _stated_deliveries_problem(devices, a)
+                if problem is not None:
+                    problems.append(f"{where}: {problem}")
             elif not _deliverable_with(inputs, devices, a.volume_mL, a.devices):
                 problems.append(
                     f"{where}: cannot be delivered with {devices_text(a.devices) or 'no device'}; "
@@ -373,6 +381,43 @@ def _deliverable(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
         problems,
         "every volume is deliverable with the devices named, all on the shelf",
     )
+
+
+def _stated_deliveries_problem(devices: Mapping[str, Device], addition: Addition) -> str | None:
+    """What is wrong with an addition's stated deliveries, or None when they are sound.
+
+    Each delivery must be one reading of its device (on its scale, at or above its
+    ``min_delivery_mL``, a piston pipette inside its range), the deliveries must name the
+    addition's devices in order and sum to its volume, and there may be at most
+    :data:`planner.lab.deliveries.MAX_DELIVERIES` of them (common practice).
+    """
+    stated = addition.deliveries
+    if tuple(d.device for d in stated) != tuple(addition.devices):
+        return (
+            f"the deliveries name {' + '.join(d.device for d in stated)} but the devices are "
+            f"{' + '.join(addition.devices) or 'none'}; make them agree"
+        )
+    if len(stated) > MAX_DELIVERIES:
+        return (
+            f"{len(stated)} deliveries, more than the {MAX_DELIVERIES} one addition may take "
+            "(common practice); use a larger device"
+        )
+    total = math.fsum(d.volume_mL for d in stated)
+    if abs(total - addition.volume_mL) > 1e-9 * max(1, len(stated)):
+        return (
+            f"the deliveries sum to {total:.6g} mL, not the addition's {addition.volume_mL:g} "
+            "mL; correct the delivery volumes"
+        )
+    for d in stated:
+        device = devices.get(d.device)
+        if device is None:
+            return f"{d.device} is not on the shelf"
+        if not delivers(device, d.volume_mL):
+            return (
+                f"{d.device} cannot deliver {d.volume_mL:g} mL in one delivery (off its scale, "
+                "below its least delivery or outside its range); choose a reading it delivers"
+            )
+    return None
 
 
 def _deliverable_with(
@@ -598,6 +643,13 @@ def _reading_u(
     mark with diluent d) and the flask's volume (dT/dV = (C_d - T)/V). dA/dT_j is a central
     difference of the re-derived reading, step 1e-6 T_j. The error model is docs/methods.md
     section 10's; this derivation shares no code with the prediction stage.
+
+    Repeated deliveries: an addition of n deliveries of one device (n full-scale fills and a
+    remainder) adds n independent random delivery errors, in quadrature, and n times that
+    device's systematic error, which every delivery of the device shares (assumption: the
+    bench reads or sets each delivery afresh, so their random errors are independent; the
+    catalogue's errors do not depend on the volume delivered, so a part-fill carries the
+    same error as a full one).
     """
     components = inputs.reaction.components
     flask = inputs.flask  # the vessel, derived once from the validated inputs
@@ -621,7 +673,8 @@ def _reading_u(
         if (
             not a.devices
             or any(d not in devices for d in a.devices)
-            or not _deliverable_with(inputs, devices, a.volume_mL, a.devices)
+            or (a.deliveries and _stated_deliveries_problem(devices, a) is not None)
+            or (not a.deliveries and not _deliverable_with(inputs, devices, a.volume_mL, a.devices))
         ):
             return f"cannot deliver {a.volume_mL:g} mL of {a.stock} as stated"
         reference = diluent_M if flask is not None else totals
@@ -929,13 +982,38 @@ def _cuvette(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
     )
 
 
+def _burets(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
+    """One stock per buret, and no more burets of a size in use than a bench has.
+
+    A buret is filled with one stock for the session (common practice: refilling it with
+    another stock between mixtures wastes stock and risks carry-over), so the stocks one
+    buret entry serves need as many burets; the glassware entry's ``count`` is how many a
+    bench has.
+    """
+    uses: dict[str, set[str]] = defaultdict(set)
+    for m in mixtures:
+        for a in m.additions:
+            for d in a.devices:
+                uses[d].add(a.stock)
+    counts = {d.id: d.count for d in inputs.glassware if d.kind == "buret"}
+    problems = [
+        f"{device} holds {len(stocks)} stocks ({_names(sorted(stocks))}) but a bench has "
+        f"{counts[device]}: a buret holds one stock for the session; give each stock its own "
+        "buret (raise the entry's count) or deliver one with another device"
+        for device, stocks in sorted(uses.items())
+        if device in counts and len(stocks) > counts[device]
+    ]
+    return _check("buret-per-stock", problems, "every buret holds one stock for the session")
+
+
 def _device_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
     uses: dict[str, set[str]] = defaultdict(set)
     for m in mixtures:
         for a in m.additions:
             for d in a.devices:
                 uses[d].add(a.stock)
-    counts = {d.id: d.count for d in inputs.glassware}
+    # Burets have their own, failing check (_burets): they cannot be rinsed between stocks.
+    counts = {d.id: d.count for d in inputs.glassware if d.kind != "buret"}
     problems = [
         f"{device} serves {len(stocks)} stocks ({_names(sorted(stocks))}) but a bench has "
         f"{counts[device]}: give each stock its own, or rinse it with the next stock between uses"

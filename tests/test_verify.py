@@ -84,6 +84,12 @@ def addition(mix: Document, stock: str) -> Document:
     return found[0]
 
 
+def one_delivery(addition: Document) -> None:
+    """Restate a one-device addition's deliveries after its volume was edited by hand."""
+    (device,) = addition["devices"]
+    addition["deliveries"] = [{"device": device, "volume_mL": addition["volume_mL"]}]
+
+
 def role(document: Document, name: str) -> list[Document]:
     return [m for m in document["mixtures"] if m["role"] == name]
 
@@ -203,6 +209,7 @@ def test_additions_that_do_not_sum_to_the_total_fail(document: Document) -> None
     )
     diluent = addition(target, diluent_stock(document))
     diluent["volume_mL"] += 0.5
+    one_delivery(diluent)
     expected_sum = target["total_volume_mL"] + 0.5
 
     checks = verified(document)
@@ -237,6 +244,8 @@ def test_standard_moved_out_of_the_window_fails(document: Document) -> None:
     limiting["volume_mL"] = new
     diluent["volume_mL"] = round(diluent["volume_mL"] - from_diluent, 2)
     excess["volume_mL"] = round(excess["volume_mL"] - (extra - from_diluent), 2)
+    for edited in (limiting, diluent, excess):
+        one_delivery(edited)
     # A buret reads to 0.01 mL and delivers at least 1.00 mL (common practice, issue 11).
     assert min(diluent["volume_mL"], excess["volume_mL"]) >= 1.0
 

@@ -15,6 +15,7 @@ volume is still one the device delivers.
 from __future__ import annotations
 
 import itertools
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -25,13 +26,8 @@ from planner.chem.equilibrium import bound_fraction
 from planner.chem.mixing import IonTable, ion_table, ionic_strength_after_reaction_M, mix_M
 from planner.forward import predict_readings
 from planner.inputs import Device, PlanInputs, Stock
-from planner.lab.glassware import (
-    DeliverableVolume,
-    combination_uncertainty_mL,
-    deliverable_volumes,
-    devices_by_id,
-    standard_uncertainty_mL,
-)
+from planner.lab.deliveries import Delivery, VolumeTable, volume_table
+from planner.lab.glassware import standard_uncertainty_mL
 
 __all__ = [
     "CandidateSet",
@@ -40,6 +36,7 @@ __all__ = [
     "candidate_set",
     "evaluate",
     "stock_order",
+    "stock_shelves",
 ]
 
 # Most graded volumes per stock kept for the search (design grid), and the round steps tried
@@ -64,12 +61,17 @@ class Option:
     devices
         Device ids, one per delivery.
     u_mL
-        Combined standard uncertainty of the delivery [mL].
+        Combined standard uncertainty of the deliveries [mL] (independent deliveries in
+        quadrature).
+    deliveries
+        The deliveries in order, each with its own volume (empty for "none" and for the
+        diluent to the mark of a flask).
     """
 
     volume_mL: float
     devices: tuple[str, ...]
     u_mL: float
+    deliveries: tuple[Delivery, ...] = ()
 
 
 @dataclass(frozen=True, slots=True)
@@ -174,35 +176,56 @@ def stock_order(inputs: PlanInputs) -> tuple[Stock, ...]:
     return tuple(diluent + excess + last)
 
 
-def _thin(volumes: Sequence[DeliverableVolume], shelf: dict[str, Device]) -> list[Option]:
+def _thin(volumes_mL: NDArray[np.float64]) -> NDArray[np.float64]:
     """Keep discrete volumes; thin long graded runs to a round step.
 
-    Thinning looks at the volumes alone, so the delivery uncertainty is computed only for the
+    Thinning looks at the distinct volumes alone, so deliveries are worked out only for the
     volumes kept (a shelf of fifteen graded devices lists some 15 000 volumes, of which at
     most :data:`_MAX_GRADED_VOLUMES` survive).
     """
-    kept = list(volumes)
-    if len(kept) > _MAX_GRADED_VOLUMES:
+    kept = volumes_mL
+    if kept.size > _MAX_GRADED_VOLUMES:
+        keys = np.rint(kept * _NL_PER_ML).astype(np.int64)
         for step in _ROUND_STEPS_mL:
-            step_nL = round(step * _NL_PER_ML)
-            rounded = [v for v in kept if round(v.volume_mL * _NL_PER_ML) % step_nL == 0]
-            if len(rounded) <= _MAX_GRADED_VOLUMES:
-                kept = rounded
-                break
-        else:
-            kept = kept[:: max(1, len(kept) // _MAX_GRADED_VOLUMES)]
-    return [
-        Option(
-            volume_mL=v.volume_mL,
-            devices=v.best,
-            u_mL=combination_uncertainty_mL(shelf, v.best, v.volume_mL),
+            rounded: NDArray[np.float64] = kept[keys % round(step * _NL_PER_ML) == 0]
+            if rounded.size <= _MAX_GRADED_VOLUMES:
+                return rounded
+        kept = kept[:: max(1, kept.size // _MAX_GRADED_VOLUMES)]
+    return kept
+
+
+def _option(table: VolumeTable, volume_mL: float) -> Option:
+    aliquots = table.best(volume_mL)
+    assert aliquots is not None  # only tabulated volumes are asked for
+    return Option(
+        volume_mL=aliquots.volume_mL,
+        devices=aliquots.devices,
+        u_mL=aliquots.u_mL,
+        deliveries=aliquots.deliveries,
+    )
+
+
+def stock_shelves(inputs: PlanInputs) -> dict[str, tuple[Device, ...]]:
+    """The glassware each stock may use: burets go to one stock each.
+
+    A buret is filled with one stock for the whole session (common practice: rinsing and
+    refilling a buret between mixtures wastes stock and time and risks carry-over), so a
+    buret entry serves at most ``count`` stocks. Burets go to stocks in order of addition
+    (:func:`stock_order`: the diluent, then the excess reagents, the limiting reagent last);
+    a stock beyond the count delivers with the other glassware. In a flask the diluent fills
+    to the mark and takes no buret. Every other device is shared (a pipette is rinsed with
+    the next stock).
+    """
+    in_flask = inputs.design.vessel_kind == "volumetric-flask"
+    measured = [st for st in stock_order(inputs) if not (in_flask and st.diluent)]
+    shelves: dict[str, tuple[Device, ...]] = {}
+    for position, stock in enumerate(measured):
+        shelves[stock.id] = tuple(
+            device
+            for device in inputs.glassware
+            if device.kind != "buret" or position < device.count
         )
-        for v in kept
-    ]
-
-
-def _volume_key(volume_mL: float) -> int:
-    return round(volume_mL * _NL_PER_ML)
+    return shelves
 
 
 def candidate_set(inputs: PlanInputs) -> CandidateSet:
@@ -221,7 +244,6 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
     """
     design = inputs.design
     total_mL = design.total_volume_mL
-    shelf = devices_by_id(inputs.glassware)
     ordered = stock_order(inputs)
     reagents = [st for st in ordered if not st.diluent]
     diluent = inputs.diluent
@@ -230,24 +252,39 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
     # A shelf that delivers nothing up to the total volume (only a 25 mL pipette for 10 mL
     # tubes) is a valid plan that cannot be made: the candidate set is then empty, or just
     # the diluent in a flask, and the design reports failed checks (design-feasibility,
-    # mixture-count) instead of an error, so the person sees what binds.
-    deliverable = deliverable_volumes(inputs.glassware, max_volume_mL=total_mL)
-    thinned = _thin(deliverable, shelf)
-    by_key = {_volume_key(v.volume_mL): v for v in deliverable}
+    # mixture-count) instead of an error, so the person sees what binds. One table of
+    # distinct volumes per distinct shelf (stocks share it unless burets are scarce).
+    shelves = stock_shelves(inputs)
+    tables: dict[tuple[Device, ...], VolumeTable] = {}
+    for shelf in shelves.values():
+        if shelf not in tables:
+            tables[shelf] = volume_table(shelf, max_volume_mL=total_mL)
+    thinned = {st.id: _thin(tables[shelves[st.id]].volumes_mL()) for st in reagents}
 
-    per_stock = len(thinned) + 1
-    while per_stock ** len(reagents) > _MAX_CANDIDATES and per_stock > 3:
-        per_stock -= max(1, per_stock // 10)
-    if per_stock < len(thinned) + 1:
-        pick = np.unique(np.linspace(0, len(thinned) - 1, per_stock - 1).round().astype(int))
-        thinned = [thinned[i] for i in pick]
+    # Fewer volumes per stock when the product of the lists would be too long.
+    limit = [int(thinned[st.id].size) + 1 for st in reagents]
+    while math.prod(limit) > _MAX_CANDIDATES and max(limit) > 3:
+        largest = max(limit)
+        limit = [n - max(1, n // 10) if n == largest else n for n in limit]
     none = Option(volume_mL=0.0, devices=(), u_mL=0.0)
-    reagent_options = tuple([none, *thinned] for _ in reagents)
+    columns: list[tuple[Option, ...]] = []
+    for st, per_stock in zip(reagents, limit, strict=True):
+        volumes = thinned[st.id]
+        if per_stock < volumes.size + 1:
+            pick = np.unique(np.linspace(0, volumes.size - 1, per_stock - 1).round().astype(int))
+            volumes = volumes[pick]
+        table = tables[shelves[st.id]]
+        columns.append((none, *(_option(table, float(v)) for v in volumes)))
 
-    grid = np.array(list(itertools.product(range(len(thinned) + 1), repeat=len(reagents))))
+    grid = np.array(list(itertools.product(*(range(len(c)) for c in columns))), dtype=np.int64)
     grid = grid.reshape(-1, len(reagents))
-    option_volumes = np.array([0.0] + [o.volume_mL for o in thinned])
-    volumes = option_volumes[grid] if reagents else np.zeros((1, 0))
+    if reagents:
+        volumes = np.stack(
+            [np.array([o.volume_mL for o in c])[grid[:, j]] for j, c in enumerate(columns)],
+            axis=1,
+        )
+    else:
+        volumes = np.zeros((1, 0))
     used = volumes.sum(axis=1)
     keep = used <= total_mL + 1e-9
     if in_flask:
@@ -258,7 +295,6 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
         keep &= np.abs(used - total_mL) <= 1e-9
     grid, volumes, used = grid[keep], volumes[keep], used[keep]
 
-    columns: list[tuple[Option, ...]] = [tuple(o) for o in reagent_options]
     stock_ids = [st.id for st in reagents]
     index_columns = [grid[:, j] for j in range(len(reagents))]
     volume_columns = [volumes[:, j] for j in range(len(reagents))]
@@ -267,33 +303,27 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
         if in_flask:
             flask = inputs.flask
             assert flask is not None
-            diluent_options: list[Option] = [Option(volume_mL=0.0, devices=(flask.id,), u_mL=0.0)]
+            to_mark: list[Option] = [Option(volume_mL=0.0, devices=(flask.id,), u_mL=0.0)]
             index_columns.append(np.zeros(len(rest), dtype=np.int64))
             volume_columns.append(rest)
-            columns.append(tuple(diluent_options))
+            columns.append(tuple(to_mark))
         else:
-            keys = np.array([_volume_key(r) for r in rest])
-            lookup: dict[int, int] = {0: 0}
+            table = tables[shelves[diluent.id]]
+            keys = np.rint(rest * _NL_PER_ML).astype(np.int64)
+            distinct, inverse = np.unique(keys, return_inverse=True)
+            deliverable = table.contains(distinct / _NL_PER_ML) & (distinct > 0)
             diluent_list = [none]
-            for key in np.unique(keys):
-                if int(key) in by_key and int(key) not in lookup:
-                    v = by_key[int(key)]
-                    lookup[int(key)] = len(diluent_list)
-                    diluent_list.append(
-                        Option(
-                            volume_mL=v.volume_mL,
-                            devices=v.best,
-                            u_mL=combination_uncertainty_mL(shelf, v.best, v.volume_mL),
-                        )
-                    )
-            deliverable_rest = np.array([int(k) in lookup for k in keys], dtype=bool)
-            index = np.array([lookup.get(int(k), 0) for k in keys], dtype=np.int64)
-            index_columns = [c[deliverable_rest] for c in index_columns]
-            volume_columns = [c[deliverable_rest] for c in volume_columns]
-            index_columns.append(index[deliverable_rest])
-            volume_columns.append(
-                np.array([diluent_list[i].volume_mL for i in index[deliverable_rest]])
-            )
+            lookup = np.zeros(distinct.size, dtype=np.int64)
+            for position in np.flatnonzero(deliverable).tolist():
+                lookup[position] = len(diluent_list)
+                diluent_list.append(_option(table, float(distinct[position]) / _NL_PER_ML))
+            zero = distinct == 0
+            ok = (deliverable | zero)[inverse.reshape(-1)]
+            index = lookup[inverse.reshape(-1)]
+            index_columns = [c[ok] for c in index_columns]
+            volume_columns = [c[ok] for c in volume_columns]
+            index_columns.append(index[ok])
+            volume_columns.append(np.array([diluent_list[i].volume_mL for i in index[ok]]))
             columns.append(tuple(diluent_list))
         stock_ids.append(diluent.id)
 

@@ -26,7 +26,7 @@ from planner.design.mixtures import (
 )
 from planner.design.standards import StandardsChoice, choose_standards
 from planner.inputs import PlanInputs
-from planner.result import Addition, Check, Mixture, Role, StockPreparation, Totals
+from planner.result import Addition, Check, Delivery, Mixture, Role, StockPreparation, Totals
 
 __all__ = ["Design", "design_recipes", "mixture_from_candidate"]
 
@@ -95,12 +95,15 @@ def mixture_from_candidate(
         volume = float(candidates.volumes_mL[index, j])
         if volume <= 0 or not option.devices:
             continue
+        # The diluent to the mark of a flask: the flask makes up what the reagents leave.
+        deliveries = option.deliveries or (Delivery(option.devices[0], volume),)
         additions.append(
             Addition(
                 stock=candidates.stock_ids[j],
                 volume_mL=volume,
                 devices=option.devices,
                 order=len(additions) + 1,
+                deliveries=deliveries,
             )
         )
     initial = {

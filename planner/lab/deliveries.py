@@ -18,6 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
+from scipy.ndimage import minimum_filter1d
 
 from planner.errors import InvalidInputError
 from planner.inputs import Device
@@ -39,15 +40,21 @@ from planner.lab.tolerances import (
 
 __all__ = [
     "MAX_COMBINATIONS",
+    "MAX_DELIVERIES",
+    "Aliquots",
     "DeliverableVolume",
+    "Delivery",
+    "VolumeTable",
     "combination_count",
     "combination_uncertainty_mL",
     "deliverable_volumes",
+    "delivers",
     "devices_by_id",
     "is_deliverable",
     "reading_count",
     "reading_step_mL",
     "single_volumes_mL",
+    "volume_table",
 ]
 
 #: Most (option, volume) pairs :func:`deliverable_volumes` lists. Thirty catalogue devices
@@ -685,3 +692,408 @@ def combination_uncertainty_mL(
     for device_id, reading_pL in zip(option, readings_pL, strict=True):
         variance_mL2 += standard_uncertainty_mL(devices[device_id], reading_pL / _PL_PER_ML) ** 2
     return math.sqrt(variance_mL2)
+
+
+# ---------------------------------------------------------------------------------------------
+# Repeated deliveries: one addition as an ordered list of deliveries
+# ---------------------------------------------------------------------------------------------
+
+#: Most deliveries in one addition (common practice: each delivery adds its own error and a
+#: chance to lose count at the bench; beyond five a larger device is the better tool).
+MAX_DELIVERIES = 5
+
+#: Most slots of the dense distinct-volume table (one per multiple of the shelf's common
+#: volume step up to the largest volume wanted); a finer shelf is tabulated sparsely.
+_MAX_SLOTS = 1_000_000
+
+
+@dataclass(frozen=True, slots=True)
+class Delivery:
+    """One delivery of a device into a mixture.
+
+    Attributes
+    ----------
+    device
+        Device id (``Device.id``).
+    volume_mL
+        What this delivery gives [mL]: a one-mark device's nominal volume, or one reading of a
+        graded device.
+    """
+
+    device: str
+    volume_mL: float
+
+
+@dataclass(frozen=True, slots=True)
+class Aliquots:
+    """The preferred way to deliver one volume: an ordered list of deliveries.
+
+    Attributes
+    ----------
+    volume_mL
+        Total volume [mL], rounded to 1e-9 mL.
+    deliveries
+        In the order they are made: one-mark deliveries and graded devices at full scale,
+        largest first, then at most one graded delivery of the remainder.
+    u_mL
+        Combined standard uncertainty [mL]: the deliveries' standard uncertainties in
+        quadrature (independent deliveries, JCGM 100:2008 eq. 10).
+    """
+
+    volume_mL: float
+    deliveries: tuple[Delivery, ...]
+    u_mL: float
+
+    @property
+    def devices(self) -> tuple[str, ...]:
+        """Device ids, one per delivery."""
+        return tuple(d.device for d in self.deliveries)
+
+
+@dataclass(frozen=True, slots=True)
+class _Item:
+    """A delivery of one fixed volume: a one-mark device, or a graded one at full scale."""
+
+    device: str
+    volume_pL: int
+    u2: float
+
+
+class VolumeTable:
+    """Every distinct volume a shelf delivers in up to ``max_deliveries`` deliveries.
+
+    Built by :func:`volume_table`; the work is bounded by the number of distinct volumes, not
+    by the number of combinations of deliveries (see its Notes).
+    """
+
+    __slots__ = (
+        "_best",
+        "_big",
+        "_fixed_rounds",
+        "_graded",
+        "_items",
+        "_volumes_pL",
+        "operations",
+        "quantum_pL",
+    )
+
+    def __init__(
+        self,
+        items: Sequence[_Item],
+        graded: Sequence[tuple[str, _Grid, float]],
+        fixed_rounds: Sequence[tuple[NDArray[np.int64], NDArray[np.float64]]],
+        volumes_pL: NDArray[np.int64],
+        best: NDArray[np.float64],
+        big: float,
+        quantum_pL: int,
+        operations: int,
+    ) -> None:
+        self._items = tuple(items)
+        self._graded = tuple(graded)
+        self._fixed_rounds = tuple(fixed_rounds)
+        self._volumes_pL = volumes_pL
+        self._best = best
+        self._big = big
+        self.quantum_pL = quantum_pL
+        #: Array elements touched to build the table [unitless]: the bound the tests check.
+        self.operations = operations
+
+    def volumes_mL(self) -> NDArray[np.float64]:
+        """Every deliverable volume, ascending [mL] (rounded to 1e-9 mL)."""
+        return np.round(self._volumes_pL / _PL_PER_ML, 9)
+
+    def __len__(self) -> int:
+        return int(self._volumes_pL.size)
+
+    def _index(self, volumes_mL: NDArray[np.float64]) -> NDArray[np.int64]:
+        """Position of each volume in the table, or -1 when it is not deliverable."""
+        targets = np.rint(np.asarray(volumes_mL, dtype=float) * _PL_PER_ML).astype(np.int64)
+        if self._volumes_pL.size == 0:
+            return np.full(targets.shape, -1, dtype=np.int64)
+        position = np.searchsorted(self._volumes_pL, targets)
+        position = np.minimum(position, max(self._volumes_pL.size - 1, 0))
+        found = np.abs(self._volumes_pL[position] - targets) <= _MATCH_PL
+        return np.where(found, position, -1).astype(np.int64)
+
+    def contains(self, volumes_mL: NDArray[np.float64]) -> NDArray[np.bool_]:
+        """Whether each volume [mL] is deliverable (within 1e-9 mL)."""
+        result: NDArray[np.bool_] = self._index(volumes_mL) >= 0
+        return result
+
+    def best(self, volume_mL: float) -> Aliquots | None:
+        """The preferred deliveries of one volume [mL], or None when it is not deliverable.
+
+        Fewest deliveries first, then the smallest combined uncertainty; ties go to the
+        larger one-mark volumes and the shelf order of graded devices.
+        """
+        index = int(self._index(np.array([volume_mL]))[0])
+        if index < 0:
+            return None
+        target_pL = int(self._volumes_pL[index])
+        key = float(self._best[index])
+        last_vols, last_keys = self._fixed_rounds[-1]
+        # Fixed deliveries only (one-mark devices, graded devices at full scale).
+        position = int(np.searchsorted(last_vols, target_pL))
+        if (
+            position < last_vols.size
+            and last_vols[position] == target_pL
+            and last_keys[position] == key
+        ):
+            return self._aliquots(self._fixed_path(target_pL, len(self._fixed_rounds) - 1))
+        state_vols, state_keys = self._fixed_rounds[-2]
+        for device_id, grid, u2 in self._graded:
+            low = target_pL - grid.last_pL
+            high = target_pL - grid.first_pL
+            start, stop = np.searchsorted(state_vols, [low, high + 1])
+            states = state_vols[start:stop]
+            keys = state_keys[start:stop] + self._big + u2
+            hits = np.flatnonzero(((high - states) % grid.step_pL == 0) & (keys == key))
+            if hits.size:
+                state_pL = int(states[hits[0]])
+                path = self._fixed_path(state_pL, len(self._fixed_rounds) - 2)
+                return self._aliquots([*path, _Item(device_id, target_pL - state_pL, u2)])
+        raise AssertionError("a tabulated volume has no way to deliver it")  # pragma: no cover
+
+    def _fixed_path(self, volume_pL: int, round_index: int) -> list[_Item]:
+        """The fixed deliveries behind a fixed-only state, largest first."""
+        path: list[_Item] = []
+        while volume_pL > 0:
+            vols, keys = self._fixed_rounds[round_index]
+            key = keys[int(np.searchsorted(vols, volume_pL))]
+            # The earliest round with the same key has the fewest deliveries.
+            while round_index > 0:
+                prev_vols, prev_keys = self._fixed_rounds[round_index - 1]
+                position = int(np.searchsorted(prev_vols, volume_pL))
+                if (
+                    position < prev_vols.size
+                    and prev_vols[position] == volume_pL
+                    and prev_keys[position] == key
+                ):
+                    round_index -= 1
+                    continue
+                break
+            prev_vols, prev_keys = self._fixed_rounds[round_index - 1]
+            for item in self._items:
+                rest = volume_pL - item.volume_pL
+                position = int(np.searchsorted(prev_vols, rest))
+                if (
+                    rest >= 0
+                    and position < prev_vols.size
+                    and prev_vols[position] == rest
+                    and prev_keys[position] + self._big + item.u2 == key
+                ):
+                    path.append(item)
+                    volume_pL, round_index = rest, round_index - 1
+                    break
+            else:  # pragma: no cover
+                raise AssertionError("a fixed state has no predecessor")
+        return sorted(path, key=lambda item: (-item.volume_pL, item.device))
+
+    def _aliquots(self, path: Sequence[_Item]) -> Aliquots:
+        deliveries = tuple(
+            Delivery(item.device, round(item.volume_pL / _PL_PER_ML, 9)) for item in path
+        )
+        total_pL = sum(item.volume_pL for item in path)
+        return Aliquots(
+            volume_mL=round(total_pL / _PL_PER_ML, 9),
+            deliveries=deliveries,
+            u_mL=math.sqrt(sum(item.u2 for item in path)),
+        )
+
+
+def _sparse_min(
+    volumes_pL: NDArray[np.int64], keys: NDArray[np.float64]
+) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
+    """Distinct volumes, ascending, each with its smallest key."""
+    if volumes_pL.size == 0:
+        return volumes_pL, keys
+    order = np.lexsort((keys, volumes_pL))
+    volumes_pL, keys = volumes_pL[order], keys[order]
+    first = np.concatenate(([True], np.diff(volumes_pL) != 0))
+    return volumes_pL[first], keys[first]
+
+
+def volume_table(
+    glassware: Sequence[Device],
+    *,
+    max_volume_mL: float,
+    max_deliveries: int = MAX_DELIVERIES,
+) -> VolumeTable:
+    """Tabulate every distinct volume the shelf delivers, with its preferred deliveries.
+
+    Parameters
+    ----------
+    glassware
+        The shelf (vessels are skipped).
+    max_volume_mL
+        Largest volume wanted [mL].
+    max_deliveries
+        Most deliveries in one addition [unitless]; default :data:`MAX_DELIVERIES`.
+
+    Returns
+    -------
+    VolumeTable
+        Its :meth:`VolumeTable.best` gives the deliveries of a volume.
+
+    Raises
+    ------
+    InvalidInputError
+        ``max_deliveries`` < 1, a non-finite bound, a device the catalogue cannot use, or a
+        shelf whose sparse table would exceed :data:`MAX_COMBINATIONS` elements.
+
+    Notes
+    -----
+    A way to deliver a volume is any number of *fixed* deliveries (a one-mark device's
+    nominal volume, or a graded device -- graduated pipette, buret, variable piston pipette,
+    cylinder -- filled to full scale) plus at most one graded delivery of the remainder, each
+    on the device's own grid and so at or above its ``min_delivery_mL``. A graded device
+    therefore delivers n times full scale plus one remainder ("2 x 1000 µL, then 650 µL").
+
+    The preferred way is the one with the fewest deliveries, then the smallest combined
+    standard uncertainty (independent deliveries add in quadrature; the catalogue's
+    uncertainties do not depend on the volume delivered, so each way's uncertainty is fixed).
+    Both are additive, so the best ways are found by dynamic programming over *distinct
+    volumes*: round k keeps, for every volume reachable with at most k fixed deliveries, only
+    its best key; the graded remainder is then a sliding-window minimum along the device's
+    grid. The work is a few passes over the distinct volumes per device, whatever the number
+    of combinations. The volumes live on a dense table of the shelf's common step (the
+    greatest common divisor of every volume, grid start and step, in pL) when it has at most
+    ``_MAX_SLOTS`` slots, else on sorted sparse arrays.
+    """
+    if max_deliveries < 1:
+        raise InvalidInputError(
+            "at least one delivery is needed",
+            field="max_deliveries",
+            value=max_deliveries,
+            hint="give max_deliveries >= 1",
+        )
+    if not math.isfinite(max_volume_mL):
+        raise InvalidInputError(
+            "volume bound must be finite",
+            field="max_volume_mL",
+            value=max_volume_mL,
+            hint="give a number",
+        )
+    high_pL = max(_to_pL(max_volume_mL), 0)
+    items: list[_Item] = []
+    graded: list[tuple[str, _Grid, float]] = []
+    for device_id, device in devices_by_id(glassware).items():
+        grid = _grid(device)
+        if grid.count == 0:
+            continue
+        u2 = standard_uncertainty_mL(device) ** 2
+        if grid.last_pL <= high_pL:
+            items.append(_Item(device_id, grid.last_pL, u2))
+        if grid.count > 1 and grid.first_pL <= high_pL:
+            graded.append((device_id, grid, u2))
+    # Largest volume first: ties in the backtracking go to the larger deliveries.
+    items.sort(key=lambda item: (-item.volume_pL, item.device))
+    big = 1.0 + 2.0 * max_deliveries * max(
+        [item.u2 for item in items] + [g[2] for g in graded] + [0.0]
+    )
+
+    quantum = 0
+    for item in items:
+        quantum = math.gcd(quantum, item.volume_pL)
+    for _, grid, _ in graded:
+        quantum = math.gcd(quantum, grid.first_pL, grid.step_pL)
+    slots = high_pL // quantum + 1 if quantum else 1
+    operations = 0
+    fixed_rounds: list[tuple[NDArray[np.int64], NDArray[np.float64]]] = []
+    if quantum and slots <= _MAX_SLOTS:
+        # Dense: one slot per multiple of the common step.
+        current = np.full(slots, np.inf)
+        current[0] = 0.0
+        dense_rounds = [current]
+        for _ in range(max_deliveries):
+            following = current.copy()
+            for item in items:
+                shift = item.volume_pL // quantum
+                np.minimum(
+                    following[shift:],
+                    current[: slots - shift] + big + item.u2,
+                    out=following[shift:],
+                )
+                operations += slots - shift
+            dense_rounds.append(following)
+            current = following
+        for dense in dense_rounds:
+            where = np.flatnonzero(np.isfinite(dense))
+            fixed_rounds.append((where.astype(np.int64) * quantum, dense[where]))
+        best = dense_rounds[-1].copy()
+        states = dense_rounds[-2]
+        for _, grid, u2 in graded:
+            first, step = grid.first_pL // quantum, grid.step_pL // quantum
+            if first >= slots:
+                continue
+            # Backward window of grid.count states, one residue class of the step at a time.
+            length = -(-(slots - first) // step) * step
+            shifted = np.full(length, np.inf)
+            shifted[: slots - first] = states[: slots - first]
+            by_class = shifted.reshape(-1, step)
+            size = min(grid.count, by_class.shape[0])
+            window = minimum_filter1d(
+                by_class, size, axis=0, mode="constant", cval=np.inf, origin=(size - 1) // 2
+            )
+            operations += length
+            candidate = window.reshape(-1)[: slots - first] + big + u2
+            np.minimum(best[first:], candidate, out=best[first:])
+        where = np.flatnonzero(np.isfinite(best[1:])) + 1
+        volumes_pL = where.astype(np.int64) * quantum
+        best_keys = best[where]
+    else:
+        # Sparse: sorted distinct volumes with their best keys, round after round.
+        vols = np.zeros(1, dtype=np.int64)
+        keys = np.zeros(1)
+        fixed_rounds.append((vols, keys))
+        for _ in range(max_deliveries):
+            parts_v, parts_k = [vols], [keys]
+            for item in items:
+                reach = vols + item.volume_pL
+                keep = reach <= high_pL
+                parts_v.append(reach[keep])
+                parts_k.append(keys[keep] + big + item.u2)
+                operations += int(vols.size)
+            vols, keys = _sparse_min(np.concatenate(parts_v), np.concatenate(parts_k))
+            fixed_rounds.append((vols, keys))
+        state_vols, state_keys = fixed_rounds[-2]
+        parts_v, parts_k = [fixed_rounds[-1][0]], [fixed_rounds[-1][1]]
+        for _, grid, u2 in graded:
+            work = int(state_vols.size) * grid.count
+            operations += work
+            if operations > MAX_COMBINATIONS:
+                raise InvalidInputError(
+                    f"the shelf's volumes share no common step and give more than "
+                    f"{MAX_COMBINATIONS} ways to deliver volumes up to "
+                    f"{_format_number(max_volume_mL)} mL",
+                    field="glassware",
+                    value=len(glassware),
+                    hint="list fewer devices, or give graduated devices a coarser division_mL "
+                    "(piston pipettes a coarser step_uL)",
+                )
+            reach = (state_vols[:, None] + grid.values_pL()[None, :]).reshape(-1)
+            reach_keys = np.repeat(state_keys + big + u2, grid.count)
+            keep = reach <= high_pL
+            parts_v.append(reach[keep])
+            parts_k.append(reach_keys[keep])
+        volumes_pL, best_keys = _sparse_min(np.concatenate(parts_v), np.concatenate(parts_k))
+        volumes_pL, best_keys = volumes_pL[volumes_pL > 0], best_keys[volumes_pL > 0]
+    return VolumeTable(
+        items, graded, fixed_rounds, volumes_pL, best_keys, big, max(quantum, 1), operations
+    )
+
+
+def delivers(device: Device, volume_mL: float) -> bool:
+    """Whether one delivery of the device can give this volume [mL] (within 1e-9 mL).
+
+    One reading on the device's grid (:func:`single_volumes_mL`): a one-mark device's nominal
+    volume; a graded device's reading at or above its ``min_delivery_mL``, at most its
+    capacity; a piston pipette's setting inside its range. False for vessels.
+    """
+    if not math.isfinite(volume_mL) or volume_mL <= 0.0:
+        return False
+    grid = _grid(device)
+    if grid.count == 0:
+        return False
+    target_pL = volume_mL * _PL_PER_ML
+    return abs(grid.nearest_one_pL(target_pL) - target_pL) <= _MATCH_PL

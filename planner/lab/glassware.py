@@ -10,14 +10,20 @@ from __future__ import annotations
 
 from planner.lab.deliveries import (
     MAX_COMBINATIONS,
+    MAX_DELIVERIES,
+    Aliquots,
     DeliverableVolume,
+    Delivery,
+    VolumeTable,
     combination_count,
     combination_uncertainty_mL,
     deliverable_volumes,
+    delivers,
     devices_by_id,
     is_deliverable,
     reading_count,
     single_volumes_mL,
+    volume_table,
 )
 from planner.lab.tolerances import (
     TOLERANCE_SOURCES,
@@ -33,15 +39,20 @@ from planner.lab.tolerances import (
 
 __all__ = [
     "MAX_COMBINATIONS",
+    "MAX_DELIVERIES",
     "TOLERANCE_SOURCES",
     "ASTM_TOLERANCES_mL",
+    "Aliquots",
     "DeliverableVolume",
+    "Delivery",
     "ISO_4788_DIVISIONS_mL",
     "ISO_8655_2_ERRORS_uL",
     "ISO_TOLERANCES_mL",
+    "VolumeTable",
     "combination_count",
     "combination_uncertainty_mL",
     "deliverable_volumes",
+    "delivers",
     "devices_by_id",
     "is_deliverable",
     "piston_errors_uL",
@@ -50,4 +61,5 @@ __all__ = [
     "standard_uncertainty_mL",
     "table_tolerance_mL",
     "tolerance_mL",
+    "volume_table",
 ]

@@ -114,6 +114,31 @@ def addition_decimals(inputs: PlanInputs, addition: Addition) -> int:
     return max(_device_decimals(shelf.get(device_id)) for device_id in addition.devices)
 
 
+def deliveries_text(inputs: PlanInputs, addition: Addition) -> str:
+    """Repeated deliveries as a person reads them: ``2 x 1000 uL, then 650 uL``.
+
+    Empty for an addition of one delivery (or none stated), whose volume says it all. A run
+    of equal deliveries of one device reads ``n x volume``; piston pipettes in uL (as they
+    are set), every other device in mL to its reading step.
+    """
+    if len(addition.deliveries) < 2:
+        return ""
+    shelf = {device.id: device for device in inputs.glassware}
+    runs: list[tuple[str, int]] = []
+    for delivery in addition.deliveries:
+        device = shelf.get(delivery.device)
+        decimals = _device_decimals(device)
+        if device is not None and device.kind == "piston-pipette":
+            text = f"{delivery.volume_mL * 1000.0:.{max(decimals - 3, 0)}f} uL"
+        else:
+            text = f"{delivery.volume_mL:.{decimals}f} mL"
+        if runs and runs[-1][0] == text:
+            runs[-1] = (text, runs[-1][1] + 1)
+        else:
+            runs.append((text, 1))
+    return ", then ".join(text if n == 1 else f"{n} x {text}" for text, n in runs)
+
+
 def volume(value_mL: float, decimals: int = 2) -> str:
     """A volume to a fixed number of decimals, without the unit."""
     return f"{value_mL:.{decimals}f}"

@@ -33,6 +33,7 @@ from planner.report._format import (
     addition_decimals,
     additions_of,
     csv_text,
+    deliveries_text,
     devices_text,
     is_to_the_mark,
     markdown_text,
@@ -167,9 +168,11 @@ def _recipe_rows(plan: Plan, stocks: Sequence[str]) -> list[_RecipeRow]:
                     deliveries.append(_Delivery("to the mark", devices_text(addition.devices)))
                 else:
                     decimals = addition_decimals(plan.inputs, addition)
+                    repeated = deliveries_text(plan.inputs, addition)
                     deliveries.append(
                         _Delivery(
-                            f"{volume(addition.volume_mL, decimals)} mL",
+                            f"{volume(addition.volume_mL, decimals)} mL"
+                            + (f" ({repeated})" if repeated else ""),
                             devices_text(addition.devices),
                         )
                     )

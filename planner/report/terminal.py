@@ -20,6 +20,7 @@ from rich.text import Text
 from planner.report._format import (
     addition_decimals,
     additions_of,
+    deliveries_text,
     devices_text,
     is_to_the_mark,
     percent,
@@ -83,11 +84,15 @@ def _checks_table(plan: Plan) -> Table:
 
 
 def _delivery(plan: Plan, addition: Addition) -> tuple[str, Text]:
-    """The volume (or "to the mark") and the devices of one addition, as two cells."""
+    """The volume (or "to the mark") and the devices of one addition, as two cells; several
+    deliveries of one device are spelled out ("2 x 1000 uL, then 650 uL")."""
     if is_to_the_mark(addition):
         amount = "to the mark"
     else:
         amount = volume(addition.volume_mL, addition_decimals(plan.inputs, addition))
+        repeated = deliveries_text(plan.inputs, addition)
+        if repeated:
+            amount += f" ({repeated})"
     return amount, _plain(devices_text(addition.devices))
 
 

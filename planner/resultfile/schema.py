@@ -23,6 +23,7 @@ from pydantic import BaseModel, ConfigDict, Field
 from planner.result import (
     Addition,
     Check,
+    Delivery,
     GlobalFitPrediction,
     Mixture,
     Prediction,
@@ -36,6 +37,7 @@ __all__ = [
     "SCHEMA",
     "AdditionEntry",
     "CheckEntry",
+    "DeliveryEntry",
     "Entry",
     "GlobalFitEntry",
     "MixtureEntry",
@@ -103,6 +105,14 @@ def _record_value(value: object) -> object:
     return value
 
 
+class DeliveryEntry(Entry):
+    """One delivery of one device (:class:`planner.result.Delivery`)."""
+
+    record = Delivery
+    device: str = Field(description='the device id, e.g. "piston-pipette-100-1000uL"')
+    volume_mL: float = Field(gt=0, description="the volume of this delivery [mL], a number > 0")
+
+
 class AdditionEntry(Entry):
     """One delivery of a stock into a mixture (:class:`planner.result.Addition`)."""
 
@@ -115,6 +125,11 @@ class AdditionEntry(Entry):
         description='the list of device ids, one per delivery, e.g. ["buret-25mL"]'
     )
     order: int = Field(description="the position in the order of addition, a whole number from 1")
+    # Plans saved before deliveries were listed name the devices only.
+    deliveries: list[DeliveryEntry] = Field(
+        default_factory=list,
+        description='the list of deliveries in order, each { "device": id, "volume_mL": v }',
+    )
 
 
 class MixtureEntry(Entry):

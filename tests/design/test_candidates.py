@@ -51,3 +51,49 @@ def test_the_design_reports_what_binds(vessel):
     failed = {check.name for check in plan.checks if check.status == "fail"}
     assert "design-feasibility" in failed
     assert plan.failed
+
+
+# --- work bounded by distinct volumes (issue 10 item 10, issue 11) ----------------------------
+
+# An invented fifteen-entry shelf: seven transfer pipettes, three burets, four graduated
+# pipettes and a piston pipette, every graded device finely read.
+LARGE_SHELF = [
+    *({"kind": "transfer-pipette", "volume_mL": v} for v in (0.5, 1, 2, 5, 10, 20, 25)),
+    *(
+        {"kind": "buret", "volume_mL": v, "division_mL": d, "count": 3}
+        for v, d in ((10, 0.01), (25, 0.01), (50, 0.02))
+    ),
+    *({"kind": "graduated-pipette", "volume_mL": v, "division_mL": 0.01} for v in (1, 2, 5, 10)),
+    {"kind": "piston-pipette", "range_uL": [100, 1000], "step_uL": 1},
+]
+
+
+def test_candidate_work_is_bounded_by_distinct_volumes():
+    from planner.lab.glassware import MAX_DELIVERIES, volume_table
+
+    inputs = _plan("tube", LARGE_SHELF)
+    table = volume_table(inputs.glassware, max_volume_mL=10.0)
+    # Distinct volumes up to 10 mL on the shelf's common 1 µL step: at most 10 001 slots.
+    slots = 10_001
+    assert table.quantum_pL == 1_000_000
+    # Each of the five rounds passes once over the slots per fixed delivery (15 entries with
+    # one volume each at most), then one pass per graded device (8): a bound in slots, not
+    # in combinations of deliveries.
+    assert table.operations <= (MAX_DELIVERIES * 15 + 8) * slots
+    candidates = candidate_set(inputs)
+    assert 0 < candidates.size <= 150_000
+
+
+def test_a_buret_serves_one_stock():
+    # Invented: one 25 mL buret (count 1) and a 10 mL graduated pipette; only the first
+    # stock in order of addition (the diluent in a tube) may use the buret.
+    shelf = [
+        {"kind": "buret", "volume_mL": 25},
+        {"kind": "graduated-pipette", "volume_mL": 10},
+        {"kind": "transfer-pipette", "volume_mL": 1},
+    ]
+    plan = design_plan(_plan("tube", shelf))
+    served = {a.stock for m in plan.mixtures for a in m.additions if "buret-25mL" in a.devices}
+    assert len(served) <= 1
+    checks = {c.name: c.status for c in plan.checks}
+    assert checks["buret-per-stock"] == "pass"

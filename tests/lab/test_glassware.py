@@ -18,6 +18,7 @@ from planner.errors import InvalidInputError
 from planner.inputs import Device
 from planner.lab.glassware import (
     MAX_COMBINATIONS,
+    MAX_DELIVERIES,
     ASTM_TOLERANCES_mL,
     DeliverableVolume,
     ISO_8655_2_ERRORS_uL,
@@ -25,6 +26,7 @@ from planner.lab.glassware import (
     combination_count,
     combination_uncertainty_mL,
     deliverable_volumes,
+    delivers,
     devices_by_id,
     is_deliverable,
     piston_errors_uL,
@@ -33,6 +35,7 @@ from planner.lab.glassware import (
     standard_uncertainty_mL,
     table_tolerance_mL,
     tolerance_mL,
+    volume_table,
 )
 
 
@@ -614,3 +617,77 @@ def test_too_many_combinations_are_refused_before_listing():
         deliverable_volumes(shelf, max_volume_mL=12.0)
     assert info.value.field == "glassware"
     assert time.perf_counter() - started < 1.0
+
+
+# --- repeated deliveries (issue 11) -----------------------------------------------------------
+
+
+def _split(table, volume_mL):
+    found = table.best(volume_mL)
+    return None if found is None else [(d.device, d.volume_mL) for d in found.deliveries]
+
+
+def test_a_volume_is_split_into_the_fewest_deliveries():
+    table = volume_table([PISTON_1000], max_volume_mL=6.0)
+    pp = PISTON_1000.id
+    # Worked by hand: 2.65 mL from a 100-1000 µL pipette needs ceil(2.65 / 1.00) = 3
+    # deliveries: 2 x 1000 µL, then the 650 µL remainder.
+    assert _split(table, 2.65) == [(pp, 1.0), (pp, 1.0), (pp, 0.65)]
+    assert _split(table, 0.65) == [(pp, 0.65)]
+    assert _split(table, 5.0) == [(pp, 1.0)] * 5
+    # 2.05 mL would leave a 50 µL remainder, below the pipette's 100 µL range.
+    assert _split(table, 2.05) is None
+    # 5.1 mL needs six deliveries, beyond the cap of five (common practice).
+    assert MAX_DELIVERIES == 5
+    assert _split(table, 5.1) is None
+
+
+def test_one_mark_pipettes_come_first_then_the_remainder():
+    shelf = [pipette(5.0), pipette(2.0), PISTON_1000]
+    table = volume_table(shelf, max_volume_mL=10.0)
+    # 7.65 mL = 5 mL + 2 mL + 650 µL (three deliveries); 5 mL + 2 x 1000 µL + 650 µL is four.
+    found = table.best(7.65)
+    assert [(d.device, d.volume_mL) for d in found.deliveries] == [
+        ("transfer-pipette-5mL", 5.0),
+        ("transfer-pipette-2mL", 2.0),
+        (PISTON_1000.id, 0.65),
+    ]
+    # ISO 648 A 5 mL ±0.015 and 2 mL ±0.010 mL, ISO 8655-2 1000 µL systematic ±8 µL (all from
+    # memory), u = a / sqrt(6), independent deliveries in quadrature:
+    # sqrt(0.015^2 + 0.010^2 + 0.008^2) / sqrt(6) = 0.0080519 mL.
+    assert found.u_mL == pytest.approx(0.0080519, rel=1e-4)
+
+
+def test_least_delivery_rules_hold_for_every_tabulated_volume():
+    graduated = Device(kind="graduated-pipette", volume_mL=10.0)
+    table = volume_table([BURET_25, graduated, PISTON_1000], max_volume_mL=25.0)
+    volumes = table.volumes_mL()
+    assert volumes.size > 1000
+    for volume_mL in volumes[::7].tolist():
+        for d in table.best(volume_mL).deliveries:
+            if d.device == BURET_25.id:
+                assert d.volume_mL >= 1.0  # 1.00 mL per buret delivery (common practice)
+            elif d.device == graduated.id:
+                assert d.volume_mL >= 1.0  # 10 % of 10 mL (common practice)
+            else:
+                assert 0.1 <= d.volume_mL <= 1.0  # inside the 100-1000 µL range
+
+
+def test_one_delivery_obeys_each_device_rule():
+    graduated = Device(kind="graduated-pipette", volume_mL=10.0)
+    assert not delivers(BURET_25, 0.99)
+    assert delivers(BURET_25, 1.0)
+    assert not delivers(graduated, 0.9)
+    assert delivers(graduated, 1.0)
+    assert not delivers(PISTON_1000, 0.099)
+    assert delivers(PISTON_1000, 0.1)
+    assert not delivers(PISTON_1000, 1.001)
+    assert not delivers(pipette(5.0), 2.5)
+    assert delivers(pipette(5.0), 5.0)
+
+
+def test_own_min_delivery_raises_the_least_delivery():
+    buret = Device(kind="buret", volume_mL=25.0, min_delivery_mL=2.0)
+    table = volume_table([buret], max_volume_mL=25.0)
+    assert table.volumes_mL()[0] == 2.0
+    assert not delivers(buret, 1.5)

@@ -35,7 +35,7 @@ MIXTURE_KEYS = {
     "bound_fraction",
     "ionic_strength_M",
 }
-ADDITION_KEYS = {"stock", "volume_mL", "devices", "order"}
+ADDITION_KEYS = {"stock", "volume_mL", "devices", "order", "deliveries"}
 TOTALS_KEYS = {"per_bench", "per_section", "session", "to_prepare", "dead_volume_mL"}
 PREDICTION_KEYS = {
     "epsilon",
