@@ -81,6 +81,18 @@ class ProductSpecies:
     log_beta: float
     epsilon: float = 0.0
 
+    @property
+    def K_unit(self) -> str:
+        """Unit of the species' overall formation constant beta: (L/mol)^(n-1) for a species
+        made of n component units ("L/mol" for a 1:1 product, "L²/mol²" for a 1:2 one)."""
+        order = sum(self.formula.values()) - 1
+        if order <= 0:
+            return ""
+        if order == 1:
+            return "L/mol"
+        power = str(order).translate(str.maketrans("0123456789", "⁰¹²³⁴⁵⁶⁷⁸⁹"))
+        return f"L{power}/mol{power}"
+
 
 @dataclass(frozen=True, slots=True)
 class Reaction:

@@ -525,15 +525,122 @@ class _AnswerRow:
 
 
 @dataclass(frozen=True, slots=True)
-class _PredictionView:
-    epsilon: str
-    u_epsilon: str
-    epsilon_true: str
-    K: str
-    u_K: str
-    K_true: str
-    bias: str
-    per_test: tuple[tuple[str, str], ...]
+class _PredictionRow:
+    quantity: str
+    expected: str
+    u: str
+    assumed: str
+
+
+@dataclass(frozen=True, slots=True)
+class _AnalysisView:
+    """One analysis's expected result on the answer key."""
+
+    heading: str
+    intro: str
+    rows: tuple[_PredictionRow, ...]
+    lines: tuple[str, ...]
+
+
+def _analysis_views(plan: Plan) -> tuple[_AnalysisView, ...]:
+    """The expected results of both analyses, the one the plan is designed for first."""
+    species = plan.inputs.measured_species
+    unit = species.K_unit
+    k_label = f"K of {species.name}" + (f" ({unit})" if unit else "")
+    eps_label = "Molar absorptivity (L mol⁻¹ cm⁻¹)"
+    fit = plan.global_fit
+    fit_view = _AnalysisView(
+        heading="Expected result of the global fit",
+        intro=(
+            f"The global fit adjusts K and the molar absorptivity of {species.name} together "
+            "to every blank-subtracted standard and test reading with the full equilibrium "
+            "model. From readings without error it returns the values the plan assumes, so "
+            "it carries no bias to first order."
+            if fit is not None
+            else "No global-fit prediction: the plan's standards and tests do not separate "
+            "K from the molar absorptivity."
+        ),
+        rows=()
+        if fit is None
+        else (
+            _PredictionRow(
+                eps_label,
+                significant(fit.epsilon, 4),
+                significant(fit.u_epsilon, 2),
+                significant(species.epsilon, 4),
+            ),
+            _PredictionRow(
+                k_label,
+                significant(fit.K, 4),
+                significant(fit.u_K, 2),
+                significant(10.0**species.log_beta, 4),
+            ),
+        ),
+        lines=(),
+    )
+    p = plan.prediction
+    if p is not None:
+        tests = [m.id for m in plan.mixtures if m.role == "test"]
+        per_test = "; ".join(
+            f"{tests[i] if i < len(tests) else f'test {i + 1}'} {significant(k, 4)}"
+            for i, k in enumerate(p.K_per_test)
+        )
+        bound_view = _AnalysisView(
+            heading="Expected result of the all-bound analysis",
+            intro=(
+                "The all-bound analysis takes the limiting reagent of the standards as fully "
+                "bound. It is expected to give:"
+            ),
+            rows=(
+                _PredictionRow(
+                    eps_label,
+                    significant(p.epsilon, 4),
+                    significant(p.u_epsilon, 2),
+                    significant(p.epsilon_true, 4),
+                ),
+                _PredictionRow(
+                    k_label, significant(p.K, 4), significant(p.u_K, 2), significant(p.K_true, 4)
+                ),
+            ),
+            lines=(
+                "Relative bias of K from the all-bound assumption: "
+                f"{percent(p.K_bias_from_assumption, 3, signed=True)}.",
+                *((f"K from each test mixture: {per_test} {unit}.",) if per_test else ()),
+            ),
+        )
+    elif plan.analysis == "global-fit":
+        bound_view = _AnalysisView(
+            heading="The all-bound analysis",
+            intro=(
+                "The all-bound analysis does not suit this plan (see the analysis check), so "
+                "its numbers are not given: they would mean nothing here."
+            ),
+            rows=(),
+            lines=(),
+        )
+    else:
+        bound_view = _AnalysisView(
+            heading="Expected result of the all-bound analysis",
+            intro="No prediction: the plan gives no test mixtures to analyse.",
+            rows=(),
+            lines=(),
+        )
+    if plan.analysis == "global-fit":
+        return (fit_view, bound_view)
+    return (bound_view, fit_view) if fit is not None else (bound_view,)
+
+
+def _designed_for(plan: Plan) -> str:
+    """The sentence that says which analysis the plan is designed for."""
+    if plan.analysis == "global-fit":
+        return (
+            "This plan is designed for the global fit (see the analysis check): its test "
+            "mixtures are chosen to make the global fit's K most precise."
+        )
+    return (
+        "This plan is designed for the all-bound analysis: its standards bind the limiting "
+        "reagent as fully as the shelf allows and its tests make the mean K most precise."
+    )
 
 
 @dataclass(frozen=True, slots=True)
@@ -583,30 +690,45 @@ class _RangeRow:
 
 
 def _ranges_view(plan: Plan) -> tuple[_RangeRow, ...]:
-    """The 95 % ranges a class will likely report, from the prediction (empty without one)."""
+    """The 95 % ranges a class will likely report: each analysis's eps and K (the one the plan
+    is designed for first) and every standard's and test's reading (value -/+ 1.96 u(A) of
+    the mixture)."""
+    unit = plan.inputs.measured_species.K_unit
+    k_unit = f" ({unit})" if unit else ""
+    eps_unit = " (L mol⁻¹ cm⁻¹)"
+    fit_rows: list[_RangeRow] = []
+    if plan.global_fit is not None:
+        fit_rows = [
+            _RangeRow(
+                f"Molar absorptivity, global fit{eps_unit}", *_pair(plan.global_fit.epsilon_ci95)
+            ),
+            _RangeRow(f"K, global fit{k_unit}", *_pair(plan.global_fit.K_ci95)),
+        ]
+    bound_rows: list[_RangeRow] = []
     p = plan.prediction
-    if p is None or p.epsilon_ci95 is None or p.K_ci95 is None:
+    if p is not None and p.epsilon_ci95 is not None and p.K_ci95 is not None:
+        bound_rows = [
+            _RangeRow(f"Molar absorptivity, all-bound analysis{eps_unit}", *_pair(p.epsilon_ci95)),
+            _RangeRow(f"K, mean of the tests, all-bound analysis{k_unit}", *_pair(p.K_ci95)),
+        ]
+        tests = [m.id for m in plan.mixtures if m.role == "test"]
+        for mixture_id, interval in zip(tests, p.K_per_test_ci95, strict=False):
+            bound_rows.append(
+                _RangeRow(f"K from {mixture_id}, all-bound analysis{k_unit}", *_pair(interval))
+            )
+    rows = fit_rows + bound_rows if plan.analysis == "global-fit" else bound_rows + fit_rows
+    if not rows:
         return ()
-    rows = [
-        _RangeRow(
-            "Molar absorptivity (L mol⁻¹ cm⁻¹)",
-            significant(p.epsilon_ci95[0], 4),
-            significant(p.epsilon_ci95[1], 4),
-        ),
-        _RangeRow(
-            "K, mean of the tests (L/mol)", significant(p.K_ci95[0], 4), significant(p.K_ci95[1], 4)
-        ),
-    ]
-    tests = [m.id for m in plan.mixtures if m.role == "test"]
-    for mixture_id, (low, high) in zip(tests, p.K_per_test_ci95, strict=False):
-        rows.append(
-            _RangeRow(f"K from {mixture_id} (L/mol)", significant(low, 4), significant(high, 4))
-        )
     for m in plan.mixtures:
-        if m.id in p.absorbance_ci95:
-            low, high = p.absorbance_ci95[m.id]
+        # A blank reads zero within its noise: a range reaching below zero says nothing.
+        if m.role != "blank" and math.isfinite(m.u_absorbance):
+            low, high = m.absorbance_ci95
             rows.append(_RangeRow(f"Reading of {m.id}", f"{low:.3f}", f"{high:.3f}"))
     return tuple(rows)
+
+
+def _pair(interval: tuple[float, float]) -> tuple[str, str]:
+    return significant(interval[0], 4), significant(interval[1], 4)
 
 
 def _coloured_species(plan: Plan) -> tuple[str, ...]:
@@ -632,31 +754,14 @@ def _answer_context(plan: Plan, date: str, plots: Sequence[str] = ()) -> dict[st
         )
         for m in plan.mixtures
     ]
-    prediction = None
-    if plan.prediction is not None:
-        p = plan.prediction
-        tests = [m.id for m in plan.mixtures if m.role == "test"]
-        per_test = tuple(
-            (tests[i] if i < len(tests) else f"test {i + 1}", significant(k, 4))
-            for i, k in enumerate(p.K_per_test)
-        )
-        prediction = _PredictionView(
-            epsilon=significant(p.epsilon, 4),
-            u_epsilon=significant(p.u_epsilon, 2),
-            epsilon_true=significant(p.epsilon_true, 4),
-            K=significant(p.K, 4),
-            u_K=significant(p.u_K, 2),
-            K_true=significant(p.K_true, 4),
-            bias=percent(p.K_bias_from_assumption, 3, signed=True),
-            per_test=per_test,
-        )
     instrument = plan.inputs.instrument
     return {
         "title": plan.inputs.title,
         "date": date,
         "products": products,
         "rows": rows,
-        "prediction": prediction,
+        "designed_for": _designed_for(plan),
+        "analyses": _analysis_views(plan),
         "ranges": _ranges_view(plan),
         "limiting": plan.inputs.design.limiting,
         "wavelength": significant(instrument.wavelength_nm, 4),

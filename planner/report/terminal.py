@@ -171,14 +171,33 @@ def _totals_table(plan: Plan) -> Table:
 
 
 def _prediction_line(plan: Plan) -> Text:
+    """The expected K of both analyses, the one the plan is designed for first."""
+    species = plan.inputs.measured_species
+    unit = f" {species.K_unit}" if species.K_unit else ""
+    fit = plan.global_fit
     prediction = plan.prediction
-    if prediction is None:
+    fit_text = (
+        f"global fit: K = {significant(fit.K, 4)} ± {significant(fit.u_K, 2)}{unit}"
+        if fit is not None
+        else None
+    )
+    bound_text = (
+        f"all-bound analysis: K = {significant(prediction.K, 4)} ± "
+        f"{significant(prediction.u_K, 2)}{unit}, bias from the all-bound assumption "
+        f"{percent(prediction.K_bias_from_assumption, signed=True)}"
+        if prediction is not None
+        else "all-bound analysis: not applicable here"
+        if plan.analysis == "global-fit"
+        else None
+    )
+    parts = [fit_text, bound_text] if plan.analysis == "global-fit" else [bound_text, fit_text]
+    shown = [p for p in parts if p]
+    if not shown:
         return Text("Prediction: none (the plan gives no test mixtures to analyse).")
+    designed = "global fit" if plan.analysis == "global-fit" else "all-bound analysis"
     return Text(
-        f"Prediction (all-bound analysis): K = {significant(prediction.K, 4)} ± "
-        f"{significant(prediction.u_K, 2)} L/mol, bias from the all-bound assumption "
-        f"{percent(prediction.K_bias_from_assumption, signed=True)} "
-        f"(true K {significant(prediction.K_true, 4)} L/mol)"
+        f"Prediction (designed for the {designed}; true K {significant(10.0**species.log_beta, 4)}"
+        f"{unit}): " + "; ".join(shown)
     )
 
 

@@ -273,9 +273,9 @@ def test_answer_key(plan):
     assert "[FeSCN2+] (mol/L)" in text
     assert "| S1 (standard) | 0.357 | 0.0031 | 7.500e-5 | 0.909 | 0.560 |" in text
     assert "| B1 (blank) | 0.012 | 0.0031 | 0 | 0.000 | 0.560 |" in text
-    assert "| K (L/mol) | 112.3 | 7.2 | 100.0 |" in text
+    assert "| K of FeSCN2+ (L/mol) | 112.3 | 7.2 | 100.0 |" in text
     assert "| 4182 | 62 | 4600 |" in text
-    assert "**+12.3 %**" in text
+    assert "Relative bias of K from the all-bound assumption: +12.3 %." in text
     assert "T1 110.1; T2 114.6 L/mol" in text
 
 
