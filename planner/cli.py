@@ -729,7 +729,12 @@ def simulate(
                 )
         from planner.report.simulation import render_simulation, simulation_json
 
-        document = simulation_json(result, gum, title=inputs.title, seed=seed)
+        # The all-bound numbers are withheld where the plan withholds them (they would mean
+        # nothing on it); the analysis the plan is designed for leads.
+        analysis, all_bound = designed.analysis, designed.prediction is not None
+        document = simulation_json(
+            result, gum, title=inputs.title, seed=seed, analysis=analysis, all_bound=all_bound
+        )
         if out is not None:
             from planner.report.outdir import write_output_folder
             from planner.report.plots import simulation_plots
@@ -745,7 +750,12 @@ def simulate(
         else:
             console = Console(highlight=False)
             # The coefficients' formulas need room; narrower terminals get them in the JSON.
-            console.print(render_simulation(result, gum, formulas=console.width >= 140))
+            wide = console.width >= 140
+            console.print(
+                render_simulation(
+                    result, gum, formulas=wide, analysis=analysis, all_bound=all_bound
+                )
+            )
         if out is not None and not quiet:
             _tell(f"wrote {out}/")
         return EXIT_CHECK_FAILED if designed.failed else EXIT_OK

@@ -166,3 +166,26 @@ def test_no_screen_or_document_says_taught():
         assert "exact" not in output.lower()
     assert '"all_bound"' in document
     assert '"global_fit"' in document
+
+
+def test_a_global_fit_plan_withholds_the_all_bound_numbers_and_leads_with_the_fit():
+    # The recipe where Fe(SCN)2+ dominates: the all-bound analysis would report a mean K near
+    # zero with a 95 % range reaching below zero; the plan is designed for the global fit.
+    recipe = str(ROOT / "recipes" / "iron-thiocyanate-ligand-excess.toml")
+    result = run("simulate", recipe, "--trials", "300", "--seed", "5", "--format", "json")
+    assert result.exit_code == 0, result.stderr
+    document = json.loads(result.stdout)
+    assert document["analysis"] == "global-fit"
+    assert document["K"]["all_bound"] is None
+    assert document["K_bias_from_assumption"] is None
+    assert document["gum"]["K"] is None
+    assert all(entry["all_bound"] is None for entry in document["K_per_test"])
+    fit = document["gum"]["global_fit"]["K"]
+    assert fit["value"] > 0
+    assert fit["u"] > 0
+    assert document["K"]["global_fit"]["ci95"][0] > 0
+    text = run("simulate", recipe, "--trials", "300", "--seed", "5").stdout
+    assert "its numbers are withheld" in text
+    # No table row of the all-bound analysis (a row starts with the analysis, then numbers).
+    assert not [line for line in text.splitlines() if line.strip().startswith("all-bound ")]
+    assert "Uncertainty budget of K (global fit)" in text

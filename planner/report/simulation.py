@@ -72,7 +72,13 @@ def _budget(budget: Budget) -> dict[str, Any]:
 
 
 def simulation_document(
-    simulation: Simulation, gum: UncertaintyResult, *, title: str, seed: int
+    simulation: Simulation,
+    gum: UncertaintyResult,
+    *,
+    title: str,
+    seed: int,
+    analysis: str = "all-bound",
+    all_bound: bool = True,
 ) -> dict[str, Any]:
     """The virtual class as JSON-able data.
 
@@ -86,6 +92,11 @@ def simulation_document(
         The plan's title.
     seed
         The seed the generator was made from (so the run can be repeated).
+    analysis
+        The analysis the plan is designed for (``Plan.analysis``).
+    all_bound
+        False when the plan withholds the all-bound analysis's numbers (they would mean
+        nothing on it): every all-bound value is then ``null``.
 
     Returns
     -------
@@ -95,27 +106,40 @@ def simulation_document(
         ``epsilon_true``, ``gum`` (value, u, 95 % interval and budget of ``epsilon``,
         ``epsilon_intercept`` and ``K``), ``mixtures`` (each reading's distribution and
         first-order u), ``K_per_test`` and ``monte_carlo`` (standard errors of the means,
-        failed global fits, chunk size, method). A value no trial gave is ``null``.
+        failed global fits, chunk size, method), ``analysis``, and in ``gum`` also
+        ``global_fit`` (budgets of ``epsilon`` and ``K`` of the global fit, or ``null``). A
+        value no trial gave, or one the plan withholds, is ``null``.
     """
-    all_bound, global_fit = simulation.all_bound, simulation.global_fit
+    bound, global_fit = simulation.all_bound, simulation.global_fit
     by_id = {m.id: m for m in gum.mixtures}
+
+    def shown(value: Any) -> Any:
+        return value if all_bound else None
+
+    fit_budgets = (
+        {"epsilon": _budget(gum.global_fit_epsilon), "K": _budget(gum.global_fit_K)}
+        if gum.global_fit_epsilon is not None and gum.global_fit_K is not None
+        else None
+    )
     return {
         "schema": SCHEMA,
         "title": title,
         "trials": simulation.trials,
         "seed": seed,
+        "analysis": analysis,
         "epsilon": {
-            "all_bound": _summary(all_bound.epsilon),
+            "all_bound": shown(_summary(bound.epsilon)),
             "global_fit": _summary(global_fit.epsilon),
         },
-        "K": {"all_bound": _summary(all_bound.K), "global_fit": _summary(global_fit.K)},
-        "K_bias_from_assumption": _number(simulation.K_bias_from_assumption),
+        "K": {"all_bound": shown(_summary(bound.K)), "global_fit": _summary(global_fit.K)},
+        "K_bias_from_assumption": shown(_number(simulation.K_bias_from_assumption)),
         "K_true": simulation.K_true,
         "epsilon_true": simulation.epsilon_true,
         "gum": {
-            "epsilon": _budget(gum.epsilon),
-            "epsilon_intercept": _budget(gum.epsilon_intercept),
-            "K": _budget(gum.K),
+            "epsilon": shown(_budget(gum.epsilon)),
+            "epsilon_intercept": shown(_budget(gum.epsilon_intercept)),
+            "K": shown(_budget(gum.K)),
+            "global_fit": fit_budgets,
         },
         "mixtures": [
             {
@@ -127,17 +151,17 @@ def simulation_document(
             for mixture_id, summary in zip(simulation.mixture_ids, simulation.readings, strict=True)
         ],
         "K_per_test": [
-            {"id": test_id, "all_bound": _summary(summary)}
+            {"id": test_id, "all_bound": shown(_summary(summary))}
             for test_id, summary in zip(simulation.test_ids, simulation.K_per_test, strict=True)
         ],
         "monte_carlo": {
             "standard_error_of_mean": {
                 "epsilon": {
-                    "all_bound": _number(all_bound.epsilon.standard_error),
+                    "all_bound": shown(_number(bound.epsilon.standard_error)),
                     "global_fit": _number(global_fit.epsilon.standard_error),
                 },
                 "K": {
-                    "all_bound": _number(all_bound.K.standard_error),
+                    "all_bound": shown(_number(bound.K.standard_error)),
                     "global_fit": _number(global_fit.K.standard_error),
                 },
             },
@@ -149,10 +173,20 @@ def simulation_document(
 
 
 def simulation_json(
-    simulation: Simulation, gum: UncertaintyResult, *, title: str, seed: int
+    simulation: Simulation,
+    gum: UncertaintyResult,
+    *,
+    title: str,
+    seed: int,
+    analysis: str = "all-bound",
+    all_bound: bool = True,
 ) -> str:
     """:func:`simulation_document` as one JSON text: sorted keys, full precision."""
-    return dumps(simulation_document(simulation, gum, title=title, seed=seed))
+    return dumps(
+        simulation_document(
+            simulation, gum, title=title, seed=seed, analysis=analysis, all_bound=all_bound
+        )
+    )
 
 
 def _text(value: float, digits: int = 4) -> str:
@@ -168,7 +202,9 @@ def _spread(mean: float, sd: float, ci95: tuple[float, float]) -> tuple[str, str
     return _text(mean), _text(sd, 2), _interval(ci95)
 
 
-def _results_table(simulation: Simulation, gum: UncertaintyResult) -> Table:
+def _results_table(
+    simulation: Simulation, gum: UncertaintyResult, analysis: str, all_bound: bool
+) -> Table:
     table = Table(
         title=f"Virtual class: {simulation.trials} benches",
         box=box.SIMPLE_HEAD,
@@ -181,26 +217,70 @@ def _results_table(simulation: Simulation, gum: UncertaintyResult) -> Table:
     table.add_column("K mean", justify="right")
     table.add_column("sd", justify="right")
     table.add_column("K 95 %", justify="right")
-    for name, analysis in (
-        ("all-bound", simulation.all_bound),
-        ("global fit", simulation.global_fit),
-    ):
-        table.add_row(
-            name,
-            *_spread(analysis.epsilon.mean, analysis.epsilon.sd, analysis.epsilon.ci95),
-            *_spread(analysis.K.mean, analysis.K.sd, analysis.K.ci95),
+    bound_rows: list[tuple[str, tuple[str, ...], str]] = []
+    if all_bound:
+        bound_rows = [
+            (
+                "all-bound",
+                (
+                    *_spread(
+                        simulation.all_bound.epsilon.mean,
+                        simulation.all_bound.epsilon.sd,
+                        simulation.all_bound.epsilon.ci95,
+                    ),
+                    *_spread(
+                        simulation.all_bound.K.mean,
+                        simulation.all_bound.K.sd,
+                        simulation.all_bound.K.ci95,
+                    ),
+                ),
+                "",
+            ),
+            (
+                "all-bound, GUM",
+                (
+                    *_spread(gum.epsilon.value, gum.epsilon.standard_uncertainty, gum.epsilon.ci95),
+                    *_spread(gum.K.value, gum.K.standard_uncertainty, gum.K.ci95),
+                ),
+                "dim",
+            ),
+        ]
+    fit = simulation.global_fit
+    fit_rows: list[tuple[str, tuple[str, ...], str]] = [
+        (
+            "global fit",
+            (
+                *_spread(fit.epsilon.mean, fit.epsilon.sd, fit.epsilon.ci95),
+                *_spread(fit.K.mean, fit.K.sd, fit.K.ci95),
+            ),
+            "",
         )
-    table.add_row(
-        "all-bound, GUM",
-        *_spread(gum.epsilon.value, gum.epsilon.standard_uncertainty, gum.epsilon.ci95),
-        *_spread(gum.K.value, gum.K.standard_uncertainty, gum.K.ci95),
-        style="dim",
+    ]
+    if gum.global_fit_epsilon is not None and gum.global_fit_K is not None:
+        e, k = gum.global_fit_epsilon, gum.global_fit_K
+        fit_rows.append(
+            (
+                "global fit, GUM",
+                (
+                    *_spread(e.value, e.standard_uncertainty, e.ci95),
+                    *_spread(k.value, k.standard_uncertainty, k.ci95),
+                ),
+                "dim",
+            )
+        )
+    rows = fit_rows + bound_rows if analysis == "global-fit" else bound_rows + fit_rows
+    for name, cells, style in rows:
+        table.add_row(name, *cells, style=style or None)
+    withheld = (
+        ""
+        if all_bound
+        else " The all-bound analysis does not suit this plan; its numbers are withheld."
     )
     table.caption = (
-        "eps in L mol⁻¹ cm⁻¹, K in L/mol. all-bound: limiting reagent assumed fully bound in the "
-        "standards, curve through the origin, 1:1 K averaged over the tests; global fit: eps "
-        "and K fitted together with the full equilibrium model; GUM: first-order prediction of "
-        "the all-bound analysis."
+        "eps in L mol⁻¹ cm⁻¹, K in the measured species' units. all-bound: limiting reagent "
+        "assumed fully bound in the standards, curve through the origin, 1:1 K averaged over "
+        "the tests; global fit: eps and K fitted together with the full equilibrium model; "
+        f"GUM: first-order prediction of that analysis.{withheld}"
     )
     table.caption_justify = "left"
     return table
@@ -255,7 +335,12 @@ def _budget_table(budget: Budget, label: str, *, formulas: bool) -> Table:
 
 
 def render_simulation(
-    simulation: Simulation, gum: UncertaintyResult, *, formulas: bool = False
+    simulation: Simulation,
+    gum: UncertaintyResult,
+    *,
+    formulas: bool = False,
+    analysis: str = "all-bound",
+    all_bound: bool = True,
 ) -> RenderableType:
     """The terminal report of a virtual class.
 
@@ -266,26 +351,31 @@ def render_simulation(
     formulas
         Add each coefficient's chain of derivatives to the budgets (needs a wide terminal;
         the JSON document always has the chain and every derivative's formula).
+    analysis, all_bound
+        As for :func:`simulation_document`.
 
     Returns
     -------
     rich renderable
-        The results per analysis, the bias of the all-bound analysis, and the first-order
-        budgets of K and eps (largest contributors first; ``--format json`` lists every
-        contributor with its coefficient's full formula).
+        The results per analysis (the one the plan is designed for first), the bias of the
+        all-bound analysis, and the first-order budgets of K and eps of the analysis the plan
+        is designed for (largest contributors first; ``--format json`` lists every
+        contributor of both analyses with its coefficient's full formula).
     """
-    bias = Text("Bias of the all-bound K against the true K: ", style="bold")
-    bias.append(
-        f"{percent(simulation.K_bias_from_assumption, 3, signed=True)}"
-        if math.isfinite(simulation.K_bias_from_assumption)
-        else "-"
-    )
-    bias.append(
-        f" (true K {significant(simulation.K_true, 4)} L/mol, true eps "
-        f"{significant(simulation.epsilon_true, 4)} L mol⁻¹ cm⁻¹)",
-        style="",
-    )
-    parts: list[RenderableType] = [_results_table(simulation, gum), bias]
+    parts: list[RenderableType] = [_results_table(simulation, gum, analysis, all_bound)]
+    if all_bound:
+        bias = Text("Bias of the all-bound K against the true K: ", style="bold")
+        bias.append(
+            f"{percent(simulation.K_bias_from_assumption, 3, signed=True)}"
+            if math.isfinite(simulation.K_bias_from_assumption)
+            else "-"
+        )
+        bias.append(
+            f" (true K {significant(simulation.K_true, 4)}, true eps "
+            f"{significant(simulation.epsilon_true, 4)} L mol⁻¹ cm⁻¹)",
+            style="",
+        )
+        parts.append(bias)
     if simulation.global_fit_failed:
         parts.append(
             Text(
@@ -293,10 +383,15 @@ def render_simulation(
                 style="yellow",
             )
         )
-    parts.append(_budget_table(gum.K, "the mean K (all-bound)", formulas=formulas))
-    parts.append(
-        _budget_table(gum.epsilon, "eps (all_bound, through the origin)", formulas=formulas)
-    )
+    fit_k, fit_eps = gum.global_fit_K, gum.global_fit_epsilon
+    if (analysis == "global-fit" or not all_bound) and fit_k is not None and fit_eps is not None:
+        parts.append(_budget_table(fit_k, "K (global fit)", formulas=formulas))
+        parts.append(_budget_table(fit_eps, "eps (global fit)", formulas=formulas))
+    elif all_bound:
+        parts.append(_budget_table(gum.K, "the mean K (all-bound)", formulas=formulas))
+        parts.append(
+            _budget_table(gum.epsilon, "eps (all-bound, through the origin)", formulas=formulas)
+        )
     if not formulas:
         parts.append(
             Text(
