@@ -510,14 +510,8 @@ _JACOBIAN_STEP = 1e-4
 def global_fit_jacobian(
     reaction: Reaction, instrument: Instrument, layout: Layout
 ) -> NDArray[np.float64]:
-    """Sensitivity of the fitted net readings to the global fit's parameters, at the plan's.
-
-    Parameters
-    ----------
-    reaction, instrument
-        The plan's reaction and photometer.
-    layout
-        The set of mixtures.
+    """Sensitivity of the fitted net readings to the global fit's parameters, at the plan's
+    constants (``reaction``), photometer (``instrument``) and mixtures (``layout``).
 
     Returns
     -------

@@ -542,6 +542,16 @@ class _AnalysisView:
     lines: tuple[str, ...]
 
 
+def _prediction_rows(
+    *quantities: tuple[str, float, float, float],
+) -> tuple[_PredictionRow, ...]:
+    """Rows (quantity, expected, u, assumed), values to 4 significant figures and u to 2."""
+    return tuple(
+        _PredictionRow(name, significant(value, 4), significant(u, 2), significant(assumed, 4))
+        for name, value, u, assumed in quantities
+    )
+
+
 def _analysis_views(plan: Plan) -> tuple[_AnalysisView, ...]:
     """The expected results of both analyses, the one the plan is designed for first."""
     species = plan.inputs.measured_species
@@ -562,19 +572,9 @@ def _analysis_views(plan: Plan) -> tuple[_AnalysisView, ...]:
         ),
         rows=()
         if fit is None
-        else (
-            _PredictionRow(
-                eps_label,
-                significant(fit.epsilon, 4),
-                significant(fit.u_epsilon, 2),
-                significant(species.epsilon, 4),
-            ),
-            _PredictionRow(
-                k_label,
-                significant(fit.K, 4),
-                significant(fit.u_K, 2),
-                significant(10.0**species.log_beta, 4),
-            ),
+        else _prediction_rows(
+            (eps_label, fit.epsilon, fit.u_epsilon, species.epsilon),
+            (k_label, fit.K, fit.u_K, 10.0**species.log_beta),
         ),
         lines=(),
     )
@@ -591,16 +591,9 @@ def _analysis_views(plan: Plan) -> tuple[_AnalysisView, ...]:
                 "The all-bound analysis takes the limiting reagent of the standards as fully "
                 "bound. It is expected to give:"
             ),
-            rows=(
-                _PredictionRow(
-                    eps_label,
-                    significant(p.epsilon, 4),
-                    significant(p.u_epsilon, 2),
-                    significant(p.epsilon_true, 4),
-                ),
-                _PredictionRow(
-                    k_label, significant(p.K, 4), significant(p.u_K, 2), significant(p.K_true, 4)
-                ),
+            rows=_prediction_rows(
+                (eps_label, p.epsilon, p.u_epsilon, p.epsilon_true),
+                (k_label, p.K, p.u_K, p.K_true),
             ),
             lines=(
                 "Relative bias of K from the all-bound assumption: "

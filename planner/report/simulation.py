@@ -172,21 +172,10 @@ def simulation_document(
     }
 
 
-def simulation_json(
-    simulation: Simulation,
-    gum: UncertaintyResult,
-    *,
-    title: str,
-    seed: int,
-    analysis: str = "all-bound",
-    all_bound: bool = True,
-) -> str:
-    """:func:`simulation_document` as one JSON text: sorted keys, full precision."""
-    return dumps(
-        simulation_document(
-            simulation, gum, title=title, seed=seed, analysis=analysis, all_bound=all_bound
-        )
-    )
+def simulation_json(simulation: Simulation, gum: UncertaintyResult, **options: Any) -> str:
+    """:func:`simulation_document` (same keyword options) as one JSON text: sorted keys, full
+    precision."""
+    return dumps(simulation_document(simulation, gum, **options))
 
 
 def _text(value: float, digits: int = 4) -> str:
