@@ -720,6 +720,19 @@ def _ranges_view(plan: Plan) -> tuple[_RangeRow, ...]:
     return tuple(rows)
 
 
+def _blank_note(plan: Plan) -> str:
+    """Where each reagent blank should read: its expected reading -/+ 1.96 u(A), said as a
+    tolerance (a blank's range reaches below zero, which a From-To row would print)."""
+    parts = [
+        f"{m.id} within ± {1.96 * m.u_absorbance:.3f} of {m.absorbance:.3f}"
+        for m in plan.mixtures
+        if m.role == "blank" and math.isfinite(m.u_absorbance)
+    ]
+    if not parts:
+        return ""
+    return "Reagent blanks should read " + "; ".join(parts) + " (± 1.96 u(A))."
+
+
 def _pair(interval: tuple[float, float]) -> tuple[str, str]:
     return significant(interval[0], 4), significant(interval[1], 4)
 
@@ -756,6 +769,7 @@ def _answer_context(plan: Plan, date: str, plots: Sequence[str] = ()) -> dict[st
         "designed_for": _designed_for(plan),
         "analyses": _analysis_views(plan),
         "ranges": _ranges_view(plan),
+        "blank_note": _blank_note(plan),
         "limiting": plan.inputs.design.limiting,
         "wavelength": significant(instrument.wavelength_nm, 4),
         "path_length": significant(instrument.path_length_cm, 3),
