@@ -724,13 +724,13 @@ def _blank_note(plan: Plan) -> str:
     """Where each reagent blank should read: its expected reading -/+ 1.96 u(A), said as a
     tolerance (a blank's range reaches below zero, which a From-To row would print)."""
     parts = [
-        f"{m.id} within ± {1.96 * m.u_absorbance:.3f} of {m.absorbance:.3f}"
+        f"{m.id} {m.absorbance:.3f} ± {1.96 * m.u_absorbance:.3f}"
         for m in plan.mixtures
         if m.role == "blank" and math.isfinite(m.u_absorbance)
     ]
     if not parts:
         return ""
-    return "Reagent blanks should read " + "; ".join(parts) + " (± 1.96 u(A))."
+    return "Each reagent blank should read (± 1.96 u(A)): " + "; ".join(parts) + "."
 
 
 def _pair(interval: tuple[float, float]) -> tuple[str, str]:
