@@ -162,3 +162,39 @@ def test_a_session_short_of_stock_fails_though_each_section_fits(tmp_path):
     index = (tmp_path / "v" / "index.md").read_text(encoding="utf-8")
     assert "FAIL stock\\-inventory" in index or "FAIL stock-inventory" in index
     assert "thiocyanate" in index
+
+
+# Issue 11: the test recipe of T1 was identical in 9 of 12 sections of the default plan.
+
+
+def _default_inputs():
+    from importlib.resources import files
+
+    from planner.planfile import parse_plan
+
+    return parse_plan(files("planner").joinpath("data/default.toml").read_text("utf-8"))
+
+
+@pytest.fixture(scope="module")
+def twelve():
+    return design_variants(_default_inputs(), 12, np.random.default_rng(1))
+
+
+def _test_recipes(plan):
+    """Each test's recipe, written out from its additions (stock, volume in mL)."""
+    return {
+        m.id: frozenset((a.stock, round(a.volume_mL, 9)) for a in m.additions)
+        for m in plan.mixtures
+        if m.role == "test"
+    }
+
+
+def test_no_test_recipe_is_shared_between_the_default_plans_twelve_sections(twelve):
+    assert twelve.complete
+    seen: dict[frozenset[tuple[str, float]], tuple[int, str]] = {}
+    for number, plan in enumerate(twelve.plans, start=1):
+        recipes = _test_recipes(plan)
+        assert len(recipes) == plan.inputs.design.tests
+        for test_id, recipe in recipes.items():
+            assert recipe not in seen, (number, test_id, seen.get(recipe))
+            seen[recipe] = (number, test_id)
