@@ -274,7 +274,7 @@ def distinctness_check(found: VariantSet) -> Check:
             f"{_band_text()} difficulty band"
         )
     else:
-        why = f"{len(plans)} sections were asked"
+        why = f"{len(plans)} sections were asked for"
     return Check(
         DISTINCTNESS_CHECK,
         "warn",
