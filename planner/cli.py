@@ -585,12 +585,13 @@ def variants(
 ) -> None:
     """Distinct, verified recipe sets of equal difficulty, one per section.
 
-    Rule: no two sections share the same set of test-mixture recipes (so no two share the
-    same set of standard and test recipes); every section's plan passes verification; the
-    predicted u(K)/K of every section is within 20 % of the best section's. Writes
-    DIR/section-NN/ (bench sheets, answer key, plan.json) and an index with the combined stock
-    totals. Exit status 1 when the shelf cannot give that many sets (the reason says what
-    would allow more).
+    Rule: no test-mixture recipe appears in two sections whenever the shelf allows it
+    (standards may be shared); every section's plan passes verification; the predicted u(K)/K
+    of any two sections is within 20 % of each other. Says how many sections with distinct
+    test sets the shelf allows and warns (section-distinctness) when sections must share a
+    test recipe. Writes DIR/section-NN/ (bench sheets, answer key, plan.json) and an index with
+    the combined stock totals. Exit status 1 when the shelf cannot give that many different
+    sets at all, or the whole session runs short of stock (the reason says what would help).
     """
 
     def body() -> int:
@@ -598,6 +599,7 @@ def variants(
         from rich.console import Console
         from rich.progress import Progress
 
+        from planner.design.variants import DISTINCTNESS_CHECK
         from planner.pipeline import design_variants
         from planner.report.outdir import write_output_folder
         from planner.report.variants_index import variants_files
@@ -632,6 +634,11 @@ def variants(
         for check in session_failed:
             # Each section may pass while the session as a whole does not (stock too short).
             _tell(check.detail, heading=f"{check.name}:", style="bold red")
+        for check in found.combined.checks:
+            # How many sections the shelf allows with test recipes of their own.
+            if check.name == DISTINCTNESS_CHECK and (check.status != "pass" or not quiet):
+                style = "bold yellow" if check.status == "warn" else ""
+                _tell(check.detail, heading=f"{check.name}:", style=style)
         if not found.complete:
             _tell(found.reason, heading=f"only {len(found.plans)} of {sections}:", style="bold red")
             return EXIT_CHECK_FAILED

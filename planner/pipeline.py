@@ -298,14 +298,18 @@ def design_variants(
     rng: np.random.Generator,
     progress: Callable[[int, int], None] | None = None,
 ) -> VariantSet:
-    """Distinct, verified per-section plans of equal difficulty (see
-    :func:`planner.design.variants.design_variants`), each made by :func:`design_plan`."""
+    """Verified per-section plans of equal difficulty, no test recipe in two sections when the
+    shelf allows (see :func:`planner.design.variants.design_variants`), each made by
+    :func:`design_plan`; the combined plan carries ``section-distinctness``."""
     from planner.design import variants
 
     found = variants.design_variants(inputs, sections, rng, _make_section_plan, progress)
     if not found.plans:
         return found
-    return dataclasses.replace(found, combined=combined_plan(found.plans))
+    distinct = variants.distinctness_check(found)
+    return dataclasses.replace(
+        found, combined=combined_plan(found.plans, session_checks=(distinct,))
+    )
 
 
 def _make_section_plan(
@@ -314,13 +318,14 @@ def _make_section_plan(
     return design_plan(one, candidates=candidates, allowed=allowed)
 
 
-def combined_plan(plans: tuple[Plan, ...]) -> Plan:
+def combined_plan(plans: tuple[Plan, ...], *, session_checks: tuple[Check, ...] = ()) -> Plan:
     """A plan standing for every section together, for the combined prep-room sheet.
 
     Its session counts all sections, its totals are the sections' totals added up, its
     preparation is made for those totals, and its checks are each section's checks that did
     not pass, prefixed with the section, followed by ``stock-inventory`` on the combined totals
-    (each section may fit the stock on the shelf while the whole session does not).
+    (each section may fit the stock on the shelf while the whole session does not), then
+    ``session_checks`` (the variants' ``section-distinctness``).
     """
     from planner.design.logistics import combined_totals, preparations
     from planner.verify import inventory_check
@@ -338,7 +343,7 @@ def combined_plan(plans: tuple[Plan, ...]) -> Plan:
         if c.status != "pass"
     ]
     whole = Check(session.name, session.status, f"all sections together: {session.detail}")
-    checks = (*sections, whole)
+    checks = (*sections, whole, *session_checks)
     return dataclasses.replace(
         first,
         inputs=inputs,

@@ -116,6 +116,33 @@ def test_same_inputs_give_byte_identical_folders(sandbox, recipe):
     assert first.stdout == second.stdout
 
 
+def test_variants_same_seed_byte_identical_other_seed_other_tests(sandbox):
+    # Issue 11: sections get distinct test recipes by construction; the construction draws
+    # from the seed's one generator only, so two processes (other string-hash seeds) give the
+    # same folders and the same section-distinctness line, and another seed other tests.
+    _, work, home, _ = sandbox
+    recipe = str(ROOT / "recipes" / "iron-thiocyanate-flasks.toml")
+    args = ["variants", recipe, "--sections", "3", "--date", DATE]
+    first = run_planner([*args, "--seed", "4", "--out", "A"], cwd=work, home=home)
+    second = run_planner([*args, "--seed", "4", "--out", "B"], cwd=work, home=home, hash_seed="999")
+    other = run_planner([*args, "--seed", "5", "--out", "C"], cwd=work, home=home)
+    assert first.returncode == second.returncode == other.returncode == 0, first.stderr
+    a, b, c = files_of(work / "A"), files_of(work / "B"), files_of(work / "C")
+    assert sorted(a) == sorted(b) == sorted(c)
+    for name in a:
+        assert a[name] == b[name], f"{name} differs between two identical runs"
+    said = [line for line in first.stderr.splitlines() if not line.startswith("wrote")]
+    assert said == [line for line in second.stderr.splitlines() if not line.startswith("wrote")]
+    assert "section-distinctness" in first.stderr
+
+    def tests_of(files, section):
+        mixtures = json.loads(files[f"section-0{section}/plan.json"])["mixtures"]
+        return [m["additions"] for m in mixtures if m["role"] == "test"]
+
+    assert tests_of(a, 1) == tests_of(c, 1)  # section 1 is the plan itself
+    assert [tests_of(a, n) for n in (2, 3)] != [tests_of(c, n) for n in (2, 3)]
+
+
 def test_json_on_stdout_is_byte_identical_and_matches_the_folder(sandbox):
     _, work, home, _ = sandbox
     recipe = str(RECIPES[0])

@@ -818,6 +818,13 @@ def _designed_default():
     return design_plan(load_plan(ROOT / "planner" / "data" / "default.toml"))
 
 
+@cache
+def _default_candidates():
+    from planner.design.candidates import candidate_set
+
+    return candidate_set(load_plan(ROOT / "planner" / "data" / "default.toml"))
+
+
 @contextlib.contextmanager
 def _one_design():
     """planner.pipeline.design_plan answers at once with the default plan, designed once."""
@@ -869,10 +876,11 @@ def test_variants_answers_any_sections_and_seed(sections, seed, sections_text, s
         out = Path(folder) / "variants"
         args = ["variants", recipe, "--sections", sections_arg, "--seed", seed_arg]
         args += ["--out", str(out), "-q"]
-        # The pipeline hands variants its design_plan; variants imported candidate_set by name.
+        # The pipeline hands variants its design_plan; variants imported candidate_set by name
+        # (the default's candidates, enumerated once: variants counts the eligible tests).
         with (
             mock.patch("planner.pipeline.design_plan", return_value=_designed_default()),
-            mock.patch("planner.design.variants.candidate_set", return_value=mock.Mock(size=4)),
+            mock.patch("planner.design.variants.candidate_set", return_value=_default_candidates()),
         ):
             result = runner.invoke(app, args, catch_exceptions=False)
         if sections_value is not None and seed_value is not None:

@@ -1,28 +1,42 @@
-"""Per-section recipe variants: distinct, each verified, of equal difficulty.
+"""Per-section recipe variants: no test recipe in two sections, each verified, equal difficulty.
 
 An instructor running several sections gives each its own recipes, so answers cannot be
 copied between sections, while every section is judged by the same yardstick.
 
 Rules
 -----
-- **Distinct**: no two sections have the same set of test recipes (and so no two share the
-  same set of standard and test recipes). A recipe is the list of (stock, volume) pairs of
-  one mixture; two sections' test sets are the same only when they are recipe for recipe
-  identical, in any order. Standards may coincide between sections.
+- **Distinct**: no test recipe appears in two sections, whenever the shelf allows it. A
+  recipe is the list of (stock, volume) pairs of one mixture. Standards and the blank may be
+  the same in every section: the answers a class copies are the test mixtures' K, while a
+  shared standard curve is normal practice (common practice), so only the tests are varied.
 - **Valid**: every section's plan passes :func:`planner.verify.verify_plan` with no failed
   check.
-- **Equal difficulty**: the predicted relative SD of the mean K (the design objective) of
-  every section lies within ``_DIFFICULTY_BAND`` (+20 %) of the best section's, so any two
-  sections are within +/-20 % of each other.
+- **Equal difficulty**: the sections' design objectives (the predicted relative SD of the
+  mean K, or of the global fit's K when the plan uses the global fit) stay within
+  ``_DIFFICULTY_BAND`` of each other: the largest is at most 1.2 times the smallest, so any
+  two sections are within +/-20 % of each other. Every section uses the first section's
+  analysis, so the objectives are the same yardstick.
 
-Each section is designed from the shared candidate set with a random mask drawn from the
-given seed (one numpy Generator, passed in), so a seed gives the same variants every time.
+Construction
+------------
+The first section is the plan ``planner plan`` makes. Each next section is designed from the
+shared candidate set with every candidate whose recipe is already some section's test taken
+out of its ``allowed`` mask, so its tests differ from all earlier sections' by construction;
+a random share of the remaining test candidates (drawn from the one generator of the seed) is
+left out as well, so another seed gives other sets. When no such section of equal
+difficulty can be found (the shelf has run out of test recipes), the remaining sections may
+share single test recipes with earlier ones but never their whole test set (the
+``section-distinctness`` check of the combined plan then warns and names the sections).
+
+How many sections the shelf allows with fully distinct test sets is bounded above by the
+number of distinct eligible test recipes divided by the tests per section
+(:func:`distinctness_check` states both that bound and the number achieved).
 """
 
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -31,9 +45,20 @@ from numpy.typing import NDArray
 from planner.design.candidates import CandidateSet, candidate_set
 from planner.errors import InvalidInputError
 from planner.inputs import PlanInputs
-from planner.result import Plan, Role
+from planner.result import Check, Plan, Role
 
-__all__ = ["MAX_SECTIONS", "PlanMaker", "VariantSet", "design_variants", "recipe_key"]
+__all__ = [
+    "DISTINCTNESS_CHECK",
+    "MAX_SECTIONS",
+    "PlanMaker",
+    "SharedTest",
+    "VariantSet",
+    "design_variants",
+    "distinctness_check",
+    "eligible_tests",
+    "recipe_key",
+    "shared_tests",
+]
 
 #: Makes one verified, predicted plan from the inputs, the shared candidates and an optional
 #: mask of allowed candidates (:func:`planner.pipeline.design_plan`, passed in by the
@@ -46,13 +71,44 @@ PlanMaker = Callable[[PlanInputs, CandidateSet, NDArray[np.bool_] | None], Plan]
 #: a count of a million ran for days (found by fuzzing).
 MAX_SECTIONS = 100
 
-# Best section's objective x this is the worst accepted (any two within +/-20 % of each other).
+#: Name of the combined plan's check that no test recipe appears in two sections.
+DISTINCTNESS_CHECK = "section-distinctness"
+
+# Largest section objective / smallest accepted (any two within +/-20 % of each other).
 _DIFFICULTY_BAND = 1.2
-# Share of candidates each section may draw from; lower gives more variety, higher stays
-# closer to the single best design (chosen so 30 sections of the default stay within band).
+# Share of the still unused test candidates a section with distinct tests may draw from: the
+# seed's variety. Lower gives more variety but harder sections sooner; 0.8 keeps 30 sections
+# of the default plan within the band (tests/benchmarks/variants.py).
+_DISTINCT_KEEP_FRACTION = 0.8
+# Random draws tried for the next section with distinct tests before the unmasked one (the
+# best remaining tests); when that too fails the shelf has run out of distinct sections.
+_DISTINCT_DRAWS = 2
+# Share of test candidates each section that may share test recipes draws from.
 _KEEP_FRACTION = 0.5
-# Draws tried per requested section before giving up.
+# Draws tried per requested section that may share test recipes, before giving up.
 _TRIES_PER_SECTION = 8
+# Volumes closer than this are the same volume [mL] (far below any device's step).
+_SAME_VOLUME_mL = 1e-9
+
+RecipeKey = tuple[tuple[tuple[str, float], ...], ...]
+
+
+@dataclass(frozen=True, slots=True)
+class SharedTest:
+    """Two sections with a test recipe in common.
+
+    Attributes
+    ----------
+    first, second
+        Section numbers, from 1, ``first < second``.
+    first_test, second_test
+        The test's id in each section (e.g. ``T1``).
+    """
+
+    first: int
+    second: int
+    first_test: str
+    second_test: str
 
 
 @dataclass(frozen=True, slots=True)
@@ -73,6 +129,13 @@ class VariantSet:
     combined
         A plan standing for every section together (the whole session's totals and
         preparation, and its checks), filled by :func:`planner.pipeline.design_variants`.
+    eligible_recipes
+        Distinct recipes the shelf can make that are eligible as tests (absorbance window
+        with its margin, bound-fraction range) [unitless].
+    tests_per_section
+        Test mixtures per section (``design.tests``).
+    distinct_sections
+        Sections made with test recipes no other of them uses (the first ones, in order).
     """
 
     plans: tuple[Plan, ...]
@@ -80,21 +143,180 @@ class VariantSet:
     reason: str
     objectives: tuple[float, ...]
     combined: Plan | None = None
+    eligible_recipes: int = 0
+    tests_per_section: int = 1
+    distinct_sections: int = 0
 
     @property
     def complete(self) -> bool:
         """True when every requested section has a variant."""
         return len(self.plans) == self.requested
 
+    @property
+    def allowed_sets(self) -> int:
+        """Most sections with pairwise-distinct test sets the shelf allows (an upper bound:
+        eligible test recipes // tests per section)."""
+        return self.eligible_recipes // max(self.tests_per_section, 1)
 
-def recipe_key(plan: Plan, role: Role = "test") -> tuple[tuple[tuple[str, float], ...], ...]:
+
+def _recipe(mixture_additions: Sequence[tuple[str, float]]) -> tuple[tuple[str, float], ...]:
+    return tuple(sorted((stock, round(volume_mL, 6)) for stock, volume_mL in mixture_additions))
+
+
+def recipe_key(plan: Plan, role: Role = "test") -> RecipeKey:
     """The recipes of one role as a comparable, order-free key."""
     return tuple(
         sorted(
-            tuple(sorted((a.stock, round(a.volume_mL, 6)) for a in m.additions))
+            _recipe([(a.stock, a.volume_mL) for a in m.additions if a.volume_mL > 0])
             for m in plan.by_role(role)
         )
     )
+
+
+def eligible_tests(inputs: PlanInputs, candidates: CandidateSet) -> NDArray[np.bool_]:
+    """Candidates eligible as test mixtures, shape (n,).
+
+    The same rule as :func:`planner.design.mixtures.choose_tests`: every reading +/- 2 u(A)
+    inside the absorbance window, and the bound fraction inside ``design.bound_fraction_range``
+    (the tests of every section are checked against this mask by the tests).
+    """
+    low, high = inputs.instrument.absorbance_window
+    f_low, f_high = inputs.design.bound_fraction_range
+    ev = candidates.evaluation
+    margin = 2.0 * candidates.u_absorbance
+    eligible: NDArray[np.bool_] = (
+        (ev.absorbance >= low + margin)
+        & (ev.absorbance <= high - margin)
+        & (ev.bound_fraction >= f_low)
+        & (ev.bound_fraction <= f_high)
+    )
+    return eligible
+
+
+def _distinct_rows(volumes_mL: NDArray[np.float64]) -> int:
+    """Number of distinct recipes (rows of stock volumes) [unitless]."""
+    if not volumes_mL.shape[0]:
+        return 0
+    grid = np.round(volumes_mL / _SAME_VOLUME_mL).astype(np.int64)
+    return int(np.unique(grid, axis=0).shape[0])
+
+
+def _same_recipes(candidates: CandidateSet, plan: Plan) -> NDArray[np.bool_]:
+    """Candidates whose recipe (stock volumes) is one of the plan's tests, shape (n,)."""
+    column = {stock: j for j, stock in enumerate(candidates.stock_ids)}
+    mask = np.zeros(candidates.size, dtype=np.bool_)
+    for mixture in plan.by_role("test"):
+        row = np.zeros(len(candidates.stock_ids))
+        for addition in mixture.additions:
+            if addition.stock in column:
+                row[column[addition.stock]] += addition.volume_mL
+        mask |= np.all(np.abs(candidates.volumes_mL - row) <= _SAME_VOLUME_mL, axis=1)
+    return mask
+
+
+def shared_tests(plans: Sequence[Plan]) -> tuple[SharedTest, ...]:
+    """Every pair of sections that share a test recipe (first shared test of each pair).
+
+    Parameters
+    ----------
+    plans
+        The sections' plans, section 1 first.
+
+    Returns
+    -------
+    tuple of SharedTest
+        In order of the first section, then the second; empty when no test recipe appears in
+        two sections.
+    """
+    recipes = [
+        {
+            _recipe([(a.stock, a.volume_mL) for a in m.additions if a.volume_mL > 0]): m.id
+            for m in plan.by_role("test")
+        }
+        for plan in plans
+    ]
+    found: list[SharedTest] = []
+    for i, first in enumerate(recipes):
+        for j in range(i + 1, len(recipes)):
+            common = [key for key in first if key in recipes[j]]
+            if common:
+                key = min(common, key=lambda k: first[k])
+                found.append(SharedTest(i + 1, j + 1, first[key], recipes[j][key]))
+    return tuple(found)
+
+
+def distinctness_check(found: VariantSet) -> Check:
+    """The ``section-distinctness`` check of a whole session.
+
+    Passes when no test recipe appears in two sections; warns, naming the first pair of
+    sections that share one and how many distinct sets the shelf allows, otherwise.
+    """
+    plans = found.plans
+    bound = (
+        f"the shelf allows {found.allowed_sets} distinct set(s) of {found.tests_per_section} "
+        f"test(s) (an upper bound: {found.eligible_recipes} eligible test recipes / "
+        f"{found.tests_per_section})"
+    )
+    pairs = shared_tests(plans)
+    if not pairs:
+        return Check(
+            DISTINCTNESS_CHECK,
+            "pass",
+            f"all {len(plans)} section(s) have test recipes of their own (no test recipe "
+            f"appears in two sections); {bound}; standards and the blank may be the same in "
+            "every section (common practice)",
+        )
+    first = pairs[0]
+    more = f" ({len(pairs) - 1} more pair(s) share a test recipe)" if len(pairs) > 1 else ""
+    if found.allowed_sets >= len(plans):
+        why = (
+            f"only {found.distinct_sections} of them could be made valid and within the "
+            f"{_band_text()} difficulty band"
+        )
+    else:
+        why = f"{len(plans)} sections were asked for"
+    return Check(
+        DISTINCTNESS_CHECK,
+        "warn",
+        f"{bound}, {why}: sections {first.first} and {first.second} share test "
+        f"{first.first_test} recipe"
+        + (
+            f" ({first.second_test} in section {first.second})"
+            if first.second_test != first.first_test
+            else ""
+        )
+        + f"{more}; sections 1 to {found.distinct_sections} have test recipes of their own. "
+        "Finer glassware (a buret or graduated pipette), more stocks at other concentrations, "
+        "a wider design.bound_fraction_range or fewer tests allow more distinct sets",
+    )
+
+
+def _band_text() -> str:
+    return f"+/-{100 * (_DIFFICULTY_BAND - 1):.0f} %"
+
+
+@dataclass
+class _Band:
+    """Smallest and largest accepted objective, and the reference's analysis."""
+
+    low: float
+    high: float
+    analysis: str
+    harder: int = 0
+
+    def admits(self, plan: Plan) -> bool:
+        """True when the plan is valid, uses the same analysis and keeps the band."""
+        value = plan.design_objective
+        if plan.failed or value is None or plan.analysis != self.analysis:
+            return False
+        if max(self.high, value) > _DIFFICULTY_BAND * min(self.low, value):
+            self.harder += 1
+            return False
+        return True
+
+    def take(self, value: float) -> None:
+        self.low = min(self.low, value)
+        self.high = max(self.high, value)
 
 
 def design_variants(
@@ -104,26 +326,27 @@ def design_variants(
     make_plan: PlanMaker,
     progress: Callable[[int, int], None] | None = None,
 ) -> VariantSet:
-    """Design ``sections`` distinct, verified recipe sets of equal difficulty.
+    """Design ``sections`` verified recipe sets of equal difficulty, no test in two sections.
 
     Parameters
     ----------
     inputs
         The plan; its session describes one section's benches.
-    make_plan
-        Makes one whole plan (design, verification, prediction) from the one-section inputs,
-        the shared candidates and a mask.
     sections
         Number of sections, 1 to :data:`MAX_SECTIONS`.
     rng
         The one random generator (from the command's seed).
+    make_plan
+        Makes one whole plan (design, verification, prediction) from the one-section inputs,
+        the shared candidates and a mask.
     progress
         Called with (sections found, sections requested) after each success.
 
     Returns
     -------
     VariantSet
-        Possibly fewer plans than requested, with the reason.
+        Possibly fewer plans than requested, with the reason; the sections with test recipes
+        of their own come first.
 
     Raises
     ------
@@ -141,53 +364,82 @@ def design_variants(
         inputs, session=dataclasses.replace(inputs.session, sections=1)
     )
     candidates = candidate_set(one_section)
+    eligible = eligible_tests(one_section, candidates)
+    tests_per_section = one_section.design.tests
+    eligible_recipes = _distinct_rows(candidates.volumes_mL[eligible])
     reference = make_plan(one_section, candidates, None)
-    best = reference.design_objective
-    plans: list[Plan] = []
-    objectives: list[float] = []
-    seen: set[tuple[tuple[tuple[str, float], ...], ...]] = set()
-    if not reference.failed and best is not None:
-        plans.append(reference)
-        objectives.append(best)
-        seen.add(recipe_key(reference))
+    if reference.failed or reference.design_objective is None:
+        return VariantSet(
+            plans=(),
+            requested=sections,
+            reason=(
+                "the plan itself does not verify (see its failed checks with planner plan): "
+                "fix it before asking for variants"
+            ),
+            objectives=(),
+            eligible_recipes=eligible_recipes,
+            tests_per_section=tests_per_section,
+        )
+    band = _Band(reference.design_objective, reference.design_objective, reference.analysis)
+    plans = [reference]
+    used = _same_recipes(candidates, reference)
+
+    def accept(plan: Plan) -> None:
+        assert plan.design_objective is not None
+        band.take(plan.design_objective)
+        plans.append(plan)
         if progress:
-            progress(1, sections)
+            progress(len(plans), sections)
+
+    if progress:
+        progress(1, sections)
+    # Sections whose tests no other section uses: the used recipes leave the mask.
+    while len(plans) < sections:
+        placed = None
+        for draw in range(_DISTINCT_DRAWS + 1):
+            left_out = used.copy()
+            if draw < _DISTINCT_DRAWS:
+                left_out |= eligible & (rng.random(candidates.size) >= _DISTINCT_KEEP_FRACTION)
+            plan = make_plan(one_section, candidates, ~left_out)
+            if band.admits(plan) and not np.any(_same_recipes(candidates, plan) & used):
+                placed = plan
+                break
+        if placed is None:
+            break
+        accept(placed)
+        used |= _same_recipes(candidates, placed)
+    distinct_sections = len(plans)
+
+    # More sections than that: single test recipes may repeat, whole test sets may not.
+    seen = {recipe_key(p) for p in plans}
     tries = 0
-    rejected_difficulty = 0
-    while len(plans) < sections and tries < _TRIES_PER_SECTION * sections and plans:
+    while len(plans) < sections and tries < _TRIES_PER_SECTION * (sections - distinct_sections):
         tries += 1
-        allowed = rng.random(candidates.size) < _KEEP_FRACTION
-        plan = make_plan(one_section, candidates, allowed)
-        if plan.failed or plan.design_objective is None:
-            continue
-        assert best is not None
-        if plan.design_objective > _DIFFICULTY_BAND * best:
-            rejected_difficulty += 1
+        left_out = eligible & (rng.random(candidates.size) >= _KEEP_FRACTION)
+        plan = make_plan(one_section, candidates, ~left_out)
+        if not band.admits(plan):
             continue
         key = recipe_key(plan)
         if key in seen:
             continue
         seen.add(key)
-        plans.append(plan)
-        objectives.append(plan.design_objective)
-        if progress:
-            progress(len(plans), sections)
+        accept(plan)
 
     reason = ""
     if len(plans) < sections:
-        if not plans:
-            reason = (
-                "the plan itself does not verify (see its failed checks with planner plan): "
-                "fix it before asking for variants"
-            )
-        else:
-            reason = (
-                f"only {len(plans)} distinct sets of equal difficulty (predicted u(K)/K within "
-                f"{100 * (_DIFFICULTY_BAND - 1):.0f} % of the best, {rejected_difficulty} "
-                "draws were harder) could be found: more glassware with finer steps (a buret "
-                "or graduated pipette), more stocks at other concentrations, a wider "
-                "design.bound_fraction_range or fewer tests would allow more"
-            )
+        reason = (
+            f"only {len(plans)} distinct sets of equal difficulty (predicted u(K)/K within "
+            f"{_band_text()} of each other, {band.harder} draws were harder) could be found, "
+            f"{distinct_sections} of them with test recipes of their own: more glassware with "
+            "finer steps (a buret or graduated pipette), more stocks at other concentrations, a "
+            "wider design.bound_fraction_range or fewer tests would allow more"
+        )
     return VariantSet(
-        plans=tuple(plans), requested=sections, reason=reason, objectives=tuple(objectives)
+        plans=tuple(plans),
+        requested=sections,
+        reason=reason,
+        objectives=tuple(p.design_objective or 0.0 for p in plans),
+        eligible_recipes=eligible_recipes,
+        tests_per_section=tests_per_section,
+        distinct_sections=distinct_sections,
     )

@@ -5,6 +5,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from planner.design.variants import DISTINCTNESS_CHECK, shared_tests
 from planner.report._format import percent, significant
 from planner.report.cautions import cautions_for
 from planner.report.outdir import plan_files
@@ -21,6 +22,7 @@ class _SectionRow:
     K: str
     u_rel: str
     bias: str
+    shares: str
 
 
 def _folder(number: int, width: int) -> str:
@@ -33,11 +35,17 @@ def variants_files(
     """Every file of the variants folder.
 
     ``section-NN/`` holds each section's plan folder (bench sheets, prep sheet, answer key,
-    plan.json, CSV); ``index.md``/``index.html`` list the sections and the whole session's
-    checks that did not pass, and ``prep-sheet.md``/``.html`` give the stock totals of all
-    sections together (``combined``, from :func:`planner.pipeline.combined_plan`).
+    plan.json, CSV); ``index.md``/``index.html`` list the sections (with the sections each
+    shares a test recipe with), the whole session's checks that did not pass and its
+    ``section-distinctness`` check (how many distinct test sets the shelf allows), and
+    ``prep-sheet.md``/``.html`` give the stock totals of all sections together
+    (``combined``, from :func:`planner.pipeline.combined_plan`).
     """
     width = max(2, len(str(len(plans))))
+    partners: dict[int, list[int]] = {n: [] for n in range(1, len(plans) + 1)}
+    for pair in shared_tests(plans):
+        partners[pair.first].append(pair.second)
+        partners[pair.second].append(pair.first)
     files: dict[str, str | bytes] = {}
     rows = []
     for number, plan in enumerate(plans, start=1):
@@ -54,11 +62,13 @@ def variants_files(
                 K=significant(prediction.K) if prediction else "-",
                 u_rel=percent(plan.design_objective) if plan.design_objective else "-",
                 bias=percent(prediction.K_bias_from_assumption, signed=True) if prediction else "-",
+                shares=", ".join(str(n) for n in sorted(partners[number])) or "none",
             )
         )
     together = combined
     context = {
         "failed": tuple(c for c in combined.checks if c.status == "fail"),
+        "distinctness": next((c for c in combined.checks if c.name == DISTINCTNESS_CHECK), None),
         "title": plans[0].inputs.title,
         "date": date,
         "seed": seed,

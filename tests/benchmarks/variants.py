@@ -40,6 +40,8 @@ def main() -> int:
         "total_s": total_s,
         "files": len(contents),
         "difficulty_spread": float(objectives.max() / objectives.min() - 1),
+        "distinct_sections": found.distinct_sections,
+        "allowed_sets": found.allowed_sets,
         "peak_memory_MB": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
     }
     if args.json:
@@ -49,6 +51,10 @@ def main() -> int:
     print(f"  design   {designed_s:6.2f} s")
     print(f"  + sheets {total_s:6.2f} s ({len(contents)} files)   (target <= 3 s)")
     print(f"  difficulty spread {100 * figures['difficulty_spread']:.1f} % (rule: within 20 %)")
+    print(
+        f"  {found.distinct_sections} sections with test recipes of their own "
+        f"(the shelf allows at most {found.allowed_sets})"
+    )
     return 0
 
 

@@ -162,3 +162,260 @@ def test_a_session_short_of_stock_fails_though_each_section_fits(tmp_path):
     index = (tmp_path / "v" / "index.md").read_text(encoding="utf-8")
     assert "FAIL stock\\-inventory" in index or "FAIL stock-inventory" in index
     assert "thiocyanate" in index
+
+
+# Issue 11: the test recipe of T1 was identical in 9 of 12 sections of the default plan.
+
+
+def _default_inputs():
+    from importlib.resources import files
+
+    from planner.planfile import parse_plan
+
+    return parse_plan(files("planner").joinpath("data/default.toml").read_text("utf-8"))
+
+
+@pytest.fixture(scope="module")
+def twelve():
+    return design_variants(_default_inputs(), 12, np.random.default_rng(1))
+
+
+def _test_recipes(plan):
+    """Each test's recipe, written out from its additions (stock, volume in mL)."""
+    return {
+        m.id: frozenset((a.stock, round(a.volume_mL, 9)) for a in m.additions)
+        for m in plan.mixtures
+        if m.role == "test"
+    }
+
+
+def test_no_test_recipe_is_shared_between_the_default_plans_twelve_sections(twelve):
+    assert twelve.complete
+    seen: dict[frozenset[tuple[str, float]], tuple[int, str]] = {}
+    for number, plan in enumerate(twelve.plans, start=1):
+        recipes = _test_recipes(plan)
+        assert len(recipes) == plan.inputs.design.tests
+        for test_id, recipe in recipes.items():
+            assert recipe not in seen, (number, test_id, seen.get(recipe))
+            seen[recipe] = (number, test_id)
+
+
+def test_every_section_of_the_default_plan_within_the_difficulty_band(twelve):
+    # The band the index states: any two sections' predicted u(K)/K within 20 % of each
+    # other, all for the same analysis (so the objectives are one yardstick).
+    objectives = np.array(twelve.objectives)
+    assert objectives.max() <= 1.2 * objectives.min()
+    assert {p.analysis for p in twelve.plans} == {twelve.plans[0].analysis}
+    assert [p.design_objective for p in twelve.plans] == list(twelve.objectives)
+
+
+def test_the_default_plans_check_passes_and_states_the_bound(twelve):
+    check = twelve.combined.checks[-1]
+    assert check.name == "section-distinctness"
+    assert check.status == "pass"
+    assert twelve.distinct_sections == 12
+    assert "all 12 section(s) have test recipes of their own" in check.detail
+    assert f"the shelf allows {twelve.eligible_recipes // 5} distinct set(s) of 5" in check.detail
+
+
+def test_every_chosen_test_is_counted_eligible(twelve):
+    # The bound counts the candidates eligible_tests admits; a test the design chose outside
+    # them would make the bound wrong (the rule must stay that of choose_tests).
+    from planner.design.candidates import candidate_set
+    from planner.design.variants import eligible_tests
+
+    one = twelve.plans[0].inputs
+    candidates = candidate_set(one)
+    eligible = eligible_tests(one, candidates)
+    rows = candidates.volumes_mL[eligible]
+    column = {stock: j for j, stock in enumerate(candidates.stock_ids)}
+    for plan in twelve.plans:
+        for mixture in plan.by_role("test"):
+            row = np.zeros(len(column))
+            for addition in mixture.additions:
+                row[column[addition.stock]] += addition.volume_mL
+            assert np.any(np.all(np.abs(rows - row) < 1e-9, axis=1)), mixture
+
+
+def test_same_seed_same_sections_and_check_other_seed_other_tests():
+    inputs = _default_inputs()
+    first = design_variants(inputs, 4, np.random.default_rng(7))
+    again = design_variants(inputs, 4, np.random.default_rng(7))
+    other = design_variants(inputs, 4, np.random.default_rng(8))
+    assert [recipe_key(p) for p in first.plans] == [recipe_key(p) for p in again.plans]
+    assert first.combined.checks == again.combined.checks
+    # Section 1 is the plan itself for every seed; the seed varies the others.
+    assert recipe_key(other.plans[0]) == recipe_key(first.plans[0])
+    assert [recipe_key(p) for p in other.plans[1:]] != [recipe_key(p) for p in first.plans[1:]]
+
+
+# A shelf of our own with two transfer pipettes (1 and 2 mL), so every volume is a whole
+# number of millilitres and the eligible test mixtures can be listed by hand below.
+TINY_SHELF = """\
+title = "Tiny shelf (invented)"
+
+[reaction]
+temperature_C = 25
+ionic_strength_M = 0.5
+components = ["Fe3+", "SCN-"]
+
+[[reaction.species]]
+name = "FeSCN2+"
+formula = { "Fe3+" = 1, "SCN-" = 1 }
+K = 98
+epsilon = 4700
+
+[instrument]
+wavelength_nm = 450
+path_length_cm = 1.0
+absorbance_window = [0.30, 0.75]
+absorbance_sd = 0.003
+stray_light = 0.001
+cuvette_fill_mL = 3.0
+
+[[stocks]]
+id = "iron"
+contains_M = { "Fe3+" = 0.5, "H+" = 0.5, "NO3-" = 2.0 }
+relative_uncertainty = 0.002
+
+[[stocks]]
+id = "iron-dilute"
+contains_M = { "Fe3+" = 0.04, "H+" = 0.5, "NO3-" = 0.62 }
+relative_uncertainty = 0.003
+
+[[stocks]]
+id = "thiocyanate"
+contains_M = { "SCN-" = 0.8e-3, "K+" = 0.8e-3, "H+" = 0.5, "NO3-" = 0.5 }
+relative_uncertainty = 0.003
+
+[[stocks]]
+id = "acid"
+contains_M = { "H+" = 0.5, "NO3-" = 0.5 }
+diluent = true
+
+[[glassware]]
+kind = "transfer-pipette"
+volume_mL = 1
+count = 4
+
+[[glassware]]
+kind = "transfer-pipette"
+volume_mL = 2
+count = 4
+
+[design]
+standards = 1
+tests = 2
+limiting = "SCN-"
+assumption_tolerance = 0.1
+vessel = "tube"
+total_volume_mL = 10
+bound_fraction_range = [0.5, 0.65]
+bound_fraction_span = 0.05
+"""
+
+
+def _tiny_eligible_by_hand(margin):
+    """The tiny shelf's eligible test recipes, enumerated by brute force.
+
+    Every whole-millilitre recipe of the three reagent stocks in a 10 mL tube (the diluent
+    the rest), solved with the 1:1 closed form (the quadratic root of K = x/((M - x)(L - x)))
+    and read through Beer-Lambert with stray light, A = log10((1 + s)/(10^-A0 + s)); eligible
+    when the bound fraction x/L is inside [0.5, 0.65] and the reading inside
+    [0.30 + margin, 0.75 - margin].
+    """
+    import itertools
+    import math
+
+    K, eps, s = 98.0, 4700.0, 0.001
+    found = []
+    for strong, dilute, scn in itertools.product(range(11), repeat=3):
+        if strong + dilute + scn > 10 or scn == 0:
+            continue
+        M = (0.5 * strong + 0.04 * dilute) / 10
+        L = 0.8e-3 * scn / 10
+        b = M + L + 1 / K
+        x = (b - math.sqrt(b * b - 4 * M * L)) / 2
+        reading = math.log10((1 + s) / (10 ** (-eps * x) + s))
+        if 0.5 <= x / L <= 0.65 and 0.30 + margin <= reading <= 0.75 - margin:
+            found.append(((strong, dilute, scn), x / L))
+    return found
+
+
+def test_a_tiny_shelf_allowing_two_distinct_sets_warns_with_four_sections(tmp_path):
+    import itertools
+
+    from planner.design.variants import shared_tests
+    from planner.planfile import parse_plan
+
+    # Brute force: the recipes eligible as tests (the same with no margin and with 0.05 on
+    # the window, so the planner's 2 u(A) margin cannot change them), every valid set of two
+    # tests (bound fractions at least 0.05 apart), and the most sets no two of which share a
+    # recipe.
+    eligible = _tiny_eligible_by_hand(0.0)
+    assert eligible == _tiny_eligible_by_hand(0.05)
+    fraction = dict(eligible)
+    sets = [
+        pair
+        for pair in itertools.combinations(sorted(fraction), 2)
+        if abs(fraction[pair[0]] - fraction[pair[1]]) >= 0.05
+    ]
+    most = max(
+        n
+        for n in range(1, len(sets) + 1)
+        for group in itertools.combinations(sets, n)
+        if len({r for pair in group for r in pair}) == 2 * n
+    )
+    assert (len(eligible), most) == (4, 2)
+
+    found = design_variants(parse_plan(TINY_SHELF), 4, np.random.default_rng(1))
+    assert found.complete
+    assert found.eligible_recipes == len(eligible)
+    assert found.allowed_sets == most
+    assert found.distinct_sections == 2
+    check = found.combined.checks[-1]
+    assert check.name == "section-distinctness"
+    assert check.status == "warn"
+    pairs = shared_tests(found.plans)
+    first = pairs[0]
+    assert first.first != first.second
+    expected = (
+        f"the shelf allows {most} distinct set(s) of 2 test(s) (an upper bound: 4 eligible "
+        f"test recipes / 2), 4 sections were asked for: sections {first.first} and {first.second} "
+        f"share test {first.first_test} recipe"
+    )
+    assert expected in check.detail
+    # Sections 1 and 2 share nothing; the two others reuse single recipes, never a whole set.
+    recipes = [set(_test_recipes(p).values()) for p in found.plans]
+    assert not recipes[0] & recipes[1]
+    assert len({frozenset(r) for r in recipes}) == 4
+    assert (1, 2) not in {(p.first, p.second) for p in pairs}
+    # Every section's test is one the brute force lists, at the difficulty band.
+    listed = {
+        frozenset(
+            (stock, float(v))
+            for stock, v in zip(("iron", "iron-dilute", "thiocyanate"), r, strict=True)
+            if v
+        )
+        for r in fraction
+    }
+    for r in set().union(*recipes):
+        assert frozenset(x for x in r if x[0] != "acid") in listed
+    objectives = np.array(found.objectives)
+    assert objectives.max() <= 1.2 * objectives.min()
+
+    # The command line: exit 0 (a warning), the warning on the terminal and on the index.
+    path = tmp_path / "tiny.toml"
+    path.write_text(TINY_SHELF, encoding="utf-8")
+    result = CliRunner().invoke(
+        app,
+        ["variants", str(path), "--sections", "4", "--seed", "1", "--out", str(tmp_path / "v")],
+    )
+    assert result.exit_code == 0, result.stderr
+    said = " ".join(result.stderr.split())
+    assert "section-distinctness:" in said
+    assert expected in said
+    for name in ("index.md", "index.html"):
+        index = " ".join((tmp_path / "v" / name).read_text(encoding="utf-8").split())
+        assert "the shelf allows 2 distinct set(s) of 2 test(s)" in index
+        assert "WARN section" in index
