@@ -19,6 +19,7 @@ __all__ = ["variants_files"]
 class _SectionRow:
     number: int
     folder: str
+    analysis: str
     K: str
     u_rel: str
     bias: str
@@ -55,12 +56,22 @@ def variants_files(
         ).items():
             files[f"{folder}/{name}"] = text
         prediction = plan.prediction
+        # The K and u(K)/K of the analysis the section is designed for, from its prediction
+        # (the numbers its answer key prints).
+        expected = (
+            (plan.global_fit.K, plan.global_fit.u_K)
+            if plan.analysis == "global-fit" and plan.global_fit is not None
+            else (prediction.K, prediction.u_K)
+            if plan.analysis == "all-bound" and prediction is not None
+            else None
+        )
         rows.append(
             _SectionRow(
                 number=number,
                 folder=folder + "/",
-                K=significant(prediction.K) if prediction else "-",
-                u_rel=percent(plan.design_objective) if plan.design_objective else "-",
+                analysis="global fit" if plan.analysis == "global-fit" else "all-bound",
+                K=significant(expected[0]) if expected else "-",
+                u_rel=percent(expected[1] / expected[0]) if expected else "-",
                 bias=percent(prediction.K_bias_from_assumption, signed=True) if prediction else "-",
                 shares=", ".join(str(n) for n in sorted(partners[number])) or "none",
             )
