@@ -276,7 +276,11 @@ def design_plan(
     design = design_recipes(inputs, objective, candidates=candidates, allowed=allowed)
     mixtures, uncertainty, prediction, fitted = predict_mixtures(inputs, design.mixtures)
     prediction, fitted, meaningful = _prediction_check(prediction, fitted, design.analysis)
-    checks = design.checks + tuple(verify_plan(inputs, mixtures, design.totals)) + meaningful
+    checks = (
+        design.checks
+        + tuple(verify_plan(inputs, mixtures, design.totals, analysis=design.analysis))
+        + meaningful
+    )
     return Plan(
         inputs=inputs,
         mixtures=mixtures,

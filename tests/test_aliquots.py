@@ -88,7 +88,11 @@ def test_micro_scale_plan_passes_every_check_with_repeated_deliveries(tmp_path):
     result, saved = _planned(tmp_path)
     assert result.exit_code == 0, result.output
     document = json.loads(saved.read_text("utf-8"))
-    assert {c["status"] for c in document["checks"]} == {"pass"}
+    # Every check passes; the standards take the most metal the shelf allows (the highest
+    # bound fraction, docs/methods.md), which may widen the ionic-strength spread to the
+    # plan's limit: a warning a person reads, never a failure.
+    assert {c["status"] for c in document["checks"] if c["name"] != "ionic-strength"} == {"pass"}
+    assert {c["status"] for c in document["checks"]} <= {"pass", "warn"}
     repeated = 0
     for mixture in document["mixtures"]:
         for addition in mixture["additions"]:

@@ -30,6 +30,7 @@ from planner.lab.deliveries import Delivery, VolumeTable, volume_table
 from planner.lab.glassware import standard_uncertainty_mL
 
 __all__ = [
+    "MIN_REAGENT_SHARE",
     "CandidateSet",
     "Evaluation",
     "Option",
@@ -48,6 +49,10 @@ _ROUND_STEPS_mL = (0.01, 0.02, 0.05, 0.1, 0.2, 0.25, 0.5, 1.0, 2.0, 5.0)
 # Most candidates evaluated; more reagent stocks thin each stock's list further.
 _MAX_CANDIDATES = 150_000
 _NL_PER_ML = 1_000_000
+#: Least share of a reagent's total a stock must add to earn its place in a mixture (common
+#: practice: a stock that adds under 5 % of the reagent only pads the excess with one more
+#: delivery, bottle and error source for nothing a person would notice).
+MIN_REAGENT_SHARE = 0.05
 
 
 @dataclass(frozen=True, slots=True)
@@ -143,6 +148,10 @@ class CandidateSet:
         The ion table of the stocks, in the same stock order.
     evaluation
         Predicted state.
+    padded
+        Candidates in which some reagent stock adds less than :data:`MIN_REAGENT_SHARE` of
+        every reaction component it brings beyond the diluent, shape (n,): recipes a person
+        would not write, kept out of standards and tests.
     """
 
     stock_ids: tuple[str, ...]
@@ -155,6 +164,7 @@ class CandidateSet:
     u_absorbance: NDArray[np.float64]
     ions: IonTable
     evaluation: Evaluation
+    padded: NDArray[np.bool_]
 
     @property
     def size(self) -> int:
@@ -366,7 +376,46 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
         u_absorbance=u_absorbance,
         ions=ions,
         evaluation=evaluation,
+        padded=_padded(inputs, stocks_in_order, volumes_mL),
     )
+
+
+def _padded(
+    inputs: PlanInputs, stocks: Sequence[Stock], volumes_mL: NDArray[np.float64]
+) -> NDArray[np.bool_]:
+    """Candidates in which a reagent stock only pads what other stocks already bring.
+
+    A reagent stock's own components are the reaction components it holds at a higher
+    concentration than the diluent (the medium's H+ in every stock is not what the stock is
+    for). The stock pads a mixture when, for each of its own components, it adds less than
+    :data:`MIN_REAGENT_SHARE` of the mixture's total (a dilute iron stock beside the strong
+    one in an excess). A stock with no component of its own (a salt for the medium) never
+    pads.
+    """
+    components = inputs.reaction.components
+    diluent = inputs.diluent
+    n = volumes_mL.shape[0]
+    amounts = np.array(
+        [[st.contains_M.get(c, 0.0) for c in components] for st in stocks], dtype=np.float64
+    ).reshape(len(stocks), len(components))
+    total = volumes_mL @ amounts  # (n, components), mmol
+    padded = np.zeros(n, dtype=bool)
+    for s, stock in enumerate(stocks):
+        if stock.diluent:
+            continue
+        own = [
+            j
+            for j, c in enumerate(components)
+            if amounts[s, j] > (diluent.contains_M.get(c, 0.0) if diluent is not None else 0.0)
+        ]
+        if not own:
+            continue
+        used = volumes_mL[:, s] > 0
+        added = volumes_mL[:, s, None] * amounts[s, own][None, :]
+        safe = np.where(total[:, own] > 0, total[:, own], 1.0)
+        minor = np.all(added < MIN_REAGENT_SHARE * safe, axis=1)
+        padded |= used & minor
+    return padded
 
 
 # Relative step of the one-sided difference of the forward model (truncation ~1e-6 relative,

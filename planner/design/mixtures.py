@@ -385,6 +385,7 @@ def choose_tests(
         & (ev.absorbance <= high - margin)
         & (fraction >= f_low)
         & (fraction <= f_high)
+        & ~candidates.padded
     )
     if exclude:
         eligible[list(exclude)] = False

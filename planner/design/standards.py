@@ -3,10 +3,19 @@
 The standards share one excess recipe (the same volumes of every reagent stock except the
 limiting one), so a single reagent blank, that excess without the limiting reagent, serves
 them all. For each excess recipe the standards are the candidates whose readings lie nearest
-to evenly spaced targets in the absorbance window; the recipe chosen is the one that keeps the
-limiting reagent bound to within ``assumption_tolerance`` (or, when no recipe can, the one
-that binds most), then hits the targets best, then needs fewest deliveries, then has the
-lowest predicted uncertainty.
+to evenly spaced targets in the absorbance window. The recipe chosen, in order of preference:
+
+1. keeps the limiting reagent bound to within ``assumption_tolerance``;
+2. gives as many standards as asked;
+3. uses the fewest stocks;
+4. has the lowest cost: the standards' mean miss of their targets (a fraction of the window)
+   plus :data:`BOUND_WEIGHT` times the unbound share of the limiting reagent, so the standards
+   both spread over the window and bind as much as the shelf allows (compared in steps of
+   :data:`COST_STEP`);
+5. hits the targets best, needs fewest deliveries, has the lowest predicted uncertainty.
+
+No standard pads a stock with another that adds under
+:data:`planner.design.candidates.MIN_REAGENT_SHARE` of a reagent (``CandidateSet.padded``).
 """
 
 from __future__ import annotations
@@ -21,6 +30,16 @@ from planner.inputs import PlanInputs
 
 __all__ = ["StandardsChoice", "absorbance_targets", "choose_standards"]
 
+#: Weight of the unbound share (1 - f) of the limiting reagent against the standards' mean
+#: miss of their targets (a fraction of the window) in the standards' cost. The all-bound K
+#: errs by about twice the unbound share (the default plan: 4 % unbound, K +7.5 %), so a
+#: recipe that binds 1 % more is worth standards 2 % of the window further from an even
+#: series, and no more (common practice: a wide, even calibration and a bound limiting
+#: reagent both matter).
+BOUND_WEIGHT = 2.0
+#: Step in which costs are compared [unitless]: closer costs count as equal, and fewer
+#: deliveries and lower uncertainty decide.
+COST_STEP = 0.005
 # Groups examined in full after ranking by attainable bound fraction (enough to contain every
 # distinct excess level of a shelf, and bounded so the search stays in milliseconds).
 _GROUPS_EXAMINED = 150
@@ -119,9 +138,9 @@ def choose_standards(
     # Every reading +/- 2 u(A) inside the window, so a real bench stays inside it.
     margin = 2.0 * candidates.u_absorbance
     in_window = (absorbance >= low + margin) & (absorbance <= high - margin)
-    usable = has_limiting & in_window & np.any(groups > 0, axis=1)
+    usable = has_limiting & in_window & ~candidates.padded & np.any(groups > 0, axis=1)
     if excess_columns and not np.any(usable):
-        usable = has_limiting & in_window
+        usable = has_limiting & in_window & ~candidates.padded
     if allowed is not None:
         usable &= allowed
     targets = absorbance_targets((low, high), design.standards)
@@ -139,15 +158,22 @@ def choose_standards(
     group_count = np.bincount(inverse, minlength=len(keys))
     order = np.lexsort((-group_count, -group_floor))[:_GROUPS_EXAMINED]
 
+    # Stocks each candidate uses besides the diluent (fewest stocks per mixture).
+    reagent_columns = [
+        j for j, sid in enumerate(candidates.stock_ids) if diluent is None or sid != diluent.id
+    ]
+    stock_count = np.count_nonzero(candidates.volumes_mL[:, reagent_columns] > 0, axis=1)
     by_group = np.argsort(inverse, kind="stable")
     starts = np.searchsorted(inverse[by_group], np.arange(len(keys) + 1))
     best: tuple[tuple[float, ...], list[int]] | None = None
     for g in order:
         members = indices[by_group[starts[g] : starts[g + 1]]]
-        # Nearest reading first; ties (within 1 % of the window) to fewer deliveries, then
-        # to the lower predicted relative uncertainty: one combined key per candidate.
-        tie_break = candidates.deliveries[members] * 10.0 + np.minimum(
-            candidates.u_relative_total[members, limiting], 1.0
+        # Nearest reading first; ties (within 1 % of the window) to fewer stocks, then fewer
+        # deliveries, then the lower predicted relative uncertainty: one key per candidate.
+        tie_break = (
+            stock_count[members] * 100.0
+            + candidates.deliveries[members] * 10.0
+            + np.minimum(candidates.u_relative_total[members, limiting], 1.0)
         )
         free = np.ones(members.size, dtype=bool)
         chosen: list[int] = []
@@ -162,12 +188,14 @@ def choose_standards(
         floor = float(np.min(evaluation.bound_fraction[chosen])) if chosen else 0.0
         met = floor >= 1.0 - tolerance
         miss_total = float(np.sum(np.abs(absorbance[chosen] - targets[: len(chosen)])) / width)
+        cost = miss_total / max(len(chosen), 1) + BOUND_WEIGHT * (1.0 - floor)
         # The all-bound assumption is what standards are for: a recipe that meets it beats
         # one with more standards that does not (the count shortfall is then a check).
         score = (
             0.0 if met else 1.0,
             -len(chosen),
-            0.0 if met else -floor,
+            float(np.sum(stock_count[chosen])),
+            float(np.round(cost / COST_STEP)),
             round(miss_total, 2),
             float(np.sum(candidates.deliveries[chosen])),
             float(np.sum(candidates.u_relative_total[chosen, limiting])),

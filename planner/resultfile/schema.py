@@ -234,9 +234,9 @@ class PlanDocument(_Model):
     schema_name: str = Field(alias="schema", description=f'the schema, "{SCHEMA}"')
     title: str = Field("", description="the plan's title, in double quotes")
     inputs: dict[str, Any] = Field(description="the validated plan, as an object")
-    mixtures: list[MixtureEntry] = Field(
-        min_length=1, description="the list of mixtures, each an object"
-    )
+    # A plan the shelf cannot make has no mixtures: it is still written, with the failed
+    # checks that say why (verify then fails its mixture-count check too).
+    mixtures: list[MixtureEntry] = Field(description="the list of mixtures, each an object")
     totals_mL: TotalsEntry = Field(
         description="an object { per_bench, per_section, session, to_prepare, dead_volume_mL }"
     )
