@@ -264,6 +264,10 @@ class Pooled:
         Fitted values and standard uncertainties (least-squares covariance).
     n_readings, n_benches
         Readings fitted (blank-subtracted standards and tests) and benches they came from.
+    includes_flagged
+        False: the benches that are ok. True: no bench was ok, so every analysed bench was
+        pooled (a class that disagrees with the plan as a whole, e.g. a K far from the
+        plan's, flags every bench; the pooled fit then says what the class measured).
     rms_residual
         Root mean square of the residuals [unitless].
     lack_of_fit_F, lack_of_fit_p, df_lack_of_fit, df_pure_error
@@ -279,6 +283,7 @@ class Pooled:
     u_K: float
     n_readings: int
     n_benches: int
+    includes_flagged: bool
     rms_residual: float
     lack_of_fit_F: float
     lack_of_fit_p: float
@@ -719,6 +724,9 @@ def _pooled(
     benches: Sequence[BenchResult],
 ) -> Pooled | None:
     ok = [b for b in benches if not b.flags]
+    includes_flagged = not ok
+    if not ok:
+        ok = [b for b in benches if math.isfinite(b.K_all_bound.value)]
     if not ok:
         return None
     numbers = sorted({b.section for b in ok})
@@ -758,6 +766,7 @@ def _pooled(
         u_K=fit.u_K,
         n_readings=n,
         n_benches=len(ok),
+        includes_flagged=includes_flagged,
         rms_residual=math.sqrt(fit.sum_of_squares / n) if n else _NAN,
         lack_of_fit_F=float(f_value),
         lack_of_fit_p=p_value,

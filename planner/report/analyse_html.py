@@ -105,6 +105,7 @@ def analysis_html(result: ClassAnalysis, *, readings: str, plan: str, plots: boo
             "u_epsilon": _v(pooled.u_epsilon),
             "n_readings": pooled.n_readings,
             "n_benches": pooled.n_benches,
+            "which": "analysed (none was ok)" if pooled.includes_flagged else "ok",
             "rms": _v(pooled.rms_residual),
             "F": _v(pooled.lack_of_fit_F),
             "p": _v(pooled.lack_of_fit_p),

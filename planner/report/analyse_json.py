@@ -152,6 +152,7 @@ def analysis_document(result: ClassAnalysis, *, readings: str, plan: str) -> dic
                 else {
                     "n_readings": pooled.n_readings,
                     "n_benches": pooled.n_benches,
+                    "includes_flagged": pooled.includes_flagged,
                     "rms_residual": _number(pooled.rms_residual),
                     "lack_of_fit": {
                         "F": _number(pooled.lack_of_fit_F),

@@ -91,9 +91,10 @@ def render_analysis(result: ClassAnalysis) -> Any:
             if math.isfinite(pooled.lack_of_fit_F)
             else "lack of fit not tested (no replicate benches)"
         )
+        which = "analysed (none was ok)" if pooled.includes_flagged else "ok"
         lines.append(
-            f"Pooled global fit of {pooled.n_readings} readings from {pooled.n_benches} ok "
-            f"benches: K = {_value(pooled.K)} (u {_value(pooled.u_K)}), eps = "
+            f"Pooled global fit of {pooled.n_readings} readings from {pooled.n_benches} "
+            f"{which} benches: K = {_value(pooled.K)} (u {_value(pooled.u_K)}), eps = "
             f"{_value(pooled.epsilon)} (u {_value(pooled.u_epsilon)}); RMS residual "
             f"{_value(pooled.rms_residual)}; {lack}. The plan assumes K = "
             f"{_value(result.K_true)}."
