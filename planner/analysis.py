@@ -34,6 +34,7 @@ evaluation.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -45,14 +46,18 @@ from planner.inputs import Instrument, Reaction
 __all__ = [
     "GlobalFitTable",
     "Layout",
+    "PooledFit",
     "all_bound_K",
     "all_bound_K_from_x",
     "all_bound_K_log_sensitivities",
     "all_bound_epsilon",
+    "all_bound_mean_K",
     "global_fit",
     "global_fit_batch",
     "global_fit_gain",
     "global_fit_jacobian",
+    "global_fit_residuals",
+    "global_fit_sets",
     "global_fit_start_offset",
     "global_fit_starts",
     "global_fit_table",
@@ -454,13 +459,155 @@ def global_fit_start_offset(
     return (float(fitted_eps[0] - eps[0]), float(math.log10(fitted_k[0] / k[0])))
 
 
+@dataclass(frozen=True, slots=True)
+class PooledFit:
+    """The global fit of several sets of readings at once (one eps and one K for all).
+
+    Attributes
+    ----------
+    epsilon, u_epsilon
+        Molar absorptivity of the measured product and its standard uncertainty
+        [L mol⁻¹ cm⁻¹].
+    K, u_K
+        Its formation constant (the measured species' beta, in its own units) and standard
+        uncertainty.
+    residuals
+        Per set, reading minus fitted value of each fitted row (standards, then tests, in its
+        layout's order), NaN where the set has no reading [unitless].
+    sum_of_squares
+        Sum of the squared residuals [unitless].
+    n_readings
+        Number of fitted (blank-subtracted) readings.
+    """
+
+    epsilon: float
+    u_epsilon: float
+    K: float
+    u_K: float
+    residuals: tuple[NDArray[np.float64], ...]
+    sum_of_squares: float
+    n_readings: int
+
+
+def global_fit_sets(
+    reaction: Reaction,
+    instrument: Instrument,
+    layouts: Sequence[Layout],
+    sets: Sequence[tuple[int, ArrayLike]],
+) -> PooledFit:
+    """One global fit of eps and K to several sets of readings, each with its own blank.
+
+    Each set is blank-subtracted with its own blank readings and compared with the model of
+    its own layout (benches of different sections make different mixtures), by least squares
+    on (eps, log10 K) with :func:`scipy.optimize.least_squares`, the forward model solved at
+    every evaluation. With one set this is :func:`global_fit`.
+
+    Parameters
+    ----------
+    reaction, instrument
+        The reaction and photometer every set shares.
+    layouts
+        The sets of mixtures the sets of readings follow; the first gives the fit's scale
+        and start (the plan's eps and K).
+    sets
+        (index into ``layouts``, readings): one reading per mixture of that layout, blank not
+        subtracted, NaN for a mixture not read [unitless]. Every set needs a blank reading.
+
+    Returns
+    -------
+    PooledFit
+        The fitted values with standard uncertainties from the least-squares covariance,
+        s^2 (J^T J)^-1 with s^2 = (sum of squared residuals) / (n - 2) (e.g. Bard, Nonlinear
+        Parameter Estimation, 1974, ch. 7, from memory); NaN uncertainties with fewer than
+        three readings.
+
+    Raises
+    ------
+    ValueError
+        A set without any blank reading (a programming error: callers leave such sets out).
+    """
+    from scipy.optimize import least_squares
+
+    logs = reaction.log_beta()
+    first = layouts[0]
+    scale = first.epsilon_true if first.epsilon_true > 0 else 1.0
+    prepared = []
+    for index, readings in sets:
+        layout = layouts[index]
+        data = np.asarray(readings, dtype=float)
+        blanks = layout.blanks[np.isfinite(data[layout.blanks])]
+        if blanks.size == 0:
+            raise ValueError("a set of readings without a blank reading cannot be fitted")
+        fit = _fitted_rows(layout)
+        rows = fit[np.isfinite(data[fit])]
+        prepared.append((index, blanks, rows, data[rows] - data[blanks].mean(), fit))
+    used = sorted({index for index, *_ in prepared})
+
+    def model(theta: NDArray[np.float64]) -> dict[int, NDArray[np.float64]]:
+        trial = logs.copy()
+        trial[first.measured] = theta[1]
+        epsilon = reaction.species_epsilon().copy()
+        epsilon[first.measured] = theta[0] * scale
+        return {
+            index: predict_readings(
+                reaction,
+                instrument,
+                layouts[index].totals_M,
+                log_beta=trial,
+                species_epsilon=epsilon,
+            ).absorbance
+            for index in used
+        }
+
+    def residuals(theta: NDArray[np.float64]) -> NDArray[np.float64]:
+        observed = model(theta)
+        parts = [
+            observed[index][rows] - observed[index][blanks].mean() - net
+            for index, blanks, rows, net, _ in prepared
+        ]
+        return np.concatenate(parts)
+
+    solution = least_squares(
+        residuals, np.array([1.0, logs[first.measured]]), method="lm", xtol=1e-14, ftol=1e-14
+    )
+    theta = solution.x
+    final = -np.asarray(solution.fun, dtype=float)  # reading minus fitted value
+    n = final.size
+    sum_of_squares = float(final @ final)
+    u_eps = u_lg = math.nan
+    if n > 2:
+        jacobian = np.asarray(solution.jac, dtype=float)
+        normal = jacobian.T @ jacobian
+        if np.all(np.isfinite(normal)) and np.linalg.cond(normal) < 1e14:
+            covariance = np.linalg.inv(normal) * sum_of_squares / (n - 2)
+            u_eps = math.sqrt(covariance[0, 0]) * scale
+            u_lg = math.sqrt(covariance[1, 1])
+    k = float(10.0 ** theta[1])
+    per_set = []
+    start = 0
+    for _, _, rows, _, fit in prepared:
+        full = np.full(fit.size, np.nan)
+        full[np.isin(fit, rows)] = final[start : start + rows.size]
+        per_set.append(full)
+        start += rows.size
+    return PooledFit(
+        epsilon=float(theta[0] * scale),
+        u_epsilon=u_eps,
+        K=k,
+        u_K=k * _LN10 * u_lg,
+        residuals=tuple(per_set),
+        sum_of_squares=sum_of_squares,
+        n_readings=n,
+    )
+
+
 def global_fit(
     reaction: Reaction, instrument: Instrument, layout: Layout, readings: ArrayLike
 ) -> tuple[float, float]:
     """The global fit of one set of readings with :func:`scipy.optimize.least_squares`.
 
     The reference for :func:`global_fit_batch`: the forward model is solved directly at every
-    evaluation, without the tabulation.
+    evaluation, without the tabulation (:func:`global_fit_sets` with one set).
 
     Parameters
     ----------
@@ -477,29 +624,44 @@ def global_fit(
     tuple of float
         (eps [L mol⁻¹ cm⁻¹], K) of the measured product species.
     """
-    from scipy.optimize import least_squares
+    fitted = global_fit_sets(reaction, instrument, [layout], [(0, readings)])
+    return fitted.epsilon, fitted.K
 
-    logs = reaction.log_beta()
-    fit = _fitted_rows(layout)
-    data = np.asarray(readings, dtype=float)
-    net = data[fit] - data[layout.blanks].mean()
+
+def global_fit_residuals(
+    table: GlobalFitTable,
+    layout: Layout,
+    instrument: Instrument,
+    net: NDArray[np.float64],
+    epsilon: NDArray[np.float64],
+    K: NDArray[np.float64],
+) -> NDArray[np.float64]:
+    """Reading minus fitted value of each fitted row, for fits by :func:`global_fit_batch`.
+
+    Parameters
+    ----------
+    table, layout, instrument
+        As for :func:`global_fit_batch`.
+    net
+        Blank-subtracted readings, shape (n_sets, n_mixtures) [unitless].
+    epsilon, K
+        The fitted values of each set, shape (n_sets,); NaN gives NaN residuals.
+
+    Returns
+    -------
+    NDArray[np.float64]
+        Shape (n_sets, n_fitted), standards then tests in layout order [unitless].
+    """
     scale = layout.epsilon_true if layout.epsilon_true > 0 else 1.0
-
-    def residuals(theta: NDArray[np.float64]) -> NDArray[np.float64]:
-        trial = logs.copy()
-        trial[layout.measured] = theta[1]
-        epsilon = reaction.species_epsilon().copy()
-        epsilon[layout.measured] = theta[0] * scale
-        observed = predict_readings(
-            reaction, instrument, layout.totals_M, log_beta=trial, species_epsilon=epsilon
-        ).absorbance
-        result: NDArray[np.float64] = observed[fit] - observed[layout.blanks].mean() - net
-        return result
-
-    solution = least_squares(
-        residuals, np.array([1.0, logs[layout.measured]]), method="lm", xtol=1e-14, ftol=1e-14
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lg = np.clip(np.log10(K), table.low, table.high)
+    theta = np.stack([np.asarray(epsilon, dtype=float) / scale, lg], axis=1)
+    with np.errstate(invalid="ignore"):
+        model_minus_data, _, _ = _residuals(table, layout, instrument, theta, net, scale)
+    result: NDArray[np.float64] = np.where(
+        np.isfinite(K)[:, None] & np.isfinite(epsilon)[:, None], -model_minus_data, np.nan
     )
-    return float(solution.x[0] * scale), float(10.0 ** solution.x[1])
+    return result
 
 
 # Relative step of the central differences of :func:`global_fit_jacobian` (in log10 K and in

@@ -647,6 +647,84 @@ def variants(
     _run(body)
 
 
+@app.command(
+    epilog=(
+        "Examples:\n\n"
+        "  planner analyse readings.csv --plan sheets/\n\n"
+        "  planner analyse readings.csv --plan week3/ --format json > analysis.json\n\n"
+        "  planner analyse readings.csv --plan sheets/ --out marked/"
+    )
+)
+def analyse(
+    readings_file: Annotated[
+        Path,
+        typer.Argument(
+            help="The class's readings (CSV: section,bench,replicate,mixture,absorbance, as "
+            "readings-template.csv; at most 8 MiB)."
+        ),
+    ],
+    plan_folder: Annotated[
+        Path,
+        typer.Option(
+            "--plan",
+            help="The folder planner plan --out wrote (plan.json), or planner variants --out "
+            "(section-NN/plan.json: each section against its own plan).",
+        ),
+    ],
+    output_format: _FormatOption = OutputFormat.text,
+    out: Annotated[
+        Path | None,
+        typer.Option(
+            "--out",
+            help="Folder for the report (analysis.html), analysis.json and a CSV per bench.",
+        ),
+    ] = None,
+    force: _ForceOption = False,
+    quiet: _QuietOption = False,
+) -> None:
+    """Read a class's readings back against the plan: which benches went wrong, and how.
+
+    Analyses every bench by the all-bound analysis and by the global fit, compares it with
+    its section's answer key and flags what is off, each flag with its likely cause and the
+    evidence; then the class: K by both analyses against the prediction, and one global fit
+    of every reading of the benches that are ok. Rows that cannot be used are listed, never
+    dropped. Exit status 0 when every bench is ok, 1 when any is flagged, 2 when the files
+    cannot be used.
+    """
+
+    def body() -> int:
+        from planner.readings import analyse_class, load_plans, load_readings
+
+        plans = load_plans(plan_folder)
+        table = load_readings(readings_file, plans)
+        _check_out(out, force=force, file=readings_file)
+        result = analyse_class(plans, table)
+        if out is not None:
+            from planner.report.analyse_html import analysis_files
+            from planner.report.outdir import write_output_folder
+
+            with _private_plot_caches():
+                files = analysis_files(result, readings=str(readings_file), plan=str(plan_folder))
+            write_output_folder(out, files, force=force, protect=(readings_file,))
+        if quiet:
+            pass
+        elif output_format is OutputFormat.json:
+            from planner.report.analyse_json import analysis_json
+
+            _write_stdout(analysis_json(result, readings=str(readings_file), plan=str(plan_folder)))
+        else:
+            from rich.console import Console
+
+            from planner.report.analyse_text import render_analysis
+
+            Console(highlight=False).print(render_analysis(result))
+        if out is not None and not quiet:
+            _tell(f"wrote {out}/")
+        return EXIT_CHECK_FAILED if result.flagged else EXIT_OK
+
+    _run(body)
+
+
 #: Trials from which the simulate command shows a progress bar on stderr.
 _PROGRESS_FROM_TRIALS = 20_000
 

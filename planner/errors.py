@@ -25,6 +25,7 @@ __all__ = [
     "OutputError",
     "PlanFileError",
     "PlannerError",
+    "ReadingsFileError",
     "ResultFileError",
     "shown",
     "shown_field",
@@ -150,6 +151,10 @@ class PlanFileError(InvalidInputError):
 
 class ResultFileError(InvalidInputError):
     """A saved plan result (``plan.json``) cannot be read for verification."""
+
+
+class ReadingsFileError(InvalidInputError):
+    """A class's readings file (CSV for ``planner analyse``) cannot be read."""
 
 
 class ConvergenceError(PlannerError):

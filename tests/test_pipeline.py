@@ -117,6 +117,7 @@ _RANKS = {
     "fileio": 5,
     "planfile": 5,
     "resultfile": 6,
+    "readings": 6,
     "report": 7,
     "cli": 8,
     "__init__": 8,

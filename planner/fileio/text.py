@@ -7,13 +7,15 @@ import stat
 from dataclasses import dataclass
 from typing import NoReturn
 
-from planner.errors import PlanFileError, PlannerError, ResultFileError
+from planner.errors import PlanFileError, PlannerError, ReadingsFileError, ResultFileError
 
 __all__ = [
     "MAX_PLAN_FILE_BYTES",
+    "MAX_READINGS_FILE_BYTES",
     "MAX_RESULT_FILE_BYTES",
     "PLAN_FILE",
     "PLAN_RESULT",
+    "READINGS_FILE",
     "FileKind",
     "read_text",
 ]
@@ -27,6 +29,11 @@ MAX_PLAN_FILE_BYTES = 2**20
 #: under 1 MB for 210 mixtures of 12 stocks, and it repeats the plan file's text (its title
 #: twice), so its limit is larger than a plan file's.
 MAX_RESULT_FILE_BYTES = 8 * 2**20
+
+#: Largest readings file (CSV) read by planner analyse [bytes], 8 MiB. A row is about 20
+#: bytes: the largest session (100 sections, tens of benches, replicates, some twenty
+#: mixtures) is a few megabytes, a class of 30 benches about 7 kB.
+MAX_READINGS_FILE_BYTES = 8 * 2**20
 
 
 @dataclass(frozen=True, slots=True)
@@ -58,6 +65,11 @@ PLAN_RESULT = FileKind(
     "plan result", ResultFileError, MAX_RESULT_FILE_BYTES, "tens to hundreds of kilobytes"
 )
 
+#: A class's readings, CSV (planner analyse).
+READINGS_FILE = FileKind(
+    "readings file", ReadingsFileError, MAX_READINGS_FILE_BYTES, "a few to hundreds of kilobytes"
+)
+
 
 def read_text(name: str, kind: FileKind) -> str:
     """A UTF-8 text file (byte-order mark allowed), or ``kind.error`` naming the path.
@@ -71,7 +83,7 @@ def read_text(name: str, kind: FileKind) -> str:
     name
         The path, as the user gave it (quoted in messages).
     kind
-        What the file is: :data:`PLAN_FILE` or :data:`PLAN_RESULT`.
+        What the file is: :data:`PLAN_FILE`, :data:`PLAN_RESULT` or :data:`READINGS_FILE`.
 
     Returns
     -------

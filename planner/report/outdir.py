@@ -43,6 +43,7 @@ from planner.report.sheets import (
     mixtures_csv,
     prep_sheet_html,
     prep_sheet_md,
+    readings_template_csv,
 )
 from planner.result import Plan
 
@@ -115,6 +116,8 @@ def plan_files(
     -------
     dict
         Relative file name -> text (bytes for the plots): ``plan.json``, ``mixtures.csv``,
+        ``readings-template.csv`` (one row per section, bench, replicate and mixture, for
+        ``planner analyse``),
         ``prep-sheet.md`` and ``.html``, ``answer-key.md`` and ``.html``,
         ``bench-sheets.html`` (every pipetting sheet, one per page), ``plots/*.png`` and
         ``plots/*.svg`` with ``plots``, and ``benches/section-NN-bench-NN.md`` and ``.html``
@@ -136,6 +139,9 @@ def plan_files(
     files: dict[str, str | bytes] = {
         "plan.json": plan_json(plan),
         "mixtures.csv": mixtures_csv(plan),
+        "readings-template.csv": readings_template_csv(
+            [(number, plan) for number in sorted({slot.section for slot in slots})]
+        ),
         "prep-sheet.md": prep_sheet_md(plan, date=date),
         "prep-sheet.html": prep_sheet_html(plan, date=date),
         "answer-key.md": answer_key_md(plan, date=date, plots=stems),

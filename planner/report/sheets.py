@@ -50,6 +50,7 @@ from planner.report.plan_json import checks_worst_first
 from planner.result import Plan, Role, StockRole
 
 __all__ = [
+    "READINGS_COLUMNS",
     "BenchSlot",
     "answer_key_html",
     "answer_key_md",
@@ -58,6 +59,7 @@ __all__ = [
     "mixtures_csv",
     "prep_sheet_html",
     "prep_sheet_md",
+    "readings_template_csv",
 ]
 
 
@@ -882,4 +884,37 @@ def mixtures_csv(plan: Plan) -> str:
             *(m.equilibrium_M.get(name, 0.0) for name in species),
         ]
         writer.writerow([csv_text(m.id), csv_text(m.role), *(_csv_number(x) for x in numbers)])
+    return buffer.getvalue()
+
+
+#: The columns of the readings template, in order; ``planner analyse`` reads the same names.
+READINGS_COLUMNS = ("section", "bench", "replicate", "mixture", "absorbance")
+
+
+def readings_template_csv(sections: Sequence[tuple[int, Plan]]) -> str:
+    """The readings template: one row per section, bench, replicate and mixture.
+
+    Parameters
+    ----------
+    sections
+        (section number, the plan that section makes), in order: every section of a plan,
+        or one plan per section for variants.
+
+    Returns
+    -------
+    str
+        Columns :data:`READINGS_COLUMNS`; the absorbance is empty, to be filled in. Rows go
+        section by section, bench by bench, replicate by replicate, and then mixture by
+        mixture in the order of the bench sheet, so that the file is typed in as the sheet
+        is read. Lines end in ``\\n``.
+    """
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n", quoting=csv.QUOTE_MINIMAL)
+    writer.writerow(READINGS_COLUMNS)
+    for number, plan in sections:
+        session = plan.inputs.session
+        for bench in range(1, session.benches_per_section + 1):
+            for replicate in range(1, session.replicates + 1):
+                for m in plan.mixtures:
+                    writer.writerow([number, bench, replicate, csv_text(m.id), ""])
     return buffer.getvalue()

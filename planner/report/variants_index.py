@@ -9,7 +9,7 @@ from planner.design.variants import DISTINCTNESS_CHECK, shared_tests
 from planner.report._format import percent, significant
 from planner.report.cautions import cautions_for
 from planner.report.outdir import plan_files
-from planner.report.sheets import _render, prep_sheet_html, prep_sheet_md
+from planner.report.sheets import _render, prep_sheet_html, prep_sheet_md, readings_template_csv
 from planner.result import Plan
 
 __all__ = ["variants_files"]
@@ -40,7 +40,9 @@ def variants_files(
     shares a test recipe with), the whole session's checks that did not pass and its
     ``section-distinctness`` check (how many distinct test sets the shelf allows), and
     ``prep-sheet.md``/``.html`` give the stock totals of all sections together
-    (``combined``, from :func:`planner.pipeline.combined_plan`).
+    (``combined``, from :func:`planner.pipeline.combined_plan`);
+    ``readings-template.csv`` lists every section's benches and mixtures for ``planner
+    analyse``.
     """
     width = max(2, len(str(len(plans))))
     partners: dict[int, list[int]] = {n: [] for n in range(1, len(plans) + 1)}
@@ -88,6 +90,7 @@ def variants_files(
     }
     files["index.md"] = _render("variants.md", **context)
     files["index.html"] = _render("variants.html", **context)
+    files["readings-template.csv"] = readings_template_csv(list(enumerate(plans, start=1)))
     files["prep-sheet.md"] = prep_sheet_md(together, date=date)
     files["prep-sheet.html"] = prep_sheet_html(together, date=date)
     return files

@@ -249,8 +249,9 @@ def test_markdown_stock_ids_and_species_read_as_written(hostile):
     header = re.search(r"<thead>\s*<tr>(.*?)</tr>", rendered, re.DOTALL)
     assert header is not None
     cells = re.findall(r"<th[^>]*>(.*?)</th>", header[1], re.DOTALL)
-    # Mixture, one column per stock in order of addition, Total: the pipe in an id adds none.
-    assert len(cells) == 2 + len(STOCK_IDS)
+    # Mixture, one column per stock in order of addition, Total, Reading: the pipe in an id
+    # adds none.
+    assert len(cells) == 3 + len(STOCK_IDS)
     for new_id in STOCK_IDS.values():
         assert any(new_id in cell for cell in cells), new_id
 

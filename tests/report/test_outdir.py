@@ -65,6 +65,7 @@ def test_plan_files_one_sheet_per_bench(plan):
     for name in (
         "plan.json",
         "mixtures.csv",
+        "readings-template.csv",
         "prep-sheet.md",
         "prep-sheet.html",
         "answer-key.md",

@@ -20,6 +20,7 @@ from planner.report.sheets import (
     mixtures_csv,
     prep_sheet_html,
     prep_sheet_md,
+    readings_template_csv,
 )
 from planner.result import Addition
 from tests.report.conftest import PRECISE_VOLUME_mL, make_inputs, make_plan
@@ -326,3 +327,45 @@ def test_csv_sums_repeated_additions(plan):
 
 def test_sheets_are_deterministic():
     assert _sheets(make_plan()) == _sheets(make_plan())
+
+
+# ---------------------------------------------------------------------------------------------
+# The readings template and the bench sheet's reading column
+# ---------------------------------------------------------------------------------------------
+
+
+def _with_replicates(plan, replicates):
+    session = dataclasses.replace(plan.inputs.session, replicates=replicates)
+    return dataclasses.replace(plan, inputs=dataclasses.replace(plan.inputs, session=session))
+
+
+def test_readings_template_has_a_row_per_section_bench_replicate_and_mixture():
+    plan = _with_replicates(make_plan(), 2)  # 2 sections x 3 benches x 2 replicates x 5
+    rows = list(csv.reader(io.StringIO(readings_template_csv([(1, plan), (2, plan)]))))
+    assert rows[0] == ["section", "bench", "replicate", "mixture", "absorbance"]
+    body = rows[1:]
+    assert len(body) == 2 * 3 * 2 * len(IDS)
+    # Section, then bench, then replicate, then the mixtures in sheet order; absorbance empty.
+    assert body[: len(IDS)] == [["1", "1", "1", m, ""] for m in IDS]
+    assert body[len(IDS)] == ["1", "1", "2", "B1", ""]
+    assert body[-1] == ["2", "3", "2", "T2", ""]
+    keys = {tuple(r[:4]) for r in body}
+    assert len(keys) == len(body)
+
+
+def test_readings_template_numbers_a_variant_section_by_its_own_number():
+    rows = list(csv.reader(io.StringIO(readings_template_csv([(7, make_plan())]))))
+    assert {r[0] for r in rows[1:]} == {"7"}
+
+
+def test_bench_sheet_has_a_reading_column_per_replicate():
+    one = bench_sheet_md(make_plan(), date=DATE, slot=BenchSlot(1, 2))
+    header = next(line for line in one.splitlines() if line.startswith("| Mixture"))
+    assert header.rstrip().endswith("Total | Reading |")
+    row = next(line for line in one.splitlines() if line.startswith("| T2"))
+    assert row.rstrip().endswith("| ______ |")
+    two = bench_sheet_md(_with_replicates(make_plan(), 2), date=DATE, slot=BenchSlot(1, 2))
+    assert "| Reading 1 | Reading 2 |" in two
+    html = bench_sheet_html(_with_replicates(make_plan(), 2), date=DATE, slots=[BenchSlot(1, 2)])
+    assert html.count('<th class="reading">') == 2
+    assert html.count('<td class="reading"></td>') == 2 * len(IDS)

@@ -1,0 +1,974 @@
+"""A class's readings against the plan: each bench analysed, flagged, explained; the class pooled.
+
+Pure functions from readings (:mod:`planner.readings.table`) and saved plans
+(:class:`planner.resultfile.SavedPlan`, one per section) to :class:`ClassAnalysis`. Every
+number comes from the two analyses of :mod:`planner.analysis` (the all-bound analysis and the
+global fit, vectorised over the benches of a section), and every predicted range from the
+saved plan (``plan.json``): each mixture's reading and u(A), the ``prediction`` block (eps, K
+and, when the plan states them, K per test) and the ``global_fit_prediction`` block.
+
+Flag rules (each a :class:`Flag` with its threshold and source; ``docs/guide.md`` lists them):
+
+``missing-mixture``
+    A mixture of the plan has no accepted reading (an empty cell or a rejected row).
+``reading-outside-window``
+    A standard or test reading outside the photometer's linear window (the plan's
+    ``instrument.absorbance_window``).
+``standard-off-line``
+    A standard off the standard line through the other standards (the plan's all-bound
+    analysis), or off the bench's global fit (a plan designed for the global fit, whose
+    standards need not lie on a line), by more than :data:`OFF_LINE_U` standard
+    uncertainties of that residual (propagated from the plan's u(A)), Bonferroni-corrected
+    over the bench's standards.
+``readings-scaled``
+    Every reading scaled by one factor: the least-squares factor between the bench's
+    blank-subtracted readings and the predicted ones differs from 1 by more than
+    :data:`COVERAGE_FLAG` u(eps)/eps while every standard lies on its line.
+``test-K-outside-range``
+    A test's all-bound K more than :data:`COVERAGE_FLAG` of its predicted standard
+    uncertainties from its predicted value, Bonferroni-corrected over the bench's tests.
+``K-trend-with-bound-fraction``
+    The tests' all-bound K rise or fall with their bound fraction beyond what the plan
+    predicts: the weighted slope of K minus its predicted value against bound fraction is
+    more than :data:`TREND_T` standard errors from zero (weights from the predicted u(K) of
+    each test).
+``global-fit-failed``
+    The global fit did not converge inside 1.5 decades of the plan's K.
+
+Coverage: a flag fires at 3 standard uncertainties (about 99.7 % for a normal variable,
+JCGM 100:2008, G.1.3, from memory), so that a class of thirty benches with six rules each
+raises few false flags; the 95 % ranges of the answer key are reported beside every value.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+from numpy.typing import NDArray
+
+from planner.analysis import (
+    GlobalFitTable,
+    Layout,
+    all_bound_epsilon,
+    all_bound_mean_K,
+    global_fit_batch,
+    global_fit_residuals,
+    global_fit_sets,
+    global_fit_start_offset,
+    global_fit_starts,
+    global_fit_table,
+)
+from planner.errors import InvalidInputError
+from planner.predict._experiment import bench_experiment
+from planner.readings.table import BenchKey, Reading, ReadingsTable, Rejection
+from planner.result import COVERAGE_FACTOR_95
+from planner.resultfile import SavedPlan
+
+__all__ = [
+    "COVERAGE_FLAG",
+    "OFF_LINE_U",
+    "TREND_T",
+    "BenchResult",
+    "ClassAnalysis",
+    "ClassStatistic",
+    "Estimate",
+    "Flag",
+    "MixtureResult",
+    "Pooled",
+    "analyse_class",
+]
+
+#: A standard this many u(A) off its line is flagged (common practice: 3 sigma).
+OFF_LINE_U = 3.0
+#: Coverage factor of the flag rules on eps and K (common practice: 3 sigma).
+COVERAGE_FLAG = 3.0
+#: |slope / standard error| of K against bound fraction that flags a trend (common practice).
+TREND_T = 3.0
+
+Status = Literal["ok", "flagged"]
+
+
+@dataclass(frozen=True, slots=True)
+class Flag:
+    """One finding on a bench: what rule fired, its likely cause and the evidence.
+
+    Attributes
+    ----------
+    rule
+        The rule's name (see the module notes).
+    mixtures
+        The mixtures concerned (empty when the whole bench is).
+    cause
+        The likely cause, in words.
+    evidence
+        The numbers that fired the rule.
+    threshold
+        The rule's threshold and its source.
+    """
+
+    rule: str
+    mixtures: tuple[str, ...]
+    cause: str
+    evidence: str
+    threshold: str
+
+
+@dataclass(frozen=True, slots=True)
+class Estimate:
+    """A bench's value beside the range its section's answer key gives.
+
+    Attributes
+    ----------
+    value
+        The bench's value (NaN when it cannot be computed).
+    predicted
+        The predicted value (NaN when the plan has no prediction).
+    low, high
+        The predicted 95 % range (NaN when none).
+    """
+
+    value: float
+    predicted: float
+    low: float
+    high: float
+
+    @property
+    def inside(self) -> bool | None:
+        """Whether the value lies in the predicted range; None when either is missing."""
+        if not (math.isfinite(self.value) and math.isfinite(self.low)):
+            return None
+        return self.low <= self.value <= self.high
+
+
+@dataclass(frozen=True, slots=True)
+class MixtureResult:
+    """One mixture of a bench.
+
+    Attributes
+    ----------
+    id, role
+        The mixture.
+    reading
+        The bench's reading, NaN when missing [unitless].
+    expected
+        Its predicted reading and 95 % range (plan.json: absorbance -/+ 1.96 u(A)).
+    u_absorbance
+        The plan's u(A) [unitless].
+    residual
+        Reading minus the bench's global fit (blank-subtracted), NaN for the blank, a missing
+        reading or a failed fit [unitless].
+    line_residual
+        Standards: reading minus the standard line through the other standards, NaN
+        otherwise [unitless].
+    u_residual
+        Standards: the standard uncertainty of that residual (or, on a plan designed for
+        the global fit, of the global-fit residual), propagated from the plan's u(A) of the
+        readings it is made of; NaN otherwise [unitless].
+    K
+        Tests: the all-bound K of this test and its predicted range; NaN otherwise.
+    bound_fraction
+        The plan's bound fraction of the limiting reagent [unitless].
+    """
+
+    id: str
+    role: str
+    reading: float
+    expected: Estimate
+    u_absorbance: float
+    residual: float
+    line_residual: float
+    u_residual: float
+    K: Estimate
+    bound_fraction: float
+
+
+@dataclass(frozen=True, slots=True)
+class BenchResult:
+    """One bench's set of mixtures, analysed.
+
+    Attributes
+    ----------
+    section, bench, replicate
+        Which set.
+    epsilon_all_bound, K_all_bound
+        The all-bound analysis (curve through the origin, K averaged over the tests) beside
+        the plan's ``prediction``.
+    epsilon_global_fit, K_global_fit
+        The global fit beside the plan's ``global_fit_prediction``.
+    scale
+        Least-squares factor between the blank-subtracted readings and the predicted ones
+        (NaN when it cannot be computed) [unitless].
+    mixtures
+        Every mixture of the plan, in plan order.
+    flags
+        What was found.
+    rows
+        Rows of the readings file this bench's readings came from.
+    """
+
+    section: int
+    bench: int
+    replicate: int
+    epsilon_all_bound: Estimate
+    K_all_bound: Estimate
+    epsilon_global_fit: Estimate
+    K_global_fit: Estimate
+    scale: float
+    mixtures: tuple[MixtureResult, ...]
+    flags: tuple[Flag, ...]
+    rows: tuple[int, ...]
+
+    @property
+    def status(self) -> Status:
+        """``ok`` without flags, else ``flagged``."""
+        return "flagged" if self.flags else "ok"
+
+
+@dataclass(frozen=True, slots=True)
+class ClassStatistic:
+    """A quantity over the class's accepted benches, beside the prediction.
+
+    Attributes
+    ----------
+    n
+        Benches with a value.
+    mean, sd
+        Mean and sample standard deviation (NaN below two benches).
+    low, high
+        mean -/+ 1.96 SD: the range the class's benches spread over, 95 % if normal.
+    predicted, predicted_low, predicted_high
+        The sections' predicted value (their mean) and the envelope of their 95 % ranges.
+    """
+
+    n: int
+    mean: float
+    sd: float
+    low: float
+    high: float
+    predicted: float
+    predicted_low: float
+    predicted_high: float
+
+
+@dataclass(frozen=True, slots=True)
+class Pooled:
+    """The global fit of every accepted reading of the class at once.
+
+    Attributes
+    ----------
+    epsilon, u_epsilon, K, u_K
+        Fitted values and standard uncertainties (least-squares covariance).
+    n_readings, n_benches
+        Readings fitted (blank-subtracted standards and tests) and benches they came from.
+    includes_flagged
+        False: the benches that are ok. True: no bench was ok, so every analysed bench was
+        pooled (a class that disagrees with the plan as a whole, e.g. a K far from the
+        plan's, flags every bench; the pooled fit then says what the class measured).
+    rms_residual
+        Root mean square of the residuals [unitless].
+    lack_of_fit_F, lack_of_fit_p, df_lack_of_fit, df_pure_error
+        The lack-of-fit F test with the benches of a section as replicates (Draper and
+        Smith, Applied Regression Analysis, 3rd ed., 1998, section 2.1, from memory): the
+        spread of each mixture's mean about the model against the spread of the benches
+        about each mixture's mean. NaN (and dfs of 0) when there are no replicates.
+    """
+
+    epsilon: float
+    u_epsilon: float
+    K: float
+    u_K: float
+    n_readings: int
+    n_benches: int
+    includes_flagged: bool
+    rms_residual: float
+    lack_of_fit_F: float
+    lack_of_fit_p: float
+    df_lack_of_fit: int
+    df_pure_error: int
+
+
+@dataclass(frozen=True, slots=True)
+class ClassAnalysis:
+    """A class's readings, analysed.
+
+    Attributes
+    ----------
+    benches
+        Every bench's set of mixtures with at least one reading, by section, bench, replicate.
+    rejections
+        Rows of the readings file left out, and why.
+    unmeasured
+        (section, bench, replicate) of sets whose cells are all empty.
+    K_all_bound, K_global_fit, epsilon_all_bound, epsilon_global_fit
+        Over the benches that are ok.
+    pooled
+        The pooled global fit of the ok benches' readings, or None when no bench is ok.
+    K_true
+        The K the plan assumes (the measured species' beta).
+    sections
+        The sections analysed.
+    """
+
+    benches: tuple[BenchResult, ...]
+    rejections: tuple[Rejection, ...]
+    unmeasured: tuple[BenchKey, ...]
+    K_all_bound: ClassStatistic
+    K_global_fit: ClassStatistic
+    epsilon_all_bound: ClassStatistic
+    epsilon_global_fit: ClassStatistic
+    pooled: Pooled | None
+    K_true: float
+    sections: tuple[int, ...]
+
+    @property
+    def flagged(self) -> bool:
+        """True when any bench is flagged."""
+        return any(b.flags for b in self.benches)
+
+
+# ---------------------------------------------------------------------------------------------
+# What each section's plan predicts
+# ---------------------------------------------------------------------------------------------
+
+_NAN = math.nan
+_NO_RANGE = (_NAN, _NAN)
+
+
+def _range(value: float, u: float) -> tuple[float, float]:
+    half = COVERAGE_FACTOR_95 * u
+    return (value - half, value + half)
+
+
+def _u_of(interval: tuple[float, float]) -> float:
+    """The standard uncertainty behind a 95 % range (half-width / 1.96)."""
+    return (interval[1] - interval[0]) / (2.0 * COVERAGE_FACTOR_95)
+
+
+@dataclass(frozen=True, slots=True)
+class _Section:
+    """One section's plan as the analysis needs it."""
+
+    saved: SavedPlan
+    layout: Layout
+    ids: tuple[str, ...]
+    roles: tuple[str, ...]
+    predicted: NDArray[np.float64]
+    u_absorbance: NDArray[np.float64]
+    bound_fraction: NDArray[np.float64]
+    epsilon_all_bound: tuple[float, float, float]
+    K_all_bound: tuple[float, float, float]
+    K_tests: tuple[tuple[float, float, float], ...]
+    epsilon_global_fit: tuple[float, float, float]
+    K_global_fit: tuple[float, float, float]
+
+
+def _test_ranges(saved: SavedPlan) -> tuple[tuple[float, float, float], ...]:
+    """Each test's predicted all-bound K and 95 % range.
+
+    plan.json states each test's K; its range is taken from the plan when the plan states it
+    (``K_per_test_ci95``), else from the first-order budget of the saved recipes
+    (:func:`planner.predict.uncertainty.propagate`, the budget that printed the answer key).
+    """
+    prediction = saved.prediction
+    if prediction is None:
+        return ()
+    ranges: Sequence[tuple[float, float]] = prediction.K_per_test_ci95
+    if not ranges:
+        from planner.predict.uncertainty import propagate
+
+        try:
+            budget = propagate(saved.inputs, saved.mixtures)
+        except InvalidInputError:
+            return ()
+        ranges = [_range(k, u) for k, u in budget.K_per_test]
+    return tuple(
+        (k, low, high) for k, (low, high) in zip(prediction.K_per_test, ranges, strict=False)
+    )
+
+
+def _section(saved: SavedPlan) -> _Section:
+    ex = bench_experiment(saved.inputs, saved.mixtures)
+    p = saved.prediction
+    g = saved.global_fit
+    if p is not None:
+        eps_range = p.epsilon_ci95 or _range(p.epsilon, p.u_epsilon)
+        k_range = p.K_ci95 or _range(p.K, p.u_K)
+        eps_ab = (p.epsilon, *eps_range)
+        k_ab = (p.K, *k_range)
+    else:
+        eps_ab = k_ab = (_NAN, *_NO_RANGE)
+    return _Section(
+        saved=saved,
+        layout=ex.layout,
+        ids=tuple(m.id for m in saved.mixtures),
+        roles=tuple(m.role for m in saved.mixtures),
+        predicted=np.array([m.absorbance for m in saved.mixtures]),
+        u_absorbance=np.array([m.u_absorbance for m in saved.mixtures]),
+        bound_fraction=np.array([m.bound_fraction for m in saved.mixtures]),
+        epsilon_all_bound=eps_ab,
+        K_all_bound=k_ab,
+        K_tests=_test_ranges(saved),
+        epsilon_global_fit=(g.epsilon, *g.epsilon_ci95) if g else (_NAN, *_NO_RANGE),
+        K_global_fit=(g.K, *g.K_ci95) if g else (_NAN, *_NO_RANGE),
+    )
+
+
+def _estimate(value: float, predicted: tuple[float, float, float]) -> Estimate:
+    return Estimate(float(value), *predicted)
+
+
+# ---------------------------------------------------------------------------------------------
+# The benches of one section, by the pattern of readings they have
+# ---------------------------------------------------------------------------------------------
+
+
+def _sub_layout(layout: Layout, rows: NDArray[np.int64]) -> Layout:
+    """The layout of the mixtures ``rows`` only (a bench with missing readings)."""
+    position = {int(r): i for i, r in enumerate(rows)}
+
+    def keep(indices: NDArray[np.int64]) -> NDArray[np.int64]:
+        return np.array([position[int(i)] for i in indices if int(i) in position], dtype=np.int64)
+
+    return Layout(
+        totals_M=layout.totals_M[rows],
+        blanks=keep(layout.blanks),
+        standards=keep(layout.standards),
+        tests=keep(layout.tests),
+        limiting=layout.limiting,
+        excess=layout.excess,
+        measured=layout.measured,
+        epsilon_true=layout.epsilon_true,
+        K_true=layout.K_true,
+    )
+
+
+@dataclass(frozen=True, slots=True)
+class _Fits:
+    """Both analyses of a group of benches with the same mixtures read (one row per bench)."""
+
+    epsilon_all_bound: NDArray[np.float64]
+    K_tests: NDArray[np.float64]  # (n, n_tests of the sub-layout)
+    epsilon_global_fit: NDArray[np.float64]
+    K_global_fit: NDArray[np.float64]
+    residuals: NDArray[np.float64]  # (n, n_fitted of the sub-layout)
+    line_residuals: NDArray[np.float64]  # (n, n_standards of the sub-layout)
+    line_u: NDArray[np.float64]  # (n_standards,): u of each line residual
+
+
+def _analyse_group(
+    section: _Section, rows: NDArray[np.int64], readings: NDArray[np.float64]
+) -> _Fits:
+    inputs = section.saved.inputs
+    instrument = inputs.instrument
+    b = instrument.path_length_cm
+    layout = _sub_layout(section.layout, rows)
+    n = readings.shape[0]
+    net = readings - readings[:, layout.blanks].mean(axis=1, keepdims=True)
+    eps, k_tests = all_bound_mean_K(layout, net, b)
+    with np.errstate(invalid="ignore"):
+        k_mean = k_tests.mean(axis=1)
+    fitted = layout.standards.size + layout.tests.size
+    if fitted >= 2:
+        table: GlobalFitTable = global_fit_table(inputs.reaction, instrument, layout)
+        offset = global_fit_start_offset(table, layout, instrument, section.predicted[rows])
+        starts = global_fit_starts(table, layout, eps, k_mean, offset)
+        eps_gf, k_gf = global_fit_batch(table, layout, instrument, net, starts)
+        residuals = global_fit_residuals(table, layout, instrument, net, eps_gf, k_gf)
+    else:
+        eps_gf = k_gf = np.full(n, np.nan)
+        residuals = np.full((n, fitted), np.nan)
+    # Each standard against the line through the others (the all-bound standard curve).
+    std = layout.standards
+    limiting = layout.totals_M[std, layout.limiting]
+    u_a = section.u_absorbance[rows]
+    line = np.full((n, std.size), np.nan)
+    line_u = np.full(std.size, np.nan)
+    for j in range(std.size if std.size >= 2 else 0):
+        others = np.delete(np.arange(std.size), j)
+        slope = all_bound_epsilon(
+            np.broadcast_to(limiting[others], (n, others.size)), net[:, std[others]], b
+        )
+        line[:, j] = net[:, std[j]] - slope * b * limiting[j]
+        # The residual is linear in the readings: r = A_j - L_j sum(L_i A_i)/sum(L_i^2) -
+        # (1 - L_j sum(L_i)/sum(L_i^2)) mean(A_blank); with independent readings of the
+        # plan's u(A), u(r)^2 is the sum of squared coefficients times u(A)^2 (JCGM 100:2008,
+        # eq. 10).
+        l_others = limiting[others]
+        s2 = float(l_others @ l_others)
+        blank_coefficient = (1.0 - limiting[j] * l_others.sum() / s2) / layout.blanks.size
+        line_u[j] = math.sqrt(
+            u_a[std[j]] ** 2
+            + float(((limiting[j] * l_others / s2) ** 2 * u_a[std[others]] ** 2).sum())
+            + float((blank_coefficient**2 * u_a[layout.blanks] ** 2).sum())
+        )
+    return _Fits(eps, k_tests, eps_gf, k_gf, residuals, line, line_u)
+
+
+# ---------------------------------------------------------------------------------------------
+# Flags
+# ---------------------------------------------------------------------------------------------
+
+
+def _g(value: float) -> str:
+    return f"{value:.4g}"
+
+
+def _flags(
+    section: _Section,
+    mixtures: Sequence[MixtureResult],
+    missing: Sequence[str],
+    scale: float,
+    gf_failed: bool,
+) -> tuple[Flag, ...]:
+    inputs = section.saved.inputs
+    flags: list[Flag] = []
+    if missing:
+        flags.append(
+            Flag(
+                "missing-mixture",
+                tuple(missing),
+                "not measured, or its row was rejected (see the rejected rows)",
+                f"no reading of {', '.join(missing)}",
+                "any mixture of the plan without a reading",
+            )
+        )
+    low, high = inputs.instrument.absorbance_window
+    outside = [
+        m
+        for m in mixtures
+        if m.role != "blank" and math.isfinite(m.reading) and not low <= m.reading <= high
+    ]
+    if outside:
+        flags.append(
+            Flag(
+                "reading-outside-window",
+                tuple(m.id for m in outside),
+                "outside the photometer's linear range: a wrong volume or stock, a dirty or "
+                "wrong cuvette, or the photometer not zeroed",
+                "; ".join(f"{m.id} read {_g(m.reading)}" for m in outside),
+                f"the plan's absorbance window {_g(low)}-{_g(high)} (instrument.absorbance_window)",
+            )
+        )
+    all_bound_line = section.saved.analysis == "all-bound"
+    standards = [m for m in mixtures if m.role == "standard"]
+    k_std = _family_factor(len(standards))
+    off = []
+    for m in standards:
+        r = m.line_residual if all_bound_line else m.residual
+        if math.isfinite(r) and abs(r) > k_std * m.u_residual:
+            off.append((m, r))
+    if off:
+        line_words = (
+            "the line through the other standards" if all_bound_line else "the bench's global fit"
+        )
+        flags.append(
+            Flag(
+                "standard-off-line",
+                tuple(m.id for m, _ in off),
+                "a standard made wrong: a pipetting slip, a wrong stock or a mislabelled tube",
+                "; ".join(
+                    f"{m.id} is {_g(r)} off {line_words} ({_g(abs(r) / m.u_residual)} u, "
+                    f"u = {_g(m.u_residual)})"
+                    for m, r in off
+                ),
+                f"more than {_g(k_std)} u off, u propagated from the plan's u(A) ("
+                f"{OFF_LINE_U:g} sigma for the bench's {len(standards)} standards together, "
+                "Bonferroni; common practice)",
+            )
+        )
+    eps_pred = (
+        section.epsilon_all_bound
+        if math.isfinite(section.epsilon_all_bound[0])
+        else section.epsilon_global_fit
+    )
+    if math.isfinite(scale) and math.isfinite(eps_pred[0]) and not off:
+        u_rel = _u_of((eps_pred[1], eps_pred[2])) / eps_pred[0]
+        if abs(scale - 1.0) > COVERAGE_FLAG * u_rel:
+            ratios = [
+                m.reading / m.expected.predicted
+                for m in mixtures
+                if m.role != "blank" and math.isfinite(m.reading) and m.expected.predicted > 0
+            ]
+            flags.append(
+                Flag(
+                    "readings-scaled",
+                    (),
+                    "every reading scaled by one factor: a cuvette of another path length, a "
+                    "scratched or dirty cuvette, or another wavelength",
+                    f"readings are {_g(scale)} x the predicted ones (each reading / its "
+                    f"prediction: {_g(min(ratios))} to {_g(max(ratios))}); u(eps)/eps = "
+                    f"{_g(u_rel)}",
+                    f"|factor - 1| more than {COVERAGE_FLAG:g} u(eps)/eps (common practice), "
+                    "u(eps) from plan.json",
+                )
+            )
+    tests = [m for m in mixtures if m.role == "test" and math.isfinite(m.K.low)]
+    k_test = _family_factor(len(tests))
+    # NaN: not computed (bench not analysed); inf or a negative K: a reading the 1:1
+    # expression cannot give, which is outside any range.
+    wrong = [
+        m
+        for m in tests
+        if not math.isnan(m.K.value)
+        and (
+            not math.isfinite(m.K.value)
+            or abs(m.K.value - m.K.predicted) > k_test * _u_of((m.K.low, m.K.high))
+        )
+    ]
+    if wrong:
+        flags.append(
+            Flag(
+                "test-K-outside-range",
+                tuple(m.id for m in wrong),
+                "a test made or read wrong: a mislabelled or swapped tube, a pipetting slip, "
+                "or a reading of another mixture",
+                "; ".join(
+                    f"{m.id} gives K = {_g(m.K.value)}, predicted {_g(m.K.predicted)} "
+                    f"(95 % range {_g(m.K.low)}-{_g(m.K.high)})"
+                    for m in wrong
+                ),
+                f"more than {_g(k_test)} u(K) of the test from its predicted K ("
+                f"{COVERAGE_FLAG:g} sigma for the bench's {len(tests)} tests together, "
+                "Bonferroni; common practice), u(K) from the plan's first-order budget",
+            )
+        )
+    trend = _trend(tests)
+    if trend is not None and abs(trend[1]) > TREND_T:
+        flags.append(
+            Flag(
+                "K-trend-with-bound-fraction",
+                tuple(m.id for m in tests),
+                "K changes with the bound fraction: the all-bound assumption failing (standards "
+                "not fully bound, or another complex forming), or a wrong standard curve",
+                f"K minus its predicted value changes by {_g(trend[0])} per unit of bound "
+                f"fraction, {_g(abs(trend[1]))} standard errors from zero",
+                f"|slope| more than {TREND_T:g} standard errors (common practice), weights from "
+                "the predicted u(K) of each test",
+            )
+        )
+    if gf_failed:
+        flags.append(
+            Flag(
+                "global-fit-failed",
+                (),
+                "the readings do not follow the equilibrium model at any K near the plan's",
+                "the global fit did not converge within 1.5 decades of the plan's K",
+                "convergence of the global fit (planner.analysis)",
+            )
+        )
+    return tuple(flags)
+
+
+def _family_factor(count: int) -> float:
+    """Coverage factor that keeps the chance of a false flag among ``count`` values of one
+    bench at that of one value beyond 3 sigma (two-sided 0.27 %), by the Bonferroni
+    correction (e.g. Miller, Simultaneous Statistical Inference, 2nd ed., 1981, from
+    memory): 3 for one value, about 3.46 for five."""
+    from statistics import NormalDist
+
+    tail = NormalDist().cdf(-COVERAGE_FLAG)  # one side, 0.135 %
+    return -NormalDist().inv_cdf(tail / max(count, 1))
+
+
+def _trend(tests: Sequence[MixtureResult]) -> tuple[float, float] | None:
+    """Weighted least-squares slope of (K - predicted K) against bound fraction and slope /
+    its standard error, with the predicted u(K) of each test as known standard deviations
+    (Draper and Smith, 3rd ed., section 9.2, from memory); None with fewer than three usable
+    tests. The predicted K of each test already carries the trend the all-bound assumption
+    gives on this plan, so only a trend beyond the prediction counts."""
+    usable = [m for m in tests if math.isfinite(m.K.value) and _u_of((m.K.low, m.K.high)) > 0]
+    if len(usable) < 3:
+        return None
+    f = np.array([m.bound_fraction for m in usable])
+    k = np.array([m.K.value - m.K.predicted for m in usable])
+    w = 1.0 / np.array([_u_of((m.K.low, m.K.high)) for m in usable]) ** 2
+    f_mean = float((w * f).sum() / w.sum())
+    spread = float((w * (f - f_mean) ** 2).sum())
+    if spread <= 0:
+        return None
+    slope = float((w * (f - f_mean) * k).sum() / spread)
+    return slope, slope * math.sqrt(spread)
+
+
+# ---------------------------------------------------------------------------------------------
+# The class
+# ---------------------------------------------------------------------------------------------
+
+
+def _statistic(
+    values: Sequence[float], predicted: Sequence[tuple[float, float, float]]
+) -> ClassStatistic:
+    data = np.array([v for v in values if math.isfinite(v)])
+    n = int(data.size)
+    mean = float(data.mean()) if n else _NAN
+    sd = float(data.std(ddof=1)) if n >= 2 else _NAN
+    usable = [p for p in predicted if math.isfinite(p[0])]
+    return ClassStatistic(
+        n=n,
+        mean=mean,
+        sd=sd,
+        low=mean - COVERAGE_FACTOR_95 * sd,
+        high=mean + COVERAGE_FACTOR_95 * sd,
+        predicted=float(np.mean([p[0] for p in usable])) if usable else _NAN,
+        predicted_low=min((p[1] for p in usable), default=_NAN),
+        predicted_high=max((p[2] for p in usable), default=_NAN),
+    )
+
+
+def _pooled(
+    sections: Mapping[int, _Section],
+    benches: Sequence[BenchResult],
+) -> Pooled | None:
+    ok = [b for b in benches if not b.flags]
+    includes_flagged = not ok
+    if not ok:
+        ok = [b for b in benches if math.isfinite(b.K_all_bound.value)]
+    if not ok:
+        return None
+    numbers = sorted({b.section for b in ok})
+    first = sections[numbers[0]].saved.inputs
+    for number in numbers[1:]:
+        other = sections[number].saved.inputs
+        if other.reaction != first.reaction or other.instrument != first.instrument:
+            raise InvalidInputError(
+                "sections of different reactions or photometers cannot be pooled",
+                field="--plan",
+                value=number,
+                hint="analyse the readings of one plan, or of one variants folder, at a time",
+            )
+    index = {number: i for i, number in enumerate(numbers)}
+    layouts = [sections[number].layout for number in numbers]
+    sets = [(index[b.section], np.array([m.reading for m in b.mixtures])) for b in ok]
+    fit = global_fit_sets(first.reaction, first.instrument, layouts, sets)
+    # Lack of fit: the benches of a section are replicates of its mixtures.
+    groups: dict[tuple[int, int], list[float]] = {}
+    for bench, residuals in zip(ok, fit.residuals, strict=True):
+        for position, value in enumerate(residuals):
+            if math.isfinite(value):
+                groups.setdefault((bench.section, position), []).append(float(value))
+    pure = sum(float(((np.array(v) - np.mean(v)) ** 2).sum()) for v in groups.values())
+    n, m = fit.n_readings, len(groups)
+    df_pure, df_lack = n - m, m - 2
+    f_value = p_value = _NAN
+    if df_pure > 0 and df_lack > 0 and pure > 0:
+        from scipy.stats import f as f_distribution
+
+        f_value = ((fit.sum_of_squares - pure) / df_lack) / (pure / df_pure)
+        p_value = float(f_distribution.sf(f_value, df_lack, df_pure))
+    return Pooled(
+        epsilon=fit.epsilon,
+        u_epsilon=fit.u_epsilon,
+        K=fit.K,
+        u_K=fit.u_K,
+        n_readings=n,
+        n_benches=len(ok),
+        includes_flagged=includes_flagged,
+        rms_residual=math.sqrt(fit.sum_of_squares / n) if n else _NAN,
+        lack_of_fit_F=float(f_value),
+        lack_of_fit_p=p_value,
+        df_lack_of_fit=max(df_lack, 0) if math.isfinite(f_value) else 0,
+        df_pure_error=max(df_pure, 0) if math.isfinite(f_value) else 0,
+    )
+
+
+def _bench_results(
+    number: int,
+    section: _Section,
+    keys: Sequence[BenchKey],
+    found: Mapping[BenchKey, dict[str, Reading]],
+) -> list[BenchResult]:
+    ids = section.ids
+    index = {mixture_id: i for i, mixture_id in enumerate(ids)}
+    layout = section.layout
+    groups: dict[tuple[int, ...], list[BenchKey]] = {}
+    for key in keys:
+        present = tuple(sorted(index[m] for m in found[key]))
+        groups.setdefault(present, []).append(key)
+    results: list[BenchResult] = []
+    for present, members in groups.items():
+        rows = np.array(present, dtype=np.int64)
+        readings = np.array(
+            [[found[key][ids[r]].absorbance for r in present] for key in members], dtype=float
+        )
+        sub = _sub_layout(layout, rows)
+        usable = sub.blanks.size > 0 and sub.standards.size > 0 and sub.tests.size > 0
+        fits = _analyse_group(section, rows, readings) if usable else None
+        for i, key in enumerate(members):
+            results.append(_bench(number, section, key, found[key], rows, sub, fits, i))
+    return results
+
+
+def _bench(
+    number: int,
+    section: _Section,
+    key: BenchKey,
+    readings: Mapping[str, Reading],
+    rows: NDArray[np.int64],
+    sub: Layout,
+    fits: _Fits | None,
+    i: int,
+) -> BenchResult:
+    n_mix = len(section.ids)
+    full = np.full(n_mix, np.nan)
+    for r in rows:
+        full[r] = readings[section.ids[r]].absorbance
+    residual = np.full(n_mix, np.nan)
+    line = np.full(n_mix, np.nan)
+    line_u = np.full(n_mix, np.nan)
+    k_test = np.full(n_mix, np.nan)
+    eps_ab = k_ab = eps_gf = k_gf = _NAN
+    if fits is not None:
+        fitted_rows = rows[np.concatenate([sub.standards, sub.tests])]
+        residual[fitted_rows] = fits.residuals[i]
+        line[rows[sub.standards]] = fits.line_residuals[i]
+        if section.saved.analysis == "all-bound":
+            line_u[rows[sub.standards]] = fits.line_u
+        else:
+            blank_u2 = float((section.u_absorbance[rows[sub.blanks]] ** 2).mean()) / sub.blanks.size
+            line_u[rows[sub.standards]] = np.sqrt(
+                section.u_absorbance[rows[sub.standards]] ** 2 + blank_u2
+            )
+        k_test[rows[sub.tests]] = fits.K_tests[i]
+        eps_ab = float(fits.epsilon_all_bound[i])
+        with np.errstate(invalid="ignore"):
+            k_ab = float(np.mean(fits.K_tests[i]))
+        eps_gf = float(fits.epsilon_global_fit[i])
+        k_gf = float(fits.K_global_fit[i])
+    test_rows = [int(t) for t in section.layout.tests]
+    mixtures = []
+    for j, mixture_id in enumerate(section.ids):
+        k_range = (_NAN, *_NO_RANGE)
+        if j in test_rows and test_rows.index(j) < len(section.K_tests):
+            k_range = section.K_tests[test_rows.index(j)]
+        mixtures.append(
+            MixtureResult(
+                id=mixture_id,
+                role=section.roles[j],
+                reading=float(full[j]),
+                expected=Estimate(
+                    float(full[j]),
+                    float(section.predicted[j]),
+                    *_range(float(section.predicted[j]), float(section.u_absorbance[j])),
+                ),
+                u_absorbance=float(section.u_absorbance[j]),
+                residual=float(residual[j]),
+                line_residual=float(line[j]),
+                u_residual=float(line_u[j]),
+                K=_estimate(float(k_test[j]), k_range),
+                bound_fraction=float(section.bound_fraction[j]),
+            )
+        )
+    scale = _scale(section, full)
+    missing = [m for m in section.ids if m not in readings]
+    flags = _flags(section, mixtures, missing, scale, fits is not None and not math.isfinite(k_gf))
+    if fits is None:
+        flags = (
+            *flags,
+            Flag(
+                "not-analysed",
+                (),
+                "too few mixtures read to analyse: a blank, a standard and a test are needed",
+                f"read: {', '.join(section.ids[r] for r in rows)}",
+                "the analyses' minimum (planner.analysis)",
+            ),
+        )
+    return BenchResult(
+        section=number,
+        bench=key[1],
+        replicate=key[2],
+        epsilon_all_bound=_estimate(eps_ab, section.epsilon_all_bound),
+        K_all_bound=_estimate(k_ab, section.K_all_bound),
+        epsilon_global_fit=_estimate(eps_gf, section.epsilon_global_fit),
+        K_global_fit=_estimate(k_gf, section.K_global_fit),
+        scale=scale,
+        mixtures=tuple(mixtures),
+        flags=flags,
+        rows=tuple(sorted(r.row for r in readings.values())),
+    )
+
+
+def _scale(section: _Section, full: NDArray[np.float64]) -> float:
+    """Least-squares factor (through the origin) of the bench's blank-subtracted readings on
+    the predicted ones, over the standards and tests read."""
+    blanks = [int(b) for b in section.layout.blanks if math.isfinite(full[b])]
+    if not blanks:
+        return _NAN
+    fitted = [int(r) for r in (*section.layout.standards, *section.layout.tests)]
+    fitted = [r for r in fitted if math.isfinite(full[r])]
+    if not fitted:
+        return _NAN
+    observed = full[fitted] - full[blanks].mean()
+    predicted = section.predicted[fitted] - section.predicted[blanks].mean()
+    denominator = float(predicted @ predicted)
+    return float(predicted @ observed) / denominator if denominator > 0 else _NAN
+
+
+def analyse_class(plans: Mapping[int, SavedPlan], table: ReadingsTable) -> ClassAnalysis:
+    """Analyse a class's readings, each bench against its own section's plan.
+
+    Parameters
+    ----------
+    plans
+        Section number -> the saved plan that section made (the same plan for every section
+        of a plan folder; one per section of a variants folder).
+    table
+        The readings, read by :func:`planner.readings.parse_readings` against these sections.
+
+    Returns
+    -------
+    ClassAnalysis
+        Every bench with its values, ranges, residuals and flags; the class's statistics over
+        the benches that are ok, and their pooled global fit.
+
+    Raises
+    ------
+    InvalidInputError
+        A plan without a blank, a standard and a test (it cannot be analysed), or ok benches
+        of sections with different reactions or photometers (they cannot be pooled).
+    """
+    built: dict[int, _Section] = {}
+    cache: dict[int, _Section] = {}
+    for number, saved in sorted(plans.items()):
+        if id(saved) not in cache:
+            cache[id(saved)] = _section(saved)
+        built[number] = cache[id(saved)]
+    found: dict[BenchKey, dict[str, Reading]] = {}
+    for reading in table.readings:
+        key = (reading.section, reading.bench, reading.replicate)
+        found.setdefault(key, {})[reading.mixture] = reading
+    benches: list[BenchResult] = []
+    for number, section in built.items():
+        keys = sorted(key for key in found if key[0] == number)
+        benches.extend(_bench_results(number, section, keys, found))
+    benches.sort(key=lambda b: (b.section, b.bench, b.replicate))
+    unmeasured = sorted(
+        {(s, b, r) for _, s, b, r, _ in table.empty} - set(found),
+    )
+    ok = [b for b in benches if not b.flags]
+    sections_used = sorted({b.section for b in benches}) or sorted(built)
+    predicted = [built[number] for number in sections_used]
+    first = next(iter(built.values()))
+    return ClassAnalysis(
+        benches=tuple(benches),
+        rejections=table.rejections,
+        unmeasured=tuple(unmeasured),
+        K_all_bound=_statistic(
+            [b.K_all_bound.value for b in ok], [s.K_all_bound for s in predicted]
+        ),
+        K_global_fit=_statistic(
+            [b.K_global_fit.value for b in ok], [s.K_global_fit for s in predicted]
+        ),
+        epsilon_all_bound=_statistic(
+            [b.epsilon_all_bound.value for b in ok], [s.epsilon_all_bound for s in predicted]
+        ),
+        epsilon_global_fit=_statistic(
+            [b.epsilon_global_fit.value for b in ok], [s.epsilon_global_fit for s in predicted]
+        ),
+        pooled=_pooled(built, benches),
+        K_true=first.layout.K_true,
+        sections=tuple(sections_used),
+    )

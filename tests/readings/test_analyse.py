@@ -1,0 +1,225 @@
+"""planner analyse on synthetic classes made by the tests' own equilibrium model
+(tests/readings/classes.py: scipy brentq on the mass balances, not the planner's solver).
+
+Outside references: the planted faults (known by construction), the true K used to make the
+readings, and scipy.optimize.least_squares fitting the same readings with that independent
+model.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+from scipy.optimize import least_squares
+from typer.testing import CliRunner
+
+from planner.cli import app
+from planner.readings import analyse_class, load_plans, parse_readings, section_shapes
+from tests.readings.classes import Fault, Section, class_rows, complex_M, reading, rows_csv
+
+RUNNER = CliRunner()
+FAULTS = [
+    Fault("slip", 1, 3, {"mixture": "S3", "factor": 0.85}),  # thiocyanate delivery 15 % short
+    Fault("cuvette", 2, 5, {"path_cm": 1.1}),  # a 1.1 cm cuvette instead of 1 cm
+    Fault("swap", 3, 7, {"mixtures": ("T1", "T4")}),  # two test tubes' labels swapped
+]
+PLANTED = {(1, 3), (2, 5), (3, 7)}
+
+
+@pytest.fixture(scope="module")
+def plan_folder(tmp_path_factory):
+    out = tmp_path_factory.mktemp("analyse") / "plan"
+    result = RUNNER.invoke(app, ["plan", "--out", str(out), "--date", "2026-01-01", "-q"])
+    assert result.exit_code == 0, result.output
+    return out
+
+
+@pytest.fixture(scope="module")
+def sections(plan_folder):
+    plans = load_plans(plan_folder)
+    return plans, {n: Section.of(plan_folder / "plan.json") for n in plans}
+
+
+def _analyse(plans, rows):
+    return analyse_class(plans, parse_readings(rows_csv(rows), section_shapes(plans)))
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_planted_faults_are_flagged_and_the_pooled_fit_recovers_K(sections, seed):
+    plans, synthetic = sections
+    assert len(plans) * synthetic[1].benches == 30  # the default plan: a class of 30
+    rows = class_rows(synthetic, np.random.default_rng(seed), noise=0.003, faults=FAULTS)
+    result = _analyse(plans, rows)
+    flagged = {(b.section, b.bench) for b in result.benches if b.flags}
+    assert flagged >= PLANTED
+    assert len(flagged - PLANTED) <= 1
+    rules = {(b.section, b.bench): {f.rule for f in b.flags} for b in result.benches}
+    assert "standard-off-line" in rules[(1, 3)]
+    assert "readings-scaled" in rules[(2, 5)]
+    assert "test-K-outside-range" in rules[(3, 7)]
+    true_K = synthetic[1].K  # the K the readings were made with
+    assert result.pooled is not None
+    assert pytest.approx(true_K, rel=0.02) == result.pooled.K
+    # within its own uncertainty (3 u: the fit's u from 270 readings)
+    assert abs(result.pooled.K - true_K) < 3 * result.pooled.u_K
+
+
+def test_pooled_fit_follows_a_true_K_other_than_the_plans(sections):
+    plans, synthetic = sections
+    true_K = 0.9 * synthetic[1].K
+    rows = class_rows(synthetic, np.random.default_rng(5), noise=0.003, K=true_K)
+    result = _analyse(plans, rows)
+    pooled = result.pooled
+    assert pooled is not None
+    # Every test's K is far from its predicted range, so the class disagrees as a whole.
+    assert pooled.includes_flagged == all(b.flags for b in result.benches)
+    assert abs(pooled.K - true_K) < 3 * pooled.u_K
+    assert pytest.approx(true_K, rel=0.02) == pooled.K
+
+
+def test_pooled_fit_agrees_with_scipy_least_squares_on_an_independent_model(sections):
+    plans, synthetic = sections
+    rows = class_rows(synthetic, np.random.default_rng(3), noise=0.003)
+    result = _analyse(plans, rows)
+    section = synthetic[1]
+    ok = {(b.section, b.bench) for b in result.benches if not b.flags}
+    by_bench = {}
+    for s, bench, _, mixture, value in rows:
+        if (s, bench) in ok:
+            by_bench.setdefault((s, bench), {})[mixture] = value
+    blank = section.ids[section.roles.index("blank")]
+    fitted = [i for i, role in enumerate(section.roles) if role != "blank"]
+
+    def model(theta):
+        eps, k = theta[0] * section.epsilon, 10.0 ** theta[1]
+        beta2 = section.beta2 * k / section.K
+        a = [
+            reading(
+                complex_M(section.metal_M[i], section.ligand_M[i], k, beta2),
+                eps,
+                section.path_cm,
+                section.stray,
+            )
+            for i in range(len(section.ids))
+        ]
+        return np.array([a[i] - a[section.ids.index(blank)] for i in fitted])
+
+    net = np.concatenate(
+        [[v[section.ids[i]] - v[blank] for i in fitted] for v in by_bench.values()]
+    )
+
+    def residuals(theta):
+        return np.tile(model(theta), len(by_bench)) - net
+
+    solution = least_squares(
+        residuals, [1.0, math.log10(section.K)], method="lm", xtol=1e-14, ftol=1e-14
+    )
+    k_ref = 10.0 ** solution.x[1]
+    eps_ref = solution.x[0] * section.epsilon
+    pooled = result.pooled
+    # Same data, same model written twice: agreement to the solvers' tolerances.
+    assert pytest.approx(k_ref, rel=1e-6) == pooled.K
+    assert pooled.epsilon == pytest.approx(eps_ref, rel=1e-6)
+    # Both covariances come from MINPACK's forward-difference Jacobians at the solution,
+    # good to a few tenths of a percent: 1 % tolerance.
+    j = solution.jac
+    s2 = (solution.fun @ solution.fun) / (solution.fun.size - 2)
+    cov = np.linalg.inv(j.T @ j) * s2
+    assert pooled.u_K == pytest.approx(k_ref * math.log(10) * math.sqrt(cov[1, 1]), rel=1e-2)
+    assert pooled.u_epsilon == pytest.approx(section.epsilon * math.sqrt(cov[0, 0]), rel=1e-2)
+
+
+def test_cli_on_the_class_flags_the_three_and_writes_the_folder(plan_folder, sections, tmp_path):
+    _, synthetic = sections
+    readings = tmp_path / "readings.csv"
+    readings.write_text(
+        rows_csv(class_rows(synthetic, np.random.default_rng(0), faults=FAULTS)),
+        encoding="utf-8",
+    )
+    out = tmp_path / "marked"
+    result = RUNNER.invoke(
+        app,
+        [
+            "analyse",
+            str(readings),
+            "--plan",
+            str(plan_folder),
+            "--format",
+            "json",
+            "--out",
+            str(out),
+        ],
+    )
+    assert result.exit_code == 1, result.output
+    document = json.loads(result.stdout)
+    assert document["schema"] == "planner.analysis/1"
+    flagged = {(b["section"], b["bench"]) for b in document["benches"] if b["status"] == "flagged"}
+    assert flagged >= PLANTED
+    bench = document["benches"][0]
+    assert set(bench["K"]) == {"all_bound", "global_fit"}
+    assert set(bench["epsilon"]) == {"all_bound", "global_fit"}
+    assert document["class"]["K"]["global_fit"]["value"] == pytest.approx(98.0, rel=0.02)
+    assert document["class"]["K"]["global_fit"]["u"] > 0
+    assert json.loads((out / "analysis.json").read_text()) == document
+    assert (out / "analysis.html").read_text().count("<tr>") > 30
+    assert (out / "benches" / "section-03-bench-07-replicate-1.csv").is_file()
+    assert (out / "plots" / "bench-K.png").read_bytes()[:4] == b"\x89PNG"
+
+
+def test_cli_all_ok_exits_0(plan_folder, sections, tmp_path):
+    _, synthetic = sections
+    readings = tmp_path / "readings.csv"
+    # Noise-free readings from the plan's own K: no bench can be off.
+    readings.write_text(rows_csv(class_rows(synthetic, np.random.default_rng(0), noise=0.0)))
+    result = RUNNER.invoke(app, ["analyse", str(readings), "--plan", str(plan_folder)])
+    assert result.exit_code == 0, result.output
+    assert "30 bench sets, 30 ok, 0 flagged" in result.stdout
+
+
+def test_variants_folder_analyses_each_section_against_its_own_plan(tmp_path):
+    out = tmp_path / "variants"
+    made = RUNNER.invoke(
+        app,
+        [
+            "variants",
+            "--sections",
+            "6",
+            "--seed",
+            "1",
+            "--out",
+            str(out),
+            "-q",
+            "--date",
+            "2026-01-01",
+            _plan_file(tmp_path),
+        ],
+    )
+    assert made.exit_code == 0, made.output
+    assert (out / "readings-template.csv").is_file()
+    plans = load_plans(out)
+    assert sorted(plans) == [1, 2, 3, 4, 5, 6]
+    synthetic = {n: Section.of(out / f"section-{n:02d}" / "plan.json") for n in plans}
+    # Each section's own recipes: the test sets differ between sections.
+    assert len({tuple(s.ligand_M) + tuple(s.metal_M) for s in synthetic.values()}) == 6
+    rows = class_rows(synthetic, np.random.default_rng(2), noise=0.0)
+    result = _analyse(plans, rows)
+    assert {b.section for b in result.benches} == set(range(1, 7))
+    assert all(not b.flags for b in result.benches)
+    # Section 2's readings against section 1's plan would not fit: swap them and see flags.
+    swapped = [(1 if s == 2 else 2 if s == 1 else s, b, r, m, v) for s, b, r, m, v in rows]
+    assert any(b.flags for b in _analyse(plans, swapped).benches if b.section in (1, 2))
+
+
+def _plan_file(tmp_path):
+    from importlib.resources import files
+
+    text = files("planner").joinpath("data/default.toml").read_text(encoding="utf-8")
+    text = text.replace("sections = 3", "sections = 1").replace(
+        "benches_per_section = 10", "benches_per_section = 4"
+    )
+    path = tmp_path / "one.toml"
+    path.write_text(text, encoding="utf-8")
+    return str(path)
