@@ -15,13 +15,18 @@ verification, ``preparation`` and ``prediction``, for a saved result (``planner 
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections import Counter, defaultdict
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 
 import numpy as np
 
-from planner.chem.assumption import min_excess_M
+from planner.chem.assumption import (
+    LARGEST_DISSOLVED_M,
+    PRACTICAL_FREE_EXCESS_M,
+    checked_round_up,
+)
 from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, mix_M
 from planner.chem.species import molar_mass_g_per_mol
@@ -772,34 +777,118 @@ def _assumption(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) 
         f"absorptivity from these standards comes out about {100 * (1 - achieved):.1f} % low, "
         "and K is biased with it"
     )
-    excess, k = _excess_partner(inputs)
-    if excess is not None and k is not None:
-        needed = min_excess_M(k, float(state.limiting_total[worst]), tolerance)
-        column = state.ions.names.index(excess)
-        have = float(state.initial[worst, column])
-        stock_volume = {
-            st.id: mixtures[worst].volume_of(st.id)
+    accept = checked_round_up(1.0 - achieved, lambda t: achieved >= 1.0 - t, digits=2)
+    accept_text = f"accept a tolerance of {accept:.2g}" if accept is not None and accept < 1 else ""
+    excess, _ = _excess_partner(inputs)
+    if excess is None:
+        detail += f". Fix: a larger excess{', or ' + accept_text if accept_text else ''}"
+    else:
+        detail += ". Fix: " + _excess_fix(inputs, mixtures, indices, excess, accept_text)
+    return Check("limiting-reagent-assumption", "fail", detail)
+
+
+def _with_concentration(inputs: PlanInputs, stock_id: str, ion: str, value_M: float) -> PlanInputs:
+    """A copy of the inputs with one ion of one stock at another concentration."""
+    stocks = tuple(
+        dataclasses.replace(st, contains_M={**st.contains_M, ion: value_M})
+        if st.id == stock_id
+        else st
+        for st in inputs.stocks
+    )
+    return dataclasses.replace(inputs, stocks=stocks)
+
+
+def _solve_concentration(
+    c_now_M: float, passes: Callable[[float], bool], digits: int = 3
+) -> float | None:
+    """The smallest concentration from ``c_now_M`` up to :data:`LARGEST_DISSOLVED_M` that
+    ``passes`` accepts, by bisection on log c (the bound fraction rises with the excess),
+    rounded up to ``digits`` significant digits and accepted again; None when even
+    LARGEST_DISSOLVED_M fails [mol/L]."""
+    low, high = c_now_M, LARGEST_DISSOLVED_M
+    if low >= high or not passes(high):
+        return None
+    for _ in range(60):
+        if high / low < 1.0 + 1e-6:
+            break
+        middle = math.sqrt(low * high)
+        if passes(middle):
+            high = middle
+        else:
+            low = middle
+    found = checked_round_up(high, passes, digits)
+    return found if found is not None and found <= LARGEST_DISSOLVED_M else None
+
+
+def _excess_fix(
+    inputs: PlanInputs,
+    mixtures: Sequence[Mixture],
+    indices: Sequence[int],
+    excess: str,
+    accept_text: str,
+) -> str:
+    """The fix of a failed assumption check, solved for and checked again.
+
+    For each stock of the excess reagent the standards use (the one giving the worst standard
+    most of its excess first), the concentration that makes every standard meet the
+    tolerance with the same volumes is found with the full equilibrium model, and the changed
+    plan (a copy of the inputs) is re-mixed and solved again before it is offered. A fix
+    above :data:`LARGEST_DISSOLVED_M` is impossible, and said so.
+    """
+    tolerance = inputs.design.assumption_tolerance
+    standards = [mixtures[i] for i in indices]
+    limiting = inputs.design.limiting
+
+    def passes_with(stock_id: str) -> Callable[[float], bool]:
+        def passes(c_M: float) -> bool:
+            fixed = _with_concentration(inputs, stock_id, excess, c_M)
+            return bool(np.min(_State(fixed, standards).bound) >= 1.0 - tolerance)
+
+        return passes
+
+    def contribution(st: Stock) -> float:
+        return max(st.contains_M[excess] * m.volume_of(st.id) for m in standards)
+
+    sources = sorted(
+        (
+            st
             for st in inputs.stocks
             if excess in st.contains_M
-        }
-        main = max(stock_volume, key=lambda s: stock_volume[s]) if stock_volume else None
-        if main and stock_volume[main] > 0:
-            factor = needed / max(have, 1e-300)
-            stronger = inputs.stock(main).contains_M[excess] * factor
-            detail += (
-                f". Fix: an excess of {needed:.3g} mol/L {excess} in the standards (now "
-                f"{have:.3g}), e.g. the {main} stock at no less than {stronger:.3g} mol/L with the "
-                f"same volumes, or accept a tolerance of {1 - achieved:.3g}"
+            and limiting not in st.contains_M
+            and any(m.volume_of(st.id) > 0 for m in standards)
+        ),
+        key=lambda st: -contribution(st),
+    )
+    alternative = f", or {accept_text}" if accept_text else ""
+    for st in sources:
+        now = st.contains_M[excess]
+        value = _solve_concentration(now, passes_with(st.id))
+        if value is None:
+            continue
+        fixed = _State(_with_concentration(inputs, st.id, excess, value), standards)
+        column = fixed.ions.names.index(excess)
+        held = float(np.max(fixed.initial[:, column]))
+        free = float(np.max(fixed.free[:, inputs.reaction.components.index(excess)]))
+        text = (
+            f"the {st.id} stock at {value:.3g} mol/L {excess} (now {now:.3g}) with the same "
+            f"volumes, so that the standards hold up to {held:.3g} mol/L {excess} and every "
+            f"one binds at least {100 * (1 - tolerance):g} % (solved with the equilibrium "
+            f"model and checked again){alternative}"
+        )
+        if free > PRACTICAL_FREE_EXCESS_M:
+            text += (
+                f"; that stock leaves {free:.3g} mol/L of free {excess}, out of practical reach "
+                "(above about 1 mol/L the excess reagent sets the medium), so plan the global "
+                "fit: fit eps and K together with the exact equilibrium model"
             )
-            if needed - (1 - tolerance) * float(state.limiting_total[worst]) > 1.0:
-                detail += (
-                    "; that excess is out of practical reach (above about 1 mol/L of free "
-                    "excess), so plan the global fit: fit eps and K together with the "
-                    "exact equilibrium model"
-                )
-    else:
-        detail += f". Fix: a larger excess, or accept a tolerance of {1 - achieved:.3g}"
-    return Check("limiting-reagent-assumption", "fail", detail)
+        return text
+    names = _names([st.id for st in sources]) if sources else f"no stock of {excess}"
+    return (
+        f"impossible on this shelf by a stronger {excess} stock: even {LARGEST_DISSOLVED_M:g} "
+        f"mol/L {excess} in {names} (the most a dissolved reagent reaches, common practice) "
+        "leaves a standard short of the tolerance; plan the global fit (fit eps and K "
+        f"together with the exact equilibrium model){alternative}"
+    )
 
 
 def _speciation(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> Check:

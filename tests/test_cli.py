@@ -275,7 +275,9 @@ def test_plan_failed_check_exits_1_with_failures_first(tmp_path):
     names = [c["name"] for c in checks if c["status"] == "fail"]
     assert "limiting-reagent-assumption" in names
     detail = next(c["detail"] for c in checks if c["name"] == "limiting-reagent-assumption")
-    assert "stock at no less than" in detail
+    # 0.1 % needs about 10.2 mol/L of free iron(III): no stock makes that (issue 11, item 7:
+    # the old text still asked for a stronger stock).
+    assert "Fix: impossible on this shelf" in detail
     assert "tolerance of" in detail
 
 

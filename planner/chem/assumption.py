@@ -38,7 +38,10 @@ __all__ = [
     "PRACTICAL_FREE_EXCESS_M",
     "AssumptionCheck",
     "check_assumption",
+    "checked_round_down",
+    "checked_round_up",
     "min_excess_M",
+    "round_down",
     "round_up",
 ]
 
@@ -223,14 +226,14 @@ def check_assumption(
     reachable = needed <= LARGEST_DISSOLVED_M
     suggested_excess = None
     if not ok and reachable:
-        suggested_excess = _checked_round_up(
+        suggested_excess = checked_round_up(
             needed, lambda c: _bound_fraction(K, c, limiting_M) >= 1.0 - tolerance
         )
         if suggested_excess is not None and suggested_excess > LARGEST_DISSOLVED_M:
             suggested_excess, reachable = None, False
     suggested_tolerance = None
     if not ok and 1.0 - fraction < 0.5:
-        suggested_tolerance = _checked_round_up(
+        suggested_tolerance = checked_round_up(
             1.0 - fraction, lambda t: fraction >= 1.0 - t, digits=2
         )
     return AssumptionCheck(
@@ -273,12 +276,46 @@ def _last_digit(value: float, digits: int) -> float:
     return float(10.0 ** (math.floor(math.log10(value)) - digits + 1))
 
 
-def _checked_round_up(
+def round_down(value: float, digits: int = 4) -> float:
+    """``value`` rounded down (towards zero for a positive value) to ``digits`` significant
+    digits, so that a printed maximum is never above the true one.
+
+    >>> round_down(0.00049987), round_down(0.5009, 2)
+    (0.0004998, 0.5)
+    """
+    if not math.isfinite(value) or value <= 0:
+        return value
+    unit = _last_digit(value, digits)
+    steps = math.floor(round(value / unit, 9))
+    return float(f"{steps * unit:.{digits}g}")
+
+
+def checked_round_down(
     value: float, passes: Callable[[float], bool], digits: int = 4
 ) -> float | None:
-    """``value`` rounded up and then raised by one last digit at a time until ``passes``
-    accepts it (rounding of the printed figure must not undo the fix); None when a few steps
-    do not get there."""
+    """``value`` rounded down to ``digits`` significant digits, then lowered by one last digit
+    at a time until ``passes`` accepts it (the counterpart of :func:`checked_round_up` for a
+    fix that asks for less); None when a few steps do not get there."""
+    candidate = round_down(value, digits)
+    for _ in range(4):
+        if candidate <= 0:
+            return None
+        if passes(candidate):
+            return candidate
+        candidate = round_down(candidate - _last_digit(candidate, digits), digits)
+    return None
+
+
+def checked_round_up(
+    value: float, passes: Callable[[float], bool], digits: int = 4
+) -> float | None:
+    """``value`` rounded up to ``digits`` significant digits, then raised by one last digit at
+    a time until ``passes`` accepts it, so that the printed figure of a fix is one that works;
+    None when a few steps do not get there.
+
+    >>> checked_round_up(0.500147, lambda c: c >= 0.500147)
+    0.5002
+    """
     candidate = round_up(value, digits)
     for _ in range(4):
         if passes(candidate):
