@@ -994,7 +994,8 @@ def _expected_totals(
     """Stock volumes per bench, section, session and to prepare, from the recipes [mL].
 
     to_prepare = session x (1 + margin) + dead volume x bench containers, for a stock the
-    recipes use (docs/methods.md section 13).
+    recipes use, + what making the other stocks takes of it (``for_stocks``: the medium
+    of every flask made and the aliquots of dilutions; docs/methods.md section 13).
     """
     session = inputs.session
     containers = session.sections * session.benches_per_section
@@ -1012,19 +1013,114 @@ def _expected_totals(
             if bench > 0
             else 0.0
         )
+    making = _stock_making(inputs, expected["to_prepare"])
+    expected["for_stocks"] = making
+    for stock_id, volume in making.items():
+        expected["to_prepare"][stock_id] += volume
     return expected
+
+
+def _stock_making(inputs: PlanInputs, for_mixtures: Mapping[str, float]) -> dict[str, float]:
+    """What making the stocks takes of each stock [mL]: a dilution's aliquot (fraction x
+    flask, per flask) from its source, then, for every flask made from a solid or by
+    dilution, the flask's volume less the aliquot from the diluent (docs/methods.md
+    section 13). Only stocks that serve are keys."""
+    dilutions = _dilutions(inputs)
+    taken: dict[str, float] = {}
+    for target, (source, fraction) in dilutions.items():
+        if for_mixtures[target] > 0:
+            flask_mL, flasks = _stock_flasks(for_mixtures[target])
+            taken[source] = taken.get(source, 0.0) + flasks * fraction * flask_mL
+    diluent = inputs.diluent
+    if diluent is not None:
+        medium = 0.0
+        for st in inputs.stocks:
+            volume = for_mixtures[st.id] + taken.get(st.id, 0.0)
+            if st.diluent or volume <= 0 or (st.solid is None and st.id not in dilutions):
+                continue
+            flask_mL, flasks = _stock_flasks(volume)
+            fraction = dilutions[st.id][1] if st.id in dilutions else 0.0
+            medium += flasks * flask_mL * (1.0 - fraction)
+        if medium > 0:
+            taken[diluent.id] = taken.get(diluent.id, 0.0) + medium
+    return {k: v for k, v in taken.items() if v > 0}
+
+
+# Relative agreement of every listed ion asked of a dilution (docs/methods.md section 13:
+# concentrations typed to three or four digits; common practice).
+_DILUTION_RTOL = 1e-3
+
+
+def _dilutions(inputs: PlanInputs) -> dict[str, tuple[str, float]]:
+    """Stocks without a solid made by diluting another with the medium: id -> (source id,
+    fraction of the source). The fraction a solves c_target = a c_source + (1 - a) c_medium
+    for the first reaction component (else ion, by name) whose source and medium
+    concentrations differ, and must hold for every listed ion within 0.1 %, with
+    0 < a < 0.999. Sources are stocks with a solid or that nothing else makes; the largest
+    aliquot wins, then plan order."""
+    diluent = inputs.diluent
+    medium = dict(diluent.contains_M) if diluent is not None else {}
+    components = set(inputs.reaction.components)
+    shelf = [st for st in inputs.stocks if not st.diluent]
+
+    def fraction_of(target: Stock, source: Stock) -> float | None:
+        if target.id == source.id:
+            return None
+        names = set(target.contains_M) | set(source.contains_M) | set(medium)
+        ordered = sorted(c for c in names if c in components) + sorted(
+            c for c in names if c not in components
+        )
+        conc = [
+            (target.contains_M.get(n, 0.0), source.contains_M.get(n, 0.0), medium.get(n, 0.0))
+            for n in ordered
+        ]
+        differing = [(t, src, m) for t, src, m in conc if src != m]
+        if not differing:
+            return None
+        t0, s0, m0 = differing[0]
+        a = (t0 - m0) / (s0 - m0)
+        if not 0.0 < a < 1.0 - _DILUTION_RTOL:
+            return None
+        for t, src, m in conc:
+            if abs(a * src + (1.0 - a) * m - t) > _DILUTION_RTOL * max(t, src, m):
+                return None
+        return a
+
+    def makers(target: Stock) -> list[tuple[int, Stock, float]]:
+        found = []
+        for n, source in enumerate(shelf):
+            a = fraction_of(target, source)
+            if a is not None:
+                found.append((n, source, a))
+        return found
+
+    sources = {st.id for st in shelf if st.solid is not None or not makers(st)}
+    result: dict[str, tuple[str, float]] = {}
+    for st in shelf:
+        if st.solid is None:
+            usable = [(a, -n, src.id) for n, src, a in makers(st) if src.id in sources]
+            if usable:
+                a, _, source_id = max(usable)
+                result[st.id] = (source_id, a)
+    return result
 
 
 def _stock_totals(inputs: PlanInputs, mixtures: Sequence[Mixture], totals: Totals) -> Check:
     session = inputs.session
     problems = []
-    for key, volumes in _expected_totals(inputs, mixtures).items():
+    expected = _expected_totals(inputs, mixtures)
+    for key, volumes in expected.items():
         for stock_id, value in volumes.items():
             stated = getattr(totals, key).get(stock_id)
             if stated is None or not _close(stated, value, 1e-9, 1e-9):
                 problems.append(f"{key} {stock_id}: {_pair(stated, value)} mL")
+    for stock_id in sorted(set(totals.for_stocks) - set(expected["for_stocks"])):
+        problems.append(
+            f"for_stocks {stock_id}: {_pair(totals.for_stocks[stock_id], 0.0)} mL (it makes "
+            "no other stock)"
+        )
     known = {st.id for st in inputs.stocks}
-    for key in ("per_bench", "per_section", "session", "to_prepare"):
+    for key in ("per_bench", "per_section", "session", "to_prepare", "for_stocks"):
         strangers = sorted(set(getattr(totals, key)) - known)
         if strangers:
             problems.append(f"{key} lists stocks the plan does not have: {_names(strangers)}")
@@ -1037,7 +1133,8 @@ def _stock_totals(inputs: PlanInputs, mixtures: Sequence[Mixture], totals: Total
         "stock-totals",
         problems,
         f"per-bench totals x {session.sets} sets, + {100 * session.margin:g} % margin and "
-        f"{session.dead_volume_mL:g} mL dead volume per bench container",
+        f"{session.dead_volume_mL:g} mL dead volume per bench container, + the medium and "
+        "aliquots that make up the stocks",
     )
 
 
@@ -1145,6 +1242,23 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
     flask_mL, flasks = _stock_flasks(volume_mL)
     medium = _medium(inputs.diluent)
     solid = stock.solid
+    dilution = _dilutions(inputs).get(stock.id)
+    if dilution is not None:
+        reagent = [ion for ion in stock.contains_M if ion in inputs.reaction.components]
+        return StockPreparation(
+            stock=stock.id,
+            flask_mL=flask_mL,
+            flasks=flasks,
+            solid_formula="",
+            molar_mass_g_per_mol=0.0,
+            purity=1.0,
+            mass_g=0.0,
+            provides=reagent[0] if reagent else "",
+            concentration_M=stock.contains_M[reagent[0]] if reagent else 0.0,
+            medium=medium,
+            source=dilution[0],
+            aliquot_mL=dilution[1] * flask_mL,
+        )
     if solid is None:
         return StockPreparation(
             stock=stock.id,
@@ -1199,8 +1313,9 @@ _PREPARATION_NUMBERS = (
     ("purity", "", 0.0),
     ("mass_g", "g", 1e-9),
     ("concentration_M", "mol/L", 0.0),
+    ("aliquot_mL", "mL", 1e-9),
 )
-_PREPARATION_TEXTS = ("solid_formula", "provides", "medium")
+_PREPARATION_TEXTS = ("solid_formula", "provides", "medium", "source")
 
 
 def _preparation(
@@ -1246,8 +1361,8 @@ def _preparation(
     return _check(
         "preparation",
         _listed(problems),
-        f"flasks, solids, purities and masses of the {len(expected)} stock(s) to prepare agree "
-        "with the inputs and the stock totals",
+        f"flasks, solids, purities, masses and dilutions of the {len(expected)} stock(s) to "
+        "prepare agree with the inputs and the stock totals",
     )
 
 

@@ -559,6 +559,65 @@ def test_changed_preparation_fails(document: Document, tmp_path: Path, key, edit
     assert f"{stock} {key}: stated" in checks["preparation"].detail
 
 
+@pytest.fixture(scope="module")
+def copper_document() -> Document:
+    """The copper recipe's plan.json: ligand-dilute is listed without a solid and is the
+    ligand stock diluted with the medium, so it has a dilution recipe."""
+    parsed: Document = json.loads(
+        plan_json(design_plan(load_plan(ROOT / "recipes" / "copper-ligand-excess.toml")))
+    )
+    return parsed
+
+
+def test_dilution_recipe_by_hand(copper_document: Document, tmp_path: Path) -> None:
+    # ligand-dilute (L- 0.005, Na+ 0.1, Cl- 0.095 mol/L) = a ligand (L- 0.10, Na+ 0.10) +
+    # (1 - a) medium (Na+ 0.1, Cl- 0.1) with a = 0.005/0.10 = 0.05: Na+ 0.005 + 0.095 = 0.1,
+    # Cl- 0.95 x 0.1 = 0.095. Per flask: 0.05 x the flask's volume of ligand.
+    entry = preparation_of(copper_document, "ligand-dilute")
+    assert entry["source"] == "ligand"
+    assert entry["aliquot_mL"] == pytest.approx(0.05 * entry["flask_mL"], rel=1e-12)
+    assert (entry["provides"], entry["concentration_M"]) == ("L-", 0.005)
+    # The ligand (no solid, nothing else holds L- at 0.1) must be supplied: no recipe.
+    ligand = preparation_of(copper_document, "ligand")
+    assert (ligand["source"], ligand["solid_formula"], ligand["aliquot_mL"]) == ("", "", 0.0)
+    # The aliquots come out of the ligand's total, the medium of every flask made (copper
+    # from its solid, ligand-dilute by dilution) out of the medium's.
+    totals = copper_document["totals_mL"]
+    aliquots = entry["flasks"] * entry["aliquot_mL"]
+    assert totals["for_stocks"]["ligand"] == pytest.approx(aliquots, rel=1e-12)
+    copper = preparation_of(copper_document, "copper")
+    medium = copper["flasks"] * copper["flask_mL"] + entry["flasks"] * entry["flask_mL"]
+    assert totals["for_stocks"]["medium"] == pytest.approx(medium - aliquots, rel=1e-12)
+    _, checks = verify_command(copper_document, tmp_path)
+    assert checks["preparation"].status == "pass"
+    assert checks["stock-totals"].status == "pass"
+
+
+@pytest.mark.parametrize(
+    ("key", "edit"),
+    [("aliquot_mL", lambda v: 2 * v), ("source", lambda v: "copper")],
+)
+def test_changed_dilution_fails(copper_document: Document, tmp_path: Path, key, edit) -> None:
+    document = json.loads(json.dumps(copper_document))
+    entry = preparation_of(document, "ligand-dilute")
+    entry[key] = edit(entry[key])
+    code, checks = verify_command(document, tmp_path)
+    assert code == 1
+    assert failed(checks) == {"preparation"}
+    assert f"ligand-dilute {key}: stated" in checks["preparation"].detail
+
+
+def test_medium_left_out_of_the_totals_fails(copper_document: Document, tmp_path: Path) -> None:
+    # A plan.json whose to_prepare of the medium leaves out what making the stocks takes.
+    document = json.loads(json.dumps(copper_document))
+    totals = document["totals_mL"]
+    totals["to_prepare"]["medium"] -= totals["for_stocks"].pop("medium")
+    code, checks = verify_command(document, tmp_path)
+    assert code == 1
+    assert "stock-totals" in failed(checks)
+    assert "to_prepare medium" in checks["stock-totals"].detail
+
+
 def test_missing_or_unknown_preparation_fails(document: Document, tmp_path: Path) -> None:
     stock = limiting_stock(document)
     entries = document["preparation"]
