@@ -115,8 +115,9 @@ def test_volumes_per_bench_section_session_and_to_prepare(planned):
     #   containers = 3 x 10 = 30; dead volume = 5 x 30 = 150 mL
     #   to prepare = 1206 x 1.15 + 150 = 1386.9 + 150 = 1536.9 mL
     # and likewise iron-dilute 8.7 -> 261 -> 450.15 mL, thiocyanate 48.5 -> 1455 -> 1823.25 mL,
-    # acid 12.6 -> 378 -> 584.7 mL. The test redoes this for every stock of every plan from
-    # the plan's own mixtures, so it holds whatever the design chooses.
+    # acid 12.6 -> 378 -> 584.7 mL, + the medium of the three stocks made from solids. The test
+    # redoes this for every stock of every plan from the plan's own mixtures, so it holds
+    # whatever the design chooses.
     inputs, plan = planned
     session = inputs.session
     sets = session.sections * session.benches_per_section * session.replicates
@@ -154,7 +155,8 @@ def test_flasks_and_masses_of_solid(planned):
     #   iron-dilute 450.15 mL -> one 500 mL flask; m = 0.040 x 0.500 x 403.992 / 0.985 = 8.2029 g
     #   thiocyanate 1823.25 mL -> one 2000 mL flask; m = 6.0e-4 x 2.000 x 97.176 / 0.99
     #     = 0.11779 g of KSCN
-    #   acid 584.7 mL -> one 1000 mL flask, no solid.
+    #   acid 584.7 + 2000 + 500 + 2000 (their medium) = 5084.7 mL -> three 2000 mL flasks, no
+    #   solid.
     inputs, plan = planned
     made = {p.stock: p for p in plan.preparations}
     used = [s for s in inputs.stocks if plan.totals.to_prepare[s.id] > 0]
