@@ -253,14 +253,14 @@ def check(
     excess: Annotated[
         float,
         typer.Option(
-            "--excess", help="Total concentration of the reagent in excess [mol/L], 0 to 1e6."
+            "--excess", help="Total concentration of the reagent in excess [mol/L], 0 to 20."
         ),
     ],
     limiting: Annotated[
         float,
         typer.Option(
             "--limiting",
-            help="Total concentration of the limiting reagent [mol/L], 1e-30 to 1e6.",
+            help="Total concentration of the limiting reagent [mol/L], 1e-30 to 20.",
         ),
     ],
     tolerance: Annotated[
@@ -277,9 +277,11 @@ def check(
 
     Solves the 1:1 equilibrium exactly and reports the bound fraction of the limiting reagent,
     the relative error of the assumption, and the smallest total excess that meets the
-    tolerance. Exit status 1 when the excess is insufficient, 2 for a value outside the
-    accepted ranges: K from 1e-60 to 1e60 L/mol, excess from 0 to 1e6 mol/L, limiting from
-    1e-30 to 1e6 mol/L, tolerance from 1e-6 to below 1 (nan and inf are refused).
+    tolerance, rounded up and checked again; above 10 mol/L it says no excess fixes it. Exit
+    status 1 when the excess is insufficient, 2 for a value outside the accepted ranges: K
+    from 1e-60 to 1e60 L/mol, excess from 0 to 20 mol/L, limiting from 1e-30 to 20 mol/L
+    (20 mol/L: the most a stock may hold), tolerance from 1e-6 to below 1 (nan and inf are
+    refused).
     """
 
     def body() -> int:

@@ -338,7 +338,7 @@ def combined_plan(plans: tuple[Plan, ...], *, session_checks: tuple[Check, ...] 
     inputs = dataclasses.replace(
         first.inputs, session=dataclasses.replace(first.inputs.session, sections=len(plans))
     )
-    totals = combined_totals([p.totals for p in plans])
+    totals = combined_totals([p.totals for p in plans], inputs)
     session = inventory_check(inputs, totals)
     sections = [
         Check(c.name, c.status, f"section {n}: {c.detail}")

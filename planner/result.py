@@ -183,9 +183,13 @@ class Totals:
     session
         per_bench x benches_per_section x sections x replicates.
     to_prepare
-        session x (1 + margin) + dead volume per bench container.
+        session x (1 + margin) + dead volume per bench container, + ``for_stocks``.
     dead_volume_mL
         The dead volume assumed per stock and bench container [mL].
+    for_stocks
+        What the prep room uses of a stock to make up the others [mL]: the medium that fills
+        their flasks to the mark, and the aliquots that dilution recipes take from it. Only
+        stocks that serve so are keys.
     """
 
     per_bench: dict[str, float]
@@ -193,6 +197,7 @@ class Totals:
     session: dict[str, float]
     to_prepare: dict[str, float]
     dead_volume_mL: float
+    for_stocks: dict[str, float] = field(default_factory=dict)
 
 
 @dataclass(frozen=True, slots=True)
@@ -221,6 +226,12 @@ class StockPreparation:
         Target concentration of that ion [mol/L].
     medium
         The medium to make it up in (the diluent's composition), for the label.
+    source
+        For a stock made by dilution, the stock it is diluted from; ``""`` otherwise (made
+        from its solid, or supplied ready-made when it has neither solid nor source).
+    aliquot_mL
+        For a dilution, the volume of ``source`` per flask, made up to the mark with the
+        medium [mL]; 0 otherwise.
     """
 
     stock: str
@@ -233,6 +244,8 @@ class StockPreparation:
     provides: str
     concentration_M: float
     medium: str
+    source: str = ""
+    aliquot_mL: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)

@@ -15,13 +15,18 @@ verification, ``preparation`` and ``prediction``, for a saved result (``planner 
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections import Counter, defaultdict
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 
 import numpy as np
 
-from planner.chem.assumption import min_excess_M
+from planner.chem.assumption import (
+    LARGEST_DISSOLVED_M,
+    PRACTICAL_FREE_EXCESS_M,
+    checked_round_up,
+)
 from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, mix_M
 from planner.chem.species import molar_mass_g_per_mol
@@ -828,38 +833,122 @@ def _assumption(
         f"absorptivity from these standards comes out about {100 * (1 - achieved):.1f} % low, "
         f"and K is biased with it{k_error}"
     )
-    excess, k = _excess_partner(inputs)
-    if excess is not None and k is not None:
-        needed = min_excess_M(k, float(state.limiting_total[worst]), tolerance)
-        column = state.ions.names.index(excess)
-        have = float(state.initial[worst, column])
-        stock_volume = {
-            st.id: mixtures[worst].volume_of(st.id)
-            for st in inputs.stocks
-            if excess in st.contains_M
-        }
-        main = max(stock_volume, key=lambda s: stock_volume[s]) if stock_volume else None
-        if main and stock_volume[main] > 0:
-            factor = needed / max(have, 1e-300)
-            stronger = inputs.stock(main).contains_M[excess] * factor
-            detail += (
-                f". Fix: an excess of {needed:.3g} mol/L {excess} in the standards (now "
-                f"{have:.3g}), e.g. the {main} stock at no less than {stronger:.3g} mol/L with the "
-                f"same volumes, or accept a tolerance of {1 - achieved:.3g}"
-            )
-            if needed - (1 - tolerance) * float(state.limiting_total[worst]) > 1.0:
-                detail += (
-                    "; that excess is out of practical reach (above about 1 mol/L of free "
-                    "excess), so plan the global fit: fit eps and K together with the "
-                    "exact equilibrium model"
-                )
+    accept = checked_round_up(1.0 - achieved, lambda t: achieved >= 1.0 - t, digits=2)
+    accept_text = f"accept a tolerance of {accept:.2g}" if accept is not None and accept < 1 else ""
+    excess, _ = _excess_partner(inputs)
+    if excess is None:
+        detail += f". Fix: a larger excess{', or ' + accept_text if accept_text else ''}"
     else:
-        detail += f". Fix: a larger excess, or accept a tolerance of {1 - achieved:.3g}"
+        detail += ". Fix: " + _excess_fix(inputs, mixtures, indices, excess, accept_text)
     if analysis == "global-fit":
         # The global fit fits eps and K with the full equilibrium model: it does not assume
         # the standards all bound, so their shortfall is information, not a fault.
         return Check("limiting-reagent-assumption", "warn", detail + GLOBAL_FIT_NOTE)
     return Check("limiting-reagent-assumption", "fail", detail)
+
+
+def _with_concentration(inputs: PlanInputs, stock_id: str, ion: str, value_M: float) -> PlanInputs:
+    """A copy of the inputs with one ion of one stock at another concentration."""
+    stocks = tuple(
+        dataclasses.replace(st, contains_M={**st.contains_M, ion: value_M})
+        if st.id == stock_id
+        else st
+        for st in inputs.stocks
+    )
+    return dataclasses.replace(inputs, stocks=stocks)
+
+
+def _solve_concentration(
+    c_now_M: float, passes: Callable[[float], bool], digits: int = 3
+) -> float | None:
+    """The smallest concentration from ``c_now_M`` up to :data:`LARGEST_DISSOLVED_M` that
+    ``passes`` accepts, by bisection on log c (the bound fraction rises with the excess),
+    rounded up to ``digits`` significant digits and accepted again; None when even
+    LARGEST_DISSOLVED_M fails [mol/L]."""
+    low, high = c_now_M, LARGEST_DISSOLVED_M
+    if low >= high or not passes(high):
+        return None
+    for _ in range(60):
+        if high / low < 1.0 + 1e-6:
+            break
+        middle = math.sqrt(low * high)
+        if passes(middle):
+            high = middle
+        else:
+            low = middle
+    found = checked_round_up(high, passes, digits)
+    return found if found is not None and found <= LARGEST_DISSOLVED_M else None
+
+
+def _excess_fix(
+    inputs: PlanInputs,
+    mixtures: Sequence[Mixture],
+    indices: Sequence[int],
+    excess: str,
+    accept_text: str,
+) -> str:
+    """The fix of a failed assumption check, solved for and checked again.
+
+    For each stock of the excess reagent the standards use (the one giving the worst standard
+    most of its excess first), the concentration that makes every standard meet the
+    tolerance with the same volumes is found with the full equilibrium model, and the changed
+    plan (a copy of the inputs) is re-mixed and solved again before it is offered. A fix
+    above :data:`LARGEST_DISSOLVED_M` is impossible, and said so.
+    """
+    tolerance = inputs.design.assumption_tolerance
+    standards = [mixtures[i] for i in indices]
+    limiting = inputs.design.limiting
+
+    def passes_with(stock_id: str) -> Callable[[float], bool]:
+        def passes(c_M: float) -> bool:
+            fixed = _with_concentration(inputs, stock_id, excess, c_M)
+            return bool(np.min(_State(fixed, standards).bound) >= 1.0 - tolerance)
+
+        return passes
+
+    def contribution(st: Stock) -> float:
+        return max(st.contains_M[excess] * m.volume_of(st.id) for m in standards)
+
+    sources = sorted(
+        (
+            st
+            for st in inputs.stocks
+            if excess in st.contains_M
+            and limiting not in st.contains_M
+            and any(m.volume_of(st.id) > 0 for m in standards)
+        ),
+        key=lambda st: -contribution(st),
+    )
+    alternative = f", or {accept_text}" if accept_text else ""
+    for st in sources:
+        now = st.contains_M[excess]
+        value = _solve_concentration(now, passes_with(st.id))
+        if value is None:
+            continue
+        fixed = _State(_with_concentration(inputs, st.id, excess, value), standards)
+        column = fixed.ions.names.index(excess)
+        held = float(np.max(fixed.initial[:, column]))
+        free = float(np.max(fixed.free[:, inputs.reaction.components.index(excess)]))
+        text = (
+            f"the {st.id} stock at {value:.3g} mol/L {excess} (now {now:.3g}) with the same "
+            f"volumes, so that the standards hold up to {held:.3g} mol/L {excess} and every "
+            f"one binds at least {100 * (1 - tolerance):g} % (solved with the equilibrium "
+            f"model and checked again){alternative}"
+        )
+        if free > PRACTICAL_FREE_EXCESS_M:
+            text += (
+                f"; that stock leaves {free:.3g} mol/L of free {excess}, out of practical reach "
+                "(above about 1 mol/L the excess reagent sets the medium), so plan the global "
+                "fit: fit eps and K together with the exact equilibrium model"
+            )
+        return text
+    names = _names([st.id for st in sources]) if sources else f"no stock of {excess}"
+    return (
+        f"impossible on this shelf by a stronger {excess} stock: even {LARGEST_DISSOLVED_M:g} "
+        f"mol/L {excess} in {names} (the most a dissolved reagent reaches, common practice) "
+        "leaves a standard short of the tolerance; plan the global fit (fit eps and K "
+        f"together with the exact equilibrium model){alternative}"
+    )
 
 
 def _speciation(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> Check:
@@ -965,7 +1054,8 @@ def _expected_totals(
     """Stock volumes per bench, section, session and to prepare, from the recipes [mL].
 
     to_prepare = session x (1 + margin) + dead volume x bench containers, for a stock the
-    recipes use (docs/methods.md section 13).
+    recipes use, + what making the other stocks takes of it (``for_stocks``: the medium
+    of every flask made and the aliquots of dilutions; docs/methods.md section 13).
     """
     session = inputs.session
     containers = session.sections * session.benches_per_section
@@ -983,19 +1073,114 @@ def _expected_totals(
             if bench > 0
             else 0.0
         )
+    making = _stock_making(inputs, expected["to_prepare"])
+    expected["for_stocks"] = making
+    for stock_id, volume in making.items():
+        expected["to_prepare"][stock_id] += volume
     return expected
+
+
+def _stock_making(inputs: PlanInputs, for_mixtures: Mapping[str, float]) -> dict[str, float]:
+    """What making the stocks takes of each stock [mL]: a dilution's aliquot (fraction x
+    flask, per flask) from its source, then, for every flask made from a solid or by
+    dilution, the flask's volume less the aliquot from the diluent (docs/methods.md
+    section 13). Only stocks that serve are keys."""
+    dilutions = _dilutions(inputs)
+    taken: dict[str, float] = {}
+    for target, (source, fraction) in dilutions.items():
+        if for_mixtures[target] > 0:
+            flask_mL, flasks = _stock_flasks(for_mixtures[target])
+            taken[source] = taken.get(source, 0.0) + flasks * fraction * flask_mL
+    diluent = inputs.diluent
+    if diluent is not None:
+        medium = 0.0
+        for st in inputs.stocks:
+            volume = for_mixtures[st.id] + taken.get(st.id, 0.0)
+            if st.diluent or volume <= 0 or (st.solid is None and st.id not in dilutions):
+                continue
+            flask_mL, flasks = _stock_flasks(volume)
+            fraction = dilutions[st.id][1] if st.id in dilutions else 0.0
+            medium += flasks * flask_mL * (1.0 - fraction)
+        if medium > 0:
+            taken[diluent.id] = taken.get(diluent.id, 0.0) + medium
+    return {k: v for k, v in taken.items() if v > 0}
+
+
+# Relative agreement of every listed ion asked of a dilution (docs/methods.md section 13:
+# concentrations typed to three or four digits; common practice).
+_DILUTION_RTOL = 1e-3
+
+
+def _dilutions(inputs: PlanInputs) -> dict[str, tuple[str, float]]:
+    """Stocks without a solid made by diluting another with the medium: id -> (source id,
+    fraction of the source). The fraction a solves c_target = a c_source + (1 - a) c_medium
+    for the first reaction component (else ion, by name) whose source and medium
+    concentrations differ, and must hold for every listed ion within 0.1 %, with
+    0 < a < 0.999. Sources are stocks with a solid or that nothing else makes; the largest
+    aliquot wins, then plan order."""
+    diluent = inputs.diluent
+    medium = dict(diluent.contains_M) if diluent is not None else {}
+    components = set(inputs.reaction.components)
+    shelf = [st for st in inputs.stocks if not st.diluent]
+
+    def fraction_of(target: Stock, source: Stock) -> float | None:
+        if target.id == source.id:
+            return None
+        names = set(target.contains_M) | set(source.contains_M) | set(medium)
+        ordered = sorted(c for c in names if c in components) + sorted(
+            c for c in names if c not in components
+        )
+        conc = [
+            (target.contains_M.get(n, 0.0), source.contains_M.get(n, 0.0), medium.get(n, 0.0))
+            for n in ordered
+        ]
+        differing = [(t, src, m) for t, src, m in conc if src != m]
+        if not differing:
+            return None
+        t0, s0, m0 = differing[0]
+        a = (t0 - m0) / (s0 - m0)
+        if not 0.0 < a < 1.0 - _DILUTION_RTOL:
+            return None
+        for t, src, m in conc:
+            if abs(a * src + (1.0 - a) * m - t) > _DILUTION_RTOL * max(t, src, m):
+                return None
+        return a
+
+    def makers(target: Stock) -> list[tuple[int, Stock, float]]:
+        found = []
+        for n, source in enumerate(shelf):
+            a = fraction_of(target, source)
+            if a is not None:
+                found.append((n, source, a))
+        return found
+
+    sources = {st.id for st in shelf if st.solid is not None or not makers(st)}
+    result: dict[str, tuple[str, float]] = {}
+    for st in shelf:
+        if st.solid is None:
+            usable = [(a, -n, src.id) for n, src, a in makers(st) if src.id in sources]
+            if usable:
+                a, _, source_id = max(usable)
+                result[st.id] = (source_id, a)
+    return result
 
 
 def _stock_totals(inputs: PlanInputs, mixtures: Sequence[Mixture], totals: Totals) -> Check:
     session = inputs.session
     problems = []
-    for key, volumes in _expected_totals(inputs, mixtures).items():
+    expected = _expected_totals(inputs, mixtures)
+    for key, volumes in expected.items():
         for stock_id, value in volumes.items():
             stated = getattr(totals, key).get(stock_id)
             if stated is None or not _close(stated, value, 1e-9, 1e-9):
                 problems.append(f"{key} {stock_id}: {_pair(stated, value)} mL")
+    for stock_id in sorted(set(totals.for_stocks) - set(expected["for_stocks"])):
+        problems.append(
+            f"for_stocks {stock_id}: {_pair(totals.for_stocks[stock_id], 0.0)} mL (it makes "
+            "no other stock)"
+        )
     known = {st.id for st in inputs.stocks}
-    for key in ("per_bench", "per_section", "session", "to_prepare"):
+    for key in ("per_bench", "per_section", "session", "to_prepare", "for_stocks"):
         strangers = sorted(set(getattr(totals, key)) - known)
         if strangers:
             problems.append(f"{key} lists stocks the plan does not have: {_names(strangers)}")
@@ -1008,7 +1193,8 @@ def _stock_totals(inputs: PlanInputs, mixtures: Sequence[Mixture], totals: Total
         "stock-totals",
         problems,
         f"per-bench totals x {session.sets} sets, + {100 * session.margin:g} % margin and "
-        f"{session.dead_volume_mL:g} mL dead volume per bench container",
+        f"{session.dead_volume_mL:g} mL dead volume per bench container, + the medium and "
+        "aliquots that make up the stocks",
     )
 
 
@@ -1116,6 +1302,23 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
     flask_mL, flasks = _stock_flasks(volume_mL)
     medium = _medium(inputs.diluent)
     solid = stock.solid
+    dilution = _dilutions(inputs).get(stock.id)
+    if dilution is not None:
+        reagent = [ion for ion in stock.contains_M if ion in inputs.reaction.components]
+        return StockPreparation(
+            stock=stock.id,
+            flask_mL=flask_mL,
+            flasks=flasks,
+            solid_formula="",
+            molar_mass_g_per_mol=0.0,
+            purity=1.0,
+            mass_g=0.0,
+            provides=reagent[0] if reagent else "",
+            concentration_M=stock.contains_M[reagent[0]] if reagent else 0.0,
+            medium=medium,
+            source=dilution[0],
+            aliquot_mL=dilution[1] * flask_mL,
+        )
     if solid is None:
         return StockPreparation(
             stock=stock.id,
@@ -1170,8 +1373,9 @@ _PREPARATION_NUMBERS = (
     ("purity", "", 0.0),
     ("mass_g", "g", 1e-9),
     ("concentration_M", "mol/L", 0.0),
+    ("aliquot_mL", "mL", 1e-9),
 )
-_PREPARATION_TEXTS = ("solid_formula", "provides", "medium")
+_PREPARATION_TEXTS = ("solid_formula", "provides", "medium", "source")
 
 
 def _preparation(
@@ -1217,8 +1421,8 @@ def _preparation(
     return _check(
         "preparation",
         _listed(problems),
-        f"flasks, solids, purities and masses of the {len(expected)} stock(s) to prepare agree "
-        "with the inputs and the stock totals",
+        f"flasks, solids, purities, masses and dilutions of the {len(expected)} stock(s) to "
+        "prepare agree with the inputs and the stock totals",
     )
 
 

@@ -11,6 +11,8 @@ import time
 from pathlib import Path
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from typer.testing import CliRunner
 
 from planner.cli import app
@@ -138,6 +140,98 @@ def test_check_json_with_minus_zero_excess_reports_zero():
     assert str(document["excess_M"]) == "0.0"  # not -0.0
 
 
+# Issue 11, item 7: a fix the check offers is solved for and works when applied. The old text
+# printed the minimum to four digits, rounded to nearest: 0.500147 mol/L became "0.5001",
+# which falls short, and "accept a tolerance of 9.27 %" was below the 9.2707 % error.
+
+_WORKED = ["check", "--k", "98", "--excess", "0.1", "--limiting", "1.5e-4", "--tolerance", "0.02"]
+
+
+def _number_after(words: str, text: str) -> float:
+    import re
+
+    text = " ".join(text.replace("│", " ").split())  # the panel's border, where lines wrap
+    found = re.search(re.escape(words) + r" ([0-9.e+-]+)", text)
+    assert found, text
+    return float(found.group(1))
+
+
+def test_check_suggested_excess_passes_when_applied():
+    text = " ".join(run(*_WORKED).stdout.split())
+    excess = _number_after("Raise the total excess to at least", text)
+    # Hand figure: 0.98*1.5e-4 + 0.98/(98*0.02) = 0.500147 mol/L; rounded up, 0.5002.
+    assert excess == pytest.approx(0.5002)
+    applied = [*_WORKED]
+    applied[applied.index("--excess") + 1] = repr(excess)
+    assert run(*applied).exit_code == 0
+
+
+def test_check_suggested_tolerance_passes_when_applied():
+    text = " ".join(run(*_WORKED).stdout.split())
+    percent = _number_after("or accept a tolerance of", text)
+    applied = [*_WORKED]
+    applied[applied.index("--tolerance") + 1] = repr(percent / 100)
+    assert run(*applied).exit_code == 0
+
+
+def test_check_impossible_excess_is_said_to_be_impossible():
+    # 15 mol/L limiting, K = 98, 2 %: the smallest excess is 0.98*15 + 0.5 = 15.2 mol/L,
+    # above the 10 mol/L a dissolved reagent reaches (common practice): no raise is offered.
+    result = run("check", "--k", "98", "--excess", "0.1", "--limiting", "15")
+    assert result.exit_code == 1
+    text = " ".join(result.stdout.split())
+    assert "No excess fixes this" in text
+    assert "15.2 mol/L" in text
+    assert "Raise the total excess" not in text
+    document = json.loads(
+        run("check", "--k", "98", "--excess", "0.1", "--limiting", "15", "--format", "json").stdout
+    )
+    assert document["suggested_excess_M"] is None
+    assert document["excess_reachable"] is False
+
+
+@pytest.mark.parametrize(("option", "value"), [("--excess", "500"), ("--limiting", "25")])
+def test_check_concentration_beyond_any_stock_exits_2(option, value):
+    # Issue 11, item 9: more than the 20 mol/L a plan's stock may hold is a typo, not an
+    # answer (the old range went to 1e6 mol/L and answered "OK").
+    args = {"--k": "98", "--excess": "0.1", "--limiting": "1e-4", option: value}
+    result = run("check", *[x for pair in args.items() for x in pair])
+    assert result.exit_code == 2
+    message = " ".join(result.stderr.split())
+    assert message.startswith(f"error: {option}: ")
+    assert "20 mol/L" in message
+    assert "Fix:" in message
+
+
+_CHECK_VALUES = st.one_of(
+    st.floats(allow_nan=True, allow_infinity=True),
+    st.sampled_from([0.0, -0.0, 1e-300, 5e-324, 1e308, 20.0, 20.000001, 10.0, 1e60, 1e-60]),
+    st.floats(1e-6, 20.0),
+)
+
+
+@settings(max_examples=60, deadline=None)
+@given(k=_CHECK_VALUES, excess=_CHECK_VALUES, limiting=_CHECK_VALUES, tolerance=_CHECK_VALUES)
+def test_check_answers_every_input_and_its_fix_works(k, excess, limiting, tolerance):
+    # Issue 11, item 9: a result (0 or 1) or a clear error naming the option (2), never a
+    # traceback; and a suggested excess, applied, passes.
+    values = {"--k": k, "--excess": excess, "--limiting": limiting, "--tolerance": tolerance}
+    args = ["check", *[x for o, v in values.items() for x in (o, repr(v))], "--format", "json"]
+    result = runner.invoke(app, args, catch_exceptions=False)
+    assert result.exit_code in (0, 1, 2)
+    assert "Traceback" not in result.stderr + result.stdout
+    if result.exit_code == 2:
+        message = " ".join(result.stderr.split())
+        assert any(message.startswith(f"error: {o}: ") for o in values), message
+        assert "Fix:" in message
+        return
+    document = json.loads(result.stdout)
+    assert (document["verdict"] == "ok") == (result.exit_code == 0)
+    if document["suggested_excess_M"] is not None:
+        args[args.index("--excess") + 1] = repr(document["suggested_excess_M"])
+        assert runner.invoke(app, args, catch_exceptions=False).exit_code == 0
+
+
 def test_plan_default_json_has_every_contract_key():
     result = run("plan", "--format", "json")
     assert result.exit_code == 0, result.stderr
@@ -181,7 +275,9 @@ def test_plan_failed_check_exits_1_with_failures_first(tmp_path):
     names = [c["name"] for c in checks if c["status"] == "fail"]
     assert "limiting-reagent-assumption" in names
     detail = next(c["detail"] for c in checks if c["name"] == "limiting-reagent-assumption")
-    assert "stock at no less than" in detail
+    # 0.1 % needs about 10.2 mol/L of free iron(III): no stock makes that (issue 11, item 7:
+    # the old text still asked for a stronger stock).
+    assert "Fix: impossible on this shelf" in detail
     assert "tolerance of" in detail
 
 

@@ -1,21 +1,38 @@
 """Prep-room logistics: stock volumes per bench, section and session, and how to make them.
 
-to_prepare = session x (1 + margin) + dead volume x bench containers. The dead volume is what
-stays unusable in each bench's container of a stock (the bottom of a beaker a pipette cannot
-reach, the tip and stopcock of a buret): ``session.dead_volume_mL`` per stock and bench
-(common practice: 5 mL for a beaker with a pipette, more for a buret's reservoir).
+to_prepare = session x (1 + margin) + dead volume x bench containers + what making the other
+stocks takes of it. The dead volume is what stays unusable in each bench's container of a
+stock (the bottom of a beaker a pipette cannot reach, the tip and stopcock of a buret):
+``session.dead_volume_mL`` per stock and bench (common practice: 5 mL for a beaker with a
+pipette, more for a buret's reservoir).
+
+Making the stocks takes some of them: every stock made in the prep room is made up to the
+mark of its flasks with the medium (the diluent stock), taken as the flasks' whole volume
+less any aliquot (the solid's own volume neglected, so the medium is never short: common
+practice); and a stock listed without a solid that is the same solution as a stronger stock of
+the shelf, diluted with the medium, is made from it by dilution: an aliquot a V of the source
+per flask of volume V, with a the fraction c_target = a c_source + (1 - a) c_medium of every
+listed ion (conservation of amount on dilution; Harris, Quantitative Chemical Analysis, 9th
+ed., 2016, eq. 1-5). Those volumes are added to the medium's and the source's to_prepare.
 """
 
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections import defaultdict
+from collections.abc import Mapping, Sequence
 
 from planner.chem.species import molar_mass_g_per_mol
 from planner.inputs import PlanInputs, Stock
 from planner.result import Mixture, StockPreparation, Totals
 
-__all__ = ["FLASK_SIZES_mL", "combined_totals", "preparations", "stock_totals"]
+__all__ = [
+    "FLASK_SIZES_mL",
+    "combined_totals",
+    "dilution_recipes",
+    "preparations",
+    "stock_totals",
+]
 
 #: Volumetric flask sizes a prep room usually has for making stocks [mL]
 #: (ISO 1042 nominal capacities, from memory).
@@ -48,13 +65,124 @@ def stock_totals(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Totals:
         k: (v * (1.0 + session.margin) + session.dead_volume_mL * containers) if v > 0 else 0.0
         for k, v in total.items()
     }
-    return Totals(
-        per_bench=per_bench,
-        per_section=per_section,
-        session=total,
-        to_prepare=to_prepare,
-        dead_volume_mL=session.dead_volume_mL,
+    return _with_stock_making(
+        inputs,
+        Totals(
+            per_bench=per_bench,
+            per_section=per_section,
+            session=total,
+            to_prepare=to_prepare,
+            dead_volume_mL=session.dead_volume_mL,
+        ),
     )
+
+
+def _with_stock_making(inputs: PlanInputs, totals: Totals) -> Totals:
+    """``totals`` (whose to_prepare is for the mixtures alone) with what making the stocks
+    takes: each dilution's aliquots added to its source, then the medium of every flask made
+    added to the diluent (module notes)."""
+    for_mixtures = totals.to_prepare
+    recipes = dilution_recipes(inputs)
+    extra: dict[str, float] = defaultdict(float)
+    for target, (source, fraction) in recipes.items():
+        volume = for_mixtures.get(target, 0.0)
+        if volume > 0:
+            flask_mL, flasks = _flask_plan(volume)
+            extra[source] += flasks * fraction * flask_mL
+    diluent = inputs.diluent
+    if diluent is not None:
+        for stock in inputs.stocks:
+            volume = for_mixtures.get(stock.id, 0.0) + extra.get(stock.id, 0.0)
+            made_here = stock.solid is not None or stock.id in recipes
+            if stock.diluent or volume <= 0 or not made_here:
+                continue  # the medium itself, unused, or supplied ready-made
+            flask_mL, flasks = _flask_plan(volume)
+            aliquot_mL = recipes[stock.id][1] * flask_mL if stock.id in recipes else 0.0
+            extra[diluent.id] += flasks * (flask_mL - aliquot_mL)
+    for_stocks = {k: v for k, v in extra.items() if v > 0}
+    return Totals(
+        per_bench=totals.per_bench,
+        per_section=totals.per_section,
+        session=totals.session,
+        to_prepare={k: v + for_stocks.get(k, 0.0) for k, v in for_mixtures.items()},
+        dead_volume_mL=totals.dead_volume_mL,
+        for_stocks=for_stocks,
+    )
+
+
+# Relative agreement asked of every listed ion of a dilution, c_target = a c_source +
+# (1 - a) c_medium: concentrations are typed to three or four digits, so 1e-3 accepts their
+# rounding and no real difference of composition (common practice).
+_DILUTION_RTOL = 1e-3
+
+
+def _dilution_fraction(
+    target: Mapping[str, float],
+    source: Mapping[str, float],
+    medium: Mapping[str, float],
+    components: Sequence[str],
+) -> float | None:
+    """The fraction a of ``source`` in ``target`` when target = a source + (1 - a) medium
+    for every listed ion, with 0 < a < 1; else None. a is set by the first reaction
+    component (else ion) in which source and medium differ."""
+    ions = sorted(set(target) | set(source) | set(medium), key=lambda i: (i not in components, i))
+    fraction = None
+    for ion in ions:
+        s_M, m_M = source.get(ion, 0.0), medium.get(ion, 0.0)
+        if s_M != m_M:
+            fraction = (target.get(ion, 0.0) - m_M) / (s_M - m_M)
+            break
+    if fraction is None or not 0.0 < fraction < 1.0 - _DILUTION_RTOL:
+        return None
+    for ion in ions:
+        s_M, m_M, t_M = source.get(ion, 0.0), medium.get(ion, 0.0), target.get(ion, 0.0)
+        if abs(fraction * s_M + (1.0 - fraction) * m_M - t_M) > _DILUTION_RTOL * max(s_M, m_M, t_M):
+            return None
+    return fraction
+
+
+def dilution_recipes(inputs: PlanInputs) -> dict[str, tuple[str, float]]:
+    """Which stocks without a solid are made by diluting another stock of the shelf.
+
+    Parameters
+    ----------
+    inputs
+        The plan (its stocks and diluent).
+
+    Returns
+    -------
+    dict
+        stock id -> (source stock id, fraction a of the source per flask [unitless]). A
+        source is a stock with a solid, or one without that no other stock can make (supplied
+        ready-made), so no recipe depends on another; among several sources the one with
+        the largest aliquot (the weakest) is taken, the first in plan order on a tie. Stocks
+        without a solid that no source makes are absent: they must be supplied.
+    """
+    diluent = inputs.diluent
+    medium = diluent.contains_M if diluent is not None else {}
+    components = inputs.reaction.components
+    stocks = [st for st in inputs.stocks if not st.diluent]
+
+    def sources(stock: Stock) -> list[tuple[Stock, float]]:
+        found = []
+        for source in stocks:
+            if source.id == stock.id:
+                continue
+            fraction = _dilution_fraction(stock.contains_M, source.contains_M, medium, components)
+            if fraction is not None:
+                found.append((source, fraction))
+        return found
+
+    roots = {st.id for st in stocks if st.solid is not None or not sources(st)}
+    recipes: dict[str, tuple[str, float]] = {}
+    for stock in stocks:
+        if stock.solid is not None:
+            continue
+        options = [(source, a) for source, a in sources(stock) if source.id in roots]
+        if options:
+            source, fraction = max(options, key=lambda option: option[1])
+            recipes[stock.id] = (source.id, fraction)
+    return recipes
 
 
 def _medium(diluent: Stock | None) -> str:
@@ -94,12 +222,33 @@ def preparations(inputs: PlanInputs, totals: Totals) -> tuple[StockPreparation, 
     medium = _medium(inputs.diluent)
     result = []
     components = inputs.reaction.components
+    recipes = dilution_recipes(inputs)
     for stock in inputs.stocks:
         volume = totals.to_prepare.get(stock.id, 0.0)
         if volume <= 0:
             continue
         flask_mL, flasks = _flask_plan(volume)
         solid = stock.solid
+        if stock.id in recipes:
+            source, fraction = recipes[stock.id]
+            provides = next((i for i in stock.contains_M if i in components), "")
+            result.append(
+                StockPreparation(
+                    stock=stock.id,
+                    flask_mL=flask_mL,
+                    flasks=flasks,
+                    solid_formula="",
+                    molar_mass_g_per_mol=0.0,
+                    purity=1.0,
+                    mass_g=0.0,
+                    provides=provides,
+                    concentration_M=stock.contains_M[provides] if provides else 0.0,
+                    medium=medium,
+                    source=source,
+                    aliquot_mL=fraction * flask_mL,
+                )
+            )
+            continue
         if solid is None:
             result.append(
                 StockPreparation(
@@ -139,31 +288,42 @@ def preparations(inputs: PlanInputs, totals: Totals) -> tuple[StockPreparation, 
     return tuple(result)
 
 
-def combined_totals(totals: Sequence[Totals]) -> Totals:
+def combined_totals(totals: Sequence[Totals], inputs: PlanInputs) -> Totals:
     """Stock volumes of several sections' plans added up [mL] (each keeps its dead volume).
 
     Parameters
     ----------
     totals
         One Totals per section, all for the same stocks.
+    inputs
+        The plan, for making up the stocks once for all sections together.
 
     Returns
     -------
     Totals
-        Sums per stock; ``per_bench`` and ``per_section`` are the largest of any section.
+        Sums per stock; ``per_bench`` and ``per_section`` are the largest of any section;
+        what making the stocks takes is worked out again for the summed volumes.
     """
     first = totals[0]
 
     def add(key: str) -> dict[str, float]:
         return {s: sum(getattr(t, key).get(s, 0.0) for t in totals) for s in first.session}
 
+    for_mixtures = {
+        s: sum(t.to_prepare.get(s, 0.0) - t.for_stocks.get(s, 0.0) for t in totals)
+        for s in first.session
+    }
+
     def largest(key: str) -> dict[str, float]:
         return {s: max(getattr(t, key).get(s, 0.0) for t in totals) for s in first.session}
 
-    return Totals(
-        per_bench=largest("per_bench"),
-        per_section=largest("per_section"),
-        session=add("session"),
-        to_prepare=add("to_prepare"),
-        dead_volume_mL=first.dead_volume_mL,
+    return _with_stock_making(
+        inputs,
+        Totals(
+            per_bench=largest("per_bench"),
+            per_section=largest("per_section"),
+            session=add("session"),
+            to_prepare=for_mixtures,
+            dead_volume_mL=first.dead_volume_mL,
+        ),
     )

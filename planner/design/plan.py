@@ -8,6 +8,7 @@ run once by :mod:`planner.pipeline`; this package imports neither.
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -15,6 +16,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.analysis import Layout, all_bound_mean_K
+from planner.chem.assumption import LARGEST_DISSOLVED_M, checked_round_down, checked_round_up
 from planner.design.candidates import CandidateSet, candidate_set
 from planner.design.logistics import preparations, stock_totals
 from planner.design.mixtures import (
@@ -25,6 +27,7 @@ from planner.design.mixtures import (
     mean_K_objective,
 )
 from planner.design.standards import StandardsChoice, choose_standards
+from planner.errors import PlannerError
 from planner.inputs import PlanInputs
 from planner.result import Addition, Check, Delivery, Mixture, Role, StockPreparation, Totals
 
@@ -131,26 +134,23 @@ def mixture_from_candidate(
 
 def _feasibility(inputs: PlanInputs, candidates: CandidateSet, n_standards: int) -> list[Check]:
     """Say which constraint binds when the shelf cannot make what the design asks."""
-    ev = candidates.evaluation
     low, high = inputs.instrument.absorbance_window
-    limiting = inputs.reaction.components.index(inputs.design.limiting)
-    coloured = ev.total_M[:, limiting] > 0
-    if not np.any(coloured):
+    extremes = _window_extremes(inputs, candidates)
+    if extremes is None:
         return [
             Check(
                 "design-feasibility", "fail", "no deliverable mixture contains the limiting reagent"
             )
         ]
-    top = float(np.max(ev.absorbance[coloured]))
-    bottom = float(np.min(ev.absorbance[coloured]))
+    top, bottom = extremes
     if top < low:
         return [
             Check(
                 "design-feasibility",
                 "fail",
                 f"the strongest mixture the shelf can make reads {top:.3f}, below the window's "
-                f"{low:g}: use a limiting stock at least {low / max(top, 1e-12):.2g} times "
-                "stronger, a longer cuvette, or larger pipettes",
+                f"{low:g}: {_limiting_fix(inputs, stronger=True)}; or use a longer cuvette or "
+                "larger pipettes",
             )
         ]
     if bottom > high:
@@ -159,7 +159,7 @@ def _feasibility(inputs: PlanInputs, candidates: CandidateSet, n_standards: int)
                 "design-feasibility",
                 "fail",
                 f"the weakest mixture the shelf can make reads {bottom:.3f}, above the window's "
-                f"{high:g}: dilute the limiting stock or add a smaller pipette",
+                f"{high:g}: {_limiting_fix(inputs, stronger=False)}; or add a smaller pipette",
             )
         ]
     if n_standards < inputs.design.standards:
@@ -172,6 +172,90 @@ def _feasibility(inputs: PlanInputs, candidates: CandidateSet, n_standards: int)
             )
         ]
     return []
+
+
+def _window_extremes(inputs: PlanInputs, candidates: CandidateSet) -> tuple[float, float] | None:
+    """Readings of the strongest and the weakest mixture holding the limiting reagent, or
+    None when no deliverable mixture holds it."""
+    ev = candidates.evaluation
+    limiting = inputs.reaction.components.index(inputs.design.limiting)
+    coloured = ev.total_M[:, limiting] > 0
+    if not np.any(coloured):
+        return None
+    return float(np.max(ev.absorbance[coloured])), float(np.min(ev.absorbance[coloured]))
+
+
+# Rounds of "scale the limiting stock by the ratio still missing": the reading is nearly
+# proportional to the limiting total, so two or three usually land inside the window.
+_WINDOW_FIX_ROUNDS = 8
+
+
+def _limiting_fix(inputs: PlanInputs, *, stronger: bool) -> str:
+    """The limiting stock's concentration that brings the strongest mixture up to the
+    window's low end (``stronger``) or the weakest down to its high end, solved for and
+    checked again on a copy of the inputs with every candidate mixed and read anew; or why no
+    concentration does (above :data:`LARGEST_DISSOLVED_M`, or the reading does not follow the
+    limiting reagent).
+    """
+    low, high = inputs.instrument.absorbance_window
+    limiting = inputs.design.limiting
+    stocks = [st for st in inputs.stocks if limiting in st.contains_M and not st.diluent]
+    if not stocks:
+        return f"give a stock of {limiting}"
+    stock = max(stocks, key=lambda st: st.contains_M[limiting])
+    now = stock.contains_M[limiting]
+
+    def reading(c_M: float) -> float | None:
+        changed = dataclasses.replace(stock, contains_M={**stock.contains_M, limiting: c_M})
+        fixed = dataclasses.replace(
+            inputs, stocks=tuple(changed if st.id == stock.id else st for st in inputs.stocks)
+        )
+        try:
+            extremes = _window_extremes(fixed, candidate_set(fixed))
+        except PlannerError:
+            return None
+        if extremes is None:
+            return None
+        return extremes[0] if stronger else extremes[1]
+
+    def passes(c_M: float) -> bool:
+        value = reading(c_M)
+        return value is not None and (value >= low if stronger else value <= high)
+
+    target = low if stronger else high
+    value = now
+    found: float | None = None
+    for _ in range(_WINDOW_FIX_ROUNDS):
+        read = reading(value)
+        if read is None or read <= 0:
+            break
+        if (read >= low) if stronger else (read <= high):
+            found = value
+            break
+        # Overshoot the ratio a little so that the last round lands inside, not at the edge.
+        value *= (target / read) * (1.01 if stronger else 0.99)
+        if value > LARGEST_DISSOLVED_M:
+            break
+    if found is not None:
+        rounded = (checked_round_up if stronger else checked_round_down)(found, passes, 3)
+        if rounded is not None and rounded <= LARGEST_DISSOLVED_M:
+            edge = "reaches" if stronger else "falls below"
+            return (
+                f"make the {stock.id} stock {rounded:.3g} mol/L {limiting} (now {now:.3g}), "
+                f"with which the {'strongest' if stronger else 'weakest'} mixture {edge} "
+                f"{target:g} (mixed and read again)"
+            )
+    if stronger:
+        return (
+            f"no strength of the {stock.id} stock does it: it would need more than "
+            f"{LARGEST_DISSOLVED_M:g} mol/L {limiting}, the most a dissolved reagent reaches "
+            "(common practice)"
+        )
+    return (
+        f"diluting the {stock.id} stock does not bring it down: the reading does not follow "
+        f"{limiting} (the excess reagent or the medium reads above the window), so choose "
+        "another wavelength, where they absorb less"
+    )
 
 
 def _epsilon_relative_u(

@@ -10,8 +10,7 @@ from rich.panel import Panel
 from rich.table import Table
 from rich.text import Text
 
-from planner.chem.assumption import PRACTICAL_FREE_EXCESS_M, AssumptionCheck
-from planner.chem.equilibrium import one_to_one_complex_M
+from planner.chem.assumption import LARGEST_DISSOLVED_M, PRACTICAL_FREE_EXCESS_M, AssumptionCheck
 
 __all__ = ["check_document", "render_check"]
 
@@ -36,16 +35,15 @@ def check_document(result: AssumptionCheck) -> dict[str, Any]:
         "epsilon_bias": result.epsilon_bias,
         "verdict": result.verdict,
         "practical": result.practical,
+        "diluted_bound_fraction": result.diluted_bound_fraction,
+        "suggested_excess_M": result.suggested_excess_M,
+        "excess_reachable": result.excess_reachable,
+        "suggested_tolerance": result.suggested_tolerance,
     }
 
 
 def _pct(value: float) -> str:
     return f"{100 * value:.3g} %"
-
-
-def _diluted_fraction(result: AssumptionCheck) -> float:
-    diluted = one_to_one_complex_M(result.excess_M / 10, result.limiting_M / 10, result.K)
-    return float(diluted) / (result.limiting_M / 10)
 
 
 def _bias_sentence(result: AssumptionCheck) -> str:
@@ -79,7 +77,7 @@ def render_check(result: AssumptionCheck) -> Group:
         "assumption error", f"{_pct(result.assumption_error)} (tolerance {_pct(result.tolerance)})"
     )
     table.add_row("free excess", f"{result.free_excess_M:.4g} mol/L")
-    table.add_row("smallest sufficient excess", f"{result.min_excess_M:.4g} mol/L total")
+    table.add_row("smallest sufficient excess", f"{result.min_excess_M:.6g} mol/L total")
     verdict = Text(
         "OK: the excess is large enough" if ok else "INSUFFICIENT: the excess is too small",
         style="bold green" if ok else "bold red",
@@ -90,7 +88,7 @@ def render_check(result: AssumptionCheck) -> Group:
         f"(f = K[M]free / (1 + K[M]free)).",
         "The free excess concentration decides, not the ratio of the totals: the same "
         f"ratio at ten times lower concentrations would bind only "
-        f"{_pct(_diluted_fraction(result))}.",
+        f"{_pct(result.diluted_bound_fraction)}.",
     ]
     if not ok:
         lines.append(_bias_sentence(result))
@@ -100,7 +98,14 @@ def render_check(result: AssumptionCheck) -> Group:
             f"({result.limiting_M:.4g} mol/L): the roles are swapped, the reagent called "
             "the excess runs short, so this mixture cannot serve as a standard."
         )
-    if not result.practical:
+    if not ok and not result.excess_reachable:
+        lines.append(
+            f"No excess fixes this: the tolerance needs {result.min_excess_M:.4g} mol/L of the "
+            f"excess reagent in the mixture, above the {LARGEST_DISSOLVED_M:g} mol/L a "
+            "dissolved reagent reaches (common practice). Lower the limiting total, accept a "
+            "larger tolerance, or fit eps and K together with the exact equilibrium model."
+        )
+    elif not result.practical:
         lines.append(
             f"Out of practical reach: this tolerance needs a free excess of "
             f"{result.min_free_excess_M:.3g} mol/L, above about {PRACTICAL_FREE_EXCESS_M:g} mol/L, "
@@ -108,12 +113,14 @@ def render_check(result: AssumptionCheck) -> Group:
             "tolerance and correct for the bound fraction, or fit eps and K together with the "
             "exact equilibrium model."
         )
-    elif not ok:
-        # Accepting the present error is advice only while most of the reagent is bound.
+    elif not ok and result.suggested_excess_M is not None:
+        # Both figures are solved for and checked again in planner.chem.assumption.
         accept = (
-            f", or accept a tolerance of {_pct(result.assumption_error)}"
-            if result.assumption_error < 0.5
+            f", or accept a tolerance of {_pct(result.suggested_tolerance)}"
+            if result.suggested_tolerance is not None
             else ""
         )
-        lines.append(f"Raise the total excess to at least {result.min_excess_M:.4g} mol/L{accept}.")
+        lines.append(
+            f"Raise the total excess to at least {result.suggested_excess_M:.4g} mol/L{accept}."
+        )
     return Group(table, Panel(Text("\n".join(lines)), title=verdict, title_align="left"))

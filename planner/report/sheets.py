@@ -47,7 +47,7 @@ from planner.report._format import (
 )
 from planner.report.cautions import cautions_for, label_hazards
 from planner.report.plan_json import checks_worst_first
-from planner.result import Plan, Role, StockRole
+from planner.result import Plan, Role, StockPreparation, StockRole
 
 __all__ = [
     "READINGS_COLUMNS",
@@ -367,7 +367,7 @@ def _preparation_rows(plan: Plan) -> list[_PreparationRow]:
             _PreparationRow(
                 stock=prep.stock,
                 flasks=f"{prep.flasks} × {plain(prep.flask_mL, 4)} mL",
-                solid=prep.solid_formula if has_solid else "none listed (make by dilution)",
+                solid=prep.solid_formula if has_solid else _no_solid(prep),
                 molar_mass=f"{significant(prep.molar_mass_g_per_mol, 5)} g/mol"
                 if has_solid
                 else "-",
@@ -382,6 +382,18 @@ def _preparation_rows(plan: Plan) -> list[_PreparationRow]:
     return rows
 
 
+def _no_solid(prep: StockPreparation) -> str:
+    """The Solid cell of a stock without one: its dilution, or who supplies it."""
+    if prep.source:
+        return (
+            f"none: dilute {significant(prep.aliquot_mL, 4)} mL of {prep.source} per flask "
+            "to the mark"
+        )
+    if not prep.medium:
+        return "none listed (the medium itself)"
+    return "none listed: must be supplied ready-made"
+
+
 def _labels(plan: Plan) -> list[_Label]:
     preparations = {p.stock: p for p in plan.preparations}
     labels = []
@@ -392,6 +404,8 @@ def _labels(plan: Plan) -> list[_Label]:
             lines.append(f"Medium: {prep.medium}")
         if prep is not None and prep.solid_formula:
             lines.append(f"Made from: {prep.solid_formula}")
+        elif prep is not None and prep.source:
+            lines.append(f"Made from: {prep.source}, diluted")
         hazards = label_hazards(stock)
         if hazards:
             lines.append("Caution: " + "; ".join(hazards))
@@ -463,6 +477,13 @@ def _prep_context(plan: Plan, date: str) -> dict[str, Any]:
         "each bench container. Per section = per bench × benches per section × replicates; "
         "session = the sum over sections."
     )
+    making = plan.totals.for_stocks
+    if making:
+        dead_volume_line += (
+            " To prepare also holds what making the stocks takes: "
+            + ", ".join(f"{significant(v)} mL of {k}" for k, v in making.items())
+            + " (the medium that fills each flask to the mark, and the aliquots of dilutions)."
+        )
     labels_line = (
         f"Print one label per bench container ({benches}) and one per prep flask of each stock."
     )

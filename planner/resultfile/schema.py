@@ -172,6 +172,10 @@ class TotalsEntry(Entry):
     dead_volume_mL: float | None = Field(
         None, description="the dead volume per stock and bench container [mL], a number"
     )
+    for_stocks: dict[str, float] = Field(
+        default_factory=dict,
+        description=f"{_VOLUMES} used to make up the other stocks (medium and aliquots)",
+    )
 
 
 class CheckEntry(Entry):
@@ -197,6 +201,12 @@ class PreparationEntry(Entry):
     provides: str = Field(description='the ion the solid provides, e.g. "SCN-", or ""')
     concentration_M: float = Field(description="that ion's concentration [mol/L], a number")
     medium: str = Field(description="what the stock is made up in, for the label")
+    source: str = Field(
+        "", description='the stock it is diluted from, in double quotes, or "" (not a dilution)'
+    )
+    aliquot_mL: float = Field(
+        0.0, description="the volume of that stock per flask [mL], a number (0: no dilution)"
+    )
 
 
 class PredictionEntry(Entry):

@@ -20,6 +20,7 @@ Outside references:
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 import math
 import tomllib
@@ -114,8 +115,9 @@ def test_volumes_per_bench_section_session_and_to_prepare(planned):
     #   containers = 3 x 10 = 30; dead volume = 5 x 30 = 150 mL
     #   to prepare = 1206 x 1.15 + 150 = 1386.9 + 150 = 1536.9 mL
     # and likewise iron-dilute 8.7 -> 261 -> 450.15 mL, thiocyanate 48.5 -> 1455 -> 1823.25 mL,
-    # acid 12.6 -> 378 -> 584.7 mL. The test redoes this for every stock of every plan from
-    # the plan's own mixtures, so it holds whatever the design chooses.
+    # acid 12.6 -> 378 -> 584.7 mL, + the medium of the three stocks made from solids. The test
+    # redoes this for every stock of every plan from the plan's own mixtures, so it holds
+    # whatever the design chooses.
     inputs, plan = planned
     session = inputs.session
     sets = session.sections * session.benches_per_section * session.replicates
@@ -136,7 +138,14 @@ def test_volumes_per_bench_section_session_and_to_prepare(planned):
             if per_bench > 0
             else 0.0
         )
+        # + what making the other stocks takes of it (pinned by hand in the tests below).
+        needed += totals.for_stocks.get(stock.id, 0.0)
         assert totals.to_prepare[stock.id] == pytest.approx(needed, rel=1e-12)
+    # The medium fills every flask made from a solid or by dilution, less the aliquots.
+    made = [p for p in plan.preparations if p.solid_formula or p.source]
+    if inputs.diluent is not None and made:
+        medium = sum(p.flasks * (p.flask_mL - p.aliquot_mL) for p in made)
+        assert totals.for_stocks[inputs.diluent.id] == pytest.approx(medium, rel=1e-12)
 
 
 def test_flasks_and_masses_of_solid(planned):
@@ -146,7 +155,8 @@ def test_flasks_and_masses_of_solid(planned):
     #   iron-dilute 450.15 mL -> one 500 mL flask; m = 0.040 x 0.500 x 403.992 / 0.985 = 8.2029 g
     #   thiocyanate 1823.25 mL -> one 2000 mL flask; m = 6.0e-4 x 2.000 x 97.176 / 0.99
     #     = 0.11779 g of KSCN
-    #   acid 584.7 mL -> one 1000 mL flask, no solid.
+    #   acid 584.7 + 2000 + 500 + 2000 (their medium) = 5084.7 mL -> three 2000 mL flasks, no
+    #   solid.
     inputs, plan = planned
     made = {p.stock: p for p in plan.preparations}
     used = [s for s in inputs.stocks if plan.totals.to_prepare[s.id] > 0]
@@ -250,12 +260,15 @@ def test_hand_typed_bench_totals(big_session):
         {"iron-strong": 2640.0, "iron-dilute": 0.0, "thiocyanate": 2040.0, "acid": 1320.0}
     )
     # to prepare = session x 1.10 + 4 mL x 4 sections x 10 benches (160 mL), used stocks only:
-    # iron-strong 2640 x 1.10 + 160 = 2904 + 160 = 3064 mL
-    # thiocyanate 2040 x 1.10 + 160 = 2244 + 160 = 2404 mL
+    # iron-strong 2640 x 1.10 + 160 = 2904 + 160 = 3064 mL -> 2 flasks of 2000 mL
+    # thiocyanate 2040 x 1.10 + 160 = 2244 + 160 = 2404 mL -> 2 flasks of 2000 mL
     # acid        1320 x 1.10 + 160 = 1452 + 160 = 1612 mL; iron-dilute 0 (not used)
+    # and the two stocks are made up to the mark in the acid (issue 11, item 9): 2 x 2000 +
+    # 2 x 2000 = 8000 mL more acid, 1612 + 8000 = 9612 mL.
     assert totals.to_prepare == pytest.approx(
-        {"iron-strong": 3064.0, "iron-dilute": 0.0, "thiocyanate": 2404.0, "acid": 1612.0}
+        {"iron-strong": 3064.0, "iron-dilute": 0.0, "thiocyanate": 2404.0, "acid": 9612.0}
     )
+    assert totals.for_stocks == pytest.approx({"acid": 8000.0})
     assert totals.dead_volume_mL == 4.0
 
 
@@ -280,9 +293,59 @@ def test_hand_typed_bench_preparations(big_session):
     assert scn.provides == "SCN-"
     assert scn.mass_g == pytest.approx(6.0e-4 * 2.000 * _molar_mass("KSCN") / 0.99, rel=1e-9)
     assert scn.mass_g == pytest.approx(0.117789, abs=1e-5)
-    # acid 1612 mL: one 2000 mL flask, no solid (it is the diluent).
+    # acid 9612 mL (the stocks' medium included): ceil(9612/2000) = 5 flasks of 2000 mL, no
+    # solid (it is the diluent).
     acid = made["acid"]
-    assert (acid.flask_mL, acid.flasks, acid.mass_g) == (2000.0, 1, 0.0)
+    assert (acid.flask_mL, acid.flasks, acid.mass_g) == (2000.0, 5, 0.0)
+    assert (acid.source, acid.aliquot_mL) == ("", 0.0)
+
+
+def test_hand_typed_dilution_recipe_and_medium(big_session):
+    # iron-dilute listed without its solid (an invented edit): Fe3+ 0.040, H+ 0.5, NO3- 0.62
+    # mol/L is iron-strong (0.40, 0.5, 1.7) diluted with the acid (H+ 0.5, NO3- 0.5) at
+    # a = 0.040/0.40 = 0.1: NO3- 0.1 x 1.7 + 0.9 x 0.5 = 0.62, H+ 0.1 x 0.5 + 0.9 x 0.5 = 0.5.
+    inputs = dataclasses.replace(
+        big_session,
+        stocks=tuple(
+            dataclasses.replace(st, solid=None) if st.id == "iron-dilute" else st
+            for st in big_session.stocks
+        ),
+    )
+    bench = (*BENCH, _mixture("T3", "test", {"acid": 5.0, "iron-dilute": 5.0}))
+    totals = stock_totals(inputs, bench)
+    # iron-dilute: 5 mL per bench x 120 = 600 mL; 600 x 1.10 + 160 = 820 mL -> one 1000 mL
+    # flask with 0.1 x 1000 = 100 mL of iron-strong, made up with 900 mL of acid.
+    # iron-strong: 3064 + 100 = 3164 mL -> 2 x 2000 mL, 4000 mL of acid; thiocyanate 2 x 2000,
+    # 4000 mL of acid; acid: 16 mL per bench x 120 = 1920; 1920 x 1.10 + 160 = 2272 mL,
+    # + 900 + 4000 + 4000 = 11172 mL.
+    assert totals.for_stocks == pytest.approx({"iron-strong": 100.0, "acid": 8900.0})
+    assert totals.to_prepare == pytest.approx(
+        {"iron-strong": 3164.0, "iron-dilute": 820.0, "thiocyanate": 2404.0, "acid": 11172.0}
+    )
+    made = {p.stock: p for p in preparations(inputs, totals)}
+    dilute = made["iron-dilute"]
+    assert (dilute.flask_mL, dilute.flasks) == (1000.0, 1)
+    assert dilute.source == "iron-strong"
+    assert dilute.aliquot_mL == pytest.approx(100.0, rel=1e-12)
+    assert (dilute.provides, dilute.concentration_M, dilute.mass_g) == ("Fe3+", 0.040, 0.0)
+    assert made["iron-strong"].source == ""
+    assert made["acid"].flasks == 6  # ceil(11172 / 2000)
+
+
+def test_a_stock_no_other_makes_is_supplied(big_session):
+    # thiocyanate without its solid: no other stock holds SCN-, so it has no recipe here
+    # and takes no medium (2404 mL of it must be supplied ready-made).
+    inputs = dataclasses.replace(
+        big_session,
+        stocks=tuple(
+            dataclasses.replace(st, solid=None) if st.id == "thiocyanate" else st
+            for st in big_session.stocks
+        ),
+    )
+    totals = stock_totals(inputs, BENCH)
+    assert totals.for_stocks == pytest.approx({"acid": 4000.0})  # iron-strong's 2 x 2000
+    made = {p.stock: p for p in preparations(inputs, totals)}
+    assert (made["thiocyanate"].source, made["thiocyanate"].solid_formula) == ("", "")
 
 
 @pytest.mark.parametrize(

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import re
 from pathlib import Path
 
 import numpy as np
@@ -11,7 +12,7 @@ import pytest
 from planner.chem.equilibrium import one_to_one_complex_M
 from planner.lab.glassware import is_deliverable
 from planner.pipeline import design_plan
-from planner.planfile import load_plan
+from planner.planfile import load_plan, plan_from_mapping, plan_to_mapping
 
 ROOT = Path(__file__).resolve().parents[2]
 PLANS = [ROOT / "planner" / "data" / "default.toml", *sorted((ROOT / "recipes").glob("*.toml"))]
@@ -125,7 +126,68 @@ def test_infeasible_window_says_what_binds(tmp_path):
     assert plan.failed
     feasibility = next(c for c in plan.checks if c.name == "design-feasibility")
     assert feasibility.status == "fail"
-    assert "stronger" in feasibility.detail
+    assert "make the thiocyanate stock" in feasibility.detail
+
+
+# Issue 11, item 7: a window fix names the limiting stock and a concentration that, applied to
+# the plan, brings the mixtures into the window (the old text said "a limiting stock at least
+# 33 times stronger", naming no stock, and went on to ask for more than a solution can hold).
+
+_WINDOW_FIX = re.compile(r"make the (\S+) stock ([0-9.e+-]+) mol/L (\S+) \(now")
+
+
+def _with_thiocyanate(contains_M, path_length_cm=None):
+    mapping = plan_to_mapping(load_plan(PLANS[0]))
+    stock = next(st for st in mapping["stocks"] if st["id"] == "thiocyanate")
+    stock["contains_M"] = contains_M
+    if path_length_cm is not None:
+        mapping["instrument"]["path_length_cm"] = path_length_cm
+    return mapping
+
+
+def _feasibility_after_fix(mapping):
+    detail = next(
+        c for c in design_plan(plan_from_mapping(mapping)).checks if c.name == "design-feasibility"
+    ).detail
+    found = _WINDOW_FIX.search(detail)
+    assert found is not None, detail
+    stock_id, value, ion = found.group(1), float(found.group(2)), found.group(3)
+    assert (stock_id, ion) == ("thiocyanate", "SCN-")  # the limiting stock, not another
+    stock = next(st for st in mapping["stocks"] if st["id"] == stock_id)
+    stock["contains_M"][ion] = value
+    fixed = design_plan(plan_from_mapping(mapping))
+    return detail, value, [c.detail for c in fixed.checks if c.name == "design-feasibility"]
+
+
+def test_window_fix_for_a_weak_limiting_stock_works_when_applied():
+    mapping = _with_thiocyanate({"SCN-": 1.0e-6, "K+": 1.0e-6, "H+": 0.5, "NO3-": 0.5})
+    detail, value, after = _feasibility_after_fix(mapping)
+    assert "below the window" in detail
+    assert value > 1.0e-6
+    assert not any("below the window" in d for d in after), after
+
+
+def test_window_fix_for_a_strong_limiting_stock_works_when_applied():
+    # The thiocyanate stock made with iron(III) in it too (invented): every mixture holding
+    # thiocyanate is deep red, so the weakest reads above the window until it is diluted.
+    mapping = _with_thiocyanate({"SCN-": 0.02, "K+": 0.02, "Fe3+": 0.4, "H+": 0.5, "NO3-": 1.7})
+    detail, value, after = _feasibility_after_fix(mapping)
+    assert "above the window" in detail
+    assert value < 0.02
+    assert not any("above the window" in d for d in after), after
+
+
+def test_window_fix_beyond_a_solution_is_said_to_be_impossible():
+    # A 0.1 um path (invented): even 10 mol/L thiocyanate, the most a dissolved reagent
+    # reaches (common practice), reads below 0.1.
+    mapping = _with_thiocyanate(
+        {"SCN-": 1.0e-6, "K+": 1.0e-6, "H+": 0.5, "NO3-": 0.5}, path_length_cm=1e-5
+    )
+    detail = next(
+        c for c in design_plan(plan_from_mapping(mapping)).checks if c.name == "design-feasibility"
+    ).detail
+    assert "no strength of the thiocyanate stock does it" in detail
+    assert _WINDOW_FIX.search(detail) is None
 
 
 def test_shortage_fails_stock_inventory(tmp_path):

@@ -36,7 +36,7 @@ MIXTURE_KEYS = {
     "ionic_strength_M",
 }
 ADDITION_KEYS = {"stock", "volume_mL", "devices", "order", "deliveries"}
-TOTALS_KEYS = {"per_bench", "per_section", "session", "to_prepare", "dead_volume_mL"}
+TOTALS_KEYS = {"per_bench", "per_section", "session", "to_prepare", "dead_volume_mL", "for_stocks"}
 PREDICTION_KEYS = {
     "epsilon",
     "u_epsilon",

@@ -267,6 +267,33 @@ def test_prep_sheet(plan):
     assert "absorbance-window" not in text  # a passing check is not
 
 
+def test_prep_sheet_gives_the_dilution_recipe_and_the_medium(plan):
+    # Issue 11, item 9: a stock made by dilution says from which stock and how much per
+    # flask; one with neither solid nor source says it must be supplied; the totals line says
+    # what making the stocks takes (the fixture's numbers, invented: 2 x 12.5 mL of iron per
+    # two 250 mL flasks, 475 + 250 + 250 = 975 mL of diluent).
+    dilute = dataclasses.replace(
+        plan.preparations[0],
+        stock="iron-low",
+        solid_formula="",
+        molar_mass_g_per_mol=0.0,
+        mass_g=0.0,
+        flasks=2,
+        concentration_M=0.01,
+        source="iron",
+        aliquot_mL=12.5,
+    )
+    supplied = dataclasses.replace(dilute, stock="ligand", source="", aliquot_mL=0.0)
+    totals = dataclasses.replace(plan.totals, for_stocks={"iron": 25.0, "diluent": 975.0})
+    edited = dataclasses.replace(
+        plan, preparations=(*plan.preparations, dilute, supplied), totals=totals
+    )
+    for text in (prep_sheet_md(edited, date=DATE), prep_sheet_html(edited, date=DATE)):
+        assert "none: dilute 12.50 mL of iron per flask to the mark" in text
+        assert "none listed: must be supplied ready-made" in text
+        assert "25.00 mL of iron, 975.0 mL of diluent" in text
+
+
 def test_answer_key(plan):
     text = answer_key_md(plan, date=DATE)
     for mixture_id in IDS:
