@@ -238,14 +238,15 @@ def _small_product(left: NDArray[np.float64], right: NDArray[np.float64]) -> NDA
         for k in range(1, left.shape[0]):
             out = out + left[k] * right[k]
         return np.asarray(out, dtype=float)
-    rows = []
+    # Each row is written in place into one output array (stacking separate rows copied
+    # every result once more); the sums are the same, term by term.
+    out = np.empty((left.shape[0], *right.shape[1:]))
     for i in range(left.shape[0]):
-        row = left[i, 0] * right[0]
+        np.multiply(left[i, 0], right[0], out=out[i])
         for k in range(1, left.shape[1]):
             if left[i, k] != 0.0:
-                row = row + left[i, k] * right[k]
-        rows.append(row)
-    return np.stack(rows) if rows else np.zeros((0, *right.shape[1:]))
+                out[i] += left[i, k] * right[k]
+    return out
 
 
 def _species_log(
@@ -462,10 +463,12 @@ def _pcf_start(
     negative = np.clip(-matrix, 0.0, None)
     largest = np.maximum(positive.max(axis=0, initial=0.0), 1.0)[:, None]
     x = np.log(totals) if x is None else x
+    has_negative = bool(np.any(negative))
     for _ in range(sweeps):
         species = np.exp(np.minimum(_species_log(x, matrix, ln_beta), 700.0))
         produced = np.exp(x) + _small_product(positive.T, species)
-        consumed = totals + _small_product(negative.T, species)
+        # Without negative coefficients nothing but the total is consumed.
+        consumed = totals + _small_product(negative.T, species) if has_negative else totals
         x = x + (np.log(consumed) - np.log(produced)) / largest
     return x
 
