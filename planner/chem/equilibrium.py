@@ -366,14 +366,17 @@ def _newton(
     free = np.exp(xa)
     species = np.exp(_species_log(xa, matrix, ln_beta))
     iterations = 0
+    # Without negative coefficients |A| = A, and the scale's sum is the gradient's.
+    signed = bool(np.any(matrix_t < 0))
     while iterations < _MAX_NEWTON:
-        gradient = free + _small_product(matrix_t, species) - ta
+        held = _small_product(matrix_t, species)
+        gradient = free + held - ta
         # Converged when each residual is small against the largest terms of its balance:
         # with positive coefficients those sum to the total T, but a species with a negative
         # coefficient (M(OH) written with -1 H+) can hold far more than T of the component,
         # and then a residual of 1e-12 T is below the rounding of those terms (it never came
         # within reach and the solver reported non-convergence).
-        scale = np.maximum(ta, free + _small_product(abs_t, species))
+        scale = np.maximum(ta, free + (_small_product(abs_t, species) if signed else held))
         done = np.all(np.abs(gradient) <= _RTOL * scale, axis=0)
         if np.any(done):
             x[:, active[done]] = xa[:, done]
