@@ -14,16 +14,15 @@ from __future__ import annotations
 
 import argparse
 import json
-import resource
 import statistics
-import subprocess
 import sys
 import tempfile
-import time
 import tomllib
 from importlib.resources import files
 from pathlib import Path
 from typing import Any
+
+from _timing import children_peak_MB, seconds
 
 from planner.lab.deliveries import MAX_COMBINATIONS, combination_count
 from planner.planfile import MAX_GLASSWARE, MAX_STOCKS, parse_plan
@@ -160,11 +159,6 @@ def plan_text(*, all_stocks: bool = True) -> str:
     return text
 
 
-def _cpu_s() -> float:
-    usage = resource.getrusage(resource.RUSAGE_CHILDREN)
-    return usage.ru_utime + usage.ru_stime
-
-
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--runs", type=int, default=3)
@@ -183,13 +177,9 @@ def main() -> int:
             path.write_text(text, encoding="utf-8")
             command = [sys.executable, "-m", "planner", "plan", str(path), "--format", "json"]
             for _ in range(args.runs):
-                start, used = time.perf_counter(), _cpu_s()
-                done = subprocess.run(command, capture_output=True, check=False)
-                wall[name].append(time.perf_counter() - start)
-                cpu[name].append(_cpu_s() - used)
-                if done.returncode not in (0, 1):
-                    sys.stderr.write(done.stderr.decode())
-                    raise SystemExit(f"planner plan exited {done.returncode}")
+                elapsed, used = seconds(command)
+                wall[name].append(elapsed)
+                cpu[name].append(used)
     figures = {
         "stocks": MAX_STOCKS,
         "glassware": glassware,
@@ -198,7 +188,7 @@ def main() -> int:
         "default_stocks_cpu_median_s": statistics.median(cpu["default"]),
         "default_stocks_wall_median_s": statistics.median(wall["default"]),
         "runs": args.runs,
-        "peak_memory_MB": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024,
+        "peak_memory_MB": children_peak_MB(),
     }
     if args.json:
         print(json.dumps(figures))

@@ -11,31 +11,9 @@ from __future__ import annotations
 
 import argparse
 import json
-import resource
-import statistics
-import subprocess
 import sys
-import time
 
-
-def _cpu_s() -> float:
-    usage = resource.getrusage(resource.RUSAGE_CHILDREN)
-    return usage.ru_utime + usage.ru_stime
-
-
-def _median_s(arguments: list[str], runs: int) -> tuple[float, float]:
-    """Median wall time and median CPU time (user + system) of a command [s]."""
-    times, cpu = [], []
-    for run in range(runs + 1):
-        start, used = time.perf_counter(), _cpu_s()
-        done = subprocess.run(arguments, capture_output=True, check=False)
-        if run:  # the first run compiles bytecode and fills the file cache
-            times.append(time.perf_counter() - start)
-            cpu.append(_cpu_s() - used)
-        if done.returncode not in (0, 1):
-            sys.stderr.write(done.stderr.decode())
-            raise SystemExit(f"{' '.join(arguments)} exited {done.returncode}")
-    return statistics.median(times), statistics.median(cpu)
+from _timing import children_peak_MB, medians
 
 
 def main() -> int:
@@ -44,8 +22,8 @@ def main() -> int:
     parser.add_argument("--json", action="store_true")
     args = parser.parse_args()
     python = sys.executable
-    plan_s, plan_cpu_s = _median_s([python, "-m", "planner", "plan", "--format", "json"], args.runs)
-    check_s, check_cpu_s = _median_s(
+    plan_s, plan_cpu_s = medians([python, "-m", "planner", "plan", "--format", "json"], args.runs)
+    check_s, check_cpu_s = medians(
         [python, "-m", "planner", "check", "--k", "98", "--excess", "0.1", "--limiting", "1.5e-4"],
         args.runs,
     )
@@ -55,8 +33,7 @@ def main() -> int:
         "plan_cpu_median_s": plan_cpu_s,
         "check_cpu_median_s": check_cpu_s,
         "runs": args.runs,
-        # Largest resident set of any planner process run above (kB on Linux).
-        "peak_memory_MB": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024,
+        "peak_memory_MB": children_peak_MB(),
     }
     if args.json:
         print(json.dumps(figures))

@@ -13,12 +13,11 @@ from __future__ import annotations
 
 import argparse
 import json
-import resource
 import statistics
-import subprocess
 import sys
 import tempfile
-import time
+
+from _timing import children_peak_MB, seconds
 
 # The body of `planner plan --out DIR --force` with the plots switched by argv[1].
 _BODY = """
@@ -30,22 +29,6 @@ plan = design_plan(_load(None))
 files = plan_files(plan, date="2026-12-02", plots=sys.argv[1] == "plots")
 write_output_folder(Path(sys.argv[2]), files, force=True)
 """
-
-
-def _cpu_s() -> float:
-    usage = resource.getrusage(resource.RUSAGE_CHILDREN)
-    return usage.ru_utime + usage.ru_stime
-
-
-def _seconds(arguments: list[str]) -> tuple[float, float]:
-    """Wall time and CPU time of one process [s]."""
-    start, cpu = time.perf_counter(), _cpu_s()
-    done = subprocess.run(arguments, capture_output=True, check=False)
-    elapsed, used = time.perf_counter() - start, _cpu_s() - cpu
-    if done.returncode not in (0, 1):
-        sys.stderr.write(done.stderr.decode())
-        raise SystemExit(f"{' '.join(arguments)} exited {done.returncode}")
-    return elapsed, used
 
 
 def main() -> int:
@@ -64,7 +47,7 @@ def main() -> int:
     with tempfile.TemporaryDirectory() as folder:
         for run in range(args.runs + 1):
             for name, command in commands.items():
-                elapsed, used = _seconds([part.format(out=folder) for part in command])
+                elapsed, used = seconds([part.format(out=folder) for part in command])
                 if run:  # the first round compiles bytecode and fills the file cache
                     wall[name].append(elapsed)
                     cpu[name].append(used)
@@ -76,7 +59,7 @@ def main() -> int:
         "plots_added_median_s": w["with"] - w["without"],
         "plots_added_cpu_median_s": c["with"] - c["without"],
         "runs": args.runs,
-        "peak_memory_MB": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024,
+        "peak_memory_MB": children_peak_MB(),
     }
     if args.json:
         print(json.dumps(figures))
