@@ -35,10 +35,9 @@ class Readings:
 
     Attributes
     ----------
-    free_M
-        Free concentration of each component, shape (n, n_components) [mol/L].
-    species_M
-        Concentration of each product species, shape (n, n_species) [mol/L].
+    free_M, species_M
+        The equilibrium the readings come from, as in
+        :class:`planner.chem.equilibrium.Equilibrium` [mol/L].
     true_absorbance
         Beer-Lambert absorbance of every absorber together, shape (n,) [unitless].
     absorbance

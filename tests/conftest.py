@@ -1,13 +1,15 @@
 """Hypothesis settings profiles for the whole test suite.
 
 ``ci`` (the default) is the bounded profile CI runs: 100 examples per property unless a test
-asks for its own number. ``long`` gives every property twenty times as many examples, for a
-deeper search before a release::
+asks for its own number, and 15 % of its nominal count for each fuzz property of
+tests/test_fuzz.py, so that the whole suite stays near 4 minutes of CPU on a 2-core
+machine. ``long`` gives every property twenty times as many examples as its nominal count,
+for a deeper search before a release::
 
     HYPOTHESIS_PROFILE=long python -m pytest tests/test_fuzz.py
 
-Tests that set their own example count scale it with :func:`tests.strategies.budget`, so
-the profile decides the depth everywhere.
+Fuzz properties set their nominal count through :func:`tests.strategies.budget`, so the
+profile decides the depth everywhere.
 """
 
 from __future__ import annotations

@@ -18,6 +18,7 @@ import functools
 import math
 import re
 from collections.abc import Mapping, Sequence
+from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -529,6 +530,69 @@ def _canonical_formula(formula: str) -> str:
         position = separator.end()
 
 
+# One element symbol and its count, or a group's closing parenthesis and its count (decimal
+# for a hydrate's water), in the canonical form _canonical_formula writes.
+_SYMBOL_COUNT = re.compile(r"([A-Z][a-z]?)([0-9]*)")
+_GROUP_COUNT = re.compile(r"[0-9]+(?:\.[0-9]+)?")
+# A formula as periodictable structures one: (count, element) and (count, [group]) pairs.
+_Structure = list[tuple[float, Any]]
+
+
+def _structure(canonical: str) -> _Structure:
+    """Nested (count, element or group) pairs of a canonical formula, in the order written.
+
+    The canonical form (element symbols with integer counts, parentheses, decimal group
+    counts) is read here rather than by periodictable's formula parser, whose grammar
+    library (pyparsing) cost more to import than the rest of ``planner plan`` reading a plan
+    file. Elements are periodictable's; an unknown symbol raises ValueError.
+    """
+    from periodictable import elements
+
+    groups: list[_Structure] = [[]]
+    position = 0
+    while position < len(canonical):
+        if canonical[position] == "(":
+            groups.append([])
+            position += 1
+        elif canonical[position] == ")":
+            group = groups.pop()
+            count = _GROUP_COUNT.match(canonical, position + 1)
+            number: float = 1
+            if count is not None:
+                text = count.group()
+                number = float(text) if "." in text else int(text)
+                position = count.end()
+            else:
+                position += 1
+            groups[-1].append((number, group))
+        else:
+            atom = _SYMBOL_COUNT.match(canonical, position)
+            if atom is None:  # pragma: no cover - _check_formula_body admits nothing else
+                raise ValueError(canonical[position:])
+            groups[-1].append((int(atom[2]) if atom[2] else 1, elements.symbol(atom[1])))
+            position = atom.end()
+    return groups[0]
+
+
+def _count_atoms(structure: _Structure) -> dict[Any, float]:
+    """Atoms of each element, in order of first appearance, as periodictable counts them
+    (``periodictable.formulas``), so the mass below is its sum, term for term."""
+    total: dict[Any, float] = {}
+    for count, fragment in structure:
+        partial = _count_atoms(fragment) if isinstance(fragment, list) else {fragment: 1}
+        for atom, atom_count in partial.items():
+            total[atom] = total.get(atom, 0) + atom_count * count
+    return total
+
+
+def _mass(atoms: dict[Any, float]) -> float:
+    """Σ n_E A_r(E), summed in the order of ``atoms`` as periodictable's ``Formula.mass``."""
+    mass = 0.0
+    for element, count in atoms.items():
+        mass += element.mass * count
+    return mass
+
+
 @functools.lru_cache(maxsize=256)
 def molar_mass_g_per_mol(formula: str) -> float:
     """Molar mass of a compound, hydrate water included.
@@ -558,8 +622,9 @@ def molar_mass_g_per_mol(formula: str) -> float:
     -----
     M = Σ n_E A_r(E) × 1 g/mol, with the relative atomic masses A_r of the periodictable
     package, which uses the IUPAC 2021 standard atomic weights (abridged values for elements
-    given as intervals). The text is parsed here and passed to ``periodictable.formula``
-    only in the canonical form of element symbols, integer counts and parentheses.
+    given as intervals). The text is parsed here, as periodictable's own formula parser
+    would read its canonical form of element symbols, integer counts and parentheses, and
+    summed as periodictable sums a formula's mass.
 
     References
     ----------
@@ -580,18 +645,13 @@ def molar_mass_g_per_mol(formula: str) -> float:
                 formula, f"a count in the formula is larger than {MAX_FORMULA_COUNT}", _LIMITS_HINT
             )
     canonical = _canonical_formula(formula)
-
-    import periodictable
-
     try:
-        compound = periodictable.formula(canonical)
-        # Counted before the mass: nested groups multiply counts beyond float range.
-        too_many = sum(compound.atoms.values()) > MAX_FORMULA_ATOMS
-        mass = math.inf if too_many else float(compound.mass)
+        atoms = _count_atoms(_structure(canonical))
     except ValueError as err:  # unknown element symbol
         raise _bad_formula(formula, f"the formula names an unknown element ({err})") from err
-    except Exception as err:  # periodictable's parser raises pyparsing errors
-        raise _bad_formula(formula, "the formula cannot be read") from err
+    # Counted before the mass: nested groups multiply counts beyond float range.
+    too_many = sum(atoms.values()) > MAX_FORMULA_ATOMS
+    mass = math.inf if too_many else _mass(atoms)
     if too_many:
         raise _bad_formula(
             formula,

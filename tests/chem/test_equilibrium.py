@@ -65,6 +65,23 @@ def test_one_to_one_general_newton_agrees_with_closed_form():
     np.testing.assert_allclose(solved.species_M[:, 0], closed, rtol=1e-10)
 
 
+def test_a_batch_of_several_solver_blocks_agrees_with_the_closed_form():
+    # The solver works through long batches in blocks of mixtures; 70 000 mixtures span
+    # three blocks, with absent components in the first and the last. Each mixture must still
+    # match the closed-form root (Newton path, as in the test above) and the zeros stay exact.
+    rng = np.random.default_rng(12)
+    totals = 10 ** rng.uniform(-7, 0, size=(70_000, 2))
+    totals[[0, 69_999], 0] = 0.0
+    totals[[5, 69_998], 1] = 0.0
+    matrix = np.array([[1.0, 1.0], [2.0, 3.0]])
+    solved = solve_equilibrium(totals, matrix, [3.7, -50.0])
+    closed = one_to_one_complex_M(totals[:, 0], totals[:, 1], 10**3.7)
+    np.testing.assert_allclose(solved.species_M[:, 0], closed, rtol=1e-10)
+    assert solved.free_M.shape == (70_000, 2)
+    for row in (0, 5, 69_998, 69_999):
+        assert solved.species_M[row, 0] == 0.0
+
+
 def test_one_to_two_system_matches_sympy():
     # Reference: sympy solves the two mass balances of M + L = ML, M + 2L = ML2 exactly
     # (nsolve to 40 digits from the planner's answer's neighbourhood, then checked to be the

@@ -302,6 +302,40 @@ def test_molar_mass_against_standard_atomic_weights(formula, expected_g_per_mol)
     )
 
 
+_SYMBOLS = ("H", "C", "N", "O", "Na", "Mg", "S", "Cl", "K", "Ca", "Fe", "Co", "Ni", "Cu")
+
+
+@st.composite
+def _formula_bodies(draw, depth=0):
+    """Element symbols with counts, and parenthesised groups with counts, nested twice (at
+    most 729 atoms and 5e4 g/mol, inside the limits of a solid to weigh out)."""
+    parts = []
+    for _ in range(draw(st.integers(1, 3))):
+        count = draw(st.sampled_from(["", "2", "3"]))
+        if depth < 2 and draw(st.booleans()):
+            parts.append(f"({draw(_formula_bodies(depth + 1))}){count}")
+        else:
+            parts.append(draw(st.sampled_from(_SYMBOLS)) + count)
+    return "".join(parts)
+
+
+@given(
+    body=_formula_bodies(),
+    water=st.sampled_from(["", "(H2O)9", "·9H2O", ".0.5H2O", "*2.25H2O"]),
+)
+def test_formula_reader_weighs_as_periodictable_parses(body, water):
+    # The planner reads formulas itself; periodictable's own parser (pyparsing grammar) is the
+    # reference, summing the same atomic weights (IUPAC 2021, Prohaska et al. 2022).
+    import periodictable
+
+    formula = body + water
+    canonical = body + {"": "", "(H2O)9": "(H2O)9", "·9H2O": "(H2O)9"}.get(
+        water, "(H2O)" + water[1:-3]
+    )
+    expected = float(periodictable.formula(canonical).mass)
+    assert molar_mass_g_per_mol(formula) == pytest.approx(expected, rel=1e-12)
+
+
 def test_dot_hydrate_is_not_read_as_a_decimal_count():
     # "Fe(NO3)3.9H2O" is the nonahydrate (404 g/mol), not 3.9 nitrate groups (316 g/mol).
     assert molar_mass_g_per_mol("Fe(NO3)3.9H2O") == pytest.approx(

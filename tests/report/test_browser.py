@@ -45,6 +45,34 @@ def files():
     return plan, plan_files(plan, date="2026-12-02", plots=True)
 
 
+SHEETS = ("bench-sheets.html", "prep-sheet.html", "answer-key.html")
+PDF_NAMES = ("bench-sheets.pdf", "prep-sheet.pdf", "answer-key.pdf")
+
+
+@pytest.fixture(scope="module")
+def layouts(files):
+    """Each sheet's layout in Chromium, measured once for every test that reads it."""
+    _, contents = files
+    return {name: measure_layout(contents[name], assets=_plots(contents)) for name in SHEETS}
+
+
+@pytest.fixture(scope="module")
+def printed(tmp_path_factory):
+    """The PDFs of two runs of ``planner plan --pdf`` on the recipe (same inputs), by name.
+
+    The runs take several seconds each, so the clock has moved on between them.
+    """
+    runs = []
+    for folder in ("sheets", "again"):
+        out = tmp_path_factory.mktemp(folder) / "out"
+        result = CliRunner().invoke(
+            app, ["plan", str(RECIPE), "--out", str(out), "--pdf", "--date", "2026-12-02"]
+        )
+        assert result.exit_code == 0, result.stderr
+        runs.append({name: (out / name).read_bytes() for name in PDF_NAMES})
+    return runs
+
+
 def _plots(contents):
     return {name: data for name, data in contents.items() if name.startswith("plots/")}
 
@@ -62,10 +90,10 @@ def _assert_fits(layout):
         assert image["right"] <= width + 0.5, image["src"]
 
 
-@pytest.mark.parametrize("name", ["bench-sheets.html", "prep-sheet.html", "answer-key.html"])
-def test_sheet_fits_printable_width_and_names_every_mixture(files, name):
-    plan, contents = files
-    layout = measure_layout(contents[name], assets=_plots(contents))
+@pytest.mark.parametrize("name", SHEETS)
+def test_sheet_fits_printable_width_and_names_every_mixture(files, layouts, name):
+    plan, _ = files
+    layout = layouts[name]
     _assert_fits(layout)
     text = layout["text"]
     if name != "prep-sheet.html":
@@ -74,24 +102,23 @@ def test_sheet_fits_printable_width_and_names_every_mixture(files, name):
     assert "safety data sheets" in text
 
 
-def test_bench_sheets_pdf_has_one_page_per_bench(files, tmp_path):
+def test_bench_sheets_pdf_has_one_page_per_bench(files, printed, tmp_path):
+    # The PDF is the one `planner plan --pdf` printed of the same sheets (html_to_pdf).
     plan, contents = files
     html = tmp_path / "bench-sheets.html"
     html.write_text(contents["bench-sheets.html"])
-    pdf = tmp_path / "bench-sheets.pdf"
-    html_to_pdf(html, pdf)
     benches = plan.inputs.session.sections * plan.inputs.session.benches_per_section
-    assert pdf_page_count(pdf.read_bytes()) == benches
+    assert pdf_page_count(printed[0]["bench-sheets.pdf"]) == benches
     png = tmp_path / "bench-sheets.png"
     html_to_png(html, png)
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
 
-def test_answer_key_shows_every_plot_inside_the_printable_width(files):
+def test_answer_key_shows_every_plot_inside_the_printable_width(files, layouts):
     _, contents = files
     svgs = sorted(name for name in contents if name.startswith("plots/") and name.endswith("svg"))
     assert svgs == ["plots/bound-fraction.svg", "plots/coverage.svg", "plots/ladder.svg"]
-    layout = measure_layout(contents["answer-key.html"], assets=_plots(contents))
+    layout = layouts["answer-key.html"]
     _assert_fits(layout)
     assert sorted(image["src"] for image in layout["images"]) == svgs
     for image in layout["images"]:
@@ -99,17 +126,10 @@ def test_answer_key_shows_every_plot_inside_the_printable_width(files):
         assert image["width"] == pytest.approx(6.6 * 96, abs=1)
 
 
-@pytest.mark.parametrize("name", ["prep-sheet.html", "answer-key.html"])
-def test_other_sheets_print_to_pdf(files, tmp_path, name):
-    _, contents = files
-    for plot, data in _plots(contents).items():
-        (tmp_path / plot).parent.mkdir(exist_ok=True)
-        (tmp_path / plot).write_bytes(data)
-    html = tmp_path / name
-    html.write_text(contents[name])
-    pdf = tmp_path / "out.pdf"
-    html_to_pdf(html, pdf)
-    assert pdf_page_count(pdf.read_bytes()) >= 1
+@pytest.mark.parametrize("name", ["prep-sheet.pdf", "answer-key.pdf"])
+def test_other_sheets_print_to_pdf(printed, name):
+    # Printed by `planner plan --pdf` (html_to_pdf, with the plots beside the sheets).
+    assert pdf_page_count(printed[0][name]) >= 1
 
 
 def test_variants_index_fits():
@@ -123,17 +143,9 @@ def test_variants_index_fits():
     assert "section-02/" in layout["text"]
 
 
-def test_plan_pdf_option_writes_the_same_pdfs_every_run(tmp_path):
+def test_plan_pdf_option_writes_the_same_pdfs_every_run(printed):
     # Issue 9: Chromium stamps the time of printing into every PDF, so two runs differed.
-    # The runs take several seconds each, so the clock has moved on between them.
-    pdfs = []
-    for folder in ("sheets", "again"):
-        out = tmp_path / folder
-        result = CliRunner().invoke(
-            app, ["plan", str(RECIPE), "--out", str(out), "--pdf", "--date", "2026-12-02"]
-        )
-        assert result.exit_code == 0, result.stderr
-        pdfs.append({name: (out / name).read_bytes() for name in PDF_NAMES})
+    pdfs = printed
     for name in PDF_NAMES:
         first = pdfs[0][name]
         assert first.startswith(b"%PDF")
@@ -143,8 +155,6 @@ def test_plan_pdf_option_writes_the_same_pdfs_every_run(tmp_path):
         assert b"/ModDate (D:20261202000000+00'00')" in first
         assert pdfs[1][name] == first, f"{name} differs between two identical runs"
 
-
-PDF_NAMES = ("bench-sheets.pdf", "prep-sheet.pdf", "answer-key.pdf")
 
 # A small PDF in Chromium's layout (invented): an information dictionary with both dates, in
 # the two forms of the PDF date format, and a cross-reference table pointing at each object.

@@ -31,6 +31,7 @@ from planner.report.plots._style import (
 )
 
 if TYPE_CHECKING:
+    from matplotlib.axes import Axes
     from matplotlib.figure import Figure
 
     from planner.result import Plan
@@ -92,6 +93,34 @@ def _id_group(ids: Sequence[str]) -> str:
         if values == list(range(values[0], values[0] + len(values))):
             return f"{ids[0]}–{ids[-1]}"
     return ", ".join(ids)
+
+
+def _points(
+    axes: Axes,
+    x: ArrayLike,
+    y: ArrayLike,
+    *,
+    marker: str,
+    size: float,
+    face: str,
+    gid: str,
+    label: str,
+    zorder: float = 2.0,
+) -> None:
+    """The plan's mixtures as markers edged in ink, without a line (``gid`` names the series;
+    ``zorder`` 2 is matplotlib's default for lines)."""
+    axes.plot(
+        x,
+        y,
+        linestyle="none",
+        marker=marker,
+        markersize=size,
+        markerfacecolor=face,
+        markeredgecolor=_INK,
+        gid=gid,
+        label=label,
+        zorder=zorder,
+    )
 
 
 # ---------------------------------------------------------------------------------------------
@@ -209,14 +238,13 @@ def ladder_figure(plan: Plan) -> Figure:
             gid="assumed",
             label=f"standards at total {_text(limiting)} (usual analysis)",
         )
-        axes.plot(
+        _points(
+            axes,
             x_std,
             y_std,
-            linestyle="none",
             marker="o",
-            markersize=6.5,
-            markerfacecolor=_TEAL,
-            markeredgecolor=_INK,
+            size=6.5,
+            face=_TEAL,
             gid="standards",
             label="standards, predicted",
         )
@@ -233,14 +261,13 @@ def ladder_figure(plan: Plan) -> Figure:
             blank_ids = _id_group([m.id for m in blanks])
             x_blank = [m.equilibrium_M.get(product, 0.0) for m in blanks]
             y_blank = [m.absorbance for m in blanks]
-            axes.plot(
+            _points(
+                axes,
                 x_blank,
                 y_blank,
-                linestyle="none",
                 marker="s",
-                markersize=7,
-                markerfacecolor=_OCHRE,
-                markeredgecolor=_INK,
+                size=7,
+                face=_OCHRE,
                 zorder=4,
                 gid="blank",
                 label=f"blank {_text(blank_ids)}",
@@ -318,7 +345,7 @@ def bound_fraction_figure(plan: Plan) -> Figure:
     Parameters
     ----------
     plan
-        A finished plan with standards.
+        A finished plan whose standards hold the limiting reagent and a reagent in excess.
 
     Returns
     -------
@@ -463,14 +490,13 @@ def bound_fraction_figure(plan: Plan) -> Figure:
                 transform=axes.transAxes,
                 fontsize=9.5,
             )
-        axes.plot(
+        _points(
+            axes,
             x_std,
             f_std,
-            linestyle="none",
             marker="o",
-            markersize=7,
-            markerfacecolor=_OCHRE,
-            markeredgecolor=_INK,
+            size=7,
+            face=_OCHRE,
             zorder=4,
             gid="standards",
             label="the plan's standards",
@@ -559,14 +585,13 @@ def coverage_figure(plan: Plan) -> Figure:
                 label=f"design range {plain(low, 3)}–{plain(high, 3)}" if k == 0 else None,
             )
         axes.hlines(rows, 0.0, fractions, color=_RULE, linewidth=0.8, zorder=1)
-        axes.plot(
+        _points(
+            axes,
             fractions,
             rows,
-            linestyle="none",
             marker="D",
-            markersize=7,
-            markerfacecolor=_TEAL,
-            markeredgecolor=_INK,
+            size=7,
+            face=_TEAL,
             zorder=3,
             gid="tests",
             label="test mixtures",
