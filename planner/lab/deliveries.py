@@ -18,7 +18,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.ndimage import minimum_filter1d
 
 from planner.errors import InvalidInputError
 from planner.inputs import Device
@@ -913,6 +912,38 @@ def _sparse_min(
     return volumes_pL[first], keys[first]
 
 
+def backward_window_min(values: NDArray[np.float64], size: int) -> NDArray[np.float64]:
+    """Minimum of each row and the ``size - 1`` rows before it (infinity before the first).
+
+    The van Herk / Gil-Werman algorithm (van Herk, Pattern Recognit. Lett. 13 (1992) 517-521;
+    Gil and Werman, IEEE Trans. PAMI 15 (1993) 504-507, from memory): running minima within
+    blocks of ``size`` rows, forward and backward, give every window's minimum from two of
+    them, so the work is linear in the rows whatever ``size`` is.
+
+    Parameters
+    ----------
+    values
+        Shape (n, m); windows run along axis 0.
+    size
+        Window length, >= 1.
+
+    Returns
+    -------
+    NDArray[np.float64]
+        Shape (n, m).
+    """
+    n, m = values.shape
+    total = n + size - 1
+    blocks = -(-total // size)
+    padded = np.full((blocks * size, m), np.inf)
+    padded[size - 1 : size - 1 + n] = values
+    grouped = padded.reshape(blocks, size, m)
+    prefix = np.minimum.accumulate(grouped, axis=1).reshape(-1, m)
+    suffix = np.minimum.accumulate(grouped[:, ::-1], axis=1)[:, ::-1].reshape(-1, m)
+    result: NDArray[np.float64] = np.minimum(suffix[:n], prefix[size - 1 : size - 1 + n])
+    return result
+
+
 def volume_table(
     glassware: Sequence[Device],
     *,
@@ -960,6 +991,7 @@ def volume_table(
     greatest common divisor of every volume, grid start and step, in pL) when it has at most
     ``_MAX_SLOTS`` slots, else on sorted sparse arrays.
     """
+
     if max_deliveries < 1:
         raise InvalidInputError(
             "at least one delivery is needed",
@@ -1032,9 +1064,7 @@ def volume_table(
             shifted[: slots - first] = states[: slots - first]
             by_class = shifted.reshape(-1, step)
             size = min(grid.count, by_class.shape[0])
-            window = minimum_filter1d(
-                by_class, size, axis=0, mode="constant", cval=np.inf, origin=(size - 1) // 2
-            )
+            window = backward_window_min(by_class, size)
             operations += length
             candidate = window.reshape(-1)[: slots - first] + big + u2
             np.minimum(best[first:], candidate, out=best[first:])

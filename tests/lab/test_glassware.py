@@ -691,3 +691,20 @@ def test_own_min_delivery_raises_the_least_delivery():
     table = volume_table([buret], max_volume_mL=25.0)
     assert table.volumes_mL()[0] == 2.0
     assert not delivers(buret, 1.5)
+
+
+@pytest.mark.parametrize(
+    ("rows", "columns", "size"), [(1, 1, 1), (7, 3, 1), (50, 4, 7), (64, 2, 8), (9, 5, 20)]
+)
+def test_backward_window_min_is_scipys_minimum_filter(rows, columns, size):
+    # Reference: scipy.ndimage.minimum_filter1d with constant infinite padding and the origin
+    # moved so that each window ends at its own row.
+    from scipy.ndimage import minimum_filter1d
+
+    from planner.lab.deliveries import backward_window_min
+
+    values = np.random.default_rng(rows * 31 + size).random((rows, columns))
+    expected = minimum_filter1d(
+        values, size, axis=0, mode="constant", cval=np.inf, origin=(size - 1) // 2
+    )
+    assert np.array_equal(backward_window_min(values, size), expected)
