@@ -9,7 +9,8 @@ line turns into an exception), the group is killed and the scratch folder remove
 
 The PDFs are the same bytes for the same sheets: Chromium stamps the time of printing into
 the document information (``/CreationDate``, ``/ModDate``), which :func:`html_to_pdf`
-replaces with the sheets' date.
+replaces with the sheets' date, and names structure elements after DOM nodes, which it
+renumbers by rank (:func:`fixed_pdf_node_ids`).
 """
 
 from __future__ import annotations
@@ -200,6 +201,32 @@ def fixed_pdf_dates(pdf: bytes, date: str | None = None) -> bytes:
     return _PDF_DATES.sub(fix, pdf)
 
 
+_PDF_NODE_IDS = re.compile(rb"\(node(\d+)\)")
+
+
+def fixed_pdf_node_ids(pdf: bytes) -> bytes:
+    """A PDF whose structure elements' ids are numbered by rank instead of by DOM node.
+
+    Chromium names each element of a tagged PDF's structure tree ``(nodeNNNNNNNN)`` after the
+    DOM node it came from, and the DOM numbers its nodes in the order they were made, which
+    varies from run to run (an image that loads sooner). The same ids appear in the element
+    and in the tree's id index, whose keys are sorted (a name tree, ISO 32000-1:2008, 7.9.6,
+    and 14.7.2 for ``/IDTree``). Renumbering each id by its rank among the document's ids
+    keeps that order and every id's digit count, hence every byte offset; two prints of the
+    same sheets then give the same bytes.
+    """
+    numbers = sorted({int(m.group(1)) for m in _PDF_NODE_IDS.finditer(pdf)})
+    rank = {number: position for position, number in enumerate(numbers, start=1)}
+
+    def renumber(match: re.Match[bytes]) -> bytes:
+        digits = match.group(1)
+        new = str(rank[int(digits)]).zfill(len(digits)).encode("ascii")
+        # A rank is at most its id plus one; an id that would grow keeps its own number.
+        return b"(node" + new + b")" if len(new) == len(digits) else match.group(0)
+
+    return _PDF_NODE_IDS.sub(renumber, pdf)
+
+
 def html_to_pdf(html: Path, pdf: Path, *, date: str | None = None) -> None:
     """Print an HTML file to PDF with its own @page rules, no browser header or footer.
 
@@ -215,7 +242,7 @@ def html_to_pdf(html: Path, pdf: Path, *, date: str | None = None) -> None:
         raise OutputError(
             f"Chromium made no PDF of {html.name}", hint=done.stderr.strip()[-300:] or _HOW_TO_GET
         )
-    pdf.write_bytes(fixed_pdf_dates(pdf.read_bytes(), date))
+    pdf.write_bytes(fixed_pdf_node_ids(fixed_pdf_dates(pdf.read_bytes(), date)))
 
 
 def html_to_png(html: Path, png: Path, *, width_px: int = 900, height_px: int = 1270) -> None:

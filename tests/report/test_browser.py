@@ -7,6 +7,7 @@ when it is missing, because printing is part of the job.
 from __future__ import annotations
 
 import os
+import re
 import signal
 import subprocess
 import sys
@@ -298,3 +299,28 @@ def test_long_bench_sheet_still_one_page_per_bench(tmp_path):
     html_to_pdf(html, pdf)
     session = plan.inputs.session
     assert pdf_page_count(pdf.read_bytes()) == session.sections * session.benches_per_section
+
+
+def test_structure_ids_are_renumbered_by_rank_and_keep_every_offset():
+    # Chromium names structure elements after DOM nodes, whose numbers vary between runs;
+    # two prints that differ only by that numbering become the same bytes (invented bytes in
+    # Chromium's form: elements, then the sorted id index of ISO 32000-1:2008, 14.7.2).
+    from planner.report.browser import fixed_pdf_node_ids
+
+    def document(ids):
+        elements = b"".join(b"<</S /TD /ID (node%08d)>>\n" % n for n in ids)
+        index = b"<</Names [" + b" ".join(b"(node%08d) 1 0 R" % n for n in sorted(ids)) + b"]>>"
+        return elements + index
+
+    first = document([25, 26, 31, 27])
+    second = document([24, 25, 30, 26])
+    assert first != second
+    assert fixed_pdf_node_ids(first) == fixed_pdf_node_ids(second)
+    fixed = fixed_pdf_node_ids(first)
+    assert len(fixed) == len(first)
+    assert b"(node00000001)" in fixed
+    assert b"(node00000004)" in fixed
+    # The index stays sorted: ranks keep the ids' order.
+    index = fixed.split(b"[", 1)[1]
+    keys = [int(k) for k in re.findall(rb"\(node(\d+)\)", index)]
+    assert keys == sorted(keys)
