@@ -18,7 +18,6 @@ ed., 2016, eq. 1-5). Those volumes are added to the medium's and the source's to
 
 from __future__ import annotations
 
-import dataclasses
 from collections import defaultdict
 from collections.abc import Mapping, Sequence
 
@@ -220,46 +219,31 @@ def _preparation(
     """How to make ``volume_mL`` of one stock: from the source of its ``dilution`` (source id,
     fraction), from its solid, or, with neither, supplied ready-made (nothing weighed)."""
     flask_mL, flasks = stock_flasks(volume_mL)
-    components = inputs.reaction.components
-    supplied = StockPreparation(
+    reagent = next((ion for ion in stock.contains_M if ion in inputs.reaction.components), "")
+    solid = stock.solid if dilution is None else None
+    source, fraction = dilution if dilution is not None else ("", 0.0)
+    if solid is not None:
+        provides = solid.provides or reagent or next(iter(stock.contains_M))
+    else:
+        provides = reagent if dilution is not None else ""
+    concentration = stock.contains_M[provides] if provides else 0.0
+    molar_mass = molar_mass_g_per_mol(solid.formula) if solid is not None else 0.0
+    purity = solid.purity if solid is not None else 1.0
+    return StockPreparation(
         stock=stock.id,
         flask_mL=flask_mL,
         flasks=flasks,
-        solid_formula="",
-        molar_mass_g_per_mol=0.0,
-        purity=1.0,
-        mass_g=0.0,
-        provides="",
-        concentration_M=0.0,
-        medium="" if stock.diluent else medium,
-    )
-    solid = stock.solid
-    if dilution is not None:
-        provides = next((i for i in stock.contains_M if i in components), "")
-        return dataclasses.replace(
-            supplied,
-            provides=provides,
-            concentration_M=stock.contains_M[provides] if provides else 0.0,
-            medium=medium,
-            source=dilution[0],
-            aliquot_mL=dilution[1] * flask_mL,
-        )
-    if solid is None:
-        return supplied
-    provides = solid.provides or next(
-        (ion for ion in stock.contains_M if ion in components), next(iter(stock.contains_M))
-    )
-    concentration = stock.contains_M[provides]
-    molar_mass = molar_mass_g_per_mol(solid.formula)
-    return dataclasses.replace(
-        supplied,
-        solid_formula=solid.formula,
+        solid_formula=solid.formula if solid is not None else "",
         molar_mass_g_per_mol=molar_mass,
-        purity=solid.purity,
-        mass_g=concentration * flask_mL / 1000.0 * molar_mass / solid.purity,
+        purity=purity,
+        # m = c V M / purity (see preparations); 0 when nothing is weighed.
+        mass_g=concentration * flask_mL / 1000.0 * molar_mass / purity,
         provides=provides,
         concentration_M=concentration,
-        medium=medium,
+        # A ready-made diluent is the medium itself: its label names none.
+        medium="" if stock.diluent and solid is None and not source else medium,
+        source=source,
+        aliquot_mL=fraction * flask_mL,
     )
 
 
