@@ -296,11 +296,9 @@ def check(
 
             _write_stdout(dumps(check_document(result)))
         else:
-            from rich.console import Console
-
             from planner.report.check_text import render_check
 
-            Console(highlight=False).print(render_check(result))
+            _print(render_check(result))
         return EXIT_OK if result.verdict == "ok" else EXIT_CHECK_FAILED
 
     _run(body)
@@ -447,24 +445,32 @@ def plan(
 
             _write_stdout(plan_json(result))
         else:
-            from rich.console import Console
-
             from planner.report.terminal import render_plan
 
-            Console(highlight=False).print(render_plan(result))
-        if out is not None and not quiet:
-            _tell(f"wrote {out}/")
+            _print(render_plan(result))
+        _tell_written(out, quiet=quiet)
         return EXIT_CHECK_FAILED if result.failed else EXIT_OK
 
     _run(body)
 
 
 def _render_checks(checks: tuple[Check, ...]) -> None:
-    from rich.console import Console
-
     from planner.report.terminal import render_checks
 
-    Console(highlight=False).print(render_checks(checks))
+    _print(render_checks(checks))
+
+
+def _print(renderable: object) -> None:
+    """A rendered result on stdout (rich is imported only when something is printed)."""
+    from rich.console import Console
+
+    Console(highlight=False).print(renderable)
+
+
+def _tell_written(out: Path | None, *, quiet: bool) -> None:
+    """Say on stderr which folder a command wrote, unless asked to be quiet."""
+    if out is not None and not quiet:
+        _tell(f"wrote {out}/")
 
 
 def _tell(message: str, *, heading: str = "", style: str = "") -> None:
@@ -715,13 +721,10 @@ def analyse(
 
             _write_stdout(analysis_json(result, readings=str(readings_file), plan=str(plan_folder)))
         else:
-            from rich.console import Console
-
             from planner.report.analyse_text import render_analysis
 
-            Console(highlight=False).print(render_analysis(result))
-        if out is not None and not quiet:
-            _tell(f"wrote {out}/")
+            _print(render_analysis(result))
+        _tell_written(out, quiet=quiet)
         return EXIT_CHECK_FAILED if result.flagged else EXIT_OK
 
     _run(body)
@@ -843,8 +846,7 @@ def simulate(
                     result, gum, formulas=wide, analysis=analysis, all_bound=all_bound
                 )
             )
-        if out is not None and not quiet:
-            _tell(f"wrote {out}/")
+        _tell_written(out, quiet=quiet)
         return EXIT_CHECK_FAILED if designed.failed else EXIT_OK
 
     _run(body)

@@ -284,15 +284,16 @@ def design_plan(
     return Plan(
         inputs=inputs,
         mixtures=mixtures,
-        totals=design.totals,
-        preparations=design.preparations,
         checks=checks,
         prediction=prediction,
+        uncertainty=uncertainty,
+        global_fit=fitted,
+        # The rest as the design stage gave it.
+        totals=design.totals,
+        preparations=design.preparations,
         notes=design.notes,
         design_objective=design.objective,
-        uncertainty=uncertainty,
         analysis=design.analysis,
-        global_fit=fitted,
     )
 
 

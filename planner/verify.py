@@ -28,7 +28,7 @@ from planner.chem.assumption import (
     checked_round_up,
 )
 from planner.chem.equilibrium import bound_fraction, solve_equilibrium
-from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, mix_M
+from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, medium_label, mix_M
 from planner.chem.species import molar_mass_g_per_mol
 from planner.inputs import Device, PlanInputs, Stock
 from planner.lab.deliveries import MAX_DELIVERIES, delivers
@@ -36,6 +36,7 @@ from planner.lab.glassware import (
     devices_by_id,
     is_deliverable,
     standard_uncertainty_mL,
+    stock_flasks,
 )
 from planner.lab.photometer import observed_absorbance, true_absorbance
 from planner.result import (
@@ -112,9 +113,6 @@ _NOISE = 100.0
 # constants, 1e-6 in the totals) than the prediction stage's, so it agrees to their
 # truncation error, far below 1e-4 relative.
 _RTOL_GLOBAL_FIT = 1e-4
-# Stock flasks of the prep room (ISO 1042 nominal capacities, from memory): the rule of
-# docs/methods.md section 13, restated here so that the verifier does not import the design.
-_STOCK_FLASKS_mL = (100.0, 250.0, 500.0, 1000.0, 2000.0)
 # Every standard and test reading +/- this many u(A) inside the window (2 u: about 95 %).
 _MARGIN_U = 2.0
 # The standards' blank-subtracted readings span at least this share of the window (common
@@ -1089,7 +1087,7 @@ def _stock_making(inputs: PlanInputs, for_mixtures: Mapping[str, float]) -> dict
     taken: dict[str, float] = {}
     for target, (source, fraction) in dilutions.items():
         if for_mixtures[target] > 0:
-            flask_mL, flasks = _stock_flasks(for_mixtures[target])
+            flask_mL, flasks = stock_flasks(for_mixtures[target])
             taken[source] = taken.get(source, 0.0) + flasks * fraction * flask_mL
     diluent = inputs.diluent
     if diluent is not None:
@@ -1098,7 +1096,7 @@ def _stock_making(inputs: PlanInputs, for_mixtures: Mapping[str, float]) -> dict
             volume = for_mixtures[st.id] + taken.get(st.id, 0.0)
             if st.diluent or volume <= 0 or (st.solid is None and st.id not in dilutions):
                 continue
-            flask_mL, flasks = _stock_flasks(volume)
+            flask_mL, flasks = stock_flasks(volume)
             fraction = dilutions[st.id][1] if st.id in dilutions else 0.0
             medium += flasks * flask_mL * (1.0 - fraction)
         if medium > 0:
@@ -1274,23 +1272,6 @@ def _device_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
     )
 
 
-def _medium(diluent: Stock | None) -> str:
-    """What a stock is made up in, as the label says: the diluent's composition, or water."""
-    if diluent is None or not diluent.contains_M:
-        return "water"
-    parts = ", ".join(f"{ion} {conc:g} mol/L" for ion, conc in diluent.contains_M.items())
-    return f"{diluent.id} ({parts})"
-
-
-def _stock_flasks(volume_mL: float) -> tuple[float, int]:
-    """The smallest usual flask that holds the volume, else as many of the largest as needed."""
-    for size in _STOCK_FLASKS_mL:
-        if size >= volume_mL:
-            return size, 1
-    size = _STOCK_FLASKS_mL[-1]
-    return size, math.ceil(volume_mL / size)
-
-
 def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) -> StockPreparation:
     """How the prep room makes one stock, from the inputs alone (docs/methods.md section 13).
 
@@ -1299,8 +1280,8 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
     the molar mass from the periodictable package (:func:`planner.chem.species.
     molar_mass_g_per_mol`).
     """
-    flask_mL, flasks = _stock_flasks(volume_mL)
-    medium = _medium(inputs.diluent)
+    flask_mL, flasks = stock_flasks(volume_mL)
+    medium = medium_label(inputs.diluent)
     solid = stock.solid
     dilution = _dilutions(inputs).get(stock.id)
     if dilution is not None:

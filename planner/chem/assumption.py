@@ -263,17 +263,23 @@ def round_up(value: float, digits: int = 4) -> float:
     >>> round_up(0.500147), round_up(0.5001, 2)
     (0.5002, 0.51)
     """
-    if not math.isfinite(value) or value <= 0:
-        return value
-    unit = _last_digit(value, digits)
-    # round() first: value / unit may come out as 5001.000000001 for an exact 5001.
-    steps = math.ceil(round(value / unit, 9))
-    return float(f"{steps * unit:.{digits}g}")
+    return _rounded(value, digits, math.ceil)
 
 
 def _last_digit(value: float, digits: int) -> float:
     """The place value of the last of ``digits`` significant digits of a positive value."""
     return float(10.0 ** (math.floor(math.log10(value)) - digits + 1))
+
+
+def _rounded(value: float, digits: int, direction: Callable[[float], int]) -> float:
+    """A positive ``value`` to ``digits`` significant digits, its last digit chosen by
+    ``direction`` (math.ceil: up, math.floor: down); any other value unchanged."""
+    if not math.isfinite(value) or value <= 0:
+        return value
+    unit = _last_digit(value, digits)
+    # round() first: value / unit may come out as 5001.000000001 for an exact 5001.
+    steps = direction(round(value / unit, 9))
+    return float(f"{steps * unit:.{digits}g}")
 
 
 def round_down(value: float, digits: int = 4) -> float:
@@ -283,11 +289,7 @@ def round_down(value: float, digits: int = 4) -> float:
     >>> round_down(0.00049987), round_down(0.5009, 2)
     (0.0004998, 0.5)
     """
-    if not math.isfinite(value) or value <= 0:
-        return value
-    unit = _last_digit(value, digits)
-    steps = math.floor(round(value / unit, 9))
-    return float(f"{steps * unit:.{digits}g}")
+    return _rounded(value, digits, math.floor)
 
 
 def checked_round_down(

@@ -18,7 +18,13 @@ from numpy.typing import NDArray
 from planner.chem.species import charge_from_name, ionic_strength_M, neutralised, species_charge
 from planner.inputs import Reaction, Stock
 
-__all__ = ["IonTable", "ion_table", "ionic_strength_after_reaction_M", "mix_M"]
+__all__ = [
+    "IonTable",
+    "ion_table",
+    "ionic_strength_after_reaction_M",
+    "medium_label",
+    "mix_M",
+]
 
 
 @dataclass(frozen=True, slots=True)
@@ -146,3 +152,16 @@ def ionic_strength_after_reaction_M(
     product_I = ionic_strength_M(species_M, product_charges)
     result: NDArray[np.float64] = spectator_I + free_I + product_I
     return result
+
+
+def medium_label(diluent: Stock | None) -> str:
+    """What a stock is made up in, as its label says: the diluent's id and composition, or
+    ``"water"`` when the plan has no diluent or it lists no ions.
+
+    >>> medium_label(None)
+    'water'
+    """
+    if diluent is None or not diluent.contains_M:
+        return "water"
+    parts = ", ".join(f"{ion} {conc:g} mol/L" for ion, conc in diluent.contains_M.items())
+    return f"{diluent.id} ({parts})"

@@ -18,25 +18,21 @@ ed., 2016, eq. 1-5). Those volumes are added to the medium's and the source's to
 
 from __future__ import annotations
 
-import math
 from collections import defaultdict
 from collections.abc import Mapping, Sequence
 
+from planner.chem.mixing import medium_label
 from planner.chem.species import molar_mass_g_per_mol
 from planner.inputs import PlanInputs, Stock
+from planner.lab.glassware import stock_flasks
 from planner.result import Mixture, StockPreparation, Totals
 
 __all__ = [
-    "FLASK_SIZES_mL",
     "combined_totals",
     "dilution_recipes",
     "preparations",
     "stock_totals",
 ]
-
-#: Volumetric flask sizes a prep room usually has for making stocks [mL]
-#: (ISO 1042 nominal capacities, from memory).
-FLASK_SIZES_mL = (100.0, 250.0, 500.0, 1000.0, 2000.0)
 
 
 def stock_totals(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Totals:
@@ -87,7 +83,7 @@ def _with_stock_making(inputs: PlanInputs, totals: Totals) -> Totals:
     for target, (source, fraction) in recipes.items():
         volume = for_mixtures.get(target, 0.0)
         if volume > 0:
-            flask_mL, flasks = _flask_plan(volume)
+            flask_mL, flasks = stock_flasks(volume)
             extra[source] += flasks * fraction * flask_mL
     diluent = inputs.diluent
     if diluent is not None:
@@ -96,7 +92,7 @@ def _with_stock_making(inputs: PlanInputs, totals: Totals) -> Totals:
             made_here = stock.solid is not None or stock.id in recipes
             if stock.diluent or volume <= 0 or not made_here:
                 continue  # the medium itself, unused, or supplied ready-made
-            flask_mL, flasks = _flask_plan(volume)
+            flask_mL, flasks = stock_flasks(volume)
             aliquot_mL = recipes[stock.id][1] * flask_mL if stock.id in recipes else 0.0
             extra[diluent.id] += flasks * (flask_mL - aliquot_mL)
     for_stocks = {k: v for k, v in extra.items() if v > 0}
@@ -185,22 +181,6 @@ def dilution_recipes(inputs: PlanInputs) -> dict[str, tuple[str, float]]:
     return recipes
 
 
-def _medium(diluent: Stock | None) -> str:
-    if diluent is None or not diluent.contains_M:
-        return "water"
-    parts = ", ".join(f"{ion} {conc:g} mol/L" for ion, conc in diluent.contains_M.items())
-    return f"{diluent.id} ({parts})"
-
-
-def _flask_plan(volume_mL: float) -> tuple[float, int]:
-    """Largest flask that is not wastefully large, and how many of it cover the volume."""
-    for size in FLASK_SIZES_mL:
-        if size >= volume_mL:
-            return size, 1
-    size = FLASK_SIZES_mL[-1]
-    return size, math.ceil(volume_mL / size)
-
-
 def preparations(inputs: PlanInputs, totals: Totals) -> tuple[StockPreparation, ...]:
     """How to make every stock the session uses.
 
@@ -219,73 +199,52 @@ def preparations(inputs: PlanInputs, totals: Totals) -> tuple[StockPreparation, 
     tuple of StockPreparation
         One per stock with a positive volume to prepare, in plan order.
     """
-    medium = _medium(inputs.diluent)
-    result = []
-    components = inputs.reaction.components
+    medium = medium_label(inputs.diluent)
     recipes = dilution_recipes(inputs)
+    result = []
     for stock in inputs.stocks:
         volume = totals.to_prepare.get(stock.id, 0.0)
-        if volume <= 0:
-            continue
-        flask_mL, flasks = _flask_plan(volume)
-        solid = stock.solid
-        if stock.id in recipes:
-            source, fraction = recipes[stock.id]
-            provides = next((i for i in stock.contains_M if i in components), "")
-            result.append(
-                StockPreparation(
-                    stock=stock.id,
-                    flask_mL=flask_mL,
-                    flasks=flasks,
-                    solid_formula="",
-                    molar_mass_g_per_mol=0.0,
-                    purity=1.0,
-                    mass_g=0.0,
-                    provides=provides,
-                    concentration_M=stock.contains_M[provides] if provides else 0.0,
-                    medium=medium,
-                    source=source,
-                    aliquot_mL=fraction * flask_mL,
-                )
-            )
-            continue
-        if solid is None:
-            result.append(
-                StockPreparation(
-                    stock=stock.id,
-                    flask_mL=flask_mL,
-                    flasks=flasks,
-                    solid_formula="",
-                    molar_mass_g_per_mol=0.0,
-                    purity=1.0,
-                    mass_g=0.0,
-                    provides="",
-                    concentration_M=0.0,
-                    medium="" if stock.diluent else medium,
-                )
-            )
-            continue
-        provides = solid.provides or next(
-            (ion for ion in stock.contains_M if ion in components), next(iter(stock.contains_M))
-        )
-        concentration = stock.contains_M[provides]
-        molar_mass = molar_mass_g_per_mol(solid.formula)
-        mass = concentration * flask_mL / 1000.0 * molar_mass / solid.purity
-        result.append(
-            StockPreparation(
-                stock=stock.id,
-                flask_mL=flask_mL,
-                flasks=flasks,
-                solid_formula=solid.formula,
-                molar_mass_g_per_mol=molar_mass,
-                purity=solid.purity,
-                mass_g=mass,
-                provides=provides,
-                concentration_M=concentration,
-                medium=medium,
-            )
-        )
+        if volume > 0:
+            result.append(_preparation(inputs, stock, volume, medium, recipes.get(stock.id)))
     return tuple(result)
+
+
+def _preparation(
+    inputs: PlanInputs,
+    stock: Stock,
+    volume_mL: float,
+    medium: str,
+    dilution: tuple[str, float] | None,
+) -> StockPreparation:
+    """How to make ``volume_mL`` of one stock: from the source of its ``dilution`` (source id,
+    fraction), from its solid, or, with neither, supplied ready-made (nothing weighed)."""
+    flask_mL, flasks = stock_flasks(volume_mL)
+    reagent = next((ion for ion in stock.contains_M if ion in inputs.reaction.components), "")
+    solid = stock.solid if dilution is None else None
+    source, fraction = dilution if dilution is not None else ("", 0.0)
+    if solid is not None:
+        provides = solid.provides or reagent or next(iter(stock.contains_M))
+    else:
+        provides = reagent if dilution is not None else ""
+    concentration = stock.contains_M[provides] if provides else 0.0
+    molar_mass = molar_mass_g_per_mol(solid.formula) if solid is not None else 0.0
+    purity = solid.purity if solid is not None else 1.0
+    return StockPreparation(
+        stock=stock.id,
+        flask_mL=flask_mL,
+        flasks=flasks,
+        solid_formula=solid.formula if solid is not None else "",
+        molar_mass_g_per_mol=molar_mass,
+        purity=purity,
+        # m = c V M / purity (see preparations); 0 when nothing is weighed.
+        mass_g=concentration * flask_mL / 1000.0 * molar_mass / purity,
+        provides=provides,
+        concentration_M=concentration,
+        # A ready-made diluent is the medium itself: its label names none.
+        medium="" if stock.diluent and solid is None and not source else medium,
+        source=source,
+        aliquot_mL=fraction * flask_mL,
+    )
 
 
 def combined_totals(totals: Sequence[Totals], inputs: PlanInputs) -> Totals:

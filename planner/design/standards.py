@@ -47,7 +47,8 @@ _GROUPS_EXAMINED = 150
 
 @dataclass(frozen=True, slots=True)
 class StandardsChoice:
-    """The chosen blank and standards.
+    """The chosen blank and standards, as indices into the candidate set they were chosen
+    from (:class:`planner.design.candidates.CandidateSet`).
 
     Attributes
     ----------
@@ -102,7 +103,7 @@ def choose_standards(
     inputs
         The plan.
     candidates
-        Every deliverable mixture, evaluated.
+        The deliverable mixtures, each evaluated, to choose from.
     allowed
         Optional mask of candidates the standards may be drawn from (shape (n,)); the blank
         is always free to match.

@@ -52,6 +52,7 @@ __all__ = [
     "is_deliverable",
     "reading_count",
     "reading_step_mL",
+    "shelf_device",
     "single_volumes_mL",
     "volume_table",
 ]
@@ -221,7 +222,7 @@ def reading_count(device: Device) -> int:
     Parameters
     ----------
     device
-        Any glassware kind.
+        Any glassware kind, as for :func:`single_volumes_mL`.
 
     Returns
     -------
@@ -350,6 +351,26 @@ def devices_by_id(glassware: Sequence[Device]) -> dict[str, Device]:
     return shelf
 
 
+def _usable(glassware: Sequence[Device]) -> list[tuple[str, _Grid, float]]:
+    """Every device that delivers something (vessels left out), once per id: the id, its grid
+    and its squared standard uncertainty [mL^2]."""
+    return [
+        (device_id, grid, standard_uncertainty_mL(device) ** 2)
+        for device_id, device in devices_by_id(glassware).items()
+        if (grid := _grid(device)).count > 0
+    ]
+
+
+def _check_max_deliveries(max_deliveries: int) -> None:
+    if max_deliveries < 1:
+        raise InvalidInputError(
+            "at least one delivery is needed",
+            field="max_deliveries",
+            value=max_deliveries,
+            hint="give max_deliveries >= 1",
+        )
+
+
 def _fixed_multisets(
     fixed: Sequence[tuple[str, int, float]], max_count: int, limit_pL: int
 ) -> list[tuple[tuple[str, ...], int, float]]:
@@ -377,11 +398,7 @@ def _templates(glassware: Sequence[Device], max_deliveries: int, high_pL: int) -
     """Every option shape of :func:`deliverable_volumes`, best first (see its Notes)."""
     fixed: list[tuple[str, int, float]] = []
     graded: list[tuple[str, _Grid, float]] = []
-    for device_id, device in devices_by_id(glassware).items():
-        grid = _grid(device)
-        if grid.count == 0:
-            continue
-        u2 = standard_uncertainty_mL(device) ** 2
+    for device_id, grid, u2 in _usable(glassware):
         if grid.count == 1:
             fixed.append((device_id, grid.first_pL, u2))
         else:
@@ -480,13 +497,7 @@ def deliverable_volumes(
     graded glassware; absolute ISO 8655-2 limits for piston pipettes), so an option's combined
     uncertainty is fixed and the options are ranked once, not per volume.
     """
-    if max_deliveries < 1:
-        raise InvalidInputError(
-            "at least one delivery is needed",
-            field="max_deliveries",
-            value=max_deliveries,
-            hint="give max_deliveries >= 1",
-        )
+    _check_max_deliveries(max_deliveries)
     for name, bound in (("max_volume_mL", max_volume_mL), ("min_volume_mL", min_volume_mL)):
         if not math.isfinite(bound):
             raise InvalidInputError(
@@ -632,6 +643,33 @@ def is_deliverable(glassware: Sequence[Device], volume_mL: float, option: Sequen
     return _split_pL(shelf, option, volume_mL * _PL_PER_ML) is not None
 
 
+def shelf_device(devices: Mapping[str, Device], device_id: str, field: str) -> Device:
+    """The device of a shelf with this id.
+
+    Parameters
+    ----------
+    devices
+        Device id -> device, e.g. from :func:`devices_by_id`.
+    device_id
+        The id a recipe or an option names.
+    field
+        The field to name in the error.
+
+    Raises
+    ------
+    InvalidInputError
+        The id is not on the shelf (the hint lists the shelf's ids).
+    """
+    if device_id not in devices:
+        raise InvalidInputError(
+            "device not on the shelf",
+            field=field,
+            value=device_id,
+            hint=f"use one of {', '.join(sorted(devices))}",
+        )
+    return devices[device_id]
+
+
 def combination_uncertainty_mL(
     devices: Mapping[str, Device], option: Sequence[str], volume_mL: float
 ) -> float:
@@ -668,17 +706,11 @@ def combination_uncertainty_mL(
         raise InvalidInputError(
             "an option needs at least one delivery",
             field="option",
-            value=tuple(option),
+            value=(),
             hint="name the device ids, one per delivery",
         )
     for device_id in option:
-        if device_id not in devices:
-            raise InvalidInputError(
-                "device not on the shelf",
-                field="option",
-                value=device_id,
-                hint=f"use one of {', '.join(sorted(devices))}",
-            )
+        shelf_device(devices, device_id, "option")
     readings_pL = _split_pL(devices, option, volume_mL * _PL_PER_ML)
     if readings_pL is None:
         raise InvalidInputError(
@@ -730,7 +762,7 @@ class Aliquots:
     Attributes
     ----------
     volume_mL
-        Total volume [mL], rounded to 1e-9 mL.
+        The deliveries' sum [mL], rounded as :attr:`DeliverableVolume.volume_mL`.
     deliveries
         In the order they are made: one-mark deliveries and graded devices at full scale,
         largest first, then at most one graded delivery of the remainder.
@@ -992,13 +1024,7 @@ def volume_table(
     ``_MAX_SLOTS`` slots, else on sorted sparse arrays.
     """
 
-    if max_deliveries < 1:
-        raise InvalidInputError(
-            "at least one delivery is needed",
-            field="max_deliveries",
-            value=max_deliveries,
-            hint="give max_deliveries >= 1",
-        )
+    _check_max_deliveries(max_deliveries)
     if not math.isfinite(max_volume_mL):
         raise InvalidInputError(
             "volume bound must be finite",
@@ -1009,11 +1035,7 @@ def volume_table(
     high_pL = max(_to_pL(max_volume_mL), 0)
     items: list[_Item] = []
     graded: list[tuple[str, _Grid, float]] = []
-    for device_id, device in devices_by_id(glassware).items():
-        grid = _grid(device)
-        if grid.count == 0:
-            continue
-        u2 = standard_uncertainty_mL(device) ** 2
+    for device_id, grid, u2 in _usable(glassware):
         if grid.last_pL <= high_pL:
             items.append(_Item(device_id, grid.last_pL, u2))
         if grid.count > 1 and grid.first_pL <= high_pL:

@@ -108,9 +108,9 @@ def true_absorbance(
             value=path_length_cm,
             hint="give the cuvette path length in cm, e.g. 1.0",
         )
-    c_M = np.asarray(species_M, dtype=float)
     eps = np.asarray(epsilon, dtype=float)
-    if eps.ndim != 1 or c_M.ndim < 1 or c_M.shape[-1] != eps.shape[0]:
+    c_M = np.asarray(species_M, dtype=float)
+    if c_M.ndim < 1 or eps.shape != c_M.shape[-1:]:
         raise InvalidInputError(
             "there must be one molar absorptivity per absorber (last axis of species_M)",
             field="epsilon",
@@ -141,8 +141,8 @@ def stray_light_ceiling(stray_light: float) -> float:
 
     References
     ----------
-    Skoog, Holler and Crouch, Principles of Instrumental Analysis, 7th ed., 2017, section
-    13B-2, "Instrumental deviations in the presence of stray radiation" (from memory).
+    The module's reference (Skoog, Holler and Crouch, 2017), section 13B-2 on stray radiation,
+    as :func:`observed_absorbance` (from memory).
 
     Examples
     --------
@@ -283,6 +283,7 @@ def in_window(absorbance: ArrayLike, window: tuple[float, float]) -> NDArray[np.
     >>> in_window([0.05, 0.1, 0.9, 1.2], (0.1, 0.9)).tolist()
     [False, True, True, False]
     """
+    a = np.asarray(absorbance, dtype=float)
     low, high = (float(x) for x in window)
     if not (math.isfinite(low) and math.isfinite(high) and low < high):
         raise InvalidInputError(
@@ -291,7 +292,6 @@ def in_window(absorbance: ArrayLike, window: tuple[float, float]) -> NDArray[np.
             value=window,
             hint="give the linear range of the photometer, e.g. (0.1, 0.9)",
         )
-    a = np.asarray(absorbance, dtype=float)
     return np.asarray((a >= low) & (a <= high), dtype=np.bool_)
 
 

@@ -199,11 +199,11 @@ class BenchResult:
         the plan's ``prediction``.
     epsilon_global_fit, K_global_fit
         The global fit beside the plan's ``global_fit_prediction``.
-    scale
-        Least-squares factor between the blank-subtracted readings and the predicted ones
-        (NaN when it cannot be computed) [unitless].
     mixtures
         Every mixture of the plan, in plan order.
+    scale
+        Least-squares factor between the mixtures' blank-subtracted readings and the
+        predicted ones (NaN when it cannot be computed) [unitless].
     flags
         What was found.
     rows
@@ -217,8 +217,8 @@ class BenchResult:
     K_all_bound: Estimate
     epsilon_global_fit: Estimate
     K_global_fit: Estimate
-    scale: float
     mixtures: tuple[MixtureResult, ...]
+    scale: float
     flags: tuple[Flag, ...]
     rows: tuple[int, ...]
 
@@ -884,8 +884,8 @@ def _bench(
         K_all_bound=_estimate(k_ab, section.K_all_bound),
         epsilon_global_fit=_estimate(eps_gf, section.epsilon_global_fit),
         K_global_fit=_estimate(k_gf, section.K_global_fit),
-        scale=scale,
         mixtures=tuple(mixtures),
+        scale=scale,
         flags=flags,
         rows=tuple(sorted(r.row for r in readings.values())),
     )

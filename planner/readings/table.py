@@ -70,7 +70,7 @@ class SectionShape:
     Attributes
     ----------
     mixtures
-        Mixture ids in plan order.
+        The ids of the section's mixtures, in plan order.
     benches
         Benches in the section (numbered from 1).
     replicates
@@ -189,6 +189,32 @@ def _whole(text: str) -> int | None:
     return int(text) if len(text) <= 9 else None
 
 
+def _outside_plan(
+    shape: SectionShape, section: int, bench: int, replicate: int, mixture: str
+) -> tuple[str, str, str] | None:
+    """The first of a row's bench, replicate and mixture that its section's plan lacks, as
+    (column, problem, hint); None when the plan has all three."""
+    if bench > shape.benches:
+        return (
+            "bench",
+            f"section {section} has {shape.benches} benches",
+            f"benches are 1 to {shape.benches}",
+        )
+    if replicate > shape.replicates:
+        return (
+            "replicate",
+            f"the plan makes {shape.replicates} set(s) of mixtures per bench",
+            f"replicates are 1 to {shape.replicates}",
+        )
+    if mixture not in shape.mixtures:
+        return (
+            "mixture",
+            f"section {section}'s plan has no such mixture",
+            f"mixtures are {', '.join(shape.mixtures)}",
+        )
+    return None
+
+
 def parse_readings(
     text: str, sections: Mapping[int, SectionShape], *, source: str = "the readings file"
 ) -> ReadingsTable:
@@ -278,33 +304,11 @@ def parse_readings(
                 f"sections are {_listing(sorted(sections))}",
             )
             continue
-        if bench > shape.benches:
-            reject(
-                row,
-                "bench",
-                cell["bench"],
-                f"section {section} has {shape.benches} benches",
-                f"benches are 1 to {shape.benches}",
-            )
-            continue
-        if replicate > shape.replicates:
-            reject(
-                row,
-                "replicate",
-                cell["replicate"],
-                f"the plan makes {shape.replicates} set(s) of mixtures per bench",
-                f"replicates are 1 to {shape.replicates}",
-            )
-            continue
         mixture = cell["mixture"].strip()
-        if mixture not in shape.mixtures:
-            reject(
-                row,
-                "mixture",
-                cell["mixture"],
-                f"section {section}'s plan has no such mixture",
-                f"mixtures are {', '.join(shape.mixtures)}",
-            )
+        outside = _outside_plan(shape, section, bench, replicate, mixture)
+        if outside is not None:
+            column, problem, hint = outside
+            reject(row, column, cell[column], problem, hint)
             continue
         absorbance_text = cell["absorbance"].strip()
         if not absorbance_text:

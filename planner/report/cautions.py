@@ -25,7 +25,7 @@ class Caution:
     Attributes
     ----------
     key
-        Stable name of the line.
+        The line's stable name, by which code and tests pick it out.
     text
         The line; ``{product}`` is replaced by the coloured product's name(s).
     ions

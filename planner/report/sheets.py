@@ -557,7 +557,9 @@ class _PredictionRow:
 
 @dataclass(frozen=True, slots=True)
 class _AnalysisView:
-    """One analysis's expected result on the answer key."""
+    """One analysis's expected result on the answer key: a ``heading``, an ``intro``
+    paragraph, the table's ``rows`` (quantity, expected value, u, value assumed; none when
+    there is no prediction) and the paragraphs (``lines``) below the table."""
 
     heading: str
     intro: str

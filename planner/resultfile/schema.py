@@ -209,29 +209,34 @@ class PreparationEntry(Entry):
     )
 
 
-class PredictionEntry(Entry):
+_U = "its standard uncertainty, a number"
+
+
+class _FitEntry(Entry):
+    """The keys both analyses' predictions share; each adds its own ``K``."""
+
+    epsilon: float = Field(description="the molar absorptivity [L mol-1 cm-1], a number")
+    u_epsilon: float = Field(description=_U)
+    u_K: float = Field(description=_U)
+
+
+class PredictionEntry(_FitEntry):
     """What the all-bound analysis is expected to report (:class:`planner.result.Prediction`;
     its per-test uncertainties and intercept are not written)."""
 
     record = Prediction
-    epsilon: float = Field(description="the molar absorptivity [L mol-1 cm-1], a number")
-    u_epsilon: float = Field(description="its standard uncertainty, a number")
     K: float = Field(description="the mean K over the tests [L/mol], a number")
-    u_K: float = Field(description="its standard uncertainty, a number")
     K_bias_from_assumption: float = Field(description="K / K_true - 1, a number")
     K_true: float = Field(description="the K the plan assumes [L/mol], a number")
     epsilon_true: float = Field(description="the absorptivity the plan assumes, a number")
     K_per_test: list[float] = Field(description="the K of each test mixture, a list of numbers")
 
 
-class GlobalFitEntry(Entry):
+class GlobalFitEntry(_FitEntry):
     """What the global fit is expected to report (:class:`planner.result.GlobalFitPrediction`)."""
 
     record = GlobalFitPrediction
-    epsilon: float = Field(description="the molar absorptivity [L mol-1 cm-1], a number")
-    u_epsilon: float = Field(description="its standard uncertainty, a number")
     K: float = Field(description="the measured species' K, a number")
-    u_K: float = Field(description="its standard uncertainty, a number")
 
 
 class PlanDocument(_Model):

@@ -21,7 +21,7 @@ import math
 import numpy as np
 import pytest
 
-from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, mix_M
+from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, medium_label, mix_M
 from planner.chem.species import COUNTER_ANION
 from planner.inputs import ProductSpecies, Reaction, Stock
 
@@ -147,3 +147,10 @@ def test_ionic_strength_counts_the_one_to_two_complex_with_charge_one():
     #           + 0.15 = 0.3564 + 0.0001 + 0.0012 + 0.0001 + 1.1206 = 1.4784; I = 0.7392.
     result = ionic_strength_after_reaction_M(table, initial, REACTION, free, species)
     assert result[0] == pytest.approx(0.7392, rel=1e-12)
+
+
+def test_medium_label_names_the_diluent_and_its_ions_or_water():
+    # Label text as the prep sheet prints it, typed by hand from the stock above.
+    assert medium_label(ACID) == "acid (H+ 0.5 mol/L)"
+    assert medium_label(None) == "water"
+    assert medium_label(Stock(id="plain", contains_M={}, diluent=True)) == "water"

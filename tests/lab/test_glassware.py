@@ -33,6 +33,7 @@ from planner.lab.glassware import (
     reading_count,
     single_volumes_mL,
     standard_uncertainty_mL,
+    stock_flasks,
     table_tolerance_mL,
     tolerance_mL,
     volume_table,
@@ -466,6 +467,18 @@ def test_combination_uncertainty_errors_name_field():
         combination_uncertainty_mL(shelf, ("transfer-pipette-5mL",), 7.0)
     with pytest.raises(InvalidInputError, match=r"option.*buret-25mL"):
         combination_uncertainty_mL(shelf, ("buret-25mL",), 7.0)
+    with pytest.raises(InvalidInputError, match=r"option: an option needs at least one"):
+        combination_uncertainty_mL(shelf, (), 7.0)
+    with pytest.raises(InvalidInputError, match=r"use one of transfer-pipette-2mL, transfer-pipe"):
+        combination_uncertainty_mL(shelf, ("transfer-pipette-5mL", "buret-25mL"), 7.0)
+
+
+def test_stock_flasks_smallest_that_holds_else_several_of_the_largest():
+    # ISO 1042 sizes 100, 250, 500, 1000, 2000 mL (from memory): 180 mL fits a 250 mL flask,
+    # 100 mL exactly a 100 mL one; 4500 mL needs ceil(4500 / 2000) = 3 of the 2000 mL flask.
+    assert stock_flasks(180.0) == (250.0, 1)
+    assert stock_flasks(100.0) == (100.0, 1)
+    assert stock_flasks(4500.0) == (2000.0, 3)
 
 
 # --- is_deliverable ---------------------------------------------------------------------------

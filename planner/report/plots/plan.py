@@ -101,14 +101,14 @@ def _points(
     y: ArrayLike,
     *,
     marker: str,
-    size: float,
     face: str,
     gid: str,
     label: str,
+    size: float = 7.0,
     zorder: float = 2.0,
 ) -> None:
-    """The plan's mixtures as markers edged in ink, without a line (``gid`` names the series;
-    ``zorder`` 2 is matplotlib's default for lines)."""
+    """The plan's mixtures as markers of ``size`` points edged in ink, without a line
+    (``gid`` names the series; ``zorder`` 2 is matplotlib's default for lines)."""
     axes.plot(
         x,
         y,
@@ -266,7 +266,6 @@ def ladder_figure(plan: Plan) -> Figure:
                 x_blank,
                 y_blank,
                 marker="s",
-                size=7,
                 face=_OCHRE,
                 zorder=4,
                 gid="blank",
@@ -426,8 +425,8 @@ def bound_fraction_figure(plan: Plan) -> Figure:
                 stock_M,
                 x_high,
                 facecolor="none",
-                edgecolor=_RULE,
                 hatch="//",
+                edgecolor=_RULE,
                 linewidth=0.0,
                 zorder=0,
                 gid="beyond-stock",
@@ -495,7 +494,6 @@ def bound_fraction_figure(plan: Plan) -> Figure:
             x_std,
             f_std,
             marker="o",
-            size=7,
             face=_OCHRE,
             zorder=4,
             gid="standards",
@@ -590,7 +588,6 @@ def coverage_figure(plan: Plan) -> Figure:
             fractions,
             rows,
             marker="D",
-            size=7,
             face=_TEAL,
             zorder=3,
             gid="tests",
