@@ -18,6 +18,7 @@ from numpy.typing import NDArray
 
 __all__ = [
     "DEVICE_KINDS",
+    "Bench",
     "DesignSettings",
     "Device",
     "Instrument",
@@ -144,11 +145,16 @@ class Instrument:
     absorbance_window
         (low, high) of the linear working range [absorbance units]; low < high.
     absorbance_sd
-        Standard deviation of one reading [absorbance units].
+        Floor of the standard deviation of one reading [absorbance units].
     stray_light
         Stray-light fraction s of the incident power [unitless].
     cuvette_fill_mL
         Volume needed to fill the cuvette [mL].
+    absorbance_rsd
+        Term of the reading's standard deviation proportional to the absorbance [unitless].
+    transmittance_sd
+        Standard deviation of the transmittance reading, constant in T [unitless]; it adds
+        log10(e) sigma_T 10^A to the absorbance's (see :func:`planner.lab.bench.reading_sd`).
     """
 
     wavelength_nm: float
@@ -157,6 +163,47 @@ class Instrument:
     absorbance_sd: float
     stray_light: float
     cuvette_fill_mL: float
+    absorbance_rsd: float = 0.0
+    transmittance_sd: float = 0.0
+
+
+@dataclass(frozen=True, slots=True)
+class Bench:
+    """How the benches work: the technique's errors beside the glassware's and photometer's.
+
+    All zero (``technique`` ``"none"``) is an ideal bench: the glassware's tolerances and the
+    photometer's own noise only. :mod:`planner.lab.bench` holds the presets and their
+    sources.
+
+    Attributes
+    ----------
+    technique
+        The preset the values come from: ``"calibrated"``, ``"practised"``, ``"novice"``, or
+        ``"none"`` when the plan file has no ``[bench]`` table.
+    buret_reading_sd_mL
+        Standard deviation of one buret reading [mL]; a delivery reads twice.
+    pipette_rsd
+        Relative standard deviation of a transfer or graduated pipette's delivery from
+        technique (drainage, meniscus, touch-off) [unitless].
+    piston_rsd
+        Relative standard deviation of a piston pipette's delivery from technique [unitless].
+    cuvette_rsd
+        Relative standard deviation of a reading from the cuvette's path and placement, per
+        reading [unitless].
+    blank_offset_sd
+        Standard deviation of the offset between the blank's cuvette and the samples', one
+        per bench [absorbance units].
+    temperature_sd_C
+        Standard deviation of the bench's temperature about the session's [°C].
+    """
+
+    technique: str = "none"
+    buret_reading_sd_mL: float = 0.0
+    pipette_rsd: float = 0.0
+    piston_rsd: float = 0.0
+    cuvette_rsd: float = 0.0
+    blank_offset_sd: float = 0.0
+    temperature_sd_C: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -418,6 +465,7 @@ class PlanInputs:
     glassware: tuple[Device, ...]
     design: DesignSettings
     session: SessionSettings
+    bench: Bench = field(default_factory=Bench)
     measured: int = field(init=False, compare=False, repr=False)
     excess: str | None = field(init=False, compare=False, repr=False)
     flask: Device | None = field(init=False, compare=False, repr=False)

@@ -48,8 +48,11 @@ from planner.verify_global_fit import RecomputedGlobalFit, recompute_global_fit
 from planner.verify_prediction import (
     RecomputedPrediction,
     delivery_split_mL,
+    delivery_volumes_mL,
     measured_deliveries,
+    reading_noise_sd,
     recompute_prediction,
+    technique_u_mL,
 )
 
 __all__ = [
@@ -632,12 +635,18 @@ _READING_STEP = 1e-6
 
 
 def _reading_u(
-    inputs: PlanInputs, mixture: Mixture, totals: np.ndarray, devices: Mapping[str, Device]
+    inputs: PlanInputs,
+    mixture: Mixture,
+    totals: np.ndarray,
+    reading: float,
+    devices: Mapping[str, Device],
 ) -> float | str:
     """u(A) of one mixture as the plan states it, or why it cannot be recomputed.
 
-    u(A)^2 = sd^2 + sum_z (sum_j dA/dT_j dT_j/dz u(z))^2 over the mixture's independent
-    inputs z (JCGM 100:2008, eq. 10): each stock's relative error (dT/dr_s = C_s V_s / V),
+    u(A)^2 = sd(A)^2 + sum_z (sum_j dA/dT_j dT_j/dz u(z))^2 over the mixture's independent
+    inputs z, sd(A) the three-term reading noise at the re-derived reading (plus the blank
+    cuvette's offset for a blank), the bench technique's error in each delivery's random
+    error (JCGM 100:2008, eq. 10): each stock's relative error (dT/dr_s = C_s V_s / V),
     each device's systematic error (its deliveries into the mixture add up), each delivery's
     random error (dT/dV_s = (C_s - T)/V in a tube, (C_s - C_d)/V in a flask made up to the
     mark with diluent d) and the flask's volume (dT/dV = (C_d - T)/V). dA/dT_j is a central
@@ -679,11 +688,13 @@ def _reading_u(
             return f"cannot deliver {a.volume_mL:g} mL of {a.stock} as stated"
         reference = diluent_M if flask is not None else totals
         d_total = (concentration[a.stock] - reference) / volume_mL
-        for device_id in a.devices:
+        for device_id, each_mL in zip(a.devices, delivery_volumes_mL(a), strict=True):
             split = delivery_split_mL(devices[device_id])
             if split is None:
                 return f"{device_id} does not measure a delivery"
-            u_sys, u_rand = split
+            u_sys = split[0]
+            # The device's random error and the bench technique's, independent.
+            u_rand = math.hypot(split[1], technique_u_mL(inputs, devices[device_id], each_mL))
             if u_sys > 0:
                 if device_id not in systematic:
                     systematic[device_id] = len(columns)
@@ -711,7 +722,9 @@ def _reading_u(
         moved[1, j] -= step
         up, down = _solve_and_read(inputs, moved)[3]
         slope[j] = (up - down) / (2.0 * step)
-    variance = inputs.instrument.absorbance_sd**2
+    variance = reading_noise_sd(inputs, reading) ** 2
+    if mixture.role == "blank":
+        variance += inputs.bench.blank_offset_sd**2  # the blank's cuvette against the samples'
     for column, value in zip(columns, u, strict=True):
         variance += (float(slope @ column) * value) ** 2
     return math.sqrt(variance)
@@ -722,7 +735,7 @@ def _reading_uncertainty(inputs: PlanInputs, mixtures: Sequence[Mixture], state:
     problems = []
     unchecked = []
     for i, m in enumerate(mixtures):
-        computed = _reading_u(inputs, m, state.components[i], devices)
+        computed = _reading_u(inputs, m, state.components[i], float(state.absorbance[i]), devices)
         if isinstance(computed, str):
             # A recipe that cannot be made fails deliverable-volumes; its u(A) has no value.
             unchecked.append(m.id)

@@ -40,6 +40,7 @@ from numpy.typing import NDArray
 from planner.inputs import PlanInputs
 from planner.lab.glassware import standard_uncertainty_mL
 from planner.result import Mixture
+from planner.verify_prediction import reading_noise_sd
 
 __all__ = ["RecomputedGlobalFit", "recompute_global_fit"]
 
@@ -193,9 +194,11 @@ def recompute_global_fit(
         u_flask = standard_uncertainty_mL(inputs.flask)
         per_row = (slope * ((diluent_M[None, :] - totals_M) / volume_mL)).sum(axis=1)
         variance += ((per_reading * per_row[None, :] * u_flask) ** 2).sum(axis=1)
-    # Readings: each its own noise.
-    sd = inputs.instrument.absorbance_sd
+    # Readings: each its own noise at its own reading; one blank-cuvette offset on the blanks.
+    base = read(totals_M, None, None)
+    sd = np.array([reading_noise_sd(inputs, float(a)) for a in base])
     variance += ((per_reading * sd) ** 2).sum(axis=1)
+    variance += (per_reading[:, blanks].sum(axis=1) * inputs.bench.blank_offset_sd) ** 2
 
     k_value = 10.0**lg
     return RecomputedGlobalFit(

@@ -71,14 +71,17 @@ from numpy.typing import NDArray
 
 from planner.inputs import Device, PlanInputs
 from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
-from planner.result import Mixture, Prediction
+from planner.result import Addition, Mixture, Prediction
 
 __all__ = [
     "ROUNDING_PROBE",
     "RecomputedPrediction",
     "delivery_split_mL",
+    "delivery_volumes_mL",
     "measured_deliveries",
+    "reading_noise_sd",
     "recompute_prediction",
+    "technique_u_mL",
 ]
 
 #: Relative change of the inputs that probes how much rounding the prediction amplifies:
@@ -134,6 +137,45 @@ def delivery_split_mL(device: Device) -> tuple[float, float] | None:
     return None
 
 
+def technique_u_mL(inputs: PlanInputs, device: Device, volume_mL: float) -> float:
+    """The bench technique's standard deviation for one delivery [mL], re-derived for verify
+    (docs/methods.md, the bench model): a buret is read twice, before and after, each reading
+    with SD ``buret_reading_sd_mL``; a transfer or graduated pipette errs by ``pipette_rsd``
+    of its volume, a piston pipette by ``piston_rsd``; anything else adds nothing."""
+    bench = inputs.bench
+    if device.kind == "buret":
+        return math.sqrt(bench.buret_reading_sd_mL**2 + bench.buret_reading_sd_mL**2)
+    if device.kind in {"transfer-pipette", "graduated-pipette"}:
+        return bench.pipette_rsd * volume_mL
+    if device.kind == "piston-pipette":
+        return bench.piston_rsd * volume_mL
+    return 0.0
+
+
+def delivery_volumes_mL(addition: Addition) -> list[float]:
+    """The volume of each delivery of an addition [mL]: as listed, else equal shares."""
+    if len(addition.deliveries) == len(addition.devices):
+        return [d.volume_mL for d in addition.deliveries]
+    return [addition.volume_mL / len(addition.devices)] * len(addition.devices)
+
+
+def reading_noise_sd(inputs: PlanInputs, absorbance: float) -> float:
+    """SD of one reading at absorbance A, re-derived for verify [absorbance units].
+
+    The three-term precision model of absorption photometry (Rothman, Crouch and Ingle,
+    Anal. Chem. 47 (1975) 1226, from memory): a floor s0, a term r A proportional to the
+    reading (r from the photometer and the cuvette's placement, in quadrature), and constant
+    transmittance noise sigma_T, which A = -log10 T turns into sigma_T / (T ln 10).
+    """
+    instrument = inputs.instrument
+    transmittance = 10.0 ** (-absorbance)
+    from_transmittance = instrument.transmittance_sd / (transmittance * math.log(10.0))
+    proportional = math.sqrt(instrument.absorbance_rsd**2 + inputs.bench.cuvette_rsd**2)
+    return math.sqrt(
+        instrument.absorbance_sd**2 + (proportional * absorbance) ** 2 + from_transmittance**2
+    )
+
+
 def measured_deliveries(
     inputs: PlanInputs, mixtures: Sequence[Mixture]
 ) -> list[tuple[int, int, str, float, float]] | str:
@@ -159,12 +201,15 @@ def measured_deliveries(
                 return f"{mixture.id} adds {addition.stock!r}, which is not a stock"
             if in_flask and diluent is not None and addition.stock == diluent.id:
                 continue  # to the mark: the flask's volume, not a measured delivery
-            for device_id in addition.devices:
+            each_mL = delivery_volumes_mL(addition) if addition.devices else []
+            for device_id, volume_mL in zip(addition.devices, each_mL, strict=True):
                 device = shelf.get(device_id)
                 split = None if device is None else delivery_split_mL(device)
-                if split is None:
+                if split is None or device is None:
                     return f"{mixture.id}: {device_id} does not measure a delivery"
-                deliveries.append((row, column, device_id, *split))
+                # The technique's error is random per delivery, like the device's own.
+                u_random = math.hypot(split[1], technique_u_mL(inputs, device, volume_mL))
+                deliveries.append((row, column, device_id, split[0], u_random))
     return deliveries
 
 
@@ -403,8 +448,8 @@ def _propagate(
         var_eps += float(np.sum((np.sum(w_eps * dc, axis=1) * u_flask) ** 2))
         var_k += float(np.sum((np.sum(w_k * dc, axis=1) * u_flask) ** 2))
 
-    # Readings: each its own noise.
-    sd = inputs.instrument.absorbance_sd
+    # Readings: each its own noise, at its own reading; one blank-cuvette offset on the blanks.
+    sd = np.array([reading_noise_sd(inputs, float(a)) for a in readings])
     g_eps_read = np.zeros(n)
     g_eps_read[rows_std] = d_eps_a
     g_eps_read[rows_blank] = d_eps_a0 / n_blank
@@ -413,4 +458,7 @@ def _propagate(
     g_k_read[rows_blank] += np.sum(d_k_x * (-1.0 / (epsilon * b))) / n_test / n_blank
     var_eps += float(np.sum((g_eps_read * sd) ** 2))
     var_k += float(np.sum((g_k_read * sd) ** 2))
+    offset = inputs.bench.blank_offset_sd
+    var_eps += _square(float(np.sum(g_eps_read[rows_blank])) * offset)
+    var_k += _square(float(np.sum(g_k_read[rows_blank])) * offset)
     return float(epsilon), _root(var_eps), k_tests, _root(var_k)

@@ -21,6 +21,7 @@ from numpy.typing import NDArray
 from planner.analysis import Layout, all_bound_K_log_sensitivities, global_fit_jacobian
 from planner.design.candidates import CandidateSet
 from planner.inputs import PlanInputs
+from planner.lab.bench import reading_sd
 
 __all__ = [
     "GlobalFitObjective",
@@ -76,7 +77,8 @@ def per_mixture_relative_u_K(
     K = x / ((M0 - x)(L0 - x)). Its relative sensitivities are (GUM, JCGM 100:2008, eq. 10,
     in relative form) d ln K/d ln x = 1 + x/(M0 - x) + x/(L0 - x),
     d ln K/d ln M0 = -M0/(M0 - x) and d ln K/d ln L0 = -L0/(L0 - x); u(x)/x comes from the
-    reading noise u(A)/A_net, and u(M0), u(L0) from stocks and deliveries. The molar
+    reading noise u(A)/A_net (heteroscedastic, :func:`planner.lab.bench.reading_sd`), and
+    u(M0), u(L0) from stocks and deliveries. The molar
     absorptivity's own uncertainty is common to all tests and is left to the prediction.
 
     Returns
@@ -94,7 +96,7 @@ def per_mixture_relative_u_K(
     l0 = ev.total_M[indices, limiting]
     s_x, s_m, s_l = all_bound_K_log_sensitivities(x, m0, l0)
     a_net = np.maximum(ev.true_absorbance[indices], 1e-12)
-    u_x = inputs.instrument.absorbance_sd / a_net
+    u_x = reading_sd(inputs.instrument, inputs.bench, ev.absorbance[indices]) / a_net
     u_m = candidates.u_relative_total[indices, excess]
     u_l = candidates.u_relative_total[indices, limiting]
     result: NDArray[np.float64] = np.sqrt((s_x * u_x) ** 2 + (s_m * u_m) ** 2 + (s_l * u_l) ** 2)

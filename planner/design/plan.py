@@ -26,6 +26,7 @@ from planner.design.mixtures import (
 )
 from planner.design.standards import StandardsChoice, choose_standards
 from planner.inputs import PlanInputs
+from planner.lab.bench import reading_sd
 from planner.result import Addition, Check, Delivery, Mixture, Role, StockPreparation, Totals
 
 __all__ = ["Design", "design_recipes", "mixture_from_candidate"]
@@ -179,14 +180,17 @@ def _epsilon_relative_u(
 ) -> float:
     """u(eps)/eps of a standard curve through the origin from reading noise alone.
 
-    eps = sum c A / (b sum c^2) gives u(eps) = u(A) sqrt(sum c^2) / (b sum c^2) (GUM,
-    JCGM 100:2008, eq. 10), so u(eps)/eps = u(A) / sqrt(sum A_i^2) for readings A_i = eps b c_i.
+    eps = sum c A / (b sum c^2) gives u(eps) = sqrt(sum c_i^2 u_i^2) / (b sum c^2) (GUM,
+    JCGM 100:2008, eq. 10), so u(eps)/eps = sqrt(sum A_i^2 u_i^2) / sum A_i^2 for readings
+    A_i = eps b c_i, u_i the heteroscedastic reading noise (:func:`planner.lab.bench.reading_sd`).
     """
     if not standards:
         return 0.0
-    readings = candidates.evaluation.true_absorbance[np.array(standards)]
-    total = float(np.sqrt(np.sum(readings**2)))
-    return inputs.instrument.absorbance_sd / total if total > 0 else 0.0
+    rows = np.array(standards)
+    readings = candidates.evaluation.true_absorbance[rows]
+    u_read = reading_sd(inputs.instrument, inputs.bench, candidates.evaluation.absorbance[rows])
+    total = float(np.sum(readings**2))
+    return float(np.sqrt(np.sum((readings * u_read) ** 2))) / total if total > 0 else 0.0
 
 
 def design_recipes(

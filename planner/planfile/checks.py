@@ -18,6 +18,7 @@ from planner.errors import InvalidInputError, shown
 from planner.fileio.problems import NO_VALUE, fail
 from planner.inputs import (
     DEVICE_KINDS,
+    Bench,
     DesignSettings,
     Device,
     Instrument,
@@ -29,11 +30,13 @@ from planner.inputs import (
     Stock,
     measured_species_index,
 )
+from planner.lab.bench import PRESETS
 from planner.planfile.schema import (
     CLASSLESS_KINDS,
     DELIVERING_KINDS,
     GRADUATED_KINDS,
     MAX_READINGS,
+    BenchModel,
     DesignModel,
     GlasswareModel,
     InstrumentModel,
@@ -91,7 +94,8 @@ def plan_inputs(plan: PlanModel) -> PlanInputs:
             "a mixture must fill the cuvette: raise the total volume or lower the fill",
         )
     session = _session(plan.session)
-    return PlanInputs(plan.title, reaction, instrument, stocks, devices, design, session)
+    bench = _bench(plan.bench)
+    return PlanInputs(plan.title, reaction, instrument, stocks, devices, design, session, bench)
 
 
 def _format_size(value: float) -> str:
@@ -271,6 +275,8 @@ def _instrument(model: InstrumentModel) -> Instrument:
         absorbance_sd=float(model.absorbance_sd),
         stray_light=float(model.stray_light),
         cuvette_fill_mL=float(model.cuvette_fill_mL),
+        absorbance_rsd=float(model.absorbance_rsd),
+        transmittance_sd=float(model.transmittance_sd),
     )
 
 
@@ -739,4 +745,25 @@ def _session(model: SessionModel) -> SessionSettings:
         replicates=model.replicates,
         margin=float(model.margin),
         dead_volume_mL=float(model.dead_volume_mL),
+    )
+
+
+def _bench(model: BenchModel | None) -> Bench:
+    """The bench model: the preset's values with the plan file's overrides; none is ideal."""
+    if model is None:
+        return Bench()
+    preset = PRESETS[model.technique]
+
+    def value(name: str) -> float:
+        given = getattr(model, name)
+        return float(getattr(preset, name) if given is None else given)
+
+    return Bench(
+        technique=model.technique,
+        buret_reading_sd_mL=value("buret_reading_sd_mL"),
+        pipette_rsd=value("pipette_rsd"),
+        piston_rsd=value("piston_rsd"),
+        cuvette_rsd=value("cuvette_rsd"),
+        blank_offset_sd=value("blank_offset_sd"),
+        temperature_sd_C=value("temperature_sd_C"),
     )

@@ -27,6 +27,7 @@ __all__ = [
     "MAX_SPECIES",
     "MAX_STOCKS",
     "MIN_PURITY",
+    "BenchModel",
     "DesignModel",
     "GlasswareModel",
     "InstrumentModel",
@@ -177,6 +178,20 @@ class InstrumentModel(_Model):
     )
     cuvette_fill_mL: float = Field(
         3.0, gt=0, description="the volume that fills the cuvette [mL], > 0"
+    )
+    absorbance_rsd: float = Field(
+        0.0,
+        ge=0,
+        lt=0.5,
+        description="the reading's standard deviation proportional to A, 0 <= r < 0.5 "
+        "(0.005 = 0.5 % of the reading)",
+    )
+    transmittance_sd: float = Field(
+        0.0,
+        ge=0,
+        lt=0.1,
+        description="the standard deviation of the transmittance reading, constant in T, "
+        "0 <= sigma_T < 0.1",
     )
 
 
@@ -347,6 +362,42 @@ class SessionModel(_Model):
     )
 
 
+class BenchModel(_Model):
+    """The ``[bench]`` table: the technique preset and any of its terms overridden."""
+
+    technique: Literal["calibrated", "practised", "novice"] = Field(
+        "practised",
+        description='one of "calibrated", "practised", "novice"',
+    )
+    buret_reading_sd_mL: float | None = Field(
+        None, ge=0, le=1, description="the SD of one buret reading [mL], 0 to 1"
+    )
+    pipette_rsd: float | None = Field(
+        None, ge=0, lt=0.5, description="the relative SD of a pipette's delivery, 0 to 0.5"
+    )
+    piston_rsd: float | None = Field(
+        None,
+        ge=0,
+        lt=0.5,
+        description="the relative SD of a piston pipette's delivery, 0 to 0.5",
+    )
+    cuvette_rsd: float | None = Field(
+        None,
+        ge=0,
+        lt=0.5,
+        description="the relative SD of a reading from cuvette path and placement, 0 to 0.5",
+    )
+    blank_offset_sd: float | None = Field(
+        None,
+        ge=0,
+        lt=1,
+        description="the SD of the blank cuvette's offset [absorbance units], 0 to 1",
+    )
+    temperature_sd_C: float | None = Field(
+        None, ge=0, le=20, description="the SD of a bench's temperature [°C], 0 to 20"
+    )
+
+
 class PlanModel(_Model):
     """A whole plan file."""
 
@@ -363,3 +414,6 @@ class PlanModel(_Model):
     )
     design: DesignModel = Field(description="a [design] table")
     session: SessionModel = Field(default_factory=SessionModel, description="a [session] table")
+    bench: BenchModel | None = Field(
+        None, description="a [bench] table (none: the glassware's tolerances only)"
+    )

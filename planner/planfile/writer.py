@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from planner.inputs import Device, PlanInputs, Stock
+from planner.inputs import Bench, Device, PlanInputs, Stock
 from planner.planfile.schema import CLASSLESS_KINDS, DELIVERING_KINDS, GRADUATED_KINDS
 
 __all__ = ["plan_to_mapping"]
@@ -56,6 +56,8 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
             "absorbance_sd": instrument.absorbance_sd,
             "stray_light": instrument.stray_light,
             "cuvette_fill_mL": instrument.cuvette_fill_mL,
+            "absorbance_rsd": instrument.absorbance_rsd,
+            "transmittance_sd": instrument.transmittance_sd,
         },
         "stocks": [_stock_mapping(stock) for stock in inputs.stocks],
         "glassware": [_device_mapping(device) for device in inputs.glassware],
@@ -85,6 +87,24 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
             "margin": session.margin,
             "dead_volume_mL": session.dead_volume_mL,
         },
+        **_bench_mapping(inputs.bench),
+    }
+
+
+def _bench_mapping(bench: Bench) -> dict[str, Any]:
+    """The ``[bench]`` table with every term written out; none for an ideal bench."""
+    if bench.technique == "none":
+        return {}
+    return {
+        "bench": {
+            "technique": bench.technique,
+            "buret_reading_sd_mL": bench.buret_reading_sd_mL,
+            "pipette_rsd": bench.pipette_rsd,
+            "piston_rsd": bench.piston_rsd,
+            "cuvette_rsd": bench.cuvette_rsd,
+            "blank_offset_sd": bench.blank_offset_sd,
+            "temperature_sd_C": bench.temperature_sd_C,
+        }
     }
 
 
