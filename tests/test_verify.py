@@ -587,10 +587,13 @@ def test_reading_uncertainty_of_a_standard_by_hand(document: Document) -> None:
     #   b = K(M + L) + 1, with eps b [ML] read through the stray light,
     #   A = log10((1 + s)/(10^-A_true + s)) (Skoog et al. 2017, section 13B-2, from memory),
     #   by central differences. The default's 1:2 species Fe(SCN)2+ is left out of this hand
-    #   model (it holds under 0.1 % of the thiocyanate in a standard), hence 1e-3 relative.
+    #   model (it holds under 0.1 % of the thiocyanate in a standard), hence 1e-3 relative;
+    # - the bench (the default's [bench]): each buret delivery is read twice, adding
+    #   2 buret_reading_sd_mL^2 to its variance; the reading's own SD is the floor and the
+    #   cuvette's placement in quadrature, sd^2 = absorbance_sd^2 + (cuvette_rsd A)^2.
     inputs = document["inputs"]
     stray = inputs["instrument"]["stray_light"]
-    sd = inputs["instrument"]["absorbance_sd"]
+    buret_reading = inputs["bench"]["buret_reading_sd_mL"]
     path = inputs["instrument"]["path_length_cm"]
     product = next(sp for sp in inputs["reaction"]["species"] if sp["name"] == "FeSCN2+")
     k1, eps = 10 ** product["log_beta"], product["epsilon"]
@@ -598,6 +601,10 @@ def test_reading_uncertainty_of_a_standard_by_hand(document: Document) -> None:
         m
         for m in role(document, "standard")
         if all(a["devices"] == ["buret-25mL"] for a in m["additions"])
+    )
+    sd = math.hypot(
+        inputs["instrument"]["absorbance_sd"],
+        inputs["bench"]["cuvette_rsd"] * standard["absorbance"],
     )
     stocks = {st["id"]: st for st in inputs["stocks"]}
     volume = standard["total_volume_mL"]
@@ -620,7 +627,7 @@ def test_reading_uncertainty_of_a_standard_by_hand(document: Document) -> None:
     h_m, h_l = 1e-6 * total_m, 1e-6 * total_l
     d_m = (reading(total_m + h_m, total_l) - reading(total_m - h_m, total_l)) / (2 * h_m)
     d_l = (reading(total_m, total_l + h_l) - reading(total_m, total_l - h_l)) / (2 * h_l)
-    u_delivery = 0.03 / math.sqrt(6)
+    u_delivery = math.sqrt((0.03 / math.sqrt(6)) ** 2 + 2 * buret_reading**2)
     variance = sd**2
     for a in standard["additions"]:
         c_m, c_l = conc[a["stock"]]
