@@ -39,6 +39,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from planner.chem.thermodynamics import bench_log_beta
 from planner.forward import predict_readings
 from planner.inputs import Instrument, Reaction
 
@@ -239,7 +240,7 @@ def global_fit_table(reaction: Reaction, instrument: Instrument, layout: Layout)
     """Tabulate the global model of one set of mixtures over log10 K (see the module notes)."""
     from scipy.interpolate import CubicSpline
 
-    logs = reaction.log_beta()
+    logs = bench_log_beta(reaction)
     others = reaction.species_epsilon().copy()
     others[layout.measured] = 0.0
     centre = float(logs[layout.measured])
@@ -479,7 +480,7 @@ def global_fit(
     """
     from scipy.optimize import least_squares
 
-    logs = reaction.log_beta()
+    logs = bench_log_beta(reaction)
     fit = _fitted_rows(layout)
     data = np.asarray(readings, dtype=float)
     net = data[fit] - data[layout.blanks].mean()
@@ -526,7 +527,7 @@ def global_fit_jacobian(
         (standards, then tests), shape (n_fitted, 2), by central differences on the forward
         model (the blank's mean subtracted as in the fit).
     """
-    logs = reaction.log_beta()
+    logs = bench_log_beta(reaction)
     epsilons = reaction.species_epsilon()
     fit = _fitted_rows(layout)
     lg = float(logs[layout.measured])

@@ -11,7 +11,7 @@ Units are in the names: ``_M`` mol/L, ``_mL`` millilitres, ``_uL`` microlitres, 
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from numpy.typing import NDArray
@@ -75,12 +75,16 @@ class ProductSpecies:
         sum of the coefficients.
     epsilon
         Molar absorptivity at the working wavelength [L mol⁻¹ cm⁻¹].
+    enthalpy_kJ_mol
+        Standard reaction enthalpy of the formation reaction [kJ/mol], or None when not
+        given (beta then taken as independent of temperature).
     """
 
     name: str
     formula: dict[str, int]
     log_beta: float
     epsilon: float = 0.0
+    enthalpy_kJ_mol: float | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -99,6 +103,11 @@ class Reaction:
         Product species, one per complex.
     component_epsilon
         Molar absorptivity of each free component that absorbs [L mol⁻¹ cm⁻¹]; others are 0.
+    bench_temperature_C
+        Temperature of the benches [°C] (the session's), at which
+        :func:`planner.chem.thermodynamics.bench_log_beta` gives the constants; None means
+        the constants' own temperature. :class:`PlanInputs` sets it
+        from ``session.temperature_C``.
     """
 
     temperature_C: float
@@ -106,6 +115,7 @@ class Reaction:
     components: tuple[str, ...]
     species: tuple[ProductSpecies, ...]
     component_epsilon: dict[str, float] = field(default_factory=dict)
+    bench_temperature_C: float | None = None
 
     def stoichiometry(self) -> NDArray[np.float64]:
         """Coefficient matrix, shape (n_species, n_components) [unitless]."""
@@ -116,8 +126,19 @@ class Reaction:
         return matrix
 
     def log_beta(self) -> NDArray[np.float64]:
-        """log10 beta of each product species, shape (n_species,)."""
+        """log10 beta of each product species at ``temperature_C``, as the plan gives them,
+        shape (n_species,). At the benches' temperature:
+        :func:`planner.chem.thermodynamics.bench_log_beta`."""
         return np.array([sp.log_beta for sp in self.species], dtype=float)
+
+    def enthalpy_kJ_mol(self) -> NDArray[np.float64]:
+        """Reaction enthalpy of each product species, 0 where not given, shape (n_species,)
+        [kJ/mol]."""
+        return np.array([sp.enthalpy_kJ_mol or 0.0 for sp in self.species], dtype=float)
+
+    def at_temperature(self, temperature_C: float) -> Reaction:
+        """The same reaction with its benches at ``temperature_C`` [°C]."""
+        return replace(self, bench_temperature_C=temperature_C)
 
     def species_epsilon(self) -> NDArray[np.float64]:
         """Molar absorptivity of each product species, shape (n_species,) [L mol⁻¹ cm⁻¹]."""
@@ -385,6 +406,9 @@ class SessionSettings:
         Extra stock fraction beyond the need [unitless].
     dead_volume_mL
         Volume per stock and dispensing device left unusable in the bench container [mL].
+    temperature_C
+        The room's temperature at the benches [°C]; None means the constants' own
+        (``reaction.temperature_C``).
     """
 
     sections: int = 1
@@ -392,6 +416,7 @@ class SessionSettings:
     replicates: int = 1
     margin: float = 0.15
     dead_volume_mL: float = 5.0
+    temperature_C: float | None = None
 
     @property
     def sets(self) -> int:
@@ -471,6 +496,15 @@ class PlanInputs:
     flask: Device | None = field(init=False, compare=False, repr=False)
 
     def __post_init__(self) -> None:
+        # The benches work at the session's temperature: every stage reads the constants
+        # there (chem.thermodynamics.bench_log_beta), while the plan file's values stay as
+        # given.
+        if self.reaction.bench_temperature_C != self.session.temperature_C:
+            object.__setattr__(
+                self,
+                "reaction",
+                replace(self.reaction, bench_temperature_C=self.session.temperature_C),
+            )
         measured = measured_species_index(self.reaction, self.design)
         formula = self.reaction.species[measured].formula
         partners = [c for c, n in formula.items() if c != self.design.limiting and n > 0]

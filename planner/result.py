@@ -336,8 +336,8 @@ class Contributor:
         What the input is, e.g. ``"reading of T3"`` or ``"buret-25mL delivering thiocyanate
         into S2"``.
     kind
-        ``"stock"``, ``"device-systematic"``, ``"delivery-random"``, ``"flask"`` or
-        ``"reading"``.
+        ``"stock"``, ``"device-systematic"``, ``"delivery-random"``, ``"flask"``,
+        ``"temperature"`` or ``"reading"``.
     standard_uncertainty
         u of the input, in ``unit``.
     unit

@@ -47,6 +47,7 @@ from planner.result import (
 from planner.verify_global_fit import RecomputedGlobalFit, recompute_global_fit
 from planner.verify_prediction import (
     RecomputedPrediction,
+    bench_log_beta,
     delivery_split_mL,
     delivery_volumes_mL,
     measured_deliveries,
@@ -59,6 +60,7 @@ __all__ = [
     "CHECK_NAMES",
     "RESULT_CHECK_NAMES",
     "inventory_check",
+    "reading_temperature_slope",
     "verify_plan",
     "verify_result",
 ]
@@ -617,7 +619,7 @@ def _solve_and_read(
     purpose, to check planner.forward's); ``log_beta`` and ``species_epsilon`` replace the
     plan's constants when given."""
     reaction = inputs.reaction
-    logs = reaction.log_beta() if log_beta is None else log_beta
+    logs = bench_log_beta(inputs) if log_beta is None else log_beta
     solved = solve_equilibrium(totals, reaction.stoichiometry(), logs)
     absorbers = np.concatenate([solved.species_M, solved.free_M], axis=1)
     species = reaction.species_epsilon() if species_epsilon is None else species_epsilon
@@ -627,6 +629,21 @@ def _solve_and_read(
     )
     reading = np.asarray(observed_absorbance(net, inputs.instrument.stray_light), dtype=float)
     return solved.free_M, solved.species_M, net, reading
+
+
+def reading_temperature_slope(inputs: PlanInputs, totals: np.ndarray) -> tuple[np.ndarray, float]:
+    """d(reading)/dT of each mixture [1/K] and the benches' temperature SD [°C]: the van 't
+    Hoff shift of verify's own constants (bench_log_beta) read through verify's own forward
+    model, central difference of 0.01 K; zeros and 0 when no species gives an enthalpy."""
+    sd = inputs.bench.temperature_sd_C
+    if sd <= 0 or not any(sp.enthalpy_kJ_mol for sp in inputs.reaction.species):
+        return np.zeros(len(totals)), 0.0
+    room = inputs.session.temperature_C
+    t = inputs.reaction.temperature_C if room is None else room
+    h = 0.01
+    up = _solve_and_read(inputs, totals, bench_log_beta(inputs, t + h))[3]
+    down = _solve_and_read(inputs, totals, bench_log_beta(inputs, t - h))[3]
+    return (up - down) / (2 * h), sd
 
 
 # Relative step of the central difference of the reading (as any first-order budget may find
@@ -723,6 +740,8 @@ def _reading_u(
         up, down = _solve_and_read(inputs, moved)[3]
         slope[j] = (up - down) / (2.0 * step)
     variance = reading_noise_sd(inputs, reading) ** 2
+    per_kelvin, temperature_sd = reading_temperature_slope(inputs, totals[None, :])
+    variance += (float(per_kelvin[0]) * temperature_sd) ** 2  # the bench's temperature
     if mixture.role == "blank":
         variance += inputs.bench.blank_offset_sd**2  # the blank's cuvette against the samples'
     for column, value in zip(columns, u, strict=True):
@@ -760,7 +779,7 @@ def _excess_partner(inputs: PlanInputs) -> tuple[str | None, float | None]:
     for sp in sorted(reaction.species, key=lambda s: -s.epsilon):
         others = [c for c, n in sp.formula.items() if c != limiting and n]
         if sp.formula.get(limiting) == 1 and len(others) == 1 and sp.formula[others[0]] == 1:
-            return others[0], 10.0**sp.log_beta
+            return others[0], float(10.0 ** bench_log_beta(inputs)[reaction.species.index(sp)])
     return None, None
 
 
@@ -1224,7 +1243,13 @@ def _prediction(
     For a plan designed for the global fit the all-bound block may be null, and must be when
     the all-bound analysis of the recipes gives meaningless numbers.
     """
-    recomputed = recompute_prediction(inputs, mixtures, state.components, state.absorbance)
+    recomputed = recompute_prediction(
+        inputs,
+        mixtures,
+        state.components,
+        state.absorbance,
+        reading_temperature_slope(inputs, state.components),
+    )
     fit = _global_fit_prediction(inputs, mixtures, state, stated_fit)
     if analysis == "global-fit":
         if stated is None:
@@ -1254,6 +1279,7 @@ def _global_fit_prediction(
             state.components,
             lambda totals, logs, eps: _solve_and_read(inputs, totals, logs, eps)[3],
             listed,
+            reading_temperature_slope(inputs, state.components),
         )
     )
     if stated is None:

@@ -76,6 +76,7 @@ from planner.result import Addition, Mixture, Prediction
 __all__ = [
     "ROUNDING_PROBE",
     "RecomputedPrediction",
+    "bench_log_beta",
     "delivery_split_mL",
     "delivery_volumes_mL",
     "measured_deliveries",
@@ -135,6 +136,33 @@ def delivery_split_mL(device: Device) -> tuple[float, float] | None:
     if device.kind in _GRADUATED:
         return 0.0, standard_uncertainty_mL(device)
     return None
+
+
+#: Molar gas constant [J mol⁻¹ K⁻¹] (CODATA 2018, exact) and 0 °C [K], for verify's own
+#: van 't Hoff.
+_R_J_PER_MOL_K = 8.314462618
+_ZERO_C_K = 273.15
+
+
+def bench_log_beta(inputs: PlanInputs, temperature_C: float | None = None) -> NDArray[np.float64]:
+    """log10 beta of every product species at the benches' temperature, re-derived for verify.
+
+    The integrated van 't Hoff equation, ln(beta2/beta1) = -(dH/R)(1/T2 - 1/T1) (Atkins and
+    de Paula, Physical Chemistry, 9th ed., 2010, eq. 6.23, from memory), from each species'
+    ``log_beta`` at ``reaction.temperature_C`` and its ``enthalpy_kJ_mol`` (none: no change),
+    to ``temperature_C`` or else ``session.temperature_C``.
+    """
+    reaction = inputs.reaction
+    wanted = inputs.session.temperature_C if temperature_C is None else temperature_C
+    logs = np.array([sp.log_beta for sp in reaction.species], dtype=float)
+    if wanted is None:
+        return logs
+    t1, t2 = reaction.temperature_C + _ZERO_C_K, wanted + _ZERO_C_K
+    for i, sp in enumerate(reaction.species):
+        if sp.enthalpy_kJ_mol:
+            ln_ratio = -(sp.enthalpy_kJ_mol * 1000.0 / _R_J_PER_MOL_K) * (1.0 / t2 - 1.0 / t1)
+            logs[i] += ln_ratio / math.log(10.0)
+    return logs
 
 
 def technique_u_mL(inputs: PlanInputs, device: Device, volume_mL: float) -> float:
@@ -228,6 +256,7 @@ def recompute_prediction(
     mixtures: Sequence[Mixture],
     totals_M: NDArray[np.float64],
     readings: NDArray[np.float64],
+    temperature: tuple[NDArray[np.float64], float] | None = None,
 ) -> RecomputedPrediction | str:
     """Re-derive the prediction block of a plan (see the module notes).
 
@@ -243,6 +272,9 @@ def recompute_prediction(
     readings
         Re-computed photometer reading of each mixture (stray light applied, blank not
         subtracted), shape (n_mixtures,) [unitless].
+    temperature
+        d(reading)/dT of each mixture [1/K] and the SD of a bench's temperature [°C]: one
+        input shared by every reading of the bench; None for none.
 
     Returns
     -------
@@ -313,9 +345,15 @@ def recompute_prediction(
                 deliveries,
                 diluent_column,
                 volume_mL,
+                per_kelvin,
             )
         return [epsilon, u_epsilon, float(np.mean(k_tests)), u_k, *k_tests.tolist()]
 
+    per_kelvin = (
+        np.zeros(len(chosen))
+        if temperature is None
+        else np.asarray(temperature[0], dtype=float)[chosen] * temperature[1]
+    )
     base_totals = totals_M[chosen][:, [limiting, excess]]
     base_readings = readings[chosen]
     numbers = evaluate(base_totals, base_readings)
@@ -336,7 +374,7 @@ def recompute_prediction(
         for i, (moved, value) in enumerate(zip(evaluate(totals, reads), numbers, strict=True)):
             # A probe that reaches a singularity makes the value worth nothing: inf.
             spread[i] = max(spread[i], abs(moved - value) if math.isfinite(moved) else math.inf)
-    k_true = float(10.0**coloured.log_beta)
+    k_true = float(10.0 ** bench_log_beta(inputs)[inputs.measured])
     epsilon, u_epsilon, k_mean, u_k, *k_tests = numbers
     return RecomputedPrediction(
         prediction=Prediction(
@@ -374,6 +412,7 @@ def _propagate(
     deliveries: Sequence[tuple[int, int, str, float, float]],
     diluent_column: int | None,
     volume_mL: float,
+    temperature_move: NDArray[np.float64],
 ) -> tuple[float, float, NDArray[np.float64], float]:
     """eps, u(eps), K of each test and u(mean K); the first rows are the blanks (A_0 is their
     mean, so each blank reading carries 1/n_blanks of d/dA_0), columns (L, M)."""
@@ -461,4 +500,7 @@ def _propagate(
     offset = inputs.bench.blank_offset_sd
     var_eps += _square(float(np.sum(g_eps_read[rows_blank])) * offset)
     var_k += _square(float(np.sum(g_k_read[rows_blank])) * offset)
+    # The bench's temperature: one input moving every reading by dA/dT times its SD.
+    var_eps += _square(float(np.dot(g_eps_read, temperature_move)))
+    var_k += _square(float(np.dot(g_k_read, temperature_move)))
     return float(epsilon), _root(var_eps), k_tests, _root(var_k)

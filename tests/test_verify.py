@@ -32,7 +32,13 @@ from planner.predict.uncertainty import prediction_from, propagate
 from planner.report.plan_json import plan_json
 from planner.result import Check, Plan
 from planner.resultfile import parse_result
-from planner.verify import CHECK_NAMES, RESULT_CHECK_NAMES, verify_plan, verify_result
+from planner.verify import (
+    CHECK_NAMES,
+    RESULT_CHECK_NAMES,
+    reading_temperature_slope,
+    verify_plan,
+    verify_result,
+)
 from planner.verify_prediction import recompute_prediction
 
 Document = dict[str, Any]
@@ -683,7 +689,10 @@ def test_prediction_agrees_with_the_design_s_propagation(default_plan: Plan) -> 
         ]
     )
     readings = np.array([m.absorbance for m in saved.mixtures])
-    again = recompute_prediction(saved.inputs, saved.mixtures, state_totals, readings)
+    # The bench's temperature (the default gives an enthalpy): the verifier's own slope.
+    slope = reading_temperature_slope(saved.inputs, state_totals)
+    assert slope[1] > 0
+    again = recompute_prediction(saved.inputs, saved.mixtures, state_totals, readings, slope)
     assert not isinstance(again, str), again
     for key in ("epsilon", "u_epsilon", "K", "u_K", "K_bias_from_assumption", "K_true"):
         assert getattr(again.prediction, key) == pytest.approx(getattr(design, key), rel=1e-12), key

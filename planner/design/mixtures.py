@@ -19,6 +19,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.analysis import Layout, all_bound_K_log_sensitivities, global_fit_jacobian
+from planner.chem.thermodynamics import bench_K
 from planner.design.candidates import CandidateSet
 from planner.inputs import PlanInputs
 from planner.lab.bench import reading_sd
@@ -250,7 +251,7 @@ def global_fit_objective(
         excess=excess,
         measured=inputs.measured,
         epsilon_true=inputs.measured_species.epsilon,
-        K_true=10.0**inputs.measured_species.log_beta,
+        K_true=bench_K(inputs),
     )
     rows = global_fit_jacobian(inputs.reaction, inputs.instrument, layout)
     return GlobalFitObjective(rows, candidates.u_absorbance**2, np.array(standards, dtype=np.int64))

@@ -15,6 +15,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.analysis import Layout, all_bound_mean_K
+from planner.chem.thermodynamics import bench_K
 from planner.design.candidates import CandidateSet, candidate_set
 from planner.design.logistics import preparations, stock_totals
 from planner.design.mixtures import (
@@ -415,7 +416,7 @@ def _all_bound_error(
         excess=components.index(inputs.excess),
         measured=inputs.measured,
         epsilon_true=inputs.measured_species.epsilon,
-        K_true=10.0**inputs.measured_species.log_beta,
+        K_true=bench_K(inputs),
     )
     readings = ev.absorbance[rows]
     net = readings - (readings[:n_blank].mean() if n_blank else 0.0)

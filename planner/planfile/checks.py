@@ -245,6 +245,9 @@ def _reaction(model: ReactionModel) -> Reaction:
                 formula=dict(entry.formula),
                 log_beta=float(log_beta),
                 epsilon=float(entry.epsilon),
+                enthalpy_kJ_mol=(
+                    None if entry.enthalpy_kJ_mol is None else float(entry.enthalpy_kJ_mol)
+                ),
             )
         )
 
@@ -745,6 +748,7 @@ def _session(model: SessionModel) -> SessionSettings:
         replicates=model.replicates,
         margin=float(model.margin),
         dead_volume_mL=float(model.dead_volume_mL),
+        temperature_C=None if model.temperature_C is None else float(model.temperature_C),
     )
 
 

@@ -125,6 +125,12 @@ class SpeciesModel(_Model):
         le=EPSILON_LIMIT,
         description="the molar absorptivity [L mol-1 cm-1] at the wavelength, 0 to 1e7",
     )
+    enthalpy_kJ_mol: float | None = Field(
+        None,
+        ge=-500,
+        le=500,
+        description="the standard reaction enthalpy of the formation [kJ/mol], -500 to 500",
+    )
 
 
 class ReactionModel(_Model):
@@ -359,6 +365,12 @@ class SessionModel(_Model):
         ge=0,
         le=1000,
         description="the unusable volume per stock and dispensing device [mL], 0 to 1000",
+    )
+    temperature_C: float | None = Field(
+        None,
+        ge=0,
+        le=100,
+        description="the room's temperature at the benches [°C], 0 to 100",
     )
 
 

@@ -44,6 +44,11 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
                     "formula": dict(sp.formula),
                     "log_beta": sp.log_beta,
                     "epsilon": sp.epsilon,
+                    **(
+                        {"enthalpy_kJ_mol": sp.enthalpy_kJ_mol}
+                        if sp.enthalpy_kJ_mol is not None
+                        else {}
+                    ),
                 }
                 for sp in reaction.species
             ],
@@ -86,6 +91,11 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
             "replicates": session.replicates,
             "margin": session.margin,
             "dead_volume_mL": session.dead_volume_mL,
+            **(
+                {"temperature_C": session.temperature_C}
+                if session.temperature_C is not None
+                else {}
+            ),
         },
         **_bench_mapping(inputs.bench),
     }

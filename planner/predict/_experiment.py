@@ -35,6 +35,9 @@ Error model of one bench's set of mixtures (the same in both methods)
   placement).
 - **Blank cuvette**: one normal offset per bench, ``bench.blank_offset_sd``, on the blank
   readings (the samples are read in another cuvette), shared by every blank.
+- **Room temperature**: one normal deviation per bench, ``bench.temperature_sd_C``, from the
+  benches' temperature; it moves every constant that has an enthalpy by van 't Hoff
+  (:mod:`planner.chem.thermodynamics`), and so every reading of the bench at once.
 - **Stocks are one batch for the class**: the prep room makes each stock once, so its error
   is common to every bench of the class; the Monte Carlo draws it once per class and reports
   the class-common spread apart from the bench-to-bench spread.
@@ -53,7 +56,9 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.analysis import Layout
+from planner.chem.thermodynamics import bench_K
 from planner.errors import InvalidInputError
+from planner.forward import predict_readings
 from planner.inputs import Device, PlanInputs
 from planner.lab.bench import reading_sd, technique_sd_mL
 from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
@@ -64,6 +69,7 @@ __all__ = [
     "Delivery",
     "bench_experiment",
     "delivery_split_mL",
+    "reading_per_kelvin",
     "triangular_half_width",
 ]
 
@@ -155,6 +161,15 @@ class BenchExperiment:
         (n_mixtures,) [unitless].
     blank_offset_sd
         Standard deviation of the blank cuvette's offset, one per bench [unitless].
+    temperature_C
+        The benches' temperature [°C] (the session's, else the constants').
+    temperature_sd_C
+        Standard deviation of one bench's temperature about it [°C]; 0 when no species gives
+        an enthalpy (the constants then do not move with temperature).
+    reading_per_kelvin
+        d(reading)/dT of each mixture at its nominal composition, shape (n_mixtures,) [1/K]:
+        the van 't Hoff shift of the constants read through the equilibrium and the
+        photometer (central difference, step 0.01 K).
     stray_light
         Stray-light fraction [unitless].
     """
@@ -177,6 +192,9 @@ class BenchExperiment:
     path_length_cm: float
     reading_sd: NDArray[np.float64]
     blank_offset_sd: float
+    temperature_C: float
+    temperature_sd_C: float
+    reading_per_kelvin: NDArray[np.float64]
     stray_light: float
 
 
@@ -323,9 +341,21 @@ def bench_experiment(
         excess=_excess_column(inputs, required=for_analysis),
         measured=inputs.measured,
         epsilon_true=float(species.epsilon),
-        K_true=float(10.0**species.log_beta),
+        K_true=bench_K(inputs),
     )
     readings = np.array([m.absorbance for m in mixtures], dtype=float)
+    temperature = (
+        inputs.session.temperature_C
+        if inputs.session.temperature_C is not None
+        else reaction.temperature_C
+    )
+    moves = bool(np.any(reaction.enthalpy_kJ_mol() != 0))
+    temperature_sd = inputs.bench.temperature_sd_C if moves else 0.0
+    per_kelvin = (
+        reading_per_kelvin(inputs, layout.totals_M, temperature)
+        if temperature_sd > 0
+        else np.zeros(len(mixtures))
+    )
     return BenchExperiment(
         mixture_ids=tuple(m.id for m in mixtures),
         stock_ids=stock_ids,
@@ -345,8 +375,52 @@ def bench_experiment(
         path_length_cm=inputs.instrument.path_length_cm,
         reading_sd=reading_sd(inputs.instrument, inputs.bench, readings),
         blank_offset_sd=inputs.bench.blank_offset_sd,
+        temperature_C=float(temperature),
+        temperature_sd_C=float(temperature_sd),
+        reading_per_kelvin=per_kelvin,
         stray_light=inputs.instrument.stray_light,
     )
+
+
+#: Step of the central difference in temperature [K]: the van 't Hoff shift is smooth, so
+#: the truncation error (~step^2) is negligible and the step far above rounding.
+_TEMPERATURE_STEP_K = 0.01
+
+
+def reading_per_kelvin(
+    inputs: PlanInputs,
+    totals_M: NDArray[np.float64],
+    temperature_C: float,
+    step_K: float = _TEMPERATURE_STEP_K,
+) -> NDArray[np.float64]:
+    """d(reading)/dT of mixtures at these totals, by a central difference [1/K].
+
+    Parameters
+    ----------
+    inputs
+        The plan (reaction with its enthalpies, instrument).
+    totals_M
+        Component totals, shape (n, n_components) [mol/L].
+    temperature_C
+        Temperature at which the slope is taken [°C].
+    step_K
+        Half-width of the difference [K]; the Monte Carlo uses the bench's temperature SD (a
+        secant across the spread).
+
+    Returns
+    -------
+    NDArray[np.float64]
+        Shape (n,).
+    """
+    reaction = inputs.reaction
+    up = predict_readings(
+        reaction.at_temperature(temperature_C + step_K), inputs.instrument, totals_M
+    ).absorbance
+    down = predict_readings(
+        reaction.at_temperature(temperature_C - step_K), inputs.instrument, totals_M
+    ).absorbance
+    result: NDArray[np.float64] = (up - down) / (2.0 * step_K)
+    return result
 
 
 def triangular_half_width(u: NDArray[np.float64]) -> NDArray[np.float64]:

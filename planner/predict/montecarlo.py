@@ -18,7 +18,9 @@ distributions by a Monte Carlo method). A trial draws, per the error model of
   (:func:`planner.chem.equilibrium.solve_equilibrium` on trials x mixtures rows), read
   through the photometer's stray-light response at the plan's stray-light fraction, plus
   normal noise whose SD is :func:`planner.lab.bench.reading_sd` at the actual reading, and one
-  blank-cuvette offset per bench on the blank readings (normal, ``bench.blank_offset_sd``).
+  blank-cuvette offset per bench on the blank readings (normal, ``bench.blank_offset_sd``);
+- one temperature deviation per bench (normal, ``bench.temperature_sd_C``) when a constant
+  has an enthalpy: the readings move along the van 't Hoff secant across one SD either side.
 
 The spread of K is reported two ways besides the whole distribution
 (:class:`ClassSpread`): bench to bench inside a class (what a marker sees in one session)
@@ -64,6 +66,7 @@ from planner.lab.bench import reading_sd
 from planner.predict._experiment import (
     BenchExperiment,
     bench_experiment,
+    reading_per_kelvin,
     triangular_half_width,
 )
 from planner.result import Mixture
@@ -346,6 +349,15 @@ def _simulate_readings(
     totals = np.maximum(amounts / total[:, :, None], 0.0).reshape(n * n_mix, -1)
     readings = predict_readings(inputs.reaction, inputs.instrument, totals).absorbance
     readings = readings.reshape(n, n_mix)
+    if ex.temperature_sd_C > 0:
+        # The bench's own temperature moves every constant with an enthalpy (van 't Hoff);
+        # the readings follow it along the secant across one SD either side, at the
+        # bench's actual composition (linear in the deviation over the bench's spread).
+        per_kelvin = reading_per_kelvin(
+            inputs, totals, ex.temperature_C, step_K=ex.temperature_sd_C
+        ).reshape(n, n_mix)
+        deviation = ex.temperature_sd_C * np.asarray(rng.standard_normal(n), dtype=float)
+        readings = readings + per_kelvin * deviation[:, None]
     result: NDArray[np.float64] = (
         readings + reading_sd(inputs.instrument, inputs.bench, readings) * noise
     )

@@ -339,7 +339,10 @@ def _elementary_inputs(ex: BenchExperiment, models: _Models) -> _Inputs:
         column = np.zeros((n_mix, n_comp))
         add(f"reading of {mixture_id}", "reading", "absorbance", ex.reading_sd[m], column)
         touches[-1] = frozenset({m})
-    reading_rows: list[frozenset[int]] = [frozenset({m}) for m in range(n_mix)]
+    # Inputs that move readings directly: (input index, d reading/d input per mixture).
+    moves: list[tuple[int, NDArray[np.float64]]] = [
+        (first_reading + m, np.eye(n_mix)[m]) for m in range(n_mix)
+    ]
     blanks = frozenset(int(m) for m in ex.layout.blanks)
     if ex.blank_offset_sd > 0 and blanks:
         add(
@@ -350,11 +353,21 @@ def _elementary_inputs(ex: BenchExperiment, models: _Models) -> _Inputs:
             np.zeros((n_mix, n_comp)),
         )
         touches[-1] = blanks
-        reading_rows.append(blanks)
+        moves.append((len(names) - 1, np.isin(np.arange(n_mix), sorted(blanks)).astype(float)))
+    if ex.temperature_sd_C > 0 and np.any(ex.reading_per_kelvin != 0):
+        add(
+            "bench temperature",
+            "temperature",
+            "°C",
+            ex.temperature_sd_C,
+            np.zeros((n_mix, n_comp)),
+        )
+        touches[-1] = frozenset(range(n_mix))
+        moves.append((len(names) - 1, ex.reading_per_kelvin))
     jacobian = np.stack(columns, axis=2) if columns else np.zeros((n_mix, n_comp, 0))
     direct = np.zeros((n_mix, len(names)))
-    for offset, rows in enumerate(reading_rows):
-        direct[sorted(rows), first_reading + offset] = 1.0
+    for z, column_of_readings in moves:
+        direct[:, z] = column_of_readings
     return _Inputs(
         names=tuple(names),
         kinds=tuple(kinds),
@@ -483,6 +496,11 @@ def _formula(
 ) -> str:
     """The coefficient of input z as a chain of model derivatives, with their formulas."""
     kind = inputs.kinds[z]
+    if kind == "temperature":
+        return (
+            "Σ_m ∂y/∂A_m·∂A_m/∂T, where ∂A/∂T is van 't Hoff's d log10 β/dT = ΔH/(R T² ln 10) "
+            "read through the equilibrium and the photometer (central difference)"
+        )
     stage1 = {
         "stock": "∂c/∂r_k",
         "flask": "∂c/∂V_f",

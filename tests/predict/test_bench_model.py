@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 import json
+import re
 
 import numpy as np
 import pytest
@@ -109,3 +110,52 @@ def test_bench_terms_widen_every_reading(presets) -> None:
         assert b.u_absorbance > a.u_absorbance
     names = {c.input for c in nov.K.contributors}
     assert "blank cuvette offset" in names
+
+
+def _warm_plan_text(technique: str, room_C: float) -> str:
+    """The default with an enthalpy for FeSCN2+ and the room at ``room_C``."""
+    text = re.sub(r"(?m)^enthalpy_kJ_mol = .*$", "", _plan_text(technique))
+    text = text.replace("K = 98\n", "K = 98\nenthalpy_kJ_mol = -6.0\n", 1)
+    return text.replace("[session]\n", f"[session]\ntemperature_C = {room_C}\n", 1)
+
+
+@pytest.fixture(scope="module")
+def cool_room():
+    inputs = parse_plan(_warm_plan_text("novice", 20.0))
+    return inputs, design_plan(inputs)
+
+
+def test_the_bench_constant_is_van_t_hoffs(cool_room) -> None:
+    # Hand value (tests/chem/test_thermodynamics.py): K = 98 at 25 °C with dH = -6.0 kJ/mol
+    # is 102.1304 at 20 °C; the plan predicts against that K, for both analyses.
+    inputs, plan = cool_room
+    assert inputs.reaction.temperature_C == 25.0
+    assert plan.prediction is not None
+    assert plan.prediction.K_true == pytest.approx(102.1304, rel=1e-5)
+    assert plan.global_fit is not None
+    assert pytest.approx(102.1304, rel=1e-5) == plan.global_fit.K
+    statuses = {c.name: c.status for c in plan.checks}
+    assert "fail" not in statuses.values()
+
+
+def test_room_temperature_spread_enters_both_methods(cool_room) -> None:
+    inputs, plan = cool_room
+    gum = propagate(inputs, plan.mixtures)
+    names = [c.input for c in gum.K.contributors]
+    assert "bench temperature" in names
+    # Without the enthalpy the same bench has no temperature term and a narrower K.
+    still = dataclasses.replace(
+        inputs,
+        reaction=dataclasses.replace(
+            inputs.reaction,
+            species=tuple(
+                dataclasses.replace(sp, enthalpy_kJ_mol=None) for sp in inputs.reaction.species
+            ),
+        ),
+    )
+    assert "bench temperature" not in [
+        c.input for c in propagate(still, plan.mixtures).K.contributors
+    ]
+    sim = simulate(inputs, plan.mixtures, trials=20_000, rng=np.random.default_rng(5))
+    assert sim.all_bound.K.sd == pytest.approx(gum.K.standard_uncertainty, rel=0.05)
+    assert sim.global_fit.K.sd == pytest.approx(gum.global_fit_K.standard_uncertainty, rel=0.05)

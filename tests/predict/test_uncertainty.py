@@ -15,6 +15,7 @@ import numpy as np
 import pytest
 from uncertainties import ufloat
 
+from planner.chem.equilibrium import solve_equilibrium
 from planner.errors import InvalidInputError
 from planner.lab.glassware import devices_by_id, piston_errors_uL, tolerance_mL
 from planner.predict.uncertainty import (
@@ -88,6 +89,33 @@ def _reference(plan):
         return math.sqrt(instrument.absorbance_sd**2 + proportional + transmittance**2)
 
     blank_offset = ufloat(0.0, bench.blank_offset_sd) if bench.blank_offset_sd > 0 else 0.0
+    reaction = inputs.reaction
+    enthalpy = [sp.enthalpy_kJ_mol or 0.0 for sp in reaction.species]
+    moves = bench.temperature_sd_C > 0 and any(enthalpy)
+    bench_temperature = ufloat(0.0, bench.temperature_sd_C) if moves else 0.0
+
+    def per_kelvin(m):
+        # van 't Hoff by hand, ln(K2/K1) = -(dH/R)(1/T2 - 1/T1), R = 8.314462618 J/(mol K),
+        # read through the solver, Beer-Lambert and the stray light; central, 0.01 K.
+        room = inputs.session.temperature_C or reaction.temperature_C
+        totals = [[m.initial_M.get(c, 0.0) for c in reaction.components]]
+        s = instrument.stray_light
+
+        def read(t):
+            logs = [
+                sp.log_beta
+                - h
+                * 1000
+                / 8.314462618
+                * (1 / (t + 273.15) - 1 / (reaction.temperature_C + 273.15))
+                / math.log(10)
+                for sp, h in zip(reaction.species, enthalpy, strict=True)
+            ]
+            eq = solve_equilibrium(totals, reaction.stoichiometry(), logs)
+            true_a = instrument.path_length_cm * float(eq.species_M[0] @ reaction.species_epsilon())
+            return math.log10((1 + s) / (10**-true_a + s))
+
+        return (read(room + 0.01) - read(room - 0.01)) / 0.02
 
     totals = {}
     readings = {}
@@ -116,6 +144,8 @@ def _reference(plan):
             for c in components
         }
         readings[m.id] = ufloat(m.absorbance, reading_sd(m.absorbance))
+        if moves:
+            readings[m.id] = readings[m.id] + per_kelvin(m) * bench_temperature
         if m.role == "blank":
             readings[m.id] = readings[m.id] + blank_offset
     blanks = [m.id for m in plan.mixtures if m.role == "blank"]
