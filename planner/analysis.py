@@ -39,7 +39,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from planner.chem.thermodynamics import bench_log_beta
+from planner.chem.constants import bench_log_beta
 from planner.forward import predict_readings
 from planner.inputs import Instrument, Reaction
 

@@ -22,8 +22,8 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from planner.chem.constants import bench_log_beta
 from planner.chem.equilibrium import bound_fraction, solve_equilibrium
-from planner.chem.thermodynamics import bench_log_beta
 from planner.inputs import Instrument, Reaction
 from planner.lab.photometer import observed_absorbance, true_absorbance
 

@@ -22,6 +22,7 @@ __all__ = [
     "DesignSettings",
     "Device",
     "Instrument",
+    "IonicMedium",
     "PlanInputs",
     "ProductSpecies",
     "Reaction",
@@ -108,6 +109,13 @@ class Reaction:
         :func:`planner.chem.thermodynamics.bench_log_beta` gives the constants; None means
         the constants' own temperature. :class:`PlanInputs` sets it
         from ``session.temperature_C``.
+    sit_delta_epsilon_kg_mol
+        SIT interaction coefficient of the formation reactions, products minus reagents
+        (NEA convention) [kg/mol], used to move the constants to mixtures above 0.5 mol/L
+        (:mod:`planner.chem.activity`).
+    bench_ionic_strength_M
+        Ionic strength of the benches' constant medium [mol/L], or None for the constants'
+        own; :class:`PlanInputs` sets it from ``design.ionic_medium``.
     """
 
     temperature_C: float
@@ -116,6 +124,8 @@ class Reaction:
     species: tuple[ProductSpecies, ...]
     component_epsilon: dict[str, float] = field(default_factory=dict)
     bench_temperature_C: float | None = None
+    sit_delta_epsilon_kg_mol: float = 0.0
+    bench_ionic_strength_M: float | None = None
 
     def stoichiometry(self) -> NDArray[np.float64]:
         """Coefficient matrix, shape (n_species, n_components) [unitless]."""
@@ -266,6 +276,11 @@ class Stock:
         Solid to weigh out, if the prep sheet should say how to make the stock.
     diluent
         True for the stock that dilutes and fills flasks to the mark.
+    medium_salt_M
+        Concentration of the inert salt the planner added to bring the stock to
+        ``design.ionic_medium`` [mol/L] (0 when none); its ions are in ``contains_M``.
+    plan_contains_M
+        The plan file's own ``contains_M`` when a salt was added, else None.
     """
 
     id: str
@@ -274,6 +289,8 @@ class Stock:
     available_mL: float | None = None
     solid: Solid | None = None
     diluent: bool = False
+    medium_salt_M: float = 0.0
+    plan_contains_M: dict[str, float] | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -323,6 +340,22 @@ class Device:
 
 
 @dataclass(frozen=True, slots=True)
+class IonicMedium:
+    """A constant ionic medium: an inert salt added to every stock up to one ionic strength.
+
+    Attributes
+    ----------
+    salt
+        Formula of the inert salt, one of :data:`planner.chem.activity.INERT_SALTS`.
+    ionic_strength_M
+        Ionic strength every stock, and so every mixture, is brought to [mol/L].
+    """
+
+    salt: str
+    ionic_strength_M: float
+
+
+@dataclass(frozen=True, slots=True)
 class DesignSettings:
     """What to design.
 
@@ -361,6 +394,8 @@ class DesignSettings:
     K_bias_tolerance
         Largest relative error in K the all-bound analysis may carry on noise-free readings
         [unitless] (default 0.10, common practice).
+    ionic_medium
+        The constant ionic medium every stock is brought to, or None.
     """
 
     standards: int
@@ -376,6 +411,7 @@ class DesignSettings:
     measured_species: str | None = None
     analysis: str = "all-bound"
     K_bias_tolerance: float = 0.10
+    ionic_medium: IonicMedium | None = None
 
     @property
     def vessel_kind(self) -> str:
@@ -496,14 +532,23 @@ class PlanInputs:
     flask: Device | None = field(init=False, compare=False, repr=False)
 
     def __post_init__(self) -> None:
-        # The benches work at the session's temperature: every stage reads the constants
-        # there (chem.thermodynamics.bench_log_beta), while the plan file's values stay as
-        # given.
-        if self.reaction.bench_temperature_C != self.session.temperature_C:
+        # The benches work at the session's temperature and the design's constant medium:
+        # every stage reads the constants there (chem.constants.bench_log_beta), while the
+        # plan file's values stay as given.
+        medium = self.design.ionic_medium
+        bench_medium = None if medium is None else medium.ionic_strength_M
+        if (
+            self.reaction.bench_temperature_C != self.session.temperature_C
+            or self.reaction.bench_ionic_strength_M != bench_medium
+        ):
             object.__setattr__(
                 self,
                 "reaction",
-                replace(self.reaction, bench_temperature_C=self.session.temperature_C),
+                replace(
+                    self.reaction,
+                    bench_temperature_C=self.session.temperature_C,
+                    bench_ionic_strength_M=bench_medium,
+                ),
             )
         measured = measured_species_index(self.reaction, self.design)
         formula = self.reaction.species[measured].formula

@@ -24,6 +24,7 @@ __all__ = [
     "Contributor",
     "Delivery",
     "GlobalFitPrediction",
+    "MediumEffect",
     "Mixture",
     "MixtureUncertainty",
     "Plan",
@@ -221,6 +222,12 @@ class StockPreparation:
         Target concentration of that ion [mol/L].
     medium
         The medium to make it up in (the diluent's composition), for the label.
+    salt_formula
+        The inert salt of ``design.ionic_medium`` to add, or ``""``.
+    salt_M
+        Its concentration in the stock [mol/L] (0 when none).
+    salt_mass_g
+        Mass of that salt per flask [g] (0 when none).
     """
 
     stock: str
@@ -233,6 +240,9 @@ class StockPreparation:
     provides: str
     concentration_M: float
     medium: str
+    salt_formula: str = ""
+    salt_M: float = 0.0
+    salt_mass_g: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -427,6 +437,29 @@ class MixtureUncertainty:
 
 
 @dataclass(frozen=True, slots=True)
+class MediumEffect:
+    """The ionic medium's share of the bias (:mod:`planner.predict.medium`).
+
+    Attributes
+    ----------
+    ionic_strength_M
+        Ionic strength of each mixture as made up, in plan order [mol/L].
+    K_in_medium
+        The measured species' constant in each mixture's medium (Davies up to 0.5 mol/L,
+        SIT above), at the benches' temperature [L/mol].
+    K_bias_all_bound, K_bias_global_fit
+        Relative change of each analysis's K when every mixture's constants are those of its
+        own medium rather than the reference medium's [unitless]; nan when the analysis gives
+        no finite K.
+    """
+
+    ionic_strength_M: tuple[float, ...]
+    K_in_medium: tuple[float, ...]
+    K_bias_all_bound: float
+    K_bias_global_fit: float
+
+
+@dataclass(frozen=True, slots=True)
 class UncertaintyResult:
     """The first-order prediction of the all-bound analysis.
 
@@ -451,6 +484,9 @@ class UncertaintyResult:
     global_fit_epsilon, global_fit_K
         Budgets of the global fit's eps and K (the fit of every standard and test reading with
         the full equilibrium model), or None when eps and K cannot be separated.
+    medium
+        The ionic medium's share of the bias of each analysis (shown apart from the
+        all-bound assumption's).
     """
 
     epsilon: Budget
@@ -463,6 +499,7 @@ class UncertaintyResult:
     test_ids: tuple[str, ...] = field(default=())
     global_fit_epsilon: Budget | None = None
     global_fit_K: Budget | None = None
+    medium: MediumEffect | None = None
 
     @property
     def K_bias_from_assumption(self) -> float:

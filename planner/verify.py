@@ -18,13 +18,15 @@ from __future__ import annotations
 import math
 from collections import Counter, defaultdict
 from collections.abc import Mapping, Sequence
+from typing import Any
 
 import numpy as np
 
+from planner.chem.activity import INERT_SALTS
 from planner.chem.assumption import min_excess_M
 from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, mix_M
-from planner.chem.species import molar_mass_g_per_mol
+from planner.chem.species import charge_from_name, molar_mass_g_per_mol, neutralised
 from planner.inputs import Device, PlanInputs, Stock
 from planner.lab.deliveries import MAX_DELIVERIES, delivers
 from planner.lab.glassware import (
@@ -1088,6 +1090,7 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
     flask_mL, flasks = _stock_flasks(volume_mL)
     medium = _medium(inputs.diluent)
     solid = stock.solid
+    salt = _expected_salt(inputs, stock, flask_mL)
     if solid is None:
         return StockPreparation(
             stock=stock.id,
@@ -1100,6 +1103,7 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
             provides="",
             concentration_M=0.0,
             medium="" if stock.diluent else medium,
+            **salt,
         )
     components = inputs.reaction.components
     provides = solid.provides or next(
@@ -1118,7 +1122,28 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
         provides=provides,
         concentration_M=concentration,
         medium=medium,
+        **salt,
     )
+
+
+def _expected_salt(inputs: PlanInputs, stock: Stock, flask_mL: float) -> dict[str, Any]:
+    """The inert salt of ``design.ionic_medium`` for one flask, re-derived: the plan file's
+    own stock made neutral with its counter-ions has I = 1/2 sum c z^2; a 1:1 salt adds its
+    concentration to I, so c_salt = (I_target - I_stock) / (1/2 sum nu z^2) and
+    m = c_salt V M (molar mass from periodictable)."""
+    medium = inputs.design.ionic_medium
+    if medium is None:
+        return {}
+    own = neutralised(stock.plan_contains_M or stock.contains_M)
+    strength = 0.5 * sum(c * charge_from_name(ion) ** 2 for ion, c in own.items())
+    per_mol = 0.5 * sum(
+        n * charge_from_name(ion) ** 2 for ion, n in INERT_SALTS[medium.salt].items()
+    )
+    salt_M = max(medium.ionic_strength_M - strength, 0.0) / per_mol
+    if salt_M <= 0:
+        return {}
+    mass = salt_M * flask_mL / 1000.0 * molar_mass_g_per_mol(medium.salt)
+    return {"salt_formula": medium.salt, "salt_M": salt_M, "salt_mass_g": mass}
 
 
 def _text_key(key: str, text: str) -> object:
@@ -1142,8 +1167,10 @@ _PREPARATION_NUMBERS = (
     ("purity", "", 0.0),
     ("mass_g", "g", 1e-9),
     ("concentration_M", "mol/L", 0.0),
+    ("salt_M", "mol/L", 1e-9),
+    ("salt_mass_g", "g", 1e-9),
 )
-_PREPARATION_TEXTS = ("solid_formula", "provides", "medium")
+_PREPARATION_TEXTS = ("solid_formula", "provides", "medium", "salt_formula")
 
 
 def _preparation(

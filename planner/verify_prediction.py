@@ -69,6 +69,8 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
+from planner.chem.activity import log_beta_in_medium
+from planner.chem.species import charge_from_name
 from planner.inputs import Device, PlanInputs
 from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
 from planner.result import Addition, Mixture, Prediction
@@ -155,13 +157,29 @@ def bench_log_beta(inputs: PlanInputs, temperature_C: float | None = None) -> ND
     reaction = inputs.reaction
     wanted = inputs.session.temperature_C if temperature_C is None else temperature_C
     logs = np.array([sp.log_beta for sp in reaction.species], dtype=float)
-    if wanted is None:
-        return logs
-    t1, t2 = reaction.temperature_C + _ZERO_C_K, wanted + _ZERO_C_K
-    for i, sp in enumerate(reaction.species):
-        if sp.enthalpy_kJ_mol:
-            ln_ratio = -(sp.enthalpy_kJ_mol * 1000.0 / _R_J_PER_MOL_K) * (1.0 / t2 - 1.0 / t1)
-            logs[i] += ln_ratio / math.log(10.0)
+    if wanted is not None:
+        t1, t2 = reaction.temperature_C + _ZERO_C_K, wanted + _ZERO_C_K
+        for i, sp in enumerate(reaction.species):
+            if sp.enthalpy_kJ_mol:
+                ln_ratio = -(sp.enthalpy_kJ_mol * 1000.0 / _R_J_PER_MOL_K) * (1 / t2 - 1 / t1)
+                logs[i] += ln_ratio / math.log(10.0)
+    medium = inputs.design.ionic_medium
+    if medium is not None:
+        # A constant medium moves every constant alike (Davies or SIT, planner.chem.activity,
+        # checked there against published values); dz2 = sum nu z^2 - (sum nu z)^2.
+        charges = {c: charge_from_name(c) for c in reaction.components}
+        dz2 = [
+            sum(n * charges[c] ** 2 for c, n in sp.formula.items())
+            - sum(n * charges[c] for c, n in sp.formula.items()) ** 2
+            for sp in reaction.species
+        ]
+        logs = log_beta_in_medium(
+            logs,
+            dz2,
+            reaction.ionic_strength_M,
+            [medium.ionic_strength_M],
+            reaction.sit_delta_epsilon_kg_mol,
+        )[0]
     return logs
 
 

@@ -43,6 +43,7 @@ from numpy.typing import ArrayLike, NDArray
 __all__ = [
     "DAVIES_A",
     "DAVIES_LIMIT_M",
+    "INERT_SALTS",
     "SIT_BA",
     "davies_log_gamma",
     "delta_z_squared",
@@ -57,6 +58,15 @@ DAVIES_A = 0.509
 #: Highest ionic strength of the Davies branch [mol/L]: the equation holds to about 0.5
 #: mol/L (Stumm and Morgan 1996, section 3.4, from memory).
 DAVIES_LIMIT_M = 0.5
+#: Inert salts that set a constant ionic medium, with the ions one formula unit gives
+#: (common practice: perchlorates and nitrates of the alkali metals complex hardly at all;
+#: chloride binds iron(III), so it is not offered).
+INERT_SALTS: dict[str, dict[str, int]] = {
+    "NaNO3": {"Na+": 1, "NO3-": 1},
+    "KNO3": {"K+": 1, "NO3-": 1},
+    "NaClO4": {"Na+": 1, "ClO4-": 1},
+    "LiClO4": {"Li+": 1, "ClO4-": 1},
+}
 #: B a_j of SIT's Debye-Hückel term [kg^1/2 mol^-1/2] (NEA TDB-2, from memory).
 SIT_BA = 1.5
 

@@ -24,13 +24,9 @@ import math
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from planner.inputs import PlanInputs, Reaction
-
 __all__ = [
     "GAS_CONSTANT_J_PER_MOL_K",
     "ZERO_CELSIUS_K",
-    "bench_K",
-    "bench_log_beta",
     "d_log_beta_d_temperature",
     "log_beta_at_temperature",
 ]
@@ -86,25 +82,3 @@ def d_log_beta_d_temperature(
     t = temperature_C + ZERO_CELSIUS_K
     slope = np.asarray(enthalpy_kJ_mol, dtype=float) * _J_PER_KJ / GAS_CONSTANT_J_PER_MOL_K
     return np.asarray(slope / (t * t * math.log(10.0)), dtype=float)
-
-
-def bench_log_beta(reaction: Reaction, temperature_C: float | None = None) -> NDArray[np.float64]:
-    """log10 beta of every product species at the benches, shape (n_species,).
-
-    At ``temperature_C`` when given, else at ``reaction.bench_temperature_C`` (the session's
-    room), else at the constants' own temperature; species without an enthalpy keep their
-    constant. Every forward model and analysis of the planner reads its constants here.
-    """
-    reference = reaction.log_beta()
-    wanted = reaction.bench_temperature_C if temperature_C is None else temperature_C
-    if wanted is None or wanted == reaction.temperature_C:
-        return reference
-    return log_beta_at_temperature(
-        reference, reaction.enthalpy_kJ_mol(), reaction.temperature_C, wanted
-    )
-
-
-def bench_K(inputs: PlanInputs) -> float:
-    """The measured species' constant at the benches' temperature [(mol/L)^(1-n)]: what a
-    class should find."""
-    return float(10.0 ** bench_log_beta(inputs.reaction)[inputs.measured])

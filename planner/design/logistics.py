@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from typing import Any
 
 from planner.chem.species import molar_mass_g_per_mol
 from planner.inputs import PlanInputs, Stock
@@ -113,6 +114,7 @@ def preparations(inputs: PlanInputs, totals: Totals) -> tuple[StockPreparation, 
                     provides="",
                     concentration_M=0.0,
                     medium="" if stock.diluent else medium,
+                    **_salt(inputs, stock, flask_mL),
                 )
             )
             continue
@@ -134,9 +136,20 @@ def preparations(inputs: PlanInputs, totals: Totals) -> tuple[StockPreparation, 
                 provides=provides,
                 concentration_M=concentration,
                 medium=medium,
+                **_salt(inputs, stock, flask_mL),
             )
         )
     return tuple(result)
+
+
+def _salt(inputs: PlanInputs, stock: Stock, flask_mL: float) -> dict[str, Any]:
+    """The inert salt of ``design.ionic_medium`` to weigh into one flask of the stock:
+    m = c V M with M from periodictable (:func:`planner.chem.species.molar_mass_g_per_mol`)."""
+    medium = inputs.design.ionic_medium
+    if medium is None or stock.medium_salt_M <= 0:
+        return {}
+    mass = stock.medium_salt_M * flask_mL / 1000.0 * molar_mass_g_per_mol(medium.salt)
+    return {"salt_formula": medium.salt, "salt_M": stock.medium_salt_M, "salt_mass_g": mass}
 
 
 def combined_totals(totals: Sequence[Totals]) -> Totals:

@@ -19,7 +19,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.analysis import Layout, all_bound_K_log_sensitivities, global_fit_jacobian
-from planner.chem.thermodynamics import bench_K
+from planner.chem.constants import bench_K
 from planner.design.candidates import CandidateSet
 from planner.inputs import PlanInputs
 from planner.lab.bench import reading_sd

@@ -15,7 +15,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.analysis import Layout, all_bound_mean_K
-from planner.chem.thermodynamics import bench_K
+from planner.chem.constants import bench_K
 from planner.design.candidates import CandidateSet, candidate_set
 from planner.design.logistics import preparations, stock_totals
 from planner.design.mixtures import (

@@ -31,6 +31,7 @@ __all__ = [
     "DesignModel",
     "GlasswareModel",
     "InstrumentModel",
+    "IonicMediumModel",
     "PlanModel",
     "ReactionModel",
     "SessionModel",
@@ -151,6 +152,13 @@ class ReactionModel(_Model):
         min_length=1,
         max_length=MAX_SPECIES,
         description="one [[reaction.species]] table per product species (at most 30)",
+    )
+    sit_delta_epsilon_kg_mol: float = Field(
+        0.0,
+        ge=-5,
+        le=5,
+        description="the SIT interaction coefficient of the formation, products minus "
+        "reagents [kg/mol], -5 to 5",
     )
     component_epsilon: dict[str, Annotated[float, Field(ge=0, le=EPSILON_LIMIT)]] = Field(
         default_factory=dict,
@@ -282,6 +290,17 @@ class GlasswareModel(_Model):
     )
 
 
+class IonicMediumModel(_Model):
+    """``design.ionic_medium``: an inert salt added to every stock up to one ionic strength."""
+
+    salt: Literal["NaNO3", "KNO3", "NaClO4", "LiClO4"] = Field(
+        description='the inert salt, one of "NaNO3", "KNO3", "NaClO4", "LiClO4"'
+    )
+    ionic_strength_M: float = Field(
+        gt=0, le=6, description="the ionic strength of every stock [mol/L], > 0 and at most 6"
+    )
+
+
 class DesignModel(_Model):
     """The ``[design]`` table: what mixtures to design."""
 
@@ -339,6 +358,11 @@ class DesignModel(_Model):
         gt=0,
         lt=1,
         description="the largest relative error in K the all-bound analysis may carry, 0 to 1",
+    )
+    ionic_medium: IonicMediumModel | None = Field(
+        None,
+        description='a table { salt = "NaNO3", ionic_strength_M = 3.0 } that brings every '
+        "stock to one ionic strength",
     )
 
 

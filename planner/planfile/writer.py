@@ -53,6 +53,7 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
                 for sp in reaction.species
             ],
             "component_epsilon": dict(reaction.component_epsilon),
+            "sit_delta_epsilon_kg_mol": reaction.sit_delta_epsilon_kg_mol,
         },
         "instrument": {
             "wavelength_nm": instrument.wavelength_nm,
@@ -79,6 +80,16 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
             "blanks": design.blanks,
             "analysis": design.analysis,
             "K_bias_tolerance": design.K_bias_tolerance,
+            **(
+                {
+                    "ionic_medium": {
+                        "salt": design.ionic_medium.salt,
+                        "ionic_strength_M": design.ionic_medium.ionic_strength_M,
+                    }
+                }
+                if design.ionic_medium is not None
+                else {}
+            ),
             **(
                 {"measured_species": design.measured_species}
                 if design.measured_species is not None
@@ -128,7 +139,9 @@ def _stock_mapping(stock: Stock) -> dict[str, Any]:
         }
     return {
         "id": stock.id,
-        "contains_M": dict(stock.contains_M),
+        "contains_M": dict(
+            stock.plan_contains_M if stock.plan_contains_M is not None else stock.contains_M
+        ),
         "relative_uncertainty": stock.relative_uncertainty,
         "available_mL": stock.available_mL,
         "solid": solid,

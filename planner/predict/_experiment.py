@@ -56,7 +56,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.analysis import Layout
-from planner.chem.thermodynamics import bench_K
+from planner.chem.constants import bench_K
 from planner.errors import InvalidInputError
 from planner.forward import predict_readings
 from planner.inputs import Device, PlanInputs

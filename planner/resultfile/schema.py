@@ -197,6 +197,11 @@ class PreparationEntry(Entry):
     provides: str = Field(description='the ion the solid provides, e.g. "SCN-", or ""')
     concentration_M: float = Field(description="that ion's concentration [mol/L], a number")
     medium: str = Field(description="what the stock is made up in, for the label")
+    salt_formula: str = Field(
+        "", description='the inert salt of design.ionic_medium to add, e.g. "NaNO3", or ""'
+    )
+    salt_M: float = Field(0.0, description="its concentration in the stock [mol/L], a number")
+    salt_mass_g: float = Field(0.0, description="its mass per flask [g], a number")
 
 
 class PredictionEntry(Entry):

@@ -59,3 +59,21 @@ def test_sit_branch_joins_the_davies_branch_continuously() -> None:
     shift = float(medium_term(6, 2.0, 0.2) - medium_term(6, 0.5, 0.2))
     assert shift == pytest.approx(-0.635748, abs=5e-6)
     assert np.all(np.isfinite(medium_term(6, [0.0, 5.0], 0.2)))
+
+
+def test_solver_takes_one_set_of_constants_per_mixture() -> None:
+    # Each row solved with its own constants equals that row solved alone (the 1:1 + 1:2
+    # system through Newton, and the 1:1 closed form).
+    from planner.chem.equilibrium import solve_equilibrium
+
+    totals = np.array([[0.05, 2e-4], [0.1, 1e-4], [0.02, 3e-4]])
+    matrix = np.array([[1, 1], [1, 2]])
+    logs = np.array([[2.0, 2.8], [1.8, 2.6], [2.2, 3.1]])
+    together = solve_equilibrium(totals, matrix, logs)
+    for row in range(3):
+        alone = solve_equilibrium(totals[row : row + 1], matrix, logs[row])
+        np.testing.assert_allclose(together.species_M[row], alone.species_M[0], rtol=1e-12)
+    one = solve_equilibrium(totals, [[1, 1]], logs[:, :1])
+    for row in range(3):
+        alone = solve_equilibrium(totals[row : row + 1], [[1, 1]], logs[row, :1])
+        np.testing.assert_allclose(one.species_M[row], alone.species_M[0], rtol=1e-12)
