@@ -79,6 +79,9 @@ class ProductSpecies:
     enthalpy_kJ_mol
         Standard reaction enthalpy of the formation reaction [kJ/mol], or None when not
         given (beta then taken as independent of temperature).
+    log_beta_sd
+        Standard uncertainty of log10 beta before the class measures it [log10 units]
+        (default 0.1); the design's MSE criterion averages over it for the measured species.
     """
 
     name: str
@@ -86,6 +89,7 @@ class ProductSpecies:
     log_beta: float
     epsilon: float = 0.0
     enthalpy_kJ_mol: float | None = None
+    log_beta_sd: float = 0.1
 
 
 @dataclass(frozen=True, slots=True)
@@ -396,6 +400,10 @@ class DesignSettings:
         [unitless] (default 0.10, common practice).
     ionic_medium
         The constant ionic medium every stock is brought to, or None.
+    criterion
+        What the test design minimises: ``"mse"`` (the predicted mean squared error of K,
+        bias included, averaged over the prior of K) or ``"variance"`` (the predicted
+        variance of K alone).
     """
 
     standards: int
@@ -412,6 +420,7 @@ class DesignSettings:
     analysis: str = "all-bound"
     K_bias_tolerance: float = 0.10
     ionic_medium: IonicMedium | None = None
+    criterion: str = "mse"
 
     @property
     def vessel_kind(self) -> str:

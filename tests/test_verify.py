@@ -608,9 +608,11 @@ def test_reading_uncertainty_of_a_standard_by_hand(document: Document) -> None:
         for m in role(document, "standard")
         if all(a["devices"] == ["buret-25mL"] for a in m["additions"])
     )
-    sd = math.hypot(
-        inputs["instrument"]["absorbance_sd"],
-        inputs["bench"]["cuvette_rsd"] * standard["absorbance"],
+    # ... and constant transmittance noise, 0.4343 sigma_T 10^A (Skoog et al. 2017, 13C-2).
+    sd = math.sqrt(
+        inputs["instrument"]["absorbance_sd"] ** 2
+        + (inputs["bench"]["cuvette_rsd"] * standard["absorbance"]) ** 2
+        + (0.4343 * inputs["instrument"]["transmittance_sd"] * 10 ** standard["absorbance"]) ** 2
     )
     stocks = {st["id"]: st for st in inputs["stocks"]}
     volume = standard["total_volume_mL"]

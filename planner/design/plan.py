@@ -24,6 +24,8 @@ from planner.design.mixtures import (
     choose_tests,
     global_fit_objective,
     mean_K_objective,
+    mse_objective,
+    robust_global_fit_objective,
 )
 from planner.design.standards import StandardsChoice, choose_standards
 from planner.inputs import PlanInputs
@@ -304,8 +306,11 @@ def _tests_for_analysis(
     binds = f"the standards bind at least {100 * floor:.1f} % of {design.limiting}"
     reason = _all_bound_inapplicable(inputs, candidates, standards.standards)
     if design.analysis == "all-bound" and reason is None:
-        chosen = objective or mean_K_objective(
-            _epsilon_relative_u(inputs, candidates, standards.standards)
+        epsilon_u = _epsilon_relative_u(inputs, candidates, standards.standards)
+        chosen = objective or (
+            mse_objective(inputs, candidates, standards.standards, standards.blank, epsilon_u)
+            if design.criterion == "mse"
+            else mean_K_objective(epsilon_u)
         )
         tests = choose_tests(inputs, candidates, exclude=used, objective=chosen, allowed=allowed)
         error = _all_bound_error(inputs, candidates, standards, tests.tests)
@@ -329,8 +334,10 @@ def _tests_for_analysis(
                 if error is not None
                 else f"its K has no value on this shelf ({binds})"
             )
-    fit = objective or global_fit_objective(
-        inputs, candidates, standards.standards, standards.blank
+    fit = objective or (
+        robust_global_fit_objective(inputs, candidates, standards.standards, standards.blank)
+        if design.criterion == "mse"
+        else global_fit_objective(inputs, candidates, standards.standards, standards.blank)
     )
     tests = choose_tests(inputs, candidates, exclude=used, objective=fit, allowed=allowed)
     error = _all_bound_error(inputs, candidates, standards, tests.tests)

@@ -252,6 +252,7 @@ def _reaction(model: ReactionModel) -> Reaction:
                 enthalpy_kJ_mol=(
                     None if entry.enthalpy_kJ_mol is None else float(entry.enthalpy_kJ_mol)
                 ),
+                log_beta_sd=float(entry.log_beta_sd),
             )
         )
 
@@ -668,6 +669,7 @@ def _design(
         measured_species=model.measured_species,
         analysis=model.analysis,
         K_bias_tolerance=float(model.K_bias_tolerance),
+        criterion=model.criterion,
         ionic_medium=(
             None
             if model.ionic_medium is None

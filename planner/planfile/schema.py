@@ -126,6 +126,12 @@ class SpeciesModel(_Model):
         le=EPSILON_LIMIT,
         description="the molar absorptivity [L mol-1 cm-1] at the wavelength, 0 to 1e7",
     )
+    log_beta_sd: float = Field(
+        0.1,
+        ge=0,
+        le=3,
+        description="the standard uncertainty of log_beta before the experiment, 0 to 3",
+    )
     enthalpy_kJ_mol: float | None = Field(
         None,
         ge=-500,
@@ -358,6 +364,9 @@ class DesignModel(_Model):
         gt=0,
         lt=1,
         description="the largest relative error in K the all-bound analysis may carry, 0 to 1",
+    )
+    criterion: Literal["mse", "variance"] = Field(
+        "mse", description='what the test design minimises, "mse" or "variance"'
     )
     ionic_medium: IonicMediumModel | None = Field(
         None,

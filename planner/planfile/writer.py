@@ -44,6 +44,7 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
                     "formula": dict(sp.formula),
                     "log_beta": sp.log_beta,
                     "epsilon": sp.epsilon,
+                    "log_beta_sd": sp.log_beta_sd,
                     **(
                         {"enthalpy_kJ_mol": sp.enthalpy_kJ_mol}
                         if sp.enthalpy_kJ_mol is not None
@@ -80,6 +81,7 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
             "blanks": design.blanks,
             "analysis": design.analysis,
             "K_bias_tolerance": design.K_bias_tolerance,
+            "criterion": design.criterion,
             **(
                 {
                     "ionic_medium": {

@@ -255,14 +255,18 @@ def test_systematic_device_shared_across_deliveries(flask_plan):
 
 def test_blank_reading_uncertainty_is_the_noise(default_plan):
     # The blank holds no absorber (only free iron(III), epsilon 0 in the plan), so its
-    # reading's uncertainty is the reading noise alone: at A = 0 the floor, and the blank
-    # cuvette's offset against the samples' cuvette.
+    # reading's uncertainty is the reading noise alone: at A = 0 the floor, the constant
+    # transmittance noise 0.4343 sigma_T / T with T = 1 (Skoog et al. 2017, 13C-2, from
+    # memory), and the blank cuvette's offset against the samples' cuvette.
     result = propagate(default_plan.inputs, default_plan.mixtures)
     blank = next(m for m in result.mixtures if m.id == "B1")
     floor = default_plan.inputs.instrument.absorbance_sd
+    transmittance = 0.4343 * default_plan.inputs.instrument.transmittance_sd
     offset = default_plan.inputs.bench.blank_offset_sd
     assert offset > 0
-    assert blank.u_absorbance == pytest.approx(math.hypot(floor, offset))
+    assert transmittance > 0
+    expected = math.sqrt(floor**2 + transmittance**2 + offset**2)
+    assert blank.u_absorbance == pytest.approx(expected, rel=1e-4)
     standard = next(m for m in result.mixtures if m.id == "S5")
     assert standard.u_absorbance > default_plan.inputs.instrument.absorbance_sd
 
