@@ -19,6 +19,7 @@ __all__ = [
     "COVERAGE_FACTOR_95",
     "ROLES",
     "Addition",
+    "BiasCauses",
     "Budget",
     "Check",
     "Contributor",
@@ -460,6 +461,31 @@ class MediumEffect:
 
 
 @dataclass(frozen=True, slots=True)
+class BiasCauses:
+    """The all-bound K's relative bias split by cause (:mod:`planner.predict.bias`) [unitless].
+
+    Attributes
+    ----------
+    all_bound_assumption
+        The standards' limiting reagent taken as fully bound, alone.
+    absorbing_reagents
+        Added by the other absorbers (other products, free reagents).
+    stray_light
+        Added by the photometer's stray light.
+    ionic_medium
+        Added by each mixture's own ionic medium (:class:`MediumEffect`).
+    temperature
+        The constant at the benches' temperature against the one the plan gives, at its own.
+    """
+
+    all_bound_assumption: float
+    absorbing_reagents: float
+    stray_light: float
+    ionic_medium: float
+    temperature: float
+
+
+@dataclass(frozen=True, slots=True)
 class UncertaintyResult:
     """The first-order prediction of the all-bound analysis.
 
@@ -487,6 +513,8 @@ class UncertaintyResult:
     medium
         The ionic medium's share of the bias of each analysis (shown apart from the
         all-bound assumption's).
+    bias_causes
+        The all-bound K's bias split by cause.
     """
 
     epsilon: Budget
@@ -500,6 +528,7 @@ class UncertaintyResult:
     global_fit_epsilon: Budget | None = None
     global_fit_K: Budget | None = None
     medium: MediumEffect | None = None
+    bias_causes: BiasCauses | None = None
 
     @property
     def K_bias_from_assumption(self) -> float:

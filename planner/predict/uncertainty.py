@@ -55,6 +55,7 @@ from planner.analysis import all_bound_K_from_x, global_fit_gain, global_fit_jac
 from planner.forward import predict_readings
 from planner.inputs import PlanInputs
 from planner.predict._experiment import BenchExperiment, bench_experiment
+from planner.predict.bias import bias_causes
 from planner.predict.medium import medium_effect
 from planner.result import (
     COVERAGE_FACTOR_95,
@@ -766,6 +767,7 @@ def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyRes
     fit_epsilon, fit_K = _global_fit_budgets(
         inputs, ex, elementary, models, roles, reading_gradient
     )
+    medium = medium_effect(inputs, mixtures, ex.layout)
     return UncertaintyResult(
         epsilon=epsilon,
         epsilon_intercept=epsilon_i,
@@ -779,7 +781,8 @@ def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyRes
         test_ids=tuple(ex.mixture_ids[i] for i in ex.layout.tests),
         global_fit_epsilon=fit_epsilon,
         global_fit_K=fit_K,
-        medium=medium_effect(inputs, mixtures, ex.layout),
+        medium=medium,
+        bias_causes=bias_causes(inputs, ex.layout, medium),
     )
 
 

@@ -86,3 +86,25 @@ def test_default_plan_s_medium_share_of_the_bias() -> None:
     # medium's share is shown apart, of the size the issue reports (a few per cent).
     assert 0.0 < medium.K_bias_all_bound < 0.15
     assert math.isfinite(medium.K_bias_global_fit)
+
+
+def test_bias_split_into_causes() -> None:
+    # The default with the room at 20 °C: the temperature's share is van 't Hoff's
+    # 102.1304 / 98 - 1 = 0.042147 (hand value, tests/chem/test_thermodynamics.py); the first
+    # three shares multiply to the all-bound K's bias on noise-free readings; the default's
+    # only other product does not absorb (epsilon 0), so the absorbing reagents add nothing.
+    text = DEFAULT.read_text(encoding="utf-8").replace(
+        "[session]\n", "[session]\ntemperature_C = 20\n"
+    )
+    inputs = parse_plan(text)
+    plan = design_plan(inputs)
+    result = propagate(inputs, plan.mixtures)
+    causes = result.bias_causes
+    assert causes is not None
+    assert causes.temperature == pytest.approx(102.1304 / 98.0 - 1.0, rel=1e-4)
+    assert causes.absorbing_reagents == 0.0
+    assert causes.stray_light < 0  # stray light flattens the high readings of the standards
+    product = (1 + causes.all_bound_assumption) * (1 + causes.absorbing_reagents)
+    product *= 1 + causes.stray_light
+    assert product - 1 == pytest.approx(result.K_bias_from_assumption, rel=1e-9)
+    assert causes.ionic_medium == result.medium.K_bias_all_bound
