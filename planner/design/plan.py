@@ -252,10 +252,17 @@ def design_recipes(
     ]
     if np.isfinite(tests.objective):
         of_what = "of the mean K" if analysis == "all-bound" else "of the global fit's K"
+        if inputs.design.criterion == "mse" and objective is None:
+            what = (
+                f"the predicted root mean squared error {of_what}, bias included, over the "
+                f"uncertainty of K (relative, {100 * tests.objective:.2f} %)"
+            )
+        else:
+            what = (
+                f"the predicted u(K)/K {of_what} ({100 * tests.objective:.2f} % from the readings)"
+            )
         notes.append(
-            f"Test mixtures chosen to minimise the predicted u(K)/K {of_what} "
-            f"({100 * tests.objective:.2f} % from the readings) among {tests.eligible} "
-            "eligible mixtures."
+            f"Test mixtures chosen to minimise {what} among {tests.eligible} eligible mixtures."
         )
     else:
         notes.append("No test mixture met the window and bound-fraction constraints.")
