@@ -166,3 +166,40 @@ def test_no_screen_or_document_says_taught():
         assert "exact" not in output.lower()
     assert '"all_bound"' in document
     assert '"global_fit"' in document
+
+
+def test_technique_compares_presets_side_by_side(tmp_path: Path) -> None:
+    # The done criterion through the command: on the default plan the novice bench's
+    # 95 % range of K is at least three times as wide as the calibrated bench's.
+    out = tmp_path / "sim"
+    result = run(
+        "simulate",
+        "--technique",
+        "calibrated",
+        "--technique",
+        "novice",
+        "--trials",
+        "4000",
+        "--format",
+        "json",
+        "--out",
+        str(out),
+    )
+    assert result.exit_code == 0, result.output
+    document = json.loads(result.stdout)
+    assert document["schema"] == "planner.simulate-techniques/1"
+    assert set(document["techniques"]) == {"calibrated", "novice"}
+    width = {
+        name: entry["K"]["all_bound"]["ci95"][1] - entry["K"]["all_bound"]["ci95"][0]
+        for name, entry in document["techniques"].items()
+    }
+    assert width["novice"] >= 3.0 * width["calibrated"]
+    spread = document["techniques"]["calibrated"]["K_spread_all_bound"]
+    assert spread["class_size"] == 30  # 3 sections x 10 benches of the default
+    assert (out / "K-histogram-by-technique.png").read_bytes().startswith(b"\x89PNG")
+    assert (out / "techniques.json").is_file()
+
+
+def test_technique_rejects_an_unknown_preset() -> None:
+    result = runner.invoke(app, ["simulate", "--technique", "expert"])
+    assert result.exit_code == 2

@@ -47,6 +47,7 @@ __all__ = [
     "TECHNIQUES",
     "Preset",
     "bench_terms",
+    "preset_bench",
     "reading_sd",
     "technique_sd_mL",
 ]
@@ -218,3 +219,23 @@ def bench_terms(bench: Bench) -> tuple[str, ...]:
         "temperature_sd_C": bench.temperature_sd_C,
     }
     return tuple(name for name, value in values.items() if value > 0)
+
+
+def preset_bench(technique: str) -> Bench:
+    """The bench of a preset, every term at the preset's value.
+
+    Raises
+    ------
+    KeyError
+        For a name not in :data:`PRESETS` (the plan-file reader and the CLI offer only those).
+    """
+    preset = PRESETS[technique]
+    return Bench(
+        technique=technique,
+        buret_reading_sd_mL=preset.buret_reading_sd_mL,
+        pipette_rsd=preset.pipette_rsd,
+        piston_rsd=preset.piston_rsd,
+        cuvette_rsd=preset.cuvette_rsd,
+        blank_offset_sd=preset.blank_offset_sd,
+        temperature_sd_C=preset.temperature_sd_C,
+    )
