@@ -203,3 +203,14 @@ def test_technique_compares_presets_side_by_side(tmp_path: Path) -> None:
 def test_technique_rejects_an_unknown_preset() -> None:
     result = runner.invoke(app, ["simulate", "--technique", "expert"])
     assert result.exit_code == 2
+
+
+def test_json_splits_the_spread_by_class(document):
+    # The stocks are one batch for the class (3 sections x 10 benches on the default): the
+    # spread inside a class and of the class mean are reported apart; with 400 trials there
+    # are 13 whole classes.
+    spread = document["K_spread"]["all_bound"]
+    assert spread["class_size"] == 30
+    assert spread["classes"] == 400 // 30
+    assert spread["bench_sd"] > 0
+    assert spread["class_mean_sd"] > 0

@@ -17,7 +17,7 @@ from rich.console import Group, RenderableType
 from rich.table import Table
 from rich.text import Text
 
-from planner.predict.montecarlo import CHUNK_TRIALS, Simulation, Summary
+from planner.predict.montecarlo import CHUNK_TRIALS, ClassSpread, Simulation, Summary
 from planner.predict.uncertainty import Budget, UncertaintyResult
 from planner.report._format import percent, significant
 from planner.report.jsonout import dumps
@@ -103,8 +103,10 @@ def simulation_document(
         ``global_fit``, each ``mean``, ``sd``, ``ci95``), ``K_bias_from_assumption``, ``K_true``,
         ``epsilon_true``, ``gum`` (value, u, 95 % interval and budget of ``epsilon``,
         ``epsilon_intercept`` and ``K``), ``mixtures`` (each reading's distribution and
-        first-order u), ``K_per_test`` and ``monte_carlo`` (standard errors of the means,
-        failed global fits, chunk size, method). A value no trial gave is ``null``.
+        first-order u), ``K_per_test``, ``K_spread`` (per analysis: ``class_size``,
+        ``bench_sd`` inside a class, ``class_mean_sd`` from class to class; the stocks are
+        one batch for the class) and ``monte_carlo`` (standard errors of the means, failed
+        global fits, chunk size, method). A value no trial gave is ``null``.
     """
     all_bound, global_fit = simulation.all_bound, simulation.global_fit
     by_id = {m.id: m for m in gum.mixtures}
@@ -118,6 +120,10 @@ def simulation_document(
             "global_fit": _summary(global_fit.epsilon),
         },
         "K": {"all_bound": _summary(all_bound.K), "global_fit": _summary(global_fit.K)},
+        "K_spread": {
+            "all_bound": _class_spread(all_bound.K_spread),
+            "global_fit": _class_spread(global_fit.K_spread),
+        },
         "K_bias_from_assumption": _number(simulation.K_bias_from_assumption),
         "K_true": simulation.K_true,
         "epsilon_true": simulation.epsilon_true,
@@ -154,6 +160,17 @@ def simulation_document(
             "chunk_trials": CHUNK_TRIALS,
             "global_fit_method": _GLOBAL_FIT_METHOD,
         },
+    }
+
+
+def _class_spread(spread: ClassSpread | None) -> dict[str, Any] | None:
+    if spread is None:
+        return None
+    return {
+        "class_size": spread.class_size,
+        "classes": spread.classes,
+        "bench_sd": _number(spread.bench_sd),
+        "class_mean_sd": _number(spread.class_mean_sd),
     }
 
 
@@ -295,6 +312,15 @@ def render_simulation(
         style="",
     )
     parts: list[RenderableType] = [_results_table(simulation, gum), bias]
+    spread = simulation.all_bound.K_spread
+    if spread is not None and spread.class_size > 1:
+        parts.append(
+            Text(
+                f"All-bound K in classes of {spread.class_size} benches sharing one batch of "
+                f"stocks: SD {_text(spread.bench_sd, 2)} L/mol between the benches of a class, "
+                f"SD {_text(spread.class_mean_sd, 2)} L/mol of the class mean from class to class."
+            )
+        )
     if simulation.global_fit_failed:
         parts.append(
             Text(
