@@ -40,6 +40,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from planner.chem.constants import bench_log_beta
 from planner.forward import predict_readings
 from planner.inputs import Instrument, Reaction
 
@@ -244,7 +245,7 @@ def global_fit_table(reaction: Reaction, instrument: Instrument, layout: Layout)
     """Tabulate the global model of one set of mixtures over log10 K (see the module notes)."""
     from scipy.interpolate import CubicSpline
 
-    logs = reaction.log_beta()
+    logs = bench_log_beta(reaction)
     others = reaction.species_epsilon().copy()
     others[layout.measured] = 0.0
     centre = float(logs[layout.measured])
@@ -528,7 +529,7 @@ def global_fit_sets(
     """
     from scipy.optimize import least_squares
 
-    logs = reaction.log_beta()
+    logs = bench_log_beta(reaction)
     first = layouts[0]
     scale = first.epsilon_true if first.epsilon_true > 0 else 1.0
     prepared = []
@@ -682,7 +683,7 @@ def global_fit_jacobian(
         (standards, then tests), shape (n_fitted, 2), by central differences on the forward
         model (the blank's mean subtracted as in the fit).
     """
-    logs = reaction.log_beta()
+    logs = bench_log_beta(reaction)
     epsilons = reaction.species_epsilon()
     fit = _fitted_rows(layout)
     lg = float(logs[layout.measured])

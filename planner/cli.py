@@ -25,7 +25,7 @@ from planner.errors import PlannerError
 
 if TYPE_CHECKING:
     from planner.inputs import PlanInputs
-    from planner.result import Check
+    from planner.result import Check, Plan
 
 __all__ = ["app", "main"]
 
@@ -52,6 +52,14 @@ _MAX_SECTIONS = 100
 #: Largest --seed: seeds are whole numbers from 0 to 2**32 - 1, the range numpy's legacy
 #: seeding and most tools accept (common practice); numpy's Generator refuses negative ones.
 _MAX_SEED = 2**32 - 1
+
+
+class Technique(enum.StrEnum):
+    """Bench presets of ``[bench]`` (planner.lab.bench.PRESETS)."""
+
+    calibrated = "calibrated"
+    practised = "practised"
+    novice = "novice"
 
 
 class OutputFormat(enum.StrEnum):
@@ -776,6 +784,15 @@ def simulate(
     ] = None,
     force: _ForceOption = False,
     quiet: _QuietOption = False,
+    technique: Annotated[
+        list[Technique] | None,
+        typer.Option(
+            "--technique",
+            help="Compare bench presets side by side on the same recipes (repeat the option: "
+            "--technique calibrated --technique novice); with --out, a histogram of K per "
+            "preset (K-histogram-by-technique).",
+        ),
+    ] = None,
 ) -> None:
     """Run the plan as a virtual class: what the benches will measure, and how spread out.
 
@@ -800,6 +817,8 @@ def simulate(
         inputs = _load(file)
         _check_out(out, force=force, file=file)  # before the long work
         designed = design_plan(inputs)
+        if technique:
+            return _compare_techniques(designed, [t.value for t in technique], trials, seed)
         # The pipeline's prediction, run once; a plan it could not analyse gets the budget's
         # own error (what is missing) from propagate.
         gum = designed.uncertainty or propagate(designed.inputs, designed.mixtures)
@@ -847,6 +866,45 @@ def simulate(
                 )
             )
         _tell_written(out, quiet=quiet)
+        return EXIT_CHECK_FAILED if designed.failed else EXIT_OK
+
+    def _compare_techniques(designed: Plan, names: list[str], trials: int, seed: int) -> int:
+        import dataclasses
+
+        import numpy as np
+        from rich.console import Console
+
+        from planner.lab.bench import preset_bench
+        from planner.predict.montecarlo import simulate as run_virtual_class
+        from planner.report.simulation import render_techniques, technique_json
+
+        results = {}
+        with _options({"trials": "--trials"}):
+            for name in dict.fromkeys(names):
+                bench_inputs = dataclasses.replace(designed.inputs, bench=preset_bench(name))
+                results[name] = run_virtual_class(
+                    bench_inputs,
+                    designed.mixtures,
+                    trials=trials,
+                    rng=np.random.default_rng(seed),
+                )
+        document = technique_json(results, title=designed.inputs.title, seed=seed)
+        if out is not None:
+            from planner.report.outdir import write_output_folder
+            from planner.report.plots import technique_plots
+
+            files: dict[str, str | bytes] = {"techniques.json": document}
+            with _private_plot_caches():
+                files.update(technique_plots(results))
+            write_output_folder(out, files, force=force, protect=_reads(file))
+        if quiet:
+            pass
+        elif output_format is OutputFormat.json:
+            _write_stdout(document)
+        else:
+            Console(highlight=False).print(render_techniques(results))
+        if out is not None and not quiet:
+            _tell(f"wrote {out}/")
         return EXIT_CHECK_FAILED if designed.failed else EXIT_OK
 
     _run(body)

@@ -22,6 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from planner.chem.constants import bench_log_beta
 from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.inputs import Instrument, Reaction
 from planner.lab.photometer import observed_absorbance, true_absorbance
@@ -82,7 +83,7 @@ def predict_readings(
     Readings
     """
     totals = np.asarray(total_M, dtype=float)
-    logs = reaction.log_beta() if log_beta is None else np.asarray(log_beta, dtype=float)
+    logs = bench_log_beta(reaction) if log_beta is None else np.asarray(log_beta, dtype=float)
     epsilon = (
         reaction.species_epsilon()
         if species_epsilon is None
@@ -133,7 +134,7 @@ def bound_fraction_sweep(
     matrix = reaction.stoichiometry()
     totals = np.tile(np.asarray(base_total_M, dtype=float), (excess_M.size, 1))
     totals[:, excess] = excess_M
-    solved = solve_equilibrium(totals, matrix, reaction.log_beta())
+    solved = solve_equilibrium(totals, matrix, bench_log_beta(reaction))
     bound = bound_fraction(solved.species_M, matrix, limiting, totals)
     in_measured = solved.species_M[:, measured] * matrix[measured, limiting] / totals[:, limiting]
     return bound, in_measured

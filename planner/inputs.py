@@ -11,16 +11,18 @@ Units are in the names: ``_M`` mol/L, ``_mL`` millilitres, ``_uL`` microlitres, 
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from numpy.typing import NDArray
 
 __all__ = [
     "DEVICE_KINDS",
+    "Bench",
     "DesignSettings",
     "Device",
     "Instrument",
+    "IonicMedium",
     "PlanInputs",
     "ProductSpecies",
     "Reaction",
@@ -74,12 +76,20 @@ class ProductSpecies:
         sum of the coefficients.
     epsilon
         Molar absorptivity at the working wavelength [L mol⁻¹ cm⁻¹].
+    enthalpy_kJ_mol
+        Standard reaction enthalpy of the formation reaction [kJ/mol], or None when not
+        given (beta then taken as independent of temperature).
+    log_beta_sd
+        Standard uncertainty of log10 beta before the class measures it [log10 units]
+        (default 0.1); the design's MSE criterion averages over it for the measured species.
     """
 
     name: str
     formula: dict[str, int]
     log_beta: float
     epsilon: float = 0.0
+    enthalpy_kJ_mol: float | None = None
+    log_beta_sd: float = 0.1
 
     @property
     def K_unit(self) -> str:
@@ -110,6 +120,18 @@ class Reaction:
         Product species, one per complex.
     component_epsilon
         Molar absorptivity of each free component that absorbs [L mol⁻¹ cm⁻¹]; others are 0.
+    bench_temperature_C
+        Temperature of the benches [°C] (the session's), at which
+        :func:`planner.chem.thermodynamics.bench_log_beta` gives the constants; None means
+        the constants' own temperature. :class:`PlanInputs` sets it
+        from ``session.temperature_C``.
+    sit_delta_epsilon_kg_mol
+        SIT interaction coefficient of the formation reactions, products minus reagents
+        (NEA convention) [kg/mol], used to move the constants to mixtures above 0.5 mol/L
+        (:mod:`planner.chem.activity`).
+    bench_ionic_strength_M
+        Ionic strength of the benches' constant medium [mol/L], or None for the constants'
+        own; :class:`PlanInputs` sets it from ``design.ionic_medium``.
     """
 
     temperature_C: float
@@ -117,6 +139,9 @@ class Reaction:
     components: tuple[str, ...]
     species: tuple[ProductSpecies, ...]
     component_epsilon: dict[str, float] = field(default_factory=dict)
+    bench_temperature_C: float | None = None
+    sit_delta_epsilon_kg_mol: float = 0.0
+    bench_ionic_strength_M: float | None = None
 
     def stoichiometry(self) -> NDArray[np.float64]:
         """Coefficient matrix, shape (n_species, n_components) [unitless]."""
@@ -127,8 +152,19 @@ class Reaction:
         return matrix
 
     def log_beta(self) -> NDArray[np.float64]:
-        """log10 beta of each product species, shape (n_species,)."""
+        """log10 beta of each product species at ``temperature_C``, as the plan gives them,
+        shape (n_species,). At the benches' temperature:
+        :func:`planner.chem.thermodynamics.bench_log_beta`."""
         return np.array([sp.log_beta for sp in self.species], dtype=float)
+
+    def enthalpy_kJ_mol(self) -> NDArray[np.float64]:
+        """Reaction enthalpy of each product species, 0 where not given, shape (n_species,)
+        [kJ/mol]."""
+        return np.array([sp.enthalpy_kJ_mol or 0.0 for sp in self.species], dtype=float)
+
+    def at_temperature(self, temperature_C: float) -> Reaction:
+        """The same reaction with its benches at ``temperature_C`` [°C]."""
+        return replace(self, bench_temperature_C=temperature_C)
 
     def species_epsilon(self) -> NDArray[np.float64]:
         """Molar absorptivity of each product species, shape (n_species,) [L mol⁻¹ cm⁻¹]."""
@@ -156,11 +192,16 @@ class Instrument:
     absorbance_window
         (low, high) of the linear working range [absorbance units]; low < high.
     absorbance_sd
-        Standard deviation of one reading [absorbance units].
+        Floor of the standard deviation of one reading [absorbance units].
     stray_light
         Stray-light fraction s of the incident power [unitless].
     cuvette_fill_mL
         Volume needed to fill the cuvette [mL].
+    absorbance_rsd
+        Term of the reading's standard deviation proportional to the absorbance [unitless].
+    transmittance_sd
+        Standard deviation of the transmittance reading, constant in T [unitless]; it adds
+        log10(e) sigma_T 10^A to the absorbance's (see :func:`planner.lab.bench.reading_sd`).
     """
 
     wavelength_nm: float
@@ -169,6 +210,47 @@ class Instrument:
     absorbance_sd: float
     stray_light: float
     cuvette_fill_mL: float
+    absorbance_rsd: float = 0.0
+    transmittance_sd: float = 0.0
+
+
+@dataclass(frozen=True, slots=True)
+class Bench:
+    """How the benches work: the technique's errors beside the glassware's and photometer's.
+
+    All zero (``technique`` ``"none"``) is an ideal bench: the glassware's tolerances and the
+    photometer's own noise only. :mod:`planner.lab.bench` holds the presets and their
+    sources.
+
+    Attributes
+    ----------
+    technique
+        The preset the values come from: ``"calibrated"``, ``"practised"``, ``"novice"``, or
+        ``"none"`` when the plan file has no ``[bench]`` table.
+    buret_reading_sd_mL
+        Standard deviation of one buret reading [mL]; a delivery reads twice.
+    pipette_rsd
+        Relative standard deviation of a transfer or graduated pipette's delivery from
+        technique (drainage, meniscus, touch-off) [unitless].
+    piston_rsd
+        Relative standard deviation of a piston pipette's delivery from technique [unitless].
+    cuvette_rsd
+        Relative standard deviation of a reading from the cuvette's path and placement, per
+        reading [unitless].
+    blank_offset_sd
+        Standard deviation of the offset between the blank's cuvette and the samples', one
+        per bench [absorbance units].
+    temperature_sd_C
+        Standard deviation of the bench's temperature about the session's [°C].
+    """
+
+    technique: str = "none"
+    buret_reading_sd_mL: float = 0.0
+    pipette_rsd: float = 0.0
+    piston_rsd: float = 0.0
+    cuvette_rsd: float = 0.0
+    blank_offset_sd: float = 0.0
+    temperature_sd_C: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -210,6 +292,11 @@ class Stock:
         Solid to weigh out, if the prep sheet should say how to make the stock.
     diluent
         True for the stock that dilutes and fills flasks to the mark.
+    medium_salt_M
+        Concentration of the inert salt the planner added to bring the stock to
+        ``design.ionic_medium`` [mol/L] (0 when none); its ions are in ``contains_M``.
+    plan_contains_M
+        The plan file's own ``contains_M`` when a salt was added, else None.
     """
 
     id: str
@@ -218,6 +305,8 @@ class Stock:
     available_mL: float | None = None
     solid: Solid | None = None
     diluent: bool = False
+    medium_salt_M: float = 0.0
+    plan_contains_M: dict[str, float] | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -267,6 +356,22 @@ class Device:
 
 
 @dataclass(frozen=True, slots=True)
+class IonicMedium:
+    """A constant ionic medium: an inert salt added to every stock up to one ionic strength.
+
+    Attributes
+    ----------
+    salt
+        Formula of the inert salt, one of :data:`planner.chem.activity.INERT_SALTS`.
+    ionic_strength_M
+        Ionic strength every stock, and so every mixture, is brought to [mol/L].
+    """
+
+    salt: str
+    ionic_strength_M: float
+
+
+@dataclass(frozen=True, slots=True)
 class DesignSettings:
     """What to design.
 
@@ -305,6 +410,12 @@ class DesignSettings:
     K_bias_tolerance
         Largest relative error in K the all-bound analysis may carry on noise-free readings
         [unitless] (default 0.10, common practice).
+    ionic_medium
+        The constant ionic medium every stock is brought to, or None.
+    criterion
+        What the test design minimises: ``"mse"`` (the predicted mean squared error of K,
+        bias included, averaged over the prior of K) or ``"variance"`` (the predicted
+        variance of K alone).
     """
 
     standards: int
@@ -320,6 +431,8 @@ class DesignSettings:
     measured_species: str | None = None
     analysis: str = "all-bound"
     K_bias_tolerance: float = 0.10
+    ionic_medium: IonicMedium | None = None
+    criterion: str = "mse"
 
     @property
     def vessel_kind(self) -> str:
@@ -350,6 +463,9 @@ class SessionSettings:
         Extra stock fraction beyond the need [unitless].
     dead_volume_mL
         Volume per stock and dispensing device left unusable in the bench container [mL].
+    temperature_C
+        The room's temperature at the benches [°C]; None means the constants' own
+        (``reaction.temperature_C``).
     """
 
     sections: int = 1
@@ -357,6 +473,7 @@ class SessionSettings:
     replicates: int = 1
     margin: float = 0.15
     dead_volume_mL: float = 5.0
+    temperature_C: float | None = None
 
     @property
     def sets(self) -> int:
@@ -430,11 +547,30 @@ class PlanInputs:
     glassware: tuple[Device, ...]
     design: DesignSettings
     session: SessionSettings
+    bench: Bench = field(default_factory=Bench)
     measured: int = field(init=False, compare=False, repr=False)
     excess: str | None = field(init=False, compare=False, repr=False)
     flask: Device | None = field(init=False, compare=False, repr=False)
 
     def __post_init__(self) -> None:
+        # The benches work at the session's temperature and the design's constant medium:
+        # every stage reads the constants there (chem.constants.bench_log_beta), while the
+        # plan file's values stay as given.
+        medium = self.design.ionic_medium
+        bench_medium = None if medium is None else medium.ionic_strength_M
+        if (
+            self.reaction.bench_temperature_C != self.session.temperature_C
+            or self.reaction.bench_ionic_strength_M != bench_medium
+        ):
+            object.__setattr__(
+                self,
+                "reaction",
+                replace(
+                    self.reaction,
+                    bench_temperature_C=self.session.temperature_C,
+                    bench_ionic_strength_M=bench_medium,
+                ),
+            )
         measured = measured_species_index(self.reaction, self.design)
         formula = self.reaction.species[measured].formula
         partners = [c for c, n in formula.items() if c != self.design.limiting and n > 0]

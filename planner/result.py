@@ -19,11 +19,13 @@ __all__ = [
     "COVERAGE_FACTOR_95",
     "ROLES",
     "Addition",
+    "BiasCauses",
     "Budget",
     "Check",
     "Contributor",
     "Delivery",
     "GlobalFitPrediction",
+    "MediumEffect",
     "Mixture",
     "MixtureUncertainty",
     "Plan",
@@ -232,6 +234,12 @@ class StockPreparation:
     aliquot_mL
         For a dilution, the volume of ``source`` per flask, made up to the mark with the
         medium [mL]; 0 otherwise.
+    salt_formula
+        The inert salt of ``design.ionic_medium`` to add, or ``""``.
+    salt_M
+        Its concentration in the stock [mol/L] (0 when none).
+    salt_mass_g
+        Mass of that salt per flask [g] (0 when none).
     """
 
     stock: str
@@ -246,6 +254,9 @@ class StockPreparation:
     medium: str
     source: str = ""
     aliquot_mL: float = 0.0
+    salt_formula: str = ""
+    salt_M: float = 0.0
+    salt_mass_g: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -349,8 +360,8 @@ class Contributor:
         What the input is, e.g. ``"reading of T3"`` or ``"buret-25mL delivering thiocyanate
         into S2"``.
     kind
-        ``"stock"``, ``"device-systematic"``, ``"delivery-random"``, ``"flask"`` or
-        ``"reading"``.
+        ``"stock"``, ``"device-systematic"``, ``"delivery-random"``, ``"flask"``,
+        ``"temperature"`` or ``"reading"``.
     standard_uncertainty
         u of the input, in ``unit``.
     unit
@@ -440,6 +451,54 @@ class MixtureUncertainty:
 
 
 @dataclass(frozen=True, slots=True)
+class MediumEffect:
+    """The ionic medium's share of the bias (:mod:`planner.predict.medium`).
+
+    Attributes
+    ----------
+    ionic_strength_M
+        Ionic strength of each mixture as made up, in plan order [mol/L].
+    K_in_medium
+        The measured species' constant in each mixture's medium (Davies up to 0.5 mol/L,
+        SIT above), at the benches' temperature [L/mol].
+    K_bias_all_bound, K_bias_global_fit
+        Relative change of each analysis's K when every mixture's constants are those of its
+        own medium rather than the reference medium's [unitless]; nan when the analysis gives
+        no finite K.
+    """
+
+    ionic_strength_M: tuple[float, ...]
+    K_in_medium: tuple[float, ...]
+    K_bias_all_bound: float
+    K_bias_global_fit: float
+
+
+@dataclass(frozen=True, slots=True)
+class BiasCauses:
+    """The all-bound K's relative bias split by cause (:mod:`planner.predict.bias`) [unitless].
+
+    Attributes
+    ----------
+    all_bound_assumption
+        The standards' limiting reagent taken as fully bound, alone.
+    absorbing_reagents
+        Added by the other absorbers (other products, free reagents).
+    stray_light
+        Added by the photometer's stray light.
+    ionic_medium
+        Added by each mixture's own ionic medium (:class:`MediumEffect`).
+    temperature
+        The constant at the benches' temperature against the one the plan gives, at its own.
+    """
+
+    all_bound_assumption: float
+    absorbing_reagents: float
+    stray_light: float
+    ionic_medium: float
+    temperature: float
+
+
+@dataclass(frozen=True, slots=True)
 class UncertaintyResult:
     """The first-order prediction of the all-bound analysis.
 
@@ -464,6 +523,11 @@ class UncertaintyResult:
     global_fit_epsilon, global_fit_K
         Budgets of the global fit's eps and K (the fit of every standard and test reading with
         the full equilibrium model), or None when eps and K cannot be separated.
+    medium
+        The ionic medium's share of the bias of each analysis (shown apart from the
+        all-bound assumption's).
+    bias_causes
+        The all-bound K's bias split by cause.
     """
 
     epsilon: Budget
@@ -476,6 +540,8 @@ class UncertaintyResult:
     test_ids: tuple[str, ...] = field(default=())
     global_fit_epsilon: Budget | None = None
     global_fit_K: Budget | None = None
+    medium: MediumEffect | None = None
+    bias_causes: BiasCauses | None = None
 
     @property
     def K_bias_from_assumption(self) -> float:

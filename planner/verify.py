@@ -19,9 +19,11 @@ import dataclasses
 import math
 from collections import Counter, defaultdict
 from collections.abc import Callable, Mapping, Sequence
+from typing import Any
 
 import numpy as np
 
+from planner.chem.activity import INERT_SALTS
 from planner.chem.assumption import (
     LARGEST_DISSOLVED_M,
     PRACTICAL_FREE_EXCESS_M,
@@ -29,7 +31,7 @@ from planner.chem.assumption import (
 )
 from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, medium_label, mix_M
-from planner.chem.species import molar_mass_g_per_mol
+from planner.chem.species import charge_from_name, molar_mass_g_per_mol, neutralised
 from planner.inputs import Device, PlanInputs, Stock
 from planner.lab.deliveries import MAX_DELIVERIES, delivers
 from planner.lab.glassware import (
@@ -53,9 +55,13 @@ from planner.result import (
 from planner.verify_global_fit import RecomputedGlobalFit, recompute_global_fit
 from planner.verify_prediction import (
     RecomputedPrediction,
+    bench_log_beta,
     delivery_split_mL,
+    delivery_volumes_mL,
     measured_deliveries,
+    reading_noise_sd,
     recompute_prediction,
+    technique_u_mL,
 )
 
 __all__ = [
@@ -63,6 +69,7 @@ __all__ = [
     "GLOBAL_FIT_NOTE",
     "RESULT_CHECK_NAMES",
     "inventory_check",
+    "reading_temperature_slope",
     "verify_plan",
     "verify_result",
 ]
@@ -630,7 +637,7 @@ def _solve_and_read(
     purpose, to check planner.forward's); ``log_beta`` and ``species_epsilon`` replace the
     plan's constants when given."""
     reaction = inputs.reaction
-    logs = reaction.log_beta() if log_beta is None else log_beta
+    logs = bench_log_beta(inputs) if log_beta is None else log_beta
     solved = solve_equilibrium(totals, reaction.stoichiometry(), logs)
     absorbers = np.concatenate([solved.species_M, solved.free_M], axis=1)
     species = reaction.species_epsilon() if species_epsilon is None else species_epsilon
@@ -642,18 +649,39 @@ def _solve_and_read(
     return solved.free_M, solved.species_M, net, reading
 
 
+def reading_temperature_slope(inputs: PlanInputs, totals: np.ndarray) -> tuple[np.ndarray, float]:
+    """d(reading)/dT of each mixture [1/K] and the benches' temperature SD [°C]: the van 't
+    Hoff shift of verify's own constants (bench_log_beta) read through verify's own forward
+    model, central difference of 0.01 K; zeros and 0 when no species gives an enthalpy."""
+    sd = inputs.bench.temperature_sd_C
+    if sd <= 0 or not any(sp.enthalpy_kJ_mol for sp in inputs.reaction.species):
+        return np.zeros(len(totals)), 0.0
+    room = inputs.session.temperature_C
+    t = inputs.reaction.temperature_C if room is None else room
+    h = 0.01
+    up = _solve_and_read(inputs, totals, bench_log_beta(inputs, t + h))[3]
+    down = _solve_and_read(inputs, totals, bench_log_beta(inputs, t - h))[3]
+    return (up - down) / (2 * h), sd
+
+
 # Relative step of the central difference of the reading (as any first-order budget may find
 # one sensitivity numerically, JCGM 100:2008, 5.1.3 note 2).
 _READING_STEP = 1e-6
 
 
 def _reading_u(
-    inputs: PlanInputs, mixture: Mixture, totals: np.ndarray, devices: Mapping[str, Device]
+    inputs: PlanInputs,
+    mixture: Mixture,
+    totals: np.ndarray,
+    reading: float,
+    devices: Mapping[str, Device],
 ) -> float | str:
     """u(A) of one mixture as the plan states it, or why it cannot be recomputed.
 
-    u(A)^2 = sd^2 + sum_z (sum_j dA/dT_j dT_j/dz u(z))^2 over the mixture's independent
-    inputs z (JCGM 100:2008, eq. 10): each stock's relative error (dT/dr_s = C_s V_s / V),
+    u(A)^2 = sd(A)^2 + sum_z (sum_j dA/dT_j dT_j/dz u(z))^2 over the mixture's independent
+    inputs z, sd(A) the three-term reading noise at the re-derived reading (plus the blank
+    cuvette's offset for a blank), the bench technique's error in each delivery's random
+    error (JCGM 100:2008, eq. 10): each stock's relative error (dT/dr_s = C_s V_s / V),
     each device's systematic error (its deliveries into the mixture add up), each delivery's
     random error (dT/dV_s = (C_s - T)/V in a tube, (C_s - C_d)/V in a flask made up to the
     mark with diluent d) and the flask's volume (dT/dV = (C_d - T)/V). dA/dT_j is a central
@@ -695,11 +723,13 @@ def _reading_u(
             return f"cannot deliver {a.volume_mL:g} mL of {a.stock} as stated"
         reference = diluent_M if flask is not None else totals
         d_total = (concentration[a.stock] - reference) / volume_mL
-        for device_id in a.devices:
+        for device_id, each_mL in zip(a.devices, delivery_volumes_mL(a), strict=True):
             split = delivery_split_mL(devices[device_id])
             if split is None:
                 return f"{device_id} does not measure a delivery"
-            u_sys, u_rand = split
+            u_sys = split[0]
+            # The device's random error and the bench technique's, independent.
+            u_rand = math.hypot(split[1], technique_u_mL(inputs, devices[device_id], each_mL))
             if u_sys > 0:
                 if device_id not in systematic:
                     systematic[device_id] = len(columns)
@@ -727,7 +757,11 @@ def _reading_u(
         moved[1, j] -= step
         up, down = _solve_and_read(inputs, moved)[3]
         slope[j] = (up - down) / (2.0 * step)
-    variance = inputs.instrument.absorbance_sd**2
+    variance = reading_noise_sd(inputs, reading) ** 2
+    per_kelvin, temperature_sd = reading_temperature_slope(inputs, totals[None, :])
+    variance += (float(per_kelvin[0]) * temperature_sd) ** 2  # the bench's temperature
+    if mixture.role == "blank":
+        variance += inputs.bench.blank_offset_sd**2  # the blank's cuvette against the samples'
     for column, value in zip(columns, u, strict=True):
         variance += (float(slope @ column) * value) ** 2
     return math.sqrt(variance)
@@ -738,7 +772,7 @@ def _reading_uncertainty(inputs: PlanInputs, mixtures: Sequence[Mixture], state:
     problems = []
     unchecked = []
     for i, m in enumerate(mixtures):
-        computed = _reading_u(inputs, m, state.components[i], devices)
+        computed = _reading_u(inputs, m, state.components[i], float(state.absorbance[i]), devices)
         if isinstance(computed, str):
             # A recipe that cannot be made fails deliverable-volumes; its u(A) has no value.
             unchecked.append(m.id)
@@ -763,7 +797,7 @@ def _excess_partner(inputs: PlanInputs) -> tuple[str | None, float | None]:
     for sp in sorted(reaction.species, key=lambda s: -s.epsilon):
         others = [c for c, n in sp.formula.items() if c != limiting and n]
         if sp.formula.get(limiting) == 1 and len(others) == 1 and sp.formula[others[0]] == 1:
-            return others[0], 10.0**sp.log_beta
+            return others[0], float(10.0 ** bench_log_beta(inputs)[reaction.species.index(sp)])
     return None, None
 
 
@@ -1283,6 +1317,7 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
     flask_mL, flasks = stock_flasks(volume_mL)
     medium = medium_label(inputs.diluent)
     solid = stock.solid
+    salt = _expected_salt(inputs, stock, flask_mL)
     dilution = _dilutions(inputs).get(stock.id)
     if dilution is not None:
         reagent = [ion for ion in stock.contains_M if ion in inputs.reaction.components]
@@ -1299,6 +1334,7 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
             medium=medium,
             source=dilution[0],
             aliquot_mL=dilution[1] * flask_mL,
+            **salt,
         )
     if solid is None:
         return StockPreparation(
@@ -1312,6 +1348,7 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
             provides="",
             concentration_M=0.0,
             medium="" if stock.diluent else medium,
+            **salt,
         )
     components = inputs.reaction.components
     provides = solid.provides or next(
@@ -1330,7 +1367,28 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
         provides=provides,
         concentration_M=concentration,
         medium=medium,
+        **salt,
     )
+
+
+def _expected_salt(inputs: PlanInputs, stock: Stock, flask_mL: float) -> dict[str, Any]:
+    """The inert salt of ``design.ionic_medium`` for one flask, re-derived: the plan file's
+    own stock made neutral with its counter-ions has I = 1/2 sum c z^2; a 1:1 salt adds its
+    concentration to I, so c_salt = (I_target - I_stock) / (1/2 sum nu z^2) and
+    m = c_salt V M (molar mass from periodictable)."""
+    medium = inputs.design.ionic_medium
+    if medium is None:
+        return {}
+    own = neutralised(stock.plan_contains_M or stock.contains_M)
+    strength = 0.5 * sum(c * charge_from_name(ion) ** 2 for ion, c in own.items())
+    per_mol = 0.5 * sum(
+        n * charge_from_name(ion) ** 2 for ion, n in INERT_SALTS[medium.salt].items()
+    )
+    salt_M = max(medium.ionic_strength_M - strength, 0.0) / per_mol
+    if salt_M <= 0:
+        return {}
+    mass = salt_M * flask_mL / 1000.0 * molar_mass_g_per_mol(medium.salt)
+    return {"salt_formula": medium.salt, "salt_M": salt_M, "salt_mass_g": mass}
 
 
 def _text_key(key: str, text: str) -> object:
@@ -1355,8 +1413,10 @@ _PREPARATION_NUMBERS = (
     ("mass_g", "g", 1e-9),
     ("concentration_M", "mol/L", 0.0),
     ("aliquot_mL", "mL", 1e-9),
+    ("salt_M", "mol/L", 1e-9),
+    ("salt_mass_g", "g", 1e-9),
 )
-_PREPARATION_TEXTS = ("solid_formula", "provides", "medium", "source")
+_PREPARATION_TEXTS = ("solid_formula", "provides", "medium", "source", "salt_formula")
 
 
 def _preparation(
@@ -1456,7 +1516,13 @@ def _prediction(
     For a plan designed for the global fit the all-bound block may be null, and must be when
     the all-bound analysis of the recipes gives meaningless numbers.
     """
-    recomputed = recompute_prediction(inputs, mixtures, state.components, state.absorbance)
+    recomputed = recompute_prediction(
+        inputs,
+        mixtures,
+        state.components,
+        state.absorbance,
+        reading_temperature_slope(inputs, state.components),
+    )
     fit = _global_fit_prediction(inputs, mixtures, state, stated_fit)
     if analysis == "global-fit":
         if stated is None:
@@ -1486,6 +1552,7 @@ def _global_fit_prediction(
             state.components,
             lambda totals, logs, eps: _solve_and_read(inputs, totals, logs, eps)[3],
             listed,
+            reading_temperature_slope(inputs, state.components),
         )
     )
     if stated is None:

@@ -40,6 +40,7 @@ from numpy.typing import NDArray
 from planner.inputs import PlanInputs
 from planner.lab.glassware import standard_uncertainty_mL
 from planner.result import Mixture
+from planner.verify_prediction import bench_log_beta, reading_noise_sd
 
 __all__ = ["RecomputedGlobalFit", "recompute_global_fit"]
 
@@ -73,6 +74,7 @@ def recompute_global_fit(
     totals_M: NDArray[np.float64],
     read: Reader,
     deliveries: Sequence[tuple[int, int, str, float, float]],
+    temperature: tuple[NDArray[np.float64], float] | None = None,
 ) -> RecomputedGlobalFit | str:
     """Re-derive the global fit's prediction of a plan (see the module notes).
 
@@ -90,6 +92,9 @@ def recompute_global_fit(
     deliveries
         Every measured delivery: (mixture row, stock column in ``inputs.stocks``, device id,
         u of the device's systematic error [mL], u of the delivery's random error [mL]).
+    temperature
+        d(reading)/dT of each mixture [1/K] and the SD of a bench's temperature [°C], one
+        input shared by every reading; None for none.
 
     Returns
     -------
@@ -104,7 +109,7 @@ def recompute_global_fit(
         return "the global fit needs a blank, a standard and a test mixture"
     reaction = inputs.reaction
     measured = inputs.measured
-    logs = reaction.log_beta()
+    logs = bench_log_beta(inputs)
     epsilons = reaction.species_epsilon()
     lg, eps = float(logs[measured]), float(epsilons[measured])
 
@@ -193,9 +198,13 @@ def recompute_global_fit(
         u_flask = standard_uncertainty_mL(inputs.flask)
         per_row = (slope * ((diluent_M[None, :] - totals_M) / volume_mL)).sum(axis=1)
         variance += ((per_reading * per_row[None, :] * u_flask) ** 2).sum(axis=1)
-    # Readings: each its own noise.
-    sd = inputs.instrument.absorbance_sd
+    # Readings: each its own noise at its own reading; one blank-cuvette offset on the blanks.
+    base = read(totals_M, None, None)
+    sd = np.array([reading_noise_sd(inputs, float(a)) for a in base])
     variance += ((per_reading * sd) ** 2).sum(axis=1)
+    variance += (per_reading[:, blanks].sum(axis=1) * inputs.bench.blank_offset_sd) ** 2
+    if temperature is not None:
+        variance += (per_reading @ (np.asarray(temperature[0]) * temperature[1])) ** 2
 
     k_value = 10.0**lg
     return RecomputedGlobalFit(

@@ -69,16 +69,22 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
+from planner.chem.activity import log_beta_in_medium
+from planner.chem.species import charge_from_name
 from planner.inputs import Device, PlanInputs
 from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
-from planner.result import Mixture, Prediction
+from planner.result import Addition, Mixture, Prediction
 
 __all__ = [
     "ROUNDING_PROBE",
     "RecomputedPrediction",
+    "bench_log_beta",
     "delivery_split_mL",
+    "delivery_volumes_mL",
     "measured_deliveries",
+    "reading_noise_sd",
     "recompute_prediction",
+    "technique_u_mL",
 ]
 
 #: Relative change of the inputs that probes how much rounding the prediction amplifies:
@@ -134,6 +140,88 @@ def delivery_split_mL(device: Device) -> tuple[float, float] | None:
     return None
 
 
+#: Molar gas constant [J mol⁻¹ K⁻¹] (CODATA 2018, exact) and 0 °C [K], for verify's own
+#: van 't Hoff.
+_R_J_PER_MOL_K = 8.314462618
+_ZERO_C_K = 273.15
+
+
+def bench_log_beta(inputs: PlanInputs, temperature_C: float | None = None) -> NDArray[np.float64]:
+    """log10 beta of every product species at the benches' temperature, re-derived for verify.
+
+    The integrated van 't Hoff equation, ln(beta2/beta1) = -(dH/R)(1/T2 - 1/T1) (Atkins and
+    de Paula, Physical Chemistry, 9th ed., 2010, eq. 6.23, from memory), from each species'
+    ``log_beta`` at ``reaction.temperature_C`` and its ``enthalpy_kJ_mol`` (none: no change),
+    to ``temperature_C`` or else ``session.temperature_C``.
+    """
+    reaction = inputs.reaction
+    wanted = inputs.session.temperature_C if temperature_C is None else temperature_C
+    logs = np.array([sp.log_beta for sp in reaction.species], dtype=float)
+    if wanted is not None:
+        t1, t2 = reaction.temperature_C + _ZERO_C_K, wanted + _ZERO_C_K
+        for i, sp in enumerate(reaction.species):
+            if sp.enthalpy_kJ_mol:
+                ln_ratio = -(sp.enthalpy_kJ_mol * 1000.0 / _R_J_PER_MOL_K) * (1 / t2 - 1 / t1)
+                logs[i] += ln_ratio / math.log(10.0)
+    medium = inputs.design.ionic_medium
+    if medium is not None:
+        # A constant medium moves every constant alike (Davies or SIT, planner.chem.activity,
+        # checked there against published values); dz2 = sum nu z^2 - (sum nu z)^2.
+        charges = {c: charge_from_name(c) for c in reaction.components}
+        dz2 = [
+            sum(n * charges[c] ** 2 for c, n in sp.formula.items())
+            - sum(n * charges[c] for c, n in sp.formula.items()) ** 2
+            for sp in reaction.species
+        ]
+        logs = log_beta_in_medium(
+            logs,
+            dz2,
+            reaction.ionic_strength_M,
+            [medium.ionic_strength_M],
+            reaction.sit_delta_epsilon_kg_mol,
+        )[0]
+    return logs
+
+
+def technique_u_mL(inputs: PlanInputs, device: Device, volume_mL: float) -> float:
+    """The bench technique's standard deviation for one delivery [mL], re-derived for verify
+    (docs/methods.md, the bench model): a buret is read twice, before and after, each reading
+    with SD ``buret_reading_sd_mL``; a transfer or graduated pipette errs by ``pipette_rsd``
+    of its volume, a piston pipette by ``piston_rsd``; anything else adds nothing."""
+    bench = inputs.bench
+    if device.kind == "buret":
+        return math.sqrt(bench.buret_reading_sd_mL**2 + bench.buret_reading_sd_mL**2)
+    if device.kind in {"transfer-pipette", "graduated-pipette"}:
+        return bench.pipette_rsd * volume_mL
+    if device.kind == "piston-pipette":
+        return bench.piston_rsd * volume_mL
+    return 0.0
+
+
+def delivery_volumes_mL(addition: Addition) -> list[float]:
+    """The volume of each delivery of an addition [mL]: as listed, else equal shares."""
+    if len(addition.deliveries) == len(addition.devices):
+        return [d.volume_mL for d in addition.deliveries]
+    return [addition.volume_mL / len(addition.devices)] * len(addition.devices)
+
+
+def reading_noise_sd(inputs: PlanInputs, absorbance: float) -> float:
+    """SD of one reading at absorbance A, re-derived for verify [absorbance units].
+
+    The three-term precision model of absorption photometry (Rothman, Crouch and Ingle,
+    Anal. Chem. 47 (1975) 1226, from memory): a floor s0, a term r A proportional to the
+    reading (r from the photometer and the cuvette's placement, in quadrature), and constant
+    transmittance noise sigma_T, which A = -log10 T turns into sigma_T / (T ln 10).
+    """
+    instrument = inputs.instrument
+    transmittance = 10.0 ** (-absorbance)
+    from_transmittance = instrument.transmittance_sd / (transmittance * math.log(10.0))
+    proportional = math.sqrt(instrument.absorbance_rsd**2 + inputs.bench.cuvette_rsd**2)
+    return math.sqrt(
+        instrument.absorbance_sd**2 + (proportional * absorbance) ** 2 + from_transmittance**2
+    )
+
+
 def measured_deliveries(
     inputs: PlanInputs, mixtures: Sequence[Mixture]
 ) -> list[tuple[int, int, str, float, float]] | str:
@@ -159,12 +247,15 @@ def measured_deliveries(
                 return f"{mixture.id} adds {addition.stock!r}, which is not a stock"
             if in_flask and diluent is not None and addition.stock == diluent.id:
                 continue  # to the mark: the flask's volume, not a measured delivery
-            for device_id in addition.devices:
+            each_mL = delivery_volumes_mL(addition) if addition.devices else []
+            for device_id, volume_mL in zip(addition.devices, each_mL, strict=True):
                 device = shelf.get(device_id)
                 split = None if device is None else delivery_split_mL(device)
-                if split is None:
+                if split is None or device is None:
                     return f"{mixture.id}: {device_id} does not measure a delivery"
-                deliveries.append((row, column, device_id, *split))
+                # The technique's error is random per delivery, like the device's own.
+                u_random = math.hypot(split[1], technique_u_mL(inputs, device, volume_mL))
+                deliveries.append((row, column, device_id, split[0], u_random))
     return deliveries
 
 
@@ -183,6 +274,7 @@ def recompute_prediction(
     mixtures: Sequence[Mixture],
     totals_M: NDArray[np.float64],
     readings: NDArray[np.float64],
+    temperature: tuple[NDArray[np.float64], float] | None = None,
 ) -> RecomputedPrediction | str:
     """Re-derive the prediction block of a plan (see the module notes).
 
@@ -198,6 +290,9 @@ def recompute_prediction(
     readings
         Re-computed photometer reading of each mixture (stray light applied, blank not
         subtracted), shape (n_mixtures,) [unitless].
+    temperature
+        d(reading)/dT of each mixture [1/K] and the SD of a bench's temperature [°C]: one
+        input shared by every reading of the bench; None for none.
 
     Returns
     -------
@@ -268,9 +363,15 @@ def recompute_prediction(
                 deliveries,
                 diluent_column,
                 volume_mL,
+                per_kelvin,
             )
         return [epsilon, u_epsilon, float(np.mean(k_tests)), u_k, *k_tests.tolist()]
 
+    per_kelvin = (
+        np.zeros(len(chosen))
+        if temperature is None
+        else np.asarray(temperature[0], dtype=float)[chosen] * temperature[1]
+    )
     base_totals = totals_M[chosen][:, [limiting, excess]]
     base_readings = readings[chosen]
     numbers = evaluate(base_totals, base_readings)
@@ -291,7 +392,7 @@ def recompute_prediction(
         for i, (moved, value) in enumerate(zip(evaluate(totals, reads), numbers, strict=True)):
             # A probe that reaches a singularity makes the value worth nothing: inf.
             spread[i] = max(spread[i], abs(moved - value) if math.isfinite(moved) else math.inf)
-    k_true = float(10.0**coloured.log_beta)
+    k_true = float(10.0 ** bench_log_beta(inputs)[inputs.measured])
     epsilon, u_epsilon, k_mean, u_k, *k_tests = numbers
     return RecomputedPrediction(
         prediction=Prediction(
@@ -329,6 +430,7 @@ def _propagate(
     deliveries: Sequence[tuple[int, int, str, float, float]],
     diluent_column: int | None,
     volume_mL: float,
+    temperature_move: NDArray[np.float64],
 ) -> tuple[float, float, NDArray[np.float64], float]:
     """eps, u(eps), K of each test and u(mean K); the first rows are the blanks (A_0 is their
     mean, so each blank reading carries 1/n_blanks of d/dA_0), columns (L, M)."""
@@ -403,8 +505,8 @@ def _propagate(
         var_eps += float(np.sum((np.sum(w_eps * dc, axis=1) * u_flask) ** 2))
         var_k += float(np.sum((np.sum(w_k * dc, axis=1) * u_flask) ** 2))
 
-    # Readings: each its own noise.
-    sd = inputs.instrument.absorbance_sd
+    # Readings: each its own noise, at its own reading; one blank-cuvette offset on the blanks.
+    sd = np.array([reading_noise_sd(inputs, float(a)) for a in readings])
     g_eps_read = np.zeros(n)
     g_eps_read[rows_std] = d_eps_a
     g_eps_read[rows_blank] = d_eps_a0 / n_blank
@@ -413,4 +515,10 @@ def _propagate(
     g_k_read[rows_blank] += np.sum(d_k_x * (-1.0 / (epsilon * b))) / n_test / n_blank
     var_eps += float(np.sum((g_eps_read * sd) ** 2))
     var_k += float(np.sum((g_k_read * sd) ** 2))
+    offset = inputs.bench.blank_offset_sd
+    var_eps += _square(float(np.sum(g_eps_read[rows_blank])) * offset)
+    var_k += _square(float(np.sum(g_k_read[rows_blank])) * offset)
+    # The bench's temperature: one input moving every reading by dA/dT times its SD.
+    var_eps += _square(float(np.dot(g_eps_read, temperature_move)))
+    var_k += _square(float(np.dot(g_k_read, temperature_move)))
     return float(epsilon), _root(var_eps), k_tests, _root(var_k)

@@ -74,6 +74,9 @@ KNOWN_KEYS = frozenset(
             "min_delivery_mL tolerance_mL standards tests limiting assumption_tolerance vessel",
             "total_volume_mL bound_fraction_span bound_fraction_range ionic_strength_spread",
             "blanks sections benches_per_section replicates margin dead_volume_mL",
+            "absorbance_rsd transmittance_sd bench technique buret_reading_sd_mL pipette_rsd",
+            "piston_rsd cuvette_rsd blank_offset_sd temperature_sd_C enthalpy_kJ_mol log_beta_sd",
+            "sit_delta_epsilon_kg_mol criterion ionic_medium salt",
         )
     ).split()
 )

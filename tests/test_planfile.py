@@ -31,6 +31,7 @@ from planner.inputs import (
     Solid,
     Stock,
 )
+from planner.lab.bench import PRESETS
 from planner.planfile import (
     MAX_PLAN_FILE_BYTES,
     load_plan,
@@ -1500,3 +1501,44 @@ def test_a_file_of_exactly_the_limit_is_read(tmp_path):
     path.write_text(text, encoding="utf-8")
     assert path.stat().st_size == MAX_PLAN_FILE_BYTES == 2**20
     assert load_plan(path) == parse_plan(IRON_PLAN)
+
+
+def test_bench_preset_fills_every_term_and_overrides_win():
+    data = _data()
+    data["bench"] = {"technique": "novice", "cuvette_rsd": 0.005}
+    bench = plan_from_mapping(data).bench
+    novice = PRESETS["novice"]
+    assert bench.technique == "novice"
+    assert bench.cuvette_rsd == 0.005
+    assert bench.pipette_rsd == novice.pipette_rsd
+    assert bench.buret_reading_sd_mL == novice.buret_reading_sd_mL
+    assert bench.blank_offset_sd == novice.blank_offset_sd
+    assert bench.temperature_sd_C == novice.temperature_sd_C
+
+
+def test_no_bench_table_is_an_ideal_bench_and_round_trips():
+    plan = parse_plan(IRON_PLAN)
+    assert plan.bench.technique == "none"
+    assert plan.bench.pipette_rsd == 0.0
+    data = _data()
+    data["bench"] = {"technique": "practised", "piston_rsd": 0.01}
+    data["instrument"]["absorbance_rsd"] = 0.004
+    data["instrument"]["transmittance_sd"] = 0.002
+    plan = plan_from_mapping(data)
+    again = plan_from_mapping(json.loads(json.dumps(plan_to_mapping(plan))))
+    assert again == plan
+    assert again.instrument.transmittance_sd == 0.002
+
+
+@pytest.mark.parametrize(
+    ("key", "value", "field"),
+    [
+        ("technique", "expert", "bench.technique"),
+        ("pipette_rsd", -0.01, "bench.pipette_rsd"),
+        ("buret_reading_sd_mL", 2.0, "bench.buret_reading_sd_mL"),
+    ],
+)
+def test_bad_bench_values_name_the_key(key, value, field):
+    data = _data()
+    data["bench"] = {key: value}
+    _assert_names(_error(data), field)

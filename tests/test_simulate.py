@@ -189,3 +189,51 @@ def test_a_global_fit_plan_withholds_the_all_bound_numbers_and_leads_with_the_fi
     # No table row of the all-bound analysis (a row starts with the analysis, then numbers).
     assert not [line for line in text.splitlines() if line.strip().startswith("all-bound ")]
     assert "Uncertainty budget of K (global fit)" in text
+
+
+def test_technique_compares_presets_side_by_side(tmp_path: Path) -> None:
+    # The done criterion through the command: on the default plan the novice bench's
+    # 95 % range of K is at least three times as wide as the calibrated bench's.
+    out = tmp_path / "sim"
+    result = run(
+        "simulate",
+        "--technique",
+        "calibrated",
+        "--technique",
+        "novice",
+        "--trials",
+        "4000",
+        "--format",
+        "json",
+        "--out",
+        str(out),
+    )
+    assert result.exit_code == 0, result.output
+    document = json.loads(result.stdout)
+    assert document["schema"] == "planner.simulate-techniques/1"
+    assert set(document["techniques"]) == {"calibrated", "novice"}
+    width = {
+        name: entry["K"]["all_bound"]["ci95"][1] - entry["K"]["all_bound"]["ci95"][0]
+        for name, entry in document["techniques"].items()
+    }
+    assert width["novice"] >= 3.0 * width["calibrated"]
+    spread = document["techniques"]["calibrated"]["K_spread_all_bound"]
+    assert spread["class_size"] == 30  # 3 sections x 10 benches of the default
+    assert (out / "K-histogram-by-technique.png").read_bytes().startswith(b"\x89PNG")
+    assert (out / "techniques.json").is_file()
+
+
+def test_technique_rejects_an_unknown_preset() -> None:
+    result = runner.invoke(app, ["simulate", "--technique", "expert"])
+    assert result.exit_code == 2
+
+
+def test_json_splits_the_spread_by_class(document):
+    # The stocks are one batch for the class (3 sections x 10 benches on the default): the
+    # spread inside a class and of the class mean are reported apart; with 400 trials there
+    # are 13 whole classes.
+    spread = document["K_spread"]["all_bound"]
+    assert spread["class_size"] == 30
+    assert spread["classes"] == 400 // 30
+    assert spread["bench_sd"] > 0
+    assert spread["class_mean_sd"] > 0

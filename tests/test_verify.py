@@ -36,6 +36,7 @@ from planner.verify import (
     CHECK_NAMES,
     GLOBAL_FIT_NOTE,
     RESULT_CHECK_NAMES,
+    reading_temperature_slope,
     verify_plan,
     verify_result,
 )
@@ -690,10 +691,13 @@ def test_reading_uncertainty_of_a_standard_by_hand(document: Document) -> None:
     #   b = K(M + L) + 1, with eps b [ML] read through the stray light,
     #   A = log10((1 + s)/(10^-A_true + s)) (Skoog et al. 2017, section 13B-2, from memory),
     #   by central differences. The default's 1:2 species Fe(SCN)2+ is left out of this hand
-    #   model (it holds under 0.1 % of the thiocyanate in a standard), hence 1e-3 relative.
+    #   model (it holds under 0.1 % of the thiocyanate in a standard), hence 1e-3 relative;
+    # - the bench (the default's [bench]): each buret delivery is read twice, adding
+    #   2 buret_reading_sd_mL^2 to its variance; the reading's own SD is the floor and the
+    #   cuvette's placement in quadrature, sd^2 = absorbance_sd^2 + (cuvette_rsd A)^2.
     inputs = document["inputs"]
     stray = inputs["instrument"]["stray_light"]
-    sd = inputs["instrument"]["absorbance_sd"]
+    buret_reading = inputs["bench"]["buret_reading_sd_mL"]
     path = inputs["instrument"]["path_length_cm"]
     product = next(sp for sp in inputs["reaction"]["species"] if sp["name"] == "FeSCN2+")
     k1, eps = 10 ** product["log_beta"], product["epsilon"]
@@ -701,6 +705,12 @@ def test_reading_uncertainty_of_a_standard_by_hand(document: Document) -> None:
         m
         for m in role(document, "standard")
         if all(a["devices"] == ["buret-25mL"] for a in m["additions"])
+    )
+    # ... and constant transmittance noise, 0.4343 sigma_T 10^A (Skoog et al. 2017, 13C-2).
+    sd = math.sqrt(
+        inputs["instrument"]["absorbance_sd"] ** 2
+        + (inputs["bench"]["cuvette_rsd"] * standard["absorbance"]) ** 2
+        + (0.4343 * inputs["instrument"]["transmittance_sd"] * 10 ** standard["absorbance"]) ** 2
     )
     stocks = {st["id"]: st for st in inputs["stocks"]}
     volume = standard["total_volume_mL"]
@@ -723,7 +733,7 @@ def test_reading_uncertainty_of_a_standard_by_hand(document: Document) -> None:
     h_m, h_l = 1e-6 * total_m, 1e-6 * total_l
     d_m = (reading(total_m + h_m, total_l) - reading(total_m - h_m, total_l)) / (2 * h_m)
     d_l = (reading(total_m, total_l + h_l) - reading(total_m, total_l - h_l)) / (2 * h_l)
-    u_delivery = 0.03 / math.sqrt(6)
+    u_delivery = math.sqrt((0.03 / math.sqrt(6)) ** 2 + 2 * buret_reading**2)
     variance = sd**2
     for a in standard["additions"]:
         c_m, c_l = conc[a["stock"]]
@@ -779,7 +789,10 @@ def test_prediction_agrees_with_the_design_s_propagation(default_plan: Plan) -> 
         ]
     )
     readings = np.array([m.absorbance for m in saved.mixtures])
-    again = recompute_prediction(saved.inputs, saved.mixtures, state_totals, readings)
+    # The bench's temperature (the default gives an enthalpy): the verifier's own slope.
+    slope = reading_temperature_slope(saved.inputs, state_totals)
+    assert slope[1] > 0
+    again = recompute_prediction(saved.inputs, saved.mixtures, state_totals, readings, slope)
     assert not isinstance(again, str), again
     for key in ("epsilon", "u_epsilon", "K", "u_K", "K_bias_from_assumption", "K_true"):
         assert getattr(again.prediction, key) == pytest.approx(getattr(design, key), rel=1e-12), key

@@ -135,7 +135,9 @@ def _one_to_one_free(
 
 
 def _one_to_one_log_free(
-    metal_total_M: NDArray[np.float64], ligand_total_M: NDArray[np.float64], K: float
+    metal_total_M: NDArray[np.float64],
+    ligand_total_M: NDArray[np.float64],
+    K: float | NDArray[np.float64],
 ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Natural logarithms of free M and free L of the 1:1 system (the root of
     :func:`_one_to_one_free`), without its underflow.
@@ -204,12 +206,14 @@ def _check_inputs(
             value=matrix.shape,
             hint=f"give {totals.shape[1]} columns, one per component of total_M",
         )
-    if logs.shape != (matrix.shape[0],):
+    # One set of constants shared by every mixture, or one row per mixture (each mixture in
+    # its own ionic medium).
+    if logs.shape != (matrix.shape[0],) and logs.shape != (totals.shape[0], matrix.shape[0]):
         raise InvalidInputError(
             "log_beta has one value per product species",
             field="log_beta",
             value=logs.shape,
-            hint=f"give {matrix.shape[0]} values",
+            hint=f"give {matrix.shape[0]} values, or one row of them per mixture",
         )
     if not (np.all(np.isfinite(totals)) and np.all(totals >= 0)):
         raise InvalidInputError(
@@ -252,9 +256,15 @@ def _small_product(left: NDArray[np.float64], right: NDArray[np.float64]) -> NDA
 def _species_log(
     x: NDArray[np.float64], matrix: NDArray[np.float64], ln_beta: NDArray[np.float64]
 ) -> NDArray[np.float64]:
-    """ln s_i = ln beta_i + sum_j a_ij x_j, component-major: x (m, n) -> (s, n)."""
-    result: NDArray[np.float64] = _small_product(matrix, x) + ln_beta[:, None]
+    """ln s_i = ln beta_i + sum_j a_ij x_j, component-major: x (m, n) -> (s, n); ln_beta is
+    (s, 1) for constants shared by every mixture or (s, n), one column per mixture."""
+    result: NDArray[np.float64] = _small_product(matrix, x) + ln_beta
     return result
+
+
+def _columns(ln_beta: NDArray[np.float64], which: NDArray[np.int64]) -> NDArray[np.float64]:
+    """The constants of some mixtures: every column when shared, else the chosen ones."""
+    return ln_beta if ln_beta.shape[1] == 1 else ln_beta[:, which]
 
 
 def _cholesky_solve(
@@ -364,7 +374,8 @@ def _newton(
     active = np.arange(x.shape[1])
     xa, ta = x, totals
     free = np.exp(xa)
-    species = np.exp(_species_log(xa, matrix, ln_beta))
+    lb = ln_beta  # the active mixtures' constants
+    species = np.exp(_species_log(xa, matrix, lb))
     iterations = 0
     # Without negative coefficients |A| = A, and the scale's sum is the gradient's.
     signed = bool(np.any(matrix_t < 0))
@@ -389,6 +400,7 @@ def _newton(
                 species[:, keep],
                 gradient[:, keep],
             )
+            lb = _columns(lb, np.flatnonzero(keep))
         if not active.size:
             break
         iterations += 1
@@ -405,7 +417,7 @@ def _newton(
         scale = np.abs(f0) + mass
         trial = xa + t * step
         trial_free = np.exp(trial)
-        trial_species = np.exp(_species_log(trial, matrix, ln_beta))
+        trial_species = np.exp(_species_log(trial, matrix, lb))
         for _ in range(60):
             f1 = trial_free.sum(axis=0) + trial_species.sum(axis=0) - (ta * trial).sum(axis=0)
             # Near the root F changes by less than its rounding: accept such steps, which are
@@ -417,7 +429,7 @@ def _newton(
             t[bad] *= 0.5
             trial[:, bad] = xa[:, bad] + t[bad] * step[:, bad]
             trial_free[:, bad] = np.exp(trial[:, bad])
-            trial_species[:, bad] = np.exp(_species_log(trial[:, bad], matrix, ln_beta))
+            trial_species[:, bad] = np.exp(_species_log(trial[:, bad], matrix, _columns(lb, bad)))
         xa, free, species = trial, trial_free, trial_species
     if active.size:
         raise ConvergenceError(
@@ -433,7 +445,7 @@ def _newton(
 def _start(
     totals: NDArray[np.float64], matrix: NDArray[np.float64], logs: NDArray[np.float64]
 ) -> NDArray[np.float64]:
-    """Starting log-concentrations, (m, n) layout.
+    """Starting log-concentrations, (m, n) layout; logs is (s, 1) or (s, n).
 
     When a 1:1 species of two components exists, the closed-form root of that pair alone is
     the start (the other species are then usually minor, and Newton needs 2 to 4 steps);
@@ -446,10 +458,12 @@ def _start(
     ]
     if not one_to_one:
         return _pcf_start(totals, matrix, logs * _LN10)
-    best = max(one_to_one, key=lambda i: logs[i])
+    best = max(one_to_one, key=lambda i: float(np.max(logs[i])))
     first, second = np.flatnonzero(matrix[best])
     x = np.log(totals)
-    x[first], x[second] = _one_to_one_log_free(totals[first], totals[second], 10.0 ** logs[best])
+    x[first], x[second] = _one_to_one_log_free(
+        totals[first], totals[second], 10.0 ** logs[best].reshape(-1)
+    )
     # Two sweeps pull the start back when another species (a strong 1:2, say) dominates.
     return _pcf_start(totals, matrix, logs * _LN10, x, sweeps=2)
 
@@ -491,7 +505,8 @@ def solve_equilibrium(
         (n_species, n_components) [unitless]; negative coefficients (such as -1 for H+ in a
         hydroxo species) are allowed.
     log_beta
-        log10 of each overall formation constant, shape (n_species,)
+        log10 of each overall formation constant, shape (n_species,), or one row per
+        mixture, shape (n, n_species)
         [log10 of (mol/L)^(1-n)].
 
     Returns
@@ -543,19 +558,21 @@ def _solve_checked(
     """:func:`solve_equilibrium` on checked inputs, all mixtures at once."""
     zero = totals <= 0.0
     work = np.where(zero, _ZERO_STAND_IN_M, totals)
-    ln_beta = logs * _LN10
+    # Constants species-major, one column shared or one per mixture: (s, 1) or (s, n).
+    logs_t = np.ascontiguousarray(logs.T) if logs.ndim == 2 else logs[:, None]
+    ln_beta_t = logs_t * _LN10
 
     if _is_one_to_one(matrix):
-        ln_metal, ln_ligand = _one_to_one_log_free(work[:, 0], work[:, 1], 10.0 ** logs[0])
+        ln_metal, ln_ligand = _one_to_one_log_free(work[:, 0], work[:, 1], 10.0 ** logs_t[0])
         x = np.stack([ln_metal, ln_ligand], axis=1)
         iterations = 0
     else:
         work_t = np.ascontiguousarray(work.T)
-        x_t, iterations = _newton(_start(work_t, matrix, logs), work_t, matrix, ln_beta)
+        x_t, iterations = _newton(_start(work_t, matrix, logs_t), work_t, matrix, ln_beta_t)
         x = x_t.T
 
     free = np.exp(x)
-    species = np.exp(_small_product(matrix, x.T).T + ln_beta)
+    species = np.exp(_small_product(matrix, x.T).T + ln_beta_t.T)
     residual = (free + _small_product(matrix.T, species.T).T - work) / work
     free = np.where(zero, 0.0, free)
     absent = (zero.astype(float) @ (matrix != 0).T) > 0

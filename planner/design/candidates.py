@@ -25,9 +25,10 @@ from numpy.typing import NDArray
 from planner.chem.equilibrium import bound_fraction
 from planner.chem.mixing import IonTable, ion_table, ionic_strength_after_reaction_M, mix_M
 from planner.forward import predict_readings
-from planner.inputs import Device, PlanInputs, Stock
+from planner.inputs import Bench, Device, PlanInputs, Stock
+from planner.lab.bench import reading_sd, technique_sd_mL
 from planner.lab.deliveries import Delivery, VolumeTable, volume_table
-from planner.lab.glassware import standard_uncertainty_mL
+from planner.lab.glassware import devices_by_id, standard_uncertainty_mL
 
 __all__ = [
     "MIN_REAGENT_SHARE",
@@ -204,13 +205,17 @@ def _thin(volumes_mL: NDArray[np.float64]) -> NDArray[np.float64]:
     return kept
 
 
-def _option(table: VolumeTable, volume_mL: float) -> Option:
+def _option(table: VolumeTable, volume_mL: float, bench: Bench, shelf: dict[str, Device]) -> Option:
     aliquots = table.best(volume_mL)
     assert aliquots is not None  # only tabulated volumes are asked for
+    # The bench's technique adds an independent error to every delivery (in quadrature).
+    technique = sum(
+        technique_sd_mL(bench, shelf[d.device], d.volume_mL) ** 2 for d in aliquots.deliveries
+    )
     return Option(
         volume_mL=aliquots.volume_mL,
         devices=aliquots.devices,
-        u_mL=aliquots.u_mL,
+        u_mL=math.sqrt(aliquots.u_mL**2 + technique),
         deliveries=aliquots.deliveries,
     )
 
@@ -277,6 +282,7 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
         largest = max(limit)
         limit = [n - max(1, n // 10) if n == largest else n for n in limit]
     none = Option(volume_mL=0.0, devices=(), u_mL=0.0)
+    by_id = devices_by_id(inputs.glassware)
     columns: list[tuple[Option, ...]] = []
     for st, per_stock in zip(reagents, limit, strict=True):
         volumes = thinned[st.id]
@@ -284,7 +290,7 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
             pick = np.unique(np.linspace(0, volumes.size - 1, per_stock - 1).round().astype(int))
             volumes = volumes[pick]
         table = tables[shelves[st.id]]
-        columns.append((none, *(_option(table, float(v)) for v in volumes)))
+        columns.append((none, *(_option(table, float(v), inputs.bench, by_id) for v in volumes)))
 
     grid = np.array(list(itertools.product(*(range(len(c)) for c in columns))), dtype=np.int64)
     grid = grid.reshape(-1, len(reagents))
@@ -326,7 +332,9 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
             lookup = np.zeros(distinct.size, dtype=np.int64)
             for position in np.flatnonzero(deliverable).tolist():
                 lookup[position] = len(diluent_list)
-                diluent_list.append(_option(table, float(distinct[position]) / _NL_PER_ML))
+                diluent_list.append(
+                    _option(table, float(distinct[position]) / _NL_PER_ML, inputs.bench, by_id)
+                )
             zero = distinct == 0
             ok = (deliverable | zero)[inverse.reshape(-1)]
             index = lookup[inverse.reshape(-1)]
@@ -428,9 +436,10 @@ def _reading_uncertainty(
 ) -> NDArray[np.float64]:
     """u(A) of each candidate: sqrt(u_read^2 + sum_j (dA/dT_j u(T_j))^2) (GUM, JCGM 100:2008,
     eq. 10, components taken as independent), dA/dT_j by a one-sided difference of
-    :func:`planner.forward.predict_readings`."""
+    :func:`planner.forward.predict_readings`; u_read is the heteroscedastic reading noise of
+    :func:`planner.lab.bench.reading_sd` at the candidate's reading."""
     totals = evaluation.total_M
-    variance = np.full(totals.shape[0], inputs.instrument.absorbance_sd**2)
+    variance = reading_sd(inputs.instrument, inputs.bench, evaluation.absorbance) ** 2
     for j in range(totals.shape[1]):
         step = _READING_STEP * totals[:, j]
         present = step > 0

@@ -20,6 +20,7 @@ from __future__ import annotations
 
 from collections import defaultdict
 from collections.abc import Mapping, Sequence
+from typing import Any
 
 from planner.chem.mixing import medium_label
 from planner.chem.species import molar_mass_g_per_mol
@@ -244,7 +245,18 @@ def _preparation(
         medium="" if stock.diluent and solid is None and not source else medium,
         source=source,
         aliquot_mL=fraction * flask_mL,
+        **_salt(inputs, stock, flask_mL),
     )
+
+
+def _salt(inputs: PlanInputs, stock: Stock, flask_mL: float) -> dict[str, Any]:
+    """The inert salt of ``design.ionic_medium`` to weigh into one flask of the stock:
+    m = c V M with M from periodictable (:func:`planner.chem.species.molar_mass_g_per_mol`)."""
+    medium = inputs.design.ionic_medium
+    if medium is None or stock.medium_salt_M <= 0:
+        return {}
+    mass = stock.medium_salt_M * flask_mL / 1000.0 * molar_mass_g_per_mol(medium.salt)
+    return {"salt_formula": medium.salt, "salt_M": stock.medium_salt_M, "salt_mass_g": mass}
 
 
 def combined_totals(totals: Sequence[Totals], inputs: PlanInputs) -> Totals:

@@ -12,26 +12,43 @@ across conditions is tested and a wrong model shows.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+import dataclasses
+import math
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
 
-from planner.analysis import Layout, all_bound_K_log_sensitivities, global_fit_jacobian
+from planner.analysis import (
+    Layout,
+    all_bound_epsilon,
+    all_bound_K,
+    all_bound_K_log_sensitivities,
+    global_fit_jacobian,
+)
+from planner.chem.constants import bench_K
 from planner.design.candidates import CandidateSet
+from planner.forward import predict_readings
 from planner.inputs import PlanInputs
+from planner.lab.bench import reading_sd
 
 __all__ = [
+    "PRIOR_NODES",
+    "PRIOR_WEIGHTS",
     "GlobalFitObjective",
     "MeanKObjective",
+    "MeanSquaredErrorObjective",
     "Objective",
+    "RobustGlobalFitObjective",
     "TestsChoice",
     "choose_tests",
     "first_order_relative_u_K",
     "global_fit_objective",
     "mean_K_objective",
+    "mse_objective",
     "per_mixture_relative_u_K",
+    "robust_global_fit_objective",
 ]
 
 #: An objective scores a set of candidate indices; lower is better.
@@ -76,7 +93,8 @@ def per_mixture_relative_u_K(
     K = x / ((M0 - x)(L0 - x)). Its relative sensitivities are (GUM, JCGM 100:2008, eq. 10,
     in relative form) d ln K/d ln x = 1 + x/(M0 - x) + x/(L0 - x),
     d ln K/d ln M0 = -M0/(M0 - x) and d ln K/d ln L0 = -L0/(L0 - x); u(x)/x comes from the
-    reading noise u(A)/A_net, and u(M0), u(L0) from stocks and deliveries. The molar
+    reading noise u(A)/A_net (heteroscedastic, :func:`planner.lab.bench.reading_sd`), and
+    u(M0), u(L0) from stocks and deliveries. The molar
     absorptivity's own uncertainty is common to all tests and is left to the prediction.
 
     Returns
@@ -94,7 +112,7 @@ def per_mixture_relative_u_K(
     l0 = ev.total_M[indices, limiting]
     s_x, s_m, s_l = all_bound_K_log_sensitivities(x, m0, l0)
     a_net = np.maximum(ev.true_absorbance[indices], 1e-12)
-    u_x = inputs.instrument.absorbance_sd / a_net
+    u_x = reading_sd(inputs.instrument, inputs.bench, ev.absorbance[indices]) / a_net
     u_m = candidates.u_relative_total[indices, excess]
     u_l = candidates.u_relative_total[indices, limiting]
     result: NDArray[np.float64] = np.sqrt((s_x * u_x) ** 2 + (s_m * u_m) ** 2 + (s_l * u_l) ** 2)
@@ -248,10 +266,181 @@ def global_fit_objective(
         excess=excess,
         measured=inputs.measured,
         epsilon_true=inputs.measured_species.epsilon,
-        K_true=10.0**inputs.measured_species.log_beta,
+        K_true=bench_K(inputs),
     )
     rows = global_fit_jacobian(inputs.reaction, inputs.instrument, layout)
     return GlobalFitObjective(rows, candidates.u_absorbance**2, np.array(standards, dtype=np.int64))
+
+
+#: Nodes (in SDs of the prior of log10 K) and weights of the three-point Gauss-Hermite rule
+#: for the mean over a normal prior: exact for polynomials up to degree 5 (Abramowitz and
+#: Stegun, Handbook of Mathematical Functions, 1964, 25.4.46, from memory).
+PRIOR_NODES = (-math.sqrt(3.0), 0.0, math.sqrt(3.0))
+PRIOR_WEIGHTS = (1.0 / 6.0, 2.0 / 3.0, 1.0 / 6.0)
+
+
+def _prior_reactions(inputs: PlanInputs) -> list[tuple[float, PlanInputs]]:
+    """(shift of log10 K, the plan with the measured constant shifted) at each prior node."""
+    sd = inputs.measured_species.log_beta_sd
+    result = []
+    for node in PRIOR_NODES:
+        shift = node * sd
+        species = list(inputs.reaction.species)
+        measured = species[inputs.measured]
+        species[inputs.measured] = dataclasses.replace(measured, log_beta=measured.log_beta + shift)
+        reaction = dataclasses.replace(inputs.reaction, species=tuple(species))
+        result.append((shift, dataclasses.replace(inputs, reaction=reaction)))
+    return result
+
+
+class MeanSquaredErrorObjective(MeanKObjective):
+    """Predicted root mean squared error of the all-bound mean K, relative, over a prior of K.
+
+    Notes
+    -----
+    MSE = bias^2 + variance (the mean squared error of an estimator; e.g. Casella and Berger,
+    Statistical Inference, 2nd ed., 2002, section 7.3.1, from memory). The variance is the
+    :class:`MeanKObjective`'s (heteroscedastic reading noise, stocks and deliveries of the
+    tests, the shared eps). The bias of the mean K is the mean over the tests of each test's
+    relative error on noise-free readings, with eps from the chosen standards on their own
+    noise-free readings: the all-bound assumption's bias, which the variance alone ignores
+    and which grows as tests crowd the top of the window. K itself is uncertain before the
+    class measures it (``log_beta_sd`` of the measured species), and the bias depends on it;
+    the objective takes the mean of the squared bias over a normal prior of log10 K by the
+    three-point Gauss-Hermite rule (:data:`PRIOR_NODES`): the expected MSE a class meets
+    ("pseudo-Bayesian" design; Chaloner and Verdinelli, Statistical Science 10 (1995) 273-304,
+    from memory). The mean, not the worst case: a normal prior has no worst case, and over a
+    truncated range the worst case designs for a tail alone, at the cost of the likely K.
+
+    Parameters
+    ----------
+    epsilon_relative_u
+        u(eps)/eps of the standard curve [unitless].
+    bias
+        Relative bias each candidate's K would add to the mean, per prior node, shape
+        (n_nodes, n_candidates); inf where the candidate gives no K.
+    """
+
+    def __init__(self, epsilon_relative_u: float, bias: NDArray[np.float64]) -> None:
+        super().__init__(epsilon_relative_u)
+        self.bias = bias
+        self.weights = np.array(PRIOR_WEIGHTS)
+
+    def combine_mse(
+        self,
+        sum_own_squared: NDArray[np.float64],
+        sum_sensitivity: NDArray[np.float64],
+        sum_bias: NDArray[np.float64],
+        n: int,
+    ) -> NDArray[np.float64]:
+        """sqrt(variance + mean over the prior of bias^2); ``sum_bias`` has the nodes first."""
+        base = self.combine(sum_own_squared, sum_sensitivity, n)
+        mean_square = np.tensordot(self.weights, (sum_bias / n) ** 2, axes=1)
+        with np.errstate(invalid="ignore"):
+            result: NDArray[np.float64] = np.sqrt(base**2 + mean_square)
+        return np.where(np.isfinite(result), result, np.inf)
+
+    def __call__(
+        self, inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
+    ) -> float:
+        own = per_mixture_relative_u_K(inputs, candidates, indices)
+        sensitivity = _x_sensitivity(inputs, candidates, indices)
+        n = max(len(indices), 1)
+        return float(
+            self.combine_mse(
+                np.array(np.sum(own**2)),
+                np.array(np.sum(sensitivity)),
+                self.bias[:, indices].sum(axis=1),
+                n,
+            )
+        )
+
+
+def mse_objective(
+    inputs: PlanInputs,
+    candidates: CandidateSet,
+    standards: Sequence[int],
+    blank: int,
+    epsilon_relative_u: float,
+) -> MeanSquaredErrorObjective:
+    """The MSE objective of the all-bound analysis for tests beside these standards: each
+    candidate's relative bias at every prior node (see :class:`MeanSquaredErrorObjective`)."""
+    ev = candidates.evaluation
+    components = inputs.reaction.components
+    limiting = components.index(inputs.design.limiting)
+    excess = components.index(inputs.excess) if inputs.excess is not None else limiting
+    b = inputs.instrument.path_length_cm
+    rows = np.array(standards, dtype=np.int64)
+    bias = np.full((len(PRIOR_NODES), candidates.size), np.inf)
+    k_bench = bench_K(inputs)
+    for node, (shift, shifted) in enumerate(_prior_reactions(inputs)):
+        readings = (
+            ev.absorbance
+            if shift == 0.0
+            else predict_readings(shifted.reaction, inputs.instrument, ev.total_M).absorbance
+        )
+        net = readings - (readings[blank] if blank >= 0 else 0.0)
+        if not rows.size:
+            continue
+        epsilon = all_bound_epsilon(ev.total_M[rows, limiting][None, :], net[rows][None, :], b)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            k = np.asarray(
+                all_bound_K(epsilon[0], ev.total_M[:, excess], ev.total_M[:, limiting], net, b),
+                dtype=float,
+            ).reshape(-1)
+            relative = k / (k_bench * 10.0**shift) - 1.0
+        bias[node] = np.where(np.isfinite(relative) & (k > 0), relative, np.inf)
+    return MeanSquaredErrorObjective(epsilon_relative_u, bias)
+
+
+class RobustGlobalFitObjective:
+    """The global fit's predicted relative RMS error over a prior of K.
+
+    The global fit is consistent: on noise-free readings it returns the plan's K, so to first
+    order its MSE is its variance (:class:`GlobalFitObjective`), which depends on K through
+    the design's sensitivities. The objective is sqrt of the variance's mean over the normal
+    prior of log10 K (the three-point rule of :data:`PRIOR_NODES`; the mean rather than the
+    worst case, as in :class:`MeanSquaredErrorObjective`).
+    """
+
+    def __init__(self, nodes: Sequence[GlobalFitObjective]) -> None:
+        self.nodes = list(nodes)
+        self.weights = PRIOR_WEIGHTS
+
+    def _mean(self, values: Sequence[NDArray[np.float64]]) -> NDArray[np.float64]:
+        variance = sum(w * v**2 for w, v in zip(self.weights, values, strict=True))
+        result: NDArray[np.float64] = np.sqrt(np.asarray(variance, dtype=float))
+        return result
+
+    def own(self, indices: NDArray[np.int64]) -> NDArray[np.float64]:
+        """Each candidate's score with the standards alone beside it."""
+        return self._mean([node.own(indices) for node in self.nodes])
+
+    def swaps_within(self, pool: NDArray[np.int64]) -> Callable[[list[int]], NDArray[np.float64]]:
+        """Scores of every single swap of members given as positions in ``pool``."""
+        per_node = [node.swaps_within(pool) for node in self.nodes]
+
+        def swaps(members: list[int]) -> NDArray[np.float64]:
+            return self._mean([f(members) for f in per_node])
+
+        return swaps
+
+    def __call__(
+        self, inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
+    ) -> float:
+        return float(self._mean([np.array(n(inputs, candidates, indices)) for n in self.nodes]))
+
+
+def robust_global_fit_objective(
+    inputs: PlanInputs, candidates: CandidateSet, standards: tuple[int, ...], blank: int
+) -> RobustGlobalFitObjective:
+    """:func:`global_fit_objective` at every node of the prior of K."""
+    return RobustGlobalFitObjective(
+        [
+            global_fit_objective(shifted, candidates, standards, blank)
+            for _, shifted in _prior_reactions(inputs)
+        ]
+    )
 
 
 def _x_sensitivity(
@@ -283,6 +472,33 @@ def _mean_K_swaps(
             rows.append(
                 objective.combine(
                     np.sum(own[others] ** 2) + own**2, np.sum(sensitivity[others]) + sensitivity, n
+                )
+            )
+        return np.array(rows)
+
+    return swaps
+
+
+def _mse_swaps(
+    objective: MeanSquaredErrorObjective,
+    pool: NDArray[np.int64],
+    own: NDArray[np.float64],
+    sensitivity: NDArray[np.float64],
+) -> Callable[[list[int]], NDArray[np.float64]]:
+    """Scores of every single swap of a set for the MSE objective (see _swap_search)."""
+    bias = objective.bias[:, pool]
+
+    def swaps(members: list[int]) -> NDArray[np.float64]:
+        n = len(members)
+        rows = []
+        for slot in range(n):
+            others = members[:slot] + members[slot + 1 :]
+            rows.append(
+                objective.combine_mse(
+                    np.sum(own[others] ** 2) + own**2,
+                    np.sum(sensitivity[others]) + sensitivity,
+                    bias[:, others].sum(axis=1)[:, None] + bias,
+                    n,
                 )
             )
         return np.array(rows)
@@ -333,7 +549,7 @@ def _own(
     objective: Objective,
 ) -> NDArray[np.float64]:
     """Each candidate's own score, to rank the pool: u(K)/K it gives beside the standards."""
-    if isinstance(objective, GlobalFitObjective):
+    if isinstance(objective, (GlobalFitObjective, RobustGlobalFitObjective)):
         return objective.own(indices)
     return per_mixture_relative_u_K(inputs, candidates, indices)
 
@@ -401,6 +617,14 @@ def choose_tests(
         # The shared molar-absorptivity term favours tests with a small d ln K/d ln x.
         sensitivity = _x_sensitivity(inputs, candidates, indices)
         pool = np.concatenate([pool, indices[np.argsort(sensitivity, kind="stable")[:100]]])
+    if isinstance(objective, MeanSquaredErrorObjective):
+        # The bias term favours tests whose own bias is small, over the whole prior; taken
+        # per tenth of bound fraction so the span can still be met (the bias grows with it).
+        mean_square = np.tensordot(objective.weights, objective.bias[:, indices] ** 2, axes=1)
+        for tenth in range(10):
+            band = indices[(fraction[indices] * 10).astype(int) == tenth]
+            square = mean_square[(fraction[indices] * 10).astype(int) == tenth]
+            pool = np.concatenate([pool, band[np.argsort(square, kind="stable")[:30]]])
     # Make sure the extremes of bound fraction are reachable for the span constraint.
     extremes = indices[np.argsort(fraction[indices], kind="stable")]
     pool = np.unique(np.concatenate([pool, extremes[:20], extremes[-20:]]))
@@ -452,10 +676,14 @@ def choose_tests(
         best = (objective(inputs, candidates, chosen), chosen)
     value, chosen = best
     swaps: Callable[[list[int]], NDArray[np.float64]] | None = None
-    if isinstance(objective, MeanKObjective):
+    if isinstance(objective, MeanSquaredErrorObjective):
+        sensitivity_pool = _x_sensitivity(inputs, candidates, by_fraction)
+        own_variance = per_mixture_relative_u_K(inputs, candidates, by_fraction)
+        swaps = _mse_swaps(objective, by_fraction, own_variance, sensitivity_pool)
+    elif isinstance(objective, MeanKObjective):
         sensitivity_pool = _x_sensitivity(inputs, candidates, by_fraction)
         swaps = _mean_K_swaps(objective, own_pool, sensitivity_pool)
-    elif isinstance(objective, GlobalFitObjective):
+    elif isinstance(objective, (GlobalFitObjective, RobustGlobalFitObjective)):
         swaps = objective.swaps_within(by_fraction)
 
     if swaps is not None and count > 1 and starts:

@@ -17,6 +17,7 @@ from numpy.typing import NDArray
 
 from planner.analysis import Layout, all_bound_mean_K
 from planner.chem.assumption import LARGEST_DISSOLVED_M, checked_round_down, checked_round_up
+from planner.chem.constants import bench_K
 from planner.design.candidates import CandidateSet, candidate_set
 from planner.design.logistics import preparations, stock_totals
 from planner.design.mixtures import (
@@ -25,10 +26,13 @@ from planner.design.mixtures import (
     choose_tests,
     global_fit_objective,
     mean_K_objective,
+    mse_objective,
+    robust_global_fit_objective,
 )
 from planner.design.standards import StandardsChoice, choose_standards
 from planner.errors import PlannerError
 from planner.inputs import PlanInputs
+from planner.lab.bench import reading_sd
 from planner.result import Addition, Check, Delivery, Mixture, Role, StockPreparation, Totals
 
 __all__ = ["Design", "design_recipes", "mixture_from_candidate"]
@@ -263,14 +267,17 @@ def _epsilon_relative_u(
 ) -> float:
     """u(eps)/eps of a standard curve through the origin from reading noise alone.
 
-    eps = sum c A / (b sum c^2) gives u(eps) = u(A) sqrt(sum c^2) / (b sum c^2) (GUM,
-    JCGM 100:2008, eq. 10), so u(eps)/eps = u(A) / sqrt(sum A_i^2) for readings A_i = eps b c_i.
+    eps = sum c A / (b sum c^2) gives u(eps) = sqrt(sum c_i^2 u_i^2) / (b sum c^2) (GUM,
+    JCGM 100:2008, eq. 10), so u(eps)/eps = sqrt(sum A_i^2 u_i^2) / sum A_i^2 for readings
+    A_i = eps b c_i, u_i the heteroscedastic reading noise (:func:`planner.lab.bench.reading_sd`).
     """
     if not standards:
         return 0.0
-    readings = candidates.evaluation.true_absorbance[np.array(standards)]
-    total = float(np.sqrt(np.sum(readings**2)))
-    return inputs.instrument.absorbance_sd / total if total > 0 else 0.0
+    rows = np.array(standards)
+    readings = candidates.evaluation.true_absorbance[rows]
+    u_read = reading_sd(inputs.instrument, inputs.bench, candidates.evaluation.absorbance[rows])
+    total = float(np.sum(readings**2))
+    return float(np.sqrt(np.sum((readings * u_read) ** 2))) / total if total > 0 else 0.0
 
 
 def design_recipes(
@@ -329,9 +336,16 @@ def design_recipes(
     ]
     if np.isfinite(tests.objective):
         of_what = "of the mean K" if analysis == "all-bound" else "of the global fit's K"
+        if inputs.design.criterion == "mse" and objective is None:
+            what = (
+                f"the predicted root mean squared error {of_what}, bias included, averaged "
+                "over the uncertainty of the expected K"
+            )
+        else:
+            what = f"the predicted u(K)/K {of_what}"
         notes.append(
-            f"Test mixtures chosen to minimise the predicted u(K)/K {of_what} among "
-            f"{tests.eligible} eligible mixtures (the answer key gives the resulting u(K))."
+            f"Test mixtures chosen to minimise {what} among {tests.eligible} eligible "
+            "mixtures (the answer key gives the resulting u(K))."
         )
     else:
         notes.append("No test mixture met the window and bound-fraction constraints.")
@@ -382,8 +396,11 @@ def _tests_for_analysis(
     binds = f"the standards bind at least {100 * floor:.1f} % of {design.limiting}"
     reason = _all_bound_inapplicable(inputs, candidates, standards.standards)
     if design.analysis == "all-bound" and reason is None:
-        chosen = objective or mean_K_objective(
-            _epsilon_relative_u(inputs, candidates, standards.standards)
+        epsilon_u = _epsilon_relative_u(inputs, candidates, standards.standards)
+        chosen = objective or (
+            mse_objective(inputs, candidates, standards.standards, standards.blank, epsilon_u)
+            if design.criterion == "mse"
+            else mean_K_objective(epsilon_u)
         )
         tests = choose_tests(inputs, candidates, exclude=used, objective=chosen, allowed=allowed)
         error = _all_bound_error(inputs, candidates, standards, tests.tests)
@@ -407,8 +424,10 @@ def _tests_for_analysis(
                 if error is not None
                 else f"its K has no value on this shelf ({binds})"
             )
-    fit = objective or global_fit_objective(
-        inputs, candidates, standards.standards, standards.blank
+    fit = objective or (
+        robust_global_fit_objective(inputs, candidates, standards.standards, standards.blank)
+        if design.criterion == "mse"
+        else global_fit_objective(inputs, candidates, standards.standards, standards.blank)
     )
     tests = choose_tests(inputs, candidates, exclude=used, objective=fit, allowed=allowed)
     error = _all_bound_error(inputs, candidates, standards, tests.tests)
@@ -494,7 +513,7 @@ def _all_bound_error(
         excess=components.index(inputs.excess),
         measured=inputs.measured,
         epsilon_true=inputs.measured_species.epsilon,
-        K_true=10.0**inputs.measured_species.log_beta,
+        K_true=bench_K(inputs),
     )
     readings = ev.absorbance[rows]
     net = readings - (readings[:n_blank].mean() if n_blank else 0.0)

@@ -13,14 +13,17 @@ import difflib
 import math
 import re
 from collections.abc import Sequence
+from dataclasses import replace
 
 from planner.errors import InvalidInputError, shown
 from planner.fileio.problems import NO_VALUE, fail
 from planner.inputs import (
     DEVICE_KINDS,
+    Bench,
     DesignSettings,
     Device,
     Instrument,
+    IonicMedium,
     PlanInputs,
     ProductSpecies,
     Reaction,
@@ -29,11 +32,13 @@ from planner.inputs import (
     Stock,
     measured_species_index,
 )
+from planner.lab.bench import PRESETS
 from planner.planfile.schema import (
     CLASSLESS_KINDS,
     DELIVERING_KINDS,
     GRADUATED_KINDS,
     MAX_READINGS,
+    BenchModel,
     DesignModel,
     GlasswareModel,
     InstrumentModel,
@@ -75,6 +80,8 @@ def plan_inputs(plan: PlanModel) -> PlanInputs:
     stocks = _stocks(plan.stocks, reaction.components)
     devices = _glassware(plan.glassware)
     design = _design(plan.design, reaction.components, stocks, devices)
+    if design.ionic_medium is not None:
+        stocks = _in_medium(stocks, design.ionic_medium)
     # After the design: a limiting reagent in no stock gets its own, more telling message.
     _check_supplied(reaction.components, stocks)
     _check_species_use(reaction, stocks, design.limiting)
@@ -91,7 +98,8 @@ def plan_inputs(plan: PlanModel) -> PlanInputs:
             "a mixture must fill the cuvette: raise the total volume or lower the fill",
         )
     session = _session(plan.session)
-    return PlanInputs(plan.title, reaction, instrument, stocks, devices, design, session)
+    bench = _bench(plan.bench)
+    return PlanInputs(plan.title, reaction, instrument, stocks, devices, design, session, bench)
 
 
 def _format_size(value: float) -> str:
@@ -241,6 +249,10 @@ def _reaction(model: ReactionModel) -> Reaction:
                 formula=dict(entry.formula),
                 log_beta=float(log_beta),
                 epsilon=float(entry.epsilon),
+                enthalpy_kJ_mol=(
+                    None if entry.enthalpy_kJ_mol is None else float(entry.enthalpy_kJ_mol)
+                ),
+                log_beta_sd=float(entry.log_beta_sd),
             )
         )
 
@@ -259,6 +271,7 @@ def _reaction(model: ReactionModel) -> Reaction:
         components=components,
         species=tuple(species),
         component_epsilon={name: float(eps) for name, eps in model.component_epsilon.items()},
+        sit_delta_epsilon_kg_mol=float(model.sit_delta_epsilon_kg_mol),
     )
 
 
@@ -271,6 +284,8 @@ def _instrument(model: InstrumentModel) -> Instrument:
         absorbance_sd=float(model.absorbance_sd),
         stray_light=float(model.stray_light),
         cuvette_fill_mL=float(model.cuvette_fill_mL),
+        absorbance_rsd=float(model.absorbance_rsd),
+        transmittance_sd=float(model.transmittance_sd),
     )
 
 
@@ -654,6 +669,15 @@ def _design(
         measured_species=model.measured_species,
         analysis=model.analysis,
         K_bias_tolerance=float(model.K_bias_tolerance),
+        criterion=model.criterion,
+        ionic_medium=(
+            None
+            if model.ionic_medium is None
+            else IonicMedium(
+                salt=model.ionic_medium.salt,
+                ionic_strength_M=float(model.ionic_medium.ionic_strength_M),
+            )
+        ),
     )
 
 
@@ -739,4 +763,71 @@ def _session(model: SessionModel) -> SessionSettings:
         replicates=model.replicates,
         margin=float(model.margin),
         dead_volume_mL=float(model.dead_volume_mL),
+        temperature_C=None if model.temperature_C is None else float(model.temperature_C),
     )
+
+
+def _bench(model: BenchModel | None) -> Bench:
+    """The bench model: the preset's values with the plan file's overrides; none is ideal."""
+    if model is None:
+        return Bench()
+    preset = PRESETS[model.technique]
+
+    def value(name: str) -> float:
+        given = getattr(model, name)
+        return float(getattr(preset, name) if given is None else given)
+
+    return Bench(
+        technique=model.technique,
+        buret_reading_sd_mL=value("buret_reading_sd_mL"),
+        pipette_rsd=value("pipette_rsd"),
+        piston_rsd=value("piston_rsd"),
+        cuvette_rsd=value("cuvette_rsd"),
+        blank_offset_sd=value("blank_offset_sd"),
+        temperature_sd_C=value("temperature_sd_C"),
+    )
+
+
+def _in_medium(stocks: Sequence[Stock], medium: IonicMedium) -> tuple[Stock, ...]:
+    """Every stock with the inert salt that brings it to the medium's ionic strength.
+
+    Ionic strength is linear in the concentrations, so a mixture of stocks that all have
+    ionic strength I has I too (before the complex forms). Each stock's own I counts the
+    counter-ions that make it neutral (:func:`planner.chem.species.neutralised`); the salt
+    adds 1/2 sum nu z^2 per mol/L (1 for a 1:1 salt).
+    """
+    from planner.chem.activity import INERT_SALTS
+    from planner.chem.species import charge_from_name, ionic_strength_M, neutralised
+
+    ions = INERT_SALTS[medium.salt]
+    per_mol = 0.5 * sum(n * charge_from_name(ion) ** 2 for ion, n in ions.items())
+    salted = []
+    for index, stock in enumerate(stocks):
+        own_ions = neutralised(stock.contains_M)
+        own = float(
+            ionic_strength_M(
+                [own_ions[n] for n in own_ions], [charge_from_name(n) for n in own_ions]
+            )
+        )
+        if own > medium.ionic_strength_M * (1.0 + 1e-9):
+            fail(
+                "design.ionic_medium.ionic_strength_M",
+                f"stock {stock.id!r} alone already has ionic strength {own:.4g} mol/L, above "
+                "the target, so no salt can bring every mixture to it",
+                medium.ionic_strength_M,
+                f"raise the target to at least {own:.4g} mol/L, or make stocks[{index}] "
+                "more dilute",
+            )
+        salt_M = max(medium.ionic_strength_M - own, 0.0) / per_mol
+        contains = dict(stock.contains_M)
+        for ion, n in ions.items():
+            contains[ion] = contains.get(ion, 0.0) + n * salt_M
+        salted.append(
+            replace(
+                stock,
+                contains_M=contains,
+                medium_salt_M=salt_M,
+                plan_contains_M=dict(stock.contains_M),
+            )
+        )
+    return tuple(salted)

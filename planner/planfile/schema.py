@@ -27,9 +27,11 @@ __all__ = [
     "MAX_SPECIES",
     "MAX_STOCKS",
     "MIN_PURITY",
+    "BenchModel",
     "DesignModel",
     "GlasswareModel",
     "InstrumentModel",
+    "IonicMediumModel",
     "PlanModel",
     "ReactionModel",
     "SessionModel",
@@ -124,6 +126,18 @@ class SpeciesModel(_Model):
         le=EPSILON_LIMIT,
         description="the molar absorptivity [L mol-1 cm-1] at the wavelength, 0 to 1e7",
     )
+    log_beta_sd: float = Field(
+        0.1,
+        ge=0,
+        le=3,
+        description="the standard uncertainty of log_beta before the experiment, 0 to 3",
+    )
+    enthalpy_kJ_mol: float | None = Field(
+        None,
+        ge=-500,
+        le=500,
+        description="the standard reaction enthalpy of the formation [kJ/mol], -500 to 500",
+    )
 
 
 class ReactionModel(_Model):
@@ -144,6 +158,13 @@ class ReactionModel(_Model):
         min_length=1,
         max_length=MAX_SPECIES,
         description="one [[reaction.species]] table per product species (at most 30)",
+    )
+    sit_delta_epsilon_kg_mol: float = Field(
+        0.0,
+        ge=-5,
+        le=5,
+        description="the SIT interaction coefficient of the formation, products minus "
+        "reagents [kg/mol], -5 to 5",
     )
     component_epsilon: dict[str, Annotated[float, Field(ge=0, le=EPSILON_LIMIT)]] = Field(
         default_factory=dict,
@@ -177,6 +198,20 @@ class InstrumentModel(_Model):
     )
     cuvette_fill_mL: float = Field(
         3.0, gt=0, description="the volume that fills the cuvette [mL], > 0"
+    )
+    absorbance_rsd: float = Field(
+        0.0,
+        ge=0,
+        lt=0.5,
+        description="the reading's standard deviation proportional to A, 0 <= r < 0.5 "
+        "(0.005 = 0.5 % of the reading)",
+    )
+    transmittance_sd: float = Field(
+        0.0,
+        ge=0,
+        lt=0.1,
+        description="the standard deviation of the transmittance reading, constant in T, "
+        "0 <= sigma_T < 0.1",
     )
 
 
@@ -261,6 +296,17 @@ class GlasswareModel(_Model):
     )
 
 
+class IonicMediumModel(_Model):
+    """``design.ionic_medium``: an inert salt added to every stock up to one ionic strength."""
+
+    salt: Literal["NaNO3", "KNO3", "NaClO4", "LiClO4"] = Field(
+        description='the inert salt, one of "NaNO3", "KNO3", "NaClO4", "LiClO4"'
+    )
+    ionic_strength_M: float = Field(
+        gt=0, le=6, description="the ionic strength of every stock [mol/L], > 0 and at most 6"
+    )
+
+
 class DesignModel(_Model):
     """The ``[design]`` table: what mixtures to design."""
 
@@ -319,6 +365,14 @@ class DesignModel(_Model):
         lt=1,
         description="the largest relative error in K the all-bound analysis may carry, 0 to 1",
     )
+    criterion: Literal["mse", "variance"] = Field(
+        "mse", description='what the test design minimises, "mse" or "variance"'
+    )
+    ionic_medium: IonicMediumModel | None = Field(
+        None,
+        description='a table { salt = "NaNO3", ionic_strength_M = 3.0 } that brings every '
+        "stock to one ionic strength",
+    )
 
 
 class SessionModel(_Model):
@@ -345,6 +399,48 @@ class SessionModel(_Model):
         le=1000,
         description="the unusable volume per stock and dispensing device [mL], 0 to 1000",
     )
+    temperature_C: float | None = Field(
+        None,
+        ge=0,
+        le=100,
+        description="the room's temperature at the benches [°C], 0 to 100",
+    )
+
+
+class BenchModel(_Model):
+    """The ``[bench]`` table: the technique preset and any of its terms overridden."""
+
+    technique: Literal["calibrated", "practised", "novice"] = Field(
+        "practised",
+        description='one of "calibrated", "practised", "novice"',
+    )
+    buret_reading_sd_mL: float | None = Field(
+        None, ge=0, le=1, description="the SD of one buret reading [mL], 0 to 1"
+    )
+    pipette_rsd: float | None = Field(
+        None, ge=0, lt=0.5, description="the relative SD of a pipette's delivery, 0 to 0.5"
+    )
+    piston_rsd: float | None = Field(
+        None,
+        ge=0,
+        lt=0.5,
+        description="the relative SD of a piston pipette's delivery, 0 to 0.5",
+    )
+    cuvette_rsd: float | None = Field(
+        None,
+        ge=0,
+        lt=0.5,
+        description="the relative SD of a reading from cuvette path and placement, 0 to 0.5",
+    )
+    blank_offset_sd: float | None = Field(
+        None,
+        ge=0,
+        lt=1,
+        description="the SD of the blank cuvette's offset [absorbance units], 0 to 1",
+    )
+    temperature_sd_C: float | None = Field(
+        None, ge=0, le=20, description="the SD of a bench's temperature [°C], 0 to 20"
+    )
 
 
 class PlanModel(_Model):
@@ -363,3 +459,6 @@ class PlanModel(_Model):
     )
     design: DesignModel = Field(description="a [design] table")
     session: SessionModel = Field(default_factory=SessionModel, description="a [session] table")
+    bench: BenchModel | None = Field(
+        None, description="a [bench] table (none: the glassware's tolerances only)"
+    )

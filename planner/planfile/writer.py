@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from planner.inputs import Device, PlanInputs, Stock
+from planner.inputs import Bench, Device, PlanInputs, Stock
 from planner.planfile.schema import CLASSLESS_KINDS, DELIVERING_KINDS, GRADUATED_KINDS
 
 __all__ = ["plan_to_mapping"]
@@ -44,10 +44,17 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
                     "formula": dict(sp.formula),
                     "log_beta": sp.log_beta,
                     "epsilon": sp.epsilon,
+                    "log_beta_sd": sp.log_beta_sd,
+                    **(
+                        {"enthalpy_kJ_mol": sp.enthalpy_kJ_mol}
+                        if sp.enthalpy_kJ_mol is not None
+                        else {}
+                    ),
                 }
                 for sp in reaction.species
             ],
             "component_epsilon": dict(reaction.component_epsilon),
+            "sit_delta_epsilon_kg_mol": reaction.sit_delta_epsilon_kg_mol,
         },
         "instrument": {
             "wavelength_nm": instrument.wavelength_nm,
@@ -56,6 +63,8 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
             "absorbance_sd": instrument.absorbance_sd,
             "stray_light": instrument.stray_light,
             "cuvette_fill_mL": instrument.cuvette_fill_mL,
+            "absorbance_rsd": instrument.absorbance_rsd,
+            "transmittance_sd": instrument.transmittance_sd,
         },
         "stocks": [_stock_mapping(stock) for stock in inputs.stocks],
         "glassware": [_device_mapping(device) for device in inputs.glassware],
@@ -72,6 +81,17 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
             "blanks": design.blanks,
             "analysis": design.analysis,
             "K_bias_tolerance": design.K_bias_tolerance,
+            "criterion": design.criterion,
+            **(
+                {
+                    "ionic_medium": {
+                        "salt": design.ionic_medium.salt,
+                        "ionic_strength_M": design.ionic_medium.ionic_strength_M,
+                    }
+                }
+                if design.ionic_medium is not None
+                else {}
+            ),
             **(
                 {"measured_species": design.measured_species}
                 if design.measured_species is not None
@@ -84,7 +104,30 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
             "replicates": session.replicates,
             "margin": session.margin,
             "dead_volume_mL": session.dead_volume_mL,
+            **(
+                {"temperature_C": session.temperature_C}
+                if session.temperature_C is not None
+                else {}
+            ),
         },
+        **_bench_mapping(inputs.bench),
+    }
+
+
+def _bench_mapping(bench: Bench) -> dict[str, Any]:
+    """The ``[bench]`` table with every term written out; none for an ideal bench."""
+    if bench.technique == "none":
+        return {}
+    return {
+        "bench": {
+            "technique": bench.technique,
+            "buret_reading_sd_mL": bench.buret_reading_sd_mL,
+            "pipette_rsd": bench.pipette_rsd,
+            "piston_rsd": bench.piston_rsd,
+            "cuvette_rsd": bench.cuvette_rsd,
+            "blank_offset_sd": bench.blank_offset_sd,
+            "temperature_sd_C": bench.temperature_sd_C,
+        }
     }
 
 
@@ -98,7 +141,9 @@ def _stock_mapping(stock: Stock) -> dict[str, Any]:
         }
     return {
         "id": stock.id,
-        "contains_M": dict(stock.contains_M),
+        "contains_M": dict(
+            stock.plan_contains_M if stock.plan_contains_M is not None else stock.contains_M
+        ),
         "relative_uncertainty": stock.relative_uncertainty,
         "available_mL": stock.available_mL,
         "solid": solid,

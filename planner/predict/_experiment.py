@@ -26,8 +26,21 @@ Error model of one bench's set of mixtures (the same in both methods)
 - **Volumetric flasks** as vessels: every mixture is made up in its own flask, so the flask's
   volume error is independent per mixture, triangular with u = a/sqrt(6); the diluent "to the
   mark" is not a measured delivery.
-- **Readings**: independent normal noise with standard deviation ``instrument.absorbance_sd``
-  per reading, blank included.
+- **Technique** (the plan's ``[bench]``, :func:`planner.lab.bench.technique_sd_mL`): one
+  normal error per delivery, independent, beside the device's own (two buret readings, a
+  pipette's drainage, a piston pipette's handling).
+- **Readings**: independent normal noise per reading, blank included, with the
+  heteroscedastic standard deviation of :func:`planner.lab.bench.reading_sd` at the
+  predicted reading (floor, proportional and constant-transmittance terms, and the cuvette's
+  placement).
+- **Blank cuvette**: one normal offset per bench, ``bench.blank_offset_sd``, on the blank
+  readings (the samples are read in another cuvette), shared by every blank.
+- **Room temperature**: one normal deviation per bench, ``bench.temperature_sd_C``, from the
+  benches' temperature; it moves every constant that has an enthalpy by van 't Hoff
+  (:mod:`planner.chem.thermodynamics`), and so every reading of the bench at once.
+- **Stocks are one batch for the class**: the prep room makes each stock once, so its error
+  is common to every bench of the class; the Monte Carlo draws it once per class and reports
+  the class-common spread apart from the bench-to-bench spread.
 
 A bench with several pieces of one device id is modelled as using one piece throughout (the
 conservative choice for one-mark devices: their errors then all correlate).
@@ -43,8 +56,11 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.analysis import Layout
+from planner.chem.constants import bench_K
 from planner.errors import InvalidInputError
+from planner.forward import predict_readings
 from planner.inputs import Device, PlanInputs
+from planner.lab.bench import reading_sd, technique_sd_mL
 from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
 from planner.result import ROLES, Mixture, Role
 
@@ -53,6 +69,7 @@ __all__ = [
     "Delivery",
     "bench_experiment",
     "delivery_split_mL",
+    "reading_per_kelvin",
     "triangular_half_width",
 ]
 
@@ -82,6 +99,8 @@ class Delivery:
     random_is_normal
         True when the random error is normal (a standard deviation, piston pipettes), False
         when triangular (a tolerance, graduated glassware).
+    u_technique_mL
+        Standard deviation of the technique's error of this delivery (normal, its own) [mL].
     """
 
     mixture: int
@@ -90,6 +109,7 @@ class Delivery:
     u_systematic_mL: float
     u_random_mL: float
     random_is_normal: bool
+    u_technique_mL: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -136,8 +156,20 @@ class BenchExperiment:
         (n_mixtures,) [unitless].
     path_length_cm
         Cuvette path length [cm].
-    absorbance_sd
-        Standard deviation of one reading [unitless].
+    reading_sd
+        Standard deviation of each mixture's reading at its predicted value, shape
+        (n_mixtures,) [unitless].
+    blank_offset_sd
+        Standard deviation of the blank cuvette's offset, one per bench [unitless].
+    temperature_C
+        The benches' temperature [°C] (the session's, else the constants').
+    temperature_sd_C
+        Standard deviation of one bench's temperature about it [°C]; 0 when no species gives
+        an enthalpy (the constants then do not move with temperature).
+    reading_per_kelvin
+        d(reading)/dT of each mixture at its nominal composition, shape (n_mixtures,) [1/K]:
+        the van 't Hoff shift of the constants read through the equilibrium and the
+        photometer (central difference, step 0.01 K).
     stray_light
         Stray-light fraction [unitless].
     """
@@ -158,7 +190,11 @@ class BenchExperiment:
     layout: Layout
     readings: NDArray[np.float64]
     path_length_cm: float
-    absorbance_sd: float
+    reading_sd: NDArray[np.float64]
+    blank_offset_sd: float
+    temperature_C: float
+    temperature_sd_C: float
+    reading_per_kelvin: NDArray[np.float64]
     stray_light: float
 
 
@@ -271,7 +307,12 @@ def bench_experiment(
             volumes[row, column] += addition.volume_mL
             if in_flask and column == diluent:
                 continue  # to the mark: the flask's volume, not a measured delivery
-            for device_id in addition.devices:
+            volumes_each = (
+                [d.volume_mL for d in addition.deliveries]
+                if len(addition.deliveries) == len(addition.devices)
+                else [addition.volume_mL / max(len(addition.devices), 1)] * len(addition.devices)
+            )
+            for device_id, each_mL in zip(addition.devices, volumes_each, strict=True):
                 if device_id not in shelf:
                     raise InvalidInputError(
                         "device not on the shelf",
@@ -282,7 +323,8 @@ def bench_experiment(
                 u_sys, u_rand, normal = delivery_split_mL(shelf[device_id])
                 if u_sys > 0:
                     systematic.setdefault(device_id, u_sys)
-                deliveries.append(Delivery(row, column, device_id, u_sys, u_rand, normal))
+                u_tech = technique_sd_mL(inputs.bench, shelf[device_id], each_mL)
+                deliveries.append(Delivery(row, column, device_id, u_sys, u_rand, normal, u_tech))
     totals_volume = np.array([m.total_volume_mL for m in mixtures], dtype=float)
 
     species = reaction.species[inputs.measured]
@@ -299,7 +341,20 @@ def bench_experiment(
         excess=_excess_column(inputs, required=for_analysis),
         measured=inputs.measured,
         epsilon_true=float(species.epsilon),
-        K_true=float(10.0**species.log_beta),
+        K_true=bench_K(inputs),
+    )
+    readings = np.array([m.absorbance for m in mixtures], dtype=float)
+    temperature = (
+        inputs.session.temperature_C
+        if inputs.session.temperature_C is not None
+        else reaction.temperature_C
+    )
+    moves = bool(np.any(reaction.enthalpy_kJ_mol() != 0))
+    temperature_sd = inputs.bench.temperature_sd_C if moves else 0.0
+    per_kelvin = (
+        reading_per_kelvin(inputs, layout.totals_M, temperature)
+        if temperature_sd > 0
+        else np.zeros(len(mixtures))
     )
     return BenchExperiment(
         mixture_ids=tuple(m.id for m in mixtures),
@@ -316,11 +371,56 @@ def bench_experiment(
         systematic_devices=tuple(systematic),
         u_systematic_mL=np.array(list(systematic.values()), dtype=float),
         layout=layout,
-        readings=np.array([m.absorbance for m in mixtures], dtype=float),
+        readings=readings,
         path_length_cm=inputs.instrument.path_length_cm,
-        absorbance_sd=inputs.instrument.absorbance_sd,
+        reading_sd=reading_sd(inputs.instrument, inputs.bench, readings),
+        blank_offset_sd=inputs.bench.blank_offset_sd,
+        temperature_C=float(temperature),
+        temperature_sd_C=float(temperature_sd),
+        reading_per_kelvin=per_kelvin,
         stray_light=inputs.instrument.stray_light,
     )
+
+
+#: Step of the central difference in temperature [K]: the van 't Hoff shift is smooth, so
+#: the truncation error (~step^2) is negligible and the step far above rounding.
+_TEMPERATURE_STEP_K = 0.01
+
+
+def reading_per_kelvin(
+    inputs: PlanInputs,
+    totals_M: NDArray[np.float64],
+    temperature_C: float,
+    step_K: float = _TEMPERATURE_STEP_K,
+) -> NDArray[np.float64]:
+    """d(reading)/dT of mixtures at these totals, by a central difference [1/K].
+
+    Parameters
+    ----------
+    inputs
+        The plan (reaction with its enthalpies, instrument).
+    totals_M
+        Component totals, shape (n, n_components) [mol/L].
+    temperature_C
+        Temperature at which the slope is taken [°C].
+    step_K
+        Half-width of the difference [K]; the Monte Carlo uses the bench's temperature SD (a
+        secant across the spread).
+
+    Returns
+    -------
+    NDArray[np.float64]
+        Shape (n,).
+    """
+    reaction = inputs.reaction
+    up = predict_readings(
+        reaction.at_temperature(temperature_C + step_K), inputs.instrument, totals_M
+    ).absorbance
+    down = predict_readings(
+        reaction.at_temperature(temperature_C - step_K), inputs.instrument, totals_M
+    ).absorbance
+    result: NDArray[np.float64] = (up - down) / (2.0 * step_K)
+    return result
 
 
 def triangular_half_width(u: NDArray[np.float64]) -> NDArray[np.float64]:

@@ -5,15 +5,26 @@ distributions by a Monte Carlo method). A trial draws, per the error model of
 :mod:`planner.predict._experiment` (the same model the first-order budget of
 :mod:`planner.predict.uncertainty` uses):
 
-- one relative error per stock (normal, the prepared batch's ``relative_uncertainty``);
+- one relative error per stock (normal, the prepared batch's ``relative_uncertainty``),
+  drawn once per class: the prep room makes each stock once for the session, so its error
+  is common to every bench of the class (``session.sections`` x ``benches_per_section`` x
+  ``replicates`` benches; the trials are consecutive classes of that size);
 - one systematic error per one-mark device and per piston pipette, shared by every delivery
   it makes (triangular, u = a/sqrt(6)), and one random error per delivery by a graduated
   device (triangular) or piston pipette (normal, the ISO 8655-2 random limit);
+- one technique error per delivery (normal, :func:`planner.lab.bench.technique_sd_mL`);
 - one volume error per flask when the mixtures are made up in flasks (triangular);
 - the readings: the equilibria re-solved at the actual concentrations
   (:func:`planner.chem.equilibrium.solve_equilibrium` on trials x mixtures rows), read
   through the photometer's stray-light response at the plan's stray-light fraction, plus
-  normal noise of SD ``absorbance_sd``.
+  normal noise whose SD is :func:`planner.lab.bench.reading_sd` at the actual reading, and one
+  blank-cuvette offset per bench on the blank readings (normal, ``bench.blank_offset_sd``);
+- one temperature deviation per bench (normal, ``bench.temperature_sd_C``) when a constant
+  has an enthalpy: the readings move along the van 't Hoff secant across one SD either side.
+
+The spread of K is reported two ways besides the whole distribution
+(:class:`ClassSpread`): bench to bench inside a class (what a marker sees in one session)
+and of the class mean from class to class (what the common stocks move together).
 
 Every trial is then analysed from the recipe's nominal concentrations, as a class would, by
 the two analyses of :mod:`planner.analysis`:
@@ -51,9 +62,11 @@ from planner.analysis import (
 from planner.errors import InvalidInputError
 from planner.forward import predict_readings
 from planner.inputs import PlanInputs
+from planner.lab.bench import reading_sd
 from planner.predict._experiment import (
     BenchExperiment,
     bench_experiment,
+    reading_per_kelvin,
     triangular_half_width,
 )
 from planner.result import Mixture
@@ -63,6 +76,7 @@ __all__ = [
     "MAX_TRIALS",
     "MEMORY_BUDGET_BYTES",
     "AnalysisSummary",
+    "ClassSpread",
     "Simulation",
     "Summary",
     "coverage_interval",
@@ -117,6 +131,31 @@ class Summary:
 
 
 @dataclass(frozen=True, slots=True)
+class ClassSpread:
+    """K's spread split into its class-common and bench-to-bench parts.
+
+    Attributes
+    ----------
+    class_size
+        Benches per class (the session's sets), each class sharing one batch of stocks.
+    classes
+        Complete classes among the trials.
+    bench_sd
+        Pooled standard deviation of K inside a class: the bench-to-bench spread one
+        session shows [L/mol]; nan with benches of one per class.
+    class_mean_sd
+        Standard deviation of the class mean of K from class to class [L/mol]: the common
+        stocks plus the benches' spread divided by sqrt(class_size); nan with fewer than two
+        classes.
+    """
+
+    class_size: int
+    classes: int
+    bench_sd: float
+    class_mean_sd: float
+
+
+@dataclass(frozen=True, slots=True)
 class AnalysisSummary:
     """What one analysis of the virtual class reports.
 
@@ -126,10 +165,13 @@ class AnalysisSummary:
         Molar absorptivity of the coloured product [L mol⁻¹ cm⁻¹].
     K
         Formation constant (mean over the tests for the all-bound analysis) [L/mol].
+    K_spread
+        K's spread inside a class and of the class mean (:class:`ClassSpread`).
     """
 
     epsilon: Summary
     K: Summary
+    K_spread: ClassSpread | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -235,6 +277,7 @@ class _Draw:
     delivery_device: NDArray[np.int64]  # systematic device of each delivery, -1 for none
     a_systematic: NDArray[np.float64]  # triangular half-width per systematic device
     u_random: NDArray[np.float64]  # per delivery
+    u_technique: NDArray[np.float64]  # per delivery, normal
     random_normal: NDArray[np.bool_]  # per delivery
     a_flask: float
 
@@ -252,6 +295,7 @@ def _draw_arrays(ex: BenchExperiment) -> _Draw:
         delivery_device=device,
         a_systematic=triangular_half_width(ex.u_systematic_mL),
         u_random=np.array([d.u_random_mL for d in ex.deliveries], dtype=float),
+        u_technique=np.array([d.u_technique_mL for d in ex.deliveries], dtype=float),
         random_normal=np.array([d.random_is_normal for d in ex.deliveries], dtype=bool),
         a_flask=float(triangular_half_width(np.array(ex.u_flask_mL))),
     )
@@ -265,12 +309,18 @@ def _standard_triangular(rng: np.random.Generator, shape: tuple[int, ...]) -> ND
 
 
 def _simulate_readings(
-    inputs: PlanInputs, ex: BenchExperiment, draw: _Draw, n: int, rng: np.random.Generator
+    inputs: PlanInputs,
+    ex: BenchExperiment,
+    draw: _Draw,
+    stock_factor: NDArray[np.float64],
+    rng: np.random.Generator,
 ) -> NDArray[np.float64]:
-    """Draw n benches and return their readings, shape (n, n_mix) [unitless]."""
+    """Draw n benches, with the stock factors of their classes (shape (n, n_stocks)), and
+    return their readings, shape (n, n_mix) [unitless]."""
     n_mix, n_stocks = ex.volumes_mL.shape
-    # Draw order is fixed (reproducibility): stocks, devices, deliveries, flasks, readings.
-    stock_factor = 1.0 + ex.u_relative_stock * rng.standard_normal((n, n_stocks))
+    n = stock_factor.shape[0]
+    # Draw order is fixed (reproducibility): devices, deliveries, technique, flasks,
+    # readings, blank offsets.
     systematic = draw.a_systematic * _standard_triangular(rng, (n, draw.a_systematic.size))
     triangular = _standard_triangular(rng, (n, draw.u_random.size))
     normal = rng.standard_normal((n, draw.u_random.size))
@@ -279,6 +329,8 @@ def _simulate_readings(
         draw.u_random * normal,
         triangular_half_width(draw.u_random) * triangular,
     )
+    if np.any(draw.u_technique > 0):
+        random = random + draw.u_technique * rng.standard_normal((n, draw.u_technique.size))
     errors = random
     if systematic.shape[1]:
         shared = systematic[:, np.maximum(draw.delivery_device, 0)]
@@ -296,8 +348,41 @@ def _simulate_readings(
     amounts = np.einsum("tms,sj->tmj", volumes * stock_factor[:, None, :], ex.stock_M)
     totals = np.maximum(amounts / total[:, :, None], 0.0).reshape(n * n_mix, -1)
     readings = predict_readings(inputs.reaction, inputs.instrument, totals).absorbance
-    result: NDArray[np.float64] = readings.reshape(n, n_mix) + ex.absorbance_sd * noise
+    readings = readings.reshape(n, n_mix)
+    if ex.temperature_sd_C > 0:
+        # The bench's own temperature moves every constant with an enthalpy (van 't Hoff);
+        # the readings follow it along the secant across one SD either side, at the
+        # bench's actual composition (linear in the deviation over the bench's spread).
+        per_kelvin = reading_per_kelvin(
+            inputs, totals, ex.temperature_C, step_K=ex.temperature_sd_C
+        ).reshape(n, n_mix)
+        deviation = ex.temperature_sd_C * np.asarray(rng.standard_normal(n), dtype=float)
+        readings = readings + per_kelvin * deviation[:, None]
+    result: NDArray[np.float64] = (
+        readings + reading_sd(inputs.instrument, inputs.bench, readings) * noise
+    )
+    if ex.blank_offset_sd > 0:
+        offset = ex.blank_offset_sd * np.asarray(rng.standard_normal(n), dtype=float)
+        result[:, ex.layout.blanks] += offset[:, None]
     return result
+
+
+def _class_spread(values: NDArray[np.float64], class_size: int) -> ClassSpread:
+    """Bench-to-bench and class-mean spread of per-trial values in consecutive classes."""
+    classes = values.size // class_size
+    grouped = values[: classes * class_size].reshape(classes, class_size)
+    complete = grouped[np.all(np.isfinite(grouped), axis=1)]
+    bench_sd = class_mean_sd = math.nan
+    if class_size > 1 and complete.shape[0] > 0:
+        bench_sd = float(np.sqrt(complete.var(axis=1, ddof=1).mean()))
+    if complete.shape[0] > 1:
+        class_mean_sd = float(complete.mean(axis=1).std(ddof=1))
+    return ClassSpread(
+        class_size=class_size,
+        classes=int(complete.shape[0]),
+        bench_sd=bench_sd,
+        class_mean_sd=class_mean_sd,
+    )
 
 
 def global_fit_least_squares(
@@ -421,10 +506,23 @@ def simulate(
         if table is not None
         else (0.0, 0.0)
     )
+    # One stock batch per class of consecutive trials; a class that straddles two chunks
+    # keeps the batch drawn in the first.
+    class_size = inputs.session.sets
+    carried: tuple[int, NDArray[np.float64]] | None = None
     for start in range(0, trials, CHUNK_TRIALS):
         n = min(CHUNK_TRIALS, trials - start)
         chunk = slice(start, start + n)
-        a = _simulate_readings(inputs, ex, draw, n, rng)
+        classes = np.arange(start, start + n) // class_size
+        first = int(classes[0])
+        batches = 1.0 + ex.u_relative_stock * rng.standard_normal(
+            (int(classes[-1]) - first + 1, len(ex.stock_ids))
+        )
+        if carried is not None and carried[0] == first:
+            batches[0] = carried[1]
+        carried = (int(classes[-1]), batches[-1])
+        stock_factor = batches[classes - first]
+        a = _simulate_readings(inputs, ex, draw, stock_factor, rng)
         net = a - a[:, ex.layout.blanks].mean(axis=1, keepdims=True)
         eps, k = all_bound_mean_K(layout, net, b)
         with np.errstate(invalid="ignore"):
@@ -442,8 +540,16 @@ def simulate(
             eps_global_fit[chunk] = k_global_fit[chunk] = np.nan
         if progress is not None:
             progress(start + n, trials)
-    all_bound = AnalysisSummary(epsilon=_summary(eps_all_bound), K=_summary(k_all_bound))
-    fitted = AnalysisSummary(epsilon=_summary(eps_global_fit), K=_summary(k_global_fit))
+    all_bound = AnalysisSummary(
+        epsilon=_summary(eps_all_bound),
+        K=_summary(k_all_bound),
+        K_spread=_class_spread(k_all_bound, class_size),
+    )
+    fitted = AnalysisSummary(
+        epsilon=_summary(eps_global_fit),
+        K=_summary(k_global_fit),
+        K_spread=_class_spread(k_global_fit, class_size) if global_fit else None,
+    )
     return Simulation(
         trials=trials,
         all_bound=all_bound,

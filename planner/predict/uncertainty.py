@@ -55,6 +55,8 @@ from planner.analysis import all_bound_K_from_x, global_fit_gain, global_fit_jac
 from planner.forward import predict_readings
 from planner.inputs import PlanInputs
 from planner.predict._experiment import BenchExperiment, bench_experiment
+from planner.predict.bias import bias_causes
+from planner.predict.medium import medium_effect
 from planner.result import (
     COVERAGE_FACTOR_95,
     Budget,
@@ -248,8 +250,9 @@ class _Inputs:
     u: NDArray[np.float64]
     # d(component total of mixture m, component j)/d(input z), shape (n_mix, n_comp, n_z).
     totals_jacobian: NDArray[np.float64]
-    # Index of each mixture's reading among the inputs.
-    reading: NDArray[np.int64]
+    # d(reading of mixture m)/d(input z) besides the composition: 1 for the mixture's own
+    # reading noise, and for the blank cuvette's offset on every blank, shape (n_mix, n_z).
+    reading: NDArray[np.float64]
     # Mixtures each input acts on (for the formula text).
     touches: tuple[frozenset[int], ...]
 
@@ -316,7 +319,9 @@ def _elementary_inputs(ex: BenchExperiment, models: _Models) -> _Inputs:
         add(f"{device} systematic error", "device-systematic", "mL", float(u_sys), column)
     seen: dict[tuple[int, int, str], int] = {}
     for d in ex.deliveries:
-        if d.u_random_mL <= 0:
+        # The device's random error and the technique's, independent: in quadrature.
+        u_delivery = math.hypot(d.u_random_mL, d.u_technique_mL)
+        if u_delivery <= 0:
             continue
         key = (d.mixture, d.stock, d.device)
         seen[key] = seen.get(key, 0) + 1
@@ -325,7 +330,7 @@ def _elementary_inputs(ex: BenchExperiment, models: _Models) -> _Inputs:
             label += f" (delivery {seen[key]})"
         column = np.zeros((n_mix, n_comp))
         column[d.mixture] = dv[d.mixture, d.stock]
-        add(label, "delivery-random", "mL", d.u_random_mL, column)
+        add(label, "delivery-random", "mL", u_delivery, column)
     if ex.in_flask and ex.u_flask_mL > 0:
         for m, mixture_id in enumerate(ex.mixture_ids):
             column = np.zeros((n_mix, n_comp))
@@ -334,16 +339,44 @@ def _elementary_inputs(ex: BenchExperiment, models: _Models) -> _Inputs:
     first_reading = len(names)
     for m, mixture_id in enumerate(ex.mixture_ids):
         column = np.zeros((n_mix, n_comp))
-        add(f"reading of {mixture_id}", "reading", "absorbance", ex.absorbance_sd, column)
+        add(f"reading of {mixture_id}", "reading", "absorbance", ex.reading_sd[m], column)
         touches[-1] = frozenset({m})
+    # Inputs that move readings directly: (input index, d reading/d input per mixture).
+    moves: list[tuple[int, NDArray[np.float64]]] = [
+        (first_reading + m, np.eye(n_mix)[m]) for m in range(n_mix)
+    ]
+    blanks = frozenset(int(m) for m in ex.layout.blanks)
+    if ex.blank_offset_sd > 0 and blanks:
+        add(
+            "blank cuvette offset",
+            "reading",
+            "absorbance",
+            ex.blank_offset_sd,
+            np.zeros((n_mix, n_comp)),
+        )
+        touches[-1] = blanks
+        moves.append((len(names) - 1, np.isin(np.arange(n_mix), sorted(blanks)).astype(float)))
+    if ex.temperature_sd_C > 0 and np.any(ex.reading_per_kelvin != 0):
+        add(
+            "bench temperature",
+            "temperature",
+            "°C",
+            ex.temperature_sd_C,
+            np.zeros((n_mix, n_comp)),
+        )
+        touches[-1] = frozenset(range(n_mix))
+        moves.append((len(names) - 1, ex.reading_per_kelvin))
     jacobian = np.stack(columns, axis=2) if columns else np.zeros((n_mix, n_comp, 0))
+    direct = np.zeros((n_mix, len(names)))
+    for z, column_of_readings in moves:
+        direct[:, z] = column_of_readings
     return _Inputs(
         names=tuple(names),
         kinds=tuple(kinds),
         units=tuple(units),
         u=np.array(u, dtype=float),
         totals_jacobian=jacobian,
-        reading=np.arange(first_reading, first_reading + n_mix, dtype=np.int64),
+        reading=direct,
         touches=tuple(touches),
     )
 
@@ -383,8 +416,8 @@ def _curve(
     d_a = _broadcast(f["∂ε" + prime + "/∂A_k"](*args), shape)
     d_a0 = float(_broadcast(f["∂ε" + prime + "/∂A_0"](*args), shape)[0])
     gradient = np.einsum("k,kz->z", d_c, inputs.totals_jacobian[std, ex.layout.limiting, :])
-    gradient[inputs.reading[std]] += d_a
-    gradient[inputs.reading[ex.layout.blanks]] += d_a0 / len(ex.layout.blanks)
+    gradient += d_a @ inputs.reading[std]
+    gradient += d_a0 / len(ex.layout.blanks) * inputs.reading[ex.layout.blanks].sum(axis=0)
     return value, gradient
 
 
@@ -418,9 +451,9 @@ def _gradients(ex: BenchExperiment, inputs: _Inputs, models: _Models) -> _Gradie
         + dk_dm[:, None] * jac[tst, ex.layout.excess, :]
         + dk_dl[:, None] * jac[tst, ex.layout.limiting, :]
     )
-    g_k[np.arange(len(tst)), inputs.reading[tst]] += dk_dx * dx_da
-    for blank in ex.layout.blanks:
-        g_k[:, inputs.reading[blank]] += dk_dx * dx_da0 / len(ex.layout.blanks)
+    g_k += (dk_dx * dx_da)[:, None] * inputs.reading[tst]
+    blank_reading = inputs.reading[ex.layout.blanks].sum(axis=0) / len(ex.layout.blanks)
+    g_k += (dk_dx * dx_da0)[:, None] * blank_reading[None, :]
     return _Gradients(
         epsilon=epsilon,
         g_epsilon=g_eps,
@@ -465,6 +498,11 @@ def _formula(
 ) -> str:
     """The coefficient of input z as a chain of model derivatives, with their formulas."""
     kind = inputs.kinds[z]
+    if kind == "temperature":
+        return (
+            "Σ_m ∂y/∂A_m·∂A_m/∂T, where ∂A/∂T is van 't Hoff's d log10 β/dT = ΔH/(R T² ln 10) "
+            "read through the equilibrium and the photometer (central difference)"
+        )
     stage1 = {
         "stock": "∂c/∂r_k",
         "flask": "∂c/∂V_f",
@@ -607,7 +645,7 @@ def _reading_gradient(
     """
     d_reading = _reading_sensitivity(inputs, ex)
     gradient = np.einsum("mj,mjz->mz", d_reading, elementary.totals_jacobian)
-    gradient[np.arange(len(ex.mixture_ids)), elementary.reading] += 1.0
+    gradient += elementary.reading
     result: NDArray[np.float64] = gradient
     return result
 
@@ -729,6 +767,7 @@ def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyRes
     fit_epsilon, fit_K = _global_fit_budgets(
         inputs, ex, elementary, models, roles, reading_gradient
     )
+    medium = medium_effect(inputs, mixtures, ex.layout)
     return UncertaintyResult(
         epsilon=epsilon,
         epsilon_intercept=epsilon_i,
@@ -742,6 +781,8 @@ def propagate(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> UncertaintyRes
         test_ids=tuple(ex.mixture_ids[i] for i in ex.layout.tests),
         global_fit_epsilon=fit_epsilon,
         global_fit_K=fit_K,
+        medium=medium,
+        bias_causes=bias_causes(inputs, ex.layout, medium),
     )
 
 

@@ -45,6 +45,7 @@ from planner.report._format import (
     stocks_in_addition_order,
     volume,
 )
+from planner.report.bench_text import bias_line, ranges_line
 from planner.report.cautions import cautions_for, label_hazards
 from planner.report.plan_json import checks_worst_first
 from planner.result import Plan, Role, StockPreparation, StockRole
@@ -394,6 +395,19 @@ def _no_solid(prep: StockPreparation) -> str:
     return "none listed: must be supplied ready-made"
 
 
+def _salt_lines(plan: Plan) -> list[str]:
+    """The inert salt of design.ionic_medium to weigh into each flask, one line per stock."""
+    medium = plan.inputs.design.ionic_medium
+    if medium is None:
+        return []
+    return [
+        f"{prep.stock}: {plain(prep.salt_M, 4)} mol/L {prep.salt_formula}, "
+        f"{significant(prep.salt_mass_g, 4)} g per {plain(prep.flask_mL, 4)} mL flask"
+        for prep in plan.preparations
+        if prep.salt_formula
+    ]
+
+
 def _labels(plan: Plan) -> list[_Label]:
     preparations = {p.stock: p for p in plan.preparations}
     labels = []
@@ -494,6 +508,7 @@ def _prep_context(plan: Plan, date: str) -> dict[str, Any]:
         "date": date,
         "session_line": session_line,
         "preparations": _preparation_rows(plan),
+        "salts": _salt_lines(plan),
         "unprepared": unprepared,
         "labels": _labels(plan),
         "labels_line": labels_line,
@@ -604,6 +619,7 @@ def _analysis_views(plan: Plan) -> tuple[_AnalysisView, ...]:
         lines=(),
     )
     p = plan.prediction
+    causes = bias_line(plan.uncertainty.bias_causes if plan.uncertainty is not None else None)
     if p is not None:
         tests = [m.id for m in plan.mixtures if m.role == "test"]
         per_test = "; ".join(
@@ -623,6 +639,7 @@ def _analysis_views(plan: Plan) -> tuple[_AnalysisView, ...]:
             lines=(
                 "Relative bias of K from the all-bound assumption: "
                 f"{percent(p.K_bias_from_assumption, 3, signed=True)}.",
+                *((causes,) if causes else ()),
                 *((f"K from each test mixture: {per_test} {unit}.",) if per_test else ()),
             ),
         )
@@ -795,6 +812,7 @@ def _answer_context(plan: Plan, date: str, plots: Sequence[str] = ()) -> dict[st
         "analyses": _analysis_views(plan),
         "ranges": _ranges_view(plan),
         "blank_note": _blank_note(plan),
+        "ranges_include": ranges_line(plan.inputs),
         "limiting": plan.inputs.design.limiting,
         "wavelength": significant(instrument.wavelength_nm, 4),
         "path_length": significant(instrument.path_length_cm, 3),

@@ -17,12 +17,21 @@ from rich.console import Group, RenderableType
 from rich.table import Table
 from rich.text import Text
 
-from planner.predict.montecarlo import CHUNK_TRIALS, Simulation, Summary
+from planner.predict.montecarlo import CHUNK_TRIALS, ClassSpread, Simulation, Summary
 from planner.predict.uncertainty import Budget, UncertaintyResult
 from planner.report._format import percent, significant
 from planner.report.jsonout import dumps
 
-__all__ = ["SCHEMA", "render_simulation", "simulation_document", "simulation_json"]
+__all__ = [
+    "SCHEMA",
+    "TECHNIQUE_SCHEMA",
+    "render_simulation",
+    "render_techniques",
+    "simulation_document",
+    "simulation_json",
+    "technique_document",
+    "technique_json",
+]
 
 #: Schema name and version of the document.
 SCHEMA = "planner.simulate/2"
@@ -105,10 +114,12 @@ def simulation_document(
         ``global_fit``, each ``mean``, ``sd``, ``ci95``), ``K_bias_from_assumption``, ``K_true``,
         ``epsilon_true``, ``gum`` (value, u, 95 % interval and budget of ``epsilon``,
         ``epsilon_intercept`` and ``K``), ``mixtures`` (each reading's distribution and
-        first-order u), ``K_per_test`` and ``monte_carlo`` (standard errors of the means,
-        failed global fits, chunk size, method), ``analysis``, and in ``gum`` also
-        ``global_fit`` (budgets of ``epsilon`` and ``K`` of the global fit, or ``null``). A
-        value no trial gave, or one the plan withholds, is ``null``.
+        first-order u), ``K_per_test``, ``K_spread`` (per analysis: ``class_size``,
+        ``bench_sd`` inside a class, ``class_mean_sd`` from class to class; the stocks are
+        one batch for the class) and ``monte_carlo`` (standard errors of the means, failed
+        global fits, chunk size, method), ``analysis``, and in ``gum`` also ``global_fit``
+        (budgets of ``epsilon`` and ``K`` of the global fit, or ``null``). A value no trial
+        gave, or one the plan withholds, is ``null``.
     """
     bound, global_fit = simulation.all_bound, simulation.global_fit
     by_id = {m.id: m for m in gum.mixtures}
@@ -132,6 +143,10 @@ def simulation_document(
             "global_fit": _summary(global_fit.epsilon),
         },
         "K": {"all_bound": shown(_summary(bound.K)), "global_fit": _summary(global_fit.K)},
+        "K_spread": {
+            "all_bound": shown(_class_spread(bound.K_spread)),
+            "global_fit": _class_spread(global_fit.K_spread),
+        },
         "K_bias_from_assumption": shown(_number(simulation.K_bias_from_assumption)),
         "K_true": simulation.K_true,
         "epsilon_true": simulation.epsilon_true,
@@ -169,6 +184,17 @@ def simulation_document(
             "chunk_trials": CHUNK_TRIALS,
             "global_fit_method": _GLOBAL_FIT_METHOD,
         },
+    }
+
+
+def _class_spread(spread: ClassSpread | None) -> dict[str, Any] | None:
+    if spread is None:
+        return None
+    return {
+        "class_size": spread.class_size,
+        "classes": spread.classes,
+        "bench_sd": _number(spread.bench_sd),
+        "class_mean_sd": _number(spread.class_mean_sd),
     }
 
 
@@ -365,6 +391,17 @@ def render_simulation(
             style="",
         )
         parts.append(bias)
+    use_fit = analysis == "global-fit" or not all_bound
+    spread = (simulation.global_fit if use_fit else simulation.all_bound).K_spread
+    if spread is not None and spread.class_size > 1:
+        parts.append(
+            Text(
+                f"{'Global-fit' if use_fit else 'All-bound'} K in classes of "
+                f"{spread.class_size} benches sharing one batch of stocks: SD "
+                f"{_text(spread.bench_sd, 2)} between the benches of a class, SD "
+                f"{_text(spread.class_mean_sd, 2)} of the class mean from class to class."
+            )
+        )
     if simulation.global_fit_failed:
         parts.append(
             Text(
@@ -389,3 +426,90 @@ def render_simulation(
             )
         )
     return Group(*parts)
+
+
+#: Schema name and version of the ``planner simulate --technique`` document.
+TECHNIQUE_SCHEMA = "planner.simulate-techniques/1"
+
+
+def _spread_cells(simulation: Simulation) -> dict[str, Any]:
+    spread = simulation.all_bound.K_spread
+    return {
+        "class_size": spread.class_size if spread is not None else None,
+        "bench_sd": _number(spread.bench_sd) if spread is not None else None,
+        "class_mean_sd": _number(spread.class_mean_sd) if spread is not None else None,
+    }
+
+
+def technique_document(
+    simulations: dict[str, Simulation], *, title: str, seed: int
+) -> dict[str, Any]:
+    """``planner simulate --technique``: the same recipes under each bench preset.
+
+    ``techniques`` maps each preset to its K of both analyses (mean, sd, ci95), the all-bound
+    K's bench-to-bench SD inside a class and the SD of the class mean (the stocks are one
+    batch for the class).
+    """
+    return {
+        "schema": TECHNIQUE_SCHEMA,
+        "title": title,
+        "seed": seed,
+        "techniques": {
+            name: {
+                "trials": sim.trials,
+                "K": {
+                    "all_bound": _summary(sim.all_bound.K),
+                    "global_fit": _summary(sim.global_fit.K),
+                },
+                "K_true": sim.K_true,
+                "K_spread_all_bound": _spread_cells(sim),
+            }
+            for name, sim in simulations.items()
+        },
+    }
+
+
+def technique_json(simulations: dict[str, Simulation], *, title: str, seed: int) -> str:
+    """:func:`technique_document` as one JSON text: sorted keys, full precision."""
+    return dumps(technique_document(simulations, title=title, seed=seed))
+
+
+def render_techniques(simulations: dict[str, Simulation]) -> RenderableType:
+    """The presets side by side: K of each analysis, its 95 % range, and the spread inside a
+    class against that of the class mean."""
+    table = Table(
+        title="Virtual class by bench preset (K, L/mol)",
+        box=box.SIMPLE_HEAD,
+        title_justify="left",
+    )
+    for heading in (
+        "preset",
+        "analysis",
+        "mean",
+        "SD",
+        "95 % of benches",
+        "in class",
+        "class mean",
+    ):
+        table.add_column(heading, justify="left" if heading in {"preset", "analysis"} else "right")
+    for name, sim in simulations.items():
+        spread = sim.all_bound.K_spread
+        for label, summary, within in (
+            ("all-bound", sim.all_bound.K, spread),
+            ("global fit", sim.global_fit.K, sim.global_fit.K_spread),
+        ):
+            mean, sd, interval = _spread(summary.mean, summary.sd, summary.ci95)
+            table.add_row(
+                name,
+                label,
+                mean,
+                sd,
+                interval,
+                _text(within.bench_sd, 2) if within is not None else "-",
+                _text(within.class_mean_sd, 2) if within is not None else "-",
+            )
+    note = Text(
+        "'in class': SD of K between the benches of one class (one batch of stocks); "
+        "'class mean': SD of the class's mean K from class to class."
+    )
+    return Group(table, note)

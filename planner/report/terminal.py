@@ -29,6 +29,7 @@ from planner.report._format import (
     stocks_in_addition_order,
     volume,
 )
+from planner.report.bench_text import bias_line, ranges_line
 from planner.report.plan_json import checks_worst_first
 from planner.result import CHECK_STATUSES, Addition, Check, Plan, Status
 
@@ -223,6 +224,7 @@ def render_plan(plan: Plan) -> RenderableType:
         _mixtures_table(plan),
         _totals_table(plan),
         _prediction_line(plan),
+        _bench_text(plan),
     ]
     if plan.notes:
         parts.append(Text("Notes:\n" + "\n".join(f"- {note}" for note in plan.notes)))
@@ -239,3 +241,10 @@ def render_checks(checks: tuple[Check, ...]) -> RenderableType:
     for item in checks_worst_first(checks):
         table.add_row(_status(item.status), _plain(item.name), _plain(item.detail))
     return table
+
+
+def _bench_text(plan: Plan) -> Text:
+    """What the ranges include and the all-bound K's bias by cause (report.bench_text)."""
+    causes = plan.uncertainty.bias_causes if plan.uncertainty is not None else None
+    lines = [ranges_line(plan.inputs), bias_line(causes)]
+    return Text("\n".join(line for line in lines if line))

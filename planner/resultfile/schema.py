@@ -207,6 +207,11 @@ class PreparationEntry(Entry):
     aliquot_mL: float = Field(
         0.0, description="the volume of that stock per flask [mL], a number (0: no dilution)"
     )
+    salt_formula: str = Field(
+        "", description='the inert salt of design.ionic_medium to add, e.g. "NaNO3", or ""'
+    )
+    salt_M: float = Field(0.0, description="its concentration in the stock [mol/L], a number")
+    salt_mass_g: float = Field(0.0, description="its mass per flask [g], a number")
 
 
 _U = "its standard uncertainty, a number"

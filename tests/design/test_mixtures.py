@@ -72,10 +72,11 @@ def tiny(request):
 
 
 def _eligible(inputs, candidates):
-    """Eligibility from the documented rules (window with a 2 sigma_A margin, range)."""
+    """Eligibility from the documented rules (window with a 2 u(A) margin, u(A) each
+    candidate's screening reading uncertainty, docs/methods.md section 7; range)."""
     ev = candidates.evaluation
     low, high = inputs.instrument.absorbance_window
-    margin = 2.0 * inputs.instrument.absorbance_sd
+    margin = 2.0 * candidates.u_absorbance
     f_low, f_high = inputs.design.bound_fraction_range
     return (
         (ev.absorbance >= low + margin)

@@ -15,6 +15,7 @@ import numpy as np
 import pytest
 from uncertainties import ufloat
 
+from planner.chem.equilibrium import solve_equilibrium
 from planner.errors import InvalidInputError
 from planner.lab.glassware import devices_by_id, piston_errors_uL, tolerance_mL
 from planner.predict.uncertainty import (
@@ -35,7 +36,12 @@ def _reference(plan):
     device, u = a/sqrt(6) (EURACHEM/CITAC CG4, 3rd ed., 2012, triangular); a graduated device's
     is independent per delivery; a piston pipette has a systematic error per device
     (limit/sqrt(6)) and a random one per delivery (the ISO 8655-2 random limit, an SD); each
-    flask's volume is independent; each reading has SD absorbance_sd.
+    flask's volume is independent; each reading has SD absorbance_sd. The bench (the plan's
+    [bench], docs/plan-file.md): each delivery adds its own normal technique error (a buret
+    read twice, sqrt(2) buret_reading_sd_mL; a pipette pipette_rsd of its volume; a piston
+    pipette piston_rsd); each reading's SD is sqrt(s0^2 + ((r^2 + cuvette_rsd^2) A^2) +
+    (sigma_T / (T ln 10))^2) (three-term precision model, Rothman, Crouch and Ingle, Anal.
+    Chem. 47 (1975) 1226, from memory); one blank-cuvette offset is shared by the blanks.
     """
     inputs = plan.inputs
     shelf = devices_by_id(inputs.glassware)
@@ -43,7 +49,6 @@ def _reference(plan):
     limiting = inputs.design.limiting
     excess = next(c for c in components if c != limiting)
     b = inputs.instrument.path_length_cm
-    sd = inputs.instrument.absorbance_sd
     relative = {
         st.id: ufloat(0.0, st.relative_uncertainty) if st.relative_uncertainty > 0 else 0.0
         for st in inputs.stocks
@@ -52,16 +57,65 @@ def _reference(plan):
     flask = inputs.design.vessel != "tube"
     diluent = inputs.diluent.id
 
-    def delivery_error(device_id):
+    bench = inputs.bench
+
+    def technique(device, volume):
+        u = 0.0
+        if device.kind == "buret":
+            u = math.sqrt(2.0) * bench.buret_reading_sd_mL
+        elif device.kind in {"transfer-pipette", "graduated-pipette"}:
+            u = bench.pipette_rsd * volume
+        elif device.kind == "piston-pipette":
+            u = bench.piston_rsd * volume
+        return ufloat(0.0, u) if u > 0 else 0.0
+
+    def delivery_error(device_id, volume):
         device = shelf[device_id]
         u = tolerance_mL(device) / SQRT6
+        hand = technique(device, volume)
         if device.kind == "transfer-pipette":
-            return shared.setdefault(device_id, ufloat(0.0, u))
+            return shared.setdefault(device_id, ufloat(0.0, u)) + hand
         if device.kind in GRADUATED:
-            return ufloat(0.0, u)
+            return ufloat(0.0, u) + hand
         assert device.kind == "piston-pipette"
         random_uL = piston_errors_uL(device, device.volume_mL * 1000)[1]
-        return shared.setdefault(device_id, ufloat(0.0, u)) + ufloat(0.0, random_uL / 1000)
+        return shared.setdefault(device_id, ufloat(0.0, u)) + ufloat(0.0, random_uL / 1000) + hand
+
+    instrument = inputs.instrument
+
+    def reading_sd(a):
+        proportional = (instrument.absorbance_rsd**2 + bench.cuvette_rsd**2) * a * a
+        transmittance = instrument.transmittance_sd / (10.0**-a * math.log(10.0))
+        return math.sqrt(instrument.absorbance_sd**2 + proportional + transmittance**2)
+
+    blank_offset = ufloat(0.0, bench.blank_offset_sd) if bench.blank_offset_sd > 0 else 0.0
+    reaction = inputs.reaction
+    enthalpy = [sp.enthalpy_kJ_mol or 0.0 for sp in reaction.species]
+    moves = bench.temperature_sd_C > 0 and any(enthalpy)
+    bench_temperature = ufloat(0.0, bench.temperature_sd_C) if moves else 0.0
+
+    def per_kelvin(m):
+        # van 't Hoff by hand, ln(K2/K1) = -(dH/R)(1/T2 - 1/T1), R = 8.314462618 J/(mol K),
+        # read through the solver, Beer-Lambert and the stray light; central, 0.01 K.
+        room = inputs.session.temperature_C or reaction.temperature_C
+        totals = [[m.initial_M.get(c, 0.0) for c in reaction.components]]
+        s = instrument.stray_light
+
+        def read(t):
+            logs = [
+                sp.log_beta
+                - h
+                * 1000
+                / 8.314462618
+                * (1 / (t + 273.15) - 1 / (reaction.temperature_C + 273.15))
+                / math.log(10)
+                for sp, h in zip(reaction.species, enthalpy, strict=True)
+            ]
+            eq = solve_equilibrium(totals, reaction.stoichiometry(), logs)
+            true_a = instrument.path_length_cm * float(eq.species_M[0] @ reaction.species_epsilon())
+            return math.log10((1 + s) / (10**-true_a + s))
+
+        return (read(room + 0.01) - read(room - 0.01)) / 0.02
 
     totals = {}
     readings = {}
@@ -71,8 +125,10 @@ def _reference(plan):
             if flask and a.stock == diluent:
                 continue
             volumes[a.stock] = volumes.get(a.stock, 0.0) + a.volume_mL
-            for device_id in a.devices:
-                volumes[a.stock] = volumes[a.stock] + delivery_error(device_id)
+            for delivery in a.deliveries:
+                volumes[a.stock] = volumes[a.stock] + delivery_error(
+                    delivery.device, delivery.volume_mL
+                )
         if flask:
             (flask_device,) = (d for d in inputs.glassware if d.kind == "volumetric-flask")
             total = ufloat(m.total_volume_mL, tolerance_mL(flask_device) / SQRT6)
@@ -87,7 +143,11 @@ def _reference(plan):
             / total
             for c in components
         }
-        readings[m.id] = ufloat(m.absorbance, sd)
+        readings[m.id] = ufloat(m.absorbance, reading_sd(m.absorbance))
+        if moves:
+            readings[m.id] = readings[m.id] + per_kelvin(m) * bench_temperature
+        if m.role == "blank":
+            readings[m.id] = readings[m.id] + blank_offset
     blanks = [m.id for m in plan.mixtures if m.role == "blank"]
     standards = [m.id for m in plan.mixtures if m.role == "standard"]
     tests = [m.id for m in plan.mixtures if m.role == "test"]
@@ -195,10 +255,18 @@ def test_systematic_device_shared_across_deliveries(flask_plan):
 
 def test_blank_reading_uncertainty_is_the_noise(default_plan):
     # The blank holds no absorber (only free iron(III), epsilon 0 in the plan), so its
-    # reading's uncertainty is the reading noise alone.
+    # reading's uncertainty is the reading noise alone: at A = 0 the floor, the constant
+    # transmittance noise 0.4343 sigma_T / T with T = 1 (Skoog et al. 2017, 13C-2, from
+    # memory), and the blank cuvette's offset against the samples' cuvette.
     result = propagate(default_plan.inputs, default_plan.mixtures)
     blank = next(m for m in result.mixtures if m.id == "B1")
-    assert blank.u_absorbance == pytest.approx(default_plan.inputs.instrument.absorbance_sd)
+    floor = default_plan.inputs.instrument.absorbance_sd
+    transmittance = 0.4343 * default_plan.inputs.instrument.transmittance_sd
+    offset = default_plan.inputs.bench.blank_offset_sd
+    assert offset > 0
+    assert transmittance > 0
+    expected = math.sqrt(floor**2 + transmittance**2 + offset**2)
+    assert blank.u_absorbance == pytest.approx(expected, rel=1e-4)
     standard = next(m for m in result.mixtures if m.id == "S5")
     assert standard.u_absorbance > default_plan.inputs.instrument.absorbance_sd
 
@@ -213,7 +281,10 @@ def test_total_uncertainty_by_hand(default_plan):
     volumes = {a.stock: a.volume_mL for a in blank.additions}
     assert set(volumes) == {"acid", "iron-strong"}
     buret = next(d for d in plan.inputs.glassware if d.kind == "buret")
-    u_v = tolerance_mL(buret) / SQRT6
+    # The tolerance's triangular u and two readings of the bench's buret reading SD.
+    u_v = math.sqrt(
+        (tolerance_mL(buret) / SQRT6) ** 2 + 2 * plan.inputs.bench.buret_reading_sd_mL**2
+    )
     v_s, total = volumes["iron-strong"], sum(volumes.values())
     c = blank.initial_M["Fe3+"]
     u_r = plan.inputs.stock("iron-strong").relative_uncertainty

@@ -49,6 +49,8 @@ from planner.report.plots.simulation import (
     histogram_figure,
     k_histogram_png,
     simulation_plots,
+    technique_histogram_figure,
+    technique_plots,
 )
 
 __all__ = [
@@ -64,4 +66,6 @@ __all__ = [
     "ladder_figure",
     "plan_plots",
     "simulation_plots",
+    "technique_histogram_figure",
+    "technique_plots",
 ]

@@ -5,6 +5,7 @@ See :mod:`planner.report.plots`.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import TYPE_CHECKING, Literal
 
 import numpy as np
@@ -156,3 +157,64 @@ def simulation_plots(simulation: Simulation) -> dict[str, bytes]:
     files.update(_both("K-histogram", histogram_figure(simulation, "K")))
     files.update(_both("epsilon-histogram", histogram_figure(simulation, "epsilon")))
     return files
+
+
+def technique_histogram_figure(simulations: Mapping[str, Simulation]) -> Figure:
+    """Histograms of the class's K, one per bench preset, on shared bins (all-bound analysis
+    when the plan's answer key gives it, else the global fit).
+
+    Parameters
+    ----------
+    simulations
+        Preset name -> the virtual class of the same recipes under that preset's bench.
+
+    Returns
+    -------
+    Figure
+        One axes: K on x, benches per bin on y; one step outline per preset (``gid`` the
+        preset's name) and the true K as a dashed line.
+    """
+    values: dict[str, NDArray[np.float64]] = {}
+    shown: dict[str, Summary] = {}
+    for name, sim in simulations.items():
+        bound = _finite(sim.K_all_bound)
+        values[name] = bound if bound.size else _finite(sim.K_global_fit)
+        shown[name] = sim.all_bound.K if bound.size else sim.global_fit.K
+    pooled = np.concatenate([v for v in values.values() if v.size])
+    true_value = next(iter(simulations.values())).K_true
+    low, high = (float(v) for v in np.quantile(pooled, [0.0005, 0.9995]))
+    low, high = min(low, true_value), max(high, true_value)
+    pad = 0.03 * (high - low) if high > low else 1.0
+    bins = [float(edge) for edge in np.linspace(low - pad, high + pad, _BINS + 1)]
+    colours = (_TEAL, _OCHRE, _INK)
+    with _style():
+        figure, axes = _new_figure(3.9)
+        for index, (name, data) in enumerate(values.items()):
+            summary = shown[name]
+            axes.hist(
+                data,
+                bins=bins,
+                histtype="step",
+                linewidth=2.0,
+                color=colours[index % len(colours)],
+                gid=name,
+                label=f"{name}: 95 % of benches {significant(summary.ci95[0], 4)} to "
+                f"{significant(summary.ci95[1], 4)} L/mol",
+            )
+        axes.axvline(
+            true_value,
+            color=_INK,
+            linestyle="--",
+            linewidth=1.4,
+            gid="true",
+            label=f"true K {significant(true_value, 4)} L/mol",
+        )
+        axes.set_xlabel("K [L/mol]")
+        axes.set_ylabel("benches per bin [count]")
+        axes.set_title("Virtual class by bench preset: K", loc="left")
+        return _finish(figure, axes)
+
+
+def technique_plots(simulations: Mapping[str, Simulation]) -> dict[str, bytes]:
+    """``K-histogram-by-technique`` as ``.png`` and ``.svg`` bytes."""
+    return _both("K-histogram-by-technique", technique_histogram_figure(simulations))

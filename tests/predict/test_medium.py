@@ -1,0 +1,110 @@
+"""The ionic medium: each mixture's constant in its own medium, and a constant medium by design."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from planner.errors import PlanFileError
+from planner.pipeline import design_plan
+from planner.planfile import load_plan, parse_plan
+from planner.predict.uncertainty import propagate
+
+from .conftest import DEFAULT, ROOT
+
+CONSTANT = ROOT / "recipes" / "iron-thiocyanate-constant-medium.toml"
+
+
+@pytest.fixture(scope="module")
+def constant_plan():
+    return design_plan(load_plan(CONSTANT))
+
+
+def test_every_mixture_has_the_medium_s_ionic_strength(constant_plan) -> None:
+    # The done criterion: with design.ionic_medium every mixture has that ionic strength
+    # within 1 % (the complex and the free ions move it by a few 1e-4 mol/L).
+    for mixture in constant_plan.mixtures:
+        assert mixture.ionic_strength_M == pytest.approx(3.0, rel=0.01)
+    statuses = {c.name: c.status for c in constant_plan.checks}
+    assert statuses["ionic-strength"] == "pass"
+    assert "fail" not in statuses.values()
+
+
+def test_prep_sheet_weighs_the_salt(constant_plan) -> None:
+    # NaNO3: 22.98977 + 14.0067 + 3 * 15.9994 = 84.9947 g/mol (IUPAC standard atomic weights,
+    # from memory). The acid stock (H+ 0.5, NO3- 0.5; I = 0.5) needs 2.5 mol/L of the salt:
+    # 2.5 * 84.9947 = 212.49 g per litre of flask.
+    prep = {p.stock: p for p in constant_plan.preparations}
+    acid = prep["acid"]
+    assert acid.salt_formula == "NaNO3"
+    assert acid.salt_M == pytest.approx(2.5, rel=1e-12)
+    assert acid.salt_mass_g == pytest.approx(212.49 * acid.flask_mL / 1000.0, rel=1e-4)
+    # The strong iron stock: Fe3+ 0.40, H+ 0.5, NO3- 1.7 has I = (3.6 + 0.5 + 1.7)/2 = 2.9.
+    assert prep["iron-strong"].salt_M == pytest.approx(0.1, rel=1e-9)
+
+
+def test_bench_constant_is_the_constant_medium_s(constant_plan) -> None:
+    # K = 98 at I = 0.5 moved to 3.0 by SIT (joined to Davies at 0.5), dz2 = 6, d_eps = 0:
+    # D(3) = 0.509 sqrt(3)/(1 + 1.5 sqrt(3)) = 0.245030, D(0.5) = 0.174661, so
+    # log10 K falls by 6 * 0.070369 = 0.422214: K = 98 * 10^-0.422214 = 37.07 (by hand).
+    assert constant_plan.global_fit is not None
+    k_by_hand = 98.0 * 10.0 ** (-0.422214)
+    fitted = constant_plan.global_fit.K
+    assert fitted == pytest.approx(k_by_hand, rel=2e-4)
+    assert k_by_hand == pytest.approx(37.07, abs=0.01)
+    # Every mixture shares the medium, so the medium adds no bias of its own.
+    medium = propagate(constant_plan.inputs, constant_plan.mixtures).medium
+    assert medium is not None
+    assert abs(medium.K_bias_all_bound) < 1e-3
+    assert abs(medium.K_bias_global_fit) < 1e-3
+
+
+def test_stocks_above_the_target_are_refused() -> None:
+    text = CONSTANT.read_text(encoding="utf-8").replace(
+        "ionic_strength_M = 3.0 }", "ionic_strength_M = 2.5 }"
+    )
+    with pytest.raises(PlanFileError) as info:
+        parse_plan(text)
+    assert info.value.field == "design.ionic_medium.ionic_strength_M"
+    assert "already has ionic strength 2.9 mol/L" in str(info.value)
+
+
+def test_default_plan_s_medium_share_of_the_bias() -> None:
+    # The default's mixtures run from I = 0.52 to 1.89 mol/L against constants for 0.5. The
+    # blank's ions: by hand its iron-strong and acid stocks give I = 1.892 mol/L, where
+    # D(1.892) = 0.509 * 1.375500/3.063250 = 0.228560, so K = 98 * 10^(-6 (0.228560 -
+    # 0.174661)) = 98 * 10^-0.323394 = 46.54 (SIT branch, d_eps = 0).
+    inputs = load_plan(DEFAULT)
+    plan = design_plan(inputs)
+    medium = propagate(inputs, plan.mixtures).medium
+    assert medium is not None
+    blank = next(i for i, m in enumerate(plan.mixtures) if m.role == "blank")
+    assert medium.ionic_strength_M[blank] == pytest.approx(1.892, abs=1e-3)
+    assert medium.K_in_medium[blank] == pytest.approx(98.0 * 10.0 ** (-0.323394), rel=2e-3)
+    # The standards sit in a stronger medium than the tests, so the class's K moves: the
+    # medium's share is shown apart, of the size the issue reports (a few per cent).
+    assert 0.0 < medium.K_bias_all_bound < 0.15
+    assert math.isfinite(medium.K_bias_global_fit)
+
+
+def test_bias_split_into_causes() -> None:
+    # The default with the room at 20 °C: the temperature's share is van 't Hoff's
+    # 102.1304 / 98 - 1 = 0.042147 (hand value, tests/chem/test_thermodynamics.py); the first
+    # three shares multiply to the all-bound K's bias on noise-free readings; the default's
+    # only other product does not absorb (epsilon 0), so the absorbing reagents add nothing.
+    text = DEFAULT.read_text(encoding="utf-8").replace(
+        "[session]\n", "[session]\ntemperature_C = 20\n"
+    )
+    inputs = parse_plan(text)
+    plan = design_plan(inputs)
+    result = propagate(inputs, plan.mixtures)
+    causes = result.bias_causes
+    assert causes is not None
+    assert causes.temperature == pytest.approx(102.1304 / 98.0 - 1.0, rel=1e-4)
+    assert causes.absorbing_reagents == 0.0
+    assert causes.stray_light < 0  # stray light flattens the high readings of the standards
+    product = (1 + causes.all_bound_assumption) * (1 + causes.absorbing_reagents)
+    product *= 1 + causes.stray_light
+    assert product - 1 == pytest.approx(result.K_bias_from_assumption, rel=1e-9)
+    assert causes.ionic_medium == result.medium.K_bias_all_bound
