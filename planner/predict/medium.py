@@ -26,6 +26,7 @@ from numpy.typing import NDArray
 from planner.analysis import Layout, all_bound_mean_K, global_fit_jacobian
 from planner.chem.constants import medium_log_beta
 from planner.chem.species import charge_from_name, ionic_strength_M
+from planner.errors import PlannerError
 from planner.forward import predict_readings
 from planner.inputs import PlanInputs
 from planner.result import MediumEffect, Mixture
@@ -68,6 +69,8 @@ def _global_fit_K(inputs: PlanInputs, layout: Layout, readings: NDArray[np.float
         model = predict_readings(reaction, inputs.instrument, layout.totals_M).absorbance
         residual = target - (model[fit] - model[layout.blanks].mean())
         jacobian = global_fit_jacobian(reaction, inputs.instrument, layout)
+        if not (np.all(np.isfinite(jacobian)) and np.all(np.isfinite(residual))):
+            return math.nan
         step = np.linalg.lstsq(jacobian, residual, rcond=None)[0]
         if not np.all(np.isfinite(step)):
             return math.nan
@@ -116,12 +119,18 @@ def medium_effect(inputs: PlanInputs, mixtures: Sequence[Mixture], layout: Layou
     strength = initial_ionic_strength_M(mixtures)
     rows = medium_log_beta(inputs.reaction, strength)
     totals = layout.totals_M
-    reference = predict_readings(inputs.reaction, inputs.instrument, totals).absorbance
-    in_medium = predict_readings(
-        inputs.reaction, inputs.instrument, totals, log_beta=rows
-    ).absorbance
-    bound_ref, fit_ref = _analyses(inputs, layout, reference)
-    bound_med, fit_med = _analyses(inputs, layout, in_medium)
+    try:
+        reference = predict_readings(inputs.reaction, inputs.instrument, totals).absorbance
+        in_medium = predict_readings(
+            inputs.reaction, inputs.instrument, totals, log_beta=rows
+        ).absorbance
+        bound_ref, fit_ref = _analyses(inputs, layout, reference)
+        bound_med, fit_med = _analyses(inputs, layout, in_medium)
+    except (PlannerError, np.linalg.LinAlgError):
+        # Constants far outside any activity model's range (a mixture at many mol/L) can
+        # leave the equilibrium or the fit without a solution: the medium's share is then
+        # unknown, and said nowhere, rather than a reason the plan cannot be made.
+        bound_ref = fit_ref = bound_med = fit_med = math.nan
     return MediumEffect(
         ionic_strength_M=tuple(float(i) for i in strength),
         K_in_medium=tuple(float(10.0 ** r[inputs.measured]) for r in rows),

@@ -7,12 +7,14 @@ bias split by cause, written once so every sheet says the same.
 
 from __future__ import annotations
 
+import math
+
 from planner.inputs import PlanInputs
 from planner.lab.bench import bench_terms
 from planner.report._format import percent
 from planner.result import BiasCauses
 
-__all__ = ["bias_line", "ranges_line"]
+__all__ = ["bias_line", "medium_line", "ranges_line"]
 
 _TERM_WORDS = {
     "buret_reading_sd_mL": "buret readings",
@@ -53,18 +55,34 @@ def ranges_line(inputs: PlanInputs) -> str:
 
 
 def bias_line(causes: BiasCauses | None) -> str:
-    """One sentence: the all-bound K's bias by cause, or "" when there is none to give."""
+    """The all-bound K's bias by cause, or "" when there is none to give.
+
+    The causes the prediction includes multiply to its bias; the ionic medium's share is not
+    in the predicted values (the constants are the plan's, at its reference ionic strength)
+    and is said apart.
+    """
     if causes is None:
         return ""
     parts = [
-        ("all-bound assumption", causes.all_bound_assumption),
-        ("ionic medium", causes.ionic_medium),
+        ("the all-bound assumption", causes.all_bound_assumption),
         ("absorbing reagents", causes.absorbing_reagents),
         ("stray light", causes.stray_light),
         ("temperature", causes.temperature),
     ]
-    return (
-        "Bias of the all-bound K by cause: "
-        + ", ".join(f"{name} {percent(value, signed=True)}" for name, value in parts)
+    text = (
+        "The all-bound K's bias comes from "
+        + ", ".join(f"{name} {percent(value, 2, signed=True)}" for name, value in parts)
         + "."
+    )
+    if math.isfinite(causes.ionic_medium) and causes.ionic_medium != 0:
+        text += " " + medium_line(causes.ionic_medium)
+    return text
+
+
+def medium_line(bias: float) -> str:
+    """One sentence: how each mixture's own ionic medium would move a K the sheet predicts."""
+    return (
+        "Not in these values: each mixture's own ionic strength would move K by a further "
+        f"{percent(bias, 2, signed=True)} (the constants refer to the plan's ionic strength; "
+        "design.ionic_medium makes every mixture the same)."
     )

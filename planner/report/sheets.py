@@ -45,7 +45,7 @@ from planner.report._format import (
     stocks_in_addition_order,
     volume,
 )
-from planner.report.bench_text import bias_line, ranges_line
+from planner.report.bench_text import bias_line, medium_line, ranges_line
 from planner.report.cautions import cautions_for, label_hazards
 from planner.report.plan_json import checks_worst_first
 from planner.result import Plan, Role, StockPreparation, StockRole
@@ -616,7 +616,7 @@ def _analysis_views(plan: Plan) -> tuple[_AnalysisView, ...]:
             (eps_label, fit.epsilon, fit.u_epsilon, species.epsilon),
             (k_label, fit.K, fit.u_K, 10.0**species.log_beta),
         ),
-        lines=(),
+        lines=_fit_medium_line(plan),
     )
     p = plan.prediction
     causes = bias_line(plan.uncertainty.bias_causes if plan.uncertainty is not None else None)
@@ -663,6 +663,15 @@ def _analysis_views(plan: Plan) -> tuple[_AnalysisView, ...]:
     if plan.analysis == "global-fit":
         return (fit_view, bound_view)
     return (bound_view, fit_view) if fit is not None else (bound_view,)
+
+
+def _fit_medium_line(plan: Plan) -> tuple[str, ...]:
+    """The ionic medium's share of the global fit's K, said apart (not in its values)."""
+    medium = plan.uncertainty.medium if plan.uncertainty is not None else None
+    if plan.global_fit is None or medium is None:
+        return ()
+    bias = medium.K_bias_global_fit
+    return (medium_line(bias),) if math.isfinite(bias) and bias != 0 else ()
 
 
 def _designed_for(plan: Plan) -> str:

@@ -245,6 +245,11 @@ def render_checks(checks: tuple[Check, ...]) -> RenderableType:
 
 def _bench_text(plan: Plan) -> Text:
     """What the ranges include and the all-bound K's bias by cause (report.bench_text)."""
-    causes = plan.uncertainty.bias_causes if plan.uncertainty is not None else None
+    # The causes explain the all-bound K's bias, said only where that K is printed.
+    causes = (
+        plan.uncertainty.bias_causes
+        if plan.uncertainty is not None and plan.prediction is not None
+        else None
+    )
     lines = [ranges_line(plan.inputs), bias_line(causes)]
     return Text("\n".join(line for line in lines if line))
