@@ -202,8 +202,14 @@ def reading_sd(instrument: Instrument, bench: Bench, absorbance: ArrayLike) -> N
     """
     a = np.asarray(absorbance, dtype=float)
     rsd_squared = instrument.absorbance_rsd**2 + bench.cuvette_rsd**2
-    with np.errstate(over="ignore"):  # 10^A overflows only far beyond any reading
-        transmittance_term = _LOG10_E * instrument.transmittance_sd * 10.0**a
+    # 10^A overflows only far beyond any reading (the term is then infinite, or nothing when
+    # the plan has no transmittance noise, rather than inf x 0).
+    with np.errstate(over="ignore"):
+        transmittance_term = (
+            _LOG10_E * instrument.transmittance_sd * 10.0**a
+            if instrument.transmittance_sd > 0
+            else np.zeros_like(a)
+        )
     variance = instrument.absorbance_sd**2 + rsd_squared * a**2 + transmittance_term**2
     return np.asarray(np.sqrt(variance), dtype=float)
 
