@@ -24,6 +24,8 @@ import typer
 from planner.errors import PlannerError
 
 if TYPE_CHECKING:
+    from rich.console import Console
+
     from planner.inputs import PlanInputs
     from planner.result import Check, Plan
 
@@ -836,6 +838,7 @@ def simulate(
                     rng=np.random.default_rng(seed),
                     progress=lambda done, total: progress.update(task, completed=done),
                 )
+        from planner.report.plots import simulation_plots
         from planner.report.simulation import render_simulation, simulation_json
 
         # The all-bound numbers are withheld where the plan withholds them (they would mean
@@ -844,20 +847,8 @@ def simulate(
         document = simulation_json(
             result, gum, title=inputs.title, seed=seed, analysis=analysis, all_bound=all_bound
         )
-        if out is not None:
-            from planner.report.outdir import write_output_folder
-            from planner.report.plots import simulation_plots
 
-            files: dict[str, str | bytes] = {"simulation.json": document}
-            with _private_plot_caches():
-                files.update(simulation_plots(result))
-            write_output_folder(out, files, force=force, protect=_reads(file))
-        if quiet:
-            pass
-        elif output_format is OutputFormat.json:
-            _write_stdout(document)
-        else:
-            console = Console(highlight=False)
+        def print_text(console: Console) -> None:
             # The coefficients' formulas need room; narrower terminals get them in the JSON.
             wide = console.width >= 140
             console.print(
@@ -865,17 +856,18 @@ def simulate(
                     result, gum, formulas=wide, analysis=analysis, all_bound=all_bound
                 )
             )
-        _tell_written(out, quiet=quiet)
+
+        deliver("simulation.json", document, lambda: simulation_plots(result), print_text)
         return EXIT_CHECK_FAILED if designed.failed else EXIT_OK
 
     def _compare_techniques(designed: Plan, names: list[str], trials: int, seed: int) -> int:
         import dataclasses
 
         import numpy as np
-        from rich.console import Console
 
         from planner.lab.bench import preset_bench
         from planner.predict.montecarlo import simulate as run_virtual_class
+        from planner.report.plots import technique_plots
         from planner.report.simulation import render_techniques, technique_json
 
         results = {}
@@ -889,23 +881,38 @@ def simulate(
                     rng=np.random.default_rng(seed),
                 )
         document = technique_json(results, title=designed.inputs.title, seed=seed)
+        deliver(
+            "techniques.json",
+            document,
+            lambda: technique_plots(results),
+            lambda console: console.print(render_techniques(results)),
+        )
+        return EXIT_CHECK_FAILED if designed.failed else EXIT_OK
+
+    def deliver(
+        name: str,
+        document: str,
+        plots: Callable[[], Mapping[str, bytes]],
+        print_text: Callable[[Console], None],
+    ) -> None:
+        """Write the JSON document as ``name`` and the plots into --out, print the document
+        (--format json) or the text ``print_text`` prints, and say where the folder went."""
+        from rich.console import Console
+
         if out is not None:
             from planner.report.outdir import write_output_folder
-            from planner.report.plots import technique_plots
 
-            files: dict[str, str | bytes] = {"techniques.json": document}
+            files: dict[str, str | bytes] = {name: document}
             with _private_plot_caches():
-                files.update(technique_plots(results))
+                files.update(plots())
             write_output_folder(out, files, force=force, protect=_reads(file))
         if quiet:
             pass
         elif output_format is OutputFormat.json:
             _write_stdout(document)
         else:
-            Console(highlight=False).print(render_techniques(results))
-        if out is not None and not quiet:
-            _tell(f"wrote {out}/")
-        return EXIT_CHECK_FAILED if designed.failed else EXIT_OK
+            print_text(Console(highlight=False))
+        _tell_written(out, quiet=quiet)
 
     _run(body)
 

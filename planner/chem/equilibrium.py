@@ -113,6 +113,35 @@ def one_to_one_complex_M(
     return result
 
 
+def _one_to_one_root_parts(
+    metal_total_M: NDArray[np.float64],
+    ligand_total_M: NDArray[np.float64],
+    K: float | NDArray[np.float64],
+) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+    """The parts of the 1:1 system's cancellation-free root: the total in deficit T_b, the
+    excess d = |T_M - T_L| and the denominator (1 + K d) + sqrt((1 + K d)^2 + 4 K T_b) of the
+    free amount in deficit, 2 T_b / denominator (see one_to_one_complex_M)."""
+    small = np.minimum(metal_total_M, ligand_total_M)
+    excess = np.abs(metal_total_M - ligand_total_M)
+    linear = 1.0 + K * excess
+    return small, excess, linear + np.sqrt(linear * linear + 4.0 * K * small)
+
+
+def _metal_and_ligand(
+    metal_total_M: NDArray[np.float64],
+    ligand_total_M: NDArray[np.float64],
+    of_small: NDArray[np.float64],
+    of_large: NDArray[np.float64],
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """(metal's, ligand's) value from the values of the component in deficit and in excess
+    (the metal counts as in deficit on a tie)."""
+    metal_is_small = metal_total_M <= ligand_total_M
+    return (
+        np.where(metal_is_small, of_small, of_large),
+        np.where(metal_is_small, of_large, of_small),
+    )
+
+
 def _one_to_one_free(
     metal_total_M: ArrayLike, ligand_total_M: ArrayLike, K: ArrayLike
 ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
@@ -122,16 +151,9 @@ def _one_to_one_free(
         np.asarray(ligand_total_M, dtype=float),
         np.asarray(K, dtype=float),
     )
-    small = np.minimum(metal, ligand)
-    excess = np.abs(metal - ligand)
-    linear = 1.0 + k * excess
-    free_small = 2.0 * small / (linear + np.sqrt(linear * linear + 4.0 * k * small))
-    free_large = free_small + excess
-    metal_is_small = metal <= ligand
-    return (
-        np.where(metal_is_small, free_small, free_large),
-        np.where(metal_is_small, free_large, free_small),
-    )
+    small, excess, denominator = _one_to_one_root_parts(metal, ligand, k)
+    free_small = 2.0 * small / denominator
+    return _metal_and_ligand(metal, ligand, free_small, free_small + excess)
 
 
 def _one_to_one_log_free(
@@ -148,16 +170,10 @@ def _one_to_one_log_free(
     underflow. The component in excess is small + d, and either d > 0 or the small root is
     about sqrt(T_b / K), far from underflow, so its logarithm is taken directly.
     """
-    small = np.minimum(metal_total_M, ligand_total_M)
-    excess = np.abs(metal_total_M - ligand_total_M)
-    linear = 1.0 + K * excess
-    ln_small = np.log(2.0 * small) - np.log(linear + np.sqrt(linear * linear + 4.0 * K * small))
+    small, excess, denominator = _one_to_one_root_parts(metal_total_M, ligand_total_M, K)
+    ln_small = np.log(2.0 * small) - np.log(denominator)
     ln_large = np.log(np.exp(ln_small) + excess)
-    metal_is_small = metal_total_M <= ligand_total_M
-    return (
-        np.where(metal_is_small, ln_small, ln_large),
-        np.where(metal_is_small, ln_large, ln_small),
-    )
+    return _metal_and_ligand(metal_total_M, ligand_total_M, ln_small, ln_large)
 
 
 def bound_fraction(

@@ -34,7 +34,7 @@ D. A. Skoog, F. J. Holler and S. R. Crouch, Principles of Instrumental Analysis,
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -42,11 +42,13 @@ from numpy.typing import ArrayLike, NDArray
 from planner.inputs import Bench, Device, Instrument
 
 __all__ = [
+    "BENCH_TERMS",
     "PRESETS",
     "PRESET_SOURCES",
     "TECHNIQUES",
     "Preset",
     "bench_terms",
+    "bench_values",
     "preset_bench",
     "reading_sd",
     "technique_sd_mL",
@@ -74,33 +76,22 @@ class Preset:
     temperature_sd_C: float
 
 
-#: The technique presets (names ours). Sources per term in :data:`PRESET_SOURCES`.
-PRESETS: dict[str, Preset] = {
-    "calibrated": Preset(
-        buret_reading_sd_mL=0.01,
-        pipette_rsd=0.0005,
-        piston_rsd=0.002,
-        cuvette_rsd=0.001,
-        blank_offset_sd=0.001,
-        temperature_sd_C=0.2,
-    ),
-    "practised": Preset(
-        buret_reading_sd_mL=0.02,
-        pipette_rsd=0.002,
-        piston_rsd=0.005,
-        cuvette_rsd=0.005,
-        blank_offset_sd=0.003,
-        temperature_sd_C=1.0,
-    ),
-    "novice": Preset(
-        buret_reading_sd_mL=0.05,
-        pipette_rsd=0.01,
-        piston_rsd=0.02,
-        cuvette_rsd=0.02,
-        blank_offset_sd=0.01,
-        temperature_sd_C=2.0,
-    ),
+#: The bench terms in the plan file's order: the fields of :class:`Preset`, and of
+#: :class:`planner.inputs.Bench` beside its ``technique``.
+BENCH_TERMS: tuple[str, ...] = tuple(field.name for field in fields(Preset))
+
+#: The technique presets (names ours), one row a preset, one column a term of
+#: :data:`BENCH_TERMS`. Sources per term in :data:`PRESET_SOURCES`.
+_PRESET_TABLE: dict[str, tuple[float, float, float, float, float, float]] = {
+    # name:        (buret_reading_sd_mL, pipette_rsd, piston_rsd, cuvette_rsd,
+    #               blank_offset_sd, temperature_sd_C)
+    "calibrated": (0.01, 0.0005, 0.002, 0.001, 0.001, 0.2),
+    "practised": (0.02, 0.002, 0.005, 0.005, 0.003, 1.0),
+    "novice": (0.05, 0.01, 0.02, 0.02, 0.01, 2.0),
 }
+
+#: The technique presets by name.
+PRESETS: dict[str, Preset] = {name: Preset(*row) for name, row in _PRESET_TABLE.items()}
 
 #: Technique names the plan file accepts.
 TECHNIQUES = tuple(PRESETS)
@@ -214,17 +205,14 @@ def reading_sd(instrument: Instrument, bench: Bench, absorbance: ArrayLike) -> N
     return np.asarray(np.sqrt(variance), dtype=float)
 
 
+def bench_values(bench: Bench) -> dict[str, float]:
+    """Every bench term of :data:`BENCH_TERMS` -> its value in ``bench``."""
+    return {name: getattr(bench, name) for name in BENCH_TERMS}
+
+
 def bench_terms(bench: Bench) -> tuple[str, ...]:
     """Names of the bench terms that are not zero, in the plan file's order."""
-    values = {
-        "buret_reading_sd_mL": bench.buret_reading_sd_mL,
-        "pipette_rsd": bench.pipette_rsd,
-        "piston_rsd": bench.piston_rsd,
-        "cuvette_rsd": bench.cuvette_rsd,
-        "blank_offset_sd": bench.blank_offset_sd,
-        "temperature_sd_C": bench.temperature_sd_C,
-    }
-    return tuple(name for name, value in values.items() if value > 0)
+    return tuple(name for name, value in bench_values(bench).items() if value > 0)
 
 
 def preset_bench(technique: str) -> Bench:
@@ -236,12 +224,4 @@ def preset_bench(technique: str) -> Bench:
         For a name not in :data:`PRESETS` (the plan-file reader and the CLI offer only those).
     """
     preset = PRESETS[technique]
-    return Bench(
-        technique=technique,
-        buret_reading_sd_mL=preset.buret_reading_sd_mL,
-        pipette_rsd=preset.pipette_rsd,
-        piston_rsd=preset.piston_rsd,
-        cuvette_rsd=preset.cuvette_rsd,
-        blank_offset_sd=preset.blank_offset_sd,
-        temperature_sd_C=preset.temperature_sd_C,
-    )
+    return Bench(technique=technique, **{name: getattr(preset, name) for name in BENCH_TERMS})

@@ -85,9 +85,21 @@ MAX_READINGS = 20_000
 #: the prep sheet (found by fuzzing).
 MIN_PURITY = 0.5
 
+# Value types with their limits, each defined once; a field gives its default and the
+# description its message quotes. Names say the range: ``_Unit`` 0 to 1, ``_Rsd`` a relative
+# SD 0 <= r < 0.5, ``_Fraction`` strictly between 0 and 1.
 _Coefficient = Annotated[int, Field(ge=-COEFFICIENT_LIMIT, le=COEFFICIENT_LIMIT)]
 _Fraction = Annotated[float, Field(gt=0, lt=1)]
 _Absorbance = Annotated[float, Field(ge=0, le=4)]
+_Epsilon = Annotated[float, Field(ge=0, le=EPSILON_LIMIT)]
+_Celsius = Annotated[float, Field(ge=0, le=100)]
+_Positive = Annotated[float, Field(gt=0)]
+_Unit = Annotated[float, Field(ge=0, le=1)]
+_Rsd = Annotated[float, Field(ge=0, lt=0.5)]
+_Tenth = Annotated[float, Field(ge=0, lt=0.1)]
+_Count10 = Annotated[int, Field(ge=1, le=10)]
+_Count100 = Annotated[int, Field(ge=1, le=100)]
+_Count1000 = Annotated[int, Field(ge=1, le=1000)]
 
 
 class _Model(BaseModel):
@@ -107,47 +119,34 @@ class SpeciesModel(_Model):
         description="the coefficient of each reaction component, -20 to 20, "
         'e.g. { "Fe3+" = 1, "SCN-" = 1 }',
     )
-    log_beta: float | None = Field(
+    log_beta: Annotated[float, Field(ge=-LOG_BETA_LIMIT, le=LOG_BETA_LIMIT)] | None = Field(
         None,
-        ge=-LOG_BETA_LIMIT,
-        le=LOG_BETA_LIMIT,
         description="the log10 of the overall formation constant, -60 to 60; give log_beta or K",
     )
-    K: float | None = Field(
+    K: Annotated[float, Field(ge=10.0**-LOG_BETA_LIMIT, le=10.0**LOG_BETA_LIMIT)] | None = Field(
         None,
-        ge=10.0**-LOG_BETA_LIMIT,
-        le=10.0**LOG_BETA_LIMIT,
         description="the overall formation constant beta [(mol/L)^(1-n)], 1e-60 to 1e60; "
         "give K or log_beta",
     )
-    epsilon: float = Field(
-        0.0,
-        ge=0,
-        le=EPSILON_LIMIT,
-        description="the molar absorptivity [L mol-1 cm-1] at the wavelength, 0 to 1e7",
+    epsilon: _Epsilon = Field(
+        0.0, description="the molar absorptivity [L mol-1 cm-1] at the wavelength, 0 to 1e7"
     )
-    log_beta_sd: float = Field(
-        0.1,
-        ge=0,
-        le=3,
-        description="the standard uncertainty of log_beta before the experiment, 0 to 3",
+    log_beta_sd: Annotated[float, Field(ge=0, le=3)] = Field(
+        0.1, description="the standard uncertainty of log_beta before the experiment, 0 to 3"
     )
-    enthalpy_kJ_mol: float | None = Field(
-        None,
-        ge=-500,
-        le=500,
-        description="the standard reaction enthalpy of the formation [kJ/mol], -500 to 500",
+    enthalpy_kJ_mol: Annotated[float, Field(ge=-500, le=500)] | None = Field(
+        None, description="the standard reaction enthalpy of the formation [kJ/mol], -500 to 500"
     )
 
 
 class ReactionModel(_Model):
     """The ``[reaction]`` table: components, product species and their medium."""
 
-    temperature_C: float = Field(
-        25.0, ge=0, le=100, description="the temperature the constants refer to [°C], 0 to 100"
+    temperature_C: _Celsius = Field(
+        25.0, description="the temperature the constants refer to [°C], 0 to 100"
     )
-    ionic_strength_M: float = Field(
-        ge=0, le=10, description="the ionic strength the constants refer to [mol/L], 0 to 10"
+    ionic_strength_M: Annotated[float, Field(ge=0, le=10)] = Field(
+        description="the ionic strength the constants refer to [mol/L], 0 to 10"
     )
     components: list[str] = Field(
         min_length=1,
@@ -159,14 +158,12 @@ class ReactionModel(_Model):
         max_length=MAX_SPECIES,
         description="one [[reaction.species]] table per product species (at most 30)",
     )
-    sit_delta_epsilon_kg_mol: float = Field(
+    sit_delta_epsilon_kg_mol: Annotated[float, Field(ge=-5, le=5)] = Field(
         0.0,
-        ge=-5,
-        le=5,
         description="the SIT interaction coefficient of the formation, products minus "
         "reagents [kg/mol], -5 to 5",
     )
-    component_epsilon: dict[str, Annotated[float, Field(ge=0, le=EPSILON_LIMIT)]] = Field(
+    component_epsilon: dict[str, _Epsilon] = Field(
         default_factory=dict,
         description="a table of molar absorptivities [L mol-1 cm-1] of free components, 0 to 1e7",
     )
@@ -175,11 +172,11 @@ class ReactionModel(_Model):
 class InstrumentModel(_Model):
     """The ``[instrument]`` table: photometer and cuvette."""
 
-    wavelength_nm: float = Field(
-        ge=150, le=3000, description="the working wavelength [nm], 150 to 3000"
+    wavelength_nm: Annotated[float, Field(ge=150, le=3000)] = Field(
+        description="the working wavelength [nm], 150 to 3000"
     )
-    path_length_cm: float = Field(
-        1.0, gt=0, le=10, description="the cuvette path length [cm], > 0 and at most 10"
+    path_length_cm: Annotated[float, Field(gt=0, le=10)] = Field(
+        1.0, description="the cuvette path length [cm], > 0 and at most 10"
     )
     absorbance_window: list[_Absorbance] = Field(
         default_factory=lambda: [0.1, 1.0],
@@ -187,29 +184,22 @@ class InstrumentModel(_Model):
         max_length=2,
         description="the [low, high] linear working range [absorbance units], 0 <= low < high <= 4",
     )
-    absorbance_sd: float = Field(
-        0.003, gt=0, lt=1, description="the standard deviation of one reading, > 0 and < 1"
+    absorbance_sd: _Fraction = Field(
+        0.003, description="the standard deviation of one reading, > 0 and < 1"
     )
-    stray_light: float = Field(
+    stray_light: _Tenth = Field(
+        0.0, description="the stray-light fraction of the incident power, 0 <= s < 0.1"
+    )
+    cuvette_fill_mL: _Positive = Field(
+        3.0, description="the volume that fills the cuvette [mL], > 0"
+    )
+    absorbance_rsd: _Rsd = Field(
         0.0,
-        ge=0,
-        lt=0.1,
-        description="the stray-light fraction of the incident power, 0 <= s < 0.1",
-    )
-    cuvette_fill_mL: float = Field(
-        3.0, gt=0, description="the volume that fills the cuvette [mL], > 0"
-    )
-    absorbance_rsd: float = Field(
-        0.0,
-        ge=0,
-        lt=0.5,
         description="the reading's standard deviation proportional to A, 0 <= r < 0.5 "
         "(0.005 = 0.5 % of the reading)",
     )
-    transmittance_sd: float = Field(
+    transmittance_sd: _Tenth = Field(
         0.0,
-        ge=0,
-        lt=0.1,
         description="the standard deviation of the transmittance reading, constant in T, "
         "0 <= sigma_T < 0.1",
     )
@@ -221,11 +211,8 @@ class SolidModel(_Model):
     formula: str = Field(
         min_length=1, description="the formula of the solid with its water, e.g. 'Fe(NO3)3(H2O)9'"
     )
-    purity: float = Field(
-        1.0,
-        ge=MIN_PURITY,
-        le=1,
-        description="the mass fraction of the named compound, 0.5 <= purity <= 1",
+    purity: Annotated[float, Field(ge=MIN_PURITY, le=1)] = Field(
+        1.0, description="the mass fraction of the named compound, 0.5 <= purity <= 1"
     )
     provides: str = Field(
         "", description="the stock ion this solid supplies (one of the stock's contains_M keys)"
@@ -240,16 +227,11 @@ class StockModel(_Model):
         default_factory=dict,
         description='a table of ion concentrations [mol/L], 0 < c <= 20, e.g. { "H+" = 0.5 }',
     )
-    relative_uncertainty: float = Field(
-        0.0,
-        ge=0,
-        lt=0.5,
-        description="the relative standard uncertainty of the concentrations, 0 <= u < 0.5",
+    relative_uncertainty: _Rsd = Field(
+        0.0, description="the relative standard uncertainty of the concentrations, 0 <= u < 0.5"
     )
-    available_mL: float | None = Field(
-        None,
-        gt=0,
-        description="the volume the prep room can make or has [mL], > 0; omit for no limit",
+    available_mL: _Positive | None = Field(
+        None, description="the volume the prep room can make or has [mL], > 0; omit for no limit"
     )
     solid: SolidModel | None = Field(
         None, description="the solid to weigh out, { formula = ..., purity = ... }"
@@ -261,13 +243,13 @@ class GlasswareModel(_Model):
     """One ``[[glassware]]`` table: one kind of device a bench has."""
 
     kind: str = Field(description="one of " + ", ".join(DEVICE_KINDS))
-    volume_mL: float | None = Field(
-        None, ge=0.001, le=5000, description="the nominal capacity [mL], 0.001 to 5000"
+    volume_mL: Annotated[float, Field(ge=0.001, le=5000)] | None = Field(
+        None, description="the nominal capacity [mL], 0.001 to 5000"
     )
     device_class: Literal["A", "B"] = Field(
         "A", alias="class", description='the tolerance class, "A" or "B"'
     )
-    count: int = Field(1, ge=1, le=1000, description="how many a bench has, 1 to 1000")
+    count: _Count1000 = Field(1, description="how many a bench has, 1 to 1000")
     range_uL: list[_Microlitres] | None = Field(
         None,
         min_length=2,
@@ -275,24 +257,19 @@ class GlasswareModel(_Model):
         description="the [low, high] adjustable range of a piston pipette [µL], "
         "0.01 <= low < high <= 5e6",
     )
-    step_uL: float | None = Field(
+    step_uL: Annotated[float, Field(ge=0.001)] | None = Field(
         None,
-        ge=0.001,
         description="the setting step of a piston pipette [µL], at least 0.001 and at most "
         "range low",
     )
-    division_mL: float | None = Field(
-        None,
-        gt=0,
-        description="the reading resolution of a graduated device [mL], > 0, below capacity",
+    division_mL: _Positive | None = Field(
+        None, description="the reading resolution of a graduated device [mL], > 0, below capacity"
     )
-    min_delivery_mL: float | None = Field(
-        None, gt=0, description="the smallest volume worth delivering [mL], > 0, at most capacity"
+    min_delivery_mL: _Positive | None = Field(
+        None, description="the smallest volume worth delivering [mL], > 0, at most capacity"
     )
-    tolerance_mL: float | None = Field(
-        None,
-        gt=0,
-        description="the maximum permissible error at capacity [mL], > 0, below capacity",
+    tolerance_mL: _Positive | None = Field(
+        None, description="the maximum permissible error at capacity [mL], > 0, below capacity"
     )
 
 
@@ -302,41 +279,32 @@ class IonicMediumModel(_Model):
     salt: Literal["NaNO3", "KNO3", "NaClO4", "LiClO4"] = Field(
         description='the inert salt, one of "NaNO3", "KNO3", "NaClO4", "LiClO4"'
     )
-    ionic_strength_M: float = Field(
-        gt=0, le=6, description="the ionic strength of every stock [mol/L], > 0 and at most 6"
+    ionic_strength_M: Annotated[float, Field(gt=0, le=6)] = Field(
+        description="the ionic strength of every stock [mol/L], > 0 and at most 6"
     )
 
 
 class DesignModel(_Model):
     """The ``[design]`` table: what mixtures to design."""
 
-    standards: int = Field(
-        5, ge=1, le=100, description="the number of calibration standards, 1 to 100"
-    )
-    tests: int = Field(5, ge=1, le=100, description="the number of test mixtures, 1 to 100")
+    standards: _Count100 = Field(5, description="the number of calibration standards, 1 to 100")
+    tests: _Count100 = Field(5, description="the number of test mixtures, 1 to 100")
     limiting: str = Field(
         min_length=1,
         description="the limiting reagent of the standards, one of reaction.components",
     )
-    assumption_tolerance: float = Field(
+    # 1e-6 at least: a ppm is far below any photometric precision, and 5e-324 made the
+    # smallest sufficient excess divide by zero (found by fuzzing).
+    assumption_tolerance: Annotated[float, Field(ge=1e-6, lt=1)] = Field(
         0.02,
-        # 1e-6 at least: a ppm is far below any photometric precision, and 5e-324 made the
-        # smallest sufficient excess divide by zero (found by fuzzing).
-        ge=1e-6,
-        lt=1,
         description="the accepted relative error of 'all of it is bound', 1e-6 <= tol < 1",
     )
     vessel: str = Field("tube", description='"tube" or a volumetric flask such as "flask-25"')
-    total_volume_mL: float | None = Field(
-        None,
-        gt=0,
-        le=5000,
-        description="the volume of every mixture [mL], > 0 (a flask: its volume)",
+    total_volume_mL: Annotated[float, Field(gt=0, le=5000)] | None = Field(
+        None, description="the volume of every mixture [mL], > 0 (a flask: its volume)"
     )
-    bound_fraction_span: float = Field(
+    bound_fraction_span: _Fraction = Field(
         0.25,
-        gt=0,
-        lt=1,
         description="the smallest spread of test bound fractions, 0 < span <= range width",
     )
     bound_fraction_range: list[_Fraction] = Field(
@@ -345,8 +313,8 @@ class DesignModel(_Model):
         max_length=2,
         description="the [low, high] range for test bound fractions, 0 < low < high < 1",
     )
-    ionic_strength_spread: float = Field(
-        0.5, ge=0, le=1, description="the largest accepted (max-min)/max ionic strength, 0 to 1"
+    ionic_strength_spread: _Unit = Field(
+        0.5, description="the largest accepted (max-min)/max ionic strength, 0 to 1"
     )
     measured_species: str | None = Field(
         None,
@@ -354,15 +322,13 @@ class DesignModel(_Model):
         description="the product species whose K the experiment measures, one of "
         "reaction.species (needed when more than one product absorbs)",
     )
-    blanks: int = Field(1, ge=1, le=10, description="the number of reagent blanks, 1 to 10")
+    blanks: _Count10 = Field(1, description="the number of reagent blanks, 1 to 10")
     analysis: Literal["all-bound", "global-fit"] = Field(
         "all-bound",
         description='the analysis the tests are designed for, "all-bound" or "global-fit"',
     )
-    K_bias_tolerance: float = Field(
+    K_bias_tolerance: _Fraction = Field(
         0.10,
-        gt=0,
-        lt=1,
         description="the largest relative error in K the all-bound analysis may carry, 0 to 1",
     )
     criterion: Literal["mse", "variance"] = Field(
@@ -378,32 +344,23 @@ class DesignModel(_Model):
 class SessionModel(_Model):
     """The ``[session]`` table: how many sets the prep room supplies."""
 
-    sections: int = Field(
-        1, ge=1, le=1000, description="the number of sections running the plan, 1 to 1000"
+    sections: _Count1000 = Field(
+        1, description="the number of sections running the plan, 1 to 1000"
     )
-    benches_per_section: int = Field(
-        1, ge=1, le=1000, description="the number of benches in a section, 1 to 1000"
+    benches_per_section: _Count1000 = Field(
+        1, description="the number of benches in a section, 1 to 1000"
     )
-    replicates: int = Field(
-        1, ge=1, le=100, description="the number of full mixture sets per bench, 1 to 100"
+    replicates: _Count100 = Field(
+        1, description="the number of full mixture sets per bench, 1 to 100"
     )
-    margin: float = Field(
-        0.15,
-        ge=0,
-        le=1,
-        description="the extra stock fraction beyond the need, 0 to 1 (0.15 = 15 %)",
+    margin: _Unit = Field(
+        0.15, description="the extra stock fraction beyond the need, 0 to 1 (0.15 = 15 %)"
     )
-    dead_volume_mL: float = Field(
-        5.0,
-        ge=0,
-        le=1000,
-        description="the unusable volume per stock and dispensing device [mL], 0 to 1000",
+    dead_volume_mL: Annotated[float, Field(ge=0, le=1000)] = Field(
+        5.0, description="the unusable volume per stock and dispensing device [mL], 0 to 1000"
     )
-    temperature_C: float | None = Field(
-        None,
-        ge=0,
-        le=100,
-        description="the room's temperature at the benches [°C], 0 to 100",
+    temperature_C: _Celsius | None = Field(
+        None, description="the room's temperature at the benches [°C], 0 to 100"
     )
 
 
@@ -414,32 +371,23 @@ class BenchModel(_Model):
         "practised",
         description='one of "calibrated", "practised", "novice"',
     )
-    buret_reading_sd_mL: float | None = Field(
-        None, ge=0, le=1, description="the SD of one buret reading [mL], 0 to 1"
+    buret_reading_sd_mL: _Unit | None = Field(
+        None, description="the SD of one buret reading [mL], 0 to 1"
     )
-    pipette_rsd: float | None = Field(
-        None, ge=0, lt=0.5, description="the relative SD of a pipette's delivery, 0 to 0.5"
+    pipette_rsd: _Rsd | None = Field(
+        None, description="the relative SD of a pipette's delivery, 0 to 0.5"
     )
-    piston_rsd: float | None = Field(
-        None,
-        ge=0,
-        lt=0.5,
-        description="the relative SD of a piston pipette's delivery, 0 to 0.5",
+    piston_rsd: _Rsd | None = Field(
+        None, description="the relative SD of a piston pipette's delivery, 0 to 0.5"
     )
-    cuvette_rsd: float | None = Field(
-        None,
-        ge=0,
-        lt=0.5,
-        description="the relative SD of a reading from cuvette path and placement, 0 to 0.5",
+    cuvette_rsd: _Rsd | None = Field(
+        None, description="the relative SD of a reading from cuvette path and placement, 0 to 0.5"
     )
-    blank_offset_sd: float | None = Field(
-        None,
-        ge=0,
-        lt=1,
-        description="the SD of the blank cuvette's offset [absorbance units], 0 to 1",
+    blank_offset_sd: Annotated[float, Field(ge=0, lt=1)] | None = Field(
+        None, description="the SD of the blank cuvette's offset [absorbance units], 0 to 1"
     )
-    temperature_sd_C: float | None = Field(
-        None, ge=0, le=20, description="the SD of a bench's temperature [°C], 0 to 20"
+    temperature_sd_C: Annotated[float, Field(ge=0, le=20)] | None = Field(
+        None, description="the SD of a bench's temperature [°C], 0 to 20"
     )
 
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 from planner.inputs import Bench, Device, PlanInputs, Stock
+from planner.lab.bench import bench_values
 from planner.planfile.schema import CLASSLESS_KINDS, DELIVERING_KINDS, GRADUATED_KINDS
 
 __all__ = ["plan_to_mapping"]
@@ -45,11 +46,7 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
                     "log_beta": sp.log_beta,
                     "epsilon": sp.epsilon,
                     "log_beta_sd": sp.log_beta_sd,
-                    **(
-                        {"enthalpy_kJ_mol": sp.enthalpy_kJ_mol}
-                        if sp.enthalpy_kJ_mol is not None
-                        else {}
-                    ),
+                    **_unless_none("enthalpy_kJ_mol", sp.enthalpy_kJ_mol),
                 }
                 for sp in reaction.species
             ],
@@ -82,21 +79,16 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
             "analysis": design.analysis,
             "K_bias_tolerance": design.K_bias_tolerance,
             "criterion": design.criterion,
-            **(
-                {
-                    "ionic_medium": {
-                        "salt": design.ionic_medium.salt,
-                        "ionic_strength_M": design.ionic_medium.ionic_strength_M,
-                    }
-                }
-                if design.ionic_medium is not None
-                else {}
+            **_unless_none(
+                "ionic_medium",
+                None
+                if design.ionic_medium is None
+                else {
+                    "salt": design.ionic_medium.salt,
+                    "ionic_strength_M": design.ionic_medium.ionic_strength_M,
+                },
             ),
-            **(
-                {"measured_species": design.measured_species}
-                if design.measured_species is not None
-                else {}
-            ),
+            **_unless_none("measured_species", design.measured_species),
         },
         "session": {
             "sections": session.sections,
@@ -104,14 +96,15 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
             "replicates": session.replicates,
             "margin": session.margin,
             "dead_volume_mL": session.dead_volume_mL,
-            **(
-                {"temperature_C": session.temperature_C}
-                if session.temperature_C is not None
-                else {}
-            ),
+            **_unless_none("temperature_C", session.temperature_C),
         },
         **_bench_mapping(inputs.bench),
     }
+
+
+def _unless_none(key: str, value: Any) -> dict[str, Any]:
+    """``{key: value}``, or nothing for an unset (``None``) value: a key left out."""
+    return {} if value is None else {key: value}
 
 
 def _bench_mapping(bench: Bench) -> dict[str, Any]:
@@ -121,12 +114,7 @@ def _bench_mapping(bench: Bench) -> dict[str, Any]:
     return {
         "bench": {
             "technique": bench.technique,
-            "buret_reading_sd_mL": bench.buret_reading_sd_mL,
-            "pipette_rsd": bench.pipette_rsd,
-            "piston_rsd": bench.piston_rsd,
-            "cuvette_rsd": bench.cuvette_rsd,
-            "blank_offset_sd": bench.blank_offset_sd,
-            "temperature_sd_C": bench.temperature_sd_C,
+            **bench_values(bench),
         }
     }
 

@@ -25,6 +25,7 @@ from planner.report.plots._style import (
 )
 
 if TYPE_CHECKING:
+    from matplotlib.axes import Axes
     from matplotlib.figure import Figure
 
     from planner.predict.montecarlo import Simulation, Summary
@@ -41,6 +42,18 @@ _BINS = 60
 def _finite(values: NDArray[np.float64]) -> NDArray[np.float64]:
     result: NDArray[np.float64] = values[np.isfinite(values)]
     return result
+
+
+def _true_line(axes: Axes, true_value: float, symbol: str, unit: str) -> None:
+    """The dashed vertical line at the true value, labelled with it."""
+    axes.axvline(
+        true_value,
+        color=_INK,
+        linestyle="--",
+        linewidth=1.4,
+        gid="true",
+        label=f"true {symbol} {significant(true_value, 4)} {unit}",
+    )
 
 
 def histogram_figure(simulation: Simulation, quantity: Literal["K", "epsilon"] = "K") -> Figure:
@@ -102,14 +115,7 @@ def histogram_figure(simulation: Simulation, quantity: Literal["K", "epsilon"] =
                 gid="global_fit",
                 label=f"global fit (mean {significant(summaries[1].mean, 4)} {unit})",
             )
-        axes.axvline(
-            true_value,
-            color=_INK,
-            linestyle="--",
-            linewidth=1.4,
-            gid="true",
-            label=f"true {symbol} {significant(true_value, 4)} {unit}",
-        )
+        _true_line(axes, true_value, symbol, unit)
         top = axes.get_ylim()[1]
         for summary, colour, height, name in (
             (summaries[0], _TEAL, 1.04, "all_bound"),
@@ -201,14 +207,7 @@ def technique_histogram_figure(simulations: Mapping[str, Simulation]) -> Figure:
                 label=f"{name}: 95 % of benches {significant(summary.ci95[0], 4)} to "
                 f"{significant(summary.ci95[1], 4)} L/mol",
             )
-        axes.axvline(
-            true_value,
-            color=_INK,
-            linestyle="--",
-            linewidth=1.4,
-            gid="true",
-            label=f"true K {significant(true_value, 4)} L/mol",
-        )
+        _true_line(axes, true_value, "K", "L/mol")
         axes.set_xlabel("K [L/mol]")
         axes.set_ylabel("benches per bin [count]")
         axes.set_title("Virtual class by bench preset: K", loc="left")
