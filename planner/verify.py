@@ -19,7 +19,7 @@ import dataclasses
 import math
 from collections import Counter, defaultdict
 from collections.abc import Callable, Mapping, Sequence
-from typing import Any
+from typing import Any, TypeVar
 
 import numpy as np
 
@@ -52,7 +52,7 @@ from planner.result import (
     Totals,
     devices_text,
 )
-from planner.verify_global_fit import RecomputedGlobalFit, recompute_global_fit
+from planner.verify_global_fit import recompute_global_fit
 from planner.verify_prediction import (
     RecomputedPrediction,
     bench_log_beta,
@@ -1535,6 +1535,39 @@ def _prediction(
     return Check("prediction", worst, f"{bound.detail}; {fit.detail}")
 
 
+_Stated = TypeVar("_Stated")
+_Made = TypeVar("_Made")
+
+
+def _both_made(
+    label: str,
+    stated: _Stated | None,
+    recomputed: _Made | str,
+    found: Callable[[_Made], str],
+    none_made: str,
+) -> tuple[_Stated, _Made] | Check:
+    """The stated and the fresh prediction when both exist, else the check naming the missing one.
+
+    ``recomputed`` is the fresh derivation or the reason it gives none; ``found`` words the
+    fresh numbers for the warning that the result states none (after an opening bracket).
+    """
+    if stated is None:
+        if isinstance(recomputed, str):
+            return Check("prediction", "pass", f"{none_made}: {recomputed}")
+        return Check(
+            "prediction",
+            "warn",
+            f"the result states no {label}, though the recipes give one ({found(recomputed)}",
+        )
+    if isinstance(recomputed, str):
+        return Check(
+            "prediction",
+            "fail",
+            f"the result states a {label}, but the recipes give none: {recomputed}",
+        )
+    return stated, recomputed
+
+
 def _global_fit_prediction(
     inputs: PlanInputs,
     mixtures: Sequence[Mixture],
@@ -1555,21 +1588,16 @@ def _global_fit_prediction(
             reading_temperature_slope(inputs, state.components),
         )
     )
-    if stated is None:
-        if isinstance(recomputed, RecomputedGlobalFit):
-            return Check(
-                "prediction",
-                "warn",
-                "the result states no global-fit prediction, though the recipes give one "
-                f"(K {recomputed.K:.4g} ± {recomputed.u_K:.2g}): plan again to get it",
-            )
-        return Check("prediction", "pass", f"no global-fit prediction stated: {recomputed}")
-    if isinstance(recomputed, str):
-        return Check(
-            "prediction",
-            "fail",
-            f"the result states a global-fit prediction, but the recipes give none: {recomputed}",
-        )
+    fresh = _both_made(
+        "global-fit prediction",
+        stated,
+        recomputed,
+        lambda made: f"K {made.K:.4g} ± {made.u_K:.2g}): plan again to get it",
+        "no global-fit prediction stated",
+    )
+    if isinstance(fresh, Check):
+        return fresh
+    stated, recomputed = fresh
     problems = [
         f"global fit {key}: {_pair(float(getattr(stated, key)), float(getattr(recomputed, key)))}"
         for key in ("epsilon", "u_epsilon", "K", "u_K")
@@ -1602,21 +1630,16 @@ def _all_bound_prediction(
                 + "), so no answer key can state them: the standards are too far from all "
                 "bound or the tests too close to it",
             )
-    if stated is None:
-        if isinstance(recomputed, RecomputedPrediction):
-            return Check(
-                "prediction",
-                "warn",
-                "the result states no prediction, though the recipes give one (mean K "
-                f"{recomputed.prediction.K:.4g} L/mol): plan again to get the answer key",
-            )
-        return Check("prediction", "pass", f"no prediction stated, and none made: {recomputed}")
-    if isinstance(recomputed, str):
-        return Check(
-            "prediction",
-            "fail",
-            f"the result states a prediction, but the recipes give none: {recomputed}",
-        )
+    made = _both_made(
+        "prediction",
+        stated,
+        recomputed,
+        lambda made: f"mean K {made.prediction.K:.4g} L/mol): plan again to get the answer key",
+        "no prediction stated, and none made",
+    )
+    if isinstance(made, Check):
+        return made
+    stated, recomputed = made
     fresh = recomputed.prediction
     problems = []
     for key in _PREDICTION_NUMBERS:
