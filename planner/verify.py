@@ -1319,21 +1319,24 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
     solid = stock.solid
     salt = _expected_salt(inputs, stock, flask_mL)
     dilution = _dilutions(inputs).get(stock.id)
+    weighs_nothing: dict[str, Any] = {
+        "solid_formula": "",
+        "molar_mass_g_per_mol": 0.0,
+        "purity": 1.0,
+        "mass_g": 0.0,
+    }
     if dilution is not None:
         reagent = [ion for ion in stock.contains_M if ion in inputs.reaction.components]
         return StockPreparation(
             stock=stock.id,
             flask_mL=flask_mL,
             flasks=flasks,
-            solid_formula="",
-            molar_mass_g_per_mol=0.0,
-            purity=1.0,
-            mass_g=0.0,
             provides=reagent[0] if reagent else "",
             concentration_M=stock.contains_M[reagent[0]] if reagent else 0.0,
             medium=medium,
             source=dilution[0],
             aliquot_mL=dilution[1] * flask_mL,
+            **weighs_nothing,
             **salt,
         )
     if solid is None:
@@ -1341,13 +1344,10 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
             stock=stock.id,
             flask_mL=flask_mL,
             flasks=flasks,
-            solid_formula="",
-            molar_mass_g_per_mol=0.0,
-            purity=1.0,
-            mass_g=0.0,
             provides="",
             concentration_M=0.0,
             medium="" if stock.diluent else medium,
+            **weighs_nothing,
             **salt,
         )
     components = inputs.reaction.components
