@@ -33,14 +33,10 @@ from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, medium_label, mix_M
 from planner.chem.species import charge_from_name, molar_mass_g_per_mol, neutralised
 from planner.inputs import Device, PlanInputs, Stock
-from planner.lab.deliveries import MAX_DELIVERIES, delivers
-from planner.lab.glassware import (
-    devices_by_id,
-    is_deliverable,
-    standard_uncertainty_mL,
-    stock_flasks,
-)
+from planner.lab.deliveries import MAX_DELIVERIES, delivers, devices_by_id, is_deliverable
+from planner.lab.glassware import stock_flasks
 from planner.lab.photometer import observed_absorbance, true_absorbance
+from planner.lab.tolerances import standard_uncertainty_mL
 from planner.result import (
     ROLES,
     Addition,

@@ -21,7 +21,7 @@ Error model of one bench's set of mixtures (the same in both methods)
   delivery), triangular with half-width a, u = a/sqrt(6).
 - **Piston pipettes**: ISO 8655-2:2002 gives a systematic limit and a random limit (the latter a
   standard deviation). The systematic error is per device, triangular with half-width equal to
-  the limit (u = limit/sqrt(6), as :func:`planner.lab.glassware.standard_uncertainty_mL`); the
+  the limit (u = limit/sqrt(6), as :func:`planner.lab.tolerances.standard_uncertainty_mL`); the
   random error is per delivery, normal with that standard deviation.
 - **Volumetric flasks** as vessels: every mixture is made up in its own flask, so the flask's
   volume error is independent per mixture, triangular with u = a/sqrt(6); the diluent "to the
@@ -61,7 +61,8 @@ from planner.errors import InvalidInputError
 from planner.forward import predict_readings
 from planner.inputs import Device, PlanInputs
 from planner.lab.bench import reading_sd, technique_sd_mL
-from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
+from planner.lab.deliveries import devices_by_id
+from planner.lab.tolerances import piston_errors_uL, standard_uncertainty_mL
 from planner.result import ROLES, Mixture, Role
 
 __all__ = [
@@ -215,7 +216,7 @@ def delivery_split_mL(device: Device) -> tuple[float, float, bool]:
     Notes
     -----
     The catalogue applies the nominal-volume limits at every setting of a graded device
-    (:mod:`planner.lab.glassware`), so the share of a combined volume that one delivery
+    (:mod:`planner.lab.tolerances`), so the share of a combined volume that one delivery
     carries does not change its uncertainty.
     """
     if device.kind == "piston-pipette":
