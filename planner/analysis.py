@@ -466,12 +466,10 @@ class PooledFit:
 
     Attributes
     ----------
-    epsilon, u_epsilon
-        Molar absorptivity of the measured product and its standard uncertainty
-        [L mol⁻¹ cm⁻¹].
-    K, u_K
-        Its formation constant (the measured species' beta, in its own units) and standard
-        uncertainty.
+    epsilon, u_epsilon, K, u_K
+        The pooled fit's molar absorptivity of the measured product [L mol⁻¹ cm⁻¹] and its
+        formation constant (the measured species' beta, in its own units), each with its
+        standard uncertainty.
     residuals
         Per set, reading minus fitted value of each fitted row (standards, then tests, in its
         layout's order), NaN where the set has no reading [unitless].

@@ -115,14 +115,13 @@ class Delivery:
 
 @dataclass(frozen=True, slots=True)
 class BenchExperiment:
-    """One bench's set of mixtures, as the uncertainty models see it.
+    """One bench's set of mixtures, as the uncertainty models see it (made by
+    :func:`bench_experiment` from the plan and its recipes).
 
     Attributes
     ----------
-    mixture_ids
-        Mixture ids in plan order.
-    stock_ids
-        Stocks in plan order (columns of ``volumes_mL``).
+    mixture_ids, stock_ids
+        Mixture ids and stocks in plan order (the stocks are the columns of ``volumes_mL``).
     components
         Reaction components (columns of ``stock_M`` and ``totals_M``).
     stock_M
