@@ -1535,25 +1535,42 @@ _Stated = TypeVar("_Stated")
 _Made = TypeVar("_Made")
 
 
+# Per analysis: what its prediction is called, what a check says when none is stated nor
+# made, and the unit and the advice after the fresh K when the result states none.
+_PREDICTION_WORDS = {
+    "global-fit": (
+        "global-fit prediction",
+        "no global-fit prediction stated",
+        "): plan again to get it",
+    ),
+    "all-bound": (
+        "prediction",
+        "no prediction stated, and none made",
+        " L/mol): plan again to get the answer key",
+    ),
+}
+
+
 def _both_made(
-    label: str,
+    analysis: str,
     stated: _Stated | None,
     recomputed: _Made | str,
     found: Callable[[_Made], str],
-    none_made: str,
 ) -> tuple[_Stated, _Made] | Check:
     """The stated and the fresh prediction when both exist, else the check naming the missing one.
 
     ``recomputed`` is the fresh derivation or the reason it gives none; ``found`` words the
-    fresh numbers for the warning that the result states none (after an opening bracket).
+    fresh K for the warning that the result states none.
     """
+    label, none_made, advice = _PREDICTION_WORDS[analysis]
     if stated is None:
         if isinstance(recomputed, str):
             return Check("prediction", "pass", f"{none_made}: {recomputed}")
         return Check(
             "prediction",
             "warn",
-            f"the result states no {label}, though the recipes give one ({found(recomputed)}",
+            f"the result states no {label}, though the recipes give one ({found(recomputed)}"
+            + advice,
         )
     if isinstance(recomputed, str):
         return Check(
@@ -1584,16 +1601,10 @@ def _global_fit_prediction(
             reading_temperature_slope(inputs, state.components),
         )
     )
-    fresh = _both_made(
-        "global-fit prediction",
-        stated,
-        recomputed,
-        lambda made: f"K {made.K:.4g} ± {made.u_K:.2g}): plan again to get it",
-        "no global-fit prediction stated",
-    )
-    if isinstance(fresh, Check):
-        return fresh
-    stated, recomputed = fresh
+    both = _both_made("global-fit", stated, recomputed, lambda m: f"K {m.K:.4g} ± {m.u_K:.2g}")
+    if isinstance(both, Check):
+        return both
+    stated, recomputed = both
     problems = [
         f"global fit {key}: {_pair(float(getattr(stated, key)), float(getattr(recomputed, key)))}"
         for key in ("epsilon", "u_epsilon", "K", "u_K")
@@ -1626,13 +1637,7 @@ def _all_bound_prediction(
                 + "), so no answer key can state them: the standards are too far from all "
                 "bound or the tests too close to it",
             )
-    made = _both_made(
-        "prediction",
-        stated,
-        recomputed,
-        lambda made: f"mean K {made.prediction.K:.4g} L/mol): plan again to get the answer key",
-        "no prediction stated, and none made",
-    )
+    made = _both_made("all-bound", stated, recomputed, lambda m: f"mean K {m.prediction.K:.4g}")
     if isinstance(made, Check):
         return made
     stated, recomputed = made
