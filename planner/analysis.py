@@ -232,13 +232,16 @@ class GlobalFitTable:
 
     A_true(eps, lg) = b (eps g(lg) + h(lg)) for each mixture: g the measured product's
     concentration [mol/L], h the absorbance per cm of every other absorber [1/cm]. One spline
-    holds both, columns [g, h], so one call evaluates every mixture.
+    holds both, columns [g, h], so one call evaluates every mixture. The table holds for one
+    set of mixtures (``layout``) on one photometer (``instrument``), which it keeps.
     """
 
     gh: object  # scipy.interpolate.CubicSpline
     low: float
     high: float
     n_mixtures: int
+    layout: Layout
+    instrument: Instrument
 
 
 def global_fit_table(reaction: Reaction, instrument: Instrument, layout: Layout) -> GlobalFitTable:
@@ -267,6 +270,8 @@ def global_fit_table(reaction: Reaction, instrument: Instrument, layout: Layout)
         low=float(nodes[0]),
         high=float(nodes[-1]),
         n_mixtures=n_mix,
+        layout=layout,
+        instrument=instrument,
     )
 
 
@@ -274,17 +279,19 @@ def _fitted_rows(layout: Layout) -> NDArray[np.int64]:
     return np.concatenate([layout.standards, layout.tests])
 
 
+def _eps_scale(layout: Layout) -> float:
+    """The plan's eps, by which the fit divides eps so that both parameters are near 1."""
+    return layout.epsilon_true if layout.epsilon_true > 0 else 1.0
+
+
 def _residuals(
-    table: GlobalFitTable,
-    layout: Layout,
-    instrument: Instrument,
-    theta: NDArray[np.float64],
-    net: NDArray[np.float64],
-    scale: float,
+    table: GlobalFitTable, theta: NDArray[np.float64], net: NDArray[np.float64]
 ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
     """Residuals and their derivatives in eps / scale and in log10 K, each (n, n_fit)."""
-    b = instrument.path_length_cm
-    s = instrument.stray_light
+    layout = table.layout
+    scale = _eps_scale(layout)
+    b = table.instrument.path_length_cm
+    s = table.instrument.stray_light
     n_mix = table.n_mixtures
     epsilon = theta[:, 0:1] * scale
     gh = table.gh
@@ -308,22 +315,15 @@ def _residuals(
 
 
 def global_fit_batch(
-    table: GlobalFitTable,
-    layout: Layout,
-    instrument: Instrument,
-    net: NDArray[np.float64],
-    start: NDArray[np.float64],
+    table: GlobalFitTable, net: NDArray[np.float64], start: NDArray[np.float64]
 ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Vectorised Levenberg-Marquardt global fit of (eps, log10 K) per set; NaN where it fails.
 
     Parameters
     ----------
     table
-        From :func:`global_fit_table` for this layout.
-    layout
-        The set of mixtures.
-    instrument
-        Path length and stray light.
+        From :func:`global_fit_table`: the set of mixtures, the photometer's path length and
+        stray light, and the model tabulated over log10 K.
     net
         Blank-subtracted readings, shape (n_sets, n_mixtures) [unitless].
     start
@@ -336,12 +336,12 @@ def global_fit_batch(
         converge inside the table or gave eps <= 0.
     """
     n = net.shape[0]
-    scale = layout.epsilon_true if layout.epsilon_true > 0 else 1.0
+    scale = _eps_scale(table.layout)
     theta = np.stack([start[:, 0] / scale, np.clip(start[:, 1], table.low, table.high)], axis=1)
     damping = np.full(n, 1e-6)
     active = np.ones(n, dtype=bool)
     converged = np.zeros(n, dtype=bool)
-    residual, j_eps, j_lg = _residuals(table, layout, instrument, theta, net, scale)
+    residual, j_eps, j_lg = _residuals(table, theta, net)
     cost = (residual**2).sum(axis=1)
     for _ in range(_MAX_ITERATIONS):
         idx = np.flatnonzero(active)
@@ -365,9 +365,7 @@ def global_fit_batch(
         candidate[:, 0] = np.maximum(candidate[:, 0], 0.0)
         candidate[:, 1] = np.clip(candidate[:, 1], table.low, table.high)
         with np.errstate(over="ignore", invalid="ignore"):
-            new_r, new_je, new_jl = _residuals(
-                table, layout, instrument, candidate, net[idx], scale
-            )
+            new_r, new_je, new_jl = _residuals(table, candidate, net[idx])
         new_cost = (new_r**2).sum(axis=1)
         better = (new_cost <= cost[idx]) & ~singular  # False for a NaN cost
         accepted = idx[better]
@@ -392,7 +390,6 @@ def global_fit_batch(
 
 def global_fit_starts(
     table: GlobalFitTable,
-    layout: Layout,
     eps_all_bound: NDArray[np.float64],
     k_all_bound: NDArray[np.float64],
     offset: tuple[float, float],
@@ -411,6 +408,7 @@ def global_fit_starts(
         & np.isfinite(eps_all_bound)
         & (eps_all_bound > 0)
     )
+    layout = table.layout
     lg = np.log10(np.where(usable, k_all_bound, 1.0)) + offset[1]
     eps = eps_all_bound + offset[0]
     eps = np.where(usable & (eps > 0), eps, layout.epsilon_true)
@@ -443,18 +441,16 @@ def all_bound_mean_K(
 
 
 def global_fit_start_offset(
-    table: GlobalFitTable,
-    layout: Layout,
-    instrument: Instrument,
-    readings: NDArray[np.float64],
+    table: GlobalFitTable, readings: NDArray[np.float64]
 ) -> tuple[float, float]:
     """(eps, log10 K) of the global fit minus the all-bound analysis on noise-free readings."""
+    layout = table.layout
     net = (readings - readings[layout.blanks].mean())[None, :]
-    eps, k_tests = all_bound_mean_K(layout, net, instrument.path_length_cm)
+    eps, k_tests = all_bound_mean_K(layout, net, table.instrument.path_length_cm)
     with np.errstate(invalid="ignore"):
         k = k_tests.mean(axis=1)
     plan_start = np.array([[layout.epsilon_true, math.log10(layout.K_true)]])
-    fitted_eps, fitted_k = global_fit_batch(table, layout, instrument, net, plan_start)
+    fitted_eps, fitted_k = global_fit_batch(table, net, plan_start)
     if not (np.isfinite(fitted_k[0]) and np.isfinite(k[0]) and k[0] > 0):
         return (0.0, 0.0)
     return (float(fitted_eps[0] - eps[0]), float(math.log10(fitted_k[0] / k[0])))
@@ -466,12 +462,10 @@ class PooledFit:
 
     Attributes
     ----------
-    epsilon, u_epsilon
-        Molar absorptivity of the measured product and its standard uncertainty
-        [L mol⁻¹ cm⁻¹].
-    K, u_K
-        Its formation constant (the measured species' beta, in its own units) and standard
-        uncertainty.
+    epsilon, u_epsilon, K, u_K
+        The pooled fit's molar absorptivity of the measured product [L mol⁻¹ cm⁻¹] and its
+        formation constant (the measured species' beta, in its own units), each with its
+        standard uncertainty.
     residuals
         Per set, reading minus fitted value of each fitted row (standards, then tests, in its
         layout's order), NaN where the set has no reading [unitless].
@@ -631,8 +625,6 @@ def global_fit(
 
 def global_fit_residuals(
     table: GlobalFitTable,
-    layout: Layout,
-    instrument: Instrument,
     net: NDArray[np.float64],
     epsilon: NDArray[np.float64],
     K: NDArray[np.float64],
@@ -641,7 +633,7 @@ def global_fit_residuals(
 
     Parameters
     ----------
-    table, layout, instrument
+    table
         As for :func:`global_fit_batch`.
     net
         Blank-subtracted readings, shape (n_sets, n_mixtures) [unitless].
@@ -653,12 +645,12 @@ def global_fit_residuals(
     NDArray[np.float64]
         Shape (n_sets, n_fitted), standards then tests in layout order [unitless].
     """
-    scale = layout.epsilon_true if layout.epsilon_true > 0 else 1.0
+    scale = _eps_scale(table.layout)
     with np.errstate(divide="ignore", invalid="ignore"):
         lg = np.clip(np.log10(K), table.low, table.high)
     theta = np.stack([np.asarray(epsilon, dtype=float) / scale, lg], axis=1)
     with np.errstate(invalid="ignore"):
-        model_minus_data, _, _ = _residuals(table, layout, instrument, theta, net, scale)
+        model_minus_data, _, _ = _residuals(table, theta, net)
     result: NDArray[np.float64] = np.where(
         np.isfinite(K)[:, None] & np.isfinite(epsilon)[:, None], -model_minus_data, np.nan
     )

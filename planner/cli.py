@@ -711,7 +711,8 @@ def analyse(
     """
 
     def body() -> int:
-        from planner.readings import analyse_class, load_plans, load_readings
+        from planner.readings.analyse import analyse_class
+        from planner.readings.files import load_plans, load_readings
 
         plans = load_plans(plan_folder)
         table = load_readings(readings_file, plans)

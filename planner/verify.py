@@ -19,7 +19,7 @@ import dataclasses
 import math
 from collections import Counter, defaultdict
 from collections.abc import Callable, Mapping, Sequence
-from typing import Any
+from typing import Any, TypeVar
 
 import numpy as np
 
@@ -33,14 +33,10 @@ from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, medium_label, mix_M
 from planner.chem.species import charge_from_name, molar_mass_g_per_mol, neutralised
 from planner.inputs import Device, PlanInputs, Stock
-from planner.lab.deliveries import MAX_DELIVERIES, delivers
-from planner.lab.glassware import (
-    devices_by_id,
-    is_deliverable,
-    standard_uncertainty_mL,
-    stock_flasks,
-)
+from planner.lab.deliveries import MAX_DELIVERIES, delivers, devices_by_id, is_deliverable
+from planner.lab.glassware import stock_flasks
 from planner.lab.photometer import observed_absorbance, true_absorbance
+from planner.lab.tolerances import standard_uncertainty_mL
 from planner.result import (
     ROLES,
     Addition,
@@ -52,7 +48,7 @@ from planner.result import (
     Totals,
     devices_text,
 )
-from planner.verify_global_fit import RecomputedGlobalFit, recompute_global_fit
+from planner.verify_global_fit import recompute_global_fit
 from planner.verify_prediction import (
     RecomputedPrediction,
     bench_log_beta,
@@ -1319,21 +1315,24 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
     solid = stock.solid
     salt = _expected_salt(inputs, stock, flask_mL)
     dilution = _dilutions(inputs).get(stock.id)
+    weighs_nothing: dict[str, Any] = {
+        "solid_formula": "",
+        "molar_mass_g_per_mol": 0.0,
+        "purity": 1.0,
+        "mass_g": 0.0,
+    }
     if dilution is not None:
         reagent = [ion for ion in stock.contains_M if ion in inputs.reaction.components]
         return StockPreparation(
             stock=stock.id,
             flask_mL=flask_mL,
             flasks=flasks,
-            solid_formula="",
-            molar_mass_g_per_mol=0.0,
-            purity=1.0,
-            mass_g=0.0,
             provides=reagent[0] if reagent else "",
             concentration_M=stock.contains_M[reagent[0]] if reagent else 0.0,
             medium=medium,
             source=dilution[0],
             aliquot_mL=dilution[1] * flask_mL,
+            **weighs_nothing,
             **salt,
         )
     if solid is None:
@@ -1341,13 +1340,10 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
             stock=stock.id,
             flask_mL=flask_mL,
             flasks=flasks,
-            solid_formula="",
-            molar_mass_g_per_mol=0.0,
-            purity=1.0,
-            mass_g=0.0,
             provides="",
             concentration_M=0.0,
             medium="" if stock.diluent else medium,
+            **weighs_nothing,
             **salt,
         )
     components = inputs.reaction.components
@@ -1535,6 +1531,56 @@ def _prediction(
     return Check("prediction", worst, f"{bound.detail}; {fit.detail}")
 
 
+_Stated = TypeVar("_Stated")
+_Made = TypeVar("_Made")
+
+
+# Per analysis: what its prediction is called, what a check says when none is stated nor
+# made, and the unit and the advice after the fresh K when the result states none.
+_PREDICTION_WORDS = {
+    "global-fit": (
+        "global-fit prediction",
+        "no global-fit prediction stated",
+        "): plan again to get it",
+    ),
+    "all-bound": (
+        "prediction",
+        "no prediction stated, and none made",
+        " L/mol): plan again to get the answer key",
+    ),
+}
+
+
+def _both_made(
+    analysis: str,
+    stated: _Stated | None,
+    recomputed: _Made | str,
+    found: Callable[[_Made], str],
+) -> tuple[_Stated, _Made] | Check:
+    """The stated and the fresh prediction when both exist, else the check naming the missing one.
+
+    ``recomputed`` is the fresh derivation or the reason it gives none; ``found`` words the
+    fresh K for the warning that the result states none.
+    """
+    label, none_made, advice = _PREDICTION_WORDS[analysis]
+    if stated is None:
+        if isinstance(recomputed, str):
+            return Check("prediction", "pass", f"{none_made}: {recomputed}")
+        return Check(
+            "prediction",
+            "warn",
+            f"the result states no {label}, though the recipes give one ({found(recomputed)}"
+            + advice,
+        )
+    if isinstance(recomputed, str):
+        return Check(
+            "prediction",
+            "fail",
+            f"the result states a {label}, but the recipes give none: {recomputed}",
+        )
+    return stated, recomputed
+
+
 def _global_fit_prediction(
     inputs: PlanInputs,
     mixtures: Sequence[Mixture],
@@ -1555,21 +1601,10 @@ def _global_fit_prediction(
             reading_temperature_slope(inputs, state.components),
         )
     )
-    if stated is None:
-        if isinstance(recomputed, RecomputedGlobalFit):
-            return Check(
-                "prediction",
-                "warn",
-                "the result states no global-fit prediction, though the recipes give one "
-                f"(K {recomputed.K:.4g} ± {recomputed.u_K:.2g}): plan again to get it",
-            )
-        return Check("prediction", "pass", f"no global-fit prediction stated: {recomputed}")
-    if isinstance(recomputed, str):
-        return Check(
-            "prediction",
-            "fail",
-            f"the result states a global-fit prediction, but the recipes give none: {recomputed}",
-        )
+    both = _both_made("global-fit", stated, recomputed, lambda m: f"K {m.K:.4g} ± {m.u_K:.2g}")
+    if isinstance(both, Check):
+        return both
+    stated, recomputed = both
     problems = [
         f"global fit {key}: {_pair(float(getattr(stated, key)), float(getattr(recomputed, key)))}"
         for key in ("epsilon", "u_epsilon", "K", "u_K")
@@ -1602,21 +1637,10 @@ def _all_bound_prediction(
                 + "), so no answer key can state them: the standards are too far from all "
                 "bound or the tests too close to it",
             )
-    if stated is None:
-        if isinstance(recomputed, RecomputedPrediction):
-            return Check(
-                "prediction",
-                "warn",
-                "the result states no prediction, though the recipes give one (mean K "
-                f"{recomputed.prediction.K:.4g} L/mol): plan again to get the answer key",
-            )
-        return Check("prediction", "pass", f"no prediction stated, and none made: {recomputed}")
-    if isinstance(recomputed, str):
-        return Check(
-            "prediction",
-            "fail",
-            f"the result states a prediction, but the recipes give none: {recomputed}",
-        )
+    made = _both_made("all-bound", stated, recomputed, lambda m: f"mean K {m.prediction.K:.4g}")
+    if isinstance(made, Check):
+        return made
+    stated, recomputed = made
     fresh = recomputed.prediction
     problems = []
     for key in _PREDICTION_NUMBERS:

@@ -38,7 +38,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.inputs import PlanInputs
-from planner.lab.glassware import standard_uncertainty_mL
+from planner.lab.tolerances import standard_uncertainty_mL
 from planner.result import Mixture
 from planner.verify_prediction import bench_log_beta, reading_noise_sd
 

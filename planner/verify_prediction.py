@@ -12,7 +12,7 @@ disagreement instead of being copied:
   absorbances (not the stated ones);
 - the sensitivity coefficients are derived by hand (written out below), not by sympy;
 - the error model's inputs are re-listed from the recipes, the shelf and the tolerance tables
-  of :mod:`planner.lab.glassware`.
+  of :mod:`planner.lab.tolerances`.
 
 What is shared with the design is the *definition* of the prediction, which any
 re-derivation has to share: the all-bound analysis and the error model of docs/methods.md
@@ -72,7 +72,8 @@ from numpy.typing import NDArray
 from planner.chem.activity import log_beta_in_medium
 from planner.chem.species import charge_from_name
 from planner.inputs import Device, PlanInputs
-from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
+from planner.lab.deliveries import devices_by_id
+from planner.lab.tolerances import piston_errors_uL, standard_uncertainty_mL
 from planner.result import Addition, Mixture, Prediction
 
 __all__ = [

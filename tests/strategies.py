@@ -7,7 +7,7 @@ ranges are physical ones, not the widest the plan file accepts:
   ``K`` or as ``log_beta``;
 - stock concentrations from 1e-8 to 5 mol/L;
 - shelves of one to thirty distinct devices whose kinds and sizes appear in the tolerance
-  tables of :mod:`planner.lab.glassware`, so that no device lacks a tolerance.
+  tables of :mod:`planner.lab.tolerances`, so that no device lacks a tolerance.
 
 :func:`plan_dicts` draws a plan as the nested ``dict`` that :func:`tomllib.loads` would give;
 :func:`toml_text` writes such a dict as TOML text (no third-party TOML writer is needed for
@@ -237,7 +237,7 @@ def formation_constants() -> st.SearchStrategy[float]:
 # Glassware
 # ---------------------------------------------------------------------------------------------
 
-# Sizes that the default (ISO) tolerance tables of planner.lab.glassware hold [mL]; piston
+# Sizes that the default (ISO) tolerance tables of planner.lab.tolerances hold [mL]; piston
 # pipettes as (low, high, step) [µL] with a nominal volume of ISO 8655-2 Table 1.
 _TABLE_SIZES_mL = {
     "transfer-pipette": (0.5, 1.0, 2.0, 5.0, 10.0, 20.0, 25.0, 50.0, 100.0),

@@ -118,7 +118,7 @@ def test_vectorised_global_fit_matches_scipy_least_squares():
     table = global_fit_table(REACTION, INSTRUMENT, layout)
     net = sets - sets[:, layout.blanks].mean(axis=1, keepdims=True)
     start = np.tile([4000.0, 2.0], (5, 1))
-    eps, k = global_fit_batch(table, layout, INSTRUMENT, net, start)
+    eps, k = global_fit_batch(table, net, start)
     for row in range(5):
         ref_eps, ref_k = global_fit(REACTION, INSTRUMENT, layout, sets[row])
         # The table's spline error is below 1e-7 relative; the fits agree far inside the noise.

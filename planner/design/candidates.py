@@ -27,8 +27,8 @@ from planner.chem.mixing import IonTable, ion_table, ionic_strength_after_reacti
 from planner.forward import predict_readings
 from planner.inputs import Bench, Device, PlanInputs, Stock
 from planner.lab.bench import reading_sd, technique_sd_mL
-from planner.lab.deliveries import Delivery, VolumeTable, volume_table
-from planner.lab.glassware import devices_by_id, standard_uncertainty_mL
+from planner.lab.deliveries import Delivery, VolumeTable, devices_by_id, volume_table
+from planner.lab.tolerances import standard_uncertainty_mL
 
 __all__ = [
     "MIN_REAGENT_SHARE",

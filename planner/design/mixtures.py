@@ -103,14 +103,8 @@ def per_mixture_relative_u_K(
         u(K)/K per candidate, shape (len(indices),) [unitless]; inf where undefined.
     """
     ev = candidates.evaluation
-    reaction = inputs.reaction
-    limiting = reaction.components.index(inputs.design.limiting)
-    coloured = inputs.measured
-    excess = reaction.components.index(inputs.excess) if inputs.excess is not None else limiting
-    x = ev.species_M[indices, coloured]
-    m0 = ev.total_M[indices, excess]
-    l0 = ev.total_M[indices, limiting]
-    s_x, s_m, s_l = all_bound_K_log_sensitivities(x, m0, l0)
+    excess, limiting = _excess_and_limiting(inputs)
+    s_x, s_m, s_l = _K_log_sensitivities(inputs, candidates, indices)
     a_net = np.maximum(ev.true_absorbance[indices], 1e-12)
     u_x = reading_sd(inputs.instrument, inputs.bench, ev.absorbance[indices]) / a_net
     u_m = candidates.u_relative_total[indices, excess]
@@ -159,10 +153,7 @@ class MeanKObjective:
     def __call__(
         self, inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
     ) -> float:
-        own = per_mixture_relative_u_K(inputs, candidates, indices)
-        sensitivity = _x_sensitivity(inputs, candidates, indices)
-        n = max(len(indices), 1)
-        return float(self.combine(np.array(np.sum(own**2)), np.array(np.sum(sensitivity)), n))
+        return float(self.combine(*_set_sums(inputs, candidates, indices)))
 
 
 def mean_K_objective(epsilon_relative_u: float) -> MeanKObjective:
@@ -343,17 +334,8 @@ class MeanSquaredErrorObjective(MeanKObjective):
     def __call__(
         self, inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
     ) -> float:
-        own = per_mixture_relative_u_K(inputs, candidates, indices)
-        sensitivity = _x_sensitivity(inputs, candidates, indices)
-        n = max(len(indices), 1)
-        return float(
-            self.combine_mse(
-                np.array(np.sum(own**2)),
-                np.array(np.sum(sensitivity)),
-                self.bias[:, indices].sum(axis=1),
-                n,
-            )
-        )
+        own, sensitivity, n = _set_sums(inputs, candidates, indices)
+        return float(self.combine_mse(own, sensitivity, self.bias[:, indices].sum(axis=1), n))
 
 
 def mse_objective(
@@ -447,36 +429,63 @@ def _x_sensitivity(
     inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
 ) -> NDArray[np.float64]:
     """d ln K/d ln x = 1 + x/(M0 - x) + x/(L0 - x) of each test (see per_mixture_relative_u_K)."""
+    return _K_log_sensitivities(inputs, candidates, indices)[0]
+
+
+def _set_sums(
+    inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
+) -> tuple[NDArray[np.float64], NDArray[np.float64], int]:
+    """A set's sum of own (u(K)/K)^2, its sum of d ln K/d ln x and its size (at least 1)."""
+    own = per_mixture_relative_u_K(inputs, candidates, indices)
+    sensitivity = _x_sensitivity(inputs, candidates, indices)
+    return np.array(np.sum(own**2)), np.array(np.sum(sensitivity)), max(len(indices), 1)
+
+
+def _excess_and_limiting(inputs: PlanInputs) -> tuple[int, int]:
+    """Columns of the component in excess and of the limiting one (the same when none is)."""
+    components = inputs.reaction.components
+    limiting = components.index(inputs.design.limiting)
+    excess = components.index(inputs.excess) if inputs.excess is not None else limiting
+    return excess, limiting
+
+
+def _K_log_sensitivities(
+    inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
+) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+    """d ln K/d ln x, d ln M0 and d ln L0 of each candidate (all_bound_K_log_sensitivities)."""
     ev = candidates.evaluation
-    reaction = inputs.reaction
-    limiting = reaction.components.index(inputs.design.limiting)
-    coloured = inputs.measured
-    excess = reaction.components.index(inputs.excess) if inputs.excess is not None else limiting
-    x = ev.species_M[indices, coloured]
-    s_x, _, _ = all_bound_K_log_sensitivities(
-        x, ev.total_M[indices, excess], ev.total_M[indices, limiting]
+    excess, limiting = _excess_and_limiting(inputs)
+    return all_bound_K_log_sensitivities(
+        ev.species_M[indices, inputs.measured],
+        ev.total_M[indices, excess],
+        ev.total_M[indices, limiting],
     )
-    return s_x
+
+
+def _each_swap(
+    score: Callable[[list[int], int], NDArray[np.float64]],
+) -> Callable[[list[int]], NDArray[np.float64]]:
+    """Rows of ``score(others, n)`` for each member left out in turn (see _swap_search).
+
+    ``others`` are the members kept when one slot is swapped, ``n`` the size of the set.
+    """
+
+    def swaps(members: list[int]) -> NDArray[np.float64]:
+        n = len(members)
+        return np.array([score(members[:slot] + members[slot + 1 :], n) for slot in range(n)])
+
+    return swaps
 
 
 def _mean_K_swaps(
     objective: MeanKObjective, own: NDArray[np.float64], sensitivity: NDArray[np.float64]
 ) -> Callable[[list[int]], NDArray[np.float64]]:
     """Scores of every single swap of a set for the default objective (see _swap_search)."""
-
-    def swaps(members: list[int]) -> NDArray[np.float64]:
-        n = len(members)
-        rows = []
-        for slot in range(n):
-            others = members[:slot] + members[slot + 1 :]
-            rows.append(
-                objective.combine(
-                    np.sum(own[others] ** 2) + own**2, np.sum(sensitivity[others]) + sensitivity, n
-                )
-            )
-        return np.array(rows)
-
-    return swaps
+    return _each_swap(
+        lambda others, n: objective.combine(
+            np.sum(own[others] ** 2) + own**2, np.sum(sensitivity[others]) + sensitivity, n
+        )
+    )
 
 
 def _mse_swaps(
@@ -487,23 +496,14 @@ def _mse_swaps(
 ) -> Callable[[list[int]], NDArray[np.float64]]:
     """Scores of every single swap of a set for the MSE objective (see _swap_search)."""
     bias = objective.bias[:, pool]
-
-    def swaps(members: list[int]) -> NDArray[np.float64]:
-        n = len(members)
-        rows = []
-        for slot in range(n):
-            others = members[:slot] + members[slot + 1 :]
-            rows.append(
-                objective.combine_mse(
-                    np.sum(own[others] ** 2) + own**2,
-                    np.sum(sensitivity[others]) + sensitivity,
-                    bias[:, others].sum(axis=1)[:, None] + bias,
-                    n,
-                )
-            )
-        return np.array(rows)
-
-    return swaps
+    return _each_swap(
+        lambda others, n: objective.combine_mse(
+            np.sum(own[others] ** 2) + own**2,
+            np.sum(sensitivity[others]) + sensitivity,
+            bias[:, others].sum(axis=1)[:, None] + bias,
+            n,
+        )
+    )
 
 
 def _swap_search(

@@ -521,8 +521,9 @@ def _check_device_model(field: str, device: Device) -> None:
     division so fine that its readings cannot be listed, was only noticed deep in the design,
     with a message naming ``volume_mL`` instead of the [[glassware]] entry.
     """
-    # Imported here: planner.lab.glassware is only needed once the structure is valid.
-    from planner.lab.glassware import reading_count, standard_uncertainty_mL
+    # Imported here: the glassware model is only needed once the structure is valid.
+    from planner.lab.deliveries import reading_count
+    from planner.lab.tolerances import standard_uncertainty_mL
 
     piston = device.kind == "piston-pipette"
     try:
@@ -688,7 +689,7 @@ def _check_flask(vessel: str, flask_mL: float, devices: Sequence[Device]) -> Non
     ISO 1042 table (planner.design.candidates.flask_device); a size the table lacks used to
     fail deep in the design with a message naming ``volume_mL``.
     """
-    from planner.lab.glassware import standard_uncertainty_mL
+    from planner.lab.tolerances import standard_uncertainty_mL
 
     on_shelf = any(
         device.kind == "volumetric-flask" and abs(device.volume_mL - flask_mL) < 1e-9
@@ -742,7 +743,7 @@ def _check_species_use(reaction: Reaction, stocks: Sequence[Stock], limiting: st
 
 def _check_combinations(devices: Sequence[Device], total_mL: float) -> None:
     """The shelf's delivery combinations must be few enough to list (found by fuzzing)."""
-    from planner.lab.glassware import MAX_COMBINATIONS, combination_count
+    from planner.lab.deliveries import MAX_COMBINATIONS, combination_count
 
     count = combination_count(devices, max_volume_mL=total_mL)
     if count > MAX_COMBINATIONS:

@@ -21,7 +21,7 @@ Error model of one bench's set of mixtures (the same in both methods)
   delivery), triangular with half-width a, u = a/sqrt(6).
 - **Piston pipettes**: ISO 8655-2:2002 gives a systematic limit and a random limit (the latter a
   standard deviation). The systematic error is per device, triangular with half-width equal to
-  the limit (u = limit/sqrt(6), as :func:`planner.lab.glassware.standard_uncertainty_mL`); the
+  the limit (u = limit/sqrt(6), as :func:`planner.lab.tolerances.standard_uncertainty_mL`); the
   random error is per delivery, normal with that standard deviation.
 - **Volumetric flasks** as vessels: every mixture is made up in its own flask, so the flask's
   volume error is independent per mixture, triangular with u = a/sqrt(6); the diluent "to the
@@ -61,7 +61,8 @@ from planner.errors import InvalidInputError
 from planner.forward import predict_readings
 from planner.inputs import Device, PlanInputs
 from planner.lab.bench import reading_sd, technique_sd_mL
-from planner.lab.glassware import devices_by_id, piston_errors_uL, standard_uncertainty_mL
+from planner.lab.deliveries import devices_by_id
+from planner.lab.tolerances import piston_errors_uL, standard_uncertainty_mL
 from planner.result import ROLES, Mixture, Role
 
 __all__ = [
@@ -114,14 +115,13 @@ class Delivery:
 
 @dataclass(frozen=True, slots=True)
 class BenchExperiment:
-    """One bench's set of mixtures, as the uncertainty models see it.
+    """One bench's set of mixtures, as the uncertainty models see it (made by
+    :func:`bench_experiment` from the plan and its recipes).
 
     Attributes
     ----------
-    mixture_ids
-        Mixture ids in plan order.
-    stock_ids
-        Stocks in plan order (columns of ``volumes_mL``).
+    mixture_ids, stock_ids
+        Mixture ids and stocks in plan order (the stocks are the columns of ``volumes_mL``).
     components
         Reaction components (columns of ``stock_M`` and ``totals_M``).
     stock_M
@@ -215,7 +215,7 @@ def delivery_split_mL(device: Device) -> tuple[float, float, bool]:
     Notes
     -----
     The catalogue applies the nominal-volume limits at every setting of a graded device
-    (:mod:`planner.lab.glassware`), so the share of a combined volume that one delivery
+    (:mod:`planner.lab.tolerances`), so the share of a combined volume that one delivery
     carries does not change its uncertainty.
     """
     if device.kind == "piston-pipette":

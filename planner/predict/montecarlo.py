@@ -501,11 +501,7 @@ def simulate(
     eps_global_fit = np.empty(trials)
     k_global_fit = np.empty(trials)
     table = global_fit_table(inputs.reaction, inputs.instrument, layout) if global_fit else None
-    offset = (
-        global_fit_start_offset(table, layout, inputs.instrument, ex.readings)
-        if table is not None
-        else (0.0, 0.0)
-    )
+    offset = global_fit_start_offset(table, ex.readings) if table is not None else (0.0, 0.0)
     # One stock batch per class of consecutive trials; a class that straddles two chunks
     # keeps the batch drawn in the first.
     class_size = inputs.session.sets
@@ -532,10 +528,8 @@ def simulate(
         k_all_bound[chunk] = k_mean
         k_tests[chunk] = k
         if table is not None:
-            starts = global_fit_starts(table, layout, eps, k_mean, offset)
-            eps_global_fit[chunk], k_global_fit[chunk] = global_fit_batch(
-                table, layout, inputs.instrument, net, starts
-            )
+            starts = global_fit_starts(table, eps, k_mean, offset)
+            eps_global_fit[chunk], k_global_fit[chunk] = global_fit_batch(table, net, starts)
         else:
             eps_global_fit[chunk] = k_global_fit[chunk] = np.nan
         if progress is not None:

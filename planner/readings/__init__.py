@@ -8,46 +8,6 @@
   :class:`ClassAnalysis` (:func:`analyse_class`): each bench by both analyses of
   :mod:`planner.analysis`, compared with its section's answer key, flagged with the likely
   cause; the class's statistics and the pooled global fit.
+
+Callers import each name from the submodule that defines it.
 """
-
-from __future__ import annotations
-
-from planner.readings.analyse import (
-    BenchResult,
-    ClassAnalysis,
-    ClassStatistic,
-    Estimate,
-    Flag,
-    MixtureResult,
-    Pooled,
-    analyse_class,
-)
-from planner.readings.files import load_plans, load_readings, section_shapes
-from planner.readings.table import (
-    COLUMNS,
-    Reading,
-    ReadingsTable,
-    Rejection,
-    SectionShape,
-    parse_readings,
-)
-
-__all__ = [
-    "COLUMNS",
-    "BenchResult",
-    "ClassAnalysis",
-    "ClassStatistic",
-    "Estimate",
-    "Flag",
-    "MixtureResult",
-    "Pooled",
-    "Reading",
-    "ReadingsTable",
-    "Rejection",
-    "SectionShape",
-    "analyse_class",
-    "load_plans",
-    "load_readings",
-    "parse_readings",
-    "section_shapes",
-]

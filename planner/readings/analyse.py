@@ -474,10 +474,10 @@ def _analyse_group(
     fitted = layout.standards.size + layout.tests.size
     if fitted >= 2:
         table: GlobalFitTable = global_fit_table(inputs.reaction, instrument, layout)
-        offset = global_fit_start_offset(table, layout, instrument, section.predicted[rows])
-        starts = global_fit_starts(table, layout, eps, k_mean, offset)
-        eps_gf, k_gf = global_fit_batch(table, layout, instrument, net, starts)
-        residuals = global_fit_residuals(table, layout, instrument, net, eps_gf, k_gf)
+        offset = global_fit_start_offset(table, section.predicted[rows])
+        starts = global_fit_starts(table, eps, k_mean, offset)
+        eps_gf, k_gf = global_fit_batch(table, net, starts)
+        residuals = global_fit_residuals(table, net, eps_gf, k_gf)
     else:
         eps_gf = k_gf = np.full(n, np.nan)
         residuals = np.full((n, fitted), np.nan)

@@ -69,17 +69,17 @@ class SectionShape:
 
     Attributes
     ----------
-    mixtures
-        The ids of the section's mixtures, in plan order.
     benches
         Benches in the section (numbered from 1).
     replicates
         Sets of mixtures per bench (numbered from 1).
+    mixtures
+        The ids of the section's mixtures, in plan order.
     """
 
-    mixtures: tuple[str, ...]
     benches: int
     replicates: int
+    mixtures: tuple[str, ...]
 
 
 @dataclass(frozen=True, slots=True)

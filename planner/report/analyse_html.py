@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from planner.readings import ClassAnalysis, ClassStatistic, Estimate
+from planner.readings.analyse import ClassAnalysis, ClassStatistic, Estimate
 from planner.report._format import significant
 from planner.report.analyse_json import analysis_json, bench_csv
 from planner.report.sheets import _render

@@ -11,7 +11,7 @@ import io
 import math
 from typing import Any
 
-from planner.readings import BenchResult, ClassAnalysis, ClassStatistic, Estimate, Flag
+from planner.readings.analyse import BenchResult, ClassAnalysis, ClassStatistic, Estimate, Flag
 from planner.report._format import csv_text
 from planner.report.jsonout import dumps
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from planner.readings import ClassAnalysis, ClassStatistic
+from planner.readings.analyse import ClassAnalysis, ClassStatistic
 from planner.report._format import significant
 
 __all__ = ["render_analysis"]

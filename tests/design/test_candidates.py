@@ -69,7 +69,7 @@ LARGE_SHELF = [
 
 
 def test_candidate_work_is_bounded_by_distinct_volumes():
-    from planner.lab.glassware import MAX_DELIVERIES, volume_table
+    from planner.lab.deliveries import MAX_DELIVERIES, volume_table
 
     inputs = _plan("tube", LARGE_SHELF)
     table = volume_table(inputs.glassware, max_volume_mL=10.0)

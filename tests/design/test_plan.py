@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from planner.chem.equilibrium import one_to_one_complex_M
-from planner.lab.glassware import is_deliverable
+from planner.lab.deliveries import is_deliverable
 from planner.pipeline import design_plan
 from planner.planfile import load_plan, plan_from_mapping, plan_to_mapping
 

@@ -1,4 +1,6 @@
-"""Tests of planner.lab.glassware: tolerance tables, grids and deliverable volumes.
+"""Tests of the glassware model (planner.lab.tolerances, .deliveries, .glassware).
+
+Tolerance tables, grids and deliverable volumes.
 
 Reference values name their source beside them. Values that could not be checked against the
 standard's text are marked "from memory", as they are in the module.
@@ -16,27 +18,29 @@ from hypothesis import strategies as st
 
 from planner.errors import InvalidInputError
 from planner.inputs import Device
-from planner.lab.glassware import (
+from planner.lab.deliveries import (
     MAX_COMBINATIONS,
     MAX_DELIVERIES,
-    ASTM_TOLERANCES_mL,
     DeliverableVolume,
-    ISO_8655_2_ERRORS_uL,
-    ISO_TOLERANCES_mL,
     combination_count,
     combination_uncertainty_mL,
     deliverable_volumes,
     delivers,
     devices_by_id,
     is_deliverable,
-    piston_errors_uL,
     reading_count,
     single_volumes_mL,
+    volume_table,
+)
+from planner.lab.glassware import stock_flasks
+from planner.lab.tolerances import (
+    ASTM_TOLERANCES_mL,
+    ISO_8655_2_ERRORS_uL,
+    ISO_TOLERANCES_mL,
+    piston_errors_uL,
     standard_uncertainty_mL,
-    stock_flasks,
     table_tolerance_mL,
     tolerance_mL,
-    volume_table,
 )
 
 

@@ -17,7 +17,8 @@ from uncertainties import ufloat
 
 from planner.chem.equilibrium import solve_equilibrium
 from planner.errors import InvalidInputError
-from planner.lab.glassware import devices_by_id, piston_errors_uL, tolerance_mL
+from planner.lab.deliveries import devices_by_id
+from planner.lab.tolerances import piston_errors_uL, tolerance_mL
 from planner.predict.uncertainty import (
     COVERAGE_FACTOR_95,
     prediction_from,

@@ -17,7 +17,9 @@ from scipy.optimize import least_squares
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.readings import analyse_class, load_plans, parse_readings, section_shapes
+from planner.readings.analyse import analyse_class
+from planner.readings.files import load_plans, section_shapes
+from planner.readings.table import parse_readings
 from tests.readings.classes import Fault, Section, class_rows, complex_M, reading, rows_csv
 
 RUNNER = CliRunner()

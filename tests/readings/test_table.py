@@ -8,9 +8,9 @@ from typer.testing import CliRunner
 
 from planner.cli import app
 from planner.errors import ReadingsFileError
-from planner.readings import SectionShape, parse_readings
+from planner.readings.table import SectionShape, parse_readings
 
-SHAPES = {1: SectionShape(("B1", "S1", "S2", "T1", "T2"), benches=2, replicates=1)}
+SHAPES = {1: SectionShape(benches=2, replicates=1, mixtures=("B1", "S1", "S2", "T1", "T2"))}
 HEADER = "section,bench,replicate,mixture,absorbance\n"
 GOOD = "".join(
     f"1,{bench},1,{m},{value}\n"

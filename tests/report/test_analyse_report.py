@@ -7,7 +7,9 @@ import numpy as np
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.readings import analyse_class, load_plans, parse_readings, section_shapes
+from planner.readings.analyse import analyse_class
+from planner.readings.files import load_plans, section_shapes
+from planner.readings.table import parse_readings
 from planner.report.analyse_html import analysis_files
 from planner.report.browser import PRINTABLE_WIDTH_PX, chromium_path, measure_layout
 from tests.readings.classes import Fault, Section, class_rows, rows_csv

@@ -27,7 +27,7 @@ from planner.report.plots._style import (
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
 
-    from planner.readings import ClassAnalysis
+    from planner.readings.analyse import ClassAnalysis
 
 
 def bench_K_figure(result: ClassAnalysis) -> Figure:
