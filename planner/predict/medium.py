@@ -75,6 +75,8 @@ def _global_fit_K(inputs: PlanInputs, layout: Layout, readings: NDArray[np.float
         if not np.all(np.isfinite(step)):
             return math.nan
         epsilon, shift = epsilon + float(step[0]), shift + float(step[1])
+        if abs(shift) > _LARGEST_SHIFT:
+            return math.nan  # the fit ran away: no medium share worth reporting
         if abs(step[1]) < _LOG_K_TOLERANCE and abs(step[0]) <= _LOG_K_TOLERANCE * abs(epsilon):
             return float(layout.K_true * 10.0**shift)
     return math.nan
@@ -83,6 +85,8 @@ def _global_fit_K(inputs: PlanInputs, layout: Layout, readings: NDArray[np.float
 #: Gauss-Newton steps allowed, and the change of log10 K (and relative change of eps) below
 #: which the fit has settled (1e-10: far below any bias worth reporting).
 _MAX_STEPS = 30
+#: A fit whose log10 K moves further than this (a factor of 10^6) has run away.
+_LARGEST_SHIFT = 6.0
 _LOG_K_TOLERANCE = 1e-10
 
 
@@ -126,7 +130,7 @@ def medium_effect(inputs: PlanInputs, mixtures: Sequence[Mixture], layout: Layou
         ).absorbance
         bound_ref, fit_ref = _analyses(inputs, layout, reference)
         bound_med, fit_med = _analyses(inputs, layout, in_medium)
-    except (PlannerError, np.linalg.LinAlgError):
+    except (PlannerError, np.linalg.LinAlgError, OverflowError, FloatingPointError):
         # Constants far outside any activity model's range (a mixture at many mol/L) can
         # leave the equilibrium or the fit without a solution: the medium's share is then
         # unknown, and said nowhere, rather than a reason the plan cannot be made.
