@@ -25,7 +25,8 @@ from typing import Any
 from _timing import children_peak_MB, seconds
 
 from planner.lab.deliveries import MAX_COMBINATIONS, combination_count
-from planner.planfile import MAX_GLASSWARE, MAX_STOCKS, parse_plan
+from planner.planfile import parse_plan
+from planner.planfile.schema import MAX_GLASSWARE, MAX_STOCKS
 
 # Graduated devices are tried at their default reading, then read this many times more
 # coarsely, until the shelf has few enough delivery combinations.
