@@ -4,7 +4,7 @@ K is determined best where the limiting reagent is neither mostly free nor mostl
 (bound fraction roughly 0.2 to 0.8: Deranleau, J. Am. Chem. Soc. 91 (1969) 4044-4049,
 doi:10.1021/ja01043a003; Weber, Adv. Protein Chem. 29 (1975) 1-83, from memory). The test set
 is chosen to minimise a pluggable objective, by default the first-order predicted relative
-standard uncertainty of the mean K under the usual analysis, subject to every reading lying
+standard uncertainty of the mean K under the all-bound analysis, subject to every reading lying
 in the window, every bound fraction inside ``design.bound_fraction_range``, and the set
 spanning at least ``design.bound_fraction_span`` of bound fraction, so that the constancy of K
 across conditions is tested and a wrong model shows.
@@ -89,7 +89,7 @@ def per_mixture_relative_u_K(
 
     Notes
     -----
-    The usual analysis takes x = A_net/(b eps) for the product and
+    The all-bound analysis takes x = A_net/(b eps) for the product and
     K = x / ((M0 - x)(L0 - x)). Its relative sensitivities are (GUM, JCGM 100:2008, eq. 10,
     in relative form) d ln K/d ln x = 1 + x/(M0 - x) + x/(L0 - x),
     d ln K/d ln M0 = -M0/(M0 - x) and d ln K/d ln L0 = -L0/(L0 - x); u(x)/x comes from the

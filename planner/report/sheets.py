@@ -713,7 +713,7 @@ def _figures(plan: Plan, stems: Sequence[str]) -> tuple[_Figure, ...]:
         "bound-fraction": (
             "Bound fraction against the excess",
             f"Fraction of the {limiting} held in the products as the total excess changes "
-            f"(equilibrium solver, at the standards' {limiting} concentrations). For the usual "
+            f"(equilibrium solver, at the standards' {limiting} concentrations). For the all-bound "
             f"analysis the standards should sit above the line 1 − {tolerance}.",
         ),
         "coverage": (

@@ -145,7 +145,7 @@ def ladder_figure(plan: Plan) -> Figure:
         ``beer-lambert`` (the reading without stray light, dashed), ``stray-light`` (the
         photometer's response with the plan's stray-light fraction, solid), ``standards``
         (each standard's predicted reading at its coloured-product concentration, labelled
-        S1...), ``assumed`` (the same readings where the usual analysis places them, at the
+        S1...), ``assumed`` (the same readings where the all-bound analysis places them, at the
         limiting reagent's total divided by its coefficient, hollow), ``blank`` (the blank's
         reading, square).
 
@@ -236,7 +236,7 @@ def ladder_figure(plan: Plan) -> Figure:
             markeredgecolor=_RUST,
             markeredgewidth=1.3,
             gid="assumed",
-            label=f"standards at total {_text(limiting)} (usual analysis)",
+            label=f"standards at total {_text(limiting)} (all-bound analysis)",
         )
         _points(
             axes,
