@@ -8,6 +8,7 @@ Heavy libraries are imported inside the commands so start-up stays fast.
 from __future__ import annotations
 
 import enum
+import inspect
 import os
 import signal
 import sys
@@ -916,6 +917,21 @@ def simulate(
         _tell_written(out, quiet=quiet)
 
     _run(body)
+
+
+def _flowed(doc: str) -> str:
+    """A docstring as help text: each paragraph one flowing line, so the terminal wraps it
+    (the help renderer keeps single line breaks, which break lines mid-sentence)."""
+    paragraphs = inspect.cleandoc(doc).split("\n\n")
+    return "\n\n".join(
+        p if p.startswith("\b") else " ".join(line.strip() for line in p.splitlines())
+        for p in paragraphs
+    )
+
+
+for _command in app.registered_commands:
+    if _command.help is None and _command.callback is not None and _command.callback.__doc__:
+        _command.help = _flowed(_command.callback.__doc__)
 
 
 def main() -> None:

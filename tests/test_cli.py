@@ -680,3 +680,15 @@ def test_verify_refuses_special_files(tmp_path, special):
     message = " ".join(result.stderr.split())
     assert "not a regular file" in message
     assert "Traceback" not in result.stderr
+
+
+@pytest.mark.parametrize("command", ["plan", "analyse", "simulate", "variants", "verify", "check"])
+def test_help_flows_each_paragraph_instead_of_breaking_lines_mid_sentence(command):
+    # The docstrings wrap at 100 columns in the source; --help must rewrap them to the
+    # terminal, not keep those breaks (an 80-column terminal showed "spread across" alone).
+    from planner.cli import app as planner_app
+
+    info = next(c for c in planner_app.registered_commands if c.callback.__name__ == command)
+    assert info.help
+    for paragraph in info.help.split("\n\n"):
+        assert "\n" not in paragraph, paragraph
