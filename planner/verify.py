@@ -834,7 +834,7 @@ def _all_bound_K_error(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _
     if ratio <= 0 or np.any(denominator <= 0):
         return "; the all-bound analysis would give no value of K from these tests"
     error = float(np.mean(x / denominator)) / (10.0**inputs.measured_species.log_beta) - 1.0
-    return f"; the all-bound K errs by about {100 * error:+.1f} % from it"
+    return f"; the all-bound K errs by about {100 * error:+.1f} % from it on this plan's tests"
 
 
 def _assumption(

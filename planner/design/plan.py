@@ -419,8 +419,8 @@ def _tests_for_analysis(
             )
         if reason is None:
             reason = (
-                f"its K would err by {100 * error:+.1f} % on noise-free readings ({binds}; "
-                f"tolerance {100 * tolerance:g} %)"
+                f"its K would err by {100 * error:+.1f} % on noise-free readings even with "
+                f"tests chosen for it ({binds}; tolerance {100 * tolerance:g} %)"
                 if error is not None
                 else f"its K has no value on this shelf ({binds})"
             )
