@@ -296,6 +296,9 @@ class Prediction:
         Range of each test's K, 95 % [L/mol].
     absorbance_ci95
         Range of each mixture's reading, 95 %, keyed by mixture id [unitless].
+    K_bias_causes
+        ``K_bias_from_assumption`` split by cause, and the ionic medium's share said apart
+        (:class:`BiasCauses`), or None when not predicted.
     """
 
     epsilon: float
@@ -313,6 +316,7 @@ class Prediction:
     K_ci95: tuple[float, float] | None = None
     K_per_test_ci95: tuple[tuple[float, float], ...] = ()
     absorbance_ci95: dict[str, tuple[float, float]] = field(default_factory=dict)
+    K_bias_causes: BiasCauses | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -581,6 +585,17 @@ class Plan:
     def failed(self) -> bool:
         """True when some check failed (the exit status is then 1)."""
         return any(c.status == "fail" for c in self.checks)
+
+    @property
+    def K_at_benches(self) -> float:
+        """The measured species' K at the benches (their temperature and, with a constant
+        ionic medium, that medium): the value a class should find. Both analyses' predictions
+        carry it; without either, the plan file's constant."""
+        if self.prediction is not None:
+            return self.prediction.K_true
+        if self.global_fit is not None:
+            return self.global_fit.K
+        return float(10.0**self.inputs.measured_species.log_beta)
 
     def by_role(self, role: Role) -> tuple[Mixture, ...]:
         """The mixtures of one role, in plan order."""

@@ -263,7 +263,9 @@ def test_plan_default_json_has_every_contract_key():
 
 
 def test_plan_failed_check_exits_1_with_failures_first(tmp_path):
-    text = (ROOT / "planner" / "data" / "default.toml").read_text()
+    # The default's shelf for the all-bound analysis (the default itself plans the global
+    # fit, which does not assume the standards all bound).
+    text = (ROOT / "recipes" / "iron-thiocyanate-tubes.toml").read_text()
     # Demand an unattainable tolerance: the standards' assumption check must fail.
     broken = text.replace("assumption_tolerance = 0.05", "assumption_tolerance = 0.001")
     path = tmp_path / "strict.toml"
@@ -505,7 +507,7 @@ def test_quiet_prints_nothing_but_keeps_exit_status(tmp_path):
     assert run("plan", "--quiet").stdout == ""
     strict = tmp_path / "strict.toml"
     strict.write_text(
-        (ROOT / "planner" / "data" / "default.toml")
+        (ROOT / "recipes" / "iron-thiocyanate-tubes.toml")
         .read_text()
         .replace("assumption_tolerance = 0.05", "assumption_tolerance = 0.001")
     )

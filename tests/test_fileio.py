@@ -226,8 +226,10 @@ def test_entries_mirror_the_stage_results_both_ways(plan):
         "K_true",
         "epsilon_true",
         "K_per_test",
+        "K_bias_causes",
     }
     assert entry.to_record(Prediction).K_per_test == plan.prediction.K_per_test
+    assert entry.to_record(Prediction).K_bias_causes == plan.prediction.K_bias_causes
     saved = parse_result(plan_json(plan))
     assert saved.totals == plan.totals
     assert isinstance(saved.totals, Totals)

@@ -1,7 +1,8 @@
 """Tests of planner.verify: the independent re-check of a finished plan, through saved JSON.
 
-The plan under test is the embedded default scenario (``planner/data/default.toml``, invented
-for this project), designed by :func:`planner.pipeline.design_plan`, written as the
+The plan under test is the embedded default's shelf without its constant medium, designed for
+the all-bound analysis (``recipes/iron-thiocyanate-tubes.toml``, invented for this project),
+designed by :func:`planner.pipeline.design_plan`, written as the
 ``planner.plan/2`` document and read back with :func:`planner.resultfile.parse_result`. The
 broken plans are copies of that document edited the way a person editing ``plan.json`` by
 hand would. Every edited number is derived from the plan's own recipe, and every expected
@@ -16,8 +17,6 @@ import math
 import re
 import subprocess
 import sys
-from collections.abc import Iterator
-from importlib.resources import as_file, files
 from pathlib import Path
 from typing import Any
 
@@ -46,7 +45,7 @@ Document = dict[str, Any]
 
 ROOT = Path(__file__).resolve().parents[1]
 
-#: The formation constant of FeSCN2+ in the default scenario [L/mol]: default.toml, K = 98
+#: The formation constant of FeSCN2+ in the plan under test [L/mol]: K = 98
 #: (de Berg, Maeder and Clifford, Inorganica Chimica Acta 445 (2016) 155-159).
 DEFAULT_K = 98.0
 
@@ -57,9 +56,9 @@ DEFAULT_K = 98.0
 
 
 @pytest.fixture(scope="module")
-def default_plan() -> Iterator[Plan]:
-    with as_file(files("planner") / "data" / "default.toml") as path:
-        yield design_plan(load_plan(path))
+def default_plan() -> Plan:
+    """The plan under test (module docstring)."""
+    return design_plan(load_plan(ROOT / "recipes" / "iron-thiocyanate-tubes.toml"))
 
 
 @pytest.fixture

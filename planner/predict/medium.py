@@ -24,7 +24,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.analysis import Layout, all_bound_mean_K, global_fit_jacobian
-from planner.chem.constants import medium_log_beta
+from planner.chem.constants import bench_medium_M, medium_log_beta
 from planner.chem.species import charge_from_name, ionic_strength_M
 from planner.errors import PlannerError
 from planner.forward import predict_readings
@@ -121,7 +121,18 @@ def medium_effect(inputs: PlanInputs, mixtures: Sequence[Mixture], layout: Layou
         analysis gives no finite K).
     """
     strength = initial_ionic_strength_M(mixtures)
+    # A constant ionic medium gives every mixture the benches' ionic strength up to round-off;
+    # a share of 1e-13 % computed from round-off would be a number that means nothing.
+    medium = bench_medium_M(inputs.reaction)
+    strength = np.where(np.isclose(strength, medium, rtol=1e-9, atol=0.0), medium, strength)
     rows = medium_log_beta(inputs.reaction, strength)
+    if np.all(strength == medium):
+        return MediumEffect(
+            ionic_strength_M=tuple(float(i) for i in strength),
+            K_in_medium=tuple(float(10.0 ** r[inputs.measured]) for r in rows),
+            K_bias_all_bound=0.0,
+            K_bias_global_fit=0.0,
+        )
     totals = layout.totals_M
     try:
         reference = predict_readings(inputs.reaction, inputs.instrument, totals).absorbance

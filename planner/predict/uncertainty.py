@@ -870,6 +870,7 @@ def prediction_from(result: UncertaintyResult) -> Prediction:
         K_ci95=result.K.ci95,
         K_per_test_ci95=tuple(_interval(k, u) for k, u in result.K_per_test),
         absorbance_ci95={m.id: m.absorbance_ci95 for m in result.mixtures},
+        K_bias_causes=result.bias_causes,
     )
 
 

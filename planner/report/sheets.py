@@ -614,7 +614,7 @@ def _analysis_views(plan: Plan) -> tuple[_AnalysisView, ...]:
         if fit is None
         else _prediction_rows(
             (eps_label, fit.epsilon, fit.u_epsilon, species.epsilon),
-            (k_label, fit.K, fit.u_K, 10.0**species.log_beta),
+            (k_label, fit.K, fit.u_K, plan.K_at_benches),
         ),
         lines=_fit_medium_line(plan),
     )

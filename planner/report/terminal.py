@@ -196,10 +196,15 @@ def _prediction_line(plan: Plan) -> Text:
     if not shown:
         return Text("Prediction: none (the plan gives no test mixtures to analyse).")
     designed = "global fit" if plan.analysis == "global-fit" else "all-bound analysis"
-    return Text(
-        f"Prediction (designed for the {designed}; true K {significant(10.0**species.log_beta, 4)}"
-        f"{unit}): " + "; ".join(shown)
-    )
+    bench = plan.K_at_benches
+    given = float(10.0**species.log_beta)
+    true_text = f"true K {significant(bench, 4)}{unit}"
+    if significant(bench, 4) != significant(given, 4):
+        true_text = (
+            f"true K at the benches {significant(bench, 4)}{unit}, from the plan file's "
+            f"{significant(given, 4)}"
+        )
+    return Text(f"Prediction (designed for the {designed}; {true_text}): " + "; ".join(shown))
 
 
 def render_plan(plan: Plan) -> RenderableType:

@@ -15,6 +15,7 @@ accepted where a number is expected), forbid unknown keys and refuse NaN and inf
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping, Sequence
 from typing import Any, ClassVar, Literal, Self, TypeVar, get_args
 
@@ -22,6 +23,7 @@ from pydantic import BaseModel, ConfigDict, Field
 
 from planner.result import (
     Addition,
+    BiasCauses,
     Check,
     Delivery,
     GlobalFitPrediction,
@@ -36,6 +38,7 @@ from planner.result import (
 __all__ = [
     "SCHEMA",
     "AdditionEntry",
+    "BiasCausesEntry",
     "CheckEntry",
     "DeliveryEntry",
     "Entry",
@@ -90,9 +93,11 @@ def _entry_value(annotation: object, value: object) -> object:
     """A stage result's value as the entry holds it: lists for tuples, plain dicts, entries."""
     if isinstance(value, Mapping):
         return dict(value)
+    entry = _entry_class(annotation)
     if isinstance(value, Sequence) and not isinstance(value, str):
-        entry = _entry_class(annotation)
         return [item if entry is None else entry.of(item) for item in value]
+    if entry is not None and value is not None:
+        return entry.of(value)
     return value
 
 
@@ -225,6 +230,48 @@ class _FitEntry(Entry):
     u_K: float = Field(description=_U)
 
 
+class BiasCausesEntry(Entry):
+    """The all-bound K's relative bias split by cause (:class:`planner.result.BiasCauses`);
+    every value K / K_true - 1 of that cause alone, a number."""
+
+    record = BiasCauses
+    all_bound_assumption: float | None = Field(
+        description="the standards' limiting reagent taken as fully bound, a number or null"
+    )
+    absorbing_reagents: float | None = Field(
+        description="added by the other absorbers (other products, free reagents), a number or null"
+    )
+    stray_light: float | None = Field(
+        description="added by the photometer's stray light, a number or null"
+    )
+    ionic_medium: float | None = Field(
+        description="each mixture's own ionic medium, not in K (said apart), a number or null"
+    )
+    temperature: float | None = Field(
+        description="the constant at the benches' temperature against the plan's, a number or null"
+    )
+
+    @classmethod
+    def of(cls, record: object) -> Self:
+        """The entry of :class:`planner.result.BiasCauses`; a share no analysis could give
+        (NaN) is written as null, JSON having no NaN."""
+        return cls.model_validate(
+            {
+                key: None if math.isnan(value := float(getattr(record, key))) else value
+                for key in cls.model_fields
+            }
+        )
+
+    def to_record(self, kind: type[_Record]) -> _Record:
+        """The :class:`planner.result.BiasCauses` of these values, null read back as NaN."""
+        return kind(
+            **{
+                key: math.nan if getattr(self, key) is None else getattr(self, key)
+                for key in type(self).model_fields
+            }
+        )
+
+
 class PredictionEntry(_FitEntry):
     """What the all-bound analysis is expected to report (:class:`planner.result.Prediction`;
     its per-test uncertainties and intercept are not written)."""
@@ -235,6 +282,11 @@ class PredictionEntry(_FitEntry):
     K_true: float = Field(description="the K the plan assumes [L/mol], a number")
     epsilon_true: float = Field(description="the absorptivity the plan assumes, a number")
     K_per_test: list[float] = Field(description="the K of each test mixture, a list of numbers")
+    K_bias_causes: BiasCausesEntry | None = Field(
+        None,
+        description="K_bias_from_assumption split by cause, an object or null "
+        "{all_bound_assumption, absorbing_reagents, stray_light, ionic_medium, temperature}",
+    )
 
 
 class GlobalFitEntry(_FitEntry):

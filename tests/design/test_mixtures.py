@@ -11,7 +11,7 @@ from the plan's numbers, not taken from the optimiser:
 - the set spans at least ``design.bound_fraction_span`` of bound fraction;
 - its members are at least span/(2(n - 1)) apart in bound fraction.
 
-The chemistry is the embedded default scenario (iron(III) thiocyanate, K1 = 98 and K2 = 7
+The chemistry is the default's without its constant medium (iron(III) thiocyanate, K1 = 98, K2 = 7
 L/mol from de Berg, Maeder and Clifford, Inorganica Chimica Acta 445 (2016) 155-159) with an
 invented tiny shelf of 1 mL and 2 mL transfer pipettes, which gives a few hundred candidates.
 """
@@ -36,7 +36,8 @@ from planner.design.standards import choose_standards
 from planner.planfile import plan_from_mapping
 
 ROOT = Path(__file__).resolve().parents[2]
-DEFAULT = ROOT / "planner" / "data" / "default.toml"
+# The default's chemistry and stocks without its constant medium, for the all-bound analysis.
+DEFAULT = ROOT / "recipes" / "iron-thiocyanate-tubes.toml"
 
 # Invented tiny shelf: 1 mL and 2 mL transfer pipettes, three of each.
 TINY_SHELF = [

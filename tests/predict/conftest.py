@@ -13,12 +13,21 @@ ROOT = Path(__file__).resolve().parents[2]
 DEFAULT = ROOT / "planner" / "data" / "default.toml"
 FLASKS = ROOT / "recipes" / "iron-thiocyanate-flasks.toml"
 PISTON = ROOT / "recipes" / "micro-piston.toml"
+#: The default's stocks and glassware without its constant medium, designed for the all-bound
+#: analysis: the plan the all-bound predictions are tested on.
+TUBES = ROOT / "recipes" / "iron-thiocyanate-tubes.toml"
 
 
 @pytest.fixture(scope="session")
 def default_plan():
     """The embedded default scenario (tubes, burets and transfer pipettes), designed."""
     return design_plan(load_plan(DEFAULT))
+
+
+@pytest.fixture(scope="session")
+def tubes_plan():
+    """The default's shelf in tubes for the all-bound analysis, no constant medium, designed."""
+    return design_plan(load_plan(TUBES))
 
 
 @pytest.fixture(scope="session")

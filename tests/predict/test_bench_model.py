@@ -17,11 +17,11 @@ from planner.report.plan_json import plan_json
 from planner.resultfile import parse_result
 from planner.verify import verify_plan
 
-from .conftest import DEFAULT
+from .conftest import TUBES
 
 
 def _plan_text(technique: str | None, extra: str = "") -> str:
-    text = DEFAULT.read_text(encoding="utf-8")
+    text = TUBES.read_text(encoding="utf-8")
     # The embedded default carries a [bench] table; replace it to choose the preset.
     head, _, _ = text.partition("\n[bench]")
     bench = "" if technique is None else f'\n[bench]\ntechnique = "{technique}"\n{extra}'

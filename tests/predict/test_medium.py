@@ -11,9 +11,9 @@ from planner.pipeline import design_plan
 from planner.planfile import load_plan, parse_plan
 from planner.predict.uncertainty import propagate
 
-from .conftest import DEFAULT, ROOT
+from .conftest import DEFAULT, TUBES
 
-CONSTANT = ROOT / "recipes" / "iron-thiocyanate-constant-medium.toml"
+CONSTANT = DEFAULT  # the embedded default sets design.ionic_medium
 
 
 @pytest.fixture(scope="module")
@@ -56,8 +56,9 @@ def test_bench_constant_is_the_constant_medium_s(constant_plan) -> None:
     # Every mixture shares the medium, so the medium adds no bias of its own.
     medium = propagate(constant_plan.inputs, constant_plan.mixtures).medium
     assert medium is not None
-    assert abs(medium.K_bias_all_bound) < 1e-3
-    assert abs(medium.K_bias_global_fit) < 1e-3
+    # Exactly: a share computed from round-off would be printed as a number that means nothing.
+    assert medium.K_bias_all_bound == 0.0
+    assert medium.K_bias_global_fit == 0.0
 
 
 def test_stocks_above_the_target_are_refused() -> None:
@@ -70,12 +71,13 @@ def test_stocks_above_the_target_are_refused() -> None:
     assert "already has ionic strength 2.9 mol/L" in str(info.value)
 
 
-def test_default_plan_s_medium_share_of_the_bias() -> None:
-    # The default's mixtures run from I = 0.52 to 1.89 mol/L against constants for 0.5. The
-    # blank's ions: by hand its iron-strong and acid stocks give I = 1.892 mol/L, where
+def test_tubes_plan_s_medium_share_of_the_bias() -> None:
+    # The default's shelf without its constant medium: the mixtures run from I = 0.52 to 1.89
+    # mol/L against constants for 0.5. The blank's ions: by hand its iron-strong and acid
+    # stocks give I = 1.892 mol/L, where
     # D(1.892) = 0.509 * 1.375500/3.063250 = 0.228560, so K = 98 * 10^(-6 (0.228560 -
     # 0.174661)) = 98 * 10^-0.323394 = 46.54 (SIT branch, d_eps = 0).
-    inputs = load_plan(DEFAULT)
+    inputs = load_plan(TUBES)
     plan = design_plan(inputs)
     medium = propagate(inputs, plan.mixtures).medium
     assert medium is not None
@@ -89,11 +91,12 @@ def test_default_plan_s_medium_share_of_the_bias() -> None:
 
 
 def test_bias_split_into_causes() -> None:
-    # The default with the room at 20 °C: the temperature's share is van 't Hoff's
+    # The default's shelf without its constant medium, the room at 20 °C: the temperature's
+    # share is van 't Hoff's
     # 102.1304 / 98 - 1 = 0.042147 (hand value, tests/chem/test_thermodynamics.py); the first
     # three shares multiply to the all-bound K's bias on noise-free readings; the default's
     # only other product does not absorb (epsilon 0), so the absorbing reagents add nothing.
-    text = DEFAULT.read_text(encoding="utf-8").replace(
+    text = TUBES.read_text(encoding="utf-8").replace(
         "[session]\n", "[session]\ntemperature_C = 20\n"
     )
     inputs = parse_plan(text)
@@ -108,3 +111,35 @@ def test_bias_split_into_causes() -> None:
     product *= 1 + causes.stray_light
     assert product - 1 == pytest.approx(result.K_bias_from_assumption, rel=1e-9)
     assert causes.ionic_medium == result.medium.K_bias_all_bound
+
+
+def test_every_screen_states_the_constant_at_the_benches(constant_plan) -> None:
+    # In the default's constant medium the class should find K = 98 * 10^-0.422214 = 37.07
+    # (hand value above), not the plan file's 98 at 0.5 mol/L: the terminal, the answer key
+    # and the assumption check all measure against it (the check once said -42 % where the
+    # prediction said +52 %, one against 98 and the other against 37).
+    import re
+
+    from rich.console import Console
+
+    from planner.report.sheets import answer_key_md
+    from planner.report.terminal import render_plan
+
+    k_bench = 98.0 * 10.0 ** (-0.422214)
+    assert constant_plan.K_at_benches == pytest.approx(k_bench, rel=2e-4)
+    console = Console(width=200, record=True, color_system=None)
+    console.print(render_plan(constant_plan))
+    text = console.export_text()
+    assert "true K at the benches 37.07 L/mol, from the plan file's 98.00" in text
+    key = answer_key_md(constant_plan, date="2026-01-01")
+    rows = [line for line in key.splitlines() if line.startswith("| K of FeSCN2+")]
+    # Both analyses' rows, the global fit's first: the last cell is the K the plan assumes.
+    assert [row.rsplit("|", 2)[1].strip() for row in rows] == ["37.07", "37.07"]
+    assumption = next(c for c in constant_plan.checks if c.name == "limiting-reagent-assumption")
+    stated = re.search(r"errs by about ([+-][0-9.]+) %", assumption.detail)
+    assert stated is not None, assumption.detail
+    assert constant_plan.prediction is not None
+    # The check leaves out the blank and stray light (a -0.08 % share here): within 1 %.
+    assert float(stated.group(1)) / 100 == pytest.approx(
+        constant_plan.prediction.K_bias_from_assumption, abs=0.01
+    )

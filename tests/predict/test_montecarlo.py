@@ -38,9 +38,9 @@ SECOND_ORDER = 2e-4
 
 
 @pytest.fixture(scope="module")
-def default_simulation(default_plan):
+def default_simulation(tubes_plan):
     return simulate(
-        default_plan.inputs, default_plan.mixtures, trials=20_000, rng=np.random.default_rng(2024)
+        tubes_plan.inputs, tubes_plan.mixtures, trials=20_000, rng=np.random.default_rng(2024)
     )
 
 
@@ -57,12 +57,12 @@ def _complex_M(iron_M: float, thiocyanate_M: float) -> float:
     return K1 * iron_M / (1 + K1 * s + K1 * K2 * s * s) * s
 
 
-def test_gum_and_monte_carlo_agree_where_near_linear(default_plan, default_simulation):
+def test_gum_and_monte_carlo_agree_where_near_linear(tubes_plan, default_simulation):
     # The default plan's relative uncertainties are ~1 %, so the models are near-linear over
     # the input spread and JCGM 101:2008, 8 expects the Monte Carlo SD to match the GUM's.
     # Issue 4: within 10 %. (Measured: 1 % for eps, 1 % for K.) With 20000 trials the SD
     # itself carries ~0.5 % Monte Carlo error.
-    gum = propagate(default_plan.inputs, default_plan.mixtures)
+    gum = propagate(tubes_plan.inputs, tubes_plan.mixtures)
     all_bound = default_simulation.all_bound
     assert all_bound.epsilon.sd == pytest.approx(gum.epsilon.standard_uncertainty, rel=0.10)
     assert all_bound.K.sd == pytest.approx(gum.K.standard_uncertainty, rel=0.10)
@@ -71,7 +71,7 @@ def test_gum_and_monte_carlo_agree_where_near_linear(default_plan, default_simul
     assert all_bound.K.mean == pytest.approx(gum.K.value, rel=1e-3)
 
 
-def test_all_bound_bias_matches_the_bound_fraction_derivation(default_plan):
+def test_all_bound_bias_matches_the_bound_fraction_derivation(tubes_plan):
     # Hand derivation (issue 4, "Done when"): the standards hold only a fraction f of the
     # limiting reagent as FeSCN2+, so the curve through the origin gives eps_all_bound =
     # eps * f_bar, with f_bar = sum(L^2 f) / sum(L^2) (the least-squares weight of each
@@ -80,11 +80,11 @@ def test_all_bound_bias_matches_the_bound_fraction_derivation(default_plan):
     # Stray light is set to 0 for this check: it bends every reading on its own and is not
     # part of this derivation (the next test includes it). The recipes are the default plan's.
     inputs = dataclasses.replace(
-        default_plan.inputs,
-        instrument=dataclasses.replace(default_plan.inputs.instrument, stray_light=0.0),
+        tubes_plan.inputs,
+        instrument=dataclasses.replace(tubes_plan.inputs.instrument, stray_light=0.0),
     )
-    standards = default_plan.by_role("standard")
-    tests = default_plan.by_role("test")
+    standards = tubes_plan.by_role("standard")
+    tests = tubes_plan.by_role("test")
     l_std = np.array([m.initial_M["SCN-"] for m in standards])
     f = np.array([_complex_M(m.initial_M["Fe3+"], m.initial_M["SCN-"]) for m in standards])
     f = f / l_std
@@ -98,7 +98,7 @@ def test_all_bound_bias_matches_the_bound_fraction_derivation(default_plan):
     expected = float(np.mean(k_hand))
 
     sim = simulate(
-        inputs, default_plan.mixtures, trials=5000, rng=np.random.default_rng(11), global_fit=False
+        inputs, tubes_plan.mixtures, trials=5000, rng=np.random.default_rng(11), global_fit=False
     )
     # Within the Monte Carlo error: 3 standard errors of the mean (~0.04 L/mol here), plus
     # the mean's second-order term, which a first-order derivation leaves out: of order
@@ -110,18 +110,18 @@ def test_all_bound_bias_matches_the_bound_fraction_derivation(default_plan):
     assert sim.K_bias_from_assumption > 1.0 - f_bar
 
 
-def test_all_bound_bias_with_stray_light(default_plan):
+def test_all_bound_bias_with_stray_light(tubes_plan):
     # The same derivation on the unmodified default plan, with every reading passed through
     # the stray-light response A_obs = log10((1 + s)/(10^-A + s)) (Skoog, Holler and Crouch,
     # Principles of Instrumental Analysis, 7th ed., 2017, section 13B-2, from memory) before
     # the all-bound analysis: eps = sum(L A_obs) / (b sum L^2), x = A_obs / (b eps).
-    s = default_plan.inputs.instrument.stray_light
-    b = default_plan.inputs.instrument.path_length_cm
+    s = tubes_plan.inputs.instrument.stray_light
+    b = tubes_plan.inputs.instrument.path_length_cm
 
     def observed(absorbance):
         return math.log10((1 + s) / (10**-absorbance + s))
 
-    standards = default_plan.by_role("standard")
+    standards = tubes_plan.by_role("standard")
     l_std = np.array([m.initial_M["SCN-"] for m in standards])
     a_std = np.array(
         [
@@ -131,13 +131,13 @@ def test_all_bound_bias_with_stray_light(default_plan):
     )
     eps_all_bound = (l_std * a_std).sum() / (b * (l_std**2).sum())
     k_hand = []
-    for m in default_plan.by_role("test"):
+    for m in tubes_plan.by_role("test"):
         iron, thiocyanate = m.initial_M["Fe3+"], m.initial_M["SCN-"]
         x = observed(b * EPSILON * _complex_M(iron, thiocyanate)) / (b * eps_all_bound)
         k_hand.append(x / ((iron - x) * (thiocyanate - x)))
     sim = simulate(
-        default_plan.inputs,
-        default_plan.mixtures,
+        tubes_plan.inputs,
+        tubes_plan.mixtures,
         trials=5000,
         rng=np.random.default_rng(12),
         global_fit=False,
@@ -163,23 +163,21 @@ def test_exact_analysis_recovers_true_constants(default_simulation):
     )
 
 
-def test_vectorised_exact_fit_matches_least_squares(default_plan):
+def test_vectorised_exact_fit_matches_least_squares(tubes_plan):
     # The reference is scipy.optimize.least_squares on the direct (untabulated) model.
-    sim = simulate(
-        default_plan.inputs, default_plan.mixtures, trials=3, rng=np.random.default_rng(5)
-    )
+    sim = simulate(tubes_plan.inputs, tubes_plan.mixtures, trials=3, rng=np.random.default_rng(5))
     for trial in range(3):
         readings = sim.trial_readings[trial]
-        eps, k = global_fit_least_squares(default_plan.inputs, default_plan.mixtures, readings)
+        eps, k = global_fit_least_squares(tubes_plan.inputs, tubes_plan.mixtures, readings)
         assert sim.epsilon_global_fit[trial] == pytest.approx(eps, rel=1e-7)
         assert sim.K_global_fit[trial] == pytest.approx(k, rel=1e-7)
 
 
-def test_same_seed_same_result(default_plan):
+def test_same_seed_same_result(tubes_plan):
     def run(seed):
         return simulate(
-            default_plan.inputs,
-            default_plan.mixtures,
+            tubes_plan.inputs,
+            tubes_plan.mixtures,
             trials=300,
             rng=np.random.default_rng(seed),
         )
@@ -191,11 +189,11 @@ def test_same_seed_same_result(default_plan):
     assert not np.array_equal(first.K_all_bound, other.K_all_bound)
 
 
-def test_progress_reports_every_chunk(default_plan):
+def test_progress_reports_every_chunk(tubes_plan):
     calls = []
     simulate(
-        default_plan.inputs,
-        default_plan.mixtures,
+        tubes_plan.inputs,
+        tubes_plan.mixtures,
         trials=CHUNK_TRIALS + 10,
         rng=np.random.default_rng(1),
         progress=lambda done, total: calls.append((done, total)),
@@ -204,13 +202,13 @@ def test_progress_reports_every_chunk(default_plan):
     assert calls == [(CHUNK_TRIALS, CHUNK_TRIALS + 10), (CHUNK_TRIALS + 10, CHUNK_TRIALS + 10)]
 
 
-def test_per_mixture_ranges(default_plan, default_simulation):
+def test_per_mixture_ranges(tubes_plan, default_simulation):
     sim = default_simulation
-    assert sim.mixture_ids == tuple(m.id for m in default_plan.mixtures)
-    for mixture, summary in zip(default_plan.mixtures, sim.readings, strict=True):
+    assert sim.mixture_ids == tuple(m.id for m in tubes_plan.mixtures)
+    for mixture, summary in zip(tubes_plan.mixtures, sim.readings, strict=True):
         low, high = summary.ci95
         assert low < mixture.absorbance < high
-    assert len(sim.K_per_test) == len(default_plan.by_role("test"))
+    assert len(sim.K_per_test) == len(tubes_plan.by_role("test"))
 
 
 def test_piston_and_flask_plans_run(piston_plan, flask_plan):
@@ -240,9 +238,9 @@ def test_coverage_interval_of_a_normal_sample():
     assert high == pytest.approx(1.960, abs=0.03)
 
 
-def test_too_few_trials_is_refused(default_plan):
+def test_too_few_trials_is_refused(tubes_plan):
     with pytest.raises(InvalidInputError, match="trials"):
-        simulate(default_plan.inputs, default_plan.mixtures, trials=1, rng=np.random.default_rng(0))
+        simulate(tubes_plan.inputs, tubes_plan.mixtures, trials=1, rng=np.random.default_rng(0))
 
 
 # Issue 9: --trials 1e9 tried to allocate 82 GiB. The trial count is bounded, and so is the
@@ -264,22 +262,22 @@ def test_the_command_line_bound_is_the_core_bound():
 
 
 @pytest.mark.parametrize("trials", [MAX_TRIALS + 1, 10**9, 10**30])
-def test_too_many_trials_are_refused_at_once(default_plan, trials):
+def test_too_many_trials_are_refused_at_once(tubes_plan, trials):
     with pytest.raises(InvalidInputError, match=r"^trials: too many trials") as info:
         simulate(
-            default_plan.inputs, default_plan.mixtures, trials=trials, rng=np.random.default_rng(0)
+            tubes_plan.inputs, tubes_plan.mixtures, trials=trials, rng=np.random.default_rng(0)
         )
     assert f"at most {MAX_TRIALS} trials" in str(info.value)
 
 
-def test_trials_beyond_the_memory_budget_of_a_big_plan_are_refused(default_plan):
+def test_trials_beyond_the_memory_budget_of_a_big_plan_are_refused(tubes_plan):
     # The default plan with its test mixtures repeated 40 times: 211 mixtures, 205 tests.
-    tests = [m for m in default_plan.mixtures if m.role == "test"]
-    many = list(default_plan.mixtures) + [
+    tests = [m for m in tubes_plan.mixtures if m.role == "test"]
+    many = list(tubes_plan.mixtures) + [
         dataclasses.replace(m, id=f"{m.id}-{i}") for i in range(40) for m in tests
     ]
     largest = largest_trials(len(many), 205)
     assert largest < MAX_TRIALS
     with pytest.raises(InvalidInputError, match="GiB") as info:
-        simulate(default_plan.inputs, many, trials=largest + 1, rng=np.random.default_rng(0))
+        simulate(tubes_plan.inputs, many, trials=largest + 1, rng=np.random.default_rng(0))
     assert f"at most {largest} trials" in str(info.value)

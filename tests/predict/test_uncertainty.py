@@ -169,7 +169,7 @@ def _reference(plan):
     return eps, eps_intercept, sum(ks) / len(ks), ks
 
 
-@pytest.mark.parametrize("name", ["default_plan", "flask_plan", "piston_plan"])
+@pytest.mark.parametrize("name", ["tubes_plan", "flask_plan", "piston_plan"])
 def test_matches_uncertainties_package(name, request):
     plan = request.getfixturevalue(name)
     result = propagate(plan.inputs, plan.mixtures)
@@ -189,10 +189,10 @@ def test_matches_uncertainties_package(name, request):
         assert u == pytest.approx(reference.std_dev, rel=0.01)
 
 
-def test_reading_coefficients_by_hand(default_plan):
+def test_reading_coefficients_by_hand(tubes_plan):
     # Hand derivation for eps = sum c_k (A_k - A_0) / (b sum c_k^2): d eps / d A_k =
     # c_k / (b sum c^2), and d eps / d A_0 = -sum c / (b sum c^2) (one blank).
-    plan = default_plan
+    plan = tubes_plan
     result = propagate(plan.inputs, plan.mixtures)
     standards = plan.by_role("standard")
     c = np.array([m.initial_M["SCN-"] for m in standards])
@@ -210,11 +210,11 @@ def test_reading_coefficients_by_hand(default_plan):
     assert "reading of B1" not in {row.input for row in result.epsilon_intercept.contributors}
 
 
-def test_stock_coefficient_by_hand(default_plan):
+def test_stock_coefficient_by_hand(tubes_plan):
     # Hand derivation: scaling the limiting stock by (1 + r) scales every c_k, and eps is
     # homogeneous of degree -1 in c, so d eps / d r = -eps (JCGM 100:2008, 5.1.3, relative
     # form).
-    result = propagate(default_plan.inputs, default_plan.mixtures)
+    result = propagate(tubes_plan.inputs, tubes_plan.mixtures)
     row = next(
         r for r in result.epsilon.contributors if r.input == "stock thiocyanate concentration"
     )
@@ -222,8 +222,8 @@ def test_stock_coefficient_by_hand(default_plan):
     assert row.unit == "relative"
 
 
-def test_budget_is_ordered_and_complete(default_plan):
-    result = propagate(default_plan.inputs, default_plan.mixtures)
+def test_budget_is_ordered_and_complete(tubes_plan):
+    result = propagate(tubes_plan.inputs, tubes_plan.mixtures)
     for budget in (result.epsilon, result.epsilon_intercept, result.K):
         shares = [row.share for row in budget.contributors]
         assert shares == sorted(shares, reverse=True)
@@ -237,8 +237,8 @@ def test_budget_is_ordered_and_complete(default_plan):
         assert all(row.formula for row in budget.contributors)
 
 
-def test_formulas_are_the_derived_derivatives(default_plan):
-    result = propagate(default_plan.inputs, default_plan.mixtures)
+def test_formulas_are_the_derived_derivatives(tubes_plan):
+    result = propagate(tubes_plan.inputs, tubes_plan.mixtures)
     by_input = {row.input: row for row in result.epsilon.contributors}
     # d/dA_k of (c_k (A_k - A_0) + P - A_0 C) / (b (c_k^2 + Q)), as sympy prints it.
     assert "∂ε/∂A_k = c_k/(b*(Q + c_k**2))" in by_input["reading of S1"].formula
@@ -254,29 +254,29 @@ def test_systematic_device_shared_across_deliveries(flask_plan):
     assert any(name.startswith("flask volume of ") for name in names)
 
 
-def test_blank_reading_uncertainty_is_the_noise(default_plan):
+def test_blank_reading_uncertainty_is_the_noise(tubes_plan):
     # The blank holds no absorber (only free iron(III), epsilon 0 in the plan), so its
     # reading's uncertainty is the reading noise alone: at A = 0 the floor, the constant
     # transmittance noise 0.4343 sigma_T / T with T = 1 (Skoog et al. 2017, 13C-2, from
     # memory), and the blank cuvette's offset against the samples' cuvette.
-    result = propagate(default_plan.inputs, default_plan.mixtures)
+    result = propagate(tubes_plan.inputs, tubes_plan.mixtures)
     blank = next(m for m in result.mixtures if m.id == "B1")
-    floor = default_plan.inputs.instrument.absorbance_sd
-    transmittance = 0.4343 * default_plan.inputs.instrument.transmittance_sd
-    offset = default_plan.inputs.bench.blank_offset_sd
+    floor = tubes_plan.inputs.instrument.absorbance_sd
+    transmittance = 0.4343 * tubes_plan.inputs.instrument.transmittance_sd
+    offset = tubes_plan.inputs.bench.blank_offset_sd
     assert offset > 0
     assert transmittance > 0
     expected = math.sqrt(floor**2 + transmittance**2 + offset**2)
     assert blank.u_absorbance == pytest.approx(expected, rel=1e-4)
     standard = next(m for m in result.mixtures if m.id == "S5")
-    assert standard.u_absorbance > default_plan.inputs.instrument.absorbance_sd
+    assert standard.u_absorbance > tubes_plan.inputs.instrument.absorbance_sd
 
 
-def test_total_uncertainty_by_hand(default_plan):
+def test_total_uncertainty_by_hand(tubes_plan):
     # Hand derivation for the blank's iron(III) total c = c_s V_s / (V_s + V_acid) in a tube,
     # both delivered by one buret each (independent graduated deliveries):
     # u^2(c)/c^2 = u_r^2 + (u_V (1/V_s - 1/V))^2 + (u_V / V)^2.
-    plan = default_plan
+    plan = tubes_plan
     result = propagate(plan.inputs, plan.mixtures)
     blank = next(m for m in plan.mixtures if m.id == "B1")
     volumes = {a.stock: a.volume_mL for a in blank.additions}
@@ -294,23 +294,23 @@ def test_total_uncertainty_by_hand(default_plan):
     assert got == pytest.approx(expected, rel=1e-9)
 
 
-def test_prediction_fills_the_plan(default_plan):
-    result = propagate(default_plan.inputs, default_plan.mixtures)
+def test_prediction_fills_the_plan(tubes_plan):
+    result = propagate(tubes_plan.inputs, tubes_plan.mixtures)
     prediction = prediction_from(result)
     # design_plan fills its prediction from the same propagation.
-    assert default_plan.prediction == prediction
+    assert tubes_plan.prediction == prediction
     assert prediction.K_bias_from_assumption == pytest.approx(prediction.K / 98.0 - 1.0)
     low, high = prediction.K_ci95
     assert (high - low) / 2 == pytest.approx(COVERAGE_FACTOR_95 * prediction.u_K)
-    assert set(prediction.absorbance_ci95) == {m.id for m in default_plan.mixtures}
-    assert len(prediction.K_per_test_ci95) == len(default_plan.by_role("test"))
+    assert set(prediction.absorbance_ci95) == {m.id for m in tubes_plan.mixtures}
+    assert len(prediction.K_per_test_ci95) == len(tubes_plan.by_role("test"))
     assert prediction.u_epsilon_intercept is not None
 
 
-def test_plan_without_tests_is_refused(default_plan):
-    mixtures = [m for m in default_plan.mixtures if m.role != "test"]
+def test_plan_without_tests_is_refused(tubes_plan):
+    mixtures = [m for m in tubes_plan.mixtures if m.role != "test"]
     with pytest.raises(InvalidInputError, match="mixtures"):
-        propagate(default_plan.inputs, mixtures)
+        propagate(tubes_plan.inputs, mixtures)
 
 
 def test_generated_sensitivities_are_current():

@@ -10,7 +10,7 @@ import pytest
 from planner.pipeline import design_plan
 from planner.planfile import load_plan
 from planner.report.sheets import answer_key_html, answer_key_md
-from tests.predict.conftest import DEFAULT
+from tests.predict.conftest import TUBES
 
 DATE = "2026-01-05"
 ROOT = Path(__file__).resolve().parents[2]
@@ -18,7 +18,7 @@ ROOT = Path(__file__).resolve().parents[2]
 
 @pytest.fixture(scope="module")
 def plan():
-    return design_plan(load_plan(DEFAULT))
+    return design_plan(load_plan(TUBES))
 
 
 @pytest.fixture(scope="module")

@@ -46,6 +46,7 @@ PREDICTION_KEYS = {
     "K_true",
     "epsilon_true",
     "K_per_test",
+    "K_bias_causes",
 }
 
 
@@ -125,3 +126,36 @@ def test_inputs_block_is_the_plan_file_mapping_and_reloads(plan):
     assert reloaded.title == plan.inputs.title
     assert [s.id for s in reloaded.stocks] == ["iron", "thiocyanate", "diluent"]
     assert reloaded.session == plan.inputs.session
+
+
+def test_bias_causes_are_written_multiply_to_the_bias_and_read_back() -> None:
+    # A recipe whose mixtures differ in ionic strength, so every share is a number; the
+    # shares of the first three causes multiply to the whole bias (planner.predict.bias),
+    # and the ionic medium's share is said apart, not in it.
+    from pathlib import Path
+
+    from planner.pipeline import design_plan
+    from planner.planfile import load_plan
+    from planner.resultfile.reader import parse_result
+
+    recipe = Path(__file__).parents[2] / "recipes" / "iron-thiocyanate-flasks.toml"
+    plan = design_plan(load_plan(recipe))
+    text = plan_json(plan)
+    block = json.loads(text)["prediction"]
+    causes = block["K_bias_causes"]
+    assert set(causes) == {
+        "all_bound_assumption",
+        "absorbing_reagents",
+        "stray_light",
+        "ionic_medium",
+        "temperature",
+    }
+    together = (1 + causes["all_bound_assumption"]) * (1 + causes["absorbing_reagents"]) * (
+        1 + causes["stray_light"]
+    ) - 1
+    assert abs(together - block["K_bias_from_assumption"]) < 1e-9
+    assert causes["ionic_medium"] != 0  # this recipe's mixtures differ in ionic strength
+    saved = parse_result(text, source="plan.json")
+    assert saved.prediction is not None
+    assert plan.prediction is not None
+    assert saved.prediction.K_bias_causes == plan.prediction.K_bias_causes
