@@ -271,18 +271,31 @@ def _small_product(left: NDArray[np.float64], right: NDArray[np.float64]) -> NDA
     loops stay on one core at full speed.
     """
     if left.ndim == 1:
-        out = left[0] * right[0]
-        for k in range(1, left.shape[0]):
-            out = out + left[k] * right[k]
-        return np.asarray(out, dtype=float)
+        return _combination(left, right, np.empty(right.shape[1:]))
     # Each row is written in place into one output array (stacking separate rows copied
     # every result once more); the sums are the same, term by term.
     out = np.empty((left.shape[0], *right.shape[1:]))
     for i in range(left.shape[0]):
-        np.multiply(left[i, 0], right[0], out=out[i])
-        for k in range(1, left.shape[1]):
-            if left[i, k] != 0.0:
-                out[i] += left[i, k] * right[k]
+        _combination(left[i], right, out[i])
+    return out
+
+
+def _combination(
+    coefficients: NDArray[np.float64], rows: NDArray[np.float64], out: NDArray[np.float64]
+) -> NDArray[np.float64]:
+    """sum_k coefficients[k] rows[k] into out, term by term in order; terms with a
+    coefficient of 0 are left out and those of 1 are added without multiplying (both exact)."""
+    first = float(coefficients[0])
+    if first == 1.0:
+        np.copyto(out, rows[0])
+    else:
+        np.multiply(first, rows[0], out=out)
+    for k in range(1, coefficients.shape[0]):
+        coefficient = float(coefficients[k])
+        if coefficient == 1.0:
+            out += rows[k]
+        elif coefficient != 0.0:
+            out += coefficient * rows[k]
     return out
 
 
