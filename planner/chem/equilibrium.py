@@ -24,6 +24,12 @@ Wiley 1982, ch. 6). The start comes from a few positive-continued-fraction sweep
 free concentrations by many orders of magnitude per sweep (Carrayrou, Mosé and Behra, AIChE J.
 48 (2002) 894-904, doi:10.1002/aic.690480423).
 
+Most of the time goes into exponentials and logarithms (each several times the cost of a
+multiplication), so where every coefficient is a small whole number the species are formed as
+beta times products of the free concentrations, and the sweeps run on the concentrations
+themselves; the logarithms are taken once, after the sweeps, and each Newton step takes one
+exponential per component.
+
 The 1:1 system M + L = ML has a closed form (:func:`one_to_one_complex_M`), used as a fast path
 and as an independent check.
 """
@@ -53,6 +59,17 @@ _ZERO_STAND_IN_M = 1e-280
 _RTOL = 1e-12
 _MAX_NEWTON = 200
 _PCF_SWEEPS = 6
+# Species are formed as products of free concentrations (no exp) when every coefficient is a
+# whole number up to this and no log beta exceeds _MAX_PRODUCT_LN_BETA (beta < 1e260, so that
+# beta times free concentrations of at most a few mol/L cannot overflow).
+_MAX_POWER = 4
+_MAX_PRODUCT_LN_BETA = 600.0
+# A free concentration below e^-700 (about 1e-304) is near the bottom of the float range,
+# where products lose digits: species of such mixtures are formed as exp(ln beta + A x).
+_LOWEST_PRODUCT_LN = -700.0
+_SMALLEST_NORMAL = float(np.finfo(float).tiny)
+# No Newton step moves a log-concentration by more than this, so exp never overflows.
+_LONGEST_STEP = float(np.log(1e8))
 # Mixtures solved together: 32768 mixtures make each temporary array 256 kB.
 _CHUNK = 32768
 
@@ -254,18 +271,31 @@ def _small_product(left: NDArray[np.float64], right: NDArray[np.float64]) -> NDA
     loops stay on one core at full speed.
     """
     if left.ndim == 1:
-        out = left[0] * right[0]
-        for k in range(1, left.shape[0]):
-            out = out + left[k] * right[k]
-        return np.asarray(out, dtype=float)
+        return _combination(left, right, np.empty(right.shape[1:]))
     # Each row is written in place into one output array (stacking separate rows copied
     # every result once more); the sums are the same, term by term.
     out = np.empty((left.shape[0], *right.shape[1:]))
     for i in range(left.shape[0]):
-        np.multiply(left[i, 0], right[0], out=out[i])
-        for k in range(1, left.shape[1]):
-            if left[i, k] != 0.0:
-                out[i] += left[i, k] * right[k]
+        _combination(left[i], right, out[i])
+    return out
+
+
+def _combination(
+    coefficients: NDArray[np.float64], rows: NDArray[np.float64], out: NDArray[np.float64]
+) -> NDArray[np.float64]:
+    """sum_k coefficients[k] rows[k] into out, term by term in order; terms with a
+    coefficient of 0 are left out and those of 1 are added without multiplying (both exact)."""
+    first = float(coefficients[0])
+    if first == 1.0:
+        np.copyto(out, rows[0])
+    else:
+        np.multiply(first, rows[0], out=out)
+    for k in range(1, coefficients.shape[0]):
+        coefficient = float(coefficients[k])
+        if coefficient == 1.0:
+            out += rows[k]
+        elif coefficient != 0.0:
+            out += coefficient * rows[k]
     return out
 
 
@@ -334,30 +364,12 @@ def _newton_step(
     therefore expanded by the Cauchy-Binet formula into a sum of positive terms,
     det H = c1 c2 + c1 sum s a2^2 + c2 sum s a1^2 + sum_{i<k} s_i s_k (a_i1 a_k2 - a_k1 a_i2)^2
     (Horn and Johnson, Matrix Analysis, 2nd ed., 2013, section 0.8.7), and the adjugate's
-    products are regrouped the same way. More components go through a Jacobi-scaled Cholesky.
+    products are regrouped the same way (Cramer's rule, one vector operation at a time). More
+    components go through a Jacobi-scaled Cholesky.
     """
-    m, n_species = matrix.shape[1], matrix.shape[0]
+    m = matrix.shape[1]
     if m == 2:
-        a1, a2 = matrix[:, 0], matrix[:, 1]
-        c1, c2 = free[0], free[1]
-        g1, g2 = gradient[0], gradient[1]
-        s_a1a1 = _small_product(a1 * a1, species)
-        s_a2a2 = _small_product(a2 * a2, species)
-        det = c1 * c2 + c1 * s_a2a2 + c2 * s_a1a1
-        for i in range(n_species):
-            for k in range(i + 1, n_species):
-                minor = a1[i] * a2[k] - a1[k] * a2[i]
-                if minor:
-                    det = det + species[i] * species[k] * minor * minor
-        # H22 g1 - H12 g2 = c2 g1 + sum_i s_i a_i2 (a_i2 g1 - a_i1 g2), and symmetrically.
-        first = c2 * g1 + ((a2[:, None] * (a2[:, None] * g1 - a1[:, None] * g2)) * species).sum(
-            axis=0
-        )
-        second = c1 * g2 + ((a1[:, None] * (a1[:, None] * g2 - a2[:, None] * g1)) * species).sum(
-            axis=0
-        )
-        step: NDArray[np.float64] = -np.stack([first, second]) / det
-        return step
+        return _newton_step_two(free, species, gradient, matrix)
     hessian = [[np.zeros(0)] * m for _ in range(m)]
     for j in range(m):
         for k in range(j + 1):
@@ -372,42 +384,156 @@ def _newton_step(
     return np.stack([solved[j] * inv_root[j] for j in range(m)])
 
 
+def _times(vector: NDArray[np.float64], coefficient: float) -> NDArray[np.float64]:
+    """vector * coefficient; the vector itself (not a copy) for a coefficient of 1, which is
+    exact."""
+    return vector if coefficient == 1.0 else vector * coefficient
+
+
+def _newton_step_two(
+    free: NDArray[np.float64],
+    species: NDArray[np.float64],
+    gradient: NDArray[np.float64],
+    matrix: NDArray[np.float64],
+) -> NDArray[np.float64]:
+    """:func:`_newton_step` for two components.
+
+    With u_i = a_i2 g1 - a_i1 g2, the adjugate's rows are
+    H22 g1 - H12 g2 = c2 g1 + sum_i (a_i2 u_i) s_i and
+    H11 g2 - H12 g1 = c1 g2 - sum_i (a_i1 u_i) s_i, since a_i1 g2 - a_i2 g1 is -u_i exactly in
+    floating point; each u_i is formed once.
+    """
+    a1 = [float(a) for a in matrix[:, 0]]
+    a2 = [float(a) for a in matrix[:, 1]]
+    c1, c2 = free[0], free[1]
+    g1, g2 = gradient[0], gradient[1]
+    det = c1 * c2
+    det += c1 * _small_product(matrix[:, 1] * matrix[:, 1], species)
+    det += c2 * _small_product(matrix[:, 0] * matrix[:, 0], species)
+    first: NDArray[np.float64] | None = None
+    second: NDArray[np.float64] | None = None
+    for i in range(len(a1)):
+        for k in range(i + 1, len(a1)):
+            minor = a1[i] * a2[k] - a1[k] * a2[i]
+            if minor:
+                pair = species[i] * species[k]
+                pair *= minor
+                pair *= minor
+                det += pair
+        u = _times(g1, a2[i]) - _times(g2, a1[i])
+        if a2[i]:
+            term = np.multiply(_times(u, a2[i]), species[i])
+            first = term if first is None else np.add(first, term, out=first)
+        if a1[i]:
+            term = np.multiply(_times(u, a1[i]), species[i])
+            second = term if second is None else np.add(second, term, out=second)
+    step = np.empty((2, c1.shape[0]))
+    np.multiply(c2, g1, out=step[0])
+    if first is not None:
+        step[0] += first
+    np.multiply(c1, g2, out=step[1])
+    if second is not None:
+        step[1] -= second
+    # Where every term underflows (a mixture of two zero totals' 1e-280 stand-ins, whose
+    # products are 1e-560), the floor makes the step 0 instead of 0 / 0.
+    step /= np.maximum(det, _SMALLEST_NORMAL, out=det)
+    np.negative(step, out=step)
+    return step
+
+
+def _column_sum(rows: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Sum over the first axis of a (k, n) array, row by row in order (as numpy's sum over
+    that axis adds them)."""
+    out: NDArray[np.float64] = rows[0].copy()
+    for row in rows[1:]:
+        out += row
+    return out
+
+
+def _potential(
+    free: NDArray[np.float64],
+    species: NDArray[np.float64],
+    totals: NDArray[np.float64],
+    x: NDArray[np.float64],
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """(sum c + sum s, F = sum c + sum s - T.x) of each mixture, component-major."""
+    mass = _column_sum(free)
+    mass += _column_sum(species)
+    dot = totals[0] * x[0]
+    for j in range(1, x.shape[0]):
+        dot += totals[j] * x[j]
+    return mass, mass - dot
+
+
 def _newton(
     x: NDArray[np.float64],
+    free: NDArray[np.float64],
     totals: NDArray[np.float64],
     matrix: NDArray[np.float64],
     ln_beta: NDArray[np.float64],
-) -> tuple[NDArray[np.float64], int]:
-    """Damped Newton on the convex potential F, component-major: x and totals are (m, n).
+    beta: NDArray[np.float64] | None,
+) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64], int]:
+    """Damped Newton on the convex potential F, component-major: x, free = exp(x) and
+    totals are (m, n); beta as in :func:`_species`.
 
-    Arrays are laid out one row per component so every sum over components or species is a
-    handful of contiguous vector operations (numpy reductions along a short last axis are
-    several times slower).
+    Returns the free components (m, n), the species (s, n) and the mass-balance residuals
+    (m, n) at the solution, and the iterations of the slowest mixture. Arrays are laid out one
+    row per component so every sum over components or species is a handful of contiguous
+    vector operations (numpy reductions along a short last axis are several times slower).
     """
-    x = x.copy()
+    m, n = x.shape
     matrix_t = np.ascontiguousarray(matrix.T)
     abs_t = np.abs(matrix_t)
-    active = np.arange(x.shape[1])
+    # The mixtures still iterating; until half of them have converged, all of them iterate
+    # (a further Newton step keeps a converged mixture converged, and costs less than moving
+    # every array's columns), and then the converged ones' results are set aside.
+    active = np.arange(n)
+    compacted = False
+    free_out = species_out = gradient_out = np.empty((0, 0))
     xa, ta = x, totals
-    free = np.exp(xa)
-    lb = ln_beta  # the active mixtures' constants
-    species = np.exp(_species_log(xa, matrix, lb))
+    lb, bt = ln_beta, beta  # the active mixtures' constants
+    species = _species(xa, free, matrix, lb, bt)
+    mass, f0 = _potential(free, species, ta, xa)
     iterations = 0
     # Without negative coefficients |A| = A, and the scale's sum is the gradient's.
     signed = bool(np.any(matrix_t < 0))
-    while iterations < _MAX_NEWTON:
-        held = _small_product(matrix_t, species)
-        gradient = free + held - ta
+    while True:
+        balance = _small_product(matrix_t, species)
+        balance += free
+        gradient = balance - ta
         # Converged when each residual is small against the largest terms of its balance:
         # with positive coefficients those sum to the total T, but a species with a negative
         # coefficient (M(OH) written with -1 H+) can hold far more than T of the component,
         # and then a residual of 1e-12 T is below the rounding of those terms (it never came
         # within reach and the solver reported non-convergence).
-        scale = np.maximum(ta, free + (_small_product(abs_t, species) if signed else held))
-        done = np.all(np.abs(gradient) <= _RTOL * scale, axis=0)
-        if np.any(done):
-            x[:, active[done]] = xa[:, done]
-            keep = ~done
+        if signed:
+            balance = _small_product(abs_t, species)
+            balance += free
+        scale = np.maximum(ta, balance, out=balance)
+        scale *= _RTOL
+        within = np.abs(gradient) <= scale
+        done = within[0]
+        for j in range(1, m):
+            done &= within[j]
+        n_done = int(np.count_nonzero(done))
+        if n_done == active.size:
+            if not compacted:
+                return free, species, gradient, iterations
+            free_out[:, active] = free
+            species_out[:, active] = species
+            gradient_out[:, active] = gradient
+            break
+        if 2 * n_done >= active.size:
+            if not compacted:
+                free_out = np.empty((m, n))
+                species_out = np.empty((matrix.shape[0], n))
+                gradient_out = np.empty((m, n))
+                compacted = True
+            finished = active[done]
+            free_out[:, finished] = free[:, done]
+            species_out[:, finished] = species[:, done]
+            gradient_out[:, finished] = gradient[:, done]
+            keep = np.flatnonzero(~done)
             active = active[keep]
             xa, ta, free, species, gradient = (
                 xa[:, keep],
@@ -416,52 +542,133 @@ def _newton(
                 species[:, keep],
                 gradient[:, keep],
             )
-            lb = _columns(lb, np.flatnonzero(keep))
-        if not active.size:
-            break
+            mass, f0 = mass[keep], f0[keep]
+            lb = _columns(lb, keep)
+            bt = None if bt is None else _columns(bt, keep)
+        if iterations == _MAX_NEWTON:
+            raise ConvergenceError(
+                f"equilibrium solver did not converge for {active.size - n_done} mixture(s) "
+                f"in {_MAX_NEWTON} Newton iterations",
+                field="total_M",
+                value=totals[:, active[np.argmin(done)]].tolist(),
+                hint="check that the totals and log_beta are physically sensible",
+            )
         iterations += 1
         step = _newton_step(free, species, gradient, matrix)
         # Armijo backtracking on F(x) = sum c + sum s - T.x (Nocedal and Wright, Numerical
         # Optimization, 2nd ed., 2006, Algorithm 3.1, c1 = 1e-4); no step moves a
         # log-concentration by more than ln(1e8), so exp never overflows.
-        longest = np.max(np.abs(step), axis=0)
-        step *= np.minimum(1.0, np.log(1e8) / np.maximum(longest, 1e-300))
-        t = np.ones(active.size)
-        mass = free.sum(axis=0) + species.sum(axis=0)
-        f0 = mass - (ta * xa).sum(axis=0)
-        slope = (gradient * step).sum(axis=0)
-        scale = np.abs(f0) + mass
-        trial = xa + t * step
+        longest = np.abs(step[0])
+        for j in range(1, m):
+            np.maximum(longest, np.abs(step[j]), out=longest)
+        if longest.max() > _LONGEST_STEP:
+            step *= np.minimum(1.0, _LONGEST_STEP / np.maximum(longest, 1e-300))
+        slope = gradient[0] * step[0]
+        for j in range(1, m):
+            slope += gradient[j] * step[j]
+        bound = 1e-4 * slope
+        bound += f0  # the Armijo bound of a full step
+        # Near the root F changes by less than its rounding: accept such steps, which are
+        # full Newton steps in the quadratic phase.
+        flat = np.abs(f0)
+        flat += mass
+        flat *= 1e-14
+        trial = xa + step
         trial_free = np.exp(trial)
-        trial_species = np.exp(_species_log(trial, matrix, lb))
-        for _ in range(60):
-            f1 = trial_free.sum(axis=0) + trial_species.sum(axis=0) - (ta * trial).sum(axis=0)
-            # Near the root F changes by less than its rounding: accept such steps, which are
-            # full Newton steps in the quadratic phase.
-            ok = (f1 <= f0 + 1e-4 * t * slope) | (np.abs(f1 - f0) <= 1e-14 * scale)
-            if np.all(ok):
-                break
-            bad = np.flatnonzero(~ok)
-            t[bad] *= 0.5
-            trial[:, bad] = xa[:, bad] + t[bad] * step[:, bad]
-            trial_free[:, bad] = np.exp(trial[:, bad])
-            trial_species[:, bad] = np.exp(_species_log(trial[:, bad], matrix, _columns(lb, bad)))
-        xa, free, species = trial, trial_free, trial_species
-    if active.size:
-        raise ConvergenceError(
-            f"equilibrium solver did not converge for {active.size} mixture(s) "
-            f"in {_MAX_NEWTON} Newton iterations",
-            field="total_M",
-            value=totals[:, active[0]].tolist(),
-            hint="check that the totals and log_beta are physically sensible",
-        )
-    return x, iterations
+        trial_species = _species(trial, trial_free, matrix, lb, bt)
+        trial_mass, f1 = _potential(trial_free, trial_species, ta, trial)
+        ok = f1 <= bound
+        if not ok.all():
+            ok |= np.abs(f1 - f0) <= flat
+        if not ok.all():
+            t = np.ones(active.size)
+            for _ in range(60):
+                bad = np.flatnonzero(~ok)
+                t[bad] *= 0.5
+                trial[:, bad] = xa[:, bad] + t[bad] * step[:, bad]
+                trial_free[:, bad] = np.exp(trial[:, bad])
+                trial_species[:, bad] = _species(
+                    trial[:, bad],
+                    trial_free[:, bad],
+                    matrix,
+                    _columns(lb, bad),
+                    None if bt is None else _columns(bt, bad),
+                )
+                trial_mass, f1 = _potential(trial_free, trial_species, ta, trial)
+                ok = (f1 <= f0 + 1e-4 * t * slope) | (np.abs(f1 - f0) <= flat)
+                if ok.all():
+                    break
+        xa, free, species, mass, f0 = trial, trial_free, trial_species, trial_mass, f1
+    return free_out, species_out, gradient_out, iterations
+
+
+def _by_products(matrix: NDArray[np.float64], ln_beta: NDArray[np.float64]) -> bool:
+    """Whether species may be formed as beta times products of free concentrations: every
+    coefficient a whole number from 0 to _MAX_POWER and every beta below e^_MAX_PRODUCT_LN_BETA,
+    so that no product overflows."""
+    return bool(
+        np.all(matrix >= 0.0)
+        and np.all(matrix == np.round(matrix))
+        and np.max(matrix) <= _MAX_POWER
+        and np.max(ln_beta) <= _MAX_PRODUCT_LN_BETA
+    )
+
+
+def _species_products(
+    free: NDArray[np.float64], matrix: NDArray[np.float64], beta: NDArray[np.float64]
+) -> NDArray[np.float64]:
+    """s_i = beta_i prod_j c_j^(a_ij) by repeated multiplication, component-major: free
+    (m, n) -> (s, n); beta is (s, 1) or (s, n). For whole-number coefficients this is exp(ln
+    beta_i + sum_j a_ij x_j) without the exponentials, to rounding."""
+    out = np.empty((matrix.shape[0], free.shape[1]))
+    for i, row in enumerate(matrix):
+        started = False
+        for j, coefficient in enumerate(row):
+            for _ in range(int(coefficient)):
+                if started:
+                    out[i] *= free[j]
+                else:
+                    np.multiply(free[j], beta[i], out=out[i])
+                    started = True
+        if not started:
+            out[i] = beta[i]
+    return out
+
+
+def _species(
+    x: NDArray[np.float64],
+    free: NDArray[np.float64],
+    matrix: NDArray[np.float64],
+    ln_beta: NDArray[np.float64],
+    beta: NDArray[np.float64] | None,
+) -> NDArray[np.float64]:
+    """Species at the log-concentrations x, whose exponentials are free, component-major.
+
+    With beta given (:func:`_by_products`), by products of the free concentrations, except in
+    mixtures where a free concentration lies so near the bottom of the float range
+    (x < _LOWEST_PRODUCT_LN) that a product would lose digits; those, and every mixture
+    without beta, by exp(ln beta + A x).
+    """
+    if beta is None:
+        return np.exp(_species_log(x, matrix, ln_beta))
+    species = _species_products(free, matrix, beta)
+    low = x[0] < _LOWEST_PRODUCT_LN
+    for j in range(1, x.shape[0]):
+        low |= x[j] < _LOWEST_PRODUCT_LN
+    if low.any():
+        which = np.flatnonzero(low)
+        species[:, which] = np.exp(_species_log(x[:, which], matrix, _columns(ln_beta, which)))
+    return species
 
 
 def _start(
-    totals: NDArray[np.float64], matrix: NDArray[np.float64], logs: NDArray[np.float64]
-) -> NDArray[np.float64]:
-    """Starting log-concentrations, (m, n) layout; logs is (s, 1) or (s, n).
+    totals: NDArray[np.float64],
+    matrix: NDArray[np.float64],
+    logs: NDArray[np.float64],
+    beta: NDArray[np.float64] | None,
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Starting log-concentrations and their exponentials, (m, n) layout; logs is (s, 1) or
+    (s, n), beta the constants when species are formed by products (else None).
 
     When a 1:1 species of two components exists, the closed-form root of that pair alone is
     the start (the other species are then usually minor, and Newton needs 2 to 4 steps);
@@ -472,16 +679,20 @@ def _start(
         for i in range(matrix.shape[0])
         if np.count_nonzero(matrix[i]) == 2 and np.all(matrix[i][matrix[i] != 0] == 1.0)
     ]
-    if not one_to_one:
-        return _pcf_start(totals, matrix, logs * _LN10)
-    best = max(one_to_one, key=lambda i: float(np.max(logs[i])))
-    first, second = np.flatnonzero(matrix[best])
-    x = np.log(totals)
-    x[first], x[second] = _one_to_one_log_free(
-        totals[first], totals[second], 10.0 ** logs[best].reshape(-1)
-    )
-    # Two sweeps pull the start back when another species (a strong 1:2, say) dominates.
-    return _pcf_start(totals, matrix, logs * _LN10, x, sweeps=2)
+    best = max(one_to_one, key=lambda i: float(np.max(logs[i]))) if one_to_one else None
+    if beta is not None:
+        return _pcf_start_products(totals, matrix, logs, beta, best)
+    if best is None:
+        x = _pcf_start(totals, matrix, logs * _LN10)
+    else:
+        first, second = np.flatnonzero(matrix[best])
+        x = np.log(totals)
+        x[first], x[second] = _one_to_one_log_free(
+            totals[first], totals[second], 10.0 ** logs[best].reshape(-1)
+        )
+        # Two sweeps pull the start back when another species (a strong 1:2, say) dominates.
+        x = _pcf_start(totals, matrix, logs * _LN10, x, sweeps=2)
+    return x, np.exp(x)
 
 
 def _pcf_start(
@@ -504,6 +715,55 @@ def _pcf_start(
         consumed = totals + _small_product(negative.T, species) if has_negative else totals
         x = x + (np.log(consumed) - np.log(produced)) / largest
     return x
+
+
+def _pcf_start_products(
+    totals: NDArray[np.float64],
+    matrix: NDArray[np.float64],
+    logs: NDArray[np.float64],
+    beta: NDArray[np.float64],
+    best: int | None,
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """:func:`_start` for whole, non-negative coefficients: the same sweeps on the free
+    concentrations themselves, c_j <- c_j (T_j / (c_j + sum_i a_ij s_i))^(1 / max_i a_ij),
+    with species by products, so that only the final logarithms are transcendental.
+
+    Each sweep keeps c_j <= T_j, so no product overflows; free concentrations are held at or
+    above 1e-300, so none underflows to 0 (Newton takes the few mixtures whose root lies
+    lower the rest of the way).
+    """
+    free = totals.copy()
+    sweeps = _PCF_SWEEPS
+    if best is not None:
+        first, second = np.flatnonzero(matrix[best])
+        free[first], free[second] = _one_to_one_free(
+            totals[first], totals[second], 10.0 ** logs[best].reshape(-1)
+        )
+        sweeps = 2
+    matrix_t = np.ascontiguousarray(matrix.T)
+    largest = [max(1, int(a)) for a in matrix.max(axis=0)]
+    for _ in range(sweeps):
+        np.maximum(free, 1e-300, out=free)
+        produced = _small_product(matrix_t, _species_products(free, matrix, beta))
+        produced += free
+        np.divide(totals, produced, out=produced)
+        for j, power in enumerate(largest):
+            if power == 2:
+                np.sqrt(produced[j], out=produced[j])
+            elif power > 2:
+                np.power(produced[j], 1.0 / power, out=produced[j])
+        free *= produced
+    x = np.log(np.maximum(free, 1e-300, out=free))
+    # Where the floor held a free concentration up (a zero total's 1e-280 stand-in bound by a
+    # large constant), the logarithmic sweeps start those mixtures at their far lower root.
+    held_up = free[0] <= 1e-300
+    for j in range(1, free.shape[0]):
+        held_up |= free[j] <= 1e-300
+    if held_up.any():
+        which = np.flatnonzero(held_up)
+        x[:, which] = _start(totals[:, which], matrix, _columns(logs, which), None)[0]
+        free[:, which] = np.exp(x[:, which])
+    return x, free
 
 
 def solve_equilibrium(
@@ -551,29 +811,46 @@ def solve_equilibrium(
     0.9073
     """
     totals, matrix, logs = _check_inputs(total_M, stoichiometry, log_beta)
-    if totals.shape[0] <= _CHUNK:
-        return _solve_checked(totals, matrix, logs)
+    n = totals.shape[0]
+    free = np.empty(totals.shape)
+    species = np.empty((n, matrix.shape[0]))
+    residual = np.empty(totals.shape)
+    iterations = 0
     # Blocks of mixtures small enough that every temporary array stays in the processor's
     # cache: on 1e6 mixtures the whole-batch arrays (8 MB each) made the solver wait on
-    # memory and on fresh pages for most of its time.
-    parts = [
-        _solve_checked(totals[start : start + _CHUNK], matrix, logs)
-        for start in range(0, totals.shape[0], _CHUNK)
-    ]
+    # memory and on fresh pages for most of its time. Each block's results are written
+    # straight into the whole batch's arrays.
+    for start in range(0, n, _CHUNK):
+        block = slice(start, start + _CHUNK)
+        iterations = max(
+            iterations,
+            _solve_block(
+                totals[block],
+                matrix,
+                logs[block] if logs.ndim == 2 else logs,
+                free[block],
+                species[block],
+                residual[block],
+            ),
+        )
     return Equilibrium(
-        free_M=np.concatenate([p.free_M for p in parts]),
-        species_M=np.concatenate([p.species_M for p in parts]),
-        relative_residual=np.concatenate([p.relative_residual for p in parts]),
-        iterations=max(p.iterations for p in parts),
+        free_M=free, species_M=species, relative_residual=residual, iterations=iterations
     )
 
 
-def _solve_checked(
-    totals: NDArray[np.float64], matrix: NDArray[np.float64], logs: NDArray[np.float64]
-) -> Equilibrium:
-    """:func:`solve_equilibrium` on checked inputs, all mixtures at once."""
+def _solve_block(
+    totals: NDArray[np.float64],
+    matrix: NDArray[np.float64],
+    logs: NDArray[np.float64],
+    free: NDArray[np.float64],
+    species: NDArray[np.float64],
+    residual: NDArray[np.float64],
+) -> int:
+    """:func:`solve_equilibrium` on checked inputs, all mixtures at once, into free, species
+    and residual (n, m), (n, s), (n, m); returns the Newton iterations."""
     zero = totals <= 0.0
-    work = np.where(zero, _ZERO_STAND_IN_M, totals)
+    any_zero = bool(np.any(zero))
+    work = np.where(zero, _ZERO_STAND_IN_M, totals) if any_zero else totals
     # Constants species-major, one column shared or one per mixture: (s, 1) or (s, n).
     logs_t = np.ascontiguousarray(logs.T) if logs.ndim == 2 else logs[:, None]
     ln_beta_t = logs_t * _LN10
@@ -582,21 +859,25 @@ def _solve_checked(
         ln_metal, ln_ligand = _one_to_one_log_free(work[:, 0], work[:, 1], 10.0 ** logs_t[0])
         x = np.stack([ln_metal, ln_ligand], axis=1)
         iterations = 0
+        np.exp(x, out=free)
+        np.exp(_small_product(matrix, x.T).T + ln_beta_t.T, out=species)
+        np.divide(free + _small_product(matrix.T, species.T).T - work, work, out=residual)
     else:
         work_t = np.ascontiguousarray(work.T)
-        x_t, iterations = _newton(_start(work_t, matrix, logs_t), work_t, matrix, ln_beta_t)
-        x = x_t.T
-
-    free = np.exp(x)
-    species = np.exp(_small_product(matrix, x.T).T + ln_beta_t.T)
-    residual = (free + _small_product(matrix.T, species.T).T - work) / work
-    free = np.where(zero, 0.0, free)
-    absent = (zero.astype(float) @ (matrix != 0).T) > 0
-    species = np.where(absent, 0.0, species)
-    residual = np.where(zero, 0.0, residual)
-    return Equilibrium(
-        free_M=free, species_M=species, relative_residual=residual, iterations=iterations
-    )
+        beta = np.exp(ln_beta_t) if _by_products(matrix, ln_beta_t) else None
+        x, free_t = _start(work_t, matrix, logs_t, beta)
+        free_t, species_t, gradient_t, iterations = _newton(
+            x, free_t, work_t, matrix, ln_beta_t, beta
+        )
+        free[...] = free_t.T
+        species[...] = species_t.T
+        gradient_t /= work_t
+        residual[...] = gradient_t.T
+    if any_zero:
+        free[zero] = 0.0
+        residual[zero] = 0.0
+        species[(zero.astype(float) @ (matrix != 0).T) > 0] = 0.0
+    return iterations
 
 
 def _is_one_to_one(matrix: NDArray[np.float64]) -> bool:

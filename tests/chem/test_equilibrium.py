@@ -82,6 +82,20 @@ def test_a_batch_of_several_solver_blocks_agrees_with_the_closed_form():
         assert solved.species_M[row, 0] == 0.0
 
 
+def test_constants_per_mixture_over_several_solver_blocks():
+    # One row of constants per mixture (each mixture in its own medium) across three blocks:
+    # each block must be solved with its own rows of constants (the whole table was passed
+    # to every block, which failed to broadcast). Each mixture against the closed-form root
+    # with its own K (Newton path, as above).
+    rng = np.random.default_rng(13)
+    totals = 10 ** rng.uniform(-7, 0, size=(70_000, 2))
+    log_k = rng.uniform(1.0, 6.0, size=70_000)
+    logs = np.column_stack([log_k, np.full(70_000, -50.0)])
+    solved = solve_equilibrium(totals, np.array([[1.0, 1.0], [2.0, 3.0]]), logs)
+    closed = one_to_one_complex_M(totals[:, 0], totals[:, 1], 10**log_k)
+    np.testing.assert_allclose(solved.species_M[:, 0], closed, rtol=1e-10)
+
+
 def test_one_to_two_system_matches_sympy():
     # Reference: sympy solves the two mass balances of M + L = ML, M + 2L = ML2 exactly
     # (nsolve to 40 digits from the planner's answer's neighbourhood, then checked to be the
