@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import itertools
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -49,6 +49,10 @@ _FLASK_DILUENT_SHARE = 0.1
 _ROUND_STEPS_mL = (0.01, 0.02, 0.05, 0.1, 0.2, 0.25, 0.5, 1.0, 2.0, 5.0)
 # Most candidates evaluated; more reagent stocks thin each stock's list further.
 _MAX_CANDIDATES = 150_000
+# Fewest volumes per stock the full product may leave before the search takes at most as
+# many reagent stocks per mixture as there are components (about a third of what the
+# default's three reagent stocks keep).
+_FEW_VOLUMES = 20
 _NL_PER_ML = 1_000_000
 #: Least share of a reagent's total a stock must add to earn its place in a mixture (common
 #: practice: a stock that adds under 5 % of the reagent only pads the excess with one more
@@ -277,10 +281,19 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
     thinned = {st.id: _thin(tables[shelves[st.id]].volumes_mL()) for st in reagents}
 
     # Fewer volumes per stock when the product of the lists would be too long.
-    limit = [int(thinned[st.id].size) + 1 for st in reagents]
-    while math.prod(limit) > _MAX_CANDIDATES and max(limit) > 3:
-        largest = max(limit)
-        limit = [n - max(1, n // 10) if n == largest else n for n in limit]
+    full = [int(thinned[st.id].size) + 1 for st in reagents]
+    limit = _shrink(full, math.prod)
+    # Many reagent stocks: every combination of all of them leaves only a few volumes each.
+    # Then a mixture takes at most as many reagent stocks as the reaction has components:
+    # any component totals a nonnegative mix of the stocks reaches, a mix of at most that
+    # many of them reaches too (Caratheodory's theorem for cones, from memory), so the
+    # search keeps its reach and many more volumes per stock.
+    most_stocks = len(inputs.reaction.components)
+    subsets = most_stocks < len(reagents) and any(
+        n < min(f, _FEW_VOLUMES) for n, f in zip(limit, full, strict=True)
+    )
+    if subsets:
+        limit = _shrink(full, lambda sizes: _subset_count(sizes, most_stocks))
     none = Option(volume_mL=0.0, devices=(), u_mL=0.0)
     by_id = devices_by_id(inputs.glassware)
     columns: list[tuple[Option, ...]] = []
@@ -292,7 +305,10 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
         table = tables[shelves[st.id]]
         columns.append((none, *(_option(table, float(v), inputs.bench, by_id) for v in volumes)))
 
-    grid = np.array(list(itertools.product(*(range(len(c)) for c in columns))), dtype=np.int64)
+    if subsets:
+        grid = _subset_grid([len(c) for c in columns], most_stocks)
+    else:
+        grid = np.array(list(itertools.product(*(range(len(c)) for c in columns))), dtype=np.int64)
     grid = grid.reshape(-1, len(reagents))
     if reagents:
         volumes = np.stack(
@@ -386,6 +402,43 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
         evaluation=evaluation,
         padded=_padded(inputs, stocks_in_order, volumes_mL),
     )
+
+
+def _shrink(sizes: Sequence[int], count: Callable[[Sequence[int]], int]) -> list[int]:
+    """Options per stock ("none" included), the longest lists cut by a tenth at a time until
+    ``count`` of them is at most ``_MAX_CANDIDATES`` (or every list is down to 3)."""
+    limit = list(sizes)
+    while count(limit) > _MAX_CANDIDATES and max(limit) > 3:
+        largest = max(limit)
+        limit = [n - max(1, n // 10) if n == largest else n for n in limit]
+    return limit
+
+
+def _subset_count(sizes: Sequence[int], most_stocks: int) -> int:
+    """Candidates that use at most ``most_stocks`` of the stocks, each stock at one of its
+    ``size - 1`` volumes: the elementary symmetric sums of the list lengths up to that order."""
+    sums = [1] + [0] * most_stocks
+    for size in sizes:
+        for order in range(most_stocks, 0, -1):
+            sums[order] += sums[order - 1] * (size - 1)
+    return sum(sums)
+
+
+def _subset_grid(sizes: Sequence[int], most_stocks: int) -> NDArray[np.int64]:
+    """Option indices of every candidate that uses at most ``most_stocks`` of the stocks,
+    shape (n, len(sizes)); index 0 is "none". Fewer stocks first, then stocks in order."""
+    blocks = [np.zeros((1, len(sizes)), dtype=np.int64)]
+    for used in range(1, most_stocks + 1):
+        for subset in itertools.combinations(range(len(sizes)), used):
+            ranges = [np.arange(1, sizes[j], dtype=np.int64) for j in subset]
+            if any(r.size == 0 for r in ranges):
+                continue
+            mesh = np.meshgrid(*ranges, indexing="ij")
+            block = np.zeros((mesh[0].size, len(sizes)), dtype=np.int64)
+            for j, axis in zip(subset, mesh, strict=True):
+                block[:, j] = axis.reshape(-1)
+            blocks.append(block)
+    return np.concatenate(blocks)
 
 
 def _padded(

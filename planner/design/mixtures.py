@@ -639,6 +639,7 @@ def choose_tests(
         )
     by_fraction = pool[np.argsort(fraction[pool], kind="stable")]
     f_sorted = fraction[by_fraction]
+    f_list = f_sorted.tolist()
     own_pool = _own(inputs, candidates, by_fraction, objective)
     best: tuple[float, NDArray[np.int64]] | None = None
     starts: list[tuple[float, list[int]]] = []
@@ -654,13 +655,14 @@ def choose_tests(
         for hi in his:
             members = [int(lo)] if lo == hi else [int(lo), int(hi)]
             inside = np.flatnonzero((f_sorted >= f_sorted[lo]) & (f_sorted <= f_sorted[hi]))
-            rest = [int(i) for i in inside[np.argsort(own_pool[inside], kind="stable")]]
+            rest = inside[np.argsort(own_pool[inside], kind="stable")].tolist()
             for i in rest:
                 if len(members) >= count:
                     break
                 # Keep members apart in bound fraction so the set tests K across
-                # conditions instead of repeating one condition.
-                if i not in members and np.all(np.abs(f_sorted[members] - f_sorted[i]) >= gap):
+                # conditions instead of repeating one condition (plain floats: the same
+                # double arithmetic as numpy's, without an array per comparison).
+                if i not in members and all(abs(f_list[m] - f_list[i]) >= gap for m in members):
                     members.append(i)
             if len(members) < count:
                 continue

@@ -733,9 +733,14 @@ def combination_uncertainty_mL(
 #: chance to lose count at the bench; beyond five a larger device is the better tool).
 MAX_DELIVERIES = 5
 
-#: Most slots of the dense distinct-volume table (one per multiple of the shelf's common
-#: volume step up to the largest volume wanted); a finer shelf is tabulated sparsely.
-_MAX_SLOTS = 1_000_000
+#: Most array elements :func:`volume_table` touches: its slots (one per multiple of the
+#: table's step up to the largest volume wanted) times the passes over them (one per device
+#: and round, and a few per graded device). 1e7 take about 0.1 s; a shelf whose own common
+#: step would need more is tabulated on a coarser round step (see volume_table's Notes).
+_MAX_WORK = 10_000_000
+# Passes over the slots of one graded device's sliding-window minimum (padding, two running
+# minima, their minimum, the key sum): an estimate for the work bound.
+_WINDOW_PASSES = 5
 
 
 @dataclass(frozen=True, slots=True)
@@ -932,16 +937,22 @@ class VolumeTable:
         )
 
 
-def _sparse_min(
-    volumes_pL: NDArray[np.int64], keys: NDArray[np.float64]
-) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
-    """Distinct volumes, ascending, each with its smallest key."""
-    if volumes_pL.size == 0:
-        return volumes_pL, keys
-    order = np.lexsort((keys, volumes_pL))
-    volumes_pL, keys = volumes_pL[order], keys[order]
-    first = np.concatenate(([True], np.diff(volumes_pL) != 0))
-    return volumes_pL[first], keys[first]
+def _on_step(grid: _Grid, step_pL: int) -> _Grid:
+    """The readings of a grid that are whole multiples of ``step_pL`` [pL], as a grid.
+
+    first + k * step is a multiple of q exactly when k * step = -first (mod q); with
+    g = gcd(step, q) that needs g | first, and then k runs through one residue class modulo
+    q / g (the linear congruence theorem, from memory).
+    """
+    divisor = math.gcd(grid.step_pL, step_pL)
+    if grid.first_pL % divisor:
+        return _NO_GRID
+    period = step_pL // divisor
+    k = (-(grid.first_pL // divisor) * pow(grid.step_pL // divisor, -1, period)) % period
+    if k >= grid.count:
+        return _NO_GRID
+    count = (grid.count - 1 - k) // period + 1
+    return _Grid(grid.first_pL + k * grid.step_pL, grid.step_pL * period, count)
 
 
 def backward_window_min(values: NDArray[np.float64], size: int) -> NDArray[np.float64]:
@@ -1001,8 +1012,8 @@ def volume_table(
     Raises
     ------
     InvalidInputError
-        ``max_deliveries`` < 1, a non-finite bound, a device the catalogue cannot use, or a
-        shelf whose sparse table would exceed :data:`MAX_COMBINATIONS` elements.
+        ``max_deliveries`` < 1, a non-finite bound, or a device the catalogue cannot use.
+        Any shelf is tabulated: the work is bounded (see Notes), never refused.
 
     Notes
     -----
@@ -1020,8 +1031,17 @@ def volume_table(
     its best key; the graded remainder is then a sliding-window minimum along the device's
     grid. The work is a few passes over the distinct volumes per device, whatever the number
     of combinations. The volumes live on a dense table of the shelf's common step (the
-    greatest common divisor of every volume, grid start and step, in pL) when it has at most
-    ``_MAX_SLOTS`` slots, else on sorted sparse arrays.
+    greatest common divisor of every volume, grid start and step, in pL).
+
+    When that table times the passes over it would exceed ``_MAX_WORK`` elements (a
+    0.2-2 µL piston pipette set in 0.02 µL steps beside a 10 mL tube gives a million slots,
+    times some forty passes for a full shelf), the table's step is coarsened to the shelf's
+    common step times the smallest power of ten that fits, and every delivery is then a
+    whole multiple of that step: one-mark volumes (and full scales) off it are left out, and
+    each graded device keeps the readings on it. Every volume listed is still delivered
+    exactly by the devices named; only volumes that would need a reading finer than the step
+    are missing (for a 10 mL total, a step of at most 1 µL, far below the 0.01 mL the design
+    thins its search to). The work, ``operations``, is then at most about ``_MAX_WORK``.
     """
 
     _check_max_deliveries(max_deliveries)
@@ -1033,13 +1053,29 @@ def volume_table(
             hint="give a number",
         )
     high_pL = max(_to_pL(max_volume_mL), 0)
+    usable = [(device_id, grid, u2) for device_id, grid, u2 in _usable(glassware)]
+    natural = 0
+    for _, grid, _ in usable:
+        natural = math.gcd(natural, grid.first_pL, grid.step_pL)
+    # The step of the table: the shelf's own common step when the work fits, else the
+    # finest round step (the common step times a power of ten) that keeps it within
+    # _MAX_WORK, the deliveries then restricted to whole multiples of it.
+    reaching = sum(1 for _, grid, _ in usable if grid.first_pL <= high_pL)
+    per_slot = (max_deliveries + _WINDOW_PASSES) * reaching
+    step_pL = natural
+    power = 1
+    while natural and (high_pL // step_pL + 1) * per_slot > _MAX_WORK:
+        step_pL = math.lcm(natural, power)
+        power *= 10
     items: list[_Item] = []
     graded: list[tuple[str, _Grid, float]] = []
-    for device_id, grid, u2 in _usable(glassware):
-        if grid.last_pL <= high_pL:
+    for device_id, grid, u2 in usable:
+        if grid.last_pL <= high_pL and grid.last_pL % max(step_pL, 1) == 0:
             items.append(_Item(device_id, grid.last_pL, u2))
-        if grid.count > 1 and grid.first_pL <= high_pL:
-            graded.append((device_id, grid, u2))
+        if grid.count > 1:
+            on_step = _on_step(grid, step_pL)
+            if on_step.count > 0 and on_step.first_pL <= high_pL:
+                graded.append((device_id, on_step, u2))
     # Largest volume first: ties in the backtracking go to the larger deliveries.
     items.sort(key=lambda item: (-item.volume_pL, item.device))
     big = 1.0 + 2.0 * max_deliveries * max(
@@ -1054,82 +1090,48 @@ def volume_table(
     slots = high_pL // quantum + 1 if quantum else 1
     operations = 0
     fixed_rounds: list[tuple[NDArray[np.int64], NDArray[np.float64]]] = []
-    if quantum and slots <= _MAX_SLOTS:
-        # Dense: one slot per multiple of the common step.
-        current = np.full(slots, np.inf)
-        current[0] = 0.0
-        dense_rounds = [current]
-        for _ in range(max_deliveries):
-            following = current.copy()
-            for item in items:
-                shift = item.volume_pL // quantum
-                np.minimum(
-                    following[shift:],
-                    current[: slots - shift] + big + item.u2,
-                    out=following[shift:],
-                )
-                operations += slots - shift
-            dense_rounds.append(following)
-            current = following
-        for dense in dense_rounds:
-            where = np.flatnonzero(np.isfinite(dense))
-            fixed_rounds.append((where.astype(np.int64) * quantum, dense[where]))
-        best = dense_rounds[-1].copy()
-        states = dense_rounds[-2]
-        for _, grid, u2 in graded:
-            first, step = grid.first_pL // quantum, grid.step_pL // quantum
-            if first >= slots:
-                continue
-            # Backward window of grid.count states, one residue class of the step at a time.
-            length = -(-(slots - first) // step) * step
-            shifted = np.full(length, np.inf)
-            shifted[: slots - first] = states[: slots - first]
-            by_class = shifted.reshape(-1, step)
-            size = min(grid.count, by_class.shape[0])
-            window = backward_window_min(by_class, size)
-            operations += length
-            candidate = window.reshape(-1)[: slots - first] + big + u2
-            np.minimum(best[first:], candidate, out=best[first:])
-        where = np.flatnonzero(np.isfinite(best[1:])) + 1
-        volumes_pL = where.astype(np.int64) * quantum
-        best_keys = best[where]
-    else:
-        # Sparse: sorted distinct volumes with their best keys, round after round.
-        vols = np.zeros(1, dtype=np.int64)
-        keys = np.zeros(1)
-        fixed_rounds.append((vols, keys))
-        for _ in range(max_deliveries):
-            parts_v, parts_k = [vols], [keys]
-            for item in items:
-                reach = vols + item.volume_pL
-                keep = reach <= high_pL
-                parts_v.append(reach[keep])
-                parts_k.append(keys[keep] + big + item.u2)
-                operations += int(vols.size)
-            vols, keys = _sparse_min(np.concatenate(parts_v), np.concatenate(parts_k))
-            fixed_rounds.append((vols, keys))
-        state_vols, state_keys = fixed_rounds[-2]
-        parts_v, parts_k = [fixed_rounds[-1][0]], [fixed_rounds[-1][1]]
-        for _, grid, u2 in graded:
-            work = int(state_vols.size) * grid.count
-            operations += work
-            if operations > MAX_COMBINATIONS:
-                raise InvalidInputError(
-                    f"the shelf's volumes share no common step and give more than "
-                    f"{MAX_COMBINATIONS} ways to deliver volumes up to "
-                    f"{_format_number(max_volume_mL)} mL",
-                    field="glassware",
-                    value=len(glassware),
-                    hint="list fewer devices, or give graduated devices a coarser division_mL "
-                    "(piston pipettes a coarser step_uL)",
-                )
-            reach = (state_vols[:, None] + grid.values_pL()[None, :]).reshape(-1)
-            reach_keys = np.repeat(state_keys + big + u2, grid.count)
-            keep = reach <= high_pL
-            parts_v.append(reach[keep])
-            parts_k.append(reach_keys[keep])
-        volumes_pL, best_keys = _sparse_min(np.concatenate(parts_v), np.concatenate(parts_k))
-        volumes_pL, best_keys = volumes_pL[volumes_pL > 0], best_keys[volumes_pL > 0]
+    # Dense: one slot per multiple of the common step.
+    current = np.full(slots, np.inf)
+    current[0] = 0.0
+    dense_rounds = [current]
+    for _ in range(max_deliveries):
+        following = current.copy()
+        for item in items:
+            shift = item.volume_pL // quantum
+            np.minimum(
+                following[shift:],
+                current[: slots - shift] + big + item.u2,
+                out=following[shift:],
+            )
+            operations += slots - shift
+        dense_rounds.append(following)
+        current = following
+    for dense in dense_rounds:
+        where = np.flatnonzero(np.isfinite(dense))
+        fixed_rounds.append((where.astype(np.int64) * quantum, dense[where]))
+    best = dense_rounds[-1].copy()
+    states = dense_rounds[-2]
+    for _, grid, u2 in graded:
+        first, step = grid.first_pL // quantum, grid.step_pL // quantum
+        if first >= slots:
+            continue
+        if grid.count == 1:
+            np.minimum(best[first:], states[: slots - first] + big + u2, out=best[first:])
+            operations += slots - first
+            continue
+        # Backward window of grid.count states, one residue class of the step at a time.
+        length = -(-(slots - first) // step) * step
+        shifted = np.full(length, np.inf)
+        shifted[: slots - first] = states[: slots - first]
+        by_class = shifted.reshape(-1, step)
+        size = min(grid.count, by_class.shape[0])
+        window = backward_window_min(by_class, size)
+        operations += length
+        candidate = window.reshape(-1)[: slots - first] + big + u2
+        np.minimum(best[first:], candidate, out=best[first:])
+    where = np.flatnonzero(np.isfinite(best[1:])) + 1
+    volumes_pL = where.astype(np.int64) * quantum
+    best_keys = best[where]
     return VolumeTable(
         items, graded, fixed_rounds, volumes_pL, best_keys, big, max(quantum, 1), operations
     )

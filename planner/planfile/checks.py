@@ -89,7 +89,6 @@ def plan_inputs(plan: PlanModel) -> PlanInputs:
         measured_species_index(reaction, design)
     except InvalidInputError as exc:
         fail(exc.field, exc.problem, exc.value, exc.hint)
-    _check_combinations(devices, design.total_volume_mL)
     if instrument.cuvette_fill_mL > design.total_volume_mL:
         fail(
             "instrument.cuvette_fill_mL",
@@ -739,22 +738,6 @@ def _check_species_use(reaction: Reaction, stocks: Sequence[Stock], limiting: st
                         f"add {shown(name)} to every stock's contains_M (e.g. the medium they "
                         "share), or write the species with positive coefficients",
                     )
-
-
-def _check_combinations(devices: Sequence[Device], total_mL: float) -> None:
-    """The shelf's delivery combinations must be few enough to list (found by fuzzing)."""
-    from planner.lab.deliveries import MAX_COMBINATIONS, combination_count
-
-    count = combination_count(devices, max_volume_mL=total_mL)
-    if count > MAX_COMBINATIONS:
-        fail(
-            "glassware",
-            f"the shelf gives {count} ways to deliver volumes up to {_format_size(total_mL)} mL "
-            f"with up to three deliveries, more than the {MAX_COMBINATIONS} the planner lists",
-            len(devices),
-            "list fewer devices, or give graduated devices a coarser division_mL "
-            "(piston pipettes a coarser step_uL)",
-        )
 
 
 def _session(model: SessionModel) -> SessionSettings:

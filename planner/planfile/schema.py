@@ -66,10 +66,11 @@ EPSILON_LIMIT = 1e7
 #: Largest |stoichiometric coefficient|: larger ones are a typo, and huge ints overflow floats.
 COEFFICIENT_LIMIT = 20
 #: Most reaction components, product species, stocks and [[glassware]] entries. The candidate
-#: search enumerates every combination of stock volumes and the shelf enumerates every
-#: combination of up to three deliveries, so a plan with thousands of entries would run for
-#: hours or exhaust memory; these limits are far above any bench (thirty devices, a handful
-#: of stocks) and keep a plan to seconds.
+#: search combines stock volumes and the shelf's volume table makes a few passes per device,
+#: so a plan with thousands of entries would run for hours or exhaust memory; these limits
+#: are far above any bench (thirty devices, a handful of stocks) and keep a plan to seconds:
+#: the design bounds its work within them (planner.design.candidates, volume_table in
+#: planner.lab.deliveries), so no shelf they accept is refused later.
 MAX_COMPONENTS = 10
 MAX_SPECIES = 30
 MAX_STOCKS = 12

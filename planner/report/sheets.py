@@ -107,6 +107,9 @@ def _environment(markdown: bool) -> jinja2.Environment:
         trim_blocks=True,
         lstrip_blocks=True,
         keep_trailing_newline=True,
+        # The templates ship with the package and do not change while it runs: no file
+        # check on every lookup (one per sheet, hundreds for the variants of a session).
+        auto_reload=False,
     )
 
 

@@ -2,10 +2,10 @@
 
 The plan file is the embedded default with as many ``[[stocks]]`` tables as the plan-file
 reader accepts (``planner.planfile.MAX_STOCKS``) and as many ``[[glassware]]`` tables
-(``MAX_GLASSWARE``), every device a catalogue size of its kind in both tolerance classes, and
-graduated devices read coarsely enough that the shelf stays under the reader's limit on
-delivery combinations (``planner.lab.deliveries.MAX_COMBINATIONS``). The limits are read from
-the code, so the benchmark follows them when they change. Prints the median CPU time (user +
+(``MAX_GLASSWARE``), every device a catalogue size of its kind (class A), each graduated
+device and piston pipette read as finely as the reader accepts (the finest division or step
+of the 1-2-5 series within ``MAX_READINGS`` readings). The limits are read from the code, so
+the benchmark follows them when they change. Prints the median CPU time (user +
 system) of the whole process over several runs, and its wall time (target <= 5 s CPU).
 Run: python tests/benchmarks/big_shelf.py [--runs N] [--json] [--write FILE]
 """
@@ -24,13 +24,9 @@ from typing import Any
 
 from _timing import children_peak_MB, seconds
 
-from planner.lab.deliveries import MAX_COMBINATIONS, combination_count
 from planner.planfile import parse_plan
-from planner.planfile.schema import MAX_GLASSWARE, MAX_STOCKS
+from planner.planfile.schema import MAX_GLASSWARE, MAX_READINGS, MAX_STOCKS
 
-# Graduated devices are tried at their default reading, then read this many times more
-# coarsely, until the shelf has few enough delivery combinations.
-_COARSER = (1, 10, 100)
 _GRADUATED = frozenset({"graduated-pipette", "buret", "graduated-cylinder"})
 
 
@@ -94,46 +90,46 @@ def _catalogue() -> list[dict[str, Any]]:
     return sorted(entries, key=lambda e: e.get("volume_mL", e.get("range_uL", [0, 0])[1] / 1e3))
 
 
-def _glassware(total_mL: float) -> list[dict[str, Any]]:
-    """Up to MAX_GLASSWARE catalogue devices, smallest first, graduated ones read as finely as
-    the limit on delivery combinations allows (devices that do not fit are left out)."""
+def _finest(entry: dict[str, Any]) -> dict[str, Any]:
+    """The entry read as finely as the plan-file reader accepts: the smallest division (or
+    piston step) of the 1-2-5 series that keeps the device within MAX_READINGS readings."""
     from planner.inputs import Device
-    from planner.lab.deliveries import reading_step_mL
+    from planner.lab.deliveries import reading_count
 
-    shelf: list[dict[str, Any]] = []
-    devices: list[Device] = []
-    for listed in _catalogue():
-        if len(shelf) == MAX_GLASSWARE:
-            break
-        entry = listed
-        for coarser in _COARSER if entry["kind"] in _GRADUATED else (1,):
-            volume = entry.get("volume_mL", entry.get("range_uL", [0, 0])[1] / 1000.0)
-            rng = entry.get("range_uL")
-            device = Device(
-                kind=entry["kind"],
-                volume_mL=volume,
-                device_class="" if entry["kind"] in ("tube", "piston-pipette") else "A",
-                count=entry.get("count", 1),
-                range_uL=None if rng is None else (rng[0], rng[1]),
-                step_uL=entry.get("step_uL"),
-            )
-            if coarser > 1:
-                division = reading_step_mL(device) * coarser
-                if division >= volume:
-                    break
-                entry = dict(listed, division_mL=division)
+    piston = entry["kind"] == "piston-pipette"
+    if not piston and entry["kind"] not in _GRADUATED:
+        return entry
+    for exponent in range(-6, 3):
+        for mantissa in (1, 2, 5):
+            value = float(f"{mantissa}e{exponent}")
+            if piston:
+                low, high = entry["range_uL"]
+                if value < 0.001 or value > low:
+                    continue
                 device = Device(
-                    kind=device.kind,
-                    volume_mL=volume,
-                    device_class="A",
-                    count=device.count,
-                    division_mL=division,
+                    kind="piston-pipette",
+                    volume_mL=high / 1000.0,
+                    range_uL=(low, high),
+                    step_uL=value,
                 )
-            if combination_count([*devices, device], max_volume_mL=total_mL) <= MAX_COMBINATIONS:
-                shelf.append(entry)
-                devices.append(device)
-                break
-    return shelf
+                finer = dict(entry, step_uL=value)
+            else:
+                device = Device(
+                    kind=entry["kind"],
+                    volume_mL=entry["volume_mL"],
+                    device_class="A",
+                    division_mL=value,
+                )
+                finer = dict(entry, division_mL=value)
+            if reading_count(device) <= MAX_READINGS:
+                return finer
+    return entry
+
+
+def _glassware() -> list[dict[str, Any]]:
+    """The first MAX_GLASSWARE catalogue devices, smallest first, each graduated device and
+    piston pipette read as finely as the reader accepts."""
+    return [_finest(entry) for entry in _catalogue()[:MAX_GLASSWARE]]
 
 
 def plan_text(*, all_stocks: bool = True) -> str:
@@ -150,8 +146,7 @@ def plan_text(*, all_stocks: bool = True) -> str:
     parts.append(_table("instrument", default["instrument"]))
     stocks = _stocks(default["stocks"]) if all_stocks else default["stocks"]
     parts += [_table("[stocks]", s) for s in stocks]
-    total = float(default["design"]["total_volume_mL"])
-    parts += [_table("[glassware]", g) for g in _glassware(total)]
+    parts += [_table("[glassware]", g) for g in _glassware()]
     parts.append(_table("design", default["design"]))
     parts.append(_table("session", default["session"]))
     text = "\n".join(parts)

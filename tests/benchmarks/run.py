@@ -246,10 +246,10 @@ def rows() -> list[Row]:
     variants, memory = _run("variants.py")
     result.append(
         Row(
-            "30 section variants (design + sheets)",
-            f"{variants['total_s']:.2f} s",
+            "30 section variants (design + sheets), CPU",
+            f"{variants['total_cpu_s']:.2f} s",
             "<= 3 s",
-            variants["total_s"] <= 3.0
+            variants["total_cpu_s"] <= 3.0
             and variants["sections"] == variants["distinct_sections"] == 30,
             memory,
         )

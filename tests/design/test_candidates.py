@@ -97,3 +97,66 @@ def test_a_buret_serves_one_stock():
     assert len(served) <= 1
     checks = {c.name: c.status for c in plan.checks}
     assert checks["buret-per-stock"] == "pass"
+
+
+def _shelf_at_the_limits():
+    """The default plan with MAX_STOCKS stocks and MAX_GLASSWARE [[glassware]] entries: every
+    catalogue device (ISO tables, ISO 8655-2 piston pipettes) smallest first, graduated
+    devices and piston pipettes read finely (about 10 000 readings each, within the limit)."""
+    from planner.lab.tolerances import ISO_8655_2_ERRORS_uL, ISO_TOLERANCES_mL
+    from planner.planfile.schema import MAX_GLASSWARE, MAX_STOCKS
+
+    data = tomllib.loads((ROOT / "planner" / "data" / "default.toml").read_text("utf-8"))
+    reagents = [s for s in data["stocks"] if not s.get("diluent")]
+    factor = 1
+    while len(data["stocks"]) < MAX_STOCKS:
+        factor += 1
+        for stock in reagents[: MAX_STOCKS - len(data["stocks"])]:
+            # The reagent at 1/factor of its strength, the medium (H+, NO3-) as it is.
+            contains = {
+                k: v if k in ("H+", "NO3-") else v / factor for k, v in stock["contains_M"].items()
+            }
+            data["stocks"].append(dict(stock, id=f"{stock['id']}-{factor}", contains_M=contains))
+    shelf = [
+        {"kind": kind, "volume_mL": size, "count": MAX_STOCKS}
+        for kind, classes in ISO_TOLERANCES_mL.items()
+        for size in classes["A"]
+    ]
+    for entry in shelf:
+        if entry["kind"] in ("buret", "graduated-pipette", "graduated-cylinder"):
+            entry["division_mL"] = entry["volume_mL"] / 10_000
+    shelf += [
+        {
+            "kind": "piston-pipette",
+            "range_uL": [top / 10, top],
+            "step_uL": max(0.001, top / 10_000),
+            "count": MAX_STOCKS,
+        }
+        for top in ISO_8655_2_ERRORS_uL
+    ]
+    shelf.sort(key=lambda e: e.get("volume_mL", e.get("range_uL", [0, 0])[1] / 1000))
+    data["glassware"] = [*shelf[: MAX_GLASSWARE - 1], {"kind": "tube", "volume_mL": 10}]
+    return plan_from_mapping(data)
+
+
+def test_a_shelf_at_the_plan_file_limits_plans():
+    # The reader accepts 12 stocks and 40 finely read devices (planner.planfile.schema); the
+    # design must then plan them, not refuse them (its volume table once did, with exit 2)
+    # nor thin each stock to about 3 volumes (11 reagent stocks in 150 000 candidates), which
+    # failed the feasibility check.
+    from planner.planfile.schema import MAX_GLASSWARE, MAX_STOCKS
+
+    inputs = _shelf_at_the_limits()
+    assert (len(inputs.stocks), len(inputs.glassware)) == (MAX_STOCKS, MAX_GLASSWARE)
+    candidates = candidate_set(inputs)
+    assert candidates.size <= 150_000
+    reagent_columns = [j for j, sid in enumerate(candidates.stock_ids) if sid != "acid"]
+    # The default has two reaction components, so a candidate takes at most two reagent
+    # stocks (Caratheodory), and each of the 11 reagent stocks keeps many more volumes:
+    # 1 + 11 n + 55 n^2 <= 150 000 gives n = 52 when the lists are cut evenly.
+    used = (candidates.volumes_mL[:, reagent_columns] > 0).sum(axis=1)
+    assert used.max() == 2
+    assert min(len(candidates.options[j]) - 1 for j in reagent_columns) >= 20
+    plan = design_plan(inputs, candidates=candidates)
+    failed = [c.name for c in plan.checks if c.status == "fail"]
+    assert failed == []

@@ -725,3 +725,33 @@ def test_backward_window_min_is_scipys_minimum_filter(rows, columns, size):
         values, size, axis=0, mode="constant", cval=np.inf, origin=(size - 1) // 2
     )
     assert np.array_equal(backward_window_min(values, size), expected)
+
+
+# --- a shelf finer than the table's work bound (big-shelf benchmark) --------------------------
+
+
+def test_a_too_fine_shelf_is_tabulated_on_a_coarser_round_step():
+    # Invented shelf: a 0.2-2 µL piston pipette set in 0.002 µL steps beside the target shelf.
+    # Its common step, 0.002 µL (2000 pL), would need 5e6 slots up to 10 mL; the table keeps
+    # its work within 1e7 array elements (_MAX_WORK) on the common step times a power of ten.
+    fine = piston(0.2, 2.0, 0.002)
+    shelf = (*TARGET_SHELF, fine)
+    table = volume_table(shelf, max_volume_mL=10.0)
+    assert table.operations <= 10_000_000
+    # Worked by hand: 7 delivering devices, 5 rounds plus 5 window passes each, is 70 passes
+    # per slot, so at most 142 857 slots: 1e10 pL / 0.1 µL (1e5 pL) = 1e5 slots fit, 0.01 µL
+    # (1e6 slots) does not.
+    assert table.quantum_pL == 100_000
+    # 1.5 µL lies on the 0.1 µL step: one delivery of the fine pipette.
+    assert _split(table, 0.0015) == [(fine.id, 0.0015)]
+    # 1.502 µL is a setting of the pipette but not on the step: left out of the table.
+    assert delivers(fine, 0.001502)
+    assert _split(table, 0.001502) is None
+    # Every tabulated volume is still delivered exactly by the deliveries the table names,
+    # each checked on its own device's grid (delivers), independently of the table.
+    by_id = {device.id: device for device in shelf}
+    volumes = table.volumes_mL()
+    for volume_mL in volumes[:: max(1, volumes.size // 400)].tolist():
+        deliveries = table.best(volume_mL).deliveries
+        assert all(delivers(by_id[d.device], d.volume_mL) for d in deliveries)
+        assert sum(d.volume_mL for d in deliveries) == pytest.approx(volume_mL, abs=1e-9)
