@@ -671,6 +671,8 @@ def _reading_u(
     totals: np.ndarray,
     reading: float,
     devices: Mapping[str, Device],
+    slope: np.ndarray,
+    temperature_u: float,
 ) -> float | str:
     """u(A) of one mixture as the plan states it, or why it cannot be recomputed.
 
@@ -680,9 +682,11 @@ def _reading_u(
     error (JCGM 100:2008, eq. 10): each stock's relative error (dT/dr_s = C_s V_s / V),
     each device's systematic error (its deliveries into the mixture add up), each delivery's
     random error (dT/dV_s = (C_s - T)/V in a tube, (C_s - C_d)/V in a flask made up to the
-    mark with diluent d) and the flask's volume (dT/dV = (C_d - T)/V). dA/dT_j is a central
-    difference of the re-derived reading, step 1e-6 T_j. The error model is docs/methods.md
-    section 10's; this derivation shares no code with the prediction stage.
+    mark with diluent d) and the flask's volume (dT/dV = (C_d - T)/V). dA/dT_j (``slope``)
+    comes from :func:`_reading_slopes`, and ``temperature_u``, the reading's standard
+    uncertainty from the bench's temperature (dA/dT times its SD), from
+    :func:`reading_temperature_slope`. The error model is docs/methods.md section 10's; this
+    derivation shares no code with the prediction stage.
 
     Repeated deliveries: an addition of n deliveries of one device (n full-scale fills and a
     remainder) adds n independent random delivery errors, in quadrature, and n times that
@@ -743,19 +747,8 @@ def _reading_u(
     if flask is not None:
         columns.append((diluent_M - totals) / volume_mL)
         u.append(standard_uncertainty_mL(flask))
-    slope = np.zeros(len(components))
-    for j in range(len(components)):
-        step = _READING_STEP * totals[j]
-        if step <= 0:
-            continue
-        moved = np.array([totals, totals])
-        moved[0, j] += step
-        moved[1, j] -= step
-        up, down = _solve_and_read(inputs, moved)[3]
-        slope[j] = (up - down) / (2.0 * step)
     variance = reading_noise_sd(inputs, reading) ** 2
-    per_kelvin, temperature_sd = reading_temperature_slope(inputs, totals[None, :])
-    variance += (float(per_kelvin[0]) * temperature_sd) ** 2  # the bench's temperature
+    variance += temperature_u**2  # the bench's temperature
     if mixture.role == "blank":
         variance += inputs.bench.blank_offset_sd**2  # the blank's cuvette against the samples'
     for column, value in zip(columns, u, strict=True):
@@ -763,12 +756,44 @@ def _reading_u(
     return math.sqrt(variance)
 
 
+def _reading_slopes(inputs: PlanInputs, totals: np.ndarray) -> np.ndarray:
+    """dA/dT_j of each mixture's re-derived reading to each component total, shape
+    (n, n_components) [L/mol]: central differences of step 1e-6 T_j (zero where T_j is zero),
+    every mixture and component moved up and down in one solution of 2 n n_components
+    mixtures (each mixture is solved on its own, so the batch changes no result)."""
+    n, n_components = totals.shape
+    if n == 0:
+        return np.zeros((0, n_components))
+    steps = _READING_STEP * totals
+    moved = np.repeat(totals[:, None, None, :], n_components, axis=1)
+    moved = np.repeat(moved, 2, axis=2)  # (n, component moved, up/down, component)
+    for j in range(n_components):
+        moved[:, j, 0, j] += steps[:, j]
+        moved[:, j, 1, j] -= steps[:, j]
+    readings = _solve_and_read(inputs, moved.reshape(-1, n_components))[3]
+    up_down = readings.reshape(n, n_components, 2)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        slopes = (up_down[:, :, 0] - up_down[:, :, 1]) / (2.0 * steps)
+    result: np.ndarray = np.where(steps > 0, slopes, 0.0)
+    return result
+
+
 def _reading_uncertainty(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> Check:
     devices = devices_by_id(inputs.glassware)
     problems = []
     unchecked = []
+    slopes = _reading_slopes(inputs, state.components)
+    per_kelvin, temperature_sd = reading_temperature_slope(inputs, state.components)
     for i, m in enumerate(mixtures):
-        computed = _reading_u(inputs, m, state.components[i], float(state.absorbance[i]), devices)
+        computed = _reading_u(
+            inputs,
+            m,
+            state.components[i],
+            float(state.absorbance[i]),
+            devices,
+            slopes[i],
+            float(per_kelvin[i]) * temperature_sd,
+        )
         if isinstance(computed, str):
             # A recipe that cannot be made fails deliverable-volumes; its u(A) has no value.
             unchecked.append(m.id)

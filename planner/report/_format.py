@@ -1,4 +1,5 @@
-"""Numbers, devices and stock order written for people (shared by the terminal and the sheets).
+"""Numbers, devices, stock and check order written for people (shared by the terminal and the
+sheets).
 
 Machine outputs (JSON, CSV) keep full precision; everything here rounds for reading. Volumes are
 shown to the reading resolution of the device that delivers them, other quantities to a few
@@ -12,11 +13,12 @@ import math
 import re
 
 from planner.inputs import Device, PlanInputs
-from planner.result import Addition, Mixture, Plan, StockRole, devices_text
+from planner.result import CHECK_STATUSES, Addition, Check, Mixture, Plan, StockRole, devices_text
 
 __all__ = [
     "addition_decimals",
     "additions_of",
+    "checks_worst_first",
     "csv_text",
     "devices_text",
     "is_to_the_mark",
@@ -223,6 +225,16 @@ _BLOCK_START = re.compile(
 #: A run of ``#`` at a value's end, after a space or tab: in a heading line it would be read as
 #: the optional closing sequence and dropped (CommonMark 0.31.2 section 4.2).
 _HEADING_CLOSE = re.compile(r"(?<=[ \t])#+[ \t]*$")
+
+
+def checks_worst_first(checks: tuple[Check, ...]) -> tuple[Check, ...]:
+    """Failed checks first, then warnings, then passes; plan order kept within each status.
+
+    A status outside :data:`planner.result.CHECK_STATUSES` sorts after the known ones.
+    """
+    rank = {status: i for i, status in enumerate(CHECK_STATUSES)}
+    # sorted() is stable, so checks of one status keep the order verification gave them.
+    return tuple(sorted(checks, key=lambda c: rank.get(c.status, len(rank))))
 
 
 def markdown_text(value: object) -> str:

@@ -12,8 +12,9 @@ from __future__ import annotations
 from typing import Any
 
 from planner.planfile import plan_to_mapping
+from planner.report._format import checks_worst_first
 from planner.report.jsonout import dumps
-from planner.result import CHECK_STATUSES, Check, Plan
+from planner.result import Check, Plan
 from planner.resultfile.schema import (
     SCHEMA,
     CheckEntry,
@@ -26,16 +27,6 @@ from planner.resultfile.schema import (
 )
 
 __all__ = ["SCHEMA", "checks_worst_first", "plan_document", "plan_json"]
-
-
-def checks_worst_first(checks: tuple[Check, ...]) -> tuple[Check, ...]:
-    """Failed checks first, then warnings, then passes; plan order kept within each status.
-
-    A status outside :data:`planner.result.CHECK_STATUSES` sorts after the known ones.
-    """
-    rank = {status: i for i, status in enumerate(CHECK_STATUSES)}
-    # sorted() is stable, so checks of one status keep the order verification gave them.
-    return tuple(sorted(checks, key=lambda c: rank.get(c.status, len(rank))))
 
 
 def check_entries(checks: tuple[Check, ...]) -> list[dict[str, Any]]:

@@ -32,6 +32,7 @@ import jinja2
 from planner.report._format import (
     addition_decimals,
     additions_of,
+    checks_worst_first,
     csv_text,
     deliveries_text,
     devices_text,
@@ -47,7 +48,6 @@ from planner.report._format import (
 )
 from planner.report.bench_text import bias_line, medium_line, ranges_line
 from planner.report.cautions import cautions_for, label_hazards
-from planner.report.plan_json import checks_worst_first
 from planner.result import Plan, Role, StockPreparation, StockRole
 
 __all__ = [

@@ -20,6 +20,7 @@ from rich.text import Text
 from planner.report._format import (
     addition_decimals,
     additions_of,
+    checks_worst_first,
     deliveries_text,
     devices_text,
     is_to_the_mark,
@@ -30,7 +31,6 @@ from planner.report._format import (
     volume,
 )
 from planner.report.bench_text import bias_line, ranges_line
-from planner.report.plan_json import checks_worst_first
 from planner.result import CHECK_STATUSES, Addition, Check, Plan, Status
 
 __all__ = ["render_checks", "render_plan"]

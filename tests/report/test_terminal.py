@@ -4,12 +4,17 @@ from __future__ import annotations
 
 import dataclasses
 import io
+import subprocess
+import sys
+from pathlib import Path
 
 from rich.console import Console
 
 from planner.report.terminal import render_plan
 from planner.result import Check
 from tests.report.conftest import make_inputs, make_plan
+
+ROOT = Path(__file__).resolve().parents[2]
 
 
 def _text(plan, width=80):
@@ -69,3 +74,24 @@ def test_totals_and_prediction(plan):
 def test_without_prediction(plan):
     text = _text(dataclasses.replace(plan, prediction=None))
     assert "Prediction: none" in text
+
+
+def test_the_text_summary_does_not_load_the_plan_json_models():
+    # The plan.json document's pydantic models (planner.resultfile) cost about 0.03 s to
+    # build; `planner plan` printing text has no use for them (docs/performance.md).
+    code = (
+        "import sys\n"
+        "from planner.cli import main\n"
+        "sys.argv = ['planner', 'plan']\n"
+        "try:\n"
+        "    main()\n"
+        "except SystemExit:\n"
+        "    pass\n"
+        "loaded = ('planner.resultfile', 'planner.report.plan_json')\n"
+        "sys.stderr.write(repr(sorted(name for name in loaded if name in sys.modules)))\n"
+    )
+    done = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=ROOT
+    )
+    assert done.stdout.strip()  # the summary was printed
+    assert done.stderr.strip().endswith("[]")
