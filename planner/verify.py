@@ -1573,9 +1573,9 @@ def _prediction(
     if analysis == "global-fit":
         if stated is None:
             return fit
-        bound = _all_bound_prediction(mixtures, stated, recomputed)
+        bound = _all_bound_prediction(inputs, mixtures, stated, recomputed)
     else:
-        bound = _all_bound_prediction(mixtures, stated, recomputed)
+        bound = _all_bound_prediction(inputs, mixtures, stated, recomputed)
     order = {"fail": 0, "warn": 1, "pass": 2}
     worst = min(bound.status, fit.status, key=order.__getitem__)
     return Check("prediction", worst, f"{bound.detail}; {fit.detail}")
@@ -1670,7 +1670,43 @@ def _global_fit_prediction(
     )
 
 
+def _bias_cause_problems(inputs: PlanInputs, stated: Prediction) -> list[str]:
+    """The stated split of the all-bound bias by cause, against what it must satisfy.
+
+    The first three shares multiply to the stated bias (checked above against a fresh
+    derivation): (1 + a)(1 + b)(1 + c) = 1 + bias. The temperature's share is the constant at
+    the benches' temperature over the one at the plan's, both in the benches' medium (van 't
+    Hoff, :func:`planner.verify_prediction.bench_log_beta`). In a constant ionic medium every
+    mixture shares it, so the medium's share is 0; otherwise it is not re-derived here.
+    """
+    causes = stated.K_bias_causes
+    if causes is None:
+        return []
+    problems = []
+    shares = (causes.all_bound_assumption, causes.absorbing_reagents, causes.stray_light)
+    if all(math.isfinite(x) for x in shares):
+        together = math.prod(1.0 + x for x in shares)
+        if not _close(together, 1.0 + stated.K_bias_from_assumption, 1e-9, 0.0):
+            problems.append(
+                "K_bias_causes: the assumption's, the absorbers' and the stray light's shares "
+                f"multiply to {together - 1.0:.6g}, not the stated bias "
+                f"{stated.K_bias_from_assumption:.6g}"
+            )
+    m = inputs.measured
+    log_ratio = bench_log_beta(inputs)[m] - bench_log_beta(inputs, inputs.reaction.temperature_C)[m]
+    temperature = float(10.0**log_ratio) - 1.0
+    if not _close(causes.temperature, temperature, 1e-9, 1e-12):
+        problems.append(f"K_bias_causes.temperature: {_pair(causes.temperature, temperature)}")
+    if inputs.design.ionic_medium is not None and causes.ionic_medium != 0.0:
+        problems.append(
+            f"K_bias_causes.ionic_medium: {causes.ionic_medium:.6g}, but in a constant ionic "
+            "medium every mixture shares it (0)"
+        )
+    return problems
+
+
 def _all_bound_prediction(
+    inputs: PlanInputs,
     mixtures: Sequence[Mixture],
     stated: Prediction | None,
     recomputed: RecomputedPrediction | str,
@@ -1714,6 +1750,7 @@ def _all_bound_prediction(
         ):
             if not _close(float(value), target, _RTOL_PREDICTION, _NOISE * rounding):
                 problems.append(f"K_per_test of {test_id}: {_pair(float(value), target)}")
+    problems.extend(_bias_cause_problems(inputs, stated))
     detail = (
         f"eps {fresh.epsilon:.4g} ± {fresh.u_epsilon:.2g} L mol-1 cm-1 and mean K "
         f"{fresh.K:.4g} ± {fresh.u_K:.2g} L/mol agree with a fresh derivation"
