@@ -1349,8 +1349,8 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
     flask_mL, flasks = stock_flasks(volume_mL)
     medium = medium_label(inputs.diluent)
     solid = stock.solid
-    salt = _expected_salt(inputs, stock, flask_mL)
     dilution = _dilutions(inputs).get(stock.id)
+    salt = _expected_salt(inputs, stock, flask_mL, dilution)
     weighs_nothing: dict[str, Any] = {
         "solid_formula": "",
         "molar_mass_g_per_mol": 0.0,
@@ -1403,20 +1403,29 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
     )
 
 
-def _expected_salt(inputs: PlanInputs, stock: Stock, flask_mL: float) -> dict[str, Any]:
+def _expected_salt(
+    inputs: PlanInputs, stock: Stock, flask_mL: float, dilution: tuple[str, float] | None = None
+) -> dict[str, Any]:
     """The inert salt of ``design.ionic_medium`` for one flask, re-derived: the plan file's
     own stock made neutral with its counter-ions has I = 1/2 sum c z^2; a 1:1 salt adds its
     concentration to I, so c_salt = (I_target - I_stock) / (1/2 sum nu z^2) and
-    m = c_salt V M (molar mass from periodictable)."""
+    m = c_salt V M (molar mass from periodictable). The flask is made up in the medium before
+    its salt; a dilution's aliquot (fraction a of its source) brings a c_salt(source) of it."""
     medium = inputs.design.ionic_medium
     if medium is None:
         return {}
-    own = neutralised(stock.plan_contains_M or stock.contains_M)
-    strength = 0.5 * sum(c * charge_from_name(ion) ** 2 for ion, c in own.items())
     per_mol = 0.5 * sum(
         n * charge_from_name(ion) ** 2 for ion, n in INERT_SALTS[medium.salt].items()
     )
-    salt_M = max(medium.ionic_strength_M - strength, 0.0) / per_mol
+
+    def needed(of: Stock) -> float:
+        own = neutralised(of.plan_contains_M or of.contains_M)
+        strength = 0.5 * sum(c * charge_from_name(ion) ** 2 for ion, c in own.items())
+        return max(medium.ionic_strength_M - strength, 0.0) / per_mol
+
+    salt_M = needed(stock)
+    if dilution is not None:
+        salt_M -= dilution[1] * needed(next(st for st in inputs.stocks if st.id == dilution[0]))
     if salt_M <= 0:
         return {}
     mass = salt_M * flask_mL / 1000.0 * molar_mass_g_per_mol(medium.salt)
@@ -1456,11 +1465,18 @@ def _preparation(
     mixtures: Sequence[Mixture],
     stated: Sequence[StockPreparation] | None,
 ) -> Check:
-    to_prepare = _expected_totals(inputs, mixtures)["to_prepare"]
-    expected = {
-        st.id: _expected_preparation(inputs, st, to_prepare[st.id])
+    totals = _expected_totals(inputs, mixtures)
+    # In a constant ionic medium the stocks are made up in the diluent before its salt, so a
+    # salted diluent's flasks hold only what the benches take (docs/methods.md section 13).
+    volumes = {
+        st.id: totals["to_prepare"][st.id]
+        - (totals["for_stocks"].get(st.id, 0.0) if st.medium_salt_M > 0 else 0.0)
         for st in inputs.stocks
-        if to_prepare[st.id] > 0
+    }
+    expected = {
+        st.id: _expected_preparation(inputs, st, volumes[st.id])
+        for st in inputs.stocks
+        if volumes[st.id] > 0
     }
     if stated is None:
         return Check(
@@ -1474,13 +1490,11 @@ def _preparation(
     for stock_id in sorted(i for i, n in counts.items() if n > 1):
         problems.append(f"{stock_id} is listed {counts[stock_id]} times")
     for stock_id in [i for i in expected if i not in counts]:
-        problems.append(
-            f"{stock_id} is missing: {to_prepare[stock_id]:.0f} mL of it must be prepared"
-        )
+        problems.append(f"{stock_id} is missing: {volumes[stock_id]:.0f} mL of it must be prepared")
     for p in stated:
         want = expected.get(p.stock)
         if want is None:
-            why = "not a stock of the plan" if p.stock not in to_prepare else "not used"
+            why = "not a stock of the plan" if p.stock not in volumes else "not used"
             problems.append(f"{p.stock} is listed but {why}: nothing to prepare")
             continue
         for key, unit, rtol in _PREPARATION_NUMBERS:
@@ -1559,9 +1573,9 @@ def _prediction(
     if analysis == "global-fit":
         if stated is None:
             return fit
-        bound = _all_bound_prediction(mixtures, stated, recomputed)
+        bound = _all_bound_prediction(inputs, mixtures, stated, recomputed)
     else:
-        bound = _all_bound_prediction(mixtures, stated, recomputed)
+        bound = _all_bound_prediction(inputs, mixtures, stated, recomputed)
     order = {"fail": 0, "warn": 1, "pass": 2}
     worst = min(bound.status, fit.status, key=order.__getitem__)
     return Check("prediction", worst, f"{bound.detail}; {fit.detail}")
@@ -1656,7 +1670,43 @@ def _global_fit_prediction(
     )
 
 
+def _bias_cause_problems(inputs: PlanInputs, stated: Prediction) -> list[str]:
+    """The stated split of the all-bound bias by cause, against what it must satisfy.
+
+    The first three shares multiply to the stated bias (checked above against a fresh
+    derivation): (1 + a)(1 + b)(1 + c) = 1 + bias. The temperature's share is the constant at
+    the benches' temperature over the one at the plan's, both in the benches' medium (van 't
+    Hoff, :func:`planner.verify_prediction.bench_log_beta`). In a constant ionic medium every
+    mixture shares it, so the medium's share is 0; otherwise it is not re-derived here.
+    """
+    causes = stated.K_bias_causes
+    if causes is None:
+        return []
+    problems = []
+    shares = (causes.all_bound_assumption, causes.absorbing_reagents, causes.stray_light)
+    if all(math.isfinite(x) for x in shares):
+        together = math.prod(1.0 + x for x in shares)
+        if not _close(together, 1.0 + stated.K_bias_from_assumption, 1e-9, 0.0):
+            problems.append(
+                "K_bias_causes: the assumption's, the absorbers' and the stray light's shares "
+                f"multiply to {together - 1.0:.6g}, not the stated bias "
+                f"{stated.K_bias_from_assumption:.6g}"
+            )
+    m = inputs.measured
+    log_ratio = bench_log_beta(inputs)[m] - bench_log_beta(inputs, inputs.reaction.temperature_C)[m]
+    temperature = float(10.0**log_ratio) - 1.0
+    if not _close(causes.temperature, temperature, 1e-9, 1e-12):
+        problems.append(f"K_bias_causes.temperature: {_pair(causes.temperature, temperature)}")
+    if inputs.design.ionic_medium is not None and causes.ionic_medium != 0.0:
+        problems.append(
+            f"K_bias_causes.ionic_medium: {causes.ionic_medium:.6g}, but in a constant ionic "
+            "medium every mixture shares it (0)"
+        )
+    return problems
+
+
 def _all_bound_prediction(
+    inputs: PlanInputs,
     mixtures: Sequence[Mixture],
     stated: Prediction | None,
     recomputed: RecomputedPrediction | str,
@@ -1700,6 +1750,7 @@ def _all_bound_prediction(
         ):
             if not _close(float(value), target, _RTOL_PREDICTION, _NOISE * rounding):
                 problems.append(f"K_per_test of {test_id}: {_pair(float(value), target)}")
+    problems.extend(_bias_cause_problems(inputs, stated))
     detail = (
         f"eps {fresh.epsilon:.4g} ± {fresh.u_epsilon:.2g} L mol-1 cm-1 and mean K "
         f"{fresh.K:.4g} ± {fresh.u_K:.2g} L/mol agree with a fresh derivation"

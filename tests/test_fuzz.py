@@ -561,9 +561,11 @@ def test_one_device_plans_or_fails_named_checks(plan_path, plan):
 @pytest.mark.parametrize("metal_M", [1e-8, 5.0])
 @pytest.mark.parametrize("ligand_M", [1e-8, 5.0])
 def test_corners_of_the_physical_ranges(tmp_path, K, metal_M, ligand_M):
-    # The default plan with its 1:1 constant and both reagent stocks at the ends of the
-    # ranges of tests/strategies.py (both iron stocks at metal_M).
-    text = _default_plan_text()
+    # The default's shelf with its 1:1 constant and both reagent stocks at the ends of the
+    # ranges of tests/strategies.py (both iron stocks at metal_M), without the default's
+    # constant medium of 3 mol/L, which a 5 mol/L stock alone exceeds (refused: exit 2,
+    # tests/predict/test_medium.py).
+    text = (ROOT / "recipes" / "iron-thiocyanate-tubes.toml").read_text(encoding="utf-8")
     text = text.replace("K = 98", f"K = {K!r}")
     text = re.sub(r'"Fe3\+" = 0\.0?40?', f'"Fe3+" = {metal_M!r}', text)
     text = text.replace('"SCN-" = 6.0e-4', f'"SCN-" = {ligand_M!r}')
@@ -599,7 +601,8 @@ TAMPER_BLOCKS = {
 # meets it). Each with the reason.
 UNCHECKED_INPUTS = {
     ("reaction", "temperature_C"): "the temperature the constants refer to: a label",
-    ("reaction", "ionic_strength_M"): "the medium the constants refer to: quoted, not used",
+    ("reaction", "ionic_strength_M"): "the medium the constants refer to: quoted, except that "
+    "a constant ionic medium moves them from it (then K, every state and reading change)",
     ("instrument", "wavelength_nm"): "the working wavelength: epsilon is given at it",
     ("stocks", "available_mL"): "a limit: stock-inventory fails only when it is exceeded",
     ("design", "assumption_tolerance"): "a limit: the assumption check fails only beyond it",

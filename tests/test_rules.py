@@ -187,6 +187,17 @@ def test_every_standard_and_test_reads_two_u_inside_the_window(planned):
         assert m.absorbance + band <= high, (name, m.id, m.absorbance, m.u_absorbance)
 
 
+def test_tests_keep_the_window_s_top_tenth_free(planned):
+    # Issue 12: readings no longer crowd the window's top. The design keeps a tenth of the
+    # window free above every test (common practice; docs/methods.md section 7) wherever the
+    # shelf has enough mixtures below it, which every plan here has.
+    name, plan = planned
+    low, high = plan.inputs.instrument.absorbance_window
+    for m in plan.mixtures:
+        if m.role == "test":
+            assert m.absorbance <= high - 0.1 * (high - low) + 1e-9, (name, m.id, m.absorbance)
+
+
 def test_standards_span_half_the_window(planned):
     name, plan = planned
     low, high = plan.inputs.instrument.absorbance_window

@@ -1009,3 +1009,37 @@ def test_verifier_imports_neither_design_nor_predict() -> None:
         [sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=ROOT
     )
     assert done.stdout.strip() == "[]"
+
+
+def _prediction_check(document: Document) -> Check:
+    saved = parse_result(json.dumps(document, indent=2), source="edited plan.json")
+    checks = verify_result(
+        saved.inputs,
+        saved.mixtures,
+        saved.totals,
+        saved.preparations,
+        saved.prediction,
+        analysis=saved.analysis,
+        global_fit=saved.global_fit,
+    )
+    return {c.name: c for c in checks}["prediction"]
+
+
+def test_a_changed_bias_cause_fails_the_prediction_check(document: Document) -> None:
+    # The first three shares multiply to the stated bias (planner.predict.bias): one of them
+    # doubled breaks the product; the temperature share is van 't Hoff's, 0 with the room
+    # at the constants' temperature (no session.temperature_C in this plan).
+    assert _prediction_check(document).status == "pass"
+    causes = document["prediction"]["K_bias_causes"]
+    assert causes["temperature"] == 0.0
+    causes["all_bound_assumption"] *= 2
+    check = _prediction_check(document)
+    assert check.status == "fail"
+    assert "K_bias_causes" in check.detail
+
+
+def test_a_stated_temperature_share_must_be_van_t_hoff_s(document: Document) -> None:
+    document["prediction"]["K_bias_causes"]["temperature"] = 0.01
+    check = _prediction_check(document)
+    assert check.status == "fail"
+    assert "K_bias_causes.temperature" in check.detail

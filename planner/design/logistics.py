@@ -205,6 +205,10 @@ def preparations(inputs: PlanInputs, totals: Totals) -> tuple[StockPreparation, 
     result = []
     for stock in inputs.stocks:
         volume = totals.to_prepare.get(stock.id, 0.0)
+        if stock.medium_salt_M > 0:
+            # What makes up the other stocks is the medium before its salt (medium_label):
+            # only the benches' share of a salted diluent is weighed and flasked here.
+            volume -= totals.for_stocks.get(stock.id, 0.0)
         if volume > 0:
             result.append(_preparation(inputs, stock, volume, medium, recipes.get(stock.id)))
     return tuple(result)
@@ -245,18 +249,28 @@ def _preparation(
         medium="" if stock.diluent and solid is None and not source else medium,
         source=source,
         aliquot_mL=fraction * flask_mL,
-        **_salt(inputs, stock, flask_mL),
+        **_salt(inputs, stock, flask_mL, dilution),
     )
 
 
-def _salt(inputs: PlanInputs, stock: Stock, flask_mL: float) -> dict[str, Any]:
+def _salt(
+    inputs: PlanInputs, stock: Stock, flask_mL: float, dilution: tuple[str, float] | None
+) -> dict[str, Any]:
     """The inert salt of ``design.ionic_medium`` to weigh into one flask of the stock:
-    m = c V M with M from periodictable (:func:`planner.chem.species.molar_mass_g_per_mol`)."""
+    m = c V M with M from periodictable (:func:`planner.chem.species.molar_mass_g_per_mol`).
+
+    The flask is made up in the medium before its salt (:func:`planner.chem.mixing.
+    medium_label`); a dilution's aliquot brings its source's salt, a c_source, so the flask
+    takes c_salt - a c_source of it."""
     medium = inputs.design.ionic_medium
-    if medium is None or stock.medium_salt_M <= 0:
+    salt_M = stock.medium_salt_M
+    if dilution is not None:
+        source = next(st for st in inputs.stocks if st.id == dilution[0])
+        salt_M -= dilution[1] * source.medium_salt_M
+    if medium is None or salt_M <= 0:
         return {}
-    mass = stock.medium_salt_M * flask_mL / 1000.0 * molar_mass_g_per_mol(medium.salt)
-    return {"salt_formula": medium.salt, "salt_M": stock.medium_salt_M, "salt_mass_g": mass}
+    mass = salt_M * flask_mL / 1000.0 * molar_mass_g_per_mol(medium.salt)
+    return {"salt_formula": medium.salt, "salt_M": salt_M, "salt_mass_g": mass}
 
 
 def combined_totals(totals: Sequence[Totals], inputs: PlanInputs) -> Totals:

@@ -56,6 +56,13 @@ Objective = Callable[[PlanInputs, CandidateSet, NDArray[np.int64]], float]
 
 # Candidates ranked by their own u(K)/K that the set search draws from (bounded for speed).
 _POOL = 300
+#: Share of the window kept free above the test readings where the shelf allows (common
+#: practice): an optimiser that favours strong readings otherwise packs every test just
+#: 2 u(A) under the top, where stray light and detector non-linearity begin and where a
+#: class's readings, which spread more than one bench's u(A) when a stock or a technique is
+#: off, leave the window first. Readings inside it are used only when fewer eligible
+#: mixtures than the tests asked would remain without them.
+TEST_HEADROOM = 0.10
 # Starting sets the local search improves (the best distinct ones of the pair enumeration).
 _STARTS = 8
 
@@ -74,12 +81,16 @@ class TestsChoice:
         Bound-fraction span covered [unitless].
     eligible
         Candidates that met the window and bound-fraction range [unitless].
+    headroom
+        True when the tests keep the window's top tenth free (:data:`TEST_HEADROOM`); False
+        when too few mixtures read below it and the 2 u(A) margin alone bounds them.
     """
 
     tests: tuple[int, ...]
     objective: float
     span: float
     eligible: int
+    headroom: bool = True
 
 
 def per_mixture_relative_u_K(
@@ -607,8 +618,13 @@ def choose_tests(
         eligible[list(exclude)] = False
     if allowed is not None:
         eligible &= allowed
-    indices = np.flatnonzero(eligible)
     count = design.tests
+    # The top tenth of the window kept free where enough mixtures remain below it.
+    below = eligible & (ev.absorbance <= high - np.maximum(margin, TEST_HEADROOM * (high - low)))
+    headroom = bool(np.count_nonzero(below) >= count)
+    if headroom:
+        eligible = below
+    indices = np.flatnonzero(eligible)
     if not indices.size:
         return TestsChoice((), float("inf"), 0.0, 0)
     own = _own(inputs, candidates, indices, objective)
@@ -636,6 +652,7 @@ def choose_tests(
             objective(inputs, candidates, chosen),
             span,
             int(indices.size),
+            headroom,
         )
     by_fraction = pool[np.argsort(fraction[pool], kind="stable")]
     f_sorted = fraction[by_fraction]
@@ -703,4 +720,5 @@ def choose_tests(
         value,
         float(np.ptp(fraction[chosen])),
         int(indices.size),
+        headroom,
     )

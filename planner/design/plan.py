@@ -343,9 +343,14 @@ def design_recipes(
             )
         else:
             what = f"the predicted u(K)/K {of_what}"
+        room = (
+            "reading below the window's top tenth (common practice)"
+            if tests.headroom
+            else "reading at least 2 u(A) inside the window (too few read below its top tenth)"
+        )
         notes.append(
             f"Test mixtures chosen to minimise {what} among {tests.eligible} eligible "
-            "mixtures (the answer key gives the resulting u(K))."
+            f"mixtures {room} (the answer key gives the resulting u(K))."
         )
     else:
         notes.append("No test mixture met the window and bound-fraction constraints.")

@@ -403,12 +403,22 @@ def _salt_lines(plan: Plan) -> list[str]:
     medium = plan.inputs.design.ionic_medium
     if medium is None:
         return []
-    return [
+    lines = [
         f"{prep.stock}: {plain(prep.salt_M, 4)} mol/L {prep.salt_formula}, "
         f"{significant(prep.salt_mass_g, 4)} g per {plain(prep.flask_mL, 4)} mL flask"
         for prep in plan.preparations
         if prep.salt_formula
     ]
+    diluent = plan.inputs.diluent
+    making = plan.totals.for_stocks.get(diluent.id, 0.0) if diluent is not None else 0.0
+    if diluent is not None and making > 0 and diluent.medium_salt_M > 0:
+        lines.append(
+            f"make up the other stocks in {diluent.id} before its salt ({significant(making)} "
+            f"mL of it, no {medium.salt}): each stock's own salt above brings it to "
+            f"{plain(medium.ionic_strength_M, 3)} mol/L; only the {diluent.id} for the "
+            "benches is salted"
+        )
+    return lines
 
 
 def _labels(plan: Plan) -> list[_Label]:

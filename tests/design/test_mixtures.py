@@ -72,19 +72,25 @@ def tiny(request):
     return _instance(request.param)
 
 
-def _eligible(inputs, candidates):
+def _eligible(inputs, candidates, exclude=(), allowed=None):
     """Eligibility from the documented rules (window with a 2 u(A) margin, u(A) each
-    candidate's screening reading uncertainty, docs/methods.md section 7; range)."""
+    candidate's screening reading uncertainty, docs/methods.md section 7; range; the top
+    tenth of the window kept free when at least ``design.tests`` candidates remain below it)."""
     ev = candidates.evaluation
     low, high = inputs.instrument.absorbance_window
     margin = 2.0 * candidates.u_absorbance
     f_low, f_high = inputs.design.bound_fraction_range
-    return (
+    eligible = (
         (ev.absorbance >= low + margin)
         & (ev.absorbance <= high - margin)
         & (ev.bound_fraction >= f_low)
         & (ev.bound_fraction <= f_high)
     )
+    eligible[list(exclude)] = False
+    if allowed is not None:
+        eligible &= allowed
+    below = eligible & (ev.absorbance <= high - np.maximum(margin, 0.1 * (high - low)))
+    return below if below.sum() >= inputs.design.tests else eligible
 
 
 def _admissible(inputs, fractions):
@@ -146,8 +152,7 @@ def test_never_worse_than_exhaustive_search(tiny, objective_name):
     inputs, candidates, exclude, mean_k = tiny
     objective = _objective(objective_name, inputs, candidates, exclude, mean_k)
     count = inputs.design.tests
-    eligible = _eligible(inputs, candidates)
-    eligible[list(exclude)] = False
+    eligible = _eligible(inputs, candidates, exclude)
     pool = np.flatnonzero(eligible)
     best, best_members, sets = _exhaustive(inputs, candidates, pool, count, objective)
     assert sets > 0  # the instance admits a set, so the comparison means something
@@ -167,8 +172,7 @@ def test_never_worse_than_exhaustive_search_on_a_random_allowed_subset(tests, ke
     # (a) and (d) together: a random mask of `keep` eligible candidates makes sets of four
     # and five small enough to enumerate; the optimiser may use only the mask.
     inputs, candidates, exclude, objective = _instance(tests)
-    eligible = _eligible(inputs, candidates)
-    eligible[list(exclude)] = False
+    eligible = _eligible(inputs, candidates, exclude)
     rng = np.random.default_rng(seed)
     pool = np.sort(rng.choice(np.flatnonzero(eligible), size=keep, replace=False))
     allowed = np.zeros(candidates.size, dtype=bool)
@@ -200,8 +204,7 @@ def test_chosen_tests_lie_inside_window_and_range_and_span_enough(tiny):
 
 def test_eligible_count_matches_the_documented_rules(tiny):
     inputs, candidates, exclude, objective = tiny
-    eligible = _eligible(inputs, candidates)
-    eligible[list(exclude)] = False
+    eligible = _eligible(inputs, candidates, exclude)
     result = choose_tests(inputs, candidates, exclude=exclude, objective=objective)
     assert result.eligible == int(eligible.sum())
 
@@ -211,8 +214,7 @@ def test_span_falls_short_only_when_the_allowed_candidates_cannot_span_it():
     # span: no admissible set exists, so the result reports the span it reached (below the
     # requested one) and still keeps every member inside the window and the range.
     inputs, candidates, exclude, objective = _instance(3)
-    eligible = _eligible(inputs, candidates)
-    eligible[list(exclude)] = False
+    eligible = _eligible(inputs, candidates, exclude)
     fraction = candidates.evaluation.bound_fraction
     span = inputs.design.bound_fraction_span
     centre = float(np.median(fraction[eligible]))
@@ -249,8 +251,7 @@ def test_excluding_the_best_set_moves_the_search_to_the_next_best(tiny):
     more = (*exclude, *first.tests)
     second = choose_tests(inputs, candidates, exclude=more, objective=objective)
     assert not set(second.tests) & set(more)
-    eligible = _eligible(inputs, candidates)
-    eligible[list(more)] = False
+    eligible = _eligible(inputs, candidates, more)
     best, _, sets = _exhaustive(
         inputs, candidates, np.flatnonzero(eligible), inputs.design.tests, objective
     )
@@ -263,8 +264,7 @@ def test_an_excluded_candidate_that_would_be_best_alone_is_skipped():
     # With one test the best set is the single eligible candidate of lowest objective
     # (found here by scoring each in turn); excluding it must give the second best.
     inputs, candidates, exclude, objective = _instance(1)
-    eligible = _eligible(inputs, candidates)
-    eligible[list(exclude)] = False
+    eligible = _eligible(inputs, candidates, exclude)
     pool = np.flatnonzero(eligible)
     scores = np.array([objective(inputs, candidates, np.array([i])) for i in pool])
     order = pool[np.argsort(scores, kind="stable")]
@@ -289,16 +289,14 @@ def test_allowed_mask_is_respected(tiny, seed):
     result = choose_tests(inputs, candidates, exclude=exclude, objective=objective, allowed=allowed)
     assert result.tests
     assert all(allowed[i] for i in result.tests)
-    eligible = _eligible(inputs, candidates) & allowed
-    eligible[list(exclude)] = False
+    eligible = _eligible(inputs, candidates, exclude, allowed)
     assert result.eligible == int(eligible.sum())
 
 
 def test_fewer_allowed_candidates_than_asked_gives_all_of_them():
     # Documented: fewer tests than asked when fewer eligible candidates exist.
     inputs, candidates, exclude, objective = _instance(3)
-    eligible = _eligible(inputs, candidates)
-    eligible[list(exclude)] = False
+    eligible = _eligible(inputs, candidates, exclude)
     two = np.flatnonzero(eligible)[:2]
     allowed = np.zeros(candidates.size, dtype=bool)
     allowed[two] = True

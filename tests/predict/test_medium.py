@@ -10,6 +10,7 @@ from planner.errors import PlanFileError
 from planner.pipeline import design_plan
 from planner.planfile import load_plan, parse_plan
 from planner.predict.uncertainty import propagate
+from planner.verify import verify_result
 
 from .conftest import DEFAULT, TUBES
 
@@ -143,3 +144,50 @@ def test_every_screen_states_the_constant_at_the_benches(constant_plan) -> None:
     assert float(stated.group(1)) / 100 == pytest.approx(
         constant_plan.prediction.K_bias_from_assumption, abs=0.01
     )
+
+
+def test_stocks_made_as_the_prep_sheet_says_reach_the_medium(constant_plan) -> None:
+    # Made as the sheet says: each stock up to the mark in the diluent before its salt (H+ 0.5,
+    # NO3- 0.5 mol/L, as the plan file lists it), with its own weighed salt. Its ionic
+    # strength, I = 1/2 sum c z^2 by hand, must be the medium's 3.0 mol/L; the diluent's
+    # salted flasks hold only the benches' share (the rest makes up the other stocks).
+    prep = {p.stock: p for p in constant_plan.preparations}
+    for stock in constant_plan.inputs.stocks:
+        if stock.id not in prep:
+            continue
+        assert "before its salt" in prep[stock.id].medium or stock.diluent
+        made = dict(stock.plan_contains_M)
+        made["Na+"] = made.get("Na+", 0.0) + prep[stock.id].salt_M
+        made["NO3-"] = made.get("NO3-", 0.0) + prep[stock.id].salt_M
+        charges = {"Fe3+": 3, "H+": 1, "NO3-": -1, "Na+": 1, "SCN-": -1, "K+": 1}
+        strength = 0.5 * sum(c * charges[ion] ** 2 for ion, c in made.items())
+        assert strength == pytest.approx(3.0, rel=1e-9), stock.id
+    totals = constant_plan.totals
+    benches_share = totals.to_prepare["acid"] - totals.for_stocks["acid"]
+    assert prep["acid"].flask_mL * prep["acid"].flasks >= benches_share
+    assert prep["acid"].flask_mL * (prep["acid"].flasks - 1) < benches_share
+
+
+def test_a_dilution_in_the_medium_weighs_only_the_salt_its_aliquot_lacks() -> None:
+    # iron-dilute without a solid is made from iron-strong (a = 0.04/0.40 = 0.1 of it): the
+    # aliquot brings 0.1 * 0.1 = 0.01 mol/L of NaNO3, so the flask takes 2.26 - 0.01 = 2.25
+    # mol/L (the stocks' salts: iron-strong 3.0 - 2.9 = 0.1, iron-dilute 3.0 - 0.74 = 2.26).
+    text = DEFAULT.read_text(encoding="utf-8")
+    head, _, rest = text.partition('id = "iron-dilute"')
+    rest = rest.replace('solid = { formula = "Fe(NO3)3(H2O)9", purity = 0.985 }\n', "", 1)
+    plan = design_plan(parse_plan(head + 'id = "iron-dilute"' + rest))
+    prep = {p.stock: p for p in plan.preparations}
+    assert prep["iron-dilute"].source == "iron-strong"
+    assert prep["iron-dilute"].salt_M == pytest.approx(2.25, rel=1e-9)
+    assert prep["iron-strong"].salt_M == pytest.approx(0.1, rel=1e-9)
+    # planner verify re-derives the same salt on its own (docs/methods.md section 13).
+    checks = verify_result(
+        plan.inputs,
+        plan.mixtures,
+        plan.totals,
+        plan.preparations,
+        plan.prediction,
+        analysis=plan.analysis,
+        global_fit=plan.global_fit,
+    )
+    assert {c.name: c.status for c in checks}["preparation"] == "pass"
