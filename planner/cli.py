@@ -841,11 +841,13 @@ def simulate(
                     progress=lambda done, total: progress.update(task, completed=done),
                 )
         from planner.report.plots import simulation_plots
-        from planner.report.simulation import render_simulation, simulation_json
+        from planner.report.simulation import meaningful_K, render_simulation, simulation_json
 
-        # The all-bound numbers are withheld where the plan withholds them (they would mean
-        # nothing on it); the analysis the plan is designed for leads.
-        analysis, all_bound = designed.analysis, designed.prediction is not None
+        # The all-bound numbers are withheld where the plan withholds them or where the class
+        # gets no meaningful K from them (they would mean nothing); the analysis the plan is
+        # designed for leads.
+        analysis = designed.analysis
+        all_bound = designed.prediction is not None and meaningful_K(result.all_bound.K)
         document = simulation_json(
             result, gum, title=inputs.title, seed=seed, analysis=analysis, all_bound=all_bound
         )
@@ -866,11 +868,16 @@ def simulate(
         import dataclasses
 
         import numpy as np
+        from rich.console import Console
 
         from planner.lab.bench import preset_bench
         from planner.predict.montecarlo import simulate as run_virtual_class
         from planner.report.plots import technique_plots
-        from planner.report.simulation import render_techniques, technique_json
+        from planner.report.simulation import render_techniques, shown_all_bound, technique_json
+
+        if designed.failed:
+            err = Console(stderr=True, highlight=False, quiet=quiet)
+            err.print("[bold red]note:[/] the plan fails a check; run planner plan for details")
 
         results = {}
         with _options({"trials": "--trials"}):
@@ -882,12 +889,19 @@ def simulate(
                     trials=trials,
                     rng=np.random.default_rng(seed),
                 )
-        document = technique_json(results, title=designed.inputs.title, seed=seed)
+        # The all-bound K is withheld where the plan withholds it or where a preset's class
+        # gets no meaningful K from it; the analysis the plan is designed for leads.
+        analysis, all_bound = designed.analysis, designed.prediction is not None
+        document = technique_json(
+            results, title=designed.inputs.title, seed=seed, analysis=analysis, all_bound=all_bound
+        )
         deliver(
             "techniques.json",
             document,
-            lambda: technique_plots(results),
-            lambda console: console.print(render_techniques(results)),
+            lambda: technique_plots(results, all_bound=shown_all_bound(results, all_bound)),
+            lambda console: console.print(
+                render_techniques(results, analysis=analysis, all_bound=all_bound)
+            ),
         )
         return EXIT_CHECK_FAILED if designed.failed else EXIT_OK
 

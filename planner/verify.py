@@ -1096,11 +1096,20 @@ def _ionic_strength(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _Sta
     values = state.ionic_strength[measured]
     spread = float((values.max() - values.min()) / values.max())
     allowed = inputs.design.ionic_strength_spread
-    detail = (
-        f"ionic strength {values.min():.3g}-{values.max():.3g} mol/L across the mixtures "
-        f"(spread {100 * spread:.0f} %; the constants refer to "
-        f"{inputs.reaction.ionic_strength_M:g} mol/L)"
-    )
+    medium = inputs.design.ionic_medium
+    if medium is not None and spread <= 0.01:
+        detail = (
+            f"every mixture at ionic strength {values.max():.3g} mol/L (within "
+            f"{100 * spread:.2g} %), the constant medium "
+            f"of design.ionic_medium ({medium.salt}); the constants are moved there from the "
+            f"{inputs.reaction.ionic_strength_M:g} mol/L they refer to"
+        )
+    else:
+        detail = (
+            f"ionic strength {values.min():.3g}-{values.max():.3g} mol/L across the mixtures "
+            f"(spread {100 * spread:.0f} %; the constants refer to "
+            f"{inputs.reaction.ionic_strength_M:g} mol/L)"
+        )
     if spread > allowed:
         return Check(
             "ionic-strength",

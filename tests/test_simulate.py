@@ -212,13 +212,20 @@ def test_technique_compares_presets_side_by_side(tmp_path: Path) -> None:
     document = json.loads(result.stdout)
     assert document["schema"] == "planner.simulate-techniques/1"
     assert set(document["techniques"]) == {"calibrated", "novice"}
+    # The default is designed for the global fit: its range is the one the answer key gives.
+    assert document["analysis"] == "global-fit"
     width = {
-        name: entry["K"]["all_bound"]["ci95"][1] - entry["K"]["all_bound"]["ci95"][0]
+        name: entry["K"]["global_fit"]["ci95"][1] - entry["K"]["global_fit"]["ci95"][0]
         for name, entry in document["techniques"].items()
     }
     assert width["novice"] >= 3.0 * width["calibrated"]
     spread = document["techniques"]["calibrated"]["K_spread_all_bound"]
     assert spread["class_size"] == 30  # 3 sections x 10 benches of the default
+    # No meaningless number (issue 11, rule 6): a preset whose all-bound K range reaches
+    # K <= 0 has that analysis withheld (null), never printed.
+    for entry in document["techniques"].values():
+        bound = entry["K"]["all_bound"]
+        assert bound is None or (bound["ci95"][0] > 0 and bound["sd"] > 0)
     assert (out / "K-histogram-by-technique.png").read_bytes().startswith(b"\x89PNG")
     assert (out / "techniques.json").is_file()
 

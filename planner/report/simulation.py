@@ -25,8 +25,10 @@ from planner.report.jsonout import dumps
 __all__ = [
     "SCHEMA",
     "TECHNIQUE_SCHEMA",
+    "meaningful_K",
     "render_simulation",
     "render_techniques",
+    "shown_all_bound",
     "simulation_document",
     "simulation_json",
     "technique_document",
@@ -225,6 +227,7 @@ def _results_table(
         box=box.SIMPLE_HEAD,
         title_justify="left",
     )
+    unit = gum.K.unit or "the measured species' units"
     table.add_column("Analysis")
     table.add_column("eps mean", justify="right")
     table.add_column("sd", justify="right")
@@ -292,7 +295,7 @@ def _results_table(
         else " The all-bound analysis does not suit this plan; its numbers are withheld."
     )
     table.caption = (
-        "eps in L mol⁻¹ cm⁻¹, K in the measured species' units. all-bound: limiting reagent "
+        f"eps in L mol⁻¹ cm⁻¹, K in {unit}. all-bound: limiting reagent "
         "assumed fully bound in the standards, curve through the origin, 1:1 K averaged over "
         "the tests; global fit: eps and K fitted together with the full equilibrium model; "
         f"GUM: first-order prediction of that analysis.{withheld}"
@@ -386,7 +389,8 @@ def render_simulation(
             else "-"
         )
         bias.append(
-            f" (true K {significant(simulation.K_true, 4)}, true eps "
+            f" (true K {significant(simulation.K_true, 4)}"
+            f"{' ' + gum.K.unit if gum.K.unit else ''}, true eps "
             f"{significant(simulation.epsilon_true, 4)} L mol⁻¹ cm⁻¹)",
             style="",
         )
@@ -441,42 +445,80 @@ def _spread_cells(simulation: Simulation) -> dict[str, Any]:
     }
 
 
+def meaningful_K(summary: Summary) -> bool:
+    """True when a class's K is a number worth printing: finite, its SD and the low end of
+    its 95 % range above zero (a range reaching K <= 0 means the analysis breaks down on
+    some benches, and its mean and SD mean nothing)."""
+    values = (summary.mean, summary.sd, *summary.ci95)
+    return all(math.isfinite(v) for v in values) and summary.sd > 0 and summary.ci95[0] > 0
+
+
+def shown_all_bound(simulations: dict[str, Simulation], all_bound: bool) -> dict[str, bool]:
+    """Per preset, whether its all-bound K is shown: the plan gives that analysis's numbers
+    (``all_bound``) and the preset's class gives a meaningful K (:func:`meaningful_K`)."""
+    return {name: all_bound and meaningful_K(sim.all_bound.K) for name, sim in simulations.items()}
+
+
 def technique_document(
-    simulations: dict[str, Simulation], *, title: str, seed: int
+    simulations: dict[str, Simulation],
+    *,
+    title: str,
+    seed: int,
+    analysis: str = "all-bound",
+    all_bound: bool = True,
 ) -> dict[str, Any]:
     """``planner simulate --technique``: the same recipes under each bench preset.
 
     ``techniques`` maps each preset to its K of both analyses (mean, sd, ci95), the all-bound
     K's bench-to-bench SD inside a class and the SD of the class mean (the stocks are one
-    batch for the class).
+    batch for the class). ``analysis`` is the one the plan is designed for; the all-bound
+    values of a preset are ``null`` where the plan withholds that analysis or the preset's
+    class gives no meaningful K with it (:func:`meaningful_K`).
     """
+    shown = shown_all_bound(simulations, all_bound)
     return {
         "schema": TECHNIQUE_SCHEMA,
         "title": title,
         "seed": seed,
+        "analysis": analysis,
         "techniques": {
             name: {
                 "trials": sim.trials,
                 "K": {
-                    "all_bound": _summary(sim.all_bound.K),
+                    "all_bound": _summary(sim.all_bound.K) if shown[name] else None,
                     "global_fit": _summary(sim.global_fit.K),
                 },
                 "K_true": sim.K_true,
-                "K_spread_all_bound": _spread_cells(sim),
+                "K_spread_all_bound": _spread_cells(sim) if shown[name] else None,
             }
             for name, sim in simulations.items()
         },
     }
 
 
-def technique_json(simulations: dict[str, Simulation], *, title: str, seed: int) -> str:
+def technique_json(
+    simulations: dict[str, Simulation],
+    *,
+    title: str,
+    seed: int,
+    analysis: str = "all-bound",
+    all_bound: bool = True,
+) -> str:
     """:func:`technique_document` as one JSON text: sorted keys, full precision."""
-    return dumps(technique_document(simulations, title=title, seed=seed))
+    return dumps(
+        technique_document(
+            simulations, title=title, seed=seed, analysis=analysis, all_bound=all_bound
+        )
+    )
 
 
-def render_techniques(simulations: dict[str, Simulation]) -> RenderableType:
-    """The presets side by side: K of each analysis, its 95 % range, and the spread inside a
-    class against that of the class mean."""
+def render_techniques(
+    simulations: dict[str, Simulation], *, analysis: str = "all-bound", all_bound: bool = True
+) -> RenderableType:
+    """The presets side by side: K of each analysis (the plan's first), its 95 % range, and
+    the spread inside a class against that of the class mean; an all-bound K that would mean
+    nothing is withheld, and the note says why."""
+    shown = shown_all_bound(simulations, all_bound)
     table = Table(
         title="Virtual class by bench preset (K, L/mol)",
         box=box.SIMPLE_HEAD,
@@ -493,11 +535,16 @@ def render_techniques(simulations: dict[str, Simulation]) -> RenderableType:
     ):
         table.add_column(heading, justify="left" if heading in {"preset", "analysis"} else "right")
     for name, sim in simulations.items():
-        spread = sim.all_bound.K_spread
-        for label, summary, within in (
-            ("all-bound", sim.all_bound.K, spread),
+        rows = [
+            ("all-bound", sim.all_bound.K, sim.all_bound.K_spread),
             ("global fit", sim.global_fit.K, sim.global_fit.K_spread),
-        ):
+        ]
+        if analysis == "global-fit":
+            rows.reverse()
+        for label, summary, within in rows:
+            if label == "all-bound" and not shown[name]:
+                table.add_row(name, label, "withheld", "", "", "", "", style="dim")
+                continue
             mean, sd, interval = _spread(summary.mean, summary.sd, summary.ci95)
             table.add_row(
                 name,
@@ -508,8 +555,17 @@ def render_techniques(simulations: dict[str, Simulation]) -> RenderableType:
                 _text(within.bench_sd, 2) if within is not None else "-",
                 _text(within.class_mean_sd, 2) if within is not None else "-",
             )
-    note = Text(
+    text = (
         "'in class': SD of K between the benches of one class (one batch of stocks); "
         "'class mean': SD of the class's mean K from class to class."
     )
-    return Group(table, note)
+    if not all_bound:
+        text += " The all-bound analysis does not suit this plan; its numbers are withheld."
+    else:
+        broken = [name for name, ok in shown.items() if not ok]
+        if broken:
+            text += (
+                f" All-bound K withheld for {', '.join(broken)}: its 95 % range reaches K <= 0, "
+                "so the analysis breaks down on some benches and its mean and SD mean nothing."
+            )
+    return Group(table, Text(text))

@@ -165,9 +165,11 @@ def simulation_plots(simulation: Simulation) -> dict[str, bytes]:
     return files
 
 
-def technique_histogram_figure(simulations: Mapping[str, Simulation]) -> Figure:
+def technique_histogram_figure(
+    simulations: Mapping[str, Simulation], *, all_bound: Mapping[str, bool] | None = None
+) -> Figure:
     """Histograms of the class's K, one per bench preset, on shared bins (all-bound analysis
-    when the plan's answer key gives it, else the global fit).
+    where ``all_bound`` says the plan gives it for that preset, else the global fit).
 
     Parameters
     ----------
@@ -183,7 +185,8 @@ def technique_histogram_figure(simulations: Mapping[str, Simulation]) -> Figure:
     values: dict[str, NDArray[np.float64]] = {}
     shown: dict[str, Summary] = {}
     for name, sim in simulations.items():
-        bound = _finite(sim.K_all_bound)
+        wanted = all_bound is None or all_bound.get(name, False)
+        bound = _finite(sim.K_all_bound) if wanted else np.empty(0)
         values[name] = bound if bound.size else _finite(sim.K_global_fit)
         shown[name] = sim.all_bound.K if bound.size else sim.global_fit.K
     pooled = np.concatenate([v for v in values.values() if v.size])
@@ -214,6 +217,10 @@ def technique_histogram_figure(simulations: Mapping[str, Simulation]) -> Figure:
         return _finish(figure, axes)
 
 
-def technique_plots(simulations: Mapping[str, Simulation]) -> dict[str, bytes]:
+def technique_plots(
+    simulations: Mapping[str, Simulation], *, all_bound: Mapping[str, bool] | None = None
+) -> dict[str, bytes]:
     """``K-histogram-by-technique`` as ``.png`` and ``.svg`` bytes."""
-    return _both("K-histogram-by-technique", technique_histogram_figure(simulations))
+    return _both(
+        "K-histogram-by-technique", technique_histogram_figure(simulations, all_bound=all_bound)
+    )
