@@ -86,6 +86,7 @@ def variants_files(
         "date": date,
         "seed": seed,
         "sections": rows,
+        "K_unit": plans[0].inputs.measured_species.K_unit,
         "cautions": cautions_for(plans[0].inputs),
     }
     files["index.md"] = _render("variants.md", **context)
