@@ -67,6 +67,11 @@ def test_plan_uncertainties_equal_the_first_order_ones_of_simulate(documents):
     assert plan["prediction"]["u_K"] == pytest.approx(gum["K"]["u"], rel=0.01)
     assert plan["prediction"]["epsilon"] == pytest.approx(gum["epsilon"]["value"], rel=1e-12)
     assert plan["prediction"]["K"] == pytest.approx(gum["K"]["value"], rel=1e-12)
+    # The global fit, the analysis the default is designed for, likewise.
+    fit, fit_gum = plan["global_fit_prediction"], gum["global_fit"]
+    assert fit["u_epsilon"] == pytest.approx(fit_gum["epsilon"]["u"], rel=0.01)
+    assert fit["u_K"] == pytest.approx(fit_gum["K"]["u"], rel=0.01)
+    assert fit["K"] == pytest.approx(fit_gum["K"]["value"], rel=1e-12)
 
 
 def test_three_blanks_are_all_in_the_prediction(tmp_path):
