@@ -10,12 +10,17 @@ for a deeper search before a release::
 
 Fuzz properties set their nominal count through :func:`tests.strategies.budget`, so the
 profile decides the depth everywhere.
+
+Also the output folder of the embedded default plan, written once per session for the tests
+that only read one (:func:`default_out`).
 """
 
 from __future__ import annotations
 
 import os
+from pathlib import Path
 
+import pytest
 from hypothesis import settings
 
 from tests.strategies import CI_EXAMPLES
@@ -24,3 +29,23 @@ from tests.strategies import CI_EXAMPLES
 settings.register_profile("ci", max_examples=CI_EXAMPLES, print_blob=True)
 settings.register_profile("long", max_examples=20 * CI_EXAMPLES, print_blob=True)
 settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci"))
+
+
+#: The date the shared output folder's sheets are printed for (a leap day).
+DEFAULT_OUT_DATE = "2028-02-29"
+
+
+@pytest.fixture(scope="session")
+def default_out(tmp_path_factory) -> Path:
+    """``planner plan --out DIR --date 2028-02-29 -q`` of the embedded default plan, run once
+    per session (drawing the plots takes seconds). Read it, do not change it: copy it first."""
+    from typer.testing import CliRunner
+
+    from planner.cli import app
+
+    out = tmp_path_factory.mktemp("default-out") / "sheets"
+    result = CliRunner().invoke(
+        app, ["plan", "--out", str(out), "--date", DEFAULT_OUT_DATE, "-q"], catch_exceptions=False
+    )
+    assert result.exit_code == 0, result.stderr
+    return out

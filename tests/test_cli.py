@@ -5,6 +5,7 @@ from __future__ import annotations
 import errno
 import json
 import os
+import shutil
 import subprocess
 import sys
 import time
@@ -16,6 +17,7 @@ from hypothesis import strategies as st
 from typer.testing import CliRunner
 
 from planner.cli import app
+from tests.conftest import DEFAULT_OUT_DATE
 
 runner = CliRunner()
 ROOT = Path(__file__).resolve().parents[1]
@@ -302,10 +304,10 @@ def test_plan_missing_file_exits_2(tmp_path):
     assert "absent.toml" in result.stderr
 
 
-def test_plan_out_writes_folder_and_refuses_non_empty(tmp_path):
+def test_plan_out_writes_folder_and_refuses_non_empty(tmp_path, default_out):
+    # The session's `plan --out` folder of the default plan, copied: as `plan --out` left it.
     out = tmp_path / "sheets"
-    first = run("plan", "--out", str(out), "--date", "2026-12-02")
-    assert first.exit_code == 0, first.stderr
+    shutil.copytree(default_out, out)
     saved = json.loads((out / "plan.json").read_text())
     assert saved["schema"] == "planner.plan/2"
     assert (out / "mixtures.csv").exists()
@@ -320,12 +322,10 @@ def test_plan_out_writes_folder_and_refuses_non_empty(tmp_path):
     assert "2026-12-03" in (out / "prep-sheet.md").read_text()
 
 
-def test_verify_round_trip_and_hand_edit(tmp_path):
-    out = tmp_path / "sheets"
-    assert run("plan", "--out", str(out), "--date", "2026-12-02").exit_code == 0
-    good = run("verify", str(out / "plan.json"))
+def test_verify_round_trip_and_hand_edit(tmp_path, default_out):
+    good = run("verify", str(default_out / "plan.json"))
     assert good.exit_code == 0, good.stdout
-    document = json.loads((out / "plan.json").read_text())
+    document = json.loads((default_out / "plan.json").read_text())
     # Hand edit: the first standard's limiting-reagent addition now claims a 5 mL transfer
     # pipette, which cannot deliver its volume (the plan's own recipe, edited).
     standard = next(m for m in document["mixtures"] if m["role"] == "standard")
@@ -400,9 +400,9 @@ def test_force_refuses_a_users_folder_named_through_dotdot(tmp_path, monkeypatch
     assert _everything(tmp_path) == before
 
 
-def test_force_refuses_the_folder_holding_the_plan_file(tmp_path):
+def test_force_refuses_the_folder_holding_the_plan_file(tmp_path, default_out):
     inputs = tmp_path / "inputs"
-    assert run("plan", "--out", str(inputs), "--date", "2026-12-02").exit_code == 0
+    shutil.copytree(default_out, inputs)  # a `plan --out` folder
     plan = inputs / "mine.toml"  # saved by the user inside a planner output folder
     plan.write_bytes((ROOT / "planner" / "data" / "default.toml").read_bytes())
     before = _everything(tmp_path)
@@ -580,11 +580,10 @@ def test_date_must_be_an_iso_date(tmp_path, command, date, problem):
     assert not (tmp_path / "out").exists()
 
 
-def test_a_valid_date_is_printed_on_the_sheets(tmp_path):
-    out = tmp_path / "out"
-    result = run("plan", "--out", str(out), "--date", "2028-02-29", "-q")  # a leap day
-    assert result.exit_code == 0, result.stderr
-    assert "Date: 2028-02-29" in (out / "prep-sheet.md").read_text(encoding="utf-8")
+def test_a_valid_date_is_printed_on_the_sheets(default_out):
+    # The session's folder: `plan --out DIR --date 2028-02-29 -q`, a leap day.
+    assert DEFAULT_OUT_DATE == "2028-02-29"
+    assert "Date: 2028-02-29" in (default_out / "prep-sheet.md").read_text(encoding="utf-8")
 
 
 def test_text_output_survives_an_ascii_stream():

@@ -333,12 +333,11 @@ def test_without_plots_the_answer_key_has_no_images(plan):
 # ---------------------------------------------------------------------------------------------
 
 
-def test_plan_out_writes_the_plots(tmp_path):
-    runner = CliRunner()
-    first, second = tmp_path / "a", tmp_path / "b"
-    for folder in (first, second):
-        result = runner.invoke(app, ["plan", "--out", str(folder), "--date", DATE, "-q"])
-        assert result.exit_code == 0, result.stderr
+def test_plan_out_writes_the_plots(tmp_path, default_out):
+    # Two runs: the session's `plan --out` folder of the default plan and one more, here.
+    first, second = default_out, tmp_path / "b"
+    result = CliRunner().invoke(app, ["plan", "--out", str(second), "--date", DATE, "-q"])
+    assert result.exit_code == 0, result.stderr
     names = sorted(p.name for p in (first / "plots").iterdir())
     assert names == sorted(f"{stem}.{ext}" for stem in PLAN_PLOTS for ext in ("png", "svg"))
     for path in (first / "plots").iterdir():
