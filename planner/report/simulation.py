@@ -496,20 +496,9 @@ def technique_document(
     }
 
 
-def technique_json(
-    simulations: dict[str, Simulation],
-    *,
-    title: str,
-    seed: int,
-    analysis: str = "all-bound",
-    all_bound: bool = True,
-) -> str:
+def technique_json(simulations: dict[str, Simulation], **options: Any) -> str:
     """:func:`technique_document` as one JSON text: sorted keys, full precision."""
-    return dumps(
-        technique_document(
-            simulations, title=title, seed=seed, analysis=analysis, all_bound=all_bound
-        )
-    )
+    return dumps(technique_document(simulations, **options))
 
 
 def render_techniques(
