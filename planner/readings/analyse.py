@@ -311,6 +311,8 @@ class ClassAnalysis:
         The K the plan assumes (the measured species' beta).
     sections
         The sections analysed.
+    K_unit
+        The unit of K (the measured species' beta), e.g. ``"L/mol"``.
     """
 
     benches: tuple[BenchResult, ...]
@@ -323,6 +325,7 @@ class ClassAnalysis:
     pooled: Pooled | None
     K_true: float
     sections: tuple[int, ...]
+    K_unit: str = ""
 
     @property
     def flagged(self) -> bool:
@@ -971,4 +974,5 @@ def analyse_class(plans: Mapping[int, SavedPlan], table: ReadingsTable) -> Class
         pooled=_pooled(built, benches),
         K_true=first.layout.K_true,
         sections=tuple(sections_used),
+        K_unit=first.saved.inputs.measured_species.K_unit,
     )

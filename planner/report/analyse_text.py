@@ -11,13 +11,14 @@ from planner.report._format import significant
 __all__ = ["render_analysis"]
 
 
-def _value(value: float) -> str:
-    return significant(value, 4) if math.isfinite(value) else "-"
+def _value(value: float, digits: int = 4) -> str:
+    """A value to ``digits`` significant figures (uncertainties and SDs to 2), "-" if none."""
+    return significant(value, digits) if math.isfinite(value) else "-"
 
 
 def _statistic_line(name: str, statistic: ClassStatistic) -> str:
     observed = (
-        f"mean {_value(statistic.mean)}, SD {_value(statistic.sd)}, 95 % "
+        f"mean {_value(statistic.mean)}, SD {_value(statistic.sd, 2)}, 95 % "
         f"{_value(statistic.low)}-{_value(statistic.high)} (n = {statistic.n})"
         if statistic.n
         else "no bench ok"
@@ -84,20 +85,21 @@ def render_analysis(result: ClassAnalysis) -> Any:
         _statistic_line("eps, global fit", result.epsilon_global_fit),
     ]
     pooled = result.pooled
+    unit = f" {result.K_unit}" if result.K_unit else ""
     if pooled is not None:
         lack = (
-            f"lack of fit F = {_value(pooled.lack_of_fit_F)} on {pooled.df_lack_of_fit} and "
-            f"{pooled.df_pure_error} df, p = {_value(pooled.lack_of_fit_p)}"
+            f"lack of fit F = {_value(pooled.lack_of_fit_F, 3)} on {pooled.df_lack_of_fit} and "
+            f"{pooled.df_pure_error} df, p = {_value(pooled.lack_of_fit_p, 2)}"
             if math.isfinite(pooled.lack_of_fit_F)
             else "lack of fit not tested (no replicate benches)"
         )
         which = "analysed (none was ok)" if pooled.includes_flagged else "ok"
         lines.append(
             f"Pooled global fit of {pooled.n_readings} readings from {pooled.n_benches} "
-            f"{which} benches: K = {_value(pooled.K)} (u {_value(pooled.u_K)}), eps = "
-            f"{_value(pooled.epsilon)} (u {_value(pooled.u_epsilon)}); RMS residual "
-            f"{_value(pooled.rms_residual)}; {lack}. The plan assumes K = "
-            f"{_value(result.K_true)}."
+            f"{which} benches: K = {_value(pooled.K)} (u {_value(pooled.u_K, 2)}){unit}, eps = "
+            f"{_value(pooled.epsilon)} (u {_value(pooled.u_epsilon, 2)}) L mol-1 cm-1; RMS "
+            f"residual {_value(pooled.rms_residual, 2)}; {lack}. The plan assumes K = "
+            f"{_value(result.K_true)}{unit}."
         )
     parts.extend(Text(line) for line in lines)
     if result.unmeasured:
