@@ -1674,8 +1674,10 @@ def _global_fit_prediction(
     return _check(
         "prediction",
         problems,
-        f"the global fit's eps {recomputed.epsilon:.4g} ± {recomputed.u_epsilon:.2g} and K "
-        f"{recomputed.K:.4g} ± {recomputed.u_K:.2g} agree with a fresh derivation",
+        f"the global fit's eps {recomputed.epsilon:.4g} ± {recomputed.u_epsilon:.2g} L mol-1 "
+        f"cm-1 and K {recomputed.K:.4g} ± {recomputed.u_K:.2g}"
+        f"{' ' + inputs.measured_species.K_unit if inputs.measured_species.K_unit else ''} "
+        "agree with a fresh derivation",
     )
 
 
