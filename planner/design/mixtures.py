@@ -619,13 +619,13 @@ def _best_swaps(
     high = np.max(f_others, axis=1, where=keep, initial=-np.inf)
     low = np.min(f_others, axis=1, where=keep, initial=np.inf)
     spread = np.maximum(high[:, None], fraction) - np.minimum(low[:, None], fraction)
-    distance = np.abs(fraction[None, :, None] - f_members[None, None, :])
-    nearest = np.min(
-        np.broadcast_to(distance, (n, *distance.shape[1:])),
-        axis=2,
-        where=keep[:, None, :],
-        initial=np.inf,
-    )
+    # The nearest other member: the nearest member, unless that is the slot swapped out,
+    # then the second nearest (the same values as a minimum over the others).
+    distance = np.abs(fraction[:, None] - f_members[None, :])
+    closest = np.argmin(distance, axis=1)
+    ordered = np.sort(distance, axis=1)
+    second = ordered[:, 1] if n > 1 else np.full(fraction.shape, np.inf)
+    nearest = np.where(np.arange(n)[:, None] == closest[None, :], second, ordered[:, 0])
     admissible = (spread >= span - 1e-12) & (nearest >= gap)
     admissible[:, members] = False
     values = np.where(admissible, scores, np.inf)
