@@ -16,6 +16,7 @@ variants receive :func:`design_plan` as a callable.
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
 from collections.abc import Callable
 
@@ -24,7 +25,7 @@ from numpy.typing import NDArray
 
 from planner.design.candidates import CandidateSet
 from planner.design.mixtures import Objective
-from planner.design.plan import design_recipes
+from planner.design.plan import SharedWork, design_recipes
 from planner.design.variants import VariantSet
 from planner.inputs import PlanInputs
 from planner.result import (
@@ -249,6 +250,7 @@ def design_plan(
     *,
     candidates: CandidateSet | None = None,
     allowed: NDArray[np.bool_] | None = None,
+    shared: SharedWork | None = None,
 ) -> Plan:
     """Design, predict and verify a complete plan.
 
@@ -263,6 +265,8 @@ def design_plan(
         Candidates already enumerated for these inputs (variants reuse one set).
     allowed
         Optional mask of the candidates standards and tests may use.
+    shared
+        Design work shared with other plans of the same inputs and candidates (variants).
 
     Returns
     -------
@@ -273,7 +277,9 @@ def design_plan(
     """
     from planner.verify import verify_plan
 
-    design = design_recipes(inputs, objective, candidates=candidates, allowed=allowed)
+    design = design_recipes(
+        inputs, objective, candidates=candidates, allowed=allowed, shared=shared
+    )
     mixtures, uncertainty, prediction, fitted = predict_mixtures(inputs, design.mixtures)
     prediction, fitted, meaningful = _prediction_check(prediction, fitted, design.analysis)
     checks = (
@@ -308,7 +314,10 @@ def design_variants(
     :func:`design_plan`; the combined plan carries ``section-distinctness``."""
     from planner.design import variants
 
-    found = variants.design_variants(inputs, sections, rng, _make_section_plan, progress)
+    # Every section is designed from one candidate set: the work that does not depend on the
+    # section's mask (standards, objectives) is done once.
+    make_plan = functools.partial(_make_section_plan, shared=SharedWork())
+    found = variants.design_variants(inputs, sections, rng, make_plan, progress)
     if not found.plans:
         return found
     distinct = variants.distinctness_check(found)
@@ -318,9 +327,13 @@ def design_variants(
 
 
 def _make_section_plan(
-    one: PlanInputs, candidates: CandidateSet, allowed: NDArray[np.bool_] | None
+    one: PlanInputs,
+    candidates: CandidateSet,
+    allowed: NDArray[np.bool_] | None,
+    *,
+    shared: SharedWork,
 ) -> Plan:
-    return design_plan(one, candidates=candidates, allowed=allowed)
+    return design_plan(one, candidates=candidates, allowed=allowed, shared=shared)
 
 
 def combined_plan(plans: tuple[Plan, ...], *, session_checks: tuple[Check, ...] = ()) -> Plan:

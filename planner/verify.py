@@ -32,6 +32,7 @@ from planner.chem.assumption import (
 from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, medium_label, mix_M
 from planner.chem.species import charge_from_name, molar_mass_g_per_mol, neutralised
+from planner.errors import InvalidInputError
 from planner.inputs import Device, PlanInputs, Stock
 from planner.lab.deliveries import MAX_DELIVERIES, delivers, devices_by_id, is_deliverable
 from planner.lab.glassware import stock_flasks
@@ -390,11 +391,10 @@ def _deliverable(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
                 problem = _stated_deliveries_problem(devices, a)
                 if problem is not None:
                     problems.append(f"{where}: {problem}")
-            elif not _deliverable_with(inputs, devices, a.volume_mL, a.devices):
-                problems.append(
-                    f"{where}: cannot be delivered with {devices_text(a.devices) or 'no device'}; "
-                    "choose a volume on the device's scale or another device"
-                )
+            elif (
+                problem := _delivery_problem(inputs, devices, a.volume_mL, a.devices)
+            ) is not None:
+                problems.append(f"{where}: {problem}")
     return _check(
         "deliverable-volumes",
         problems,
@@ -439,19 +439,31 @@ def _stated_deliveries_problem(devices: Mapping[str, Device], addition: Addition
     return None
 
 
-def _deliverable_with(
+def _delivery_problem(
     inputs: PlanInputs, devices: Mapping[str, Device], volume_mL: float, option: Sequence[str]
-) -> bool:
-    """Whether the named devices (all on the shelf) deliver exactly this volume.
+) -> str | None:
+    """Why the named devices (all on the shelf) cannot deliver exactly this volume, or None
+    when they can.
 
     A volume beyond what the devices hold together cannot be delivered; it is refused
     before the exact test, which counts in picolitres and would overflow on a number such
-    as 1e308 mL.
+    as 1e308 mL. The exact test's search is bounded
+    (:data:`planner.lab.deliveries.MAX_GRADED_SUMS`); an option beyond it is a finding too.
     """
+    cannot = (
+        f"cannot be delivered with {devices_text(option) or 'no device'}; choose a volume on "
+        "the device's scale or another device"
+    )
     capacity = sum(devices[d].volume_mL for d in option)
     if not option or not volume_mL <= capacity * (1 + 1e-9):
-        return False
-    return is_deliverable(inputs.glassware, volume_mL, option)
+        return cannot
+    try:
+        deliverable = is_deliverable(inputs.glassware, volume_mL, option)
+    except InvalidInputError as error:
+        if error.field != "option":
+            raise
+        return f"not checked: {error.problem}; {error.hint}"
+    return None if deliverable else cannot
 
 
 def _volume_totals(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
@@ -718,7 +730,10 @@ def _reading_u(
             not a.devices
             or any(d not in devices for d in a.devices)
             or (a.deliveries and _stated_deliveries_problem(devices, a) is not None)
-            or (not a.deliveries and not _deliverable_with(inputs, devices, a.volume_mL, a.devices))
+            or (
+                not a.deliveries
+                and _delivery_problem(inputs, devices, a.volume_mL, a.devices) is not None
+            )
         ):
             return f"cannot deliver {a.volume_mL:g} mL of {a.stock} as stated"
         reference = diluent_M if flask is not None else totals

@@ -205,6 +205,40 @@ def test_device_not_on_the_shelf_fails(document: Document) -> None:
     assert "buret-50mL not on the shelf" in detail
 
 
+def test_several_finely_stepped_deliveries_are_checked_promptly(document: Document) -> None:
+    # The plan's own recipe, hand-edited: a piston pipette set in 0.05 µL steps from 10 to
+    # 1000 µL (19 801 readings, within the plan file's limit) put on the shelf, and a
+    # standard's limiting volume made four deliveries of it, 0.000025 mL off that grid (four
+    # readings sum to multiples of 0.00005 mL, arithmetic), with no deliveries stated. Trying
+    # every combination of readings took 7 s of CPU for three such deliveries (measured on
+    # the old code, a shared and loaded machine), so about 19 801 times that, days, for four;
+    # the check now fails at once and names the mixture.
+    document["inputs"]["glassware"].append(
+        {
+            "class": "A",
+            "count": 4,
+            "kind": "piston-pipette",
+            "min_delivery_mL": None,
+            "range_uL": [10.0, 1000.0],
+            "step_uL": 0.05,
+            "tolerance_mL": None,
+            "volume_mL": 1.0,
+        }
+    )
+    stock = limiting_stock(document)
+    target = role(document, "standard")[0]
+    edited = addition(target, stock)
+    edited["volume_mL"] = 1.500025
+    edited["devices"] = ["piston-pipette-10-1000uL"] * 4
+    edited["deliveries"] = []
+
+    checks = verified(document)
+    assert checks["deliverable-volumes"].status == "fail"
+    detail = checks["deliverable-volumes"].detail
+    assert f"{target['id']} {stock}" in detail
+    assert "cannot be delivered with" in detail
+
+
 def test_additions_that_do_not_sum_to_the_total_fail(document: Document) -> None:
     # The plan's own recipe, hand-edited: 0.5 mL more diluent in a mixture whose diluent
     # comes from the buret (so the new volume is still one it delivers), total unchanged.

@@ -224,10 +224,18 @@ def charge_from_name(name: str) -> int:
         raise InvalidInputError(
             "a species name must be text", field="name", value=name, hint=_NAME_HINT
         )
-    charge = _charge(name)
+    charge = _cached_charge(name)
     if abs(charge) > CHARGE_LIMIT:
         raise _bad_name(name, f"the charge is larger than {CHARGE_LIMIT} in size")
     return charge
+
+
+@functools.lru_cache(maxsize=1024)
+def _cached_charge(name: str) -> int:
+    """:func:`_charge`, remembered: a plan's few names are read thousands of times (each
+    mixture's ionic strength), and the answer depends on the name alone. A name that is
+    refused raises every time (errors are not remembered)."""
+    return _charge(name)
 
 
 def _charge(name: str) -> int:

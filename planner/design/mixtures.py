@@ -47,6 +47,7 @@ __all__ = [
     "global_fit_objective",
     "mean_K_objective",
     "mse_objective",
+    "own_scores",
     "per_mixture_relative_u_K",
     "robust_global_fit_objective",
 ]
@@ -212,35 +213,32 @@ class GlobalFitObjective:
 
     def combine(self, a: NDArray[np.float64], b: NDArray[np.float64]) -> NDArray[np.float64]:
         """u(K)/K from the summed information matrices, shape (..., 2, 2) (vectorised)."""
-        det = a[..., 0, 0] * a[..., 1, 1] - a[..., 0, 1] * a[..., 1, 0]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            # The (log10 K, log10 K) entry of A^-1 B A^-1, with A^-1 = adj(A)/det(A).
-            r0 = -a[..., 1, 0] / det
-            r1 = a[..., 0, 0] / det
-            var = r0 * r0 * b[..., 0, 0] + 2 * r0 * r1 * b[..., 0, 1] + r1 * r1 * b[..., 1, 1]
-            value = np.log(10.0) * np.sqrt(var)
-        result: NDArray[np.float64] = np.where(np.isfinite(value) & (det > 0), value, np.inf)
-        return result
+        return _sandwich_u(
+            a[..., 0, 0], a[..., 0, 1], a[..., 1, 0], a[..., 1, 1],
+            b[..., 0, 0], b[..., 0, 1], b[..., 1, 1],
+        )  # fmt: skip
 
     def own(self, indices: NDArray[np.int64]) -> NDArray[np.float64]:
         """u(K)/K each candidate would give with the standards alone beside it."""
         return self.combine(self.a_standards + self.a[indices], self.b_standards + self.b[indices])
 
-    def swaps(self, members: list[int], pool: NDArray[np.int64]) -> NDArray[np.float64]:
-        """Objective after replacing each member by each pool candidate, (n_members, n_pool)."""
-        a_set = self.a_standards + self.a[members].sum(axis=0)
-        b_set = self.b_standards + self.b[members].sum(axis=0)
-        a = a_set - self.a[members][:, None] + self.a[pool][None, :]
-        b = b_set - self.b[members][:, None] + self.b[pool][None, :]
-        return self.combine(a, b)
-
     def swaps_within(self, pool: NDArray[np.int64]) -> Callable[[list[int]], NDArray[np.float64]]:
-        """:meth:`swaps` for members given as positions in ``pool`` (see _swap_search)."""
+        """Objective after replacing each member by each pool candidate, shape (n_members,
+        n_pool), for members given as positions in ``pool`` (see _swap_search)."""
+        stacked = _stacked_swaps([self], pool)
 
         def swaps(members: list[int]) -> NDArray[np.float64]:
-            return self.swaps([int(i) for i in pool[members]], pool)
+            single: NDArray[np.float64] = stacked(members)[0]
+            return single
 
         return swaps
+
+    def many(self, sets: NDArray[np.int64]) -> NDArray[np.float64]:
+        """The objective of each row of ``sets`` (candidate indices, shape (n_sets, n)) at
+        once; each value is the one :meth:`__call__` gives for that row."""
+        a = self.a_standards + self.a[sets].sum(axis=1)
+        b = self.b_standards + self.b[sets].sum(axis=1)
+        return self.combine(a, b)
 
     def __call__(
         self, inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
@@ -248,6 +246,63 @@ class GlobalFitObjective:
         a = self.a_standards + self.a[indices].sum(axis=0)
         b = self.b_standards + self.b[indices].sum(axis=0)
         return float(self.combine(a, b))
+
+
+def _stacked_swaps(
+    nodes: Sequence[GlobalFitObjective], pool: NDArray[np.int64]
+) -> Callable[[list[int]], NDArray[np.float64]]:
+    """Every single swap's objective at each node at once, shape (n_nodes, n_members, n_pool),
+    for members given as positions in ``pool``.
+
+    The pool's matrix entries are taken out once; each call adds and takes away entry by
+    entry, the same double arithmetic as on whole (n_members, n_pool, 2, 2) arrays per node.
+    """
+    entries = [(0, 0), (0, 1), (1, 0), (1, 1)]
+    a_pool = np.stack([node.a[pool] for node in nodes])
+    b_pool = np.stack([node.b[pool] for node in nodes])
+    a_columns = [np.ascontiguousarray(a_pool[:, :, i, j])[:, None, :] for i, j in entries]
+    b_columns = [np.ascontiguousarray(b_pool[:, :, i, j])[:, None, :] for i, j in entries]
+
+    def swaps(members: list[int]) -> NDArray[np.float64]:
+        a_members, b_members = a_pool[:, members], b_pool[:, members]
+        a_set = np.stack(
+            [node.a_standards + a_members[k].sum(axis=0) for k, node in enumerate(nodes)]
+        )
+        b_set = np.stack(
+            [node.b_standards + b_members[k].sum(axis=0) for k, node in enumerate(nodes)]
+        )
+        a = [
+            (a_set[:, i, j][:, None] - a_members[:, :, i, j])[:, :, None] + column
+            for (i, j), column in zip(entries, a_columns, strict=True)
+        ]
+        b = [
+            (b_set[:, i, j][:, None] - b_members[:, :, i, j])[:, :, None] + column
+            for (i, j), column in zip(entries, b_columns, strict=True)
+        ]
+        return _sandwich_u(a[0], a[1], a[2], a[3], b[0], b[1], b[3])
+
+    return swaps
+
+
+def _sandwich_u(
+    a00: NDArray[np.float64],
+    a01: NDArray[np.float64],
+    a10: NDArray[np.float64],
+    a11: NDArray[np.float64],
+    b00: NDArray[np.float64],
+    b01: NDArray[np.float64],
+    b11: NDArray[np.float64],
+) -> NDArray[np.float64]:
+    """u(K)/K from the entries of the summed matrices A and B (see GlobalFitObjective)."""
+    det = a00 * a11 - a01 * a10
+    with np.errstate(divide="ignore", invalid="ignore"):
+        # The (log10 K, log10 K) entry of A^-1 B A^-1, with A^-1 = adj(A)/det(A).
+        r0 = -a10 / det
+        r1 = a00 / det
+        var = r0 * r0 * b00 + 2 * r0 * r1 * b01 + r1 * r1 * b11
+        value = np.log(10.0) * np.sqrt(var)
+    result: NDArray[np.float64] = np.where(np.isfinite(value) & (det > 0), value, np.inf)
+    return result
 
 
 def global_fit_objective(
@@ -411,12 +466,16 @@ class RobustGlobalFitObjective:
 
     def swaps_within(self, pool: NDArray[np.int64]) -> Callable[[list[int]], NDArray[np.float64]]:
         """Scores of every single swap of members given as positions in ``pool``."""
-        per_node = [node.swaps_within(pool) for node in self.nodes]
+        stacked = _stacked_swaps(self.nodes, pool)
 
         def swaps(members: list[int]) -> NDArray[np.float64]:
-            return self._mean([f(members) for f in per_node])
+            return self._mean(list(stacked(members)))
 
         return swaps
+
+    def many(self, sets: NDArray[np.int64]) -> NDArray[np.float64]:
+        """The objective of each row of ``sets`` at once (see GlobalFitObjective.many)."""
+        return self._mean([node.many(sets) for node in self.nodes])
 
     def __call__(
         self, inputs: PlanInputs, candidates: CandidateSet, indices: NDArray[np.int64]
@@ -524,33 +583,65 @@ def _swap_search(
     fraction: NDArray[np.float64],
     span: float,
     gap: float,
+    seen: dict[tuple[int, ...], tuple[NDArray[np.float64], NDArray[np.int64]]] | None = None,
 ) -> list[int]:
     """Improve a test set by single swaps until none lowers the objective (local search).
 
     ``swaps(members)`` scores replacing each member by each pool candidate at once, shape
     (n_members, n_pool); a swap must keep the bound-fraction span and the members' separation.
+    ``seen`` keeps each member list's best admissible swap per slot, for searches from other
+    starts over the same pool that pass through the same sets.
     """
     n = len(members)
     members = list(members)
     for _ in range(4 * n):
-        best: tuple[float, int, int] | None = None
-        scores = swaps(members)
-        for slot in range(n):
-            others = members[:slot] + members[slot + 1 :]
-            f_others = fraction[others]
-            spread = np.maximum(f_others.max(), fraction) - np.minimum(f_others.min(), fraction)
-            apart = np.min(np.abs(fraction[:, None] - f_others[None, :]), axis=1) >= gap
-            admissible = (spread >= span - 1e-12) & apart
-            admissible[members] = False
-            values = np.where(admissible, scores[slot], np.inf)
-            pick = int(np.argmin(values))
-            if values[pick] < current * (1 - 1e-12) and (best is None or values[pick] < best[0]):
-                best = (float(values[pick]), slot, pick)
-        if best is None:
+        key = tuple(members)
+        known = seen.get(key) if seen is not None else None
+        if known is None:
+            known = _best_swaps(swaps(members), members, fraction, span, gap)
+            if seen is not None:
+                seen[key] = known
+        best_values, picks = known
+        # The lowest improving swap; between equal ones the first slot (strict comparison).
+        improving = best_values < current * (1 - 1e-12)
+        if not improving.any():
             break
-        current, slot, pick = best
-        members[slot] = pick
+        slot = int(np.argmin(np.where(improving, best_values, np.inf)))
+        current = float(best_values[slot])
+        members[slot] = int(picks[slot])
     return members
+
+
+def _best_swaps(
+    scores: NDArray[np.float64],
+    members: list[int],
+    fraction: NDArray[np.float64],
+    span: float,
+    gap: float,
+) -> tuple[NDArray[np.float64], NDArray[np.int64]]:
+    """Each slot's best admissible swap: its score and the pool position swapped in."""
+    n = len(members)
+    # others[slot] are the members kept when that slot is swapped.
+    keep = ~np.eye(n, dtype=bool)
+    f_members = fraction[members]
+    f_others = np.broadcast_to(f_members, (n, n))
+    # Every slot at once: spread of the others with each pool candidate added, and the
+    # candidate's distance from the nearest other member.
+    high = np.max(f_others, axis=1, where=keep, initial=-np.inf)
+    low = np.min(f_others, axis=1, where=keep, initial=np.inf)
+    spread = np.maximum(high[:, None], fraction) - np.minimum(low[:, None], fraction)
+    # The nearest other member: the nearest member, unless that is the slot swapped out,
+    # then the second nearest (the same values as a minimum over the others).
+    distance = np.abs(fraction[:, None] - f_members[None, :])
+    closest = np.argmin(distance, axis=1)
+    ordered = np.sort(distance, axis=1)
+    second = ordered[:, 1] if n > 1 else np.full(fraction.shape, np.inf)
+    nearest = np.where(np.arange(n)[:, None] == closest[None, :], second, ordered[:, 0])
+    admissible = (spread >= span - 1e-12) & (nearest >= gap)
+    admissible[:, members] = False
+    values = np.where(admissible, scores, np.inf)
+    picks = np.argmin(values, axis=1)
+    return values[np.arange(n), picks], picks
 
 
 def _own(
@@ -565,12 +656,26 @@ def _own(
     return per_mixture_relative_u_K(inputs, candidates, indices)
 
 
+def own_scores(
+    inputs: PlanInputs, candidates: CandidateSet, objective: Objective
+) -> NDArray[np.float64]:
+    """Every candidate's own score under the objective, shape (n,) [unitless]: what
+    :func:`choose_tests` ranks its pool by, computed once for many searches (variants).
+
+    Element by element the same values as for any subset; candidates that give no K (no
+    limiting reagent, nothing bound) score inf or NaN and are never eligible as tests.
+    """
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        return _own(inputs, candidates, np.arange(candidates.size, dtype=np.int64), objective)
+
+
 def choose_tests(
     inputs: PlanInputs,
     candidates: CandidateSet,
     exclude: tuple[int, ...] = (),
     objective: Objective = first_order_relative_u_K,
     allowed: NDArray[np.bool_] | None = None,
+    scores: NDArray[np.float64] | None = None,
 ) -> TestsChoice:
     """Choose ``design.tests`` test mixtures minimising the objective under the constraints.
 
@@ -586,6 +691,9 @@ def choose_tests(
         Scores a set of candidate indices, lower is better.
     allowed
         Optional mask of candidates the search may use (shape (n,)); None allows all.
+    scores
+        Every candidate's own score under this objective (:func:`own_scores`), when already
+        computed (many searches on one candidate set share it); None computes what is needed.
 
     Returns
     -------
@@ -627,7 +735,7 @@ def choose_tests(
     indices = np.flatnonzero(eligible)
     if not indices.size:
         return TestsChoice((), float("inf"), 0.0, 0)
-    own = _own(inputs, candidates, indices, objective)
+    own = scores[indices] if scores is not None else _own(inputs, candidates, indices, objective)
     pool = indices[np.argsort(own, kind="stable")[:_POOL]]
     if isinstance(objective, MeanKObjective):
         # The shared molar-absorptivity term favours tests with a small d ln K/d ln x.
@@ -656,36 +764,56 @@ def choose_tests(
         )
     by_fraction = pool[np.argsort(fraction[pool], kind="stable")]
     f_sorted = fraction[by_fraction]
-    f_list = f_sorted.tolist()
-    own_pool = _own(inputs, candidates, by_fraction, objective)
+    own_pool = (
+        scores[by_fraction]
+        if scores is not None
+        else _own(inputs, candidates, by_fraction, objective)
+    )
     best: tuple[float, NDArray[np.int64]] | None = None
     starts: list[tuple[float, list[int]]] = []
+    # The starting sets, each filled from one pair of extreme members, scored together below.
+    filled: list[list[int]] = []
     span_needed = design.bound_fraction_span if count > 1 else 0.0
     gap = 0.5 * span_needed / max(count - 1, 1)
     # Candidate "low end" members: the best few by their own uncertainty among the lower half.
-    low_ends = np.argsort(own_pool, kind="stable")[:24]
+    by_own = np.argsort(own_pool, kind="stable")
+    low_ends = by_own[:24]
     for lo in low_ends:
-        partners = np.flatnonzero(f_sorted >= f_sorted[lo] + span_needed)
+        # Partners by own score (the pool's order restricted, as for ``rest`` below).
+        partners = by_own[(f_sorted >= f_sorted[lo] + span_needed)[by_own]]
         if count > 1 and not partners.size:
             continue
-        his = partners[np.argsort(own_pool[partners], kind="stable")[:4]] if count > 1 else [lo]
+        his = partners[:4] if count > 1 else [lo]
         for hi in his:
             members = [int(lo)] if lo == hi else [int(lo), int(hi)]
-            inside = np.flatnonzero((f_sorted >= f_sorted[lo]) & (f_sorted <= f_sorted[hi]))
-            rest = inside[np.argsort(own_pool[inside], kind="stable")].tolist()
-            for i in rest:
-                if len(members) >= count:
-                    break
-                # Keep members apart in bound fraction so the set tests K across
-                # conditions instead of repeating one condition (plain floats: the same
-                # double arithmetic as numpy's, without an array per comparison).
-                if i not in members and all(abs(f_list[m] - f_list[i]) >= gap for m in members):
-                    members.append(i)
+            # The pool between the pair in bound fraction, best own score first (the pool's
+            # stable order by own score, restricted: the same order as sorting them apart).
+            inside = (f_sorted >= f_sorted[lo]) & (f_sorted <= f_sorted[hi])
+            rest = by_own[inside[by_own]]
+            # Keep members apart in bound fraction so the set tests K across conditions
+            # instead of repeating one condition: take, in order of own score, the first
+            # candidate at least ``gap`` from every member so far, until the set is full.
+            f_rest = f_sorted[rest]
+            free = np.ones(rest.size, dtype=np.bool_)
+            for m in members:
+                free &= (rest != m) & (np.abs(f_sorted[m] - f_rest) >= gap)
+            while len(members) < count and free.any():
+                take = int(np.argmax(free))
+                members.append(int(rest[take]))
+                free &= np.abs(f_rest[take] - f_rest) >= gap
+                free[take] = False
             if len(members) < count:
                 continue
-            chosen = by_fraction[np.array(sorted(members))]
-            value = objective(inputs, candidates, chosen)
-            starts.append((value, sorted(members)))
+            filled.append(sorted(members))
+    if filled:
+        sets = by_fraction[np.array(filled)]
+        values = (
+            objective.many(sets).tolist()
+            if isinstance(objective, (GlobalFitObjective, RobustGlobalFitObjective))
+            else [objective(inputs, candidates, chosen) for chosen in sets]
+        )
+        for value, members, chosen in zip(values, filled, sets, strict=True):
+            starts.append((value, members))
             if best is None or value < best[0]:
                 best = (value, chosen)
     if best is None:
@@ -709,8 +837,9 @@ def choose_tests(
         # Local search from the few best distinct starting sets (multi-start: one start can
         # sit in a local optimum that the span constraint walls in).
         distinct = {tuple(m): v for v, m in starts}
+        seen: dict[tuple[int, ...], tuple[NDArray[np.float64], NDArray[np.int64]]] = {}
         for start_value, start in sorted((v, list(m)) for m, v in distinct.items())[:_STARTS]:
-            members = _swap_search(swaps, start_value, start, f_sorted, span_needed, gap)
+            members = _swap_search(swaps, start_value, start, f_sorted, span_needed, gap, seen)
             candidate = by_fraction[np.array(sorted(members))]
             candidate_value = objective(inputs, candidates, candidate)
             if candidate_value < value:

@@ -9,8 +9,8 @@ run once by :mod:`planner.pipeline`; this package imports neither.
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Sequence
-from dataclasses import dataclass
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
 
 import numpy as np
 from numpy.typing import NDArray
@@ -27,15 +27,16 @@ from planner.design.mixtures import (
     global_fit_objective,
     mean_K_objective,
     mse_objective,
+    own_scores,
     robust_global_fit_objective,
 )
-from planner.design.standards import StandardsChoice, choose_standards
+from planner.design.standards import StandardsChoice, StandardsMemo, choose_standards
 from planner.errors import PlannerError
 from planner.inputs import PlanInputs
 from planner.lab.bench import reading_sd
 from planner.result import Addition, Check, Delivery, Mixture, Role, StockPreparation, Totals
 
-__all__ = ["Design", "design_recipes", "mixture_from_candidate"]
+__all__ = ["Design", "SharedWork", "design_recipes", "mixture_from_candidate"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -76,6 +77,45 @@ class Design:
     objective: float | None
     analysis: str = "all-bound"
     all_bound_error: float | None = None
+
+
+@dataclass(eq=False)
+class SharedWork:
+    """Work that designs on one candidate set share (variants design every section from one).
+
+    The standards chosen for each set of candidates they may be drawn from, and each test
+    objective with every candidate's own score under it, keyed by what they depend on (the
+    analysis, the criterion, the standards and the blank). Bound to the first inputs and
+    candidate set it serves; designs of any other inputs or candidates do not use it.
+    Results are the same with and without it.
+    """
+
+    standards: StandardsMemo = field(default_factory=StandardsMemo)
+    objectives: dict[tuple[object, ...], tuple[Objective, NDArray[np.float64]]] = field(
+        default_factory=dict
+    )
+    bound_to: tuple[PlanInputs, CandidateSet] | None = None
+
+    def serves(self, inputs: PlanInputs, candidates: CandidateSet) -> bool:
+        """True when this work belongs to these very inputs and candidates (binding it to
+        them on first use)."""
+        if self.bound_to is None:
+            self.bound_to = (inputs, candidates)
+        return self.bound_to[0] is inputs and self.bound_to[1] is candidates
+
+    def objective(
+        self,
+        key: tuple[object, ...],
+        inputs: PlanInputs,
+        candidates: CandidateSet,
+        build: Callable[[], Objective],
+    ) -> tuple[Objective, NDArray[np.float64]]:
+        """The objective under ``key`` and every candidate's own score, built once."""
+        found = self.objectives.get(key)
+        if found is None:
+            made = build()
+            found = self.objectives[key] = (made, own_scores(inputs, candidates, made))
+        return found
 
 
 def mixture_from_candidate(
@@ -286,6 +326,7 @@ def design_recipes(
     *,
     candidates: CandidateSet | None = None,
     allowed: NDArray[np.bool_] | None = None,
+    shared: SharedWork | None = None,
 ) -> Design:
     """Design the recipes of a plan: blanks, standards and tests, with their totals.
 
@@ -302,6 +343,9 @@ def design_recipes(
     allowed
         Optional mask of the candidates standards and tests may use (variants draw one per
         section).
+    shared
+        Work shared with other designs of the same inputs and candidates (variants): the
+        same recipes, sooner.
 
     Returns
     -------
@@ -311,10 +355,14 @@ def design_recipes(
     """
     if candidates is None:
         candidates = candidate_set(inputs)
-    standards = choose_standards(inputs, candidates, allowed)
+    if shared is not None and not shared.serves(inputs, candidates):
+        shared = None
+    standards = choose_standards(
+        inputs, candidates, allowed, shared.standards if shared is not None else None
+    )
     used = ((standards.blank,) if standards.blank >= 0 else ()) + standards.standards
     tests, analysis, error, analysis_check = _tests_for_analysis(
-        inputs, candidates, standards, used, objective, allowed
+        inputs, candidates, standards, used, objective, allowed, shared
     )
     mixtures: list[Mixture] = []
     if standards.blank >= 0:
@@ -381,6 +429,7 @@ def _tests_for_analysis(
     used: tuple[int, ...],
     objective: Objective | None,
     allowed: NDArray[np.bool_] | None,
+    shared: SharedWork | None = None,
 ) -> tuple[TestsChoice, str, float | None, Check]:
     """Choose the tests for the analysis the plan will use, and say which and why.
 
@@ -401,13 +450,21 @@ def _tests_for_analysis(
     binds = f"the standards bind at least {100 * floor:.1f} % of {design.limiting}"
     reason = _all_bound_inapplicable(inputs, candidates, standards.standards)
     if design.analysis == "all-bound" and reason is None:
-        epsilon_u = _epsilon_relative_u(inputs, candidates, standards.standards)
-        chosen = objective or (
-            mse_objective(inputs, candidates, standards.standards, standards.blank, epsilon_u)
-            if design.criterion == "mse"
-            else mean_K_objective(epsilon_u)
+
+        def all_bound_objective() -> Objective:
+            epsilon_u = _epsilon_relative_u(inputs, candidates, standards.standards)
+            return (
+                mse_objective(inputs, candidates, standards.standards, standards.blank, epsilon_u)
+                if design.criterion == "mse"
+                else mean_K_objective(epsilon_u)
+            )
+
+        chosen, scores = _objective_and_scores(
+            ("all-bound", standards), inputs, candidates, objective, all_bound_objective, shared
         )
-        tests = choose_tests(inputs, candidates, exclude=used, objective=chosen, allowed=allowed)
+        tests = choose_tests(
+            inputs, candidates, exclude=used, objective=chosen, allowed=allowed, scores=scores
+        )
         error = _all_bound_error(inputs, candidates, standards, tests.tests)
         reason = _all_bound_inapplicable(inputs, candidates, tests.tests)
         if reason is None and error is not None and abs(error) <= tolerance:
@@ -429,12 +486,20 @@ def _tests_for_analysis(
                 if error is not None
                 else f"its K has no value on this shelf ({binds})"
             )
-    fit = objective or (
-        robust_global_fit_objective(inputs, candidates, standards.standards, standards.blank)
-        if design.criterion == "mse"
-        else global_fit_objective(inputs, candidates, standards.standards, standards.blank)
+
+    def fit_objective() -> Objective:
+        return (
+            robust_global_fit_objective(inputs, candidates, standards.standards, standards.blank)
+            if design.criterion == "mse"
+            else global_fit_objective(inputs, candidates, standards.standards, standards.blank)
+        )
+
+    fit, scores = _objective_and_scores(
+        ("global-fit", standards), inputs, candidates, objective, fit_objective, shared
     )
-    tests = choose_tests(inputs, candidates, exclude=used, objective=fit, allowed=allowed)
+    tests = choose_tests(
+        inputs, candidates, exclude=used, objective=fit, allowed=allowed, scores=scores
+    )
     error = _all_bound_error(inputs, candidates, standards, tests.tests)
     if design.analysis == "global-fit":
         return (
@@ -455,6 +520,24 @@ def _tests_for_analysis(
             "K and u(K) the answer key gives",
         ),
     )
+
+
+def _objective_and_scores(
+    key: tuple[object, ...],
+    inputs: PlanInputs,
+    candidates: CandidateSet,
+    given: Objective | None,
+    build: Callable[[], Objective],
+    shared: SharedWork | None,
+) -> tuple[Objective, NDArray[np.float64] | None]:
+    """The objective the caller gave, else the one ``build`` makes: from the shared work with
+    every candidate's own score when there is some (the key names the analysis and the
+    standards, on which the objective depends besides the inputs and candidates)."""
+    if given is not None:
+        return given, None
+    if shared is None:
+        return build(), None
+    return shared.objective(key, inputs, candidates, build)
 
 
 def _all_bound_inapplicable(

@@ -20,7 +20,8 @@ No standard pads a stock with another that adds under
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import math
+from dataclasses import dataclass, field
 
 import numpy as np
 from numpy.typing import NDArray
@@ -28,7 +29,7 @@ from numpy.typing import NDArray
 from planner.design.candidates import CandidateSet
 from planner.inputs import PlanInputs
 
-__all__ = ["StandardsChoice", "absorbance_targets", "choose_standards"]
+__all__ = ["StandardsChoice", "StandardsMemo", "absorbance_targets", "choose_standards"]
 
 #: Weight of the unbound share (1 - f) of the limiting reagent against the standards' mean
 #: miss of their targets (a fraction of the window) in the standards' cost. The all-bound K
@@ -71,6 +72,79 @@ class StandardsChoice:
     achieved_bound_fraction: float
 
 
+@dataclass(frozen=True, slots=True)
+class _Reusable:
+    """A choice with what it rests on (see StandardsMemo)."""
+
+    usable: NDArray[np.bool_]
+    picked: NDArray[np.bool_]
+    examined: frozenset[int]
+    winner: int
+    choice: StandardsChoice
+
+
+@dataclass(eq=False)
+class StandardsMemo:
+    """Standards already chosen on one candidate set, for the next choice on it (variants).
+
+    A choice depends on the mask of allowed candidates only through the candidates the
+    standards may be drawn from (``usable``). With each choice is kept what it rests on, when
+    that can be stated exactly (the best group's score was unique and every score a number):
+    the usable set, the excess recipes (groups) examined, the winning group, and the
+    candidates every examined group picked. A smaller usable set that keeps all those picks
+    gives each group the same picks (a pick is the first smallest key among the group's free
+    candidates, and taking away candidates that were not picked leaves it the first
+    smallest), so each group the same score; when the groups it examines are among those
+    examined before and include the winner, the same group wins: the choice is reused.
+
+    Attributes
+    ----------
+    exact
+        Choices by the packed bits of the usable set.
+    reusable
+        The choices that may be reused for a smaller usable set, with what they rest on.
+    """
+
+    exact: dict[bytes, StandardsChoice] = field(default_factory=dict)
+    reusable: list[_Reusable] = field(default_factory=list)
+
+    def find(self, usable: NDArray[np.bool_], examined: frozenset[int]) -> StandardsChoice | None:
+        """The choice for this usable set and these examined groups (by code), when one made
+        before holds for it."""
+        found = self.exact.get(np.packbits(usable).tobytes())
+        if found is not None:
+            return found
+        for known in self.reusable:
+            if (
+                known.winner in examined
+                and examined <= known.examined
+                and not np.any(usable & ~known.usable)
+                and not np.any(known.picked & ~usable)
+            ):
+                return known.choice
+        return None
+
+
+def _group_codes(
+    groups: NDArray[np.int64],
+) -> tuple[NDArray[np.int64], NDArray[np.int64], bool]:
+    """The distinct rows of ``groups`` in lexicographic order, as one code per row, and
+    each row's position among them (what ``np.unique(groups, axis=0, return_inverse=True)``
+    gives, sooner): option indices are non-negative, so a mixed-radix number per row orders
+    as the rows do. The flag says whether the codes name the rows (the same row has the same
+    code on any subset); when a code would not fit in 62 bits, ``np.unique`` numbers the
+    distinct rows instead and the flag is False."""
+    radix = groups.max(axis=0) + 1 if groups.size else np.ones(groups.shape[1], dtype=np.int64)
+    if float(np.prod(radix.astype(float))) >= 2.0**62:
+        keys, inverse = np.unique(groups, axis=0, return_inverse=True)
+        return np.arange(len(keys), dtype=np.int64), inverse.reshape(-1), False
+    code = np.zeros(groups.shape[0], dtype=np.int64)
+    for j in range(groups.shape[1]):
+        code = code * int(radix[j]) + groups[:, j]
+    codes, inverse = np.unique(code, return_inverse=True)
+    return codes, inverse.reshape(-1), True
+
+
 def absorbance_targets(window: tuple[float, float], count: int) -> NDArray[np.float64]:
     """Evenly spaced absorbance targets inside the window, 5 % of its width in from each end.
 
@@ -94,7 +168,10 @@ def absorbance_targets(window: tuple[float, float], count: int) -> NDArray[np.fl
 
 
 def choose_standards(
-    inputs: PlanInputs, candidates: CandidateSet, allowed: NDArray[np.bool_] | None = None
+    inputs: PlanInputs,
+    candidates: CandidateSet,
+    allowed: NDArray[np.bool_] | None = None,
+    memo: StandardsMemo | None = None,
 ) -> StandardsChoice:
     """Choose the reagent blank and the standards from the candidates.
 
@@ -107,6 +184,10 @@ def choose_standards(
     allowed
         Optional mask of candidates the standards may be drawn from (shape (n,)); the blank
         is always free to match.
+    memo
+        Choices already made on this candidate set (variants design many sections from one;
+        see :class:`StandardsMemo`): a choice that holds for this mask is reused, a new one
+        is added. The result is the same with and without it.
 
     Returns
     -------
@@ -149,15 +230,19 @@ def choose_standards(
     if not np.any(usable):
         return StandardsChoice(-1, (), tuple(targets), False, 0.0)
 
-    keys, inverse = np.unique(groups[usable], axis=0, return_inverse=True)
-    inverse = inverse.reshape(-1)
+    codes, inverse, named = _group_codes(groups[usable])
     indices = np.flatnonzero(usable)
     fraction = evaluation.bound_fraction[indices]
     # Rank excess recipes by the bound fraction they keep at the top of the window.
-    group_floor = np.full(len(keys), np.inf)
+    group_floor = np.full(len(codes), np.inf)
     np.minimum.at(group_floor, inverse, fraction)
-    group_count = np.bincount(inverse, minlength=len(keys))
+    group_count = np.bincount(inverse, minlength=len(codes))
     order = np.lexsort((-group_count, -group_floor))[:_GROUPS_EXAMINED]
+    examined = frozenset(codes[order].tolist())
+    if memo is not None and named:
+        known = memo.find(usable, examined)
+        if known is not None:
+            return known
 
     # Stocks each candidate uses besides the diluent (fewest stocks per mixture).
     reagent_columns = [
@@ -165,8 +250,13 @@ def choose_standards(
     ]
     stock_count = np.count_nonzero(candidates.volumes_mL[:, reagent_columns] > 0, axis=1)
     by_group = np.argsort(inverse, kind="stable")
-    starts = np.searchsorted(inverse[by_group], np.arange(len(keys) + 1))
+    starts = np.searchsorted(inverse[by_group], np.arange(len(codes) + 1))
     best: tuple[tuple[float, ...], list[int]] | None = None
+    winner = -1
+    # Every group's picks, and how many groups share the best score (see StandardsMemo).
+    picked = np.zeros(candidates.size, dtype=np.bool_)
+    best_count = 0
+    comparable = True
     for g in order:
         members = indices[by_group[starts[g] : starts[g + 1]]]
         # Nearest reading first; ties (within 1 % of the window) to fewer stocks, then fewer
@@ -201,19 +291,30 @@ def choose_standards(
             float(np.sum(candidates.deliveries[chosen])),
             float(np.sum(candidates.u_relative_total[chosen, limiting])),
         )
+        picked[chosen] = True
+        comparable = comparable and all(math.isfinite(value) for value in score)
         if best is None or score < best[0]:
             best = (score, chosen)
+            winner = int(codes[g])
+            best_count = 1
+        elif score == best[0]:
+            best_count += 1
     assert best is not None
     chosen = sorted(best[1], key=lambda i: absorbance[i])
     blank = _blank_for(candidates, chosen[0], limiting_columns, has_limiting)
     floor = float(np.min(evaluation.bound_fraction[chosen]))
-    return StandardsChoice(
+    choice = StandardsChoice(
         blank=blank,
         standards=tuple(chosen),
         targets=tuple(float(t) for t in targets),
         tolerance_met=floor >= 1.0 - tolerance,
         achieved_bound_fraction=floor,
     )
+    if memo is not None:
+        memo.exact[np.packbits(usable).tobytes()] = choice
+        if best_count == 1 and comparable and named:
+            memo.reusable.append(_Reusable(usable, picked, examined, winner, choice))
+    return choice
 
 
 def _blank_for(

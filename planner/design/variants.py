@@ -210,7 +210,12 @@ def _same_recipes(candidates: CandidateSet, plan: Plan) -> NDArray[np.bool_]:
         for addition in mixture.additions:
             if addition.stock in column:
                 row[column[addition.stock]] += addition.volume_mL
-        mask |= np.all(np.abs(candidates.volumes_mL - row) <= _SAME_VOLUME_mL, axis=1)
+        # Column by column, among the candidates that still match (the same test as on
+        # every column at once, on fewer rows).
+        rows = np.arange(candidates.size)
+        for j, volume in enumerate(row):
+            rows = rows[np.abs(candidates.volumes_mL[rows, j] - volume) <= _SAME_VOLUME_mL]
+        mask[rows] = True
     return mask
 
 

@@ -40,6 +40,7 @@ from planner.lab.tolerances import (
 __all__ = [
     "MAX_COMBINATIONS",
     "MAX_DELIVERIES",
+    "MAX_GRADED_SUMS",
     "Aliquots",
     "DeliverableVolume",
     "Delivery",
@@ -555,32 +556,150 @@ def deliverable_volumes(
     )
 
 
+#: Most sums that the search for several graded deliveries of one addition tabulates when
+#: the later deliveries' sums have gaps (most shelves' have none: see _graded_parts); a bool
+#: and an int32 per sum, so about 20 MB at most.
+MAX_GRADED_SUMS = 4_000_000
+
+
+@dataclass(frozen=True, slots=True)
+class _Sums:
+    """The sums of some grids: first_pL + unit_pL * v for v in 0..span, every v when
+    ``table`` is None, else those where ``table[v]``."""
+
+    first_pL: int
+    unit_pL: int
+    span: int
+    table: NDArray[np.bool_] | None
+
+
 def _graded_parts(grids: Sequence[_Grid], target_pL: float) -> list[int] | None:
-    """Readings, one per grid, that sum to the target within 1 pL, or None."""
+    """Readings, one per grid, that sum to the target within 1 pL, or None.
+
+    The readings are the first split in order of the readings: the smallest reading of the
+    first grid that the others can complete, then the smallest of the second that the rest
+    can complete, and so on; the last grid's reading is the one nearest to what is left.
+
+    Notes
+    -----
+    The grids after the j-th sum to their firsts plus g_j * v, g_j the greatest common
+    divisor of their steps and v in a set of integers (:func:`_sums_of`): the whole range
+    0..span whenever the grids, by step ascending, each step (in units of g_j) at most one
+    more than the range so far (the sets of consecutive readings then overlap), else a table
+    of at most :data:`MAX_GRADED_SUMS` entries. The j-th grid's smallest reading k then
+    solves step_j * k = D - g_j * v, a linear congruence in k with v bounded
+    (:func:`_first_reading`), in one step for a range and one vector for a table: the work
+    grows with the number of grids, not with the product of their reading counts (which for
+    three or four finely stepped piston pipettes is beyond any search).
+
+    Raises
+    ------
+    InvalidInputError
+        When some later grids' sums have gaps and there are more than
+        :data:`MAX_GRADED_SUMS` of them to tabulate (field ``option``).
+    """
     head = grids[0]
     if len(grids) == 1:
         point = head.nearest_one_pL(target_pL)
         return [point] if abs(point - target_pL) <= _MATCH_PL else None
-    rest = grids[1:]
-    rest_low_pL = sum(grid.first_pL for grid in rest)
-    rest_high_pL = sum(grid.last_pL for grid in rest)
-    candidates_pL = head.values_pL()
-    remainders_pL = target_pL - candidates_pL
-    keep = (remainders_pL >= rest_low_pL - _MATCH_PL) & (remainders_pL <= rest_high_pL + _MATCH_PL)
-    candidates_pL = candidates_pL[keep]
-    if len(rest) == 1:
-        # Two graded deliveries: test every reading of the first at once.
-        remainders_pL = target_pL - candidates_pL.astype(np.float64)
-        points_pL = rest[0].nearest_pL(remainders_pL)
-        hits = np.flatnonzero(np.abs(points_pL - remainders_pL) <= _MATCH_PL)
-        if hits.size == 0:
+    lowest_pL = sum(grid.first_pL for grid in grids)
+    highest_pL = sum(grid.last_pL for grid in grids)
+    if not lowest_pL - _MATCH_PL <= target_pL <= highest_pL + _MATCH_PL:
+        return None
+    # The integer totals that match: within 1 pL of the target (the target, at most a few
+    # litres in picolitres, is exact in floats to far below 1 pL, and so are T - 1, T + 1).
+    totals_pL = range(math.ceil(target_pL - _MATCH_PL), math.floor(target_pL + _MATCH_PL) + 1)
+    parts: list[int] = []
+    remainder_pL = target_pL
+    taken_pL = 0
+    for j, grid in enumerate(grids[:-1]):
+        rest = _sums_of(grids[j + 1 :])
+        found = [
+            k
+            for total_pL in totals_pL
+            if (k := _first_reading(grid, total_pL - taken_pL, rest)) is not None
+        ]
+        if not found:
             return None
-        return [int(candidates_pL[hits[0]]), int(points_pL[hits[0]])]
-    for candidate_pL in candidates_pL.tolist():
-        parts = _graded_parts(rest, target_pL - candidate_pL)
-        if parts is not None:
-            return [candidate_pL, *parts]
-    return None
+        reading_pL = grid.first_pL + grid.step_pL * min(found)
+        parts.append(reading_pL)
+        taken_pL += reading_pL
+        # The same float arithmetic as subtracting each reading in turn from the target.
+        remainder_pL = remainder_pL - reading_pL
+    last = grids[-1].nearest_one_pL(remainder_pL)
+    if abs(last - remainder_pL) > _MATCH_PL:
+        return None
+    return [*parts, last]
+
+
+def _sums_of(grids: Sequence[_Grid]) -> _Sums:
+    """Every sum of one reading from each grid (see _graded_parts)."""
+    unit_pL = math.gcd(*(grid.step_pL for grid in grids))
+    steps = [(grid.step_pL // unit_pL, grid.count) for grid in grids]
+    span = sum(t * (n - 1) for t, n in steps)
+    first_pL = sum(grid.first_pL for grid in grids)
+    # Taken by step ascending, each grid's step must not exceed the range so far plus one.
+    covered = 0
+    for t, n in sorted(steps):
+        if t > covered + 1:
+            break
+        covered += t * (n - 1)
+    else:
+        return _Sums(first_pL, unit_pL, span, None)
+    if span + 1 > MAX_GRADED_SUMS:
+        raise InvalidInputError(
+            f"the sums of {len(grids)} graded deliveries of this option have gaps, and "
+            f"{span + 1} of them would have to be searched, more than the {MAX_GRADED_SUMS} "
+            "the planner checks",
+            field="option",
+            value=len(grids) + 1,
+            hint="state each delivery's volume (the addition's deliveries), or deliver the "
+            "volume with fewer graded devices",
+        )
+    table = np.ones(1, dtype=np.bool_)
+    for t, n in steps:
+        table = _add_grid(table, t, n)
+    return _Sums(first_pL, unit_pL, span, table)
+
+
+def _add_grid(table: NDArray[np.bool_], step: int, count: int) -> NDArray[np.bool_]:
+    """Sums reachable with one more grid of ``count`` readings ``step`` units apart: x is
+    reachable when some x - step * k, 0 <= k < count, was (a windowed OR along each residue
+    of ``step``, by cumulative counts)."""
+    size = table.size + step * (count - 1)
+    rows = -(-size // step)
+    padded = np.zeros(rows * step, dtype=np.int32)
+    padded[: table.size] = table
+    running = np.cumsum(padded.reshape(rows, step), axis=0, dtype=np.int32)
+    window = running.copy()
+    if count < rows:
+        window[count:] -= running[:-count]
+    reached: NDArray[np.bool_] = (window > 0).reshape(-1)[:size]
+    return reached
+
+
+def _first_reading(grid: _Grid, total_pL: int, rest: _Sums) -> int | None:
+    """The smallest k, 0 <= k < grid.count, such that the rest's sums hold
+    total_pL - (grid.first_pL + grid.step_pL * k), or None."""
+    step, unit = grid.step_pL, rest.unit_pL
+    # step * k + unit * v = D, with 0 <= v <= span (and table[v]).
+    d = total_pL - grid.first_pL - rest.first_pL
+    k_low = max(0, -(-(d - unit * rest.span) // step))
+    k_high = min(grid.count - 1, d // step)
+    common = math.gcd(step, unit)
+    if k_low > k_high or d % common:
+        return None
+    # k = k0 (mod period) solves step * k = d (mod unit).
+    period = unit // common
+    k0 = (d // common) * pow(step // common, -1, period) % period if period > 1 else 0
+    first = k_low + (k0 - k_low) % period
+    if first > k_high:
+        return None
+    if rest.table is None:
+        return first
+    ks = np.arange(first, k_high + 1, period, dtype=np.int64)
+    hits = np.flatnonzero(rest.table[(d - step * ks) // unit])
+    return int(ks[hits[0]]) if hits.size else None
 
 
 def _split_pL(
@@ -630,10 +749,17 @@ def is_deliverable(glassware: Sequence[Device], volume_mL: float, option: Sequen
         ``volume_mL`` within 1e-9 mL. False for an empty option, a non-positive volume, or a
         vessel in the option (filling a flask to the mark is not a delivery).
 
+    Raises
+    ------
+    InvalidInputError
+        Field ``option``: several graded deliveries whose sums have gaps and would need more
+        than :data:`MAX_GRADED_SUMS` of them tabulated (see ``_graded_parts``).
+
     Notes
     -----
     Checked from the devices directly, not looked up in :func:`deliverable_volumes`, so that
-    an independent verifier can use it. Several graded deliveries in one option are allowed.
+    an independent verifier can use it. Several graded deliveries in one option are allowed,
+    and decided without trying every combination of their readings.
     """
     if not option or not math.isfinite(volume_mL) or volume_mL <= 0.0:
         return False

@@ -23,7 +23,7 @@ import csv
 import functools
 import io
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -258,19 +258,68 @@ def _bench_context(
 def bench_sheets(plan: Plan, *, date: str, slots: Sequence[BenchSlot]) -> list[tuple[str, str]]:
     """Markdown and HTML pipetting sheets of many benches, the shared parts built once.
 
+    The sheets of one section's numbered benches differ only in the bench number the header
+    prints (``{{ page.bench }}``, the one place the templates use it besides ``is none``):
+    benches 1 and 2 are rendered, and when they differ in exactly that one character, every
+    other bench's sheet is bench 1's with its number put there; otherwise each is rendered.
+
     Returns
     -------
     list of (markdown, html)
         One pair per slot, in order.
     """
     base = _bench_base(plan, date)
-    return [
-        (
+
+    def render(slot: BenchSlot) -> tuple[str, str]:
+        return (
             _render("bench.md", **_bench_context(plan, date, [slot], base)),
             _render("bench.html", **_bench_context(plan, date, [slot], base)),
         )
-        for slot in slots
-    ]
+
+    sheets: dict[int, tuple[str, str]] = {}
+    numbered: dict[tuple[int, int | None], list[int]] = {}
+    for position, slot in enumerate(slots):
+        if slot.bench is None:
+            sheets[position] = render(slot)
+        else:
+            numbered.setdefault((slot.section, slot.of_sections), []).append(position)
+    for (section, of_sections), positions in numbered.items():
+        if len(positions) <= 2:
+            sheets.update((position, render(slots[position])) for position in positions)
+            continue
+        first = render(BenchSlot(section, 1, of_sections))
+        second = render(BenchSlot(section, 2, of_sections))
+        markdown = _numbered_sheet(first[0], second[0])
+        html = _numbered_sheet(first[1], second[1])
+        for position in positions:
+            bench = slots[position].bench
+            assert bench is not None
+            sheets[position] = (
+                (markdown(bench), html(bench))
+                if markdown is not None and html is not None
+                else render(slots[position])
+            )
+    return [sheets[position] for position in range(len(slots))]
+
+
+def _numbered_sheet(first: str, second: str) -> Callable[[int], str] | None:
+    """The sheet of any bench from the sheets of benches 1 and 2, when they differ in one
+    character only, ``1`` in the first and ``2`` in the second; else None."""
+    if len(first) != len(second) or first == second:
+        return None
+    # The first position where they differ (binary search on equal prefixes).
+    low, high = 0, len(first)
+    while low < high:
+        middle = (low + high) // 2
+        if first[: middle + 1] == second[: middle + 1]:
+            low = middle + 1
+        else:
+            high = middle
+    at = low
+    if first[at] != "1" or second[at] != "2" or first[at + 1 :] != second[at + 1 :]:
+        return None
+    head, tail = first[:at], first[at + 1 :]
+    return lambda bench: f"{head}{bench}{tail}"
 
 
 def bench_sheet_md(plan: Plan, *, date: str, slot: BenchSlot) -> str:

@@ -1,8 +1,10 @@
 """Benchmark: 30 section variants of the default scenario (design and sheets), target <= 3 s.
 
 Prints wall and CPU time (user + system, this process) of the design and of design + sheets.
+``--plan FILE`` measures another plan file instead (e.g. recipes/iron-thiocyanate-tubes.toml,
+the same shelf analysed by the all-bound analysis).
 
-Run: python tests/benchmarks/variants.py [--sections N] [--json]
+Run: python tests/benchmarks/variants.py [--sections N] [--plan FILE] [--json]
 """
 
 from __future__ import annotations
@@ -13,6 +15,7 @@ import resource
 import sys
 import time
 from importlib.resources import files
+from pathlib import Path
 
 import numpy as np
 
@@ -26,8 +29,14 @@ def main() -> int:
     parser.add_argument("--sections", type=int, default=30)
     parser.add_argument("--seed", type=int, default=1)
     parser.add_argument("--json", action="store_true")
+    parser.add_argument("--plan", type=Path, default=None, help="plan file (default: embedded)")
     args = parser.parse_args()
-    inputs = parse_plan(files("planner").joinpath("data/default.toml").read_text("utf-8"))
+    text = (
+        args.plan.read_text("utf-8")
+        if args.plan is not None
+        else files("planner").joinpath("data/default.toml").read_text("utf-8")
+    )
+    inputs = parse_plan(text)
     start, start_cpu = time.perf_counter(), time.process_time()
     found = design_variants(inputs, args.sections, np.random.default_rng(args.seed))
     designed_s = time.perf_counter() - start
@@ -53,7 +62,7 @@ def main() -> int:
     if args.json:
         print(json.dumps(figures))
         return 0
-    print(f"variants: {len(found.plans)} sections of the default scenario")
+    print(f"variants: {len(found.plans)} sections of {args.plan or 'the default scenario'}")
     print(f"  design   {designed_s:6.2f} s wall, {designed_cpu_s:6.2f} s CPU")
     print(
         f"  + sheets {total_s:6.2f} s wall, {total_cpu_s:6.2f} s CPU ({len(contents)} files)"

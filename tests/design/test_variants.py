@@ -419,3 +419,23 @@ def test_a_tiny_shelf_allowing_two_distinct_sets_warns_with_four_sections(tmp_pa
         index = " ".join((tmp_path / "v" / name).read_text(encoding="utf-8").split())
         assert "the shelf allows 2 distinct set(s) of 2 test(s)" in index
         assert "WARN section" in index
+
+
+def test_each_benchs_sheet_is_the_one_rendered_for_that_bench_alone(six):
+    # The variants folder numbers the benches of a section from two rendered sheets; every
+    # bench's files must be exactly what rendering that bench alone gives (the sheets'
+    # own functions, one bench each), header and table alike.
+    from planner.report.sheets import BenchSlot, bench_sheet_html, bench_sheet_md
+    from planner.report.variants_index import variants_files
+
+    plans = six.plans[:2]
+    files = variants_files(plans, combined=six.combined, date="2026-12-02", seed=1)
+    benches = plans[0].inputs.session.benches_per_section
+    assert benches >= 3  # so that some sheets are numbered, not rendered
+    for number, plan in enumerate(plans, start=1):
+        for bench in range(1, benches + 1):
+            slot = BenchSlot(section=number, bench=bench, of_sections=2)
+            stem = f"section-{number:02d}/benches/section-{number:02d}-bench-{bench:02d}"
+            assert files[stem + ".md"] == bench_sheet_md(plan, date="2026-12-02", slot=slot)
+            assert files[stem + ".html"] == bench_sheet_html(plan, date="2026-12-02", slots=[slot])
+            assert f"Bench {bench} of {benches}" in files[stem + ".md"]
