@@ -43,6 +43,7 @@ __all__ = [
     "RobustGlobalFitObjective",
     "TestsChoice",
     "choose_tests",
+    "eligible_for_tests",
     "first_order_relative_u_K",
     "global_fit_objective",
     "mean_K_objective",
@@ -669,6 +670,41 @@ def own_scores(
         return _own(inputs, candidates, np.arange(candidates.size, dtype=np.int64), objective)
 
 
+def eligible_for_tests(
+    inputs: PlanInputs,
+    candidates: CandidateSet,
+    *,
+    exclude: Sequence[int] = (),
+    allowed: NDArray[np.bool_] | None = None,
+) -> tuple[NDArray[np.bool_], bool]:
+    """The candidates eligible as test mixtures, shape (n,), and whether the window's top
+    tenth is kept free (:data:`TEST_HEADROOM`).
+
+    Eligible: every reading +/- 2 u(A) inside the window, so a real bench stays inside it;
+    the bound fraction inside ``design.bound_fraction_range``; no padded stock; not in
+    ``exclude`` and inside ``allowed``. Of those, only the ones reading below the top tenth
+    when at least ``design.tests`` of them do.
+    """
+    low, high = inputs.instrument.absorbance_window
+    ev = candidates.evaluation
+    f_low, f_high = inputs.design.bound_fraction_range
+    margin = 2.0 * candidates.u_absorbance
+    eligible: NDArray[np.bool_] = (
+        (ev.absorbance >= low + margin)
+        & (ev.absorbance <= high - margin)
+        & (ev.bound_fraction >= f_low)
+        & (ev.bound_fraction <= f_high)
+        & ~candidates.padded
+    )
+    if exclude:
+        eligible[list(exclude)] = False
+    if allowed is not None:
+        eligible &= allowed
+    below = eligible & (ev.absorbance <= high - np.maximum(margin, TEST_HEADROOM * (high - low)))
+    headroom = bool(np.count_nonzero(below) >= inputs.design.tests)
+    return (below if headroom else eligible), headroom
+
+
 def choose_tests(
     inputs: PlanInputs,
     candidates: CandidateSet,
@@ -709,29 +745,10 @@ def choose_tests(
     it with an exact optimiser.
     """
     design = inputs.design
-    low, high = inputs.instrument.absorbance_window
     ev = candidates.evaluation
-    f_low, f_high = design.bound_fraction_range
     fraction = ev.bound_fraction
-    # Every reading +/- 2 u(A) inside the window, so a real bench stays inside it.
-    margin = 2.0 * candidates.u_absorbance
-    eligible = (
-        (ev.absorbance >= low + margin)
-        & (ev.absorbance <= high - margin)
-        & (fraction >= f_low)
-        & (fraction <= f_high)
-        & ~candidates.padded
-    )
-    if exclude:
-        eligible[list(exclude)] = False
-    if allowed is not None:
-        eligible &= allowed
     count = design.tests
-    # The top tenth of the window kept free where enough mixtures remain below it.
-    below = eligible & (ev.absorbance <= high - np.maximum(margin, TEST_HEADROOM * (high - low)))
-    headroom = bool(np.count_nonzero(below) >= count)
-    if headroom:
-        eligible = below
+    eligible, headroom = eligible_for_tests(inputs, candidates, exclude=exclude, allowed=allowed)
     indices = np.flatnonzero(eligible)
     if not indices.size:
         return TestsChoice((), float("inf"), 0.0, 0)

@@ -11,11 +11,12 @@ Rules
   shared standard curve is normal practice (common practice), so only the tests are varied.
 - **Valid**: every section's plan passes :func:`planner.verify.verify_plan` with no failed
   check.
-- **Equal difficulty**: the sections' design objectives (the predicted relative SD of the
-  mean K, or of the global fit's K when the plan uses the global fit) stay within
+- **Equal difficulty**: the sections' design objectives (what their tests minimise: the
+  predicted root mean squared error of K, bias included, under the MSE criterion) and their
+  u(K)/K (what each answer key prints, :func:`relative_u_K`) each stay within
   ``_DIFFICULTY_BAND`` of each other: the largest is at most 1.2 times the smallest, so any
-  two sections are within +/-20 % of each other. Every section uses the first section's
-  analysis, so the objectives are the same yardstick.
+  two sections are within +/-20 % of each other on both. Every section uses the first
+  section's analysis, so the numbers are the same yardstick.
 
 Construction
 ------------
@@ -43,6 +44,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.design.candidates import CandidateSet, candidate_set
+from planner.design.mixtures import eligible_for_tests
 from planner.errors import InvalidInputError
 from planner.inputs import PlanInputs
 from planner.result import Check, Plan, Role
@@ -174,23 +176,10 @@ def recipe_key(plan: Plan, role: Role = "test") -> RecipeKey:
 
 
 def eligible_tests(inputs: PlanInputs, candidates: CandidateSet) -> NDArray[np.bool_]:
-    """Candidates eligible as test mixtures, shape (n,).
-
-    The same rule as :func:`planner.design.mixtures.choose_tests`: every reading +/- 2 u(A)
-    inside the absorbance window, and the bound fraction inside ``design.bound_fraction_range``
-    (the tests of every section are checked against this mask by the tests).
-    """
-    low, high = inputs.instrument.absorbance_window
-    f_low, f_high = inputs.design.bound_fraction_range
-    ev = candidates.evaluation
-    margin = 2.0 * candidates.u_absorbance
-    eligible: NDArray[np.bool_] = (
-        (ev.absorbance >= low + margin)
-        & (ev.absorbance <= high - margin)
-        & (ev.bound_fraction >= f_low)
-        & (ev.bound_fraction <= f_high)
-    )
-    return eligible
+    """Candidates eligible as test mixtures, shape (n,): the rule of
+    :func:`planner.design.mixtures.choose_tests` (:func:`planner.design.mixtures.
+    eligible_for_tests`), so the count of distinct sets the shelf allows is the designs' own."""
+    return eligible_for_tests(inputs, candidates)[0]
 
 
 def _distinct_rows(volumes_mL: NDArray[np.float64]) -> int:
@@ -300,28 +289,49 @@ def _band_text() -> str:
     return f"+/-{100 * (_DIFFICULTY_BAND - 1):.0f} %"
 
 
-@dataclass
-class _Band:
-    """Smallest and largest accepted objective, and the reference's analysis."""
+def relative_u_K(plan: Plan) -> float | None:
+    """u(K)/K of the analysis the plan is designed for, as its answer key prints it, or None
+    when the plan gives none [unitless]."""
+    if plan.analysis == "global-fit":
+        fit = plan.global_fit
+        return fit.u_K / fit.K if fit is not None and fit.K > 0 else None
+    prediction = plan.prediction
+    return prediction.u_K / prediction.K if prediction is not None and prediction.K > 0 else None
 
-    low: float
-    high: float
-    analysis: str
-    harder: int = 0
+
+class _Band:
+    """Smallest and largest accepted design objective and u(K)/K, and the analysis."""
+
+    def __init__(self, reference: Plan) -> None:
+        assert reference.design_objective is not None
+        self.analysis = reference.analysis
+        self.objective = [reference.design_objective] * 2
+        u = relative_u_K(reference)
+        self.u = [u, u] if u is not None else None
+        self.harder = 0
 
     def admits(self, plan: Plan) -> bool:
-        """True when the plan is valid, uses the same analysis and keeps the band."""
+        """True when the plan is valid, uses the same analysis and keeps both bands: its
+        design objective (what the tests minimise, bias included under the MSE criterion)
+        and its u(K)/K (what its answer key prints) each within the band of the others'."""
         value = plan.design_objective
         if plan.failed or value is None or plan.analysis != self.analysis:
             return False
-        if max(self.high, value) > _DIFFICULTY_BAND * min(self.low, value):
-            self.harder += 1
+        u = relative_u_K(plan)
+        if (self.u is None) != (u is None):
             return False
+        for (low, high), x in ((self.objective, value), (self.u or (0.0, 0.0), u or 0.0)):
+            if x and max(high, x) > _DIFFICULTY_BAND * min(low, x):
+                self.harder += 1
+                return False
         return True
 
-    def take(self, value: float) -> None:
-        self.low = min(self.low, value)
-        self.high = max(self.high, value)
+    def take(self, plan: Plan) -> None:
+        assert plan.design_objective is not None
+        value, u = plan.design_objective, relative_u_K(plan)
+        self.objective = [min(self.objective[0], value), max(self.objective[1], value)]
+        if self.u is not None and u is not None:
+            self.u = [min(self.u[0], u), max(self.u[1], u)]
 
 
 def design_variants(
@@ -385,13 +395,12 @@ def design_variants(
             eligible_recipes=eligible_recipes,
             tests_per_section=tests_per_section,
         )
-    band = _Band(reference.design_objective, reference.design_objective, reference.analysis)
+    band = _Band(reference)
     plans = [reference]
     used = _same_recipes(candidates, reference)
 
     def accept(plan: Plan) -> None:
-        assert plan.design_objective is not None
-        band.take(plan.design_objective)
+        band.take(plan)
         plans.append(plan)
         if progress:
             progress(len(plans), sections)
