@@ -1085,6 +1085,7 @@ def _coverage(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) ->
         problems.append(
             f"the tests span {span:.2f} of bound fraction, less than the "
             f"{design.bound_fraction_span:g} asked: the constancy of K is weakly tested"
+            + _coverage_fix(inputs, float(np.mean(fractions)))
         )
     return _check(
         "bound-fraction-coverage",
@@ -1093,6 +1094,24 @@ def _coverage(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) ->
         f"(span {span:.2f})",
         warn=True,
     )
+
+
+def _coverage_fix(inputs: PlanInputs, mean_fraction: float) -> str:
+    """What widens the tests' bound fractions on this shelf, as a ". Fix: ..." phrase.
+
+    The bound fraction rises with the free excess reagent (K [M] / (1 + K [M]) for a 1:1
+    product), so tests all bound above the middle need less of it in a tube (a more dilute
+    stock, or a device that delivers less), and tests all below it need more.
+    """
+    excess, _ = _excess_partner(inputs)
+    if excess is None:
+        return ""
+    if mean_fraction > 0.5:
+        return (
+            f". Fix: a more dilute stock of {excess} (or a device that delivers less of it) "
+            "reaches lower bound fractions"
+        )
+    return f". Fix: a more concentrated stock of {excess} reaches higher bound fractions"
 
 
 def _ionic_strength(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> Check:

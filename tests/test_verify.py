@@ -26,7 +26,7 @@ from typer.testing import CliRunner
 
 from planner.cli import app
 from planner.pipeline import design_plan
-from planner.planfile import load_plan, plan_from_mapping, plan_to_mapping
+from planner.planfile import load_plan, parse_plan, plan_from_mapping, plan_to_mapping
 from planner.predict.uncertainty import prediction_from, propagate
 from planner.report.plan_json import plan_json
 from planner.result import Check, Plan
@@ -1077,3 +1077,105 @@ def test_a_stated_temperature_share_must_be_van_t_hoff_s(document: Document) -> 
     check = _prediction_check(document)
     assert check.status == "fail"
     assert "K_bias_causes.temperature" in check.detail
+
+
+# An invented shelf: a nickel(II) complex of an invented ligand L- (K = 800 L/mol) in 25 mL
+# flasks, with one strong nickel stock and 5 and 10 mL graduated pipettes. Its smallest
+# nickel delivery (0.5 mL, a tenth of the 5 mL pipette) still leaves the tests about 75 %
+# bound, so they cannot span the bound fractions asked.
+NICKEL_PLAN = """
+title = "Ni-L trial lab (invented)"
+
+[reaction]
+temperature_C = 25
+ionic_strength_M = 0.1
+components = ["Ni2+", "L-"]
+
+[[reaction.species]]
+name = "NiL+"
+formula = { "Ni2+" = 1, "L-" = 1 }
+K = 800
+epsilon = 1200
+
+[instrument]
+wavelength_nm = 600
+path_length_cm = 1.0
+absorbance_window = [0.05, 1.0]
+absorbance_sd = 0.003
+transmittance_sd = 0.002
+cuvette_fill_mL = 3.0
+
+[[stocks]]
+id = "nickel"
+contains_M = { "Ni2+" = 0.20, "NO3-" = 0.40 }
+relative_uncertainty = 0.003
+available_mL = 1000
+
+[[stocks]]
+id = "ligand"
+contains_M = { "L-" = 0.010, "Na+" = 0.010 }
+relative_uncertainty = 0.003
+available_mL = 1000
+
+[[stocks]]
+id = "water"
+contains_M = {}
+diluent = true
+available_mL = 5000
+
+[[glassware]]
+kind = "graduated-pipette"
+volume_mL = 10
+class = "A"
+count = 2
+
+[[glassware]]
+kind = "graduated-pipette"
+volume_mL = 5
+class = "A"
+count = 2
+
+[[glassware]]
+kind = "buret"
+volume_mL = 50
+class = "A"
+count = 1
+
+[design]
+standards = 4
+tests = 4
+limiting = "L-"
+vessel = "flask-25"
+total_volume_mL = 25
+
+[session]
+sections = 1
+benches_per_section = 6
+"""
+DILUTE_NICKEL = """
+[[stocks]]
+id = "nickel-dilute"
+contains_M = { "Ni2+" = 0.020, "NO3-" = 0.040 }
+relative_uncertainty = 0.003
+available_mL = 1000
+"""
+
+
+def test_narrow_coverage_names_the_fix_and_the_fix_works() -> None:
+    # The bound fraction rises with the free excess (K[M]/(1 + K[M]) for a 1:1 product):
+    # tests all above the middle need a more dilute excess stock. Adding one (0.020 mol/L,
+    # a tenth of the strong one) and a third 5 mL pipette for it lets the tests span it.
+    narrow = design_plan(parse_plan(NICKEL_PLAN))
+    coverage = {c.name: c for c in narrow.checks}["bound-fraction-coverage"]
+    assert coverage.status == "warn"
+    assert "Fix: a more dilute stock of Ni2+" in coverage.detail
+    fixed_text = NICKEL_PLAN.replace(
+        '[[stocks]]\nid = "ligand"', DILUTE_NICKEL + '\n[[stocks]]\nid = "ligand"'
+    )
+    fixed_text = fixed_text.replace(
+        'volume_mL = 5\nclass = "A"\ncount = 2', 'volume_mL = 5\nclass = "A"\ncount = 3'
+    )
+    assert fixed_text.count("nickel-dilute") == 1
+    assert 'volume_mL = 5\nclass = "A"\ncount = 3' in fixed_text
+    fixed = design_plan(parse_plan(fixed_text))
+    assert {c.name: c.status for c in fixed.checks}["bound-fraction-coverage"] == "pass"
