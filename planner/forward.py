@@ -75,8 +75,8 @@ def predict_readings(
         log10 beta of each product species, shape (n_species,), instead of the reaction's
         (the global fit varies the measured species' constant).
     species_epsilon
-        Molar absorptivity of each product species, shape (n_species,), instead of the
-        reaction's [L mol⁻¹ cm⁻¹].
+        Molar absorptivity of each product species, shape (n_species,), or one row per
+        mixture, shape (n, n_species), instead of the reaction's [L mol⁻¹ cm⁻¹].
 
     Returns
     -------
@@ -91,7 +91,12 @@ def predict_readings(
     )
     solved = solve_equilibrium(totals, reaction.stoichiometry(), logs)
     absorbers = np.concatenate([solved.species_M, solved.free_M], axis=1)
-    absorptivity = np.concatenate([epsilon, reaction.free_epsilon()])
+    free = reaction.free_epsilon()
+    absorptivity = (
+        np.concatenate([epsilon, np.broadcast_to(free, (epsilon.shape[0], free.size))], axis=1)
+        if epsilon.ndim == 2
+        else np.concatenate([epsilon, free])
+    )
     true_a = np.asarray(
         true_absorbance(absorbers, absorptivity, instrument.path_length_cm), dtype=float
     )

@@ -14,7 +14,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from numpy.typing import NDArray
+from numpy.typing import ArrayLike, NDArray
 
 __all__ = [
     "DEVICE_KINDS",
@@ -82,6 +82,13 @@ class ProductSpecies:
     log_beta_sd
         Standard uncertainty of log10 beta before the class measures it [log10 units]
         (default 0.1); the design's MSE criterion averages over it for the measured species.
+    epsilon_ionic_slope
+        Relative change of the molar absorptivity per mol/L of ionic strength, from the
+        ionic strength the constants refer to [L/mol]; 0 (the default) when not known.
+    plan_epsilon
+        The molar absorptivity as the plan file gives it, at the constants' ionic strength,
+        when ``epsilon`` is its value in the benches' constant medium (:class:`PlanInputs`
+        moves it there); None when the two are the same.
     """
 
     name: str
@@ -90,6 +97,15 @@ class ProductSpecies:
     epsilon: float = 0.0
     enthalpy_kJ_mol: float | None = None
     log_beta_sd: float = 0.1
+    epsilon_ionic_slope: float = 0.0
+    plan_epsilon: float | None = None
+
+    def epsilon_at(self, ionic_strength_M: ArrayLike, reference_M: float) -> NDArray[np.float64]:
+        """The molar absorptivity at other ionic strengths, eps0 (1 + slope (I - I0)), with
+        eps0 the plan file's value at ``reference_M`` [L mol⁻¹ cm⁻¹]."""
+        base = self.epsilon if self.plan_epsilon is None else self.plan_epsilon
+        shift = np.asarray(ionic_strength_M, dtype=float) - reference_M
+        return np.asarray(base * (1.0 + self.epsilon_ionic_slope * shift), dtype=float)
 
     @property
     def K_unit(self) -> str:
@@ -571,6 +587,22 @@ class PlanInputs:
                     bench_ionic_strength_M=bench_medium,
                 ),
             )
+        # A molar absorptivity known to move with the medium is taken at the benches' one
+        # (from the plan file's value each time, so a copy of these inputs moves it once).
+        reaction = self.reaction
+        if any(sp.epsilon_ionic_slope for sp in reaction.species):
+            at = reaction.ionic_strength_M if bench_medium is None else bench_medium
+            species = tuple(
+                sp
+                if not sp.epsilon_ionic_slope
+                else replace(
+                    sp,
+                    epsilon=float(sp.epsilon_at(at, reaction.ionic_strength_M)),
+                    plan_epsilon=sp.epsilon if sp.plan_epsilon is None else sp.plan_epsilon,
+                )
+                for sp in reaction.species
+            )
+            object.__setattr__(self, "reaction", replace(reaction, species=species))
         measured = measured_species_index(self.reaction, self.design)
         formula = self.reaction.species[measured].formula
         partners = [c for c, n in formula.items() if c != self.design.limiting and n > 0]

@@ -76,7 +76,7 @@ KNOWN_KEYS = frozenset(
             "blanks sections benches_per_section replicates margin dead_volume_mL",
             "absorbance_rsd transmittance_sd bench technique buret_reading_sd_mL pipette_rsd",
             "piston_rsd cuvette_rsd blank_offset_sd temperature_sd_C enthalpy_kJ_mol log_beta_sd",
-            "sit_delta_epsilon_kg_mol criterion ionic_medium salt",
+            "sit_delta_epsilon_kg_mol criterion ionic_medium salt epsilon_ionic_slope",
         )
     ).split()
 )

@@ -70,8 +70,8 @@ def true_absorbance(
         Concentration of each absorber in each mixture, shape (n, s), or (s,) for one mixture
         [mol/L].
     epsilon
-        Molar absorptivity of each absorber at the working wavelength, shape (s,)
-        [L mol⁻¹ cm⁻¹].
+        Molar absorptivity of each absorber at the working wavelength, shape (s,), or one
+        row per mixture, the shape of ``species_M`` [L mol⁻¹ cm⁻¹].
     path_length_cm
         Cuvette path length b [cm], positive.
 
@@ -110,6 +110,8 @@ def true_absorbance(
         )
     eps = np.asarray(epsilon, dtype=float)
     c_M = np.asarray(species_M, dtype=float)
+    if c_M.ndim == 2 and eps.shape == c_M.shape:
+        return np.asarray(b_cm * np.sum(c_M * eps, axis=1), dtype=float)
     if c_M.ndim < 1 or eps.shape != c_M.shape[-1:]:
         raise InvalidInputError(
             "there must be one molar absorptivity per absorber (last axis of species_M)",

@@ -82,6 +82,7 @@ def plan_inputs(plan: PlanModel) -> PlanInputs:
     design = _design(plan.design, reaction.components, stocks, devices)
     if design.ionic_medium is not None:
         stocks = _in_medium(stocks, design.ionic_medium)
+        _check_epsilon_in_medium(reaction, design.ionic_medium.ionic_strength_M)
     # After the design: a limiting reagent in no stock gets its own, more telling message.
     _check_supplied(reaction.components, stocks)
     _check_species_use(reaction, stocks, design.limiting)
@@ -99,6 +100,18 @@ def plan_inputs(plan: PlanModel) -> PlanInputs:
     session = _session(plan.session)
     bench = _bench(plan.bench)
     return PlanInputs(plan.title, reaction, instrument, stocks, devices, design, session, bench)
+
+
+def _check_epsilon_in_medium(reaction: Reaction, medium_M: float) -> None:
+    """Every molar absorptivity moved to the constant medium stays positive where it was."""
+    for index, sp in enumerate(reaction.species):
+        if sp.epsilon > 0 and sp.epsilon_at(medium_M, reaction.ionic_strength_M) <= 0:
+            fail(
+                f"reaction.species[{index}].epsilon_ionic_slope",
+                f"takes epsilon to zero or below at the medium's {medium_M:g} mol/L",
+                sp.epsilon_ionic_slope,
+                "give a slope whose straight line holds over that range, or none",
+            )
 
 
 def _format_size(value: float) -> str:
@@ -252,6 +265,7 @@ def _reaction(model: ReactionModel) -> Reaction:
                     None if entry.enthalpy_kJ_mol is None else float(entry.enthalpy_kJ_mol)
                 ),
                 log_beta_sd=float(entry.log_beta_sd),
+                epsilon_ionic_slope=float(entry.epsilon_ionic_slope),
             )
         )
 

@@ -138,6 +138,11 @@ class SpeciesModel(_Model):
     enthalpy_kJ_mol: Annotated[float, Field(ge=-500, le=500)] | None = Field(
         None, description="the standard reaction enthalpy of the formation [kJ/mol], -500 to 500"
     )
+    epsilon_ionic_slope: Annotated[float, Field(ge=-1, le=1)] = Field(
+        0.0,
+        description="the relative change of epsilon per mol/L of ionic strength from "
+        "reaction.ionic_strength_M, -1 to 1 (-0.02: 2 % lower per mol/L); 0 when not known",
+    )
 
 
 class ReactionModel(_Model):

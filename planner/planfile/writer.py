@@ -44,9 +44,15 @@ def plan_to_mapping(inputs: PlanInputs) -> dict[str, Any]:
                     "name": sp.name,
                     "formula": dict(sp.formula),
                     "log_beta": sp.log_beta,
-                    "epsilon": sp.epsilon,
+                    # The plan file's value: the inputs move it to the constant medium.
+                    "epsilon": sp.epsilon if sp.plan_epsilon is None else sp.plan_epsilon,
                     "log_beta_sd": sp.log_beta_sd,
                     **_unless_none("enthalpy_kJ_mol", sp.enthalpy_kJ_mol),
+                    **(
+                        {"epsilon_ionic_slope": sp.epsilon_ionic_slope}
+                        if sp.epsilon_ionic_slope
+                        else {}
+                    ),
                 }
                 for sp in reaction.species
             ],

@@ -101,6 +101,15 @@ def _analyses(
     return k_all_bound, _global_fit_K(inputs, layout, readings)
 
 
+def _epsilon_rows(inputs: PlanInputs, strength: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Each product's molar absorptivity in each mixture's own medium, shape (n, n_species):
+    the plan file's value moved by its ``epsilon_ionic_slope`` (0: unchanged)."""
+    reaction = inputs.reaction
+    return np.stack(
+        [sp.epsilon_at(strength, reaction.ionic_strength_M) for sp in reaction.species], axis=1
+    )
+
+
 def medium_effect(inputs: PlanInputs, mixtures: Sequence[Mixture], layout: Layout) -> MediumEffect:
     """The medium's share of each analysis's bias on the plan's mixtures.
 
@@ -137,7 +146,11 @@ def medium_effect(inputs: PlanInputs, mixtures: Sequence[Mixture], layout: Layou
     try:
         reference = predict_readings(inputs.reaction, inputs.instrument, totals).absorbance
         in_medium = predict_readings(
-            inputs.reaction, inputs.instrument, totals, log_beta=rows
+            inputs.reaction,
+            inputs.instrument,
+            totals,
+            log_beta=rows,
+            species_epsilon=_epsilon_rows(inputs, strength),
         ).absorbance
         bound_ref, fit_ref = _analyses(inputs, layout, reference)
         bound_med, fit_med = _analyses(inputs, layout, in_medium)

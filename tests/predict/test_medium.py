@@ -191,3 +191,71 @@ def test_a_dilution_in_the_medium_weighs_only_the_salt_its_aliquot_lacks() -> No
         global_fit=plan.global_fit,
     )
     assert {c.name: c.status for c in checks}["preparation"] == "pass"
+
+
+def _with_slope(path, slope: float) -> str:
+    """The plan file with an epsilon_ionic_slope on FeSCN2+ (the species with an enthalpy)."""
+    text = path.read_text(encoding="utf-8")
+    marked = text.replace(
+        "enthalpy_kJ_mol = -6", f"epsilon_ionic_slope = {slope}\nenthalpy_kJ_mol = -6", 1
+    )
+    assert marked != text
+    return marked
+
+
+def test_epsilon_moves_to_the_constant_medium_where_its_slope_is_given() -> None:
+    # eps = 4700 at 0.5 mol/L with a slope of -0.05 per mol/L: at the default's 3.0 mol/L,
+    # 4700 (1 - 0.05 x 2.5) = 4112.5 (by hand). The plan file keeps 4700; the global fit
+    # returns the moved value from noise-free readings, and verify agrees.
+    from planner.planfile import plan_from_mapping, plan_to_mapping
+    from planner.report.plan_json import plan_json
+    from planner.resultfile import parse_result
+
+    inputs = parse_plan(_with_slope(DEFAULT, -0.05))
+    assert inputs.measured_species.epsilon == pytest.approx(4112.5, rel=1e-12)
+    written = plan_to_mapping(inputs)["reaction"]["species"][0]
+    assert (written["epsilon"], written["epsilon_ionic_slope"]) == (4700.0, -0.05)
+    assert plan_from_mapping(plan_to_mapping(inputs)) == inputs  # moved once, not twice
+    plan = design_plan(inputs)
+    assert plan.global_fit is not None
+    assert plan.global_fit.epsilon == pytest.approx(4112.5, rel=1e-9)
+    saved = parse_result(plan_json(plan), source="plan.json")
+    checks = verify_result(
+        saved.inputs,
+        saved.mixtures,
+        saved.totals,
+        saved.preparations,
+        saved.prediction,
+        analysis=saved.analysis,
+        global_fit=saved.global_fit,
+    )
+    assert [c.name for c in checks if c.status != "pass"] == []
+
+
+def test_epsilon_in_each_mixture_s_medium_enters_the_medium_s_share() -> None:
+    # Without a constant medium each mixture keeps its own eps: the tubes plan's blank at
+    # I = 1.892 mol/L (hand value above) has 4700 (1 + 0.05 x 1.392) = 5027.1 with a slope
+    # of +0.05. The standards sit in the stronger medium, so their eps, and the all-bound
+    # analysis's eps from them, come out higher, and the K of the tests lower: the medium's
+    # share falls below its value without the slope.
+    from planner.predict.medium import _epsilon_rows, initial_ionic_strength_M
+
+    shares = {}
+    for slope in (0.0, 0.05):
+        inputs = parse_plan(_with_slope(TUBES, slope))
+        plan = design_plan(inputs)
+        medium = propagate(inputs, plan.mixtures).medium
+        assert medium is not None
+        shares[slope] = medium.K_bias_all_bound
+        if slope:
+            rows = _epsilon_rows(inputs, initial_ionic_strength_M(plan.mixtures))
+            blank = next(i for i, m in enumerate(plan.mixtures) if m.role == "blank")
+            assert rows[blank, inputs.measured] == pytest.approx(5027.1, abs=0.2)
+    assert shares[0.05] < shares[0.0]
+
+
+def test_a_slope_that_takes_epsilon_below_zero_in_the_medium_is_refused() -> None:
+    # 1 - 0.5 x (3.0 - 0.5) = -0.25: no absorptivity is negative.
+    with pytest.raises(PlanFileError) as info:
+        parse_plan(_with_slope(DEFAULT, -0.5))
+    assert info.value.field == "reaction.species[0].epsilon_ionic_slope"
