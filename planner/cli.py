@@ -519,18 +519,9 @@ def verify(
 
     def body() -> int:
         from planner.resultfile import load_result
-        from planner.verify import verify_result
+        from planner.verify import verify_saved
 
-        saved = load_result(result_file)
-        checks = verify_result(
-            saved.inputs,
-            saved.mixtures,
-            saved.totals,
-            saved.preparations,
-            saved.prediction,
-            analysis=saved.analysis,
-            global_fit=saved.global_fit,
-        )
+        checks = verify_saved(load_result(result_file))
         if quiet:
             pass
         elif output_format is OutputFormat.json:

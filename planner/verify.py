@@ -19,7 +19,7 @@ import dataclasses
 import math
 from collections import Counter, defaultdict
 from collections.abc import Callable, Mapping, Sequence
-from typing import Any, TypeVar
+from typing import Any, Protocol, TypeVar
 
 import numpy as np
 
@@ -69,6 +69,7 @@ __all__ = [
     "reading_temperature_slope",
     "verify_plan",
     "verify_result",
+    "verify_saved",
 ]
 
 #: Stable names of the checks of :func:`verify_plan`, in the order they are run.
@@ -226,6 +227,38 @@ def verify_result(
     checks.append(_preparation(inputs, mixtures, preparations))
     checks.append(_prediction(inputs, mixtures, state, prediction, analysis, global_fit))
     return tuple(checks)
+
+
+class SavedResult(Protocol):
+    """What a saved plan result holds (:class:`planner.resultfile.SavedPlan` is one)."""
+
+    @property
+    def inputs(self) -> PlanInputs: ...
+    @property
+    def mixtures(self) -> Sequence[Mixture]: ...
+    @property
+    def totals(self) -> Totals: ...
+    @property
+    def preparations(self) -> Sequence[StockPreparation] | None: ...
+    @property
+    def prediction(self) -> Prediction | None: ...
+    @property
+    def analysis(self) -> str: ...
+    @property
+    def global_fit(self) -> GlobalFitPrediction | None: ...
+
+
+def verify_saved(saved: SavedResult) -> tuple[Check, ...]:
+    """:func:`verify_result` of a saved result, every block as it states it."""
+    return verify_result(
+        saved.inputs,
+        saved.mixtures,
+        saved.totals,
+        saved.preparations,
+        saved.prediction,
+        analysis=saved.analysis,
+        global_fit=saved.global_fit,
+    )
 
 
 def _plan_checks(

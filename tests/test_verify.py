@@ -38,6 +38,7 @@ from planner.verify import (
     reading_temperature_slope,
     verify_plan,
     verify_result,
+    verify_saved,
 )
 from planner.verify_prediction import recompute_prediction
 
@@ -1047,16 +1048,7 @@ def test_verifier_imports_neither_design_nor_predict() -> None:
 
 def _prediction_check(document: Document) -> Check:
     saved = parse_result(json.dumps(document, indent=2), source="edited plan.json")
-    checks = verify_result(
-        saved.inputs,
-        saved.mixtures,
-        saved.totals,
-        saved.preparations,
-        saved.prediction,
-        analysis=saved.analysis,
-        global_fit=saved.global_fit,
-    )
-    return {c.name: c for c in checks}["prediction"]
+    return {c.name: c for c in verify_saved(saved)}["prediction"]
 
 
 def test_a_changed_bias_cause_fails_the_prediction_check(document: Document) -> None:

@@ -10,7 +10,7 @@ from planner.errors import PlanFileError
 from planner.pipeline import design_plan
 from planner.planfile import load_plan, parse_plan
 from planner.predict.uncertainty import propagate
-from planner.verify import verify_result
+from planner.verify import verify_saved
 
 from .conftest import DEFAULT, TUBES
 
@@ -181,16 +181,7 @@ def test_a_dilution_in_the_medium_weighs_only_the_salt_its_aliquot_lacks() -> No
     assert prep["iron-dilute"].salt_M == pytest.approx(2.25, rel=1e-9)
     assert prep["iron-strong"].salt_M == pytest.approx(0.1, rel=1e-9)
     # planner verify re-derives the same salt on its own (docs/methods.md section 13).
-    checks = verify_result(
-        plan.inputs,
-        plan.mixtures,
-        plan.totals,
-        plan.preparations,
-        plan.prediction,
-        analysis=plan.analysis,
-        global_fit=plan.global_fit,
-    )
-    assert {c.name: c.status for c in checks}["preparation"] == "pass"
+    assert {c.name: c.status for c in verify_saved(plan)}["preparation"] == "pass"
 
 
 def _with_slope(path, slope: float) -> str:
@@ -220,16 +211,7 @@ def test_epsilon_moves_to_the_constant_medium_where_its_slope_is_given() -> None
     assert plan.global_fit is not None
     assert plan.global_fit.epsilon == pytest.approx(4112.5, rel=1e-9)
     saved = parse_result(plan_json(plan), source="plan.json")
-    checks = verify_result(
-        saved.inputs,
-        saved.mixtures,
-        saved.totals,
-        saved.preparations,
-        saved.prediction,
-        analysis=saved.analysis,
-        global_fit=saved.global_fit,
-    )
-    assert [c.name for c in checks if c.status != "pass"] == []
+    assert [c.name for c in verify_saved(saved) if c.status != "pass"] == []
 
 
 def test_epsilon_in_each_mixture_s_medium_enters_the_medium_s_share() -> None:
