@@ -84,6 +84,24 @@ CAUTIONS: tuple[Caution, ...] = (
         ),
         ions=("Fe3+",),
     ),
+    Caution(
+        key="perchlorate",
+        text=(
+            "Perchlorate: perchlorate salts are strong oxidisers. Keep the solid and its "
+            "solutions away from organic material, reducing agents and heat, never let a "
+            "spill dry on wood, paper or cloth, and collect perchlorate waste apart."
+        ),
+        ions=("ClO4-",),
+        label="oxidiser (perchlorate)",
+    ),
+    Caution(
+        key="medium-salt",
+        text=(
+            "Inert salt: the constant ionic medium takes {salt} by the hundred grams. Read its "
+            "safety data sheet before weighing; a nitrate or perchlorate salt is an oxidiser "
+            "as a solid, so keep it away from combustible material."
+        ),
+    ),
     Caution(key="eyes", text="Wear eye protection and a lab coat at all times."),
     Caution(
         key="waste",
@@ -131,8 +149,15 @@ def cautions_for(inputs: PlanInputs) -> tuple[str, ...]:
         One finished line per caution that applies.
     """
     lines = []
+    medium = inputs.design.ionic_medium
     for caution in CAUTIONS:
         if caution.ions and not any(caution.applies_to(stock) for stock in inputs.stocks):
+            continue
+        if caution.key == "medium-salt":
+            # Only a plan with a constant ionic medium weighs an inert salt.
+            if medium is None:
+                continue
+            lines.append(caution.text.replace("{salt}", medium.salt))
             continue
         lines.append(caution.text.replace("{product}", _product_phrase(inputs)))
     return tuple(lines)

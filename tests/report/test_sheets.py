@@ -396,3 +396,25 @@ def test_bench_sheet_has_a_reading_column_per_replicate():
     html = bench_sheet_html(_with_replicates(make_plan(), 2), date=DATE, slots=[BenchSlot(1, 2)])
     assert html.count('<th class="reading">') == 2
     assert html.count('<td class="reading"></td>') == 2 * len(IDS)
+
+
+def test_a_constant_medium_s_salt_and_a_perchlorate_get_their_cautions():
+    # Perchlorate and nitrate salts are oxidisers as solids (any safety data sheet of them);
+    # a plan weighing one for a constant ionic medium says so, and a perchlorate in a stock
+    # gets its own line and label. Without a medium, neither line.
+    from pathlib import Path
+
+    from planner.planfile import load_plan, parse_plan
+
+    root = Path(__file__).resolve().parents[2]
+    default = load_plan(root / "planner" / "data" / "default.toml")
+    lines = "\n".join(cautions_for(default))
+    assert "Inert salt: the constant ionic medium takes NaNO3" in lines
+    assert "Perchlorate" not in lines
+    tubes = load_plan(root / "recipes" / "iron-thiocyanate-tubes.toml")
+    assert "Inert salt" not in "\n".join(cautions_for(tubes))
+    text = (root / "planner" / "data" / "default.toml").read_text(encoding="utf-8")
+    perchlorate = parse_plan(text.replace('salt = "NaNO3"', 'salt = "NaClO4"'))
+    lines = "\n".join(cautions_for(perchlorate))
+    assert "Perchlorate: perchlorate salts are strong oxidisers" in lines
+    assert "oxidiser (perchlorate)" in label_hazards(perchlorate.stock("acid"))
