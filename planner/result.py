@@ -597,6 +597,16 @@ class Plan:
             return self.global_fit.K
         return float(10.0**self.inputs.measured_species.log_beta)
 
+    @property
+    def expected_K(self) -> tuple[float, float] | None:
+        """(K, u(K)) of the analysis the plan is designed for, as its answer key prints them,
+        or None when that analysis gives none."""
+        if self.analysis == "global-fit":
+            fit = self.global_fit
+            return None if fit is None else (fit.K, fit.u_K)
+        prediction = self.prediction
+        return None if prediction is None else (prediction.K, prediction.u_K)
+
     def by_role(self, role: Role) -> tuple[Mixture, ...]:
         """The mixtures of one role, in plan order."""
         return tuple(m for m in self.mixtures if m.role == role)

@@ -292,13 +292,10 @@ def _band_text() -> str:
 
 
 def relative_u_K(plan: Plan) -> float | None:
-    """u(K)/K of the analysis the plan is designed for, as its answer key prints it, or None
-    when the plan gives none [unitless]."""
-    if plan.analysis == "global-fit":
-        fit = plan.global_fit
-        return fit.u_K / fit.K if fit is not None and fit.K > 0 else None
-    prediction = plan.prediction
-    return prediction.u_K / prediction.K if prediction is not None and prediction.K > 0 else None
+    """u(K)/K of the analysis the plan is designed for, as its answer key prints it
+    (:attr:`planner.result.Plan.expected_K`), or None when the plan gives none [unitless]."""
+    expected = plan.expected_K
+    return expected[1] / expected[0] if expected is not None and expected[0] > 0 else None
 
 
 class _Band:

@@ -58,15 +58,8 @@ def variants_files(
         ).items():
             files[f"{folder}/{name}"] = text
         prediction = plan.prediction
-        # The K and u(K)/K of the analysis the section is designed for, from its prediction
-        # (the numbers its answer key prints).
-        expected = (
-            (plan.global_fit.K, plan.global_fit.u_K)
-            if plan.analysis == "global-fit" and plan.global_fit is not None
-            else (prediction.K, prediction.u_K)
-            if plan.analysis == "all-bound" and prediction is not None
-            else None
-        )
+        # The K and u(K)/K of the analysis the section is designed for (its answer key's).
+        expected = plan.expected_K
         rows.append(
             _SectionRow(
                 number=number,
