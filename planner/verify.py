@@ -1495,7 +1495,7 @@ def _expected_salt(
     )
 
     def needed(of: Stock) -> float:
-        own = neutralised(of.plan_contains_M or of.contains_M)
+        own = neutralised(of.contains_M if of.plan_contains_M is None else of.plan_contains_M)
         strength = 0.5 * sum(c * charge_from_name(ion) ** 2 for ion, c in own.items())
         return max(medium.ionic_strength_M - strength, 0.0) / per_mol
 

@@ -163,10 +163,10 @@ def medium_label(diluent: Stock | None) -> str:
     """
     if diluent is None or not diluent.contains_M:
         return "water"
-    if diluent.medium_salt_M > 0 and diluent.plan_contains_M:
+    if diluent.medium_salt_M > 0 and diluent.plan_contains_M is not None:
         # A constant ionic medium: every stock gets its own share of the inert salt, so the
         # others are made up in the diluent as the plan file lists it, before its salt.
         parts = ", ".join(f"{i} {c:g} mol/L" for i, c in diluent.plan_contains_M.items())
-        return f"{diluent.id} before its salt ({parts})"
+        return f"{diluent.id} before its salt ({parts or 'nothing dissolved'})"
     parts = ", ".join(f"{ion} {conc:g} mol/L" for ion, conc in diluent.contains_M.items())
     return f"{diluent.id} ({parts})"

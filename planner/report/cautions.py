@@ -97,9 +97,10 @@ CAUTIONS: tuple[Caution, ...] = (
     Caution(
         key="medium-salt",
         text=(
-            "Inert salt: the constant ionic medium takes {salt} by the hundred grams. Read its "
-            "safety data sheet before weighing; a nitrate or perchlorate salt is an oxidiser "
-            "as a solid, so keep it away from combustible material."
+            "Inert salt: the constant ionic medium is made with solid {salt} (the masses are on "
+            "the prep-room sheet). Read its safety data sheet before weighing; a nitrate or "
+            "perchlorate salt is an oxidiser as a solid, so keep it away from combustible "
+            "material."
         ),
     ),
     Caution(key="eyes", text="Wear eye protection and a lab coat at all times."),

@@ -241,3 +241,19 @@ def test_a_slope_that_takes_epsilon_below_zero_in_the_medium_is_refused() -> Non
     with pytest.raises(PlanFileError) as info:
         parse_plan(_with_slope(DEFAULT, -0.5))
     assert info.value.field == "reaction.species[0].epsilon_ionic_slope"
+
+
+def test_a_pure_water_diluent_is_salted_for_the_benches_only() -> None:
+    # A diluent the plan file lists with nothing dissolved: the stocks are made up in plain
+    # water (the label says so), and the water for the benches takes 3.0 mol/L of NaNO3, as
+    # planner verify re-derives (an empty composition once read as "no plan file value" and
+    # took the salted one, so verify recomputed no salt and failed the preparation).
+    text = DEFAULT.read_text(encoding="utf-8").replace(
+        'contains_M = { "H+" = 0.5, "NO3-" = 0.5 }\ndiluent = true',
+        "contains_M = {}\ndiluent = true",
+    )
+    plan = design_plan(parse_plan(text))
+    prep = {p.stock: p for p in plan.preparations}
+    assert prep["acid"].salt_M == pytest.approx(3.0, rel=1e-12)
+    assert prep["iron-strong"].medium == "acid before its salt (nothing dissolved)"
+    assert {c.name: c.status for c in verify_saved(plan)}["preparation"] == "pass"

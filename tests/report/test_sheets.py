@@ -409,7 +409,7 @@ def test_a_constant_medium_s_salt_and_a_perchlorate_get_their_cautions():
     root = Path(__file__).resolve().parents[2]
     default = load_plan(root / "planner" / "data" / "default.toml")
     lines = "\n".join(cautions_for(default))
-    assert "Inert salt: the constant ionic medium takes NaNO3" in lines
+    assert "Inert salt: the constant ionic medium is made with solid NaNO3" in lines
     assert "Perchlorate" not in lines
     tubes = load_plan(root / "recipes" / "iron-thiocyanate-tubes.toml")
     assert "Inert salt" not in "\n".join(cautions_for(tubes))
