@@ -37,11 +37,16 @@ and as an independent check.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TypeAlias
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from planner.errors import ConvergenceError, InvalidInputError
+
+# Array types of the annotations below: float64 and int64 arrays of any shape.
+_Floats: TypeAlias = NDArray[np.float64]
+_Ints: TypeAlias = NDArray[np.int64]
 
 __all__ = [
     "Equilibrium",
@@ -91,15 +96,15 @@ class Equilibrium:
         Newton iterations used by the slowest mixture [unitless].
     """
 
-    free_M: NDArray[np.float64]
-    species_M: NDArray[np.float64]
-    relative_residual: NDArray[np.float64]
+    free_M: _Floats
+    species_M: _Floats
+    relative_residual: _Floats
     iterations: int
 
 
 def one_to_one_complex_M(
     metal_total_M: ArrayLike, ligand_total_M: ArrayLike, K: ArrayLike
-) -> NDArray[np.float64]:
+) -> _Floats:
     """Concentration of ML in M + L = ML from the closed-form quadratic root.
 
     Parameters
@@ -113,7 +118,7 @@ def one_to_one_complex_M(
 
     Returns
     -------
-    NDArray[np.float64]
+    _Floats
         [ML] at equilibrium [mol/L], broadcast shape.
 
     Notes
@@ -126,15 +131,15 @@ def one_to_one_complex_M(
     """
     k = np.asarray(K, dtype=float)
     free_metal, free_ligand = _one_to_one_free(metal_total_M, ligand_total_M, k)
-    result: NDArray[np.float64] = k * free_metal * free_ligand
+    result: _Floats = k * free_metal * free_ligand
     return result
 
 
 def _one_to_one_root_parts(
-    metal_total_M: NDArray[np.float64],
-    ligand_total_M: NDArray[np.float64],
-    K: float | NDArray[np.float64],
-) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+    metal_total_M: _Floats,
+    ligand_total_M: _Floats,
+    K: float | _Floats,
+) -> tuple[_Floats, _Floats, _Floats]:
     """The parts of the 1:1 system's cancellation-free root: the total in deficit T_b, the
     excess d = |T_M - T_L| and the denominator (1 + K d) + sqrt((1 + K d)^2 + 4 K T_b) of the
     free amount in deficit, 2 T_b / denominator (see one_to_one_complex_M)."""
@@ -145,11 +150,11 @@ def _one_to_one_root_parts(
 
 
 def _metal_and_ligand(
-    metal_total_M: NDArray[np.float64],
-    ligand_total_M: NDArray[np.float64],
-    of_small: NDArray[np.float64],
-    of_large: NDArray[np.float64],
-) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    metal_total_M: _Floats,
+    ligand_total_M: _Floats,
+    of_small: _Floats,
+    of_large: _Floats,
+) -> tuple[_Floats, _Floats]:
     """(metal's, ligand's) value from the values of the component in deficit and in excess
     (the metal counts as in deficit on a tie)."""
     metal_is_small = metal_total_M <= ligand_total_M
@@ -161,7 +166,7 @@ def _metal_and_ligand(
 
 def _one_to_one_free(
     metal_total_M: ArrayLike, ligand_total_M: ArrayLike, K: ArrayLike
-) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+) -> tuple[_Floats, _Floats]:
     """Free M and free L of the 1:1 system, cancellation-free (see one_to_one_complex_M)."""
     metal, ligand, k = np.broadcast_arrays(
         np.asarray(metal_total_M, dtype=float),
@@ -174,10 +179,10 @@ def _one_to_one_free(
 
 
 def _one_to_one_log_free(
-    metal_total_M: NDArray[np.float64],
-    ligand_total_M: NDArray[np.float64],
-    K: float | NDArray[np.float64],
-) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    metal_total_M: _Floats,
+    ligand_total_M: _Floats,
+    K: float | _Floats,
+) -> tuple[_Floats, _Floats]:
     """Natural logarithms of free M and free L of the 1:1 system (the root of
     :func:`_one_to_one_free`), without its underflow.
 
@@ -194,11 +199,11 @@ def _one_to_one_log_free(
 
 
 def bound_fraction(
-    species_M: NDArray[np.float64],
-    stoichiometry: NDArray[np.float64],
+    species_M: _Floats,
+    stoichiometry: _Floats,
     component_index: int,
-    total_M: NDArray[np.float64],
-) -> NDArray[np.float64]:
+    total_M: _Floats,
+) -> _Floats:
     """Fraction of one component held in product species, weighted by coefficient.
 
     Parameters
@@ -214,7 +219,7 @@ def bound_fraction(
 
     Returns
     -------
-    NDArray[np.float64]
+    _Floats
         sum_i a_ij s_i / T_j, shape (n,) [unitless]; 0 where T_j is 0.
     """
     species = np.asarray(species_M, dtype=float)
@@ -222,13 +227,13 @@ def bound_fraction(
     held = _small_product(coefficients, species.T)
     total = total_M[:, component_index]
     safe = np.where(total > 0, total, 1.0)
-    fraction: NDArray[np.float64] = np.where(total > 0, held / safe, 0.0)
+    fraction: _Floats = np.where(total > 0, held / safe, 0.0)
     return fraction
 
 
 def _check_inputs(
     total_M: ArrayLike, stoichiometry: ArrayLike, log_beta: ArrayLike
-) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+) -> tuple[_Floats, _Floats, _Floats]:
     totals = np.atleast_2d(np.asarray(total_M, dtype=float))
     matrix = np.atleast_2d(np.asarray(stoichiometry, dtype=float))
     logs = np.atleast_1d(np.asarray(log_beta, dtype=float))
@@ -262,7 +267,7 @@ def _check_inputs(
     return totals, matrix, logs
 
 
-def _small_product(left: NDArray[np.float64], right: NDArray[np.float64]) -> NDArray[np.float64]:
+def _small_product(left: _Floats, right: _Floats) -> _Floats:
     """left @ right for a small left matrix (a, b) and a long right (b, n), or a vector.
 
     Written as b scaled vector additions instead of a BLAS call: for a handful of components
@@ -280,9 +285,7 @@ def _small_product(left: NDArray[np.float64], right: NDArray[np.float64]) -> NDA
     return out
 
 
-def _combination(
-    coefficients: NDArray[np.float64], rows: NDArray[np.float64], out: NDArray[np.float64]
-) -> NDArray[np.float64]:
+def _combination(coefficients: _Floats, rows: _Floats, out: _Floats) -> _Floats:
     """sum_k coefficients[k] rows[k] into out, term by term in order; terms with a
     coefficient of 0 are left out and those of 1 are added without multiplying (both exact)."""
     first = float(coefficients[0])
@@ -299,23 +302,19 @@ def _combination(
     return out
 
 
-def _species_log(
-    x: NDArray[np.float64], matrix: NDArray[np.float64], ln_beta: NDArray[np.float64]
-) -> NDArray[np.float64]:
+def _species_log(x: _Floats, matrix: _Floats, ln_beta: _Floats) -> _Floats:
     """ln s_i = ln beta_i + sum_j a_ij x_j, component-major: x (m, n) -> (s, n); ln_beta is
     (s, 1) for constants shared by every mixture or (s, n), one column per mixture."""
-    result: NDArray[np.float64] = _small_product(matrix, x) + ln_beta
+    result: _Floats = _small_product(matrix, x) + ln_beta
     return result
 
 
-def _columns(ln_beta: NDArray[np.float64], which: NDArray[np.int64]) -> NDArray[np.float64]:
+def _columns(ln_beta: _Floats, which: _Ints) -> _Floats:
     """The constants of some mixtures: every column when shared, else the chosen ones."""
     return ln_beta if ln_beta.shape[1] == 1 else ln_beta[:, which]
 
 
-def _cholesky_solve(
-    hessian: list[list[NDArray[np.float64]]], rhs: list[NDArray[np.float64]]
-) -> list[NDArray[np.float64]]:
+def _cholesky_solve(hessian: list[list[_Floats]], rhs: list[_Floats]) -> list[_Floats]:
     """Solve H d = rhs for n small SPD systems at once, component-major.
 
     hessian[j][k] and rhs[j] are length-n vectors. A Cholesky factorisation written over the
@@ -324,7 +323,7 @@ def _cholesky_solve(
     (n, m, m) stack several times over.
     """
     m = len(rhs)
-    lower: list[list[NDArray[np.float64]]] = [[] for _ in range(m)]
+    lower: list[list[_Floats]] = [[] for _ in range(m)]
     for j in range(m):
         for i in range(j + 1):
             total = hessian[j][i].copy()
@@ -336,13 +335,13 @@ def _cholesky_solve(
                 lower[j].append(np.sqrt(np.maximum(total, 1e-12)))
             else:
                 lower[j].append(total / lower[i][i])
-    forward: list[NDArray[np.float64]] = []
+    forward: list[_Floats] = []
     for i in range(m):
         total = rhs[i].copy()
         for k in range(i):
             total -= lower[i][k] * forward[k]
         forward.append(total / lower[i][i])
-    solution: list[NDArray[np.float64]] = [np.empty(0)] * m
+    solution: list[_Floats] = [np.empty(0)] * m
     for i in reversed(range(m)):
         total = forward[i].copy()
         for k in range(i + 1, m):
@@ -351,12 +350,7 @@ def _cholesky_solve(
     return solution
 
 
-def _newton_step(
-    free: NDArray[np.float64],
-    species: NDArray[np.float64],
-    gradient: NDArray[np.float64],
-    matrix: NDArray[np.float64],
-) -> NDArray[np.float64]:
+def _newton_step(free: _Floats, species: _Floats, gradient: _Floats, matrix: _Floats) -> _Floats:
     """Solve H d = -g with H = diag(c) + A^T diag(s) A, component-major (m, n).
 
     When one species dominates, H is rank-deficient to rounding: its determinant cancels
@@ -384,18 +378,18 @@ def _newton_step(
     return np.stack([solved[j] * inv_root[j] for j in range(m)])
 
 
-def _times(vector: NDArray[np.float64], coefficient: float) -> NDArray[np.float64]:
+def _times(vector: _Floats, coefficient: float) -> _Floats:
     """vector * coefficient; the vector itself (not a copy) for a coefficient of 1, which is
     exact."""
     return vector if coefficient == 1.0 else vector * coefficient
 
 
 def _newton_step_two(
-    free: NDArray[np.float64],
-    species: NDArray[np.float64],
-    gradient: NDArray[np.float64],
-    matrix: NDArray[np.float64],
-) -> NDArray[np.float64]:
+    free: _Floats,
+    species: _Floats,
+    gradient: _Floats,
+    matrix: _Floats,
+) -> _Floats:
     """:func:`_newton_step` for two components.
 
     With u_i = a_i2 g1 - a_i1 g2, the adjugate's rows are
@@ -410,8 +404,8 @@ def _newton_step_two(
     det = c1 * c2
     det += c1 * _small_product(matrix[:, 1] * matrix[:, 1], species)
     det += c2 * _small_product(matrix[:, 0] * matrix[:, 0], species)
-    first: NDArray[np.float64] | None = None
-    second: NDArray[np.float64] | None = None
+    first: _Floats | None = None
+    second: _Floats | None = None
     for i in range(len(a1)):
         for k in range(i + 1, len(a1)):
             minor = a1[i] * a2[k] - a1[k] * a2[i]
@@ -441,21 +435,21 @@ def _newton_step_two(
     return step
 
 
-def _column_sum(rows: NDArray[np.float64]) -> NDArray[np.float64]:
+def _column_sum(rows: _Floats) -> _Floats:
     """Sum over the first axis of a (k, n) array, row by row in order (as numpy's sum over
     that axis adds them)."""
-    out: NDArray[np.float64] = rows[0].copy()
+    out: _Floats = rows[0].copy()
     for row in rows[1:]:
         out += row
     return out
 
 
 def _potential(
-    free: NDArray[np.float64],
-    species: NDArray[np.float64],
-    totals: NDArray[np.float64],
-    x: NDArray[np.float64],
-) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    free: _Floats,
+    species: _Floats,
+    totals: _Floats,
+    x: _Floats,
+) -> tuple[_Floats, _Floats]:
     """(sum c + sum s, F = sum c + sum s - T.x) of each mixture, component-major."""
     mass = _column_sum(free)
     mass += _column_sum(species)
@@ -466,13 +460,13 @@ def _potential(
 
 
 def _newton(
-    x: NDArray[np.float64],
-    free: NDArray[np.float64],
-    totals: NDArray[np.float64],
-    matrix: NDArray[np.float64],
-    ln_beta: NDArray[np.float64],
-    beta: NDArray[np.float64] | None,
-) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64], int]:
+    x: _Floats,
+    free: _Floats,
+    totals: _Floats,
+    matrix: _Floats,
+    ln_beta: _Floats,
+    beta: _Floats | None,
+) -> tuple[_Floats, _Floats, _Floats, int]:
     """Damped Newton on the convex potential F, component-major: x, free = exp(x) and
     totals are (m, n); beta as in :func:`_species`.
 
@@ -602,7 +596,7 @@ def _newton(
     return free_out, species_out, gradient_out, iterations
 
 
-def _by_products(matrix: NDArray[np.float64], ln_beta: NDArray[np.float64]) -> bool:
+def _by_products(matrix: _Floats, ln_beta: _Floats) -> bool:
     """Whether species may be formed as beta times products of free concentrations: every
     coefficient a whole number from 0 to _MAX_POWER and every beta below e^_MAX_PRODUCT_LN_BETA,
     so that no product overflows."""
@@ -614,9 +608,7 @@ def _by_products(matrix: NDArray[np.float64], ln_beta: NDArray[np.float64]) -> b
     )
 
 
-def _species_products(
-    free: NDArray[np.float64], matrix: NDArray[np.float64], beta: NDArray[np.float64]
-) -> NDArray[np.float64]:
+def _species_products(free: _Floats, matrix: _Floats, beta: _Floats) -> _Floats:
     """s_i = beta_i prod_j c_j^(a_ij) by repeated multiplication, component-major: free
     (m, n) -> (s, n); beta is (s, 1) or (s, n). For whole-number coefficients this is exp(ln
     beta_i + sum_j a_ij x_j) without the exponentials, to rounding."""
@@ -636,12 +628,12 @@ def _species_products(
 
 
 def _species(
-    x: NDArray[np.float64],
-    free: NDArray[np.float64],
-    matrix: NDArray[np.float64],
-    ln_beta: NDArray[np.float64],
-    beta: NDArray[np.float64] | None,
-) -> NDArray[np.float64]:
+    x: _Floats,
+    free: _Floats,
+    matrix: _Floats,
+    ln_beta: _Floats,
+    beta: _Floats | None,
+) -> _Floats:
     """Species at the log-concentrations x, whose exponentials are free, component-major.
 
     With beta given (:func:`_by_products`), by products of the free concentrations, except in
@@ -662,11 +654,11 @@ def _species(
 
 
 def _start(
-    totals: NDArray[np.float64],
-    matrix: NDArray[np.float64],
-    logs: NDArray[np.float64],
-    beta: NDArray[np.float64] | None,
-) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    totals: _Floats,
+    matrix: _Floats,
+    logs: _Floats,
+    beta: _Floats | None,
+) -> tuple[_Floats, _Floats]:
     """Starting log-concentrations and their exponentials, (m, n) layout; logs is (s, 1) or
     (s, n), beta the constants when species are formed by products (else None).
 
@@ -696,12 +688,12 @@ def _start(
 
 
 def _pcf_start(
-    totals: NDArray[np.float64],
-    matrix: NDArray[np.float64],
-    ln_beta: NDArray[np.float64],
-    x: NDArray[np.float64] | None = None,
+    totals: _Floats,
+    matrix: _Floats,
+    ln_beta: _Floats,
+    x: _Floats | None = None,
     sweeps: int = _PCF_SWEEPS,
-) -> NDArray[np.float64]:
+) -> _Floats:
     """Positive-continued-fraction sweeps (Carrayrou et al. 2002) from x (default c = T)."""
     positive = np.clip(matrix, 0.0, None)
     negative = np.clip(-matrix, 0.0, None)
@@ -718,12 +710,12 @@ def _pcf_start(
 
 
 def _pcf_start_products(
-    totals: NDArray[np.float64],
-    matrix: NDArray[np.float64],
-    logs: NDArray[np.float64],
-    beta: NDArray[np.float64],
+    totals: _Floats,
+    matrix: _Floats,
+    logs: _Floats,
+    beta: _Floats,
     best: int | None,
-) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+) -> tuple[_Floats, _Floats]:
     """:func:`_start` for whole, non-negative coefficients: the same sweeps on the free
     concentrations themselves, c_j <- c_j (T_j / (c_j + sum_i a_ij s_i))^(1 / max_i a_ij),
     with species by products, so that only the final logarithms are transcendental.
@@ -839,12 +831,12 @@ def solve_equilibrium(
 
 
 def _solve_block(
-    totals: NDArray[np.float64],
-    matrix: NDArray[np.float64],
-    logs: NDArray[np.float64],
-    free: NDArray[np.float64],
-    species: NDArray[np.float64],
-    residual: NDArray[np.float64],
+    totals: _Floats,
+    matrix: _Floats,
+    logs: _Floats,
+    free: _Floats,
+    species: _Floats,
+    residual: _Floats,
 ) -> int:
     """:func:`solve_equilibrium` on checked inputs, all mixtures at once, into free, species
     and residual (n, m), (n, s), (n, m); returns the Newton iterations."""
@@ -880,5 +872,5 @@ def _solve_block(
     return iterations
 
 
-def _is_one_to_one(matrix: NDArray[np.float64]) -> bool:
+def _is_one_to_one(matrix: _Floats) -> bool:
     return matrix.shape == (1, 2) and bool(np.all(matrix == 1.0))

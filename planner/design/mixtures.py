@@ -214,10 +214,8 @@ class GlobalFitObjective:
 
     def combine(self, a: NDArray[np.float64], b: NDArray[np.float64]) -> NDArray[np.float64]:
         """u(K)/K from the summed information matrices, shape (..., 2, 2) (vectorised)."""
-        return _sandwich_u(
-            a[..., 0, 0], a[..., 0, 1], a[..., 1, 0], a[..., 1, 1],
-            b[..., 0, 0], b[..., 0, 1], b[..., 1, 1],
-        )  # fmt: skip
+        entries_a = (a[..., 0, 0], a[..., 0, 1], a[..., 1, 0], a[..., 1, 1])
+        return _sandwich_u(entries_a, (b[..., 0, 0], b[..., 0, 1], b[..., 1, 1]))
 
     def own(self, indices: NDArray[np.int64]) -> NDArray[np.float64]:
         """u(K)/K each candidate would give with the standards alone beside it."""
@@ -280,21 +278,18 @@ def _stacked_swaps(
             (b_set[:, i, j][:, None] - b_members[:, :, i, j])[:, :, None] + column
             for (i, j), column in zip(entries, b_columns, strict=True)
         ]
-        return _sandwich_u(a[0], a[1], a[2], a[3], b[0], b[1], b[3])
+        return _sandwich_u(a, (b[0], b[1], b[3]))
 
     return swaps
 
 
 def _sandwich_u(
-    a00: NDArray[np.float64],
-    a01: NDArray[np.float64],
-    a10: NDArray[np.float64],
-    a11: NDArray[np.float64],
-    b00: NDArray[np.float64],
-    b01: NDArray[np.float64],
-    b11: NDArray[np.float64],
+    a: Sequence[NDArray[np.float64]], b: Sequence[NDArray[np.float64]]
 ) -> NDArray[np.float64]:
-    """u(K)/K from the entries of the summed matrices A and B (see GlobalFitObjective)."""
+    """u(K)/K from the entries of the summed matrices A and B (see GlobalFitObjective):
+    ``a`` = (A00, A01, A10, A11), ``b`` = (B00, B01, B11), B being symmetric."""
+    a00, a01, a10, a11 = a
+    b00, b01, b11 = b
     det = a00 * a11 - a01 * a10
     with np.errstate(divide="ignore", invalid="ignore"):
         # The (log10 K, log10 K) entry of A^-1 B A^-1, with A^-1 = adj(A)/det(A).

@@ -72,17 +72,6 @@ class StandardsChoice:
     achieved_bound_fraction: float
 
 
-@dataclass(frozen=True, slots=True)
-class _Reusable:
-    """A choice with what it rests on (see StandardsMemo)."""
-
-    usable: NDArray[np.bool_]
-    picked: NDArray[np.bool_]
-    examined: frozenset[int]
-    winner: int
-    choice: StandardsChoice
-
-
 @dataclass(eq=False)
 class StandardsMemo:
     """Standards already chosen on one candidate set, for the next choice on it (variants).
@@ -123,6 +112,17 @@ class StandardsMemo:
             ):
                 return known.choice
         return None
+
+
+@dataclass(frozen=True, slots=True)
+class _Reusable:
+    """A choice with what it rests on (see StandardsMemo)."""
+
+    usable: NDArray[np.bool_]
+    picked: NDArray[np.bool_]
+    examined: frozenset[int]
+    winner: int
+    choice: StandardsChoice
 
 
 def _group_codes(

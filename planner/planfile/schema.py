@@ -8,7 +8,7 @@ valid; :func:`planner.fileio.problems.explain` quotes it as the fix of a message
 
 from __future__ import annotations
 
-from typing import Annotated, Literal
+from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
@@ -103,6 +103,11 @@ _Count100 = Annotated[int, Field(ge=1, le=100)]
 _Count1000 = Annotated[int, Field(ge=1, le=1000)]
 
 
+def _default(value: object, description: str) -> Any:
+    """A field with this default and the description its error messages quote."""
+    return Field(value, description=description)
+
+
 class _Model(BaseModel):
     """Base of the plan-file models: strict types, no unknown keys, immutable, finite numbers."""
 
@@ -190,15 +195,11 @@ class InstrumentModel(_Model):
         max_length=2,
         description="the [low, high] linear working range [absorbance units], 0 <= low < high <= 4",
     )
-    absorbance_sd: _Fraction = Field(
-        0.003, description="the standard deviation of one reading, > 0 and < 1"
-    )
+    absorbance_sd: _Fraction = _default(0.003, "the standard deviation of one reading, > 0 and < 1")
     stray_light: _Tenth = Field(
         0.0, description="the stray-light fraction of the incident power, 0 <= s < 0.1"
     )
-    cuvette_fill_mL: _Positive = Field(
-        3.0, description="the volume that fills the cuvette [mL], > 0"
-    )
+    cuvette_fill_mL: _Positive = _default(3.0, "the volume that fills the cuvette [mL], > 0")
     absorbance_rsd: _Rsd = Field(
         0.0,
         description="the reading's standard deviation proportional to A, 0 <= r < 0.5 "
@@ -350,18 +351,10 @@ class DesignModel(_Model):
 class SessionModel(_Model):
     """The ``[session]`` table: how many sets the prep room supplies."""
 
-    sections: _Count1000 = Field(
-        1, description="the number of sections running the plan, 1 to 1000"
-    )
-    benches_per_section: _Count1000 = Field(
-        1, description="the number of benches in a section, 1 to 1000"
-    )
-    replicates: _Count100 = Field(
-        1, description="the number of full mixture sets per bench, 1 to 100"
-    )
-    margin: _Unit = Field(
-        0.15, description="the extra stock fraction beyond the need, 0 to 1 (0.15 = 15 %)"
-    )
+    sections: _Count1000 = _default(1, "the number of sections running the plan, 1 to 1000")
+    benches_per_section: _Count1000 = _default(1, "the number of benches in a section, 1 to 1000")
+    replicates: _Count100 = _default(1, "the number of full mixture sets per bench, 1 to 100")
+    margin: _Unit = _default(0.15, "the extra stock fraction beyond the need, 0 to 1 (0.15 = 15 %)")
     dead_volume_mL: Annotated[float, Field(ge=0, le=1000)] = Field(
         5.0, description="the unusable volume per stock and dispensing device [mL], 0 to 1000"
     )
@@ -377,12 +370,8 @@ class BenchModel(_Model):
         "practised",
         description='one of "calibrated", "practised", "novice"',
     )
-    buret_reading_sd_mL: _Unit | None = Field(
-        None, description="the SD of one buret reading [mL], 0 to 1"
-    )
-    pipette_rsd: _Rsd | None = Field(
-        None, description="the relative SD of a pipette's delivery, 0 to 0.5"
-    )
+    buret_reading_sd_mL: _Unit | None = _default(None, "the SD of one buret reading [mL], 0 to 1")
+    pipette_rsd: _Rsd | None = _default(None, "the relative SD of a pipette's delivery, 0 to 0.5")
     piston_rsd: _Rsd | None = Field(
         None, description="the relative SD of a piston pipette's delivery, 0 to 0.5"
     )
