@@ -939,7 +939,21 @@ for _command in app.registered_commands:
         _command.help = _flowed(_command.callback.__doc__)
 
 
+# Thread pools of the BLAS and OpenMP libraries numpy may load. The planner's products are
+# tiny (2x2 to 10x10 per mixture), so a threaded BLAS only costs: its threads start and spin
+# while numpy loads, 0.1 s of CPU per run on a 2-core machine (measured with
+# tests/benchmarks/plan_cli.py), and with the machine loaded it slowed the solver eightfold.
+_ONE_THREAD = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+def _one_blas_thread() -> None:
+    """Ask for one BLAS thread unless the user chose a number (before numpy is imported)."""
+    for variable in _ONE_THREAD:
+        os.environ.setdefault(variable, "1")
+
+
 def main() -> None:
     """Console-script entry point."""
+    _one_blas_thread()
     _safe_streams()  # also for what is printed before a command runs (usage errors, help)
     app()

@@ -29,6 +29,7 @@ from planner.chem.assumption import (
     PRACTICAL_FREE_EXCESS_M,
     checked_round_up,
 )
+from planner.chem.constants import medium_matters
 from planner.chem.equilibrium import bound_fraction, solve_equilibrium
 from planner.chem.mixing import ion_table, ionic_strength_after_reaction_M, medium_label, mix_M
 from planner.chem.species import charge_from_name, molar_mass_g_per_mol, neutralised
@@ -1176,6 +1177,14 @@ def _ionic_strength(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _Sta
             f"ionic strength {values.min():.3g}-{values.max():.3g} mol/L across the mixtures "
             f"(spread {100 * spread:.0f} %; the constants refer to "
             f"{inputs.reaction.ionic_strength_M:g} mol/L)"
+        )
+    if spread > allowed and not medium_matters(inputs.reaction, values):
+        return Check(
+            "ionic-strength",
+            "pass",
+            detail + ": no constant or molar absorptivity of this reaction moves with ionic "
+            "strength across these mixtures (every product's delta z^2 is 0, and no SIT "
+            "coefficient or epsilon_ionic_slope applies), so the spread moves no K",
         )
     if spread > allowed:
         return Check(

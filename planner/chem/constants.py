@@ -21,7 +21,7 @@ from planner.chem.species import charge_from_name
 from planner.chem.thermodynamics import log_beta_at_temperature
 from planner.inputs import PlanInputs, Reaction
 
-__all__ = ["bench_K", "bench_log_beta", "bench_medium_M", "medium_log_beta"]
+__all__ = ["bench_K", "bench_log_beta", "bench_medium_M", "medium_log_beta", "medium_matters"]
 
 
 def _delta_z2(reaction: Reaction) -> list[int]:
@@ -93,3 +93,12 @@ def medium_log_beta(reaction: Reaction, ionic_strength_M: ArrayLike) -> NDArray[
         ionic_strength_M,
         reaction.sit_delta_epsilon_kg_mol,
     )
+
+
+def medium_matters(reaction: Reaction, ionic_strength_M: ArrayLike) -> bool:
+    """Whether any product's constant or molar absorptivity at these ionic strengths differs
+    from its value in the benches' medium (:func:`planner.chem.constants.bench_medium_M`)."""
+    if any(sp.epsilon_ionic_slope for sp in reaction.species):
+        return True
+    rows = medium_log_beta(reaction, ionic_strength_M)
+    return not np.array_equal(rows, np.broadcast_to(bench_log_beta(reaction), rows.shape))

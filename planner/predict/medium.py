@@ -24,7 +24,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.analysis import Layout, all_bound_mean_K, global_fit_jacobian
-from planner.chem.constants import bench_medium_M, medium_log_beta
+from planner.chem.constants import bench_medium_M, medium_log_beta, medium_matters
 from planner.chem.species import charge_from_name, ionic_strength_M
 from planner.errors import PlannerError
 from planner.forward import predict_readings
@@ -135,7 +135,10 @@ def medium_effect(inputs: PlanInputs, mixtures: Sequence[Mixture], layout: Layou
     medium = bench_medium_M(inputs.reaction)
     strength = np.where(np.isclose(strength, medium, rtol=1e-9, atol=0.0), medium, strength)
     rows = medium_log_beta(inputs.reaction, strength)
-    if np.all(strength == medium):
+    # Nor where no constant and no molar absorptivity depends on the ionic strength (every
+    # product's delta z^2 is 0, with no SIT coefficient and no epsilon_ionic_slope): the
+    # medium then moves no K, exactly, and a share from two fits' round-off would mislead.
+    if np.all(strength == medium) or not medium_matters(inputs.reaction, strength):
         return MediumEffect(
             ionic_strength_M=tuple(float(i) for i in strength),
             K_in_medium=tuple(float(10.0 ** r[inputs.measured]) for r in rows),

@@ -257,3 +257,70 @@ def test_a_pure_water_diluent_is_salted_for_the_benches_only() -> None:
     assert prep["acid"].salt_M == pytest.approx(3.0, rel=1e-12)
     assert prep["iron-strong"].medium == "acid before its salt (nothing dissolved)"
     assert {c.name: c.status for c in verify_saved(plan)}["preparation"] == "pass"
+
+
+def test_balanced_charges_move_no_K_and_the_spread_passes() -> None:
+    # An invented shelf: Ni2+ with a neutral ligand Q into NiQ2+, stocks of unequal salt.
+    # By hand, delta z^2 = 1 * 2^2 + 1 * 0^2 - 2^2 = 0, so Davies (and SIT with no
+    # coefficient) moves no constant: the medium's share of the bias is exactly 0 (it had
+    # printed +4.4e-14 %, the round-off of two fits), and a wide spread of ionic strength
+    # passes the check, saying why, where a K that moves with it would warn.
+    text = """
+title = "Nickel(II) and a neutral ligand (invented)"
+[reaction]
+ionic_strength_M = 0.3
+components = ["Ni2+", "Q"]
+[[reaction.species]]
+name = "NiQ2+"
+formula = { "Ni2+" = 1, "Q" = 1 }
+K = 450
+epsilon = 85
+[instrument]
+wavelength_nm = 590
+absorbance_window = [0.1, 1.5]
+absorbance_sd = 0.002
+[[stocks]]
+id = "nickel"
+contains_M = { "Ni2+" = 0.20, "NO3-" = 0.40 }
+[[stocks]]
+id = "ligand"
+contains_M = { "Q" = 1.0 }
+[[stocks]]
+id = "water"
+contains_M = {}
+diluent = true
+[[glassware]]
+kind = "buret"
+volume_mL = 50
+count = 2
+[[glassware]]
+kind = "volumetric-flask"
+volume_mL = 50
+count = 12
+[design]
+standards = 4
+tests = 5
+limiting = "Ni2+"
+vessel = "flask-50"
+"""
+    inputs = parse_plan(text)
+    plan = design_plan(inputs)
+    result = propagate(inputs, plan.mixtures)
+    assert result.medium is not None
+    strengths = [
+        i
+        for i, m in zip(result.medium.ionic_strength_M, plan.mixtures, strict=True)
+        if m.role != "blank"
+    ]
+    assert (max(strengths) - min(strengths)) / max(strengths) > 0.5  # a wide spread
+    assert all(k == pytest.approx(450.0, rel=1e-12) for k in result.medium.K_in_medium)
+    assert result.medium.K_bias_all_bound == 0.0
+    assert result.bias_causes is not None
+    assert result.bias_causes.ionic_medium == 0.0
+    check = next(c for c in plan.checks if c.name == "ionic-strength")
+    assert check.status == "pass"
+    assert "moves no K" in check.detail
+    # The same shelf with a charged ligand (delta z^2 = 1 * 4 + 1 * 1 - 1 = 4) warns.
+    charged = text.replace('"Q"', '"Q-"').replace("NiQ2+", "NiQ+")
+    check = next(c for c in design_plan(parse_plan(charged)).checks if c.name == "ionic-strength")
+    assert check.status == "warn"
