@@ -387,6 +387,7 @@ def _today() -> str:
         "Examples:\n\n"
         "  planner plan                      plan the embedded default scenario\n\n"
         "  planner plan recipes/iron-thiocyanate-flasks.toml --out sheets/\n\n"
+        "  planner plan my-plan.toml --out sheets/ --no-plots   sheets only, no figures\n\n"
         "  planner plan my-plan.toml --format json > plan.json"
     )
 )
@@ -415,6 +416,14 @@ def plan(
             "--pdf", help="Also print the sheets to PDF with headless Chromium (needs --out)."
         ),
     ] = False,
+    plots: Annotated[
+        bool,
+        typer.Option(
+            "--plots/--no-plots",
+            help="Draw the answer key's figures into plots/ (with --out); --no-plots writes "
+            "the sheets without them, about a second sooner.",
+        ),
+    ] = True,
     quiet: _QuietOption = False,
 ) -> None:
     """Design the standards and test mixtures from what is on the shelf, verified.
@@ -443,7 +452,7 @@ def plan(
 
             sheet_date = date or _today()
             with _private_plot_caches():
-                files = plan_files(result, date=sheet_date, plots=True)
+                files = plan_files(result, date=sheet_date, plots=plots)
             if pdf:
                 from planner.report.browser import pdfs_for
 

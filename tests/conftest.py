@@ -1,8 +1,8 @@
 """Hypothesis settings profiles for the whole test suite.
 
 ``ci`` (the default) is the bounded profile CI runs: 100 examples per property unless a test
-asks for its own number, and 15 % of its nominal count for each fuzz property of
-tests/test_fuzz.py, so that the whole suite stays near 4 minutes of CPU on a 2-core
+asks for its own number, and 10 % of its nominal count for each fuzz property of
+tests/test_fuzz.py, so that the whole suite stays within 4 minutes of CPU on a 2-core
 machine. ``long`` gives every property twenty times as many examples as its nominal count,
 for a deeper search before a release::
 

@@ -81,7 +81,7 @@ def _planned(tmp_path):
     plan_file = tmp_path / "micro.toml"
     plan_file.write_text(MICRO_PLAN, encoding="utf-8")
     out = tmp_path / "out"
-    result = CliRunner().invoke(app, ["plan", str(plan_file), "--out", str(out)])
+    result = CliRunner().invoke(app, ["plan", str(plan_file), "--out", str(out), "--no-plots"])
     return result, out / "plan.json"
 
 

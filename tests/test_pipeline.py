@@ -84,7 +84,7 @@ def test_three_blanks_are_all_in_the_prediction(tmp_path):
 
 def test_answer_key_reading_ranges_are_1_96_u_of_plan_json(tmp_path):
     out = tmp_path / "out"
-    _run("plan", "--out", str(out), "--date", "2026-12-03")
+    _run("plan", "--out", str(out), "--date", "2026-12-03", "--no-plots")
     plan = json.loads((out / "plan.json").read_text(encoding="utf-8"))
     key = (out / "answer-key.md").read_text(encoding="utf-8")
     for mixture in plan["mixtures"]:

@@ -37,10 +37,9 @@ import pytest
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.pipeline import design_plan
-from planner.planfile import load_plan
 from planner.report.plan_json import plan_json
 from planner.result import Plan
+from tests.plans import plan_of
 
 ROOT = Path(__file__).resolve().parents[1]
 SCENARIOS = sorted((ROOT / "tests" / "scenarios").glob("*.toml"))
@@ -78,17 +77,6 @@ POSITIVE = {
 
 def _must_be_positive(name: str) -> bool:
     return name in POSITIVE or name.startswith("u_")
-
-
-_PLANS: dict[str, Plan] = {}
-
-
-def plan_of(path: Path) -> Plan:
-    """Each plan file planned once per session (the registry every rule test reads)."""
-    key = str(path)
-    if key not in _PLANS:
-        _PLANS[key] = design_plan(load_plan(path))
-    return _PLANS[key]
 
 
 def _name(path: Path) -> str:
@@ -398,7 +386,14 @@ def test_the_command_line_writes_a_meaningful_plan_json_and_answer_key(tmp_path)
     # One CLI run, on the scenario whose all-bound numbers would mean nothing.
     out = tmp_path / "out"
     result = CliRunner().invoke(
-        app, ["plan", str(ROOT / "tests" / "scenarios" / "small-K.toml"), "--out", str(out)]
+        app,
+        [
+            "plan",
+            str(ROOT / "tests" / "scenarios" / "small-K.toml"),
+            "--out",
+            str(out),
+            "--no-plots",
+        ],
     )
     assert result.exit_code == 0, result.output
     document = json.loads((out / "plan.json").read_text("utf-8"))

@@ -26,7 +26,7 @@ from typer.testing import CliRunner
 
 from planner.cli import app
 from planner.pipeline import design_plan
-from planner.planfile import load_plan, parse_plan, plan_from_mapping, plan_to_mapping
+from planner.planfile import parse_plan, plan_from_mapping, plan_to_mapping
 from planner.predict.uncertainty import prediction_from, propagate
 from planner.report.plan_json import plan_json
 from planner.result import Check, Plan
@@ -41,6 +41,7 @@ from planner.verify import (
     verify_saved,
 )
 from planner.verify_prediction import recompute_prediction
+from tests.plans import plan_of
 
 Document = dict[str, Any]
 
@@ -59,7 +60,7 @@ DEFAULT_K = 98.0
 @pytest.fixture(scope="module")
 def default_plan() -> Plan:
     """The plan under test (module docstring)."""
-    return design_plan(load_plan(ROOT / "recipes" / "iron-thiocyanate-tubes.toml"))
+    return plan_of(ROOT / "recipes" / "iron-thiocyanate-tubes.toml")
 
 
 @pytest.fixture
@@ -515,7 +516,7 @@ def test_untouched_result_passes_every_result_check(document: Document, tmp_path
 
 @pytest.mark.parametrize("recipe", [*sorted(p.name for p in (ROOT / "recipes").glob("*.toml"))])
 def test_every_recipe_verifies_untouched(recipe: str, tmp_path: Path) -> None:
-    plan = design_plan(load_plan(ROOT / "recipes" / recipe))
+    plan = plan_of(ROOT / "recipes" / recipe)
     document: Document = json.loads(plan_json(plan))
     code, checks = verify_command(document, tmp_path)
     # Exactly the plan's own verdict: every recipe passes.
@@ -545,7 +546,7 @@ def test_a_changed_global_fit_prediction_fails(
 
 
 def test_a_global_fit_plan_stating_meaningless_all_bound_numbers_fails(tmp_path: Path) -> None:
-    plan = design_plan(load_plan(ROOT / "recipes" / "iron-thiocyanate-ligand-excess.toml"))
+    plan = plan_of(ROOT / "recipes" / "iron-thiocyanate-ligand-excess.toml")
     document: Document = json.loads(plan_json(plan))
     code, checks = verify_command(document, tmp_path)
     assert code == 0
@@ -612,7 +613,7 @@ def copper_document() -> Document:
     """The copper recipe's plan.json: ligand-dilute is listed without a solid and is the
     ligand stock diluted with the medium, so it has a dilution recipe."""
     parsed: Document = json.loads(
-        plan_json(design_plan(load_plan(ROOT / "recipes" / "copper-ligand-excess.toml")))
+        plan_json(plan_of(ROOT / "recipes" / "copper-ligand-excess.toml"))
     )
     return parsed
 

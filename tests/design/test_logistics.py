@@ -21,7 +21,6 @@ Outside references:
 from __future__ import annotations
 
 import dataclasses
-import functools
 import math
 import tomllib
 from pathlib import Path
@@ -30,9 +29,9 @@ import periodictable
 import pytest
 
 from planner.design.logistics import preparations, stock_totals
-from planner.pipeline import design_plan
-from planner.planfile import load_plan, plan_from_mapping
+from planner.planfile import plan_from_mapping
 from planner.result import Addition, Mixture, Totals
+from tests.plans import designed
 
 ROOT = Path(__file__).resolve().parents[2]
 DEFAULT = ROOT / "planner" / "data" / "default.toml"
@@ -96,10 +95,8 @@ PLANS = [
 ]
 
 
-@functools.cache
 def _designed(path: Path):
-    inputs = load_plan(path)
-    return inputs, design_plan(inputs)
+    return designed(path)
 
 
 @pytest.fixture(scope="module", params=PLANS, ids=lambda p: p.stem)

@@ -13,6 +13,7 @@ from planner.chem.equilibrium import one_to_one_complex_M
 from planner.lab.deliveries import is_deliverable
 from planner.pipeline import design_plan
 from planner.planfile import load_plan, plan_from_mapping, plan_to_mapping
+from tests.plans import designed, plan_of
 
 ROOT = Path(__file__).resolve().parents[2]
 PLANS = [ROOT / "planner" / "data" / "default.toml", *sorted((ROOT / "recipes").glob("*.toml"))]
@@ -20,8 +21,7 @@ PLANS = [ROOT / "planner" / "data" / "default.toml", *sorted((ROOT / "recipes").
 
 @pytest.fixture(scope="module", params=PLANS, ids=lambda p: p.stem)
 def planned(request):
-    inputs = load_plan(request.param)
-    return inputs, design_plan(inputs)
+    return designed(request.param)
 
 
 def test_recipes_exist():
@@ -106,8 +106,7 @@ def test_default_standard_state_matches_closed_form():
     # by SIT with d_eps = 0: 98 * 10^-0.422214, the hand value of tests/predict/test_medium.py)
     # ignoring the minor 1:2 species must agree with the planned FeSCN2+ to within the share
     # K2[SCN-] of the 1:2 species (below 0.1 %).
-    inputs = load_plan(PLANS[0])
-    plan = design_plan(inputs)
+    plan = plan_of(PLANS[0])
     standard = plan.by_role("standard")[0]
     fe = standard.initial_M["Fe3+"]
     scn = standard.initial_M["SCN-"]

@@ -6,8 +6,7 @@ from pathlib import Path
 
 import pytest
 
-from planner.pipeline import design_plan
-from planner.planfile import load_plan
+from tests.plans import plan_of
 
 ROOT = Path(__file__).resolve().parents[2]
 DEFAULT = ROOT / "planner" / "data" / "default.toml"
@@ -21,22 +20,22 @@ TUBES = ROOT / "recipes" / "iron-thiocyanate-tubes.toml"
 @pytest.fixture(scope="session")
 def default_plan():
     """The embedded default scenario (tubes, burets and transfer pipettes), designed."""
-    return design_plan(load_plan(DEFAULT))
+    return plan_of(DEFAULT)
 
 
 @pytest.fixture(scope="session")
 def tubes_plan():
     """The default's shelf in tubes for the all-bound analysis, no constant medium, designed."""
-    return design_plan(load_plan(TUBES))
+    return plan_of(TUBES)
 
 
 @pytest.fixture(scope="session")
 def flask_plan():
     """A recipe made up in 25 mL volumetric flasks, with combined pipette deliveries."""
-    return design_plan(load_plan(FLASKS))
+    return plan_of(FLASKS)
 
 
 @pytest.fixture(scope="session")
 def piston_plan():
     """A recipe delivered with piston pipettes (ISO 8655-2 systematic and random errors)."""
-    return design_plan(load_plan(PISTON))
+    return plan_of(PISTON)

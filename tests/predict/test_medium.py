@@ -11,6 +11,7 @@ from planner.pipeline import design_plan
 from planner.planfile import load_plan, parse_plan
 from planner.predict.uncertainty import propagate
 from planner.verify import verify_saved
+from tests.plans import plan_of
 
 from .conftest import DEFAULT, TUBES
 
@@ -19,7 +20,7 @@ CONSTANT = DEFAULT  # the embedded default sets design.ionic_medium
 
 @pytest.fixture(scope="module")
 def constant_plan():
-    return design_plan(load_plan(CONSTANT))
+    return plan_of(CONSTANT)
 
 
 def test_every_mixture_has_the_medium_s_ionic_strength(constant_plan) -> None:

@@ -39,7 +39,7 @@ PLANTED = {(1, 3), (2, 5), (3, 7)}
 def plan_folder(tmp_path_factory):
     out = tmp_path_factory.mktemp("analyse") / "plan"
     result = RUNNER.invoke(
-        app, ["plan", str(TUBES), "--out", str(out), "--date", "2026-01-01", "-q"]
+        app, ["plan", str(TUBES), "--out", str(out), "--date", "2026-01-01", "-q", "--no-plots"]
     )
     assert result.exit_code == 0, result.output
     return out

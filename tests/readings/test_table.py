@@ -88,7 +88,8 @@ def test_an_unusable_file_is_an_error_naming_row_and_column(text, field):
 @pytest.fixture(scope="module")
 def plan_folder(tmp_path_factory):
     out = tmp_path_factory.mktemp("table") / "plan"
-    result = RUNNER.invoke(app, ["plan", "--out", str(out), "--date", "2026-01-01", "-q"])
+    args = ["plan", "--out", str(out), "--date", "2026-01-01", "-q", "--no-plots"]
+    result = RUNNER.invoke(app, args)
     assert result.exit_code == 0, result.output
     return out
 

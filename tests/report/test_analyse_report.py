@@ -18,7 +18,8 @@ from tests.readings.classes import Fault, Section, class_rows, rows_csv
 def test_analysis_report_fits_the_printable_width_with_its_plots(tmp_path):
     assert chromium_path() is not None, "Chromium is required: apt-get install chromium"
     folder = tmp_path / "plan"
-    made = CliRunner().invoke(app, ["plan", "--out", str(folder), "--date", "2026-01-01", "-q"])
+    args = ["plan", "--out", str(folder), "--date", "2026-01-01", "-q", "--no-plots"]
+    made = CliRunner().invoke(app, args)
     assert made.exit_code == 0, made.output
     plans = load_plans(folder)
     synthetic = {n: Section.of(folder / "plan.json") for n in plans}

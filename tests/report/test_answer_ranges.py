@@ -7,9 +7,8 @@ from pathlib import Path
 
 import pytest
 
-from planner.pipeline import design_plan
-from planner.planfile import load_plan
 from planner.report.sheets import answer_key_html, answer_key_md
+from tests.plans import plan_of
 from tests.predict.conftest import TUBES
 
 DATE = "2026-01-05"
@@ -18,13 +17,13 @@ ROOT = Path(__file__).resolve().parents[2]
 
 @pytest.fixture(scope="module")
 def plan():
-    return design_plan(load_plan(TUBES))
+    return plan_of(TUBES)
 
 
 @pytest.fixture(scope="module")
 def global_fit_plan():
     # The recipe where Fe(SCN)2+ dominates: designed for the global fit.
-    return design_plan(load_plan(ROOT / "recipes" / "iron-thiocyanate-ligand-excess.toml"))
+    return plan_of(ROOT / "recipes" / "iron-thiocyanate-ligand-excess.toml")
 
 
 def _rows(text: str) -> list[str]:

@@ -20,7 +20,7 @@ import pytest
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.pipeline import combined_plan, design_plan, design_variants
+from planner.pipeline import combined_plan, design_variants
 from planner.planfile import load_plan
 from planner.report.browser import (
     PRINTABLE_WIDTH_PX,
@@ -33,6 +33,7 @@ from planner.report.browser import (
 )
 from planner.report.outdir import plan_files
 from planner.report.variants_index import variants_files
+from tests.plans import plan_of
 
 ROOT = Path(__file__).resolve().parents[2]
 # Few benches (1 section x 4 benches) keep the browser work short.
@@ -42,7 +43,7 @@ RECIPE = ROOT / "recipes" / "copper-ligand-excess.toml"
 @pytest.fixture(scope="module")
 def files():
     assert chromium_path() is not None, "Chromium is required: apt-get install chromium"
-    plan = design_plan(load_plan(RECIPE))
+    plan = plan_of(RECIPE)
     return plan, plan_files(plan, date="2026-12-02", plots=True)
 
 
@@ -291,7 +292,7 @@ def test_plan_pdf_without_out_is_refused():
 def test_long_bench_sheet_still_one_page_per_bench(tmp_path):
     # The flask recipe has the tallest rows (several devices per addition): each bench's
     # table, order of addition and cautions must still share one printed page.
-    plan = design_plan(load_plan(ROOT / "recipes" / "iron-thiocyanate-flasks.toml"))
+    plan = plan_of(ROOT / "recipes" / "iron-thiocyanate-flasks.toml")
     contents = plan_files(plan, date="2026-12-02")
     html = tmp_path / "bench-sheets.html"
     html.write_text(contents["bench-sheets.html"])

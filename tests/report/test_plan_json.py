@@ -8,6 +8,7 @@ import json
 from planner.planfile import plan_from_mapping, plan_to_mapping
 from planner.report.plan_json import SCHEMA, plan_document, plan_json
 from planner.result import Check
+from tests.plans import plan_of
 from tests.report.conftest import PRECISE_VOLUME_mL
 
 TOP_KEYS = {
@@ -134,12 +135,10 @@ def test_bias_causes_are_written_multiply_to_the_bias_and_read_back() -> None:
     # and the ionic medium's share is said apart, not in it.
     from pathlib import Path
 
-    from planner.pipeline import design_plan
-    from planner.planfile import load_plan
     from planner.resultfile.reader import parse_result
 
     recipe = Path(__file__).parents[2] / "recipes" / "iron-thiocyanate-flasks.toml"
-    plan = design_plan(load_plan(recipe))
+    plan = plan_of(recipe)
     text = plan_json(plan)
     block = json.loads(text)["prediction"]
     causes = block["K_bias_causes"]

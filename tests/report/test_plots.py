@@ -18,8 +18,6 @@ import pytest
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.pipeline import design_plan
-from planner.planfile import load_plan
 from planner.predict.montecarlo import simulate
 from planner.report.outdir import plan_files
 from planner.report.plots import (
@@ -35,6 +33,8 @@ from planner.report.plots import (
     plan_plots,
     simulation_plots,
 )
+from tests.conftest import DEFAULT_OUT_DATE
+from tests.plans import plan_of
 from tests.report.conftest import make_inputs, make_plan
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -46,7 +46,7 @@ SVG = "{http://www.w3.org/2000/svg}"
 
 @pytest.fixture(scope="module")
 def default_plan():
-    return design_plan(load_plan(ROOT / "planner" / "data" / "default.toml"))
+    return plan_of(ROOT / "planner" / "data" / "default.toml")
 
 
 @pytest.fixture(scope="module")
@@ -245,7 +245,7 @@ def test_bound_fraction_shows_the_coloured_share_when_another_product_holds_some
     # curve. With thiocyanate in excess (the recipe), it holds much of the iron.
     figure = bound_fraction_figure(make_plan())
     assert not [line for line in figure.axes[0].get_lines() if line.get_gid() == "coloured-only"]
-    recipe = design_plan(load_plan(ROOT / "recipes" / "iron-thiocyanate-ligand-excess.toml"))
+    recipe = plan_of(ROOT / "recipes" / "iron-thiocyanate-ligand-excess.toml")
     figure = bound_fraction_figure(recipe)
     coloured = np.asarray(_series(figure, "coloured-only").get_ydata())
     bound = np.asarray(_series(figure, "sweep").get_ydata())
@@ -345,6 +345,28 @@ def test_plan_out_writes_the_plots(tmp_path, default_out):
     html = (first / "answer-key.html").read_text()
     for stem in PLAN_PLOTS:
         assert f'src="plots/{stem}.svg"' in html
+
+
+def test_no_plots_writes_the_same_sheets_without_figures(tmp_path, default_out):
+    # --no-plots: no plots/ folder, the answer key shows no figure and points to none, and
+    # every other file is the one a run with the plots writes but for the answer key.
+    out = tmp_path / "sheets"
+    result = CliRunner().invoke(
+        app, ["plan", "--out", str(out), "--date", DEFAULT_OUT_DATE, "-q", "--no-plots"]
+    )
+    assert result.exit_code == 0, result.stderr
+    assert not (out / "plots").exists()
+    for name in ("answer-key.html", "answer-key.md"):
+        assert "plots/" not in (out / name).read_text(encoding="utf-8")
+    with_plots = {
+        p.relative_to(default_out).as_posix()
+        for p in default_out.rglob("*")
+        if p.is_file() and "plots" not in p.parts
+    }
+    without = {p.relative_to(out).as_posix() for p in out.rglob("*") if p.is_file()}
+    assert without == with_plots
+    for name in without - {"answer-key.html", "answer-key.md", ".planner-output"}:
+        assert (out / name).read_bytes() == (default_out / name).read_bytes(), name
 
 
 def test_plan_without_out_does_not_import_matplotlib():
