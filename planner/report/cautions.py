@@ -11,11 +11,22 @@ last line defers to the safety data sheets, local rules and the responsible staf
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 
 from planner.inputs import PlanInputs, Stock
 
 __all__ = ["CAUTIONS", "Caution", "cautions_for", "label_hazards"]
+
+
+# An element symbol in a species name: a capital and an optional small letter ("Co" in
+# "Co2+", but C and O in "CO3 2-").
+_SYMBOL = re.compile(r"[A-Z][a-z]?")
+
+
+def _element_symbols(name: str) -> frozenset[str]:
+    """The element symbols a species name is written with."""
+    return frozenset(_SYMBOL.findall(name))
 
 
 @dataclass(frozen=True, slots=True)
@@ -33,6 +44,9 @@ class Caution:
     min_M
         Smallest stock concentration of one of ``ions`` that calls for the line [mol/L]; 0
         means any amount.
+    elements
+        Element symbols that call for the line in any ion a stock holds, whatever its
+        notation or oxidation state (``"Ni"`` in ``"Ni2+"``, ``"Ni^2+"`` or ``"NiCl+"``).
     label
         Short hazard words for the label of a bottle holding the ion, or ``""``.
     """
@@ -42,14 +56,24 @@ class Caution:
     ions: tuple[str, ...] = ()
     min_M: float = 0.0
     label: str = ""
+    elements: tuple[str, ...] = ()
 
     def applies_to(self, stock: Stock) -> bool:
-        """True when ``stock`` holds one of the ions at or above the threshold."""
+        """True when ``stock`` holds one of the ions at or above the threshold, or any
+        amount of an ion made of one of the elements."""
         for ion in self.ions:
             concentration_M = stock.contains_M.get(ion, 0.0)
             if concentration_M > 0 and concentration_M >= self.min_M:
                 return True
-        return False
+        return any(
+            concentration_M > 0 and not _element_symbols(ion).isdisjoint(self.elements)
+            for ion, concentration_M in stock.contains_M.items()
+        )
+
+    @property
+    def chemical(self) -> bool:
+        """True for a line that only some stocks call for."""
+        return bool(self.ions or self.elements)
 
 
 #: Every cautions line, chemical-specific ones first, in the order sheets print them.
@@ -93,6 +117,65 @@ CAUTIONS: tuple[Caution, ...] = (
         ),
         ions=("ClO4-",),
         label="oxidiser (perchlorate)",
+    ),
+    # The heavy-metal lines follow the harmonised EU classifications of their common salts
+    # (Regulation (EC) No 1272/2008, Annex VI; from memory): nickel and cobalt salts Carc. 1A
+    # or 1B by inhalation and respiratory and skin sensitisers; chromium(VI) Carc. 1B and an
+    # oxidiser; cadmium, mercury and lead salts toxic (Cd Carc. 1B, Pb Repr. 1A); copper and
+    # silver salts very toxic to aquatic life (silver nitrate also corrosive). Only the
+    # hazards a prep room acts on are named; the safety data sheet has the rest.
+    Caution(
+        key="nickel",
+        text=(
+            "Nickel: nickel salts may cause cancer if their dust is breathed in and may cause "
+            "allergic skin and breathing reactions. Wear gloves, weigh the solid without "
+            "raising dust, and collect every nickel solution for heavy-metal waste, never down "
+            "the drain."
+        ),
+        elements=("Ni",),
+        label="nickel: may cause cancer (dust), sensitiser",
+    ),
+    Caution(
+        key="cobalt",
+        text=(
+            "Cobalt: cobalt salts may cause cancer if their dust is breathed in and may cause "
+            "allergic skin and breathing reactions. Wear gloves, weigh the solid without "
+            "raising dust, and collect every cobalt solution for heavy-metal waste, never down "
+            "the drain."
+        ),
+        elements=("Co",),
+        label="cobalt: may cause cancer (dust), sensitiser",
+    ),
+    Caution(
+        key="chromium-vi",
+        text=(
+            "Chromium(VI): chromate and dichromate may cause cancer and allergic reactions "
+            "and are oxidisers. Wear gloves, weigh the solid without raising dust, keep it "
+            "from combustible material, and collect chromium waste apart."
+        ),
+        ions=("CrO42-", "CrO4 2-", "CrO4^2-", "HCrO4-", "Cr2O72-", "Cr2O7 2-", "Cr2O7^2-"),
+        label="chromium(VI): may cause cancer, oxidiser",
+    ),
+    Caution(
+        key="toxic-metal",
+        text=(
+            "Cadmium, mercury and lead: their salts are toxic if swallowed or their dust "
+            "breathed in, and harm the unborn child or the kidneys with repeated exposure. "
+            "Wear gloves, never pipette by mouth, and collect every such solution for "
+            "heavy-metal waste, never down the drain."
+        ),
+        elements=("Cd", "Hg", "Pb"),
+        label="toxic heavy metal",
+    ),
+    Caution(
+        key="copper-silver",
+        text=(
+            "Copper and silver: their salts are harmful if swallowed and very toxic to aquatic "
+            "life (silver nitrate also burns skin and stains it black). Wear gloves and collect "
+            "the solutions for heavy-metal waste, never down the drain."
+        ),
+        elements=("Cu", "Ag"),
+        label="toxic to aquatic life",
     ),
     Caution(
         key="medium-salt",
@@ -152,7 +235,7 @@ def cautions_for(inputs: PlanInputs) -> tuple[str, ...]:
     lines = []
     medium = inputs.design.ionic_medium
     for caution in CAUTIONS:
-        if caution.ions and not any(caution.applies_to(stock) for stock in inputs.stocks):
+        if caution.chemical and not any(caution.applies_to(stock) for stock in inputs.stocks):
             continue
         if caution.key == "medium-salt":
             # Only a plan with a constant ionic medium weighs an inert salt.

@@ -119,7 +119,8 @@ def test_chemical_lines_only_when_the_ion_is_in_a_stock():
     assert "thiocyanate" not in text
     assert "iron(III)" not in text
     assert "Acids are corrosive" not in text  # H+ 0.05 mol/L is below the 0.1 mol/L threshold
-    assert len(lines) == 4
+    assert CAUTION_TEXT["copper-silver"] in lines  # the copper(II) stock
+    assert len(lines) == 5
     for words in ALWAYS:
         assert words in text
 
@@ -418,3 +419,46 @@ def test_a_constant_medium_s_salt_and_a_perchlorate_get_their_cautions():
     lines = "\n".join(cautions_for(perchlorate))
     assert "Perchlorate: perchlorate salts are strong oxidisers" in lines
     assert "oxidiser (perchlorate)" in label_hazards(perchlorate.stock("acid"))
+
+
+@pytest.mark.parametrize(
+    ("ion", "key"),
+    [
+        ("Ni2+", "nickel"),
+        ("Ni^2+", "nickel"),
+        ("NiCl+", "nickel"),
+        ("Co2+", "cobalt"),
+        ("Cr2O7 2-", "chromium-vi"),
+        ("CrO42-", "chromium-vi"),
+        ("Cd2+", "toxic-metal"),
+        ("Hg2 2+", "toxic-metal"),
+        ("Pb2+", "toxic-metal"),
+        ("Cu2+", "copper-silver"),
+        ("Ag+", "copper-silver"),
+    ],
+)
+def test_heavy_metals_get_their_line_and_label_in_any_notation(ion, key):
+    # Nickel, cobalt and chromium(VI) salts are classed carcinogens and sensitisers, cadmium,
+    # mercury and lead salts toxic, copper and silver salts very toxic to aquatic life
+    # (Regulation (EC) No 1272/2008, Annex VI, from memory): a stock holding one gets the line
+    # and its bottle the label, whatever notation the plan file writes the ion in.
+    stocks = (
+        Stock(id="metal", contains_M={ion: 0.01, "NO3-": 0.02}),
+        Stock(id="water", contains_M={}, diluent=True),
+    )
+    caution = next(c for c in CAUTIONS if c.key == key)
+    assert caution.text in cautions_for(make_inputs(stocks=stocks))
+    assert caution.label in label_hazards(stocks[0])
+    assert label_hazards(stocks[1]) == ()
+
+
+def test_element_lines_read_symbols_not_letters():
+    # Carbonate is C and O, not cobalt; a ligand named NiL2 is nickel; none of the heavy-metal
+    # lines for iron thiocyanate in acid.
+    carbonate = Stock(id="carbonate", contains_M={"CO3 2-": 0.1, "Na+": 0.2})
+    assert not any(c.key == "cobalt" and c.applies_to(carbonate) for c in CAUTIONS)
+    heavy = {"nickel", "cobalt", "chromium-vi", "toxic-metal", "copper-silver"}
+    assert {c.key for c in CAUTIONS} >= heavy
+    iron = make_inputs()
+    texts = {c.key: c.text for c in CAUTIONS}
+    assert not any(texts[k] in cautions_for(iron) for k in heavy)
