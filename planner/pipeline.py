@@ -18,11 +18,12 @@ from __future__ import annotations
 import dataclasses
 import functools
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 
 import numpy as np
 from numpy.typing import NDArray
 
+from planner.chem.constants import bench_K
 from planner.design.candidates import CandidateSet
 from planner.design.mixtures import Objective
 from planner.design.plan import SharedWork, design_recipes
@@ -174,13 +175,67 @@ def _shown(problems: list[str]) -> str:
     )
 
 
+# A test whose free share of some reagent is below this binds essentially all of it: its
+# reading follows the stoichiometry, and K moves it by less than the reading noise.
+_SATURATED_FREE_SHARE = 0.01
+# A test binding less than this share of its limiting reagent hardly forms the product.
+_FAINT_BOUND = 0.05
+
+
+def _fit_fix(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> str:
+    """What to change when the global fit cannot tell K, read from the tests' speciation.
+
+    Where every test binds essentially all of one of its reagents, the readings follow the
+    stoichiometry and hold no K: K is too large for these concentrations (it shows only where
+    K times a free concentration is near 1). Where no test forms much product, K is too small
+    for them. Otherwise the tests are too few or too alike.
+    """
+    tests = [m for m in mixtures if m.role == "test"]
+    components = inputs.reaction.components
+
+    def least_free_share(m: Mixture) -> float:
+        shares = [
+            m.equilibrium_M.get(c, 0.0) / m.initial_M[c]
+            for c in components
+            if m.initial_M.get(c, 0.0) > 0
+        ]
+        return min(shares, default=1.0)
+
+    if tests and all(least_free_share(m) < _SATURATED_FREE_SHARE for m in tests):
+        species = inputs.measured_species
+        where = (
+            f" (near 1/K = {1.0 / bench_K(inputs):.2g} mol/L of free reagent for this 1:1 product)"
+            if sum(species.formula.values()) == 2
+            else ""
+        )
+        return (
+            f"every test binds over {100 * (1 - _SATURATED_FREE_SHARE):g} % of one of its "
+            f"reagents, so its reading follows the stoichiometry, not K: K = "
+            f"{bench_K(inputs):.3g} is too large to measure at these concentrations, as K "
+            f"shows only where K times a free concentration is near 1{where}. Use much more "
+            "dilute stocks (with a longer path or a more strongly absorbing product), or "
+            "measure K by competition with a weaker ligand"
+        )
+    if tests and all(m.bound_fraction < _FAINT_BOUND for m in tests):
+        return (
+            f"no test binds {100 * _FAINT_BOUND:g} % of its limiting reagent: K is too small "
+            "for these concentrations; use a more concentrated stock of the excess reagent"
+        )
+    return "ask for more tests or a wider bound_fraction_range"
+
+
 def _prediction_check(
-    prediction: Prediction | None, fitted: GlobalFitPrediction | None, analysis: str
+    prediction: Prediction | None,
+    fitted: GlobalFitPrediction | None,
+    analysis: str,
+    fit_fix: str = "ask for more tests or a wider bound_fraction_range",
 ) -> tuple[Prediction | None, GlobalFitPrediction | None, tuple[Check, ...]]:
     """Keep only predictions whose numbers all mean something, and say so in one check.
 
     The analysis the plan is designed for must give a meaningful prediction (else the check
     fails); the other one's is withheld when it would not, and the check says so.
+    ``fit_fix`` is what the check tells to change when the global fit fails
+    (:func:`_fit_fix`).
     """
     if prediction is None and fitted is None:
         return None, None, ()
@@ -222,7 +277,7 @@ def _prediction_check(
                     "fail",
                     f"the global fit of this plan would print meaningless numbers "
                     f"({_shown(fit_problems)}): its standards and tests do not separate eps from "
-                    "K; ask for more tests or a wider bound_fraction_range",
+                    f"K; {fit_fix}",
                 ),
             ),
         )
@@ -281,7 +336,9 @@ def design_plan(
         inputs, objective, candidates=candidates, allowed=allowed, shared=shared
     )
     mixtures, uncertainty, prediction, fitted = predict_mixtures(inputs, design.mixtures)
-    prediction, fitted, meaningful = _prediction_check(prediction, fitted, design.analysis)
+    prediction, fitted, meaningful = _prediction_check(
+        prediction, fitted, design.analysis, _fit_fix(inputs, mixtures)
+    )
     checks = (
         design.checks
         + tuple(verify_plan(inputs, mixtures, design.totals, analysis=design.analysis))

@@ -1073,7 +1073,12 @@ def _speciation(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) 
     indices = [i for i, m in enumerate(mixtures) if m.role == "standard"]
     if not holding or not indices:
         return Check("product-speciation", "pass", "no standards or no product species")
-    coloured = max(holding, key=lambda i: (reaction.species[i].epsilon, -i))
+    # The product the class measures, as the plan file names it or validation derived it
+    # (not the most absorbing one: a plan measuring CuL+ whose standards form CuL2 must hear
+    # that they do).
+    coloured = inputs.measured
+    if coloured not in holding:
+        return Check("product-speciation", "pass", "the measured product holds no limiting reagent")
     name = reaction.species[coloured].name
     coefficient = reaction.species[coloured].formula[inputs.design.limiting]
     totals = state.limiting_total[indices]
@@ -1082,14 +1087,20 @@ def _speciation(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) 
     worst = float(np.max(others))
     tolerance = inputs.design.assumption_tolerance
     if worst > tolerance:
+        # The all-bound calibration reads A / (total / coefficient) as eps: every product's
+        # absorbance over the limiting reagent counted as the measured product.
+        epsilon = np.array([sp.epsilon for sp in reaction.species])
+        read = state.species[indices] @ epsilon * coefficient / np.where(totals > 0, totals, 1.0)
+        error = read / reaction.species[coloured].epsilon - 1.0
+        off = float(error[np.argmax(np.abs(error))])
         return Check(
             "product-speciation",
             "warn",
             f"up to {100 * worst:.1f} % of the limiting reagent in the standards is bound in "
-            f"products other than {name}; the all-bound analysis counts it as {name}, so its molar "
-            f"absorptivity comes out about {100 * (1 - float(np.min(share))):.0f} % low. Lower "
-            "the excess towards where the other products are minor, or fit every species "
-            "with the exact model",
+            f"products other than {name}; the all-bound analysis counts it as {name}, so the "
+            f"molar absorptivity it reports is off by up to {100 * off:+.0f} % (the other "
+            "products' absorptivities included). Lower the excess towards where the other "
+            "products are minor, or fit every species with the exact model",
         )
     return Check(
         "product-speciation",
