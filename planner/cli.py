@@ -264,14 +264,14 @@ def check(
     excess: Annotated[
         float,
         typer.Option(
-            "--excess", help="Total concentration of the reagent in excess [mol/L], 0 to 20."
+            "--excess", help="Total concentration of the reagent in excess \\[mol/L], 0 to 20."
         ),
     ],
     limiting: Annotated[
         float,
         typer.Option(
             "--limiting",
-            help="Total concentration of the limiting reagent [mol/L], 1e-30 to 20.",
+            help="Total concentration of the limiting reagent \\[mol/L], 1e-30 to 20.",
         ),
     ],
     tolerance: Annotated[

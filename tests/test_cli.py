@@ -694,3 +694,29 @@ def test_help_flows_each_paragraph_instead_of_breaking_lines_mid_sentence(comman
     assert info.help
     for paragraph in info.help.split("\n\n"):
         assert "\n" not in paragraph, paragraph
+
+
+@pytest.mark.parametrize("command", ["plan", "analyse", "simulate", "variants", "verify", "check"])
+def test_help_keeps_every_unit_in_square_brackets(command):
+    # Rich reads "[mol/L]" as a markup tag and drops it: `planner check --help` printed
+    # "Total concentration of the reagent in excess , 0 to 20". Every bracketed unit an
+    # option's help text gives must reach the screen.
+    import re
+
+    import typer.main
+
+    from planner.cli import app as planner_app
+
+    click_command = typer.main.get_command(planner_app).commands[command]
+    shown = " ".join(
+        CliRunner().invoke(planner_app, [command, "--help"], env={"COLUMNS": "300"}).output.split()
+    )
+    units = [
+        unit
+        for param in click_command.params
+        for unit in re.findall(
+            r"\[[^\]\[]+\]", (getattr(param, "help", None) or "").replace("\\[", "[")
+        )
+    ]
+    for unit in units:
+        assert unit in shown, (command, unit)
