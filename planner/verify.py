@@ -1091,16 +1091,22 @@ def _speciation(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) 
         # absorbance over the limiting reagent counted as the measured product.
         epsilon = np.array([sp.epsilon for sp in reaction.species])
         read = state.species[indices] @ epsilon * coefficient / np.where(totals > 0, totals, 1.0)
-        error = read / reaction.species[coloured].epsilon - 1.0
-        off = float(error[np.argmax(np.abs(error))])
+        measured_epsilon = reaction.species[coloured].epsilon
+        consequence = "its molar absorptivity means nothing"
+        if measured_epsilon > 0:
+            error = read / measured_epsilon - 1.0
+            off = float(error[np.argmax(np.abs(error))])
+            consequence = (
+                f"the molar absorptivity it reports is off by up to {100 * off:+.0f} % (the "
+                "other products' absorptivities included)"
+            )
         return Check(
             "product-speciation",
             "warn",
             f"up to {100 * worst:.1f} % of the limiting reagent in the standards is bound in "
-            f"products other than {name}; the all-bound analysis counts it as {name}, so the "
-            f"molar absorptivity it reports is off by up to {100 * off:+.0f} % (the other "
-            "products' absorptivities included). Lower the excess towards where the other "
-            "products are minor, or fit every species with the exact model",
+            f"products other than {name}; the all-bound analysis counts it as {name}, so "
+            f"{consequence}. Lower the excess towards where the other products are minor, or "
+            "fit every species with the exact model",
         )
     return Check(
         "product-speciation",
