@@ -281,10 +281,17 @@ def distinctness_check(found: VariantSet) -> Check:
             if first.second_test != first.first_test
             else ""
         )
-        + f"{more}; sections 1 to {found.distinct_sections} have test recipes of their own. "
+        + f"{more}; {_own_sections(found.distinct_sections)}. "
         "Finer glassware (a buret or graduated pipette), more stocks at other concentrations, "
         "a wider design.bound_fraction_range or fewer tests allow more distinct sets",
     )
+
+
+def _own_sections(count: int) -> str:
+    """Which sections have test recipes of their own (the first ``count``), in words."""
+    if count <= 1:
+        return "only section 1 has test recipes of its own"
+    return f"sections 1 to {count} have test recipes of their own"
 
 
 def _band_text() -> str:

@@ -447,3 +447,12 @@ def test_each_benchs_sheet_is_the_one_rendered_for_that_bench_alone(six):
             assert files[stem + ".md"] == bench_sheet_md(plan, date="2026-12-02", slot=slot)
             assert files[stem + ".html"] == bench_sheet_html(plan, date="2026-12-02", slots=[slot])
             assert f"Bench {bench} of {benches}" in files[stem + ".md"]
+
+
+def test_the_distinct_sections_are_counted_in_words():
+    # "sections 1 to 1 have test recipes of their own" was printed for a shelf with one
+    # distinct set (an invented nickel shelf, four sections asked for).
+    from planner.design.variants import _own_sections
+
+    assert _own_sections(1) == "only section 1 has test recipes of its own"
+    assert _own_sections(3) == "sections 1 to 3 have test recipes of their own"
