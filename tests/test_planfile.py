@@ -1552,3 +1552,29 @@ def test_bad_bench_values_name_the_key(key, value, field):
     data = _data()
     data["bench"] = {key: value}
     _assert_names(_error(data), field)
+
+
+@pytest.mark.parametrize(
+    ("name", "ok"),
+    [
+        ("FeSCN2+", True),  # Fe3+ + SCN-: +3 - 1 = +2, by hand
+        ("FeSCN^2+", True),
+        ("FeSCN²⁺", True),
+        ("FeSCN", True),  # no charge written: a label
+        ("Fe-SCN complex", True),  # a sign inside the name is not a charge
+        ("FeSCN+", False),  # reads +1
+        ("FeSCN3+", False),  # reads +3
+    ],
+)
+def test_a_product_name_ending_in_a_charge_must_give_the_formula_s(name, ok):
+    # The charge every calculation uses comes from the formula; a name that reads another one
+    # labelled every sheet wrongly without a word (an invented "NiQ+" for Ni2+ + Q, +2).
+    data = _data()
+    data["reaction"]["species"][0]["name"] = name
+    if ok:
+        assert plan_from_mapping(data).reaction.species[0].name == name
+        return
+    error = _error(data)
+    _assert_names(error, "reaction.species[0].name")
+    assert "but the formula gives +2" in str(error)
+    assert "(2+)" in str(error)

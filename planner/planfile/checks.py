@@ -99,6 +99,9 @@ def plan_inputs(plan: PlanModel) -> PlanInputs:
         )
     session = _session(plan.session)
     bench = _bench(plan.bench)
+    # Last: a formula that is wrong in itself gets its own message before its name's charge.
+    for index, sp in enumerate(reaction.species):
+        _check_species_charge(f"reaction.species[{index}].name", sp.name, sp.formula)
     return PlanInputs(plan.title, reaction, instrument, stocks, devices, design, session, bench)
 
 
@@ -164,6 +167,42 @@ def _check_charge(field: str, name: str) -> None:
             name,
             "write the charge last, as in 'Fe3+', 'SCN-', 'SO4^2-', or no sign if neutral ('NH3')",
         )
+
+
+def _check_species_charge(field: str, name: str, formula: dict[str, int]) -> None:
+    """A product name that ends in a charge must give the charge its formula gives.
+
+    Every calculation takes a product's charge from its formula and the components'
+    charges (:func:`planner.chem.species.species_charge`); the name only labels the sheets,
+    so a name reading otherwise labelled every sheet wrongly without a word (an invented
+    "NiQ+" for Ni2+ + Q, whose charge is +2). A name without a charge, or one the charge
+    reader cannot read, is a label and is left as it is.
+    """
+    from planner.chem.species import charge_from_name, species_charge
+
+    if not name.rstrip().endswith(("+", "-", "\u207a", "\u207b")):
+        return
+    try:
+        named = charge_from_name(name)
+    except InvalidInputError:
+        return
+    charge = species_charge(formula, {c: charge_from_name(c) for c in formula})
+    if named != charge:
+        fail(
+            field,
+            f"the name reads as charge {named:+d}, but the formula gives {charge:+d}",
+            name,
+            f"end the name with the formula's charge ({_written_charge(charge)}), or give "
+            "no charge in the name",
+        )
+
+
+def _written_charge(charge: int) -> str:
+    """A charge as a name ends with it: '2+', '+', '-', '3-' or 'none' for 0."""
+    if charge == 0:
+        return "none"
+    sign = "+" if charge > 0 else "-"
+    return sign if abs(charge) == 1 else f"{abs(charge)}{sign}"
 
 
 def _reaction(model: ReactionModel) -> Reaction:
