@@ -235,7 +235,17 @@ def test_stopping_plan_pdf_ends_chromium_and_removes_temporaries(tmp_path, signu
         "XDG_CONFIG_HOME": str(home / ".config"),
         "XDG_CACHE_HOME": str(home / ".cache"),
     }
-    command = ["plan", str(RECIPE), "--pdf", "--out", "sheets", "--date", "2026-12-02"]
+    # No plots: the signal is sent once Chromium runs, and the figures before it cost seconds.
+    command = [
+        "plan",
+        str(RECIPE),
+        "--pdf",
+        "--out",
+        "sheets",
+        "--date",
+        "2026-12-02",
+        "--no-plots",
+    ]
     planner = subprocess.Popen(
         [sys.executable, "-m", "planner", *command],
         cwd=work,
