@@ -15,7 +15,7 @@ Presets
 -------
 ``calibrated``: an analyst with calibrated glassware, one matched cuvette in a fixed
 orientation and a thermostatted cell holder; ``practised``: a careful bench with class A
-glassware used as taught, matched cuvettes, room temperature; ``novice``: a first course's
+glassware used by the book, matched cuvettes, room temperature; ``novice``: a first course's
 bench. Every value names its source or is marked common practice in :data:`PRESETS`.
 
 References
@@ -105,7 +105,7 @@ PRESET_SOURCES: dict[str, str] = {
     ),
     "pipette_rsd": (
         "common practice: drainage, meniscus and touch-off repeat to about 0.05 % with "
-        "calibrated pipettes, 0.2 % as taught, 1 % at a first attempt"
+        "calibrated pipettes, 0.2 % with practised technique, 1 % at a first attempt"
     ),
     "piston_rsd": (
         "common practice, beside the ISO 8655-2:2002 random limits the catalogue already "
