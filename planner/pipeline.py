@@ -202,16 +202,16 @@ def _fit_fix(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> str:
         return min(shares, default=1.0)
 
     if tests and all(least_free_share(m) < _SATURATED_FREE_SHARE for m in tests):
-        species = inputs.measured_species
+        k = bench_K(inputs)
         where = (
-            f" (near 1/K = {1.0 / bench_K(inputs):.2g} mol/L of free reagent for this 1:1 product)"
-            if sum(species.formula.values()) == 2
+            f" (near 1/K = {1.0 / k:.2g} mol/L of free reagent for this 1:1 product)"
+            if sum(inputs.measured_species.formula.values()) == 2
             else ""
         )
         return (
             f"every test binds over {100 * (1 - _SATURATED_FREE_SHARE):g} % of one of its "
             f"reagents, so its reading follows the stoichiometry, not K: K = "
-            f"{bench_K(inputs):.3g} is too large to measure at these concentrations, as K "
+            f"{k:.3g} is too large to measure at these concentrations, as K "
             f"shows only where K times a free concentration is near 1{where}. Use much more "
             "dilute stocks (with a longer path or a more strongly absorbing product), or "
             "measure K by competition with a weaker ligand"

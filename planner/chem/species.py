@@ -34,6 +34,7 @@ __all__ = [
     "POLYATOMIC_SUBSCRIPT_ENDINGS",
     "MAX_MOLAR_MASS_g_per_mol",
     "charge_from_name",
+    "element_symbols",
     "ionic_strength_M",
     "molar_mass_g_per_mol",
     "neutralised",
@@ -544,6 +545,15 @@ _SYMBOL_COUNT = re.compile(r"([A-Z][a-z]?)([0-9]*)")
 _GROUP_COUNT = re.compile(r"[0-9]+(?:\.[0-9]+)?")
 # A formula as periodictable structures one: (count, element) and (count, [group]) pairs.
 _Structure = list[tuple[float, Any]]
+
+
+def element_symbols(name: str) -> frozenset[str]:
+    """The element symbols a species name is written with, read as formulas are: a capital
+    and an optional small letter (``"Co"`` in ``"Co2+"``, but C and O in ``"CO3 2-"``).
+
+    Not checked against the periodic table: a placeholder such as ``"M2+"`` gives ``{"M"}``.
+    """
+    return frozenset(symbol for symbol, _ in _SYMBOL_COUNT.findall(name))
 
 
 def _structure(canonical: str) -> _Structure:

@@ -11,22 +11,12 @@ last line defers to the safety data sheets, local rules and the responsible staf
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass
 
+from planner.chem.species import element_symbols
 from planner.inputs import PlanInputs, Stock
 
 __all__ = ["CAUTIONS", "Caution", "cautions_for", "label_hazards"]
-
-
-# An element symbol in a species name: a capital and an optional small letter ("Co" in
-# "Co2+", but C and O in "CO3 2-").
-_SYMBOL = re.compile(r"[A-Z][a-z]?")
-
-
-def _element_symbols(name: str) -> frozenset[str]:
-    """The element symbols a species name is written with."""
-    return frozenset(_SYMBOL.findall(name))
 
 
 @dataclass(frozen=True, slots=True)
@@ -66,7 +56,7 @@ class Caution:
             if concentration_M > 0 and concentration_M >= self.min_M:
                 return True
         return any(
-            concentration_M > 0 and not _element_symbols(ion).isdisjoint(self.elements)
+            concentration_M > 0 and not element_symbols(ion).isdisjoint(self.elements)
             for ion, concentration_M in stock.contains_M.items()
         )
 
