@@ -1190,9 +1190,13 @@ def _ionic_strength(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _Sta
             f"{inputs.reaction.ionic_strength_M:g} mol/L they refer to"
         )
     else:
+        low, high = f"{values.min():.3g}", f"{values.max():.3g}"
         detail = (
-            f"ionic strength {values.min():.3g}-{values.max():.3g} mol/L across the mixtures "
-            f"(spread {100 * spread:.0f} %; the constants refer to "
+            f"ionic strength {low}-{high} mol/L across the mixtures"
+            if low != high
+            else f"every mixture at ionic strength {high} mol/L"
+        ) + (
+            f" (spread {100 * spread:.2g} %; the constants refer to "
             f"{inputs.reaction.ionic_strength_M:g} mol/L)"
         )
     if spread > allowed and not medium_matters(inputs.reaction, values):

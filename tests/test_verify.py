@@ -1172,3 +1172,12 @@ def test_narrow_coverage_names_the_fix_and_the_fix_works() -> None:
     assert 'volume_mL = 5\nclass = "A"\ncount = 3' in fixed_text
     fixed = design_plan(parse_plan(fixed_text))
     assert {c.name: c.status for c in fixed.checks}["bound-fraction-coverage"] == "pass"
+
+
+def test_one_background_electrolyte_reads_as_one_ionic_strength() -> None:
+    # tests/scenarios/long-cell-research.toml makes every stock in 0.1 mol/L NaClO4, so every
+    # mixture sits at 0.1 mol/L to three figures: said as such, not as "0.1-0.1 mol/L".
+    plan = plan_of(ROOT / "tests" / "scenarios" / "long-cell-research.toml")
+    check = next(c for c in plan.checks if c.name == "ionic-strength")
+    assert check.status == "pass"
+    assert check.detail.startswith("every mixture at ionic strength 0.1 mol/L (spread ")
