@@ -12,7 +12,6 @@ import inspect
 import os
 import signal
 import sys
-import tempfile
 import threading
 import traceback
 from collections.abc import Callable, Iterator, Mapping
@@ -339,43 +338,6 @@ def _check_out(out: Path | None, *, force: bool, file: Path | None) -> None:
         check_output_target(out, force=force, protect=_reads(file))
 
 
-def _matplotlib_folders() -> tuple[Path, ...]:
-    """Where matplotlib keeps its configuration and caches when MPLCONFIGDIR is not set (as
-    its documentation gives them: the XDG folders on Linux and FreeBSD, ~/.matplotlib
-    elsewhere). matplotlib creates them on import when they are missing."""
-    if sys.platform.startswith(("linux", "freebsd")):
-        config = os.environ.get("XDG_CONFIG_HOME") or str(Path.home() / ".config")
-        cache = os.environ.get("XDG_CACHE_HOME") or str(Path.home() / ".cache")
-        return (Path(config) / "matplotlib", Path(cache) / "matplotlib")
-    return (Path.home() / ".matplotlib",)
-
-
-@contextmanager
-def _private_plot_caches() -> Iterator[None]:
-    """Keep matplotlib from creating folders in the home folder while plots are drawn.
-
-    On first use matplotlib creates its configuration and cache folders if need be and
-    writes a font list into the cache. The planner writes only where it is told, so when
-    those folders do not exist yet (and the user set no MPLCONFIGDIR of their own),
-    matplotlib gets a scratch folder for this run, removed afterwards; the price is a fresh
-    scan of the installed fonts, about 0.2 s. Folders that already exist (from earlier
-    matplotlib use) are used as they are.
-    """
-    if (
-        "matplotlib" in sys.modules
-        or "MPLCONFIGDIR" in os.environ
-        or all(folder.is_dir() for folder in _matplotlib_folders())
-    ):
-        yield
-        return
-    with tempfile.TemporaryDirectory(prefix="planner-matplotlib-") as folder:
-        os.environ["MPLCONFIGDIR"] = folder
-        try:
-            yield
-        finally:
-            os.environ.pop("MPLCONFIGDIR", None)
-
-
 def _today() -> str:
     import datetime
 
@@ -404,7 +366,7 @@ def plan(
         typer.Option(
             "--out",
             help="Folder for plan.json, bench sheets, prep sheet, answer key, CSV and plots "
-            "(plots/*.png and *.svg).",
+            "(plots/*.svg).",
         ),
     ] = None,
     output_format: _FormatOption = OutputFormat.text,
@@ -421,7 +383,7 @@ def plan(
         typer.Option(
             "--plots/--no-plots",
             help="Draw the answer key's figures into plots/ (with --out); --no-plots writes "
-            "the sheets without them, about a second sooner.",
+            "the sheets without them.",
         ),
     ] = True,
     quiet: _QuietOption = False,
@@ -451,8 +413,7 @@ def plan(
             from planner.report.outdir import plan_files, write_output_folder
 
             sheet_date = date or _today()
-            with _private_plot_caches():
-                files = plan_files(result, date=sheet_date, plots=plots)
+            files = plan_files(result, date=sheet_date, plots=plots)
             if pdf:
                 from planner.report.browser import pdfs_for
 
@@ -723,8 +684,7 @@ def analyse(
             from planner.report.analyse_html import analysis_files
             from planner.report.outdir import write_output_folder
 
-            with _private_plot_caches():
-                files = analysis_files(result, readings=str(readings_file), plan=str(plan_folder))
+            files = analysis_files(result, readings=str(readings_file), plan=str(plan_folder))
             write_output_folder(out, files, force=force, protect=(readings_file,))
         if quiet:
             pass
@@ -783,7 +743,7 @@ def simulate(
         typer.Option(
             "--out",
             help="Folder for simulation.json and the histograms K-histogram and "
-            "epsilon-histogram, each .png and .svg.",
+            "epsilon-histogram (.svg).",
         ),
     ] = None,
     force: _ForceOption = False,
@@ -919,8 +879,7 @@ def simulate(
             from planner.report.outdir import write_output_folder
 
             files: dict[str, str | bytes] = {name: document}
-            with _private_plot_caches():
-                files.update(plots())
+            files.update(plots())
             write_output_folder(out, files, force=force, protect=_reads(file))
         if quiet:
             pass

@@ -6,6 +6,7 @@ Small trial counts keep the file fast; the science is tested in tests/predict/.
 from __future__ import annotations
 
 import json
+import xml.etree.ElementTree as ET
 from pathlib import Path
 
 import pytest
@@ -15,7 +16,7 @@ from planner.cli import app
 
 runner = CliRunner()
 ROOT = Path(__file__).resolve().parents[1]
-PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # the eight bytes every PNG starts with (ISO/IEC 15948)
+SVG = "{http://www.w3.org/2000/svg}"  # the SVG namespace (W3C SVG 1.1)
 
 
 def run(*args: str):
@@ -78,16 +79,13 @@ def test_out_folder_with_histogram(tmp_path):
     assert result.stdout == ""  # --quiet
     assert sorted(p.name for p in target.iterdir()) == [
         ".planner-output",  # the marker that lets --force replace the folder later
-        "K-histogram.png",
         "K-histogram.svg",
-        "epsilon-histogram.png",
         "epsilon-histogram.svg",
         "simulation.json",
     ]
-    png = (target / "K-histogram.png").read_bytes()
-    assert png.startswith(PNG_SIGNATURE)
-    assert (target / "epsilon-histogram.png").read_bytes().startswith(PNG_SIGNATURE)
-    assert b"<svg" in (target / "epsilon-histogram.svg").read_bytes()
+    for name in ("K-histogram.svg", "epsilon-histogram.svg"):
+        root = ET.fromstring((target / name).read_bytes())  # well-formed XML (W3C SVG 1.1)
+        assert root.tag == SVG + "svg"
     assert json.loads((target / "simulation.json").read_text())["trials"] == 300
     # Same seed, same images, byte for byte.
     again = tmp_path / "again"
@@ -226,7 +224,8 @@ def test_technique_compares_presets_side_by_side(tmp_path: Path) -> None:
     for entry in document["techniques"].values():
         bound = entry["K"]["all_bound"]
         assert bound is None or (bound["ci95"][0] > 0 and bound["sd"] > 0)
-    assert (out / "K-histogram-by-technique.png").read_bytes().startswith(b"\x89PNG")
+    svg = ET.fromstring((out / "K-histogram-by-technique.svg").read_bytes())
+    assert svg.tag == SVG + "svg"
     assert (out / "techniques.json").is_file()
 
 

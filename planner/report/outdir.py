@@ -109,8 +109,8 @@ def plan_files(
     plots
         Also draw the plan's plots (:func:`planner.report.plots.plan_plots`: the calibration
         ladder, bound fraction against the excess, the tests' coverage of bound fraction,
-        those that apply) into ``plots/<stem>.png`` and ``.svg``, and show them on the answer
-        key. Off by default: drawing imports matplotlib and takes most of a second.
+        those that apply) into ``plots/<stem>.svg``, and show them on the answer key. Off by
+        default.
 
     Returns
     -------
@@ -119,8 +119,8 @@ def plan_files(
         ``readings-template.csv`` (one row per section, bench, replicate and mixture, for
         ``planner analyse``),
         ``prep-sheet.md`` and ``.html``, ``answer-key.md`` and ``.html``,
-        ``bench-sheets.html`` (every pipetting sheet, one per page), ``plots/*.png`` and
-        ``plots/*.svg`` with ``plots``, and ``benches/section-NN-bench-NN.md`` and ``.html``
+        ``bench-sheets.html`` (every pipetting sheet, one per page), ``plots/*.svg`` with
+        ``plots``, and ``benches/section-NN-bench-NN.md`` and ``.html``
         per bench, or ``benches/section-NN.md`` and ``.html`` per section when the session has
         more than :data:`MAX_BENCH_FILES` benches. Numbers are zero-padded to at least two
         digits.

@@ -906,7 +906,7 @@ def answer_key_md(plan: Plan, *, date: str, plots: Sequence[str] = ()) -> str:
     plots
         Stems of the plot files written beside the sheet (``ladder``, ``bound-fraction``,
         ``coverage``, see :func:`planner.report.plots.plan_plots`); each is shown from
-        ``plots/<stem>.png`` with its caption. Empty: no plots.
+        ``plots/<stem>.svg`` with its caption. Empty: no plots.
 
     Returns
     -------

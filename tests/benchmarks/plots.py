@@ -1,6 +1,6 @@
 """Benchmark: what the plots add to `planner plan --out` on the embedded default.
 
-Each figure is the median over fresh processes (matplotlib's import is part of the cost):
+Each figure is the median over fresh processes (every import is part of the cost):
 the whole `planner plan --out DIR` process, and the added time of the plots, measured as
 the same process body (design, output folder) with and without the plots. Runs alternate so
 that a busy machine slows both alike; CPU time (user + system) is given beside wall time, as

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 import math
+import xml.etree.ElementTree as ET
 from pathlib import Path
 
 import numpy as np
@@ -174,7 +175,9 @@ def test_cli_on_the_class_flags_the_three_and_writes_the_folder(plan_folder, sec
     assert json.loads((out / "analysis.json").read_text()) == document
     assert (out / "analysis.html").read_text().count("<tr>") > 30
     assert (out / "benches" / "section-03-bench-07-replicate-1.csv").is_file()
-    assert (out / "plots" / "bench-K.png").read_bytes()[:4] == b"\x89PNG"
+    root = ET.fromstring((out / "plots" / "bench-K.svg").read_bytes())  # W3C SVG 1.1
+    assert root.tag == "{http://www.w3.org/2000/svg}svg"
+    assert (out / "plots" / "residuals.svg").is_file()
 
 
 def test_cli_all_ok_exits_0(plan_folder, sections, tmp_path):

@@ -25,10 +25,7 @@ from planner.report.plots import (
     available_plan_plots,
     bound_fraction_figure,
     coverage_figure,
-    figure_png,
-    figure_svg,
     histogram_figure,
-    k_histogram_png,
     ladder_figure,
     plan_plots,
     simulation_plots,
@@ -36,11 +33,10 @@ from planner.report.plots import (
 from tests.conftest import DEFAULT_OUT_DATE
 from tests.plans import plan_of
 from tests.report.conftest import make_inputs, make_plan
+from tests.report.test_svg_kit import assert_coordinates_finite
 
 ROOT = Path(__file__).resolve().parents[2]
 DATE = "2026-12-02"
-# The eight bytes every PNG starts with, then the IHDR chunk (ISO/IEC 15948, 5.2 and 11.2.2).
-PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 SVG = "{http://www.w3.org/2000/svg}"
 
 
@@ -63,10 +59,8 @@ def simulation(default_plan):
 
 
 def _series(figure, gid):
-    """The Line2D of one series, found by its gid."""
-    found = [line for line in figure.axes[0].get_lines() if line.get_gid() == gid]
-    assert len(found) == 1, f"expected one series {gid!r}, found {len(found)}"
-    return found[0]
+    """The one mark of a series, found by its gid."""
+    return figure.one(gid)
 
 
 def _svg_texts(svg: bytes) -> list[str]:
@@ -75,14 +69,8 @@ def _svg_texts(svg: bytes) -> list[str]:
     return ["".join(node.itertext()) for node in root.iter(SVG + "text")]
 
 
-def _assert_png(data: bytes) -> None:
-    assert data.startswith(PNG_SIGNATURE)
-    assert data[12:16] == b"IHDR"
-    width, height = int.from_bytes(data[16:20], "big"), int.from_bytes(data[20:24], "big")
-    # 6.6 in wide at 150 dpi.
-    assert width == 990
-    assert 300 < height < 1500
-    assert data.endswith(b"IEND\xaeB`\x82")
+def _notes(figure) -> set[str]:
+    return {note.text for note in figure.notes}
 
 
 # ---------------------------------------------------------------------------------------------
@@ -90,21 +78,22 @@ def _assert_png(data: bytes) -> None:
 # ---------------------------------------------------------------------------------------------
 
 
-def test_plan_plots_are_valid_png_and_svg(drawn):
+def test_plan_plots_are_valid_svg(drawn):
     files = drawn
-    assert sorted(files) == sorted(
-        f"plots/{stem}.{ext}" for stem in PLAN_PLOTS for ext in ("png", "svg")
-    )
-    for name, data in files.items():
-        if name.endswith(".png"):
-            _assert_png(data)
-        else:
-            assert _svg_texts(data)  # parses as SVG and has text
-            # Printed at its natural size inside the A4 printable width (703 px = 527 pt).
-            width = ET.fromstring(data).get("width")
-            assert width is not None
-            assert width.endswith("pt")
-            assert float(width[:-2]) <= 527
+    assert sorted(files) == sorted(f"plots/{stem}.svg" for stem in PLAN_PLOTS)
+    for data in files.values():
+        assert _svg_texts(data)  # parses as SVG 1.1 and has text
+        root = ET.fromstring(data)
+        assert root.get("version") == "1.1"
+        # Printed at its natural size inside the A4 printable width (703 px = 527 pt).
+        width = root.get("width")
+        assert width is not None
+        assert width.endswith("pt")
+        assert float(width[:-2]) <= 527
+        # The viewBox is the page in points, so user units are points.
+        assert root.get("viewBox") == f"0 0 {width[:-2]} {root.get('height')[:-2]}"
+        # No coordinate is lost to a number a renderer cannot read.
+        assert_coordinates_finite(root)
 
 
 def test_plan_plots_are_byte_identical_on_two_runs(plan, drawn):
@@ -115,25 +104,30 @@ def test_plan_plots_are_byte_identical_on_two_runs(plan, drawn):
 def test_files_carry_no_date_or_version(drawn):
     for name, data in drawn.items():
         assert b"<dc:date>" not in data, name
-        assert b"matplotlib v" not in data.lower(), name
+        assert b"2026" not in data, name  # the plan's date is on the sheets, not the figures
+        assert b"matplotlib" not in data.lower(), name
 
 
 def test_simulation_plots_valid_identical_and_labelled(simulation):
     files = simulation_plots(simulation)
-    assert sorted(files) == [
-        "K-histogram.png",
-        "K-histogram.svg",
-        "epsilon-histogram.png",
-        "epsilon-histogram.svg",
-    ]
-    _assert_png(files["K-histogram.png"])
-    _assert_png(files["epsilon-histogram.png"])
+    assert sorted(files) == ["K-histogram.svg", "epsilon-histogram.svg"]
     assert files == simulation_plots(simulation)
     assert "K [L/mol]" in _svg_texts(files["K-histogram.svg"])
     assert "ε [L mol⁻¹ cm⁻¹]" in _svg_texts(files["epsilon-histogram.svg"])
     assert "benches per bin [count]" in _svg_texts(files["epsilon-histogram.svg"])
-    # The shortcut still gives the K histogram's PNG.
-    assert k_histogram_png(simulation) == files["K-histogram.png"]
+
+
+def test_histogram_bars_count_the_benches(simulation):
+    # numpy.histogram is the independent count: every finite K of the class in some bar.
+    figure = histogram_figure(simulation, "K")
+    bars = _series(figure, "all_bound")
+    counts = bars.y1
+    finite = simulation.K_all_bound[np.isfinite(simulation.K_all_bound)]
+    expected, _ = np.histogram(finite, bins=np.append(bars.x0, bars.x1[-1]))
+    np.testing.assert_array_equal(counts, expected)
+    # The bins span the middle 99.9 % of both analyses, so at most a few far outliers fall
+    # outside them (400 benches here).
+    assert counts.sum() >= 0.99 * finite.size
 
 
 # ---------------------------------------------------------------------------------------------
@@ -169,32 +163,32 @@ def test_ladder_points_are_the_plans_standards(plan):
     figure = ladder_figure(plan)
     standards = _series(figure, "standards")
     # conftest: S1 and S2 have FeSCN2+ 7.5e-5 and 7.27e-5 mol/L and read 0.357 and 0.346.
-    assert list(standards.get_xdata()) == [7.5e-5, 7.27e-5]
-    assert list(standards.get_ydata()) == [0.357, 0.346]
-    assert list(standards.get_xdata()) == [
-        m.equilibrium_M["FeSCN2+"] for m in plan.by_role("standard")
-    ]
+    assert list(standards.x) == [7.5e-5, 7.27e-5]
+    assert list(standards.y) == [0.357, 0.346]
+    assert list(standards.x) == [m.equilibrium_M["FeSCN2+"] for m in plan.by_role("standard")]
     blank = _series(figure, "blank")
-    assert list(blank.get_xdata()) == [0.0]
-    assert list(blank.get_ydata()) == [0.012]
-    labels = {text.get_text() for text in figure.axes[0].texts}
-    assert {"S1", "S2", "B1"} <= labels
+    assert list(blank.x) == [0.0]
+    assert list(blank.y) == [0.012]
+    assert {"S1", "S2", "B1"} <= _notes(figure)
 
 
 def test_ladder_curves_follow_the_stray_light_formula(plan):
     figure = ladder_figure(plan)
-    beer_lambert = np.asarray(_series(figure, "beer-lambert").get_ydata())
-    reading = np.asarray(_series(figure, "stray-light").get_ydata())
+    beer_lambert = _series(figure, "beer-lambert").y
+    reading = _series(figure, "stray-light").y
     s = 0.001  # conftest: stray_light
     # A_obs = log10((1 + s) / (10^-A + s)) (DESIGN.md section 3).
     np.testing.assert_allclose(reading, np.log10((1 + s) / (10.0**-beer_lambert + s)), rtol=1e-12)
     # The Beer-Lambert line is straight with slope b eps = 1 cm x 4600 L/(mol cm).
-    x = np.asarray(_series(figure, "beer-lambert").get_xdata())
+    x = _series(figure, "beer-lambert").x
     np.testing.assert_allclose(np.diff(beer_lambert) / np.diff(x), 4600.0, rtol=1e-9)
-    # The window is the shaded band 0.1-0.9.
-    (band,) = [p for p in figure.axes[0].patches if p.get_gid() == "window"]
-    box = band.get_bbox()
-    assert (box.y0, box.y1) == pytest.approx((0.1, 0.9))
+    # The window is the shaded band 0.1-0.9, across the readings' axis.
+    band = _series(figure, "window")
+    assert (band.axis, band.low, band.high) == ("y", pytest.approx(0.1), pytest.approx(0.9))
+    # The top axis is the Beer-Lambert absorbance: the blank's 0.012 read through the stray
+    # light, plus b eps c.
+    assert figure.top.slope == pytest.approx(4600.0)
+    assert figure.top.intercept == pytest.approx(-np.log10((1 + s) * 10.0**-0.012 - s))
 
 
 def _one_to_one_plan():
@@ -207,8 +201,8 @@ def test_bound_fraction_sweep_matches_the_one_to_one_quadratic():
     plan = _one_to_one_plan()
     figure = bound_fraction_figure(plan)
     sweep = _series(figure, "sweep")
-    excess_M = np.asarray(sweep.get_xdata())
-    bound = np.asarray(sweep.get_ydata())
+    excess_M = sweep.x
+    bound = sweep.y
     K = 100.0  # conftest: log_beta 2.0
     limiting_M = 2e-4 * 4.123456789012  # conftest: the larger standard's SCN- total (S1)
     # [ML] is the smaller root of [ML]^2 - (M + L + 1/K)[ML] + M L = 0 (mass balances of
@@ -218,37 +212,38 @@ def test_bound_fraction_sweep_matches_the_one_to_one_quadratic():
     np.testing.assert_allclose(bound, complex_M / limiting_M, rtol=1e-8, atol=1e-12)
     assert np.all(np.diff(excess_M) > 0)
     # Log axis in mol/L.
-    assert figure.axes[0].get_xscale() == "log"
+    assert figure.x.log
 
 
 def test_bound_fraction_marks_tolerance_needed_excess_and_standards():
     plan = _one_to_one_plan()
     figure = bound_fraction_figure(plan)
-    assert list(_series(figure, "tolerance").get_ydata()) == pytest.approx([0.98, 0.98])
+    tolerance = _series(figure, "tolerance")
+    assert (tolerance.axis, tolerance.value) == ("y", pytest.approx(0.98))
     # DESIGN.md section 3: [M]total = (1 - tol)[L]total + (1 - tol)/(K tol).
     tol, K, limiting_M = 0.02, 100.0, 2e-4 * 4.123456789012
     needed_M = (1 - tol) * limiting_M + (1 - tol) / (K * tol)
-    assert _series(figure, "needed").get_xdata()[0] == pytest.approx(needed_M, rel=2e-3)
+    assert _series(figure, "needed").value == pytest.approx(needed_M, rel=2e-3)
     standards = _series(figure, "standards")
     # conftest: both standards hold 5 mL of 0.2 mol/L iron in 10 mL, bound fraction 0.909.
-    assert list(standards.get_xdata()) == pytest.approx([0.1, 0.1])
-    assert list(standards.get_ydata()) == [0.909, 0.909]
-    labels = {text.get_text() for text in figure.axes[0].texts}
-    assert "S1, S2" in labels
+    assert list(standards.x) == pytest.approx([0.1, 0.1])
+    assert list(standards.y) == [0.909, 0.909]
+    assert "S1, S2" in _notes(figure)
     # The strongest excess stock (iron, 0.2 mol/L) bounds the hatched region.
-    (beyond,) = [p for p in figure.axes[0].patches if p.get_gid() == "beyond-stock"]
-    assert beyond.get_bbox().x0 == pytest.approx(0.2)
+    beyond = _series(figure, "beyond-stock")
+    assert beyond.hatch
+    assert (beyond.axis, beyond.low) == ("x", pytest.approx(0.2))
 
 
 def test_bound_fraction_shows_the_coloured_share_when_another_product_holds_some():
     # With iron in excess (the fixture), Fe(SCN)2+ holds almost no thiocyanate: no extra
     # curve. With thiocyanate in excess (the recipe), it holds much of the iron.
     figure = bound_fraction_figure(make_plan())
-    assert not [line for line in figure.axes[0].get_lines() if line.get_gid() == "coloured-only"]
+    assert not figure.find("coloured-only")
     recipe = plan_of(ROOT / "recipes" / "iron-thiocyanate-ligand-excess.toml")
     figure = bound_fraction_figure(recipe)
-    coloured = np.asarray(_series(figure, "coloured-only").get_ydata())
-    bound = np.asarray(_series(figure, "sweep").get_ydata())
+    coloured = _series(figure, "coloured-only").y
+    bound = _series(figure, "sweep").y
     assert np.all(coloured <= bound + 1e-12)
     assert float(np.max(bound - coloured)) > 0.1
 
@@ -257,28 +252,26 @@ def test_coverage_points_are_the_plans_tests(plan):
     figure = coverage_figure(plan)
     tests = _series(figure, "tests")
     # conftest: T1 and T2 are bound 0.45 and 0.425.
-    assert list(tests.get_xdata()) == [0.45, 0.425]
-    axes = figure.axes[0]
-    rows = dict(zip(axes.get_yticks(), (t.get_text() for t in axes.get_yticklabels()), strict=True))
-    assert [rows[y] for y in tests.get_ydata()] == ["T1", "T2"]
-    (band,) = [p for p in axes.patches if p.get_gid() == "informative"]
-    assert (band.get_bbox().x0, band.get_bbox().x1) == pytest.approx((0.2, 0.8))
-    edges = [line.get_xdata()[0] for line in axes.get_lines() if line.get_gid() == "design-range"]
+    assert list(tests.x) == [0.45, 0.425]
+    rows = dict(zip(figure.y.ticks, figure.y.tick_labels, strict=True))
+    assert [rows[y] for y in tests.y] == ["T1", "T2"]
+    band = _series(figure, "informative")
+    assert (band.low, band.high) == pytest.approx((0.2, 0.8))
+    edges = [rule.value for rule in figure.find("design-range")]
     assert edges == pytest.approx([0.15, 0.85])
 
 
 def test_histograms_mark_the_true_values(simulation):
     k_figure = histogram_figure(simulation, "K")
-    assert _series(k_figure, "true").get_xdata()[0] == simulation.K_true
+    assert _series(k_figure, "true").value == simulation.K_true
     epsilon_figure = histogram_figure(simulation, "epsilon")
-    assert _series(epsilon_figure, "true").get_xdata()[0] == simulation.epsilon_true
+    assert _series(epsilon_figure, "true").value == simulation.epsilon_true
     assert simulation.epsilon_true == pytest.approx(4700.0)  # default.toml: epsilon = 4700
 
 
-def test_figure_functions_serialise_any_figure(plan):
+def test_a_figure_writes_the_same_bytes_twice(plan):
     figure = coverage_figure(plan)
-    assert figure_png(figure) == figure_png(figure)
-    assert figure_svg(figure) == figure_svg(figure)
+    assert figure.svg() == figure.svg()
 
 
 # ---------------------------------------------------------------------------------------------
@@ -312,11 +305,11 @@ _MD_IMAGE = re.compile(r"!\[[^\]]*\]\(([^)]+)\)")
 def test_answer_key_references_each_plot_in_the_folder(plan, drop):
     plan = dataclasses.replace(plan, mixtures=tuple(m for m in plan.mixtures if m.role not in drop))
     files = plan_files(plan, date=DATE, plots=True)
-    svgs = sorted(name for name in files if name.startswith("plots/") and name.endswith(".svg"))
-    pngs = sorted(name for name in files if name.startswith("plots/") and name.endswith(".png"))
+    svgs = sorted(name for name in files if name.startswith("plots/"))
     assert svgs
+    assert all(name.endswith(".svg") for name in svgs)
     assert sorted(_IMG.findall(files["answer-key.html"])) == svgs
-    assert sorted(_MD_IMAGE.findall(files["answer-key.md"])) == pngs
+    assert sorted(_MD_IMAGE.findall(files["answer-key.md"])) == svgs
     # Sized to the printable width.
     assert ".plot img { display: block; max-width: 100%;" in files["answer-key.html"]
 
@@ -339,7 +332,7 @@ def test_plan_out_writes_the_plots(tmp_path, default_out):
     result = CliRunner().invoke(app, ["plan", "--out", str(second), "--date", DATE, "-q"])
     assert result.exit_code == 0, result.stderr
     names = sorted(p.name for p in (first / "plots").iterdir())
-    assert names == sorted(f"{stem}.{ext}" for stem in PLAN_PLOTS for ext in ("png", "svg"))
+    assert names == sorted(f"{stem}.svg" for stem in PLAN_PLOTS)
     for path in (first / "plots").iterdir():
         assert (second / "plots" / path.name).read_bytes() == path.read_bytes(), path.name
     html = (first / "answer-key.html").read_text()
@@ -369,9 +362,10 @@ def test_no_plots_writes_the_same_sheets_without_figures(tmp_path, default_out):
         assert (out / name).read_bytes() == (default_out / name).read_bytes(), name
 
 
-def test_plan_without_out_does_not_import_matplotlib():
-    # Nor the other libraries `planner plan` has no use for without --out: scipy, sympy,
-    # jinja2, and pyparsing (periodictable's formula grammar, which cost more to import than
+def test_plan_without_out_imports_no_heavy_library():
+    # No plotting library at all (the figures are SVG written by the planner), and none of
+    # the libraries `planner plan` has no use for without --out: scipy, sympy, jinja2, and
+    # pyparsing (periodictable's formula grammar, which cost more to import than
     # the rest of reading a plan file; the planner reads formulas itself).
     code = (
         "import sys\n"
@@ -397,8 +391,8 @@ def test_tick_labels_use_powers_of_ten_without_mathtext(drawn):
 
 
 def test_plan_out_leaves_a_fresh_home_untouched(tmp_path):
-    # matplotlib would create ~/.config/matplotlib and ~/.cache/matplotlib (font list) on
-    # first use; the planner gives it a scratch folder instead when they do not exist.
+    # The planner writes only where it is told: no configuration or cache folder appears in
+    # a home that had none.
     home = tmp_path / "home"
     (home / "tmp").mkdir(parents=True)
     environment = {

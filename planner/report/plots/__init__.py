@@ -1,8 +1,9 @@
-"""Figures of a plan and of its virtual class: matplotlib figures, PNG and SVG bytes.
+"""Figures of a plan, of its virtual class and of the class's readings, as SVG bytes.
 
-The package holds one module per job: :mod:`._style` (palette, settings, helpers, bytes),
-:mod:`.plan` (the plan figures) and :mod:`.simulation` (the virtual class's figures); the
-figures draw numbers the core computed (the bound-fraction sweep comes from
+The package holds one module per job: :mod:`._style` (palette, face, number formats),
+:mod:`._svg` (the chart kit: marks, ticks, layout, SVG text), :mod:`.plan` (the plan figures),
+:mod:`.simulation` (the virtual class's figures) and :mod:`.readings` (the class's readings);
+the figures draw numbers the core computed (the bound-fraction sweep comes from
 :func:`planner.forward.bound_fraction_sweep`) and do no chemistry of their own.
 
 Plan figures (written by ``planner plan --out`` into ``plots/``, shown on the answer key):
@@ -17,15 +18,15 @@ Plan figures (written by ``planner plan --out`` into ``plots/``, shown on the an
   range 0.2-0.8 and the design's range.
 
 Virtual-class figures (``planner simulate --out``): :func:`histogram_figure` for K or eps by
-analysis, with :func:`k_histogram_png` and :func:`epsilon_histogram_png` as shortcuts.
+analysis, :func:`technique_histogram_figure` for K by bench preset.
 
-Every figure is a :class:`matplotlib.figure.Figure` on an Agg canvas: nothing touches pyplot's
-global figure list or a display. matplotlib is imported inside the functions, so importing this
-module costs nothing until a figure is drawn (``planner plan`` without ``--out`` never pays for
-it). Drawing and saving run inside :func:`matplotlib.rc_context` with the settings below, which
-fix the SVG id salt and leave out dates and version strings, so the bytes depend only on the
-data and the matplotlib version. SVG text stays text (``svg.fonttype = "none"``), so labels can
-be searched and read by screen readers.
+Every figure is a :class:`~planner.report.plots._svg.Chart`: its marks keep the numbers they
+plot, by series name (``gid``), and :meth:`~planner.report.plots._svg.Chart.svg` writes it
+as SVG 1.1 with no plotting library (a figure takes milliseconds). The bytes depend on the
+data alone: no date, no version string, ids derived from the figure's name. Text stays text,
+so labels can be searched and read by screen readers, and print crisply; the HTML sheets
+show the SVG files, the Markdown answer key links them, and Chromium keeps them as vectors
+in the PDF.
 
 Colours are our own, taken from the sheets' palette: ink, slate teal and rust are dark, ochre
 is mid-grey in greyscale and the blue-grey of the bands pale; every series also differs from
@@ -35,7 +36,7 @@ Figures are 6.6 in wide (168 mm) to print at their natural size inside the A4 pr
 with text from 9 to 11 pt.
 """
 
-from planner.report.plots._style import figure_png, figure_svg
+from planner.report.plots._svg import Chart
 from planner.report.plots.plan import (
     PLAN_PLOTS,
     available_plan_plots,
@@ -45,9 +46,7 @@ from planner.report.plots.plan import (
     plan_plots,
 )
 from planner.report.plots.simulation import (
-    epsilon_histogram_png,
     histogram_figure,
-    k_histogram_png,
     simulation_plots,
     technique_histogram_figure,
     technique_plots,
@@ -55,14 +54,11 @@ from planner.report.plots.simulation import (
 
 __all__ = [
     "PLAN_PLOTS",
+    "Chart",
     "available_plan_plots",
     "bound_fraction_figure",
     "coverage_figure",
-    "epsilon_histogram_png",
-    "figure_png",
-    "figure_svg",
     "histogram_figure",
-    "k_histogram_png",
     "ladder_figure",
     "plan_plots",
     "simulation_plots",

@@ -10,30 +10,26 @@ from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
 import numpy as np
-from numpy.typing import ArrayLike, NDArray
+from numpy.typing import NDArray
 
 from planner.report._format import plain, significant
-from planner.report.plots._style import (
-    _BAND,
-    _INK,
-    _LABEL_BOX,
-    _OCHRE,
-    _RULE,
-    _RUST,
-    _TEAL,
-    _amount,
-    _both,
-    _concentration_axis,
-    _finish,
-    _new_figure,
-    _style,
-    _text,
+from planner.report.plots._style import BAND, INK, OCHRE, RULE, RUST, TEAL, amount
+from planner.report.plots._svg import (
+    Arrow,
+    Band,
+    Chart,
+    Line,
+    Note,
+    Points,
+    Rule,
+    Scale,
+    Segments,
+    Stroke,
+    TopAxis,
+    array,
 )
 
 if TYPE_CHECKING:
-    from matplotlib.axes import Axes
-    from matplotlib.figure import Figure
-
     from planner.result import Plan
 
 
@@ -95,40 +91,12 @@ def _id_group(ids: Sequence[str]) -> str:
     return ", ".join(ids)
 
 
-def _points(
-    axes: Axes,
-    x: ArrayLike,
-    y: ArrayLike,
-    *,
-    marker: str,
-    face: str,
-    gid: str,
-    label: str,
-    size: float = 7.0,
-    zorder: float = 2.0,
-) -> None:
-    """The plan's mixtures as markers of ``size`` points edged in ink, without a line
-    (``gid`` names the series; ``zorder`` 2 is matplotlib's default for lines)."""
-    axes.plot(
-        x,
-        y,
-        linestyle="none",
-        marker=marker,
-        markersize=size,
-        markerfacecolor=face,
-        markeredgecolor=_INK,
-        gid=gid,
-        label=label,
-        zorder=zorder,
-    )
-
-
 # ---------------------------------------------------------------------------------------------
 # 1. The calibration ladder
 # ---------------------------------------------------------------------------------------------
 
 
-def ladder_figure(plan: Plan) -> Figure:
+def ladder_figure(plan: Plan) -> Chart:
     """The planned calibration ladder: predicted reading against coloured-product concentration.
 
     Parameters
@@ -138,7 +106,7 @@ def ladder_figure(plan: Plan) -> Figure:
 
     Returns
     -------
-    Figure
+    Chart
         One axes. x: equilibrium concentration of the coloured product [mol/L] (top axis: the
         Beer-Lambert absorbance it gives, blank included [unitless]); y: photometer reading
         [unitless]. Series (``gid``): ``window`` (the linear window, a shaded band),
@@ -195,114 +163,75 @@ def ladder_figure(plan: Plan) -> Figure:
     reading = observed_absorbance(beer_lambert, stray)
     deficit = high - float(observed_absorbance(high, stray))
 
-    with _style():
-        figure, axes = _new_figure(3.9)
-        axes.axhspan(
+    chart = Chart(
+        "ladder",
+        3.9,
+        title=f"Planned calibration ladder: {_id_group([m.id for m in standards])}"
+        + (f" and blank {_id_group([m.id for m in blanks])}" if blanks else ""),
+    )
+    chart.add(
+        Band(
+            "window",
+            "y",
             low,
             high,
-            facecolor=_BAND,
-            edgecolor=_RULE,
-            linestyle=":",
-            linewidth=0.9,
-            zorder=0,
-            gid="window",
+            fill=BAND,
+            edge=Stroke(RULE, 0.9, (1.0, 1.6)),
             label=f"linear window {plain(low, 3)}–{plain(high, 3)}",
         )
-        axes.plot(
+    )
+    chart.add(
+        Line(
+            "beer-lambert",
             concentration,
             beer_lambert,
-            color=_INK,
-            linestyle="--",
-            linewidth=1.1,
-            gid="beer-lambert",
+            Stroke(INK, 1.1, (4.0, 2.0)),
             label="Beer-Lambert, no stray light",
         )
-        axes.plot(
+    )
+    chart.add(
+        Line(
+            "stray-light",
             concentration,
             reading,
-            color=_TEAL,
-            linewidth=2.0,
-            gid="stray-light",
+            Stroke(TEAL, 2.0),
             label=f"stray light {plain(100 * stray, 3)} %: {significant(deficit, 2)} low at "
             f"{plain(high, 3)}",
         )
-        axes.plot(
+    )
+    chart.add(
+        Points(
+            "assumed",
             x_assumed,
             y_std,
-            linestyle="none",
-            marker="o",
-            markersize=8,
-            markerfacecolor="none",
-            markeredgecolor=_RUST,
-            markeredgewidth=1.3,
-            gid="assumed",
-            label=f"standards at total {_text(limiting)} (all-bound analysis)",
+            size=8.0,
+            face="none",
+            edge=RUST,
+            edge_width=1.3,
+            label=f"standards at total {limiting} (all-bound analysis)",
         )
-        _points(
-            axes,
-            x_std,
-            y_std,
-            marker="o",
-            size=6.5,
-            face=_TEAL,
-            gid="standards",
-            label="standards, predicted",
-        )
-        for mixture, x, y in zip(standards, x_std, y_std, strict=True):
-            axes.annotate(
-                _text(mixture.id),
-                (float(x), float(y)),
-                xytext=(-6, 5),
-                textcoords="offset points",
-                ha="right",
-                fontsize=9.5,
-            )
-        if blanks:
-            blank_ids = _id_group([m.id for m in blanks])
-            x_blank = [m.equilibrium_M.get(product, 0.0) for m in blanks]
-            y_blank = [m.absorbance for m in blanks]
-            _points(
-                axes,
-                x_blank,
-                y_blank,
-                marker="s",
-                face=_OCHRE,
-                zorder=4,
-                gid="blank",
-                label=f"blank {_text(blank_ids)}",
-            )
-            axes.annotate(
-                _text(blank_ids),
-                (x_blank[0], y_blank[0]),
-                xytext=(8, 0),
-                textcoords="offset points",
-                va="center",
-                fontsize=9.5,
-                bbox=_LABEL_BOX,
-            )
-        # A small margin below zero and left of zero keeps the blank's marker off the frame.
-        axes.set_xlim(-0.015 * x_max, x_max)
-        _concentration_axis(axes.xaxis, log=False)
-        # The curves may run past the top: the ladder, not the curve's far end, sets the scale.
-        y_top = max(high, float(y_std.max())) * 1.12
-        axes.set_ylim(min(0.0, float(reading.min())) - 0.025 * y_top, y_top)
-        axes.set_xlabel(f"{_text(product)} concentration at equilibrium [mol/L]")
-        axes.set_ylabel("predicted reading A [unitless]")
-
-        def to_absorbance(c_M: ArrayLike) -> NDArray[np.float64]:
-            return base + slope * np.asarray(c_M, dtype=float)
-
-        def to_concentration(a: ArrayLike) -> NDArray[np.float64]:
-            return (np.asarray(a, dtype=float) - base) / slope
-
-        top = axes.secondary_xaxis("top", functions=(to_absorbance, to_concentration))
-        top.set_xlabel("Beer-Lambert absorbance (no stray light) [unitless]", fontsize=9.5)
-        axes.set_title(
-            f"Planned calibration ladder: {_text(_id_group([m.id for m in standards]))}"
-            + (f" and blank {_text(_id_group([m.id for m in blanks]))}" if blanks else ""),
-            loc="left",
-        )
-        return _finish(figure, axes)
+    )
+    chart.add(Points("standards", x_std, y_std, size=6.5, face=TEAL, label="standards, predicted"))
+    for mixture, x, y in zip(standards, x_std, y_std, strict=True):
+        chart.note(Note(mixture.id, float(x), float(y), dx=-6.0, dy=7.0, anchor="end"))
+    if blanks:
+        blank_ids = _id_group([m.id for m in blanks])
+        x_blank = array([m.equilibrium_M.get(product, 0.0) for m in blanks])
+        y_blank = array([m.absorbance for m in blanks])
+        label = f"blank {blank_ids}"
+        chart.add(Points("blank", x_blank, y_blank, marker="s", face=OCHRE, z=4.0, label=label))
+        chart.note(Note(blank_ids, float(x_blank[0]), float(y_blank[0]), dx=8.0, halo=True))
+    # A small margin below zero and left of zero keeps the blank's marker off the frame; the
+    # curves may run past the top: the ladder, not the curve's far end, sets the scale.
+    y_top = max(high, float(y_std.max())) * 1.12
+    chart.x = Scale(-0.015 * x_max, x_max, label=f"{product} concentration at equilibrium [mol/L]")
+    chart.y = Scale(
+        min(0.0, float(reading.min())) - 0.025 * y_top,
+        y_top,
+        label="predicted reading A [unitless]",
+    )
+    chart.top = TopAxis(base, slope, "Beer-Lambert absorbance (no stray light) [unitless]")
+    return chart
 
 
 # ---------------------------------------------------------------------------------------------
@@ -338,7 +267,7 @@ def _crossing(x: NDArray[np.float64], y: NDArray[np.float64], level: float) -> f
     return float(10 ** (math.log10(x[i - 1]) + t * (math.log10(x[i]) - math.log10(x[i - 1]))))
 
 
-def bound_fraction_figure(plan: Plan) -> Figure:
+def bound_fraction_figure(plan: Plan) -> Chart:
     """Bound fraction of the limiting reagent against the total excess concentration.
 
     Parameters
@@ -348,7 +277,7 @@ def bound_fraction_figure(plan: Plan) -> Figure:
 
     Returns
     -------
-    Figure
+    Chart
         One axes, log x. x: total concentration of the reagent in excess [mol/L]; y: fraction
         of the limiting reagent held in product species, weighted by coefficient [unitless].
         Series (``gid``): ``sweep`` (the solver's curve at the standards' highest
@@ -418,115 +347,99 @@ def bound_fraction_figure(plan: Plan) -> Figure:
         wide_needed = _crossing(wide, wide_bound, level)
         needed = wide_needed if wide_needed is not None and wide_needed <= x_high else None
 
-    with _style():
-        figure, axes = _new_figure(3.9)
-        if 0.0 < stock_M < x_high:
-            axes.axvspan(
+    chart = Chart(
+        "bound-fraction",
+        3.9,
+        title=f"Is the excess large enough? Standards {_id_group([m.id for m in standards])}",
+        grid=True,
+    )
+    if 0.0 < stock_M < x_high:
+        chart.add(
+            Band(
+                "beyond-stock",
+                "x",
                 stock_M,
                 x_high,
-                facecolor="none",
-                hatch="//",
-                edgecolor=_RULE,
-                linewidth=0.0,
-                zorder=0,
-                gid="beyond-stock",
-                label=f"beyond the excess stock ({_amount(stock_M)} mol/L)",
+                hatch=True,
+                label=f"beyond the excess stock ({amount(stock_M)} mol/L)",
             )
-        axes.plot(
+        )
+    chart.add(
+        Line(
+            "sweep",
             x,
             bound_high,
-            color=_TEAL,
-            linewidth=2.0,
-            gid="sweep",
-            label=f"solver at {_text(limiting)} total {_amount(float(l_std.max()))} mol/L",
+            Stroke(TEAL, 2.0),
+            label=f"solver at {limiting} total {amount(float(l_std.max()))} mol/L",
         )
-        bound_low, _ = _sweep(plan, lowest, excess_index, x)
-        # The lowest standard's curve only when it can be told apart from the highest's.
-        if float(np.max(np.abs(bound_low - bound_high))) > 0.005:
-            axes.plot(
+    )
+    bound_low, _ = _sweep(plan, lowest, excess_index, x)
+    # The lowest standard's curve only when it can be told apart from the highest's.
+    if float(np.max(np.abs(bound_low - bound_high))) > 0.005:
+        chart.add(
+            Line(
+                "sweep-lowest",
                 x,
                 bound_low,
-                color=_TEAL,
-                linestyle="--",
-                linewidth=1.4,
-                gid="sweep-lowest",
-                label=f"solver at {_text(limiting)} total {_amount(float(l_std.min()))} mol/L",
+                Stroke(TEAL, 1.4, (4.0, 2.0)),
+                label=f"solver at {limiting} total {amount(float(l_std.min()))} mol/L",
             )
-        # Drawn only when it can be told apart from the curve of all products (1 % of the axis).
-        if float(np.max(bound_high - coloured_high)) > 0.01:
-            coloured = plan.inputs.measured_species.name
-            axes.plot(
+        )
+    # Drawn only when it can be told apart from the curve of all products (1 % of the axis).
+    if float(np.max(bound_high - coloured_high)) > 0.01:
+        coloured = plan.inputs.measured_species.name
+        chart.add(
+            Line(
+                "coloured-only",
                 x,
                 coloured_high,
-                color=_RUST,
-                linestyle=":",
-                linewidth=1.8,
-                gid="coloured-only",
-                label=f"held in {_text(coloured)} only",
+                Stroke(RUST, 1.8, (1.0, 2.5)),
+                label=f"held in {coloured} only",
             )
-        axes.axhline(
+        )
+    chart.add(
+        Rule(
+            "tolerance",
+            "y",
             level,
-            color=_INK,
-            linestyle="-.",
-            linewidth=1.1,
-            gid="tolerance",
+            Stroke(INK, 1.1, (5.0, 2.0, 1.0, 2.0)),
             label=f"tolerance: 1 − {plain(tolerance, 3)} = {plain(level, 4)} bound",
         )
-        if needed is not None:
-            axes.axvline(
+    )
+    if needed is not None:
+        chart.add(
+            Rule(
+                "needed",
+                "x",
                 needed,
-                color=_RUST,
-                linestyle=(0, (5.0, 1.5, 1.5, 1.5, 1.5, 1.5)),
-                linewidth=1.3,
-                gid="needed",
-                label=f"smallest sufficient excess {_amount(needed)} mol/L",
+                Stroke(RUST, 1.3, (5.0, 1.5, 1.5, 1.5, 1.5, 1.5)),
+                label=f"smallest sufficient excess {amount(needed)} mol/L",
             )
-        else:
-            axes.text(
-                0.02,
-                0.5,
-                f"tolerance not reached below {_amount(x_high)} mol/L",
-                transform=axes.transAxes,
-                fontsize=9.5,
-            )
-        _points(
-            axes,
-            x_std,
-            f_std,
-            marker="o",
-            face=_OCHRE,
-            zorder=4,
-            gid="standards",
-            label="the plan's standards",
         )
-        groups: dict[tuple[float, float], list[str]] = {}
-        for mixture, xs, fs in zip(standards, x_std, f_std, strict=True):
-            key = (round(math.log10(max(float(xs), 1e-300)), 2), round(float(fs), 3))
-            groups.setdefault(key, []).append(mixture.id)
-        for ids in groups.values():
-            first = next(m for m in standards if m.id == ids[0])
-            axes.annotate(
-                _text(_id_group(ids)),
-                (first.initial_M.get(excess, 0.0), first.bound_fraction),
-                xytext=(-9, 0),
-                textcoords="offset points",
-                ha="right",
-                va="center",
-                fontsize=9.5,
-                bbox=_LABEL_BOX,
-            )
-        axes.set_xscale("log")
-        axes.set_xlim(x_low, x_high)
-        _concentration_axis(axes.xaxis, log=True)
-        axes.set_ylim(0.0, 1.06)
-        axes.set_xlabel(f"{_text(excess)} total (reagent in excess) [mol/L]")
-        axes.set_ylabel(f"bound fraction of {_text(limiting)} [unitless]")
-        axes.set_title(
-            f"Is the excess large enough? Standards {_text(_id_group([m.id for m in standards]))}",
-            loc="left",
+    else:
+        chart.note(
+            Note(f"tolerance not reached below {amount(x_high)} mol/L", 0.02, 0.5, coords="axes")
         )
-        axes.grid(True, which="major", color=_BAND, linewidth=0.8, zorder=0)
-        return _finish(figure, axes)
+    chart.add(Points("standards", x_std, f_std, face=OCHRE, z=4.0, label="the plan's standards"))
+    groups: dict[tuple[float, float], list[str]] = {}
+    for mixture, xs, fs in zip(standards, x_std, f_std, strict=True):
+        key = (round(math.log10(max(float(xs), 1e-300)), 2), round(float(fs), 3))
+        groups.setdefault(key, []).append(mixture.id)
+    for ids in groups.values():
+        first = next(m for m in standards if m.id == ids[0])
+        chart.note(
+            Note(
+                _id_group(ids),
+                first.initial_M.get(excess, 0.0),
+                first.bound_fraction,
+                dx=-9.0,
+                anchor="end",
+                halo=True,
+            )
+        )
+    chart.x = Scale(x_low, x_high, log=True, label=f"{excess} total (reagent in excess) [mol/L]")
+    chart.y = Scale(0.0, 1.06, label=f"bound fraction of {limiting} [unitless]")
+    return chart
 
 
 # ---------------------------------------------------------------------------------------------
@@ -534,7 +447,7 @@ def bound_fraction_figure(plan: Plan) -> Figure:
 # ---------------------------------------------------------------------------------------------
 
 
-def coverage_figure(plan: Plan) -> Figure:
+def coverage_figure(plan: Plan) -> Chart:
     """The test mixtures' bound fractions against the informative range.
 
     Parameters
@@ -544,7 +457,7 @@ def coverage_figure(plan: Plan) -> Figure:
 
     Returns
     -------
-    Figure
+    Chart
         One axes. x: bound fraction of the limiting reagent [unitless], 0 to 1; one row per
         test, the first at the top, labelled with its id. Series (``gid``): ``informative``
         (0.2-0.8, shaded), ``design-range`` (the design's ``bound_fraction_range``, two dashed
@@ -563,73 +476,65 @@ def coverage_figure(plan: Plan) -> Figure:
     rows = np.arange(len(tests), 0, -1, dtype=float)
     low, high = design.bound_fraction_range
 
-    with _style():
-        figure, axes = _new_figure(1.9 + 0.32 * len(tests))
-        axes.axvspan(
+    chart = Chart(
+        "coverage",
+        1.9 + 0.32 * len(tests),
+        title="Coverage of bound fraction by the test mixtures",
+        legend_columns=3,
+    )
+    chart.add(
+        Band(
+            "informative",
+            "x",
             *_INFORMATIVE,
-            facecolor=_BAND,
-            edgecolor="none",
-            zorder=0,
-            gid="informative",
+            fill=BAND,
             label=f"informative about K, {plain(_INFORMATIVE[0], 2)}–{plain(_INFORMATIVE[1], 2)}",
         )
-        for k, edge in enumerate((low, high)):
-            axes.axvline(
+    )
+    for k, edge in enumerate((low, high)):
+        chart.add(
+            Rule(
+                "design-range",
+                "x",
                 edge,
-                color=_RUST,
-                linestyle="--",
-                linewidth=1.2,
-                gid="design-range",
+                Stroke(RUST, 1.2, (4.0, 2.0)),
                 label=f"design range {plain(low, 3)}–{plain(high, 3)}" if k == 0 else None,
             )
-        axes.hlines(rows, 0.0, fractions, color=_RULE, linewidth=0.8, zorder=1)
-        _points(
-            axes,
-            fractions,
-            rows,
-            marker="D",
-            face=_TEAL,
-            zorder=3,
-            gid="tests",
-            label="test mixtures",
         )
-        for f, y in zip(fractions, rows, strict=True):
-            axes.annotate(
-                f"{f:.3f}",
-                (float(f), float(y)),
-                xytext=(7, 0),
-                textcoords="offset points",
-                va="center",
-                fontsize=9,
-            )
-        span_y = 0.25
-        if len(tests) > 1:
-            span = float(fractions.max() - fractions.min())
-            axes.annotate(
-                "",
-                xy=(float(fractions.max()), span_y),
-                xytext=(float(fractions.min()), span_y),
-                arrowprops={"arrowstyle": "<->", "color": _INK, "linewidth": 1.1},
-                gid="span",
-            )
-            axes.text(
-                float(fractions.max()) + 0.015,
-                span_y,
+    chart.add(Segments("stems", np.zeros_like(rows), rows, fractions, rows, Stroke(RULE, 0.8)))
+    chart.add(Points("tests", fractions, rows, marker="D", face=TEAL, label="test mixtures"))
+    for f, y in zip(fractions, rows, strict=True):
+        chart.note(Note(f"{f:.3f}", float(f), float(y), dx=7.0, size=9.0))
+    span_y = 0.25
+    if len(tests) > 1:
+        span = float(fractions.max() - fractions.min())
+        chart.add(
+            Arrow("span", float(fractions.min()), float(fractions.max()), span_y, Stroke(INK, 1.1))
+        )
+        chart.note(
+            Note(
                 f"span {span:.2f} (asked ≥ {plain(design.bound_fraction_span, 3)})",
-                va="center",
-                fontsize=9,
+                float(fractions.min() + fractions.max()) / 2,
+                span_y,
+                dy=8.0,
+                anchor="middle",
+                size=9.0,
+                halo=True,
             )
-        axes.set_yticks(rows, [_text(m.id) for m in tests])
-        axes.set_ylim(span_y - 0.45, len(tests) + 0.6)
-        axes.set_xlim(0.0, 1.0)
-        axes.set_xlabel(f"bound fraction of {_text(design.limiting)} [unitless]")
-        axes.set_ylabel("test mixture")
-        axes.set_title("Coverage of bound fraction by the test mixtures", loc="left")
-        return _finish(figure, axes, columns=3)
+        )
+    chart.x = Scale(0.0, 1.0, label=f"bound fraction of {design.limiting} [unitless]")
+    chart.y = Scale(
+        span_y - 0.45,
+        len(tests) + 0.6,
+        label="test mixture",
+        ticks=tuple(float(r) for r in rows),
+        tick_labels=tuple(m.id for m in tests),
+    )
+    return chart
 
 
 def plan_plots(plan: Plan) -> dict[str, bytes]:
-    """Every plan figure that applies, as ``plots/<stem>.png`` and ``plots/<stem>.svg``.
+    """Every plan figure that applies, as ``plots/<stem>.svg``.
 
     Stems are those of :func:`available_plan_plots`; values are the files' bytes.
     """
@@ -638,7 +543,4 @@ def plan_plots(plan: Plan) -> dict[str, bytes]:
         "bound-fraction": bound_fraction_figure,
         "coverage": coverage_figure,
     }
-    files: dict[str, bytes] = {}
-    for stem in available_plan_plots(plan):
-        files.update(_both(f"plots/{stem}", builders[stem](plan)))
-    return files
+    return {f"plots/{stem}.svg": builders[stem](plan).svg() for stem in available_plan_plots(plan)}

@@ -11,26 +11,24 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from planner.report.plots._style import (
-    _BAND,
-    _INK,
-    _OCHRE,
-    _RUST,
-    _TEAL,
-    _both,
-    _finish,
-    _new_figure,
-    _style,
-    _text,
+from planner.report.plots._style import BAND, INK, OCHRE, RUST, TEAL
+from planner.report.plots._svg import (
+    Band,
+    Chart,
+    Marker,
+    Points,
+    Rects,
+    Rule,
+    Scale,
+    Stroke,
+    array,
 )
 
 if TYPE_CHECKING:
-    from matplotlib.figure import Figure
-
     from planner.readings.analyse import ClassAnalysis
 
 
-def bench_K_figure(result: ClassAnalysis) -> Figure:
+def bench_K_figure(result: ClassAnalysis) -> Chart:
     """Each bench's K by both analyses, each beside its section's predicted 95 % range.
 
     One row per bench set; the grey bar is the predicted range of the global fit's K, the
@@ -38,61 +36,89 @@ def bench_K_figure(result: ClassAnalysis) -> Figure:
     flagged ones.
     """
     benches = result.benches
-    height = 1.4 + 0.16 * len(benches)
-    with _style():
-        figure, axes = _new_figure(height)
-        y = np.arange(len(benches))[::-1]
-        for row, bench in zip(y, benches, strict=True):
-            for estimate, offset, hatch in (
-                (bench.K_global_fit, 0.18, None),
-                (bench.K_all_bound, -0.18, "////"),
-            ):
-                if math.isfinite(estimate.low):
-                    axes.barh(
-                        row + offset,
-                        estimate.high - estimate.low,
-                        left=estimate.low,
-                        height=0.3,
-                        color=_BAND,
-                        hatch=hatch,
-                        edgecolor=_INK if hatch else _BAND,
-                        linewidth=0.3,
-                    )
-        for analysis, offset, colour, marker, label in (
-            ("K_global_fit", 0.18, _TEAL, "o", "global fit"),
-            ("K_all_bound", -0.18, _RUST, "s", "all-bound"),
-        ):
-            for flagged in (False, True):
-                rows = [
-                    (row, getattr(b, analysis).value)
-                    for row, b in zip(y, benches, strict=True)
-                    if bool(b.flags) == flagged and math.isfinite(getattr(b, analysis).value)
-                ]
-                if not rows:
-                    continue
-                axes.plot(
-                    [v for _, v in rows],
-                    [r + offset for r, _ in rows],
-                    linestyle="none",
+    chart = Chart(
+        "bench-K", 1.4 + 0.16 * len(benches), title="Each bench's K against the prediction"
+    )
+    y = np.arange(len(benches))[::-1].astype(float)
+    for analysis, offset, hatch in (("K_global_fit", 0.18, False), ("K_all_bound", -0.18, True)):
+        ranges = [
+            (row, getattr(bench, analysis))
+            for row, bench in zip(y, benches, strict=True)
+            if math.isfinite(getattr(bench, analysis).low)
+        ]
+        if ranges:
+            chart.add(
+                Rects(
+                    f"{analysis}-range",
+                    array([e.low for _, e in ranges]),
+                    array([e.high for _, e in ranges]),
+                    array([row + offset - 0.15 for row, _ in ranges]),
+                    array([row + offset + 0.15 for row, _ in ranges]),
+                    fill=BAND,
+                    hatch=hatch,
+                    edge=Stroke(INK, 0.3) if hatch else None,
+                )
+            )
+    analyses: tuple[tuple[str, float, str, Marker, str], ...] = (
+        ("K_global_fit", 0.18, TEAL, "o", "global fit"),
+        ("K_all_bound", -0.18, RUST, "s", "all-bound"),
+    )
+    for analysis, offset, colour, marker, label in analyses:
+        for flagged in (False, True):
+            rows = [
+                (row, getattr(b, analysis).value)
+                for row, b in zip(y, benches, strict=True)
+                if bool(b.flags) == flagged and math.isfinite(getattr(b, analysis).value)
+            ]
+            if not rows:
+                continue
+            chart.add(
+                Points(
+                    f"{analysis}-{'flagged' if flagged else 'ok'}",
+                    array([v for _, v in rows]),
+                    array([r + offset for r, _ in rows]),
                     marker=marker,
-                    markersize=5,
-                    color=colour,
-                    markerfacecolor="white" if flagged else colour,
+                    size=5.0,
+                    face="#ffffff" if flagged else colour,
+                    edge=colour,
                     label=f"{label}, {'flagged' if flagged else 'ok'} bench",
                 )
-        if math.isfinite(result.K_true):
-            axes.axvline(result.K_true, color=_OCHRE, linestyle="--", label="K the plan assumes")
-        axes.set_yticks(y)
-        axes.set_yticklabels(
-            [_text(f"{b.section}/{b.bench}/{b.replicate}") for b in benches], fontsize=7.5
-        )
-        axes.set_ylabel("section/bench/replicate")
-        axes.set_xlabel("K (bars: predicted 95 % ranges)")
-        axes.set_title("Each bench's K against the prediction")
-        return _finish(figure, axes)
+            )
+    if math.isfinite(result.K_true):
+        dashed = Stroke(OCHRE, 1.5, (4.0, 2.0))
+        chart.add(Rule("true", "x", result.K_true, dashed, label="K the plan assumes"))
+    low, high = _limits(chart)
+    chart.x = Scale(low, high, label="K (bars: predicted 95 % ranges)")
+    chart.y = Scale(
+        -0.6,
+        len(benches) - 0.4,
+        label="section/bench/replicate",
+        ticks=tuple(float(v) for v in y),
+        tick_labels=tuple(f"{b.section}/{b.bench}/{b.replicate}" for b in benches),
+        tick_size=7.5,
+    )
+    return chart
 
 
-def residuals_figure(result: ClassAnalysis) -> Figure:
+def _limits(chart: Chart) -> tuple[float, float]:
+    """x limits holding every finite value the chart's marks place, with 5 % margins."""
+    values: list[float] = []
+    for mark in chart.marks:
+        if isinstance(mark, Points):
+            values.extend(mark.x.tolist())
+        elif isinstance(mark, Rects):
+            values.extend(mark.x0.tolist() + mark.x1.tolist())
+        elif isinstance(mark, Rule):
+            values.append(mark.value)
+    finite = [v for v in values if math.isfinite(v)]
+    if not finite:
+        return 0.0, 1.0
+    low, high = min(finite), max(finite)
+    pad = 0.05 * (high - low) if high > low else max(abs(high), 1.0) * 0.05
+    return low - pad, high + pad
+
+
+def residuals_figure(result: ClassAnalysis) -> Chart:
     """Each bench's global-fit residuals by mixture, in units of the plan's u(A)."""
     ids: list[str] = []
     for bench in result.benches:
@@ -101,45 +127,51 @@ def residuals_figure(result: ClassAnalysis) -> Figure:
                 ids.append(m.id)
     position = {mixture_id: i for i, mixture_id in enumerate(ids)}
     rng = np.random.default_rng(0)  # fixed jitter: the same figure every run
-    with _style():
-        figure, axes = _new_figure(3.4)
-        axes.axhspan(-3, 3, color=_BAND, label="within 3 u(A)")
-        for flagged, colour, marker in ((False, _TEAL, "o"), (True, _RUST, "D")):
-            xs, ys = [], []
-            for bench in result.benches:
-                if bool(bench.flags) != flagged:
+    chart = Chart("residuals", 3.4, title="Global-fit residuals by mixture")
+    chart.add(Band("within", "y", -3.0, 3.0, fill=BAND, label="within 3 u(A)"))
+    chart.add(Rule("zero", "y", 0.0, Stroke(INK, 0.6)))
+    largest = 3.0
+    kinds: tuple[tuple[bool, str, Marker], ...] = ((False, TEAL, "o"), (True, RUST, "D"))
+    for flagged, colour, marker in kinds:
+        xs, ys = [], []
+        for bench in result.benches:
+            if bool(bench.flags) != flagged:
+                continue
+            for m in bench.mixtures:
+                if m.role == "blank" or not math.isfinite(m.residual):
                     continue
-                for m in bench.mixtures:
-                    if m.role == "blank" or not math.isfinite(m.residual):
-                        continue
-                    xs.append(position[m.id] + rng.uniform(-0.2, 0.2))
-                    ys.append(m.residual / m.u_absorbance)
-            if xs:
-                axes.plot(
-                    xs,
-                    ys,
-                    linestyle="none",
+                xs.append(position[m.id] + rng.uniform(-0.2, 0.2))
+                ys.append(m.residual / m.u_absorbance)
+        if xs:
+            largest = max(largest, *(abs(v) for v in ys if math.isfinite(v)))
+            chart.add(
+                Points(
+                    "flagged" if flagged else "ok",
+                    array(xs),
+                    array(ys),
                     marker=marker,
-                    markersize=4,
-                    color=colour,
-                    markerfacecolor="white" if flagged else colour,
+                    size=4.0,
+                    face="#ffffff" if flagged else colour,
+                    edge=colour,
                     label="flagged bench" if flagged else "ok bench",
                 )
-        axes.axhline(0, color=_INK, linewidth=0.6)
-        axes.set_xticks(range(len(ids)))
-        axes.set_xticklabels([_text(i) for i in ids])
-        axes.set_xlabel("mixture")
-        axes.set_ylabel("residual / u(A)")
-        axes.set_title("Global-fit residuals by mixture")
-        return _finish(figure, axes)
+            )
+    chart.x = Scale(
+        -0.6,
+        len(ids) - 0.4,
+        label="mixture",
+        ticks=tuple(float(i) for i in range(len(ids))),
+        tick_labels=tuple(ids),
+    )
+    chart.y = Scale(-1.1 * largest, 1.1 * largest, label="residual / u(A)")
+    return chart
 
 
 def analysis_plots(result: ClassAnalysis) -> dict[str, bytes]:
-    """``plots/bench-K.png``/``.svg`` and ``plots/residuals.png``/``.svg``."""
-    files: dict[str, bytes] = {}
+    """``plots/bench-K.svg`` and ``plots/residuals.svg``, as bytes (none without benches)."""
     if not result.benches:
-        return files
-    for stem, draw in (("bench-K", bench_K_figure), ("residuals", residuals_figure)):
-        for name, data in _both(stem, draw(result)).items():
-            files[f"plots/{name}"] = data
-    return files
+        return {}
+    return {
+        "plots/bench-K.svg": bench_K_figure(result).svg(),
+        "plots/residuals.svg": residuals_figure(result).svg(),
+    }

@@ -12,22 +12,10 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.report._format import significant
-from planner.report.plots._style import (
-    _INK,
-    _OCHRE,
-    _PNG_DPI,
-    _TEAL,
-    _both,
-    _finish,
-    _new_figure,
-    _style,
-    figure_png,
-)
+from planner.report.plots._style import INK, OCHRE, TEAL
+from planner.report.plots._svg import Chart, Line, Rects, Rule, Scale, Stroke, steps
 
 if TYPE_CHECKING:
-    from matplotlib.axes import Axes
-    from matplotlib.figure import Figure
-
     from planner.predict.montecarlo import Simulation, Summary
 
 
@@ -44,19 +32,18 @@ def _finite(values: NDArray[np.float64]) -> NDArray[np.float64]:
     return result
 
 
-def _true_line(axes: Axes, true_value: float, symbol: str, unit: str) -> None:
+def _true_line(true_value: float, symbol: str, unit: str) -> Rule:
     """The dashed vertical line at the true value, labelled with it."""
-    axes.axvline(
+    return Rule(
+        "true",
+        "x",
         true_value,
-        color=_INK,
-        linestyle="--",
-        linewidth=1.4,
-        gid="true",
+        Stroke(INK, 1.4, (4.0, 2.0)),
         label=f"true {symbol} {significant(true_value, 4)} {unit}",
     )
 
 
-def histogram_figure(simulation: Simulation, quantity: Literal["K", "epsilon"] = "K") -> Figure:
+def histogram_figure(simulation: Simulation, quantity: Literal["K", "epsilon"] = "K") -> Chart:
     """Histogram of K or of eps over the virtual class, all-bound and global-fit analyses.
 
     Parameters
@@ -69,11 +56,12 @@ def histogram_figure(simulation: Simulation, quantity: Literal["K", "epsilon"] =
 
     Returns
     -------
-    Figure
+    Chart
         One axes: the quantity on x, benches per bin on y; the all-bound analysis filled
-        (``gid`` ``all_bound``), the global fit as a hatched outline (``global_fit``), the
-        true value as a dashed line (``true``), and each analysis's 95 % interval as a bar
-        along the top; the legend sits below the axes so it never hides the data.
+        (``gid`` ``all_bound``), the global fit as an outline (``global_fit``), the true
+        value as a dashed line (``true``), and each analysis's 95 % interval as a bar along
+        the top (``all_bound-interval``, ``global_fit-interval``); the legend sits below the
+        axes so it never hides the data.
     """
     if quantity == "K":
         all_bound, global_fit = _finite(simulation.K_all_bound), _finite(simulation.K_global_fit)
@@ -90,84 +78,72 @@ def histogram_figure(simulation: Simulation, quantity: Literal["K", "epsilon"] =
     low, high = (float(v) for v in np.quantile(both, [0.0005, 0.9995]))
     low, high = min(low, true_value), max(high, true_value)
     pad = 0.03 * (high - low) if high > low else 1.0
-    bins = [float(edge) for edge in np.linspace(low - pad, high + pad, _BINS + 1)]
+    bins = np.linspace(low - pad, high + pad, _BINS + 1)
 
-    with _style():
-        figure, axes = _new_figure(3.9)
-        axes.hist(
-            all_bound,
-            bins=bins,
-            color=_TEAL,
-            edgecolor=_TEAL,
-            alpha=0.85,
-            gid="all_bound",
+    counts, _ = np.histogram(all_bound, bins=bins)
+    chart = Chart(
+        f"{'K' if quantity == 'K' else 'epsilon'}-histogram",
+        3.9,
+        title=f"Virtual class of {simulation.trials} benches: {symbol} by analysis",
+    )
+    chart.add(
+        Rects(
+            "all_bound",
+            bins[:-1],
+            bins[1:],
+            np.zeros_like(counts, dtype=float),
+            counts.astype(float),
+            fill=TEAL,
+            opacity=0.85,
             label=f"all-bound analysis (mean {significant(summaries[0].mean, 4)} {unit})",
         )
-        if global_fit.size:
-            axes.hist(
-                global_fit,
-                bins=bins,
-                histtype="step",
-                color=_OCHRE,
-                linewidth=2.0,
-                hatch="///",
-                fill=False,
-                gid="global_fit",
+    )
+    top = float(counts.max()) if counts.size else 1.0
+    if global_fit.size:
+        fit_counts, _ = np.histogram(global_fit, bins=bins)
+        top = max(top, float(fit_counts.max()))
+        x, y = steps(bins, fit_counts)
+        chart.add(
+            Line(
+                "global_fit",
+                x,
+                y,
+                Stroke(OCHRE, 2.0),
                 label=f"global fit (mean {significant(summaries[1].mean, 4)} {unit})",
             )
-        _true_line(axes, true_value, symbol, unit)
-        top = axes.get_ylim()[1]
-        for summary, colour, height, name in (
-            (summaries[0], _TEAL, 1.04, "all_bound"),
-            (summaries[1], _OCHRE, 1.09, "global_fit"),
-        ):
-            if summary.valid:
-                axes.plot(
-                    list(summary.ci95),
-                    [top * height] * 2,
-                    color=colour,
-                    linewidth=3,
-                    solid_capstyle="butt",
-                    label=f"{name}: 95 % interval",
-                )
-        axes.set_ylim(0, top * 1.15)
-        axes.set_xlabel(f"{symbol} [{unit}]")
-        axes.set_ylabel("benches per bin [count]")
-        axes.set_title(
-            f"Virtual class of {simulation.trials} benches: {symbol} by analysis", loc="left"
         )
-        return _finish(figure, axes)
-
-
-def k_histogram_png(simulation: Simulation, *, dpi: int = _PNG_DPI) -> bytes:
-    """Histogram of K over the virtual class (see :func:`histogram_figure`), as PNG bytes.
-
-    Parameters
-    ----------
-    simulation
-        From :func:`planner.predict.montecarlo.simulate`.
-    dpi
-        Resolution [dots per inch].
-    """
-    return figure_png(histogram_figure(simulation, "K"), dpi=dpi)
-
-
-def epsilon_histogram_png(simulation: Simulation, *, dpi: int = _PNG_DPI) -> bytes:
-    """Histogram of eps over the virtual class (see :func:`histogram_figure`), as PNG bytes."""
-    return figure_png(histogram_figure(simulation, "epsilon"), dpi=dpi)
+    chart.add(_true_line(true_value, symbol, unit))
+    top = 1.05 * max(top, 1.0)
+    for summary, colour, height, name, shown in (
+        (summaries[0], TEAL, 1.04, "all_bound", "all-bound analysis"),
+        (summaries[1], OCHRE, 1.09, "global_fit", "global fit"),
+    ):
+        if summary.valid:
+            chart.add(
+                Line(
+                    f"{name}-interval",
+                    np.array(summary.ci95, dtype=float),
+                    np.full(2, top * height),
+                    Stroke(colour, 3.0),
+                    label=f"{shown}: 95 % of benches",
+                )
+            )
+    chart.x = Scale(bins[0], bins[-1], label=f"{symbol} [{unit}]")
+    chart.y = Scale(0.0, top * 1.15, label="benches per bin [count]")
+    return chart
 
 
 def simulation_plots(simulation: Simulation) -> dict[str, bytes]:
-    """``K-histogram`` and ``epsilon-histogram``, each as ``.png`` and ``.svg`` bytes."""
-    files: dict[str, bytes] = {}
-    files.update(_both("K-histogram", histogram_figure(simulation, "K")))
-    files.update(_both("epsilon-histogram", histogram_figure(simulation, "epsilon")))
-    return files
+    """``K-histogram.svg`` and ``epsilon-histogram.svg``, as bytes."""
+    return {
+        "K-histogram.svg": histogram_figure(simulation, "K").svg(),
+        "epsilon-histogram.svg": histogram_figure(simulation, "epsilon").svg(),
+    }
 
 
 def technique_histogram_figure(
     simulations: Mapping[str, Simulation], *, all_bound: Mapping[str, bool] | None = None
-) -> Figure:
+) -> Chart:
     """Histograms of the class's K, one per bench preset, on shared bins (all-bound analysis
     where ``all_bound`` says the plan gives it for that preset, else the global fit).
 
@@ -178,7 +154,7 @@ def technique_histogram_figure(
 
     Returns
     -------
-    Figure
+    Chart
         One axes: K on x, benches per bin on y; one step outline per preset (``gid`` the
         preset's name) and the true K as a dashed line.
     """
@@ -194,33 +170,34 @@ def technique_histogram_figure(
     low, high = (float(v) for v in np.quantile(pooled, [0.0005, 0.9995]))
     low, high = min(low, true_value), max(high, true_value)
     pad = 0.03 * (high - low) if high > low else 1.0
-    bins = [float(edge) for edge in np.linspace(low - pad, high + pad, _BINS + 1)]
-    colours = (_TEAL, _OCHRE, _INK)
-    with _style():
-        figure, axes = _new_figure(3.9)
-        for index, (name, data) in enumerate(values.items()):
-            summary = shown[name]
-            axes.hist(
-                data,
-                bins=bins,
-                histtype="step",
-                linewidth=2.0,
-                color=colours[index % len(colours)],
-                gid=name,
+    bins = np.linspace(low - pad, high + pad, _BINS + 1)
+    colours = (TEAL, OCHRE, INK)
+    chart = Chart("K-histogram-by-technique", 3.9, title="Virtual class by bench preset: K")
+    top = 1.0
+    for index, (name, data) in enumerate(values.items()):
+        summary = shown[name]
+        counts, _ = np.histogram(data, bins=bins)
+        top = max(top, float(counts.max()) if counts.size else 0.0)
+        x, y = steps(bins, counts)
+        chart.add(
+            Line(
+                name,
+                x,
+                y,
+                Stroke(colours[index % len(colours)], 2.0),
                 label=f"{name}: 95 % of benches {significant(summary.ci95[0], 4)} to "
                 f"{significant(summary.ci95[1], 4)} L/mol",
             )
-        _true_line(axes, true_value, "K", "L/mol")
-        axes.set_xlabel("K [L/mol]")
-        axes.set_ylabel("benches per bin [count]")
-        axes.set_title("Virtual class by bench preset: K", loc="left")
-        return _finish(figure, axes)
+        )
+    chart.add(_true_line(true_value, "K", "L/mol"))
+    chart.x = Scale(bins[0], bins[-1], label="K [L/mol]")
+    chart.y = Scale(0.0, top * 1.05, label="benches per bin [count]")
+    return chart
 
 
 def technique_plots(
     simulations: Mapping[str, Simulation], *, all_bound: Mapping[str, bool] | None = None
 ) -> dict[str, bytes]:
-    """``K-histogram-by-technique`` as ``.png`` and ``.svg`` bytes."""
-    return _both(
-        "K-histogram-by-technique", technique_histogram_figure(simulations, all_bound=all_bound)
-    )
+    """``K-histogram-by-technique.svg``, as bytes."""
+    chart = technique_histogram_figure(simulations, all_bound=all_bound)
+    return {"K-histogram-by-technique.svg": chart.svg()}
