@@ -908,7 +908,10 @@ def _all_bound_K_error(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _
     if ratio <= 0 or np.any(denominator <= 0):
         return "; the all-bound analysis would give no value of K from these tests"
     error = float(np.mean(x / denominator)) / k_true - 1.0
-    return f"; the all-bound K errs by about {100 * error:+.1f} % from it on this plan's tests"
+    size = f"{100 * error:+.1f} %"
+    if not 0.1 <= 1.0 + error <= 10.0:  # "-100.0 %" alone would hide a factor of a million
+        size += f" (a factor of {1.0 + error:.2g})"
+    return f"; the all-bound K errs by about {size} from it on this plan's tests"
 
 
 def _assumption(

@@ -13,6 +13,7 @@ from __future__ import annotations
 import re
 
 import pytest
+from rich.console import Console
 
 from planner.pipeline import design_plan
 from planner.planfile import parse_plan
@@ -82,6 +83,46 @@ def test_a_K_too_large_for_the_concentrations_is_named_with_its_fix(strong):
     assert "too large to measure at these concentrations" in check.detail
     assert "1/K = 6.3e-09 mol/L" in check.detail
     assert strong.global_fit is None
+
+
+def test_a_bias_of_a_factor_of_a_million_is_said_as_a_factor_not_split_by_cause(strong):
+    # The all-bound K of this plan is about 205 L/mol against K = 10^8.2: its bias "-100 %"
+    # hides a factor of about 1.3e-6 (205 / 1.585e8, by hand). The sheets give the factor,
+    # and give no split by cause: shares such as -100 % and +2.5e7 % multiply correctly to
+    # that factor and mean nothing to a reader.
+    from planner.report.bench_text import bias_line
+    from planner.report.terminal import render_plan
+
+    prediction = strong.prediction
+    assert prediction is not None
+    factor = 1.0 + prediction.K_bias_from_assumption
+    assert factor == pytest.approx(prediction.K / 10**8.2, rel=0.05)
+    assert factor < 1e-5
+    line = bias_line(strong.uncertainty.bias_causes)
+    assert "(a factor of 1.3e-6)" in line
+    assert "too large to split by cause" in line
+    assert "absorbing reagents" not in line
+    console = Console(width=200, record=True)
+    console.print(render_plan(strong))
+    text = console.export_text()
+    assert "global fit: withheld" in text
+    assert "+2.5e7" not in text
+    assert "(a factor of 1.3e-6)" in text
+    # The verify check's own estimate says its factor too.
+    check = _check(strong, "limiting-reagent-assumption")
+    assert re.search(r"-100\.0 % \(a factor of [0-9.]+e-[0-9]+\)", check.detail)
+
+
+def test_moderate_biases_stay_percentages():
+    # +63.4 % (the default plan's all-bound K) is a factor of 1.634: no factor is added; a
+    # factor of exactly ten is still a percentage, past it the factor follows.
+    from planner.report._format import relative_bias
+
+    assert relative_bias(0.634) == "+63.4 %"
+    assert relative_bias(-0.9) == "-90.0 %"
+    assert relative_bias(9.0) == "+900 %"
+    assert relative_bias(-0.95) == "-95.0 % (a factor of 0.050)"
+    assert relative_bias(20.0) == "+2000 % (a factor of 21)"
 
 
 def test_standards_forming_another_product_than_the_measured_one_warn(strong):

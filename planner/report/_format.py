@@ -80,6 +80,28 @@ def percent(fraction: float, digits: int = 3, *, signed: bool = False) -> str:
     return f"{text} %"
 
 
+#: A relative bias whose factor (1 + bias) lies outside these bounds is printed with the
+#: factor as well: past a factor of ten "-100 %" would hide a factor of a million.
+_PLAIN_FACTORS = (0.1, 10.0)
+
+
+def far_off(fraction: float) -> bool:
+    """True when a relative error moves a value by more than a factor of ten either way."""
+    factor = 1.0 + fraction
+    low, high = _PLAIN_FACTORS
+    # The bounds themselves (within round-off: 1 - 0.9 is 0.0999...) are still plain.
+    return math.isfinite(factor) and not low * (1 - 1e-9) <= factor <= high * (1 + 1e-9)
+
+
+def relative_bias(fraction: float, digits: int = 3) -> str:
+    """A relative bias as a signed percentage (``+7.5 %``), with the factor it amounts to when
+    that is past ten either way (``-100 % (a factor of 1.3e-06)``)."""
+    text = percent(fraction, digits, signed=True)
+    if far_off(fraction):
+        text += f" (a factor of {significant(1.0 + fraction, 2)})"
+    return text
+
+
 def is_to_the_mark(addition: Addition) -> bool:
     """True for the diluent filled to the mark of a volumetric flask (DESIGN.md detail 6)."""
     return bool(addition.devices) and all(

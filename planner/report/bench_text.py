@@ -11,7 +11,7 @@ import math
 
 from planner.inputs import PlanInputs
 from planner.lab.bench import bench_terms
-from planner.report._format import percent
+from planner.report._format import far_off, percent, relative_bias
 from planner.result import BiasCauses
 
 __all__ = ["bias_line", "medium_line", "ranges_line"]
@@ -63,17 +63,31 @@ def bias_line(causes: BiasCauses | None) -> str:
     """
     if causes is None:
         return ""
+    together = (
+        (1.0 + causes.all_bound_assumption)
+        * (1.0 + causes.absorbing_reagents)
+        * (1.0 + causes.stray_light)
+        * (1.0 + causes.temperature)
+    ) - 1.0
     parts = [
         ("the all-bound assumption", causes.all_bound_assumption),
         ("absorbing reagents", causes.absorbing_reagents),
         ("stray light", causes.stray_light),
         ("temperature", causes.temperature),
     ]
-    text = (
-        "The all-bound K's bias comes from "
-        + ", ".join(f"{name} {percent(value, 2, signed=True)}" for name, value in parts)
-        + "."
-    )
+    if any(far_off(value) for _, value in parts):
+        # Shares of a factor of a million (-100 % and +2.5e7 %) multiply correctly and mean
+        # nothing to a reader: the whole is said instead.
+        text = (
+            f"The all-bound K's bias, {relative_bias(together, 2)}, is too large to split by "
+            "cause: the all-bound analysis gives no estimate of K from these mixtures."
+        )
+    else:
+        text = (
+            "The all-bound K's bias comes from "
+            + ", ".join(f"{name} {percent(value, 2, signed=True)}" for name, value in parts)
+            + "."
+        )
     if math.isfinite(causes.ionic_medium) and causes.ionic_medium != 0:
         text += " " + medium_line(causes.ionic_medium)
     return text

@@ -38,8 +38,8 @@ from planner.report._format import (
     devices_text,
     is_to_the_mark,
     markdown_text,
-    percent,
     plain,
+    relative_bias,
     scientific,
     significant,
     stock_roles,
@@ -700,7 +700,7 @@ def _analysis_views(plan: Plan) -> tuple[_AnalysisView, ...]:
             ),
             lines=(
                 "Relative bias of K from the all-bound assumption: "
-                f"{percent(p.K_bias_from_assumption, 3, signed=True)}.",
+                f"{relative_bias(p.K_bias_from_assumption, 3)}.",
                 *((causes,) if causes else ()),
                 *((f"K from each test mixture: {per_test} {unit}.",) if per_test else ()),
             ),

@@ -19,7 +19,7 @@ from rich.text import Text
 
 from planner.predict.montecarlo import CHUNK_TRIALS, ClassSpread, Simulation, Summary
 from planner.predict.uncertainty import Budget, UncertaintyResult
-from planner.report._format import percent, significant
+from planner.report._format import percent, relative_bias, significant
 from planner.report.jsonout import dumps
 
 __all__ = [
@@ -384,7 +384,7 @@ def render_simulation(
     if all_bound:
         bias = Text("Bias of the all-bound K against the true K: ", style="bold")
         bias.append(
-            f"{percent(simulation.K_bias_from_assumption, 3, signed=True)}"
+            f"{relative_bias(simulation.K_bias_from_assumption, 3)}"
             if math.isfinite(simulation.K_bias_from_assumption)
             else "-"
         )

@@ -24,8 +24,8 @@ from planner.report._format import (
     deliveries_text,
     devices_text,
     is_to_the_mark,
-    percent,
     plain,
+    relative_bias,
     significant,
     stocks_in_addition_order,
     volume,
@@ -180,12 +180,15 @@ def _prediction_line(plan: Plan) -> Text:
     fit_text = (
         f"global fit: K = {significant(fit.K, 4)} ± {significant(fit.u_K, 2)}{unit}"
         if fit is not None
+        else "global fit: withheld, its numbers would mean nothing here (check "
+        "prediction-meaningful)"
+        if plan.analysis == "global-fit"
         else None
     )
     bound_text = (
         f"all-bound analysis: K = {significant(prediction.K, 4)} ± "
         f"{significant(prediction.u_K, 2)}{unit}, bias from the all-bound assumption "
-        f"{percent(prediction.K_bias_from_assumption, signed=True)}"
+        f"{relative_bias(prediction.K_bias_from_assumption)}"
         if prediction is not None
         else "all-bound analysis: not applicable here"
         if plan.analysis == "global-fit"

@@ -6,7 +6,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 from planner.design.variants import DISTINCTNESS_CHECK, shared_tests
-from planner.report._format import percent, significant
+from planner.report._format import percent, relative_bias, significant
 from planner.report.cautions import cautions_for
 from planner.report.outdir import plan_files
 from planner.report.sheets import _render, prep_sheet_html, prep_sheet_md, readings_template_csv
@@ -67,7 +67,7 @@ def variants_files(
                 analysis="global fit" if plan.analysis == "global-fit" else "all-bound",
                 K=significant(expected[0]) if expected else "-",
                 u_rel=percent(expected[1] / expected[0]) if expected else "-",
-                bias=percent(prediction.K_bias_from_assumption, signed=True) if prediction else "-",
+                bias=relative_bias(prediction.K_bias_from_assumption) if prediction else "-",
                 shares=", ".join(str(n) for n in sorted(partners[number])) or "none",
             )
         )
