@@ -1452,7 +1452,7 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
 
     The mass of solid for one flask is m = c V M / purity (amount c V of the provided ion, one
     formula unit per ion; Harris, Quantitative Chemical Analysis, 9th ed., 2016, ch. 1), with
-    the molar mass from the periodictable package (:func:`planner.chem.species.
+    the molar mass from the standard atomic weights (:func:`planner.chem.species.
     molar_mass_g_per_mol`).
     """
     flask_mL, flasks = stock_flasks(volume_mL)
@@ -1518,8 +1518,9 @@ def _expected_salt(
     """The inert salt of ``design.ionic_medium`` for one flask, re-derived: the plan file's
     own stock made neutral with its counter-ions has I = 1/2 sum c z^2; a 1:1 salt adds its
     concentration to I, so c_salt = (I_target - I_stock) / (1/2 sum nu z^2) and
-    m = c_salt V M (molar mass from periodictable). The flask is made up in the medium before
-    its salt; a dilution's aliquot (fraction a of its source) brings a c_salt(source) of it."""
+    m = c_salt V M (molar mass from the standard atomic weights). The flask is made up in the
+    medium before its salt; a dilution's aliquot (fraction a of its source) brings a
+    c_salt(source) of it."""
     medium = inputs.design.ionic_medium
     if medium is None:
         return {}

@@ -23,6 +23,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from planner.chem.atomic_weights import ATOMIC_WEIGHTS
 from planner.errors import InvalidInputError, shown
 
 __all__ = [
@@ -543,7 +544,8 @@ def _canonical_formula(formula: str) -> str:
 # for a hydrate's water), in the canonical form _canonical_formula writes.
 _SYMBOL_COUNT = re.compile(r"([A-Z][a-z]?)([0-9]*)")
 _GROUP_COUNT = re.compile(r"[0-9]+(?:\.[0-9]+)?")
-# A formula as periodictable structures one: (count, element) and (count, [group]) pairs.
+# A formula as periodictable structures one: (count, element symbol) and (count, [group])
+# pairs.
 _Structure = list[tuple[float, Any]]
 
 
@@ -557,15 +559,14 @@ def element_symbols(name: str) -> frozenset[str]:
 
 
 def _structure(canonical: str) -> _Structure:
-    """Nested (count, element or group) pairs of a canonical formula, in the order written.
+    """Nested (count, element symbol or group) pairs of a canonical formula, in the order
+    written.
 
     The canonical form (element symbols with integer counts, parentheses, decimal group
-    counts) is read here rather than by periodictable's formula parser, whose grammar
-    library (pyparsing) cost more to import than the rest of ``planner plan`` reading a plan
-    file. Elements are periodictable's; an unknown symbol raises ValueError.
+    counts) is read here, as periodictable's formula parser reads it, without its grammar
+    library (pyparsing), which cost more to import than the rest of ``planner plan`` reading
+    a plan file. An unknown symbol raises ValueError.
     """
-    from periodictable import elements
-
     groups: list[_Structure] = [[]]
     position = 0
     while position < len(canonical):
@@ -587,15 +588,17 @@ def _structure(canonical: str) -> _Structure:
             atom = _SYMBOL_COUNT.match(canonical, position)
             if atom is None:  # pragma: no cover - _check_formula_body admits nothing else
                 raise ValueError(canonical[position:])
-            groups[-1].append((int(atom[2]) if atom[2] else 1, elements.symbol(atom[1])))
+            if atom[1] not in ATOMIC_WEIGHTS:
+                raise ValueError(f"unknown element {atom[1]}")
+            groups[-1].append((int(atom[2]) if atom[2] else 1, atom[1]))
             position = atom.end()
     return groups[0]
 
 
-def _count_atoms(structure: _Structure) -> dict[Any, float]:
+def _count_atoms(structure: _Structure) -> dict[str, float]:
     """Atoms of each element, in order of first appearance, as periodictable counts them
     (``periodictable.formulas``), so the mass below is its sum, term for term."""
-    total: dict[Any, float] = {}
+    total: dict[str, float] = {}
     for count, fragment in structure:
         partial = _count_atoms(fragment) if isinstance(fragment, list) else {fragment: 1}
         for atom, atom_count in partial.items():
@@ -603,11 +606,11 @@ def _count_atoms(structure: _Structure) -> dict[Any, float]:
     return total
 
 
-def _mass(atoms: dict[Any, float]) -> float:
+def _mass(atoms: dict[str, float]) -> float:
     """Σ n_E A_r(E), summed in the order of ``atoms`` as periodictable's ``Formula.mass``."""
     mass = 0.0
     for element, count in atoms.items():
-        mass += element.mass * count
+        mass += ATOMIC_WEIGHTS[element] * count
     return mass
 
 
@@ -638,11 +641,12 @@ def molar_mass_g_per_mol(formula: str) -> float:
 
     Notes
     -----
-    M = Σ n_E A_r(E) × 1 g/mol, with the relative atomic masses A_r of the periodictable
-    package, which uses the IUPAC 2021 standard atomic weights (abridged values for elements
-    given as intervals). The text is parsed here, as periodictable's own formula parser
-    would read its canonical form of element symbols, integer counts and parentheses, and
-    summed as periodictable sums a formula's mass.
+    M = Σ n_E A_r(E) × 1 g/mol, with the relative atomic masses A_r of
+    :data:`planner.chem.atomic_weights.ATOMIC_WEIGHTS`, the IUPAC 2021 standard atomic
+    weights (abridged values for elements given as intervals). The text is parsed here, as
+    periodictable's own formula parser would read its canonical form of element symbols,
+    integer counts and parentheses, and summed as periodictable sums a formula's mass (the
+    tests compare the two).
 
     References
     ----------

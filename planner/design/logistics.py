@@ -257,7 +257,7 @@ def _salt(
     inputs: PlanInputs, stock: Stock, flask_mL: float, dilution: tuple[str, float] | None
 ) -> dict[str, Any]:
     """The inert salt of ``design.ionic_medium`` to weigh into one flask of the stock:
-    m = c V M with M from periodictable (:func:`planner.chem.species.molar_mass_g_per_mol`).
+    m = c V M with M from :func:`planner.chem.species.molar_mass_g_per_mol`.
 
     The flask is made up in the medium before its salt (:func:`planner.chem.mixing.
     medium_label`); a dilution's aliquot brings its source's salt, a c_source, so the flask

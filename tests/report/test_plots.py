@@ -365,8 +365,8 @@ def test_no_plots_writes_the_same_sheets_without_figures(tmp_path, default_out):
 def test_plan_without_out_imports_no_heavy_library():
     # No plotting library at all (the figures are SVG written by the planner), and none of
     # the libraries `planner plan` has no use for without --out: scipy, sympy, jinja2, and
-    # pyparsing (periodictable's formula grammar, which cost more to import than
-    # the rest of reading a plan file; the planner reads formulas itself).
+    # periodictable with its formula grammar pyparsing (the planner reads formulas and
+    # weighs them with its own table of atomic weights; the tests hold both to periodictable).
     code = (
         "import sys\n"
         "from planner.cli import main\n"
@@ -375,7 +375,7 @@ def test_plan_without_out_imports_no_heavy_library():
         "    main()\n"
         "except SystemExit:\n"
         "    pass\n"
-        "heavy = ('matplotlib', 'scipy', 'sympy', 'jinja2', 'pyparsing')\n"
+        "heavy = ('matplotlib', 'scipy', 'sympy', 'jinja2', 'pyparsing', 'periodictable')\n"
         "print(sorted(name for name in heavy if name in sys.modules))\n"
     )
     done = subprocess.run(
