@@ -19,7 +19,9 @@ Flag rules (each a :class:`Flag` with its threshold and source; ``docs/guide.md`
     analysis), or off the bench's global fit (a plan designed for the global fit, whose
     standards need not lie on a line), by more than :data:`OFF_LINE_U` standard
     uncertainties of that residual (propagated from the plan's u(A)), Bonferroni-corrected
-    over the bench's standards.
+    over the bench's standards. On the global fit the standard furthest off is left out and
+    the bench refitted, as long as one is off, so that one wrong standard is named alone and
+    with its distance from the fit of the others (:func:`_unmask`).
 ``readings-scaled``
     Every reading scaled by one factor: the least-squares factor between the bench's
     blank-subtracted readings and the predicted ones differs from 1 by more than
@@ -43,7 +45,7 @@ raises few false flags; the 95 % ranges of the answer key are reported beside ev
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Literal
 
@@ -511,6 +513,30 @@ def _analyse_group(
     return _Fits(eps, k_tests, eps_gf, k_gf, residuals, line, line_u)
 
 
+def _residuals_without(
+    section: _Section, rows: NDArray[np.int64], full: NDArray[np.float64], dropped: frozenset[str]
+) -> dict[str, float] | None:
+    """Each fitted mixture's residual against the bench's global fit made without the mixtures
+    ``dropped`` (their residuals included: reading minus what that fit predicts for them), by
+    id; None when the refit does not converge or too little is left to fit."""
+    ids = section.ids
+    kept = np.array([r for r in rows if ids[int(r)] not in dropped], dtype=np.int64)
+    sub = _sub_layout(section.layout, kept)
+    if sub.blanks.size == 0 or sub.standards.size == 0 or sub.tests.size == 0:
+        return None
+    refit = _analyse_group(section, kept, full[kept][None, :])
+    eps, k = refit.epsilon_global_fit, refit.K_global_fit
+    if not (math.isfinite(float(eps[0])) and math.isfinite(float(k[0]))):
+        return None
+    layout = _sub_layout(section.layout, rows)
+    readings = full[rows][None, :]
+    net = readings - readings[:, layout.blanks].mean(axis=1, keepdims=True)
+    table = global_fit_table(section.saved.inputs.reaction, section.saved.inputs.instrument, layout)
+    residuals = global_fit_residuals(table, net, eps, k)[0]
+    fitted = rows[np.concatenate([layout.standards, layout.tests])]
+    return {ids[int(r)]: float(v) for r, v in zip(fitted, residuals, strict=True)}
+
+
 # ---------------------------------------------------------------------------------------------
 # Flags
 # ---------------------------------------------------------------------------------------------
@@ -526,7 +552,10 @@ def _flags(
     missing: Sequence[str],
     scale: float,
     gf_failed: bool,
+    refit: Callable[[frozenset[str]], Mapping[str, float] | None] | None = None,
 ) -> tuple[Flag, ...]:
+    """The bench's flags. ``refit`` gives every fitted mixture's residual against the bench's
+    global fit made without the mixtures named (:func:`_residuals_without`)."""
     inputs = section.saved.inputs
     flags: list[Flag] = []
     if missing:
@@ -564,9 +593,16 @@ def _flags(
         r = m.line_residual if all_bound_line else m.residual
         if math.isfinite(r) and abs(r) > k_std * m.u_residual:
             off.append((m, r))
+    dropped: list[MixtureResult] = []
+    if not all_bound_line and refit is not None:
+        off, dropped = _unmask(off, standards, k_std, refit)
     if off:
         line_words = (
-            "the line through the other standards" if all_bound_line else "the bench's global fit"
+            "the line through the other standards"
+            if all_bound_line
+            else f"the bench's global fit without {', '.join(m.id for m in dropped)}"
+            if dropped
+            else "the bench's global fit"
         )
         flags.append(
             Flag(
@@ -664,6 +700,44 @@ def _flags(
             )
         )
     return tuple(flags)
+
+
+def _unmask(
+    off: list[tuple[MixtureResult, float]],
+    standards: Sequence[MixtureResult],
+    k_std: float,
+    refit: Callable[[frozenset[str]], Mapping[str, float] | None],
+) -> tuple[list[tuple[MixtureResult, float]], list[MixtureResult]]:
+    """The standards off the bench's global fit once the worst ones are left out of it.
+
+    One wrong standard pulls the global fit towards itself, so the right ones then sit off
+    it too and its own residual shrinks. While a standard is off, the one furthest off (in
+    its u) is left out and the bench refitted; a standard is flagged when it stays off the
+    fit without the worst ones, and each standard left out is flagged with its residual
+    against that fit
+    (the masking of outliers in least squares: Rousseeuw and Leroy, Robust Regression and
+    Outlier Detection, 1987, ch. 6, from memory). Returns the flagged standards with their
+    residuals, and those left out.
+    """
+    dropped: list[MixtureResult] = []
+    latest: Mapping[str, float] | None = None
+    while off and len(dropped) < len(standards) - 2:
+        worst = max(off, key=lambda pair: abs(pair[1]) / pair[0].u_residual)[0]
+        residuals = refit(frozenset(m.id for m in [*dropped, worst]))
+        if residuals is None:
+            break
+        dropped.append(worst)
+        latest = residuals
+        off = [
+            (m, residuals[m.id])
+            for m in standards
+            if m not in dropped
+            and math.isfinite(residuals[m.id])
+            and abs(residuals[m.id]) > k_std * m.u_residual
+        ]
+    if latest is None:
+        return off, []
+    return [(m, latest[m.id]) for m in dropped] + off, dropped
 
 
 def _family_factor(count: int) -> float:
@@ -867,7 +941,14 @@ def _bench(
         )
     scale = _scale(section, full)
     missing = [m for m in section.ids if m not in readings]
-    flags = _flags(section, mixtures, missing, scale, fits is not None and not math.isfinite(k_gf))
+    refit = None
+    if fits is not None and section.saved.analysis == "global-fit":
+
+        def refit(dropped: frozenset[str]) -> Mapping[str, float] | None:
+            return _residuals_without(section, rows, full, dropped)
+
+    gf_failed = fits is not None and not math.isfinite(k_gf)
+    flags = _flags(section, mixtures, missing, scale, gf_failed, refit)
     if fits is None:
         flags = (
             *flags,

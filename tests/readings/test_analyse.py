@@ -232,3 +232,36 @@ def _plan_file(tmp_path):
     path = tmp_path / "one.toml"
     path.write_text(text, encoding="utf-8")
     return str(path)
+
+
+@pytest.mark.parametrize("wrong", ["S2", "S4"])
+def test_one_wrong_standard_of_a_global_fit_plan_is_named_alone(default_out, wrong):
+    # The default plan is designed for the global fit. One bench reads every mixture as the
+    # plan predicts, with noise of a fifth of each u(A), but one standard 0.06 high (a
+    # misread: about 10 of its u(A)). Fitted with the others, the wrong standard pulls the
+    # fit and leaves the right ones off it too (by hand: a least-squares fit through one
+    # outlier spreads it over every residual); fitted without it, only it is off.
+    plans = load_plans(default_out)
+    assert plans[1].analysis == "global-fit"
+    rng = np.random.default_rng(5)
+    rows = [
+        (
+            1,
+            1,
+            1,
+            m.id,
+            m.absorbance + rng.normal(0.0, 0.2 * m.u_absorbance) + (0.06 if m.id == wrong else 0),
+        )
+        for m in plans[1].mixtures
+    ]
+    (bench,) = [b for b in _analyse(plans, rows).benches if (b.section, b.bench) == (1, 1)]
+    (flag,) = [f for f in bench.flags if f.rule == "standard-off-line"]
+    assert flag.mixtures == (wrong,)
+    assert f"the bench's global fit without {wrong}" in flag.evidence
+    # Its residual against the fit of the others is the misread, within the noise.
+    residual = float(flag.evidence.split(" is ")[1].split(" off ")[0])
+    assert residual == pytest.approx(0.06, abs=0.01)
+    # Read as planned, the same bench raises no standard-off-line flag at all.
+    clean = [(s, b, r, i, v - (0.06 if i == wrong else 0)) for s, b, r, i, v in rows]
+    (bench,) = [b for b in _analyse(plans, clean).benches if (b.section, b.bench) == (1, 1)]
+    assert "standard-off-line" not in {f.rule for f in bench.flags}
