@@ -38,7 +38,7 @@ DEFAULT_OUT_DATE = "2028-02-29"
 @pytest.fixture(scope="session")
 def default_out(tmp_path_factory) -> Path:
     """``planner plan --out DIR --date 2028-02-29 -q`` of the embedded default plan, run once
-    per session (drawing the plots takes seconds). Read it, do not change it: copy it first."""
+    per session. Read it, do not change it: copy it first."""
     from typer.testing import CliRunner
 
     from planner.cli import app
