@@ -226,3 +226,33 @@ def test_text_width_estimate_is_near_the_font_metrics():
     assert text_width("0123456789", 10.0) == pytest.approx(63.6, rel=0.1)
     assert text_width("mmmm", 10.0) == pytest.approx(4 * 9.74, rel=0.15)
     assert math.isclose(text_width("", 10.0), 0.0)
+
+
+def test_marks_at_values_a_scale_cannot_place_are_left_out():
+    # NaN has no position: those parts are left out. Zero on a log axis lies infinitely far
+    # left: it is drawn just off the page (the axes' clip hides the rest of a bar from it).
+    # Every number written is finite (SVG 1.1, 8.3).
+    from planner.report.plots._svg import Arrow, Band, Rects, Rule, Segments
+
+    chart = _chart(x=Scale(1e-3, 1.0, log=True, label="c [mol/L]"))
+    nan, inf = float("nan"), float("inf")
+    chart.add(Rects("r", np.array([0.01, 0.0]), np.array([0.1, nan]), np.zeros(2), np.ones(2)))
+    x0, x1 = np.array([nan, 0.01]), np.array([0.1, 0.1])
+    chart.add(Segments("s", x0, np.zeros(2), x1, np.ones(2), Stroke()))
+    chart.add(Rule("v", "x", -1.0, Stroke()))
+    chart.add(Band("b", "y", nan, 0.5))
+    chart.add(Arrow("a", 0.01, inf, 0.5, Stroke()))
+    chart.add(Points("p", np.array([0.0, 0.1, nan]), np.array([0.5, 0.5, 0.5])))
+    chart.note(Note("gone", nan, 0.5))
+    root = ET.fromstring(chart.svg())
+    assert_coordinates_finite(root)
+    groups = {g.get("data-gid"): g for g in root.iter(SVG + "g") if g.get("data-gid")}
+    assert len(list(groups["r"].iter(SVG + "rect"))) == 1  # the bar from 0.01 only
+    assert groups["s"].find(SVG + "path").get("d").count("M") == 1
+    assert "v" not in groups  # a rule at -1 on a log axis
+    assert "b" not in groups
+    assert "a" not in groups  # an arrow to infinity: drawn off the page, so left out
+    circles = [float(c.get("cx")) for c in groups["p"].iter(SVG + "circle")]
+    assert len(circles) == 2
+    assert circles[0] < 0  # the point at 0, off the page
+    assert "gone" not in ["".join(t.itertext()) for t in root.iter(SVG + "text")]

@@ -487,16 +487,18 @@ class _Render:
 
     # Positions -------------------------------------------------------------------------------
 
+    # Positions far outside the page are pulled in to this distance [pt] (the clip hides them
+    # either way), so no renderer meets a huge coordinate; NaN stays NaN and is left out.
+    _FAR = 1000.0
+
     def px(self, x: ArrayLike) -> NDArray[np.float64]:
-        result: NDArray[np.float64] = self.left + self.chart.x.fraction(x) * (
-            self.right - self.left
-        )
+        position = self.left + self.chart.x.fraction(x) * (self.right - self.left)
+        result: NDArray[np.float64] = np.clip(position, -self._FAR, self.width + self._FAR)
         return result
 
     def py(self, y: ArrayLike) -> NDArray[np.float64]:
-        result: NDArray[np.float64] = self.bottom - self.chart.y.fraction(y) * (
-            self.bottom - self.top
-        )
+        position = self.bottom - self.chart.y.fraction(y) * (self.bottom - self.top)
+        result: NDArray[np.float64] = np.clip(position, -self._FAR, self.height + self._FAR)
         return result
 
     # Document --------------------------------------------------------------------------------
@@ -523,7 +525,8 @@ class _Render:
         if chart.grid:
             parts.append(self._grid())
         for mark in sorted(chart.marks, key=lambda m: m.z):  # stable: ties keep their order
-            parts.append(self._mark(mark))
+            if self._usable(mark):
+                parts.append(self._mark(mark))
         parts.append(self._frame())
         parts.extend(self._note(note) for note in chart.notes)
         if chart.title:
@@ -555,6 +558,7 @@ class _Render:
         return f"url(#{self.chart.name}-hatch)" if hatch else fill
 
     def _mark(self, mark: Mark) -> str:
+        """One mark's SVG; parts at a non-finite value (NaN, or 0 on a log axis) are left out."""
         if isinstance(mark, Line):
             return self._group(mark, self._polyline(mark.x, mark.y, mark.stroke))
         if isinstance(mark, Points):
@@ -568,6 +572,8 @@ class _Render:
         if isinstance(mark, Band):
             return self._group(mark, self._band(mark))
         if isinstance(mark, Rule):
+            if not math.isfinite(float((self.px if mark.axis == "x" else self.py)(mark.value))):
+                return ""
             if mark.axis == "x":
                 x = float(self.px(mark.value))
                 d = f"M{_n(x)} {_n(self.top)}V{_n(self.bottom)}"
@@ -584,6 +590,7 @@ class _Render:
                 f'<rect x="{_n(min(a, b))}" y="{_n(min(c, d))}" width="{_n(abs(b - a))}" '
                 f'height="{_n(abs(d - c))}"/>'
                 for a, b, c, d in zip(x0, x1, y0, y1, strict=True)
+                if _finite(a, b, c, d)
             )
             fill = self._fill(mark.fill, mark.hatch)
             return self._group(mark, f'<g fill="{fill}"{opacity} {edge}>{body}</g>')
@@ -591,17 +598,28 @@ class _Render:
             ends = zip(
                 self.px(mark.x0), self.py(mark.y0), self.px(mark.x1), self.py(mark.y1), strict=True
             )
-            d = "".join(f"M{_n(a)} {_n(b)}L{_n(c)} {_n(e)}" for a, b, c, e in ends)
+            d = "".join(
+                f"M{_n(a)} {_n(b)}L{_n(c)} {_n(e)}" for a, b, c, e in ends if _finite(a, b, c, e)
+            )
             return self._group(mark, _path(d, mark.stroke))
         return self._group(mark, self._arrow(mark), clip=False)
+
+    def _usable(self, mark: Mark) -> bool:
+        """False for a band with an edge, or an arrow with an end, at no position (NaN) and
+        for an arrow to infinity."""
+        x, y = self.chart.x, self.chart.y
+        if isinstance(mark, Band):
+            scale = x if mark.axis == "x" else y
+            return not np.isnan(scale.fraction([mark.low, mark.high])).any()
+        if isinstance(mark, Arrow):
+            ends = np.append(x.fraction([mark.x0, mark.x1]), y.fraction(mark.y))
+            return bool(np.isfinite(ends).all())
+        return True
 
     def _polyline(self, x: ArrayLike, y: ArrayLike, stroke: Stroke) -> str:
         xs, ys = self.px(x), self.py(y)
         runs: list[str] = []
         pen_up = True
-        # Points far outside the axes are pulled in (the clip hides them either way), so
-        # renderers never meet huge coordinates.
-        ys = np.clip(ys, self.top - 1000.0, self.bottom + 1000.0)
         for a, b in zip(xs, ys, strict=True):
             if not (math.isfinite(a) and math.isfinite(b)):
                 pen_up = True
@@ -732,6 +750,8 @@ class _Render:
             y = self.bottom - note.y * (self.bottom - self.top)
         else:
             x, y = float(self.px(note.x)), float(self.py(note.y))
+        if not _finite(x, y):
+            return ""
         return _text(
             x + note.dx,
             y - note.dy,
@@ -778,6 +798,10 @@ class _Render:
                 f"{opacity} {edge}/>"
             )
         return ""
+
+
+def _finite(*values: float) -> bool:
+    return all(math.isfinite(v) for v in values)
 
 
 def _column_widths(widths: Sequence[float], columns: int) -> list[float]:
