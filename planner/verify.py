@@ -1432,17 +1432,22 @@ def _device_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
             for d in a.devices:
                 uses[d].add(a.stock)
     # Burets have their own, failing check (_burets): they cannot be rinsed between stocks.
-    counts = {d.id: d.count for d in inputs.glassware if d.kind != "buret"}
+    # A piston pipette takes a fresh disposable tip for each stock (common practice), so
+    # one serves any number of stocks; the pipetting sheet says so.
+    counts = {d.id: d.count for d in inputs.glassware if d.kind not in ("buret", "piston-pipette")}
     problems = [
         f"{device} serves {len(stocks)} stocks ({_names(sorted(stocks))}) but a bench has "
         f"{counts[device]}: give each stock its own, or rinse it with the next stock between uses"
         for device, stocks in sorted(uses.items())
         if device in counts and len(stocks) > counts[device]
     ]
+    pistons = {d.id for d in inputs.glassware if d.kind == "piston-pipette"}
+    shared = any(len(stocks) > 1 for device, stocks in uses.items() if device in pistons)
     return _check(
         "device-count",
         problems,
-        "each stock has its own delivery device on every bench",
+        "each stock has its own delivery device on every bench"
+        + (", or a piston pipette with a fresh tip for each stock" if shared else ""),
         warn=True,
     )
 

@@ -1181,3 +1181,109 @@ def test_one_background_electrolyte_reads_as_one_ionic_strength() -> None:
     check = next(c for c in plan.checks if c.name == "ionic-strength")
     assert check.status == "pass"
     assert check.detail.startswith("every mixture at ionic strength 0.1 mol/L (spread ")
+
+
+# An invented micro-scale bench: 1.5 mL tubes, three stocks, three piston pipettes.
+_MICRO = """
+title = "Zinc(II) with an invented dye ligand Z (micro-scale, piston pipettes)"
+
+[reaction]
+temperature_C = 25
+ionic_strength_M = 0.1
+components = ["Zn2+", "Z2-"]
+component_epsilon = { "Z2-" = 1500 }
+
+[[reaction.species]]
+name = "ZnZ"
+formula = { "Zn2+" = 1, "Z2-" = 1 }
+log_beta = 4.3
+epsilon = 21000
+
+
+[instrument]
+wavelength_nm = 540
+path_length_cm = 1.0
+absorbance_window = [0.08, 1.0]
+absorbance_sd = 0.004
+stray_light = 0.002
+cuvette_fill_mL = 1.0
+
+[[stocks]]
+id = "zinc"
+contains_M = { "Zn2+" = 0.010, "NO3-" = 0.020 }
+relative_uncertainty = 0.003
+available_mL = 500
+solid = { formula = "Zn(NO3)2(H2O)6", purity = 0.98 }
+
+[[stocks]]
+id = "dye"
+contains_M = { "Z2-" = 2.0e-4, "Na+" = 4.0e-4 }
+relative_uncertainty = 0.005
+available_mL = 200
+
+[[stocks]]
+id = "buffer"
+contains_M = { "Na+" = 0.1, "NO3-" = 0.1 }
+diluent = true
+
+[[glassware]]
+kind = "piston-pipette"
+range_uL = [100, 1000]
+step_uL = 1
+count = 2
+
+[[glassware]]
+kind = "piston-pipette"
+range_uL = [20, 200]
+step_uL = 0.2
+count = 1
+
+[design]
+standards = 5
+tests = 5
+limiting = "Z2-"
+assumption_tolerance = 0.03
+vessel = "tube"
+total_volume_mL = 1.5
+
+[session]
+sections = 1
+benches_per_section = 12
+replicates = 2
+margin = 0.2
+
+[bench]
+technique = "practised"
+"""
+
+
+def test_a_piston_pipette_serves_several_stocks_with_a_fresh_tip_for_each():
+    # Each piston pipette of this bench delivers all three stocks, which is ordinary practice
+    # with a fresh disposable tip for each stock (common practice): device-count passes
+    # (a shared glass pipette would warn: rinse between stocks) and the pipetting sheet says
+    # to change tips.
+    from planner.pipeline import design_plan
+    from planner.planfile import parse_plan
+    from planner.report.outdir import bench_slots
+    from planner.report.sheets import bench_sheets
+
+    plan = design_plan(parse_plan(_MICRO))
+    served = {}
+    for mixture in plan.mixtures:
+        for addition in mixture.additions:
+            for device in addition.devices:
+                served.setdefault(device, set()).add(addition.stock)
+    assert max(len(stocks) for stocks in served.values()) == 3
+    check = next(c for c in plan.checks if c.name == "device-count")
+    assert check.status == "pass"
+    assert "a piston pipette with a fresh tip for each stock" in check.detail
+    markdown, html = bench_sheets(plan, date="2026-12-03", slots=bench_slots(plan)[:1])[0]
+    for sheet in (markdown, html):
+        assert "a fresh tip for each stock" in sheet
+    # Piston-pipette volumes are given as the pipette is set, in uL to its step (0.2 uL for
+    # the 20-200 uL pipette, 1 uL for the 100-1000 uL one), not as 0.0400 mL.
+    s1 = next(m for m in plan.mixtures if m.id == "S1")
+    dye = next(a for a in s1.additions if a.stock == "dye")
+    assert dye.devices == ("piston-pipette-20-200uL",)
+    assert f"[ ] {dye.volume_mL * 1000:.1f} uL, piston-pipette-20-200uL" in markdown
+    assert " mL, piston-pipette" not in markdown

@@ -163,6 +163,17 @@ def deliveries_text(inputs: PlanInputs, addition: Addition) -> str:
     return ", then ".join(text if n == 1 else f"{n} x {text}" for text, n in runs)
 
 
+def amount_text(inputs: PlanInputs, addition: Addition) -> str:
+    """An addition's volume with its unit, as the person delivering it sets it: in uL when
+    every device it uses is a piston pipette (``40.0 uL``), else in mL (``0.540 mL``); to
+    the reading step of its finest device either way."""
+    decimals = addition_decimals(inputs, addition)
+    kinds = {device.id: device.kind for device in inputs.glassware}
+    if addition.devices and all(kinds.get(d) == "piston-pipette" for d in addition.devices):
+        return f"{addition.volume_mL * 1000.0:.{max(decimals - 3, 0)}f} uL"
+    return f"{volume(addition.volume_mL, decimals)} mL"
+
+
 def volume(value_mL: float, decimals: int = 2) -> str:
     """A volume to a fixed number of decimals, without the unit."""
     return f"{value_mL:.{decimals}f}"

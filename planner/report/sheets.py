@@ -30,8 +30,8 @@ from typing import Any
 import jinja2
 
 from planner.report._format import (
-    addition_decimals,
     additions_of,
+    amount_text,
     checks_worst_first,
     csv_text,
     deliveries_text,
@@ -173,11 +173,10 @@ def _recipe_rows(plan: Plan, stocks: Sequence[str]) -> list[_RecipeRow]:
                 if is_to_the_mark(addition):
                     deliveries.append(_Delivery("to the mark", devices_text(addition.devices)))
                 else:
-                    decimals = addition_decimals(plan.inputs, addition)
                     repeated = deliveries_text(plan.inputs, addition)
                     deliveries.append(
                         _Delivery(
-                            f"{volume(addition.volume_mL, decimals)} mL"
+                            amount_text(plan.inputs, addition)
                             + (f" ({repeated})" if repeated else ""),
                             devices_text(addition.devices),
                         )
@@ -222,6 +221,20 @@ def _order_lines(plan: Plan, columns: Sequence[_Column]) -> tuple[str, str]:
     return order, making_up
 
 
+def _shared_piston_pipettes(plan: Plan) -> list[str]:
+    """The piston pipettes that deliver more than one stock, by id, in shelf order."""
+    stocks: dict[str, set[str]] = {}
+    for mixture in plan.mixtures:
+        for addition in mixture.additions:
+            for device in addition.devices:
+                stocks.setdefault(device, set()).add(addition.stock)
+    return [
+        d.id
+        for d in plan.inputs.glassware
+        if d.kind == "piston-pipette" and len(stocks.get(d.id, ())) > 1
+    ]
+
+
 def _bench_base(plan: Plan, date: str) -> dict[str, Any]:
     """The parts of a pipetting sheet shared by every bench of a plan."""
     session = plan.inputs.session
@@ -231,6 +244,12 @@ def _bench_base(plan: Plan, date: str) -> dict[str, Any]:
         _Column(stock=s, position=i + 1, part=_part(s, roles.get(s))) for i, s in enumerate(stocks)
     ]
     order_line, making_up_line = _order_lines(plan, columns)
+    shared_tips = _shared_piston_pipettes(plan)
+    if shared_tips:
+        making_up_line += (
+            f" Piston pipettes ({', '.join(shared_tips)}): a fresh tip for each stock, so no "
+            "stock carries into another (common practice)."
+        )
     return {
         "title": plan.inputs.title,
         "date": date,
