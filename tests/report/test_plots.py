@@ -413,3 +413,21 @@ def test_plan_out_leaves_a_fresh_home_untouched(tmp_path):
     assert done.returncode == 0, done.stderr
     assert (tmp_path / "out" / "plots" / "ladder.svg").is_file()
     assert sorted(p.relative_to(home).as_posix() for p in home.rglob("*")) == ["tmp"]
+
+
+def test_bound_fraction_labels_never_print_over_each_other():
+    # The research scenario's four standards share one excess (4e-4 mol/L) and bind 0.9207
+    # to 0.9227 of the cobalt: one marker on the page, so one label for all four, where
+    # labels by exact position printed "S1", "S2, S3" and "S4" over each other.
+    plan = plan_of(ROOT / "tests" / "scenarios" / "long-cell-research.toml")
+    figure = bound_fraction_figure(plan)
+    assert [note.text for note in figure.notes] == ["S1–S4"]
+    # And on every plan figure of the default, no two labels share a spot (3 % of the axes).
+    for figure in (bound_fraction_figure(plan_of(ROOT / "planner" / "data" / "default.toml")),):
+        span = np.log10(figure.x.high / figure.x.low)
+        notes = figure.notes
+        for i, a in enumerate(notes):
+            for b in notes[i + 1 :]:
+                apart_x = abs(np.log10(a.x / b.x)) >= 0.03 * span
+                apart_y = abs(a.y - b.y) >= 0.03 * (figure.y.high - figure.y.low)
+                assert apart_x or apart_y, (a.text, b.text)

@@ -421,17 +421,25 @@ def bound_fraction_figure(plan: Plan) -> Chart:
             Note(f"tolerance not reached below {amount(x_high)} mol/L", 0.02, 0.5, coords="axes")
         )
     chart.add(Points("standards", x_std, f_std, face=OCHRE, z=4.0, label="the plan's standards"))
-    groups: dict[tuple[float, float], list[str]] = {}
-    for mixture, xs, fs in zip(standards, x_std, f_std, strict=True):
-        key = (round(math.log10(max(float(xs), 1e-300)), 2), round(float(fs), 3))
-        groups.setdefault(key, []).append(mixture.id)
-    for ids in groups.values():
-        first = next(m for m in standards if m.id == ids[0])
+    # One label for each cluster of markers too close to be told apart (within 3 % of the
+    # axes in both directions), so labels never print over each other.
+    decades = math.log10(x_high / x_low)
+    clusters: list[list[int]] = []
+    for i in sorted(range(len(standards)), key=lambda k: (float(x_std[k]), float(f_std[k]))):
+        if clusters:
+            j = clusters[-1][-1]
+            near_x = abs(math.log10(max(float(x_std[i]), 1e-300) / max(float(x_std[j]), 1e-300)))
+            if near_x < 0.03 * decades and abs(float(f_std[i] - f_std[j])) < 0.03 * 1.06:
+                clusters[-1].append(i)
+                continue
+        clusters.append([i])
+    for members in clusters:
+        members.sort()
         chart.note(
             Note(
-                _id_group(ids),
-                first.initial_M.get(excess, 0.0),
-                first.bound_fraction,
+                _id_group([standards[k].id for k in members]),
+                float(np.mean(x_std[members])),
+                float(np.mean(f_std[members])),
                 dx=-9.0,
                 anchor="end",
                 halo=True,
