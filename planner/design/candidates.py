@@ -24,6 +24,7 @@ from numpy.typing import NDArray
 
 from planner.chem.equilibrium import bound_fraction
 from planner.chem.mixing import IonTable, ion_table, ionic_strength_after_reaction_M, mix_M
+from planner.design._arrays import distinct, distinct_inverse
 from planner.forward import predict_readings
 from planner.inputs import Bench, Device, PlanInputs, Stock
 from planner.lab.bench import reading_sd, technique_sd_mL
@@ -300,7 +301,7 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
     for st, per_stock in zip(reagents, limit, strict=True):
         volumes = thinned[st.id]
         if per_stock < volumes.size + 1:
-            pick = np.unique(np.linspace(0, volumes.size - 1, per_stock - 1).round().astype(int))
+            pick = distinct(np.linspace(0, volumes.size - 1, per_stock - 1).round().astype(int))
             volumes = volumes[pick]
         table = tables[shelves[st.id]]
         columns.append((none, *(_option(table, float(v), inputs.bench, by_id) for v in volumes)))
@@ -347,16 +348,16 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
         else:
             table = tables[shelves[diluent.id]]
             keys = np.rint(rest * _NL_PER_ML).astype(np.int64)
-            distinct, inverse = np.unique(keys, return_inverse=True)
-            deliverable = table.contains(distinct / _NL_PER_ML) & (distinct > 0)
+            unique_keys, inverse = distinct_inverse(keys)
+            deliverable = table.contains(unique_keys / _NL_PER_ML) & (unique_keys > 0)
             diluent_list = [none]
-            lookup = np.zeros(distinct.size, dtype=np.int64)
+            lookup = np.zeros(unique_keys.size, dtype=np.int64)
             for position in np.flatnonzero(deliverable).tolist():
                 lookup[position] = len(diluent_list)
                 diluent_list.append(
-                    _option(table, float(distinct[position]) / _NL_PER_ML, inputs.bench, by_id)
+                    _option(table, float(unique_keys[position]) / _NL_PER_ML, inputs.bench, by_id)
                 )
-            zero = distinct == 0
+            zero = unique_keys == 0
             ok = (deliverable | zero)[inverse.reshape(-1)]
             index = lookup[inverse.reshape(-1)]
             index_columns = [c[ok] for c in index_columns]

@@ -28,6 +28,7 @@ from planner.analysis import (
     global_fit_jacobian,
 )
 from planner.chem.constants import bench_K
+from planner.design._arrays import distinct
 from planner.design.candidates import CandidateSet
 from planner.forward import predict_readings
 from planner.inputs import PlanInputs
@@ -763,7 +764,7 @@ def choose_tests(
             pool = np.concatenate([pool, band[np.argsort(square, kind="stable")[:30]]])
     # Make sure the extremes of bound fraction are reachable for the span constraint.
     extremes = indices[np.argsort(fraction[indices], kind="stable")]
-    pool = np.unique(np.concatenate([pool, extremes[:20], extremes[-20:]]))
+    pool = distinct(np.concatenate([pool, extremes[:20], extremes[-20:]]))
     if pool.size <= count:
         chosen = pool[np.argsort(fraction[pool], kind="stable")]
         span = float(np.ptp(fraction[chosen])) if chosen.size else 0.0
@@ -830,7 +831,7 @@ def choose_tests(
                 best = (value, chosen)
     if best is None:
         # No pair spans enough: take the widest-spread set available.
-        picks = np.unique(np.linspace(0, by_fraction.size - 1, count).round().astype(int))
+        picks = distinct(np.linspace(0, by_fraction.size - 1, count).round().astype(int))
         chosen = by_fraction[picks]
         best = (objective(inputs, candidates, chosen), chosen)
     value, chosen = best
@@ -848,9 +849,9 @@ def choose_tests(
     if swaps is not None and count > 1 and starts:
         # Local search from the few best distinct starting sets (multi-start: one start can
         # sit in a local optimum that the span constraint walls in).
-        distinct = {tuple(m): v for v, m in starts}
+        different = {tuple(m): v for v, m in starts}
         seen: dict[tuple[int, ...], tuple[NDArray[np.float64], NDArray[np.int64]]] = {}
-        for start_value, start in sorted((v, list(m)) for m, v in distinct.items())[:_STARTS]:
+        for start_value, start in sorted((v, list(m)) for m, v in different.items())[:_STARTS]:
             members = _swap_search(swaps, start_value, start, f_sorted, span_needed, gap, seen)
             candidate = by_fraction[np.array(sorted(members))]
             candidate_value = objective(inputs, candidates, candidate)

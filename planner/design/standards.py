@@ -26,6 +26,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import NDArray
 
+from planner.design._arrays import distinct_inverse
 from planner.design.candidates import CandidateSet
 from planner.inputs import PlanInputs
 
@@ -141,8 +142,8 @@ def _group_codes(
     code = np.zeros(groups.shape[0], dtype=np.int64)
     for j in range(groups.shape[1]):
         code = code * int(radix[j]) + groups[:, j]
-    codes, inverse = np.unique(code, return_inverse=True)
-    return codes, inverse.reshape(-1), True
+    codes, inverse = distinct_inverse(code)
+    return codes, inverse, True
 
 
 def absorbance_targets(window: tuple[float, float], count: int) -> NDArray[np.float64]:
