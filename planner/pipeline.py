@@ -19,6 +19,7 @@ import dataclasses
 import functools
 import math
 from collections.abc import Callable, Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
 from numpy.typing import NDArray
@@ -27,7 +28,6 @@ from planner.chem.constants import bench_K
 from planner.design.candidates import CandidateSet
 from planner.design.mixtures import Objective
 from planner.design.plan import SharedWork, design_recipes
-from planner.design.variants import VariantSet
 from planner.inputs import PlanInputs
 from planner.result import (
     ROLES,
@@ -38,6 +38,9 @@ from planner.result import (
     Prediction,
     UncertaintyResult,
 )
+
+if TYPE_CHECKING:  # the variants' module is imported when variants are made
+    from planner.design.variants import VariantSet
 
 __all__ = [
     "combined_plan",
