@@ -2,7 +2,8 @@
 
 A recipe may only ask for volumes that the glassware on the bench can actually deliver. This
 module lists every volume one use of a device can deliver, on an exact integer grid, and every
-way to make a volume from several deliveries, fewest deliveries first, with the combination's
+way to make a volume from several deliveries, fewest deliveries first (a graduated cylinder only
+where nothing else makes the volume), with the combination's
 standard uncertainty from :mod:`planner.lab.tolerances`.
 
 Volumes are handled internally as integers in picolitres (1 pL = 1e-9 mL), so that grids such
@@ -296,9 +297,10 @@ class DeliverableVolume:
         The volume [mL], rounded to 1e-9 mL.
     options
         Each option is a tuple of device ids (``Device.id``), one per delivery; a repeated
-        delivery repeats the id. Ordered fewest deliveries first, then smallest combined
-        standard uncertainty, then by the ids. Inside an option, fixed-volume devices come
-        first (largest first), then the graded device.
+        delivery repeats the id. Ordered by the last-resort devices they use (a graduated
+        cylinder, :data:`LAST_RESORT_KINDS`: fewest first), then fewest deliveries, then
+        smallest combined standard uncertainty, then by the ids. Inside an option,
+        fixed-volume devices come first (largest first), then the graded device.
     """
 
     volume_mL: float
@@ -306,7 +308,7 @@ class DeliverableVolume:
 
     @property
     def best(self) -> tuple[str, ...]:
-        """The preferred option: fewest deliveries, then smallest uncertainty."""
+        """The preferred option (the first of :attr:`options`)."""
         return self.options[0]
 
 
@@ -360,6 +362,21 @@ def _usable(glassware: Sequence[Device]) -> list[tuple[str, _Grid, float]]:
         for device_id, device in devices_by_id(glassware).items()
         if (grid := _grid(device)).count > 0
     ]
+
+
+#: Devices used only where nothing else on the shelf delivers the volume: a graduated
+#: cylinder measures to about 1 % of its capacity (ISO 4788 class B, from memory), a
+#: transfer pipette, buret or piston pipette to 0.1 to 1 %, and a cylinder is not used for a
+#: quantitative transfer where a pipette can make it (common practice).
+LAST_RESORT_KINDS = frozenset({"graduated-cylinder"})
+
+
+def _last_resort_ids(glassware: Sequence[Device]) -> frozenset[str]:
+    return frozenset(
+        device_id
+        for device_id, device in devices_by_id(glassware).items()
+        if device.kind in LAST_RESORT_KINDS
+    )
 
 
 def _check_max_deliveries(max_deliveries: int) -> None:
@@ -417,7 +434,15 @@ def _templates(glassware: Sequence[Device], max_deliveries: int, high_pL: int) -
                     option = (*ids, device_id)
                     templates.append(_Template(option, total_pL, grid, math.sqrt(u2 + grid_u2)))
     # Rounding u to 1e-12 mL keeps ties that differ only by float summation order as ties.
-    templates.sort(key=lambda t: (len(t.option), round(t.u_mL, 12), t.option))
+    last_resort = _last_resort_ids(glassware)
+    templates.sort(
+        key=lambda t: (
+            sum(d in last_resort for d in t.option),
+            len(t.option),
+            round(t.u_mL, 12),
+            t.option,
+        )
+    )
 
     return templates
 
@@ -919,6 +944,9 @@ class _Item:
     device: str
     volume_pL: int
     u2: float
+    #: The delivery's share of the preference key: the delivery itself, its u^2 and, for a
+    #: last-resort device, a surcharge larger than any number of other deliveries.
+    cost: float = 0.0
 
 
 class VolumeTable:
@@ -930,7 +958,6 @@ class VolumeTable:
 
     __slots__ = (
         "_best",
-        "_big",
         "_fixed_rounds",
         "_graded",
         "_items",
@@ -942,11 +969,10 @@ class VolumeTable:
     def __init__(
         self,
         items: Sequence[_Item],
-        graded: Sequence[tuple[str, _Grid, float]],
+        graded: Sequence[tuple[str, _Grid, float, float]],
         fixed_rounds: Sequence[tuple[NDArray[np.int64], NDArray[np.float64]]],
         volumes_pL: NDArray[np.int64],
         best: NDArray[np.float64],
-        big: float,
         quantum_pL: int,
         operations: int,
     ) -> None:
@@ -955,7 +981,6 @@ class VolumeTable:
         self._fixed_rounds = tuple(fixed_rounds)
         self._volumes_pL = volumes_pL
         self._best = best
-        self._big = big
         self.quantum_pL = quantum_pL
         #: Array elements touched to build the table [unitless]: the bound the tests check.
         self.operations = operations
@@ -985,8 +1010,9 @@ class VolumeTable:
     def best(self, volume_mL: float) -> Aliquots | None:
         """The preferred deliveries of one volume [mL], or None when it is not deliverable.
 
-        Fewest deliveries first, then the smallest combined uncertainty; ties go to the
-        larger one-mark volumes and the shelf order of graded devices.
+        No last-resort device (:data:`LAST_RESORT_KINDS`) where other devices can make the
+        volume, then the fewest deliveries, then the smallest combined uncertainty; ties go to
+        the larger one-mark volumes and the shelf order of graded devices.
         """
         index = int(self._index(np.array([volume_mL]))[0])
         if index < 0:
@@ -1003,17 +1029,18 @@ class VolumeTable:
         ):
             return self._aliquots(self._fixed_path(target_pL, len(self._fixed_rounds) - 1))
         state_vols, state_keys = self._fixed_rounds[-2]
-        for device_id, grid, u2 in self._graded:
+        for device_id, grid, u2, cost in self._graded:
             low = target_pL - grid.last_pL
             high = target_pL - grid.first_pL
             start, stop = np.searchsorted(state_vols, [low, high + 1])
             states = state_vols[start:stop]
-            keys = state_keys[start:stop] + self._big + u2
+            keys = state_keys[start:stop] + cost
             hits = np.flatnonzero(((high - states) % grid.step_pL == 0) & (keys == key))
             if hits.size:
                 state_pL = int(states[hits[0]])
                 path = self._fixed_path(state_pL, len(self._fixed_rounds) - 2)
-                return self._aliquots([*path, _Item(device_id, target_pL - state_pL, u2)])
+                remainder = _Item(device_id, target_pL - state_pL, u2, cost)
+                return self._aliquots([*path, remainder])
         raise AssertionError("a tabulated volume has no way to deliver it")  # pragma: no cover
 
     def _fixed_path(self, volume_pL: int, round_index: int) -> list[_Item]:
@@ -1042,7 +1069,7 @@ class VolumeTable:
                     rest >= 0
                     and position < prev_vols.size
                     and prev_vols[position] == rest
-                    and prev_keys[position] + self._big + item.u2 == key
+                    and prev_keys[position] + item.cost == key
                 ):
                     path.append(item)
                     volume_pL, round_index = rest, round_index - 1
@@ -1149,7 +1176,9 @@ def volume_table(
     on the device's own grid and so at or above its ``min_delivery_mL``. A graded device
     therefore delivers n times full scale plus one remainder ("2 x 1000 µL, then 650 µL").
 
-    The preferred way is the one with the fewest deliveries, then the smallest combined
+    The preferred way uses no last-resort device (a graduated cylinder,
+    :data:`LAST_RESORT_KINDS`) where the others can make the volume, then the fewest
+    deliveries, then the smallest combined
     standard uncertainty (independent deliveries add in quadrature; the catalogue's
     uncertainties do not depend on the volume delivered, so each way's uncertainty is fixed).
     Both are additive, so the best ways are found by dynamic programming over *distinct
@@ -1180,6 +1209,7 @@ def volume_table(
         )
     high_pL = max(_to_pL(max_volume_mL), 0)
     usable = [(device_id, grid, u2) for device_id, grid, u2 in _usable(glassware)]
+    last_resort = _last_resort_ids(glassware)
     natural = 0
     for _, grid, _ in usable:
         natural = math.gcd(natural, grid.first_pL, grid.step_pL)
@@ -1193,25 +1223,32 @@ def volume_table(
     while natural and (high_pL // step_pL + 1) * per_slot > _MAX_WORK:
         step_pL = math.lcm(natural, power)
         power *= 10
+    # Each delivery adds `big` to its way's key, more than every u^2 of a way together, so
+    # the fewest deliveries win; a last-resort device adds `surcharge`, more than every
+    # other delivery of a way together, so it is used only where nothing else delivers.
+    largest_u2 = max([u2 for _, _, u2 in usable] + [0.0])
+    big = 1.0 + 2.0 * max_deliveries * largest_u2
+    surcharge = (max_deliveries + 1) * (big + largest_u2)
+
+    def cost(device_id: str, u2: float) -> float:
+        return big + u2 + (surcharge if device_id in last_resort else 0.0)
+
     items: list[_Item] = []
-    graded: list[tuple[str, _Grid, float]] = []
+    graded: list[tuple[str, _Grid, float, float]] = []
     for device_id, grid, u2 in usable:
         if grid.last_pL <= high_pL and grid.last_pL % max(step_pL, 1) == 0:
-            items.append(_Item(device_id, grid.last_pL, u2))
+            items.append(_Item(device_id, grid.last_pL, u2, cost(device_id, u2)))
         if grid.count > 1:
             on_step = _on_step(grid, step_pL)
             if on_step.count > 0 and on_step.first_pL <= high_pL:
-                graded.append((device_id, on_step, u2))
+                graded.append((device_id, on_step, u2, cost(device_id, u2)))
     # Largest volume first: ties in the backtracking go to the larger deliveries.
     items.sort(key=lambda item: (-item.volume_pL, item.device))
-    big = 1.0 + 2.0 * max_deliveries * max(
-        [item.u2 for item in items] + [g[2] for g in graded] + [0.0]
-    )
 
     quantum = 0
     for item in items:
         quantum = math.gcd(quantum, item.volume_pL)
-    for _, grid, _ in graded:
+    for _, grid, _, _ in graded:
         quantum = math.gcd(quantum, grid.first_pL, grid.step_pL)
     slots = high_pL // quantum + 1 if quantum else 1
     operations = 0
@@ -1226,7 +1263,7 @@ def volume_table(
             shift = item.volume_pL // quantum
             np.minimum(
                 following[shift:],
-                current[: slots - shift] + big + item.u2,
+                current[: slots - shift] + item.cost,
                 out=following[shift:],
             )
             operations += slots - shift
@@ -1237,12 +1274,12 @@ def volume_table(
         fixed_rounds.append((where.astype(np.int64) * quantum, dense[where]))
     best = dense_rounds[-1].copy()
     states = dense_rounds[-2]
-    for _, grid, u2 in graded:
+    for _, grid, _, grid_cost in graded:
         first, step = grid.first_pL // quantum, grid.step_pL // quantum
         if first >= slots:
             continue
         if grid.count == 1:
-            np.minimum(best[first:], states[: slots - first] + big + u2, out=best[first:])
+            np.minimum(best[first:], states[: slots - first] + grid_cost, out=best[first:])
             operations += slots - first
             continue
         # Backward window of grid.count states, one residue class of the step at a time.
@@ -1253,13 +1290,13 @@ def volume_table(
         size = min(grid.count, by_class.shape[0])
         window = backward_window_min(by_class, size)
         operations += length
-        candidate = window.reshape(-1)[: slots - first] + big + u2
+        candidate = window.reshape(-1)[: slots - first] + grid_cost
         np.minimum(best[first:], candidate, out=best[first:])
     where = np.flatnonzero(np.isfinite(best[1:])) + 1
     volumes_pL = where.astype(np.int64) * quantum
     best_keys = best[where]
     return VolumeTable(
-        items, graded, fixed_rounds, volumes_pL, best_keys, big, max(quantum, 1), operations
+        items, graded, fixed_rounds, volumes_pL, best_keys, max(quantum, 1), operations
     )
 
 

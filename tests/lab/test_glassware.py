@@ -833,3 +833,32 @@ def test_graded_sums_too_many_to_tabulate_are_refused_with_the_field():
     with pytest.raises(InvalidInputError, match="option") as raised:
         is_deliverable([fine, odd], 3.0, (fine.id, fine.id, odd.id))
     assert "fewer graded devices" in str(raised.value)
+
+
+def test_a_graduated_cylinder_delivers_only_what_nothing_else_can():
+    # The school shelf: class B transfer pipettes of 1, 2 and 5 mL and a 10 mL graduated
+    # cylinder. 3 mL of a limiting reagent from the cylinder (one delivery, ISO 4788 B 10 mL
+    # ±0.2 mL, from memory) would carry about 4 % of standard uncertainty; from the 2 mL and
+    # 1 mL pipettes (ISO 648 B ±0.02 and ±0.015 mL, from memory) about 0.4 %. A cylinder
+    # is not used for a quantitative transfer a pipette can make (common practice).
+    shelf = [
+        Device(kind="transfer-pipette", volume_mL=v, device_class="B") for v in (1.0, 2.0, 5.0)
+    ]
+    cylinder = Device(kind="graduated-cylinder", volume_mL=10.0)
+    table = volume_table([*shelf, cylinder], max_volume_mL=25.0)
+    three = table.best(3.0)
+    assert [d.device for d in three.deliveries] == [
+        "transfer-pipette-2mL",
+        "transfer-pipette-1mL",
+    ]
+    # 17 mL: four pipette deliveries (3 x 5 mL, then 2 mL) rather than the cylinder twice.
+    seventeen = table.best(17.0)
+    assert [d.device for d in seventeen.deliveries] == ["transfer-pipette-5mL"] * 3 + [
+        "transfer-pipette-2mL"
+    ]
+    # 3.4 mL: no pipette makes it, so the cylinder does (its 0.2 mL divisions).
+    assert [d.device for d in table.best(3.4).deliveries] == ["graduated-cylinder-10mL"]
+    # The listing of every option agrees: no cylinder first where a pipette way exists.
+    listed = by_volume(deliverable_volumes([*shelf, cylinder], max_volume_mL=25.0))
+    assert listed[3.0].best == ("transfer-pipette-2mL", "transfer-pipette-1mL")
+    assert "graduated-cylinder-10mL" in listed[3.4].best
