@@ -92,8 +92,8 @@ def _delivery(plan: Plan, addition: Addition) -> tuple[str, Text]:
     else:
         amount = volume(addition.volume_mL, addition_decimals(plan.inputs, addition))
         repeated = deliveries_text(plan.inputs, addition)
-        if repeated:
-            amount += f" ({repeated})"
+        if repeated:  # on lines of their own, so a long breakdown wraps in its column
+            amount += f"\n({repeated})"
     return amount, _plain(devices_text(addition.devices))
 
 
@@ -112,7 +112,7 @@ def _mixtures_table(plan: Plan) -> Table:
     table.add_column("id", no_wrap=True)
     table.add_column("role", no_wrap=True)
     table.add_column("stock", overflow="fold")
-    table.add_column("volume", justify="right", no_wrap=True)
+    table.add_column("volume", justify="right", min_width=6, max_width=22)
     table.add_column("devices", ratio=1)
     table.add_column("A", justify="right", no_wrap=True)
     table.add_column("bound", justify="right", no_wrap=True)
