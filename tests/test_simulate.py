@@ -243,3 +243,17 @@ def test_json_splits_the_spread_by_class(document):
     assert spread["classes"] == 400 // 30
     assert spread["bench_sd"] > 0
     assert spread["class_mean_sd"] > 0
+
+
+def test_an_sd_set_by_a_few_far_benches_is_marked():
+    # A normal spread has SD = (high - low) / (2 x 1.96) of its 95 % range (JCGM 100:2008,
+    # G.1.3 coverage factor): 100 +- 19.6 gives SD 10, shown plain. An SD of 730 beside the
+    # range 381-979 (what a normal spread of it would give: 153) is set by a few benches far
+    # out, as the all-bound K of a test near full binding gives, and is marked.
+    from planner.report.simulation import _heavy_tailed, _spread
+
+    assert not _heavy_tailed(10.0, (80.4, 119.6))
+    assert _spread(100.0, 10.0, (80.4, 119.6))[1] == "10"
+    assert _heavy_tailed(730.0, (381.2, 978.9))
+    assert _spread(541.0, 730.0, (381.2, 978.9))[1] == "730*"
+    assert not _heavy_tailed(float("nan"), (1.0, 2.0))

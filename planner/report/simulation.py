@@ -214,9 +214,21 @@ def _interval(interval: tuple[float, float], digits: int = 4) -> str:
     return f"{_text(interval[0], digits)} to {_text(interval[1], digits)}"
 
 
+#: An SD more than this many times what the 95 % range gives a normal distribution ((high -
+#: low) / (2 x 1.96)) is set by a few benches far out (heavy tails), and is marked.
+_HEAVY_TAILS = 2.0
+
+
+def _heavy_tailed(sd: float, ci95: tuple[float, float]) -> bool:
+    width = (ci95[1] - ci95[0]) / (2 * 1.96)
+    return math.isfinite(sd) and width > 0 and sd > _HEAVY_TAILS * width
+
+
 def _spread(mean: float, sd: float, ci95: tuple[float, float]) -> tuple[str, str, str]:
-    """The cells mean, sd and 95 % interval of one quantity."""
-    return _text(mean), _text(sd, 2), _interval(ci95)
+    """The cells mean, sd and 95 % interval of one quantity; an SD set by a few benches far
+    out is marked ``*`` (the table's caption says what it means)."""
+    mark = "*" if _heavy_tailed(sd, ci95) else ""
+    return _text(mean), _text(sd, 2) + mark, _interval(ci95)
 
 
 def _results_table(
@@ -289,6 +301,7 @@ def _results_table(
     rows = fit_rows + bound_rows if analysis == "global-fit" else bound_rows + fit_rows
     for name, cells, style in rows:
         table.add_row(name, *cells, style=style or None)
+    heavy = any(cell.endswith("*") for _, cells, _ in rows for cell in cells)
     withheld = (
         ""
         if all_bound
@@ -299,6 +312,12 @@ def _results_table(
         "assumed fully bound in the standards, curve through the origin, 1:1 K averaged over "
         "the tests; global fit: eps and K fitted together with the full equilibrium model; "
         f"GUM: first-order prediction of that analysis.{withheld}"
+        + (
+            " *: a few benches lie far out, so this SD is set by them (it is more than twice "
+            "what the 95 % range gives a normal spread); the 95 % range is the better guide."
+            if heavy
+            else ""
+        )
     )
     table.caption_justify = "left"
     return table
