@@ -105,6 +105,19 @@ class Layout:
     K_true: float
 
 
+#: Factors (1 + relative error) beyond which a value is no estimate of the true one, and is
+#: said as that factor: past a factor of ten either way "-100 %" hides a factor of a million.
+_FAR_FACTORS = (0.1, 10.0)
+
+
+def far_off(relative_error: float) -> bool:
+    """True when a relative error moves a value by more than a factor of ten either way."""
+    factor = 1.0 + relative_error
+    low, high = _FAR_FACTORS
+    # The bounds themselves (within round-off: 1 - 0.9 is 0.0999...) are still plain.
+    return math.isfinite(factor) and not low * (1 - 1e-9) <= factor <= high * (1 + 1e-9)
+
+
 # ---------------------------------------------------------------------------------------------
 # The all-bound analysis
 # ---------------------------------------------------------------------------------------------

@@ -23,6 +23,7 @@ from typing import Any, Protocol, TypeVar
 
 import numpy as np
 
+from planner.analysis import far_off
 from planner.chem.activity import INERT_SALTS
 from planner.chem.assumption import (
     LARGEST_DISSOLVED_M,
@@ -909,7 +910,7 @@ def _all_bound_K_error(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _
         return "; the all-bound analysis would give no value of K from these tests"
     error = float(np.mean(x / denominator)) / k_true - 1.0
     size = f"{100 * error:+.1f} %"
-    if not 0.1 <= 1.0 + error <= 10.0:  # "-100.0 %" alone would hide a factor of a million
+    if far_off(error):  # "-100.0 %" alone would hide a factor of a million
         size += f" (a factor of {1.0 + error:.2g})"
     return f"; the all-bound K errs by about {size} from it on this plan's tests"
 
@@ -1409,11 +1410,7 @@ def _burets(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
     buret entry serves need as many burets; the glassware entry's ``count`` is how many a
     bench has.
     """
-    uses: dict[str, set[str]] = defaultdict(set)
-    for m in mixtures:
-        for a in m.additions:
-            for d in a.devices:
-                uses[d].add(a.stock)
+    uses = _stocks_by_device(mixtures)
     counts = {d.id: d.count for d in inputs.glassware if d.kind == "buret"}
     problems = [
         f"{device} holds {len(stocks)} stocks ({_names(sorted(stocks))}) but a bench has "
@@ -1425,12 +1422,18 @@ def _burets(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
     return _check("buret-per-stock", problems, "every buret holds one stock for the session")
 
 
-def _device_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
+def _stocks_by_device(mixtures: Sequence[Mixture]) -> dict[str, set[str]]:
+    """The stocks each device delivers in the plan's mixtures, by device id."""
     uses: dict[str, set[str]] = defaultdict(set)
     for m in mixtures:
         for a in m.additions:
             for d in a.devices:
                 uses[d].add(a.stock)
+    return uses
+
+
+def _device_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
+    uses = _stocks_by_device(mixtures)
     # Burets have their own, failing check (_burets): they cannot be rinsed between stocks.
     # A piston pipette takes a fresh disposable tip for each stock (common practice), so
     # one serves any number of stocks; the pipetting sheet says so.

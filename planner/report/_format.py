@@ -12,6 +12,7 @@ from __future__ import annotations
 import math
 import re
 
+from planner.analysis import far_off
 from planner.inputs import Device, PlanInputs
 from planner.result import CHECK_STATUSES, Addition, Check, Mixture, Plan, StockRole, devices_text
 
@@ -78,19 +79,6 @@ def percent(fraction: float, digits: int = 3, *, signed: bool = False) -> str:
     if signed and fraction > 0:
         text = "+" + text
     return f"{text} %"
-
-
-#: A relative bias whose factor (1 + bias) lies outside these bounds is printed with the
-#: factor as well: past a factor of ten "-100 %" would hide a factor of a million.
-_PLAIN_FACTORS = (0.1, 10.0)
-
-
-def far_off(fraction: float) -> bool:
-    """True when a relative error moves a value by more than a factor of ten either way."""
-    factor = 1.0 + fraction
-    low, high = _PLAIN_FACTORS
-    # The bounds themselves (within round-off: 1 - 0.9 is 0.0999...) are still plain.
-    return math.isfinite(factor) and not low * (1 - 1e-9) <= factor <= high * (1 + 1e-9)
 
 
 def relative_bias(fraction: float, digits: int = 3) -> str:

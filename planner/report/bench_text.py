@@ -9,9 +9,10 @@ from __future__ import annotations
 
 import math
 
+from planner.analysis import far_off
 from planner.inputs import PlanInputs
 from planner.lab.bench import bench_terms
-from planner.report._format import far_off, percent, relative_bias
+from planner.report._format import percent, relative_bias
 from planner.result import BiasCauses
 
 __all__ = ["bias_line", "medium_line", "ranges_line"]

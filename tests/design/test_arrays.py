@@ -18,22 +18,3 @@ def test_distinct_values_and_inverse_are_numpys(size):
     np.testing.assert_array_equal(inverse, expected_inverse.reshape(-1))
     np.testing.assert_array_equal(found[inverse], values)
     np.testing.assert_array_equal(distinct(values), expected)
-
-
-def test_a_plan_does_not_load_numpys_masked_arrays():
-    # What the helper is for: numpy.unique imports numpy.ma (15-20 ms) on first use.
-    import subprocess
-    import sys
-
-    code = (
-        "import sys\n"
-        "from planner.cli import main\n"
-        "sys.argv = ['planner', 'plan', '--quiet']\n"
-        "try:\n"
-        "    main()\n"
-        "except SystemExit:\n"
-        "    pass\n"
-        "print('numpy.ma' in sys.modules)\n"
-    )
-    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
-    assert done.stdout.strip() == "False"
