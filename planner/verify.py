@@ -1184,6 +1184,8 @@ def _ionic_strength(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _Sta
         return Check("ionic-strength", "pass", "no measured mixtures")
     values = state.ionic_strength[measured]
     spread = float((values.max() - values.min()) / values.max())
+    if spread < 1e-9:  # round-off of sums of equal media, not a spread ("2.8e-14 %")
+        spread = 0.0
     allowed = inputs.design.ionic_strength_spread
     medium = inputs.design.ionic_medium
     if medium is not None and spread <= 0.01:
