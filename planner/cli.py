@@ -920,8 +920,25 @@ def _one_blas_thread() -> None:
         os.environ.setdefault(variable, "1")
 
 
+# The cyclic garbage collector's default first threshold (700 allocations) made it run about
+# 120 times in one `planner plan`, 0.03 s of CPU spent re-scanning the import-time objects of
+# pydantic, typer and numpy (measured with gc.callbacks on the default plan). A run is short
+# and its memory bounded, so the command line collects less often; the library API keeps the
+# interpreter's defaults.
+_GC_FIRST_THRESHOLD = 100_000
+
+
+def _collect_less_often() -> None:
+    """Raise the collector's first threshold for this short-lived process."""
+    import gc
+
+    _, second, third = gc.get_threshold()
+    gc.set_threshold(_GC_FIRST_THRESHOLD, second, third)
+
+
 def main() -> None:
     """Console-script entry point."""
+    _collect_less_often()
     _one_blas_thread()
     _safe_streams()  # also for what is printed before a command runs (usage errors, help)
     app()

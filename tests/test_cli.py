@@ -720,3 +720,22 @@ def test_help_keeps_every_unit_in_square_brackets(command):
     ]
     for unit in units:
         assert unit in shown, (command, unit)
+
+
+def test_only_the_command_line_process_collects_garbage_less_often():
+    # Importing the command line (as the library API and the tests do) keeps the
+    # interpreter's collector thresholds; the console entry point raises the first one.
+    code = (
+        "import gc, sys\n"
+        "default = gc.get_threshold()\n"
+        "import planner.cli\n"
+        "imported = gc.get_threshold()\n"
+        "sys.argv = ['planner', '--help']\n"
+        "try:\n"
+        "    planner.cli.main()\n"
+        "except SystemExit:\n"
+        "    pass\n"
+        "print(default == imported, gc.get_threshold()[0], gc.get_threshold()[1:] == default[1:])"
+    )
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert done.stdout.split()[-3:] == ["True", "100000", "True"]

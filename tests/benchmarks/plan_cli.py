@@ -4,6 +4,12 @@ Prints the median wall time over repeated runs (target <= 1.5 s on the project's
 machine) and the median CPU time, user + system (target <= 0.5 s), and the same for
 `planner check` (target <= 0.8 s wall). One run before the timed ones is left out, so the
 figures are those of an installed package whose bytecode is compiled.
+
+It also times the libraries' floor: a typer command with the same options as `plan` that
+imports numpy, validates one pydantic model and prints it as JSON, and nothing of the
+planner. No plan can be made faster than that with the command-line, boundary and numerical
+libraries the project is built on (typer from 0.2x imports pydantic while it parses the
+arguments), so the figure shows how much of the `plan` time is the planner's own.
 Run: python tests/benchmarks/plan_cli.py [--runs N] [--json]
 """
 
@@ -14,6 +20,48 @@ import json
 import sys
 
 from _timing import children_peak_MB, medians
+
+# The libraries' floor: what any `plan` run costs before the planner does anything (see the
+# module docstring). Thread pools are held to one thread as the planner's entry point does.
+FLOOR_APP = """
+import os
+for variable in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(variable, "1")
+from pathlib import Path
+from typing import Annotated
+import typer
+
+app = typer.Typer()
+
+
+@app.command()
+def plan(
+    file: Annotated[Path | None, typer.Argument()] = None,
+    out: Annotated[Path | None, typer.Option("--out")] = None,
+    output_format: Annotated[str, typer.Option("--format")] = "text",
+    force: bool = False,
+    date: str | None = None,
+    pdf: bool = False,
+    plots: bool = True,
+    quiet: bool = False,
+) -> None:
+    import numpy
+    from pydantic import BaseModel, ConfigDict
+
+    class Reading(BaseModel):
+        model_config = ConfigDict(strict=True, extra="forbid", frozen=True)
+        absorbance: float
+
+    print(Reading(absorbance=float(numpy.float64(0.5))).model_dump_json())
+
+
+@app.command()
+def check() -> None:
+    pass
+
+
+app()
+"""
 
 
 def main() -> int:
@@ -27,8 +75,10 @@ def main() -> int:
         [python, "-m", "planner", "check", "--k", "98", "--excess", "0.1", "--limiting", "1.5e-4"],
         args.runs,
     )
+    _, floor_cpu_s = medians([python, "-c", FLOOR_APP, "plan", "--format", "json"], args.runs)
     figures = {
         "plan_median_s": plan_s,
+        "floor_cpu_median_s": floor_cpu_s,
         "check_median_s": check_s,
         "plan_cpu_median_s": plan_cpu_s,
         "check_cpu_median_s": check_cpu_s,
@@ -42,6 +92,7 @@ def main() -> int:
         f"planner plan (default, whole process): median {plan_s:.3f} s wall (target <= 1.5 s), "
         f"{plan_cpu_s:.3f} s CPU (target <= 0.5 s)"
     )
+    print(f"libraries' floor (typer, pydantic, numpy): median {floor_cpu_s:.3f} s CPU")
     print(
         f"planner check (whole process):         median {check_s:.3f} s wall (target <= 0.8 s), "
         f"{check_cpu_s:.3f} s CPU"

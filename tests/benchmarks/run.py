@@ -159,6 +159,15 @@ def rows() -> list[Row]:
     )
     result.append(
         Row(
+            "  the libraries' floor: a typer command importing numpy and pydantic, CPU",
+            f"{cli['floor_cpu_median_s']:.2f} s",
+            "(no target)",
+            True,
+            memory,
+        )
+    )
+    result.append(
+        Row(
             "planner check, whole process (median)",
             f"{cli['check_median_s']:.2f} s",
             "<= 0.8 s",
