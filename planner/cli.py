@@ -668,8 +668,9 @@ def analyse(
     its section's answer key and flags what is off, each flag with its likely cause and the
     evidence; then the class: K by both analyses against the prediction, and one global fit
     of every reading of the benches that are ok. Rows that cannot be used are listed, never
-    dropped. Exit status 0 when every bench is ok, 1 when any is flagged, 2 when the files
-    cannot be used.
+    dropped, and a bench whose rows were all rejected or never given is named. Exit status 0
+    when every bench is ok, 1 when any is flagged or had every row rejected, 2 when the
+    files cannot be used.
     """
 
     def body() -> int:

@@ -44,6 +44,7 @@ raises few false flags; the 95 % ranges of the answer key are reported beside ev
 
 from __future__ import annotations
 
+import itertools
 import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
@@ -305,6 +306,17 @@ class ClassAnalysis:
         Rows of the readings file left out, and why.
     unmeasured
         (section, bench, replicate) of sets whose cells are all empty.
+    lost
+        Sets with rows in the file, every one of them rejected: results given but none
+        usable (they count as flagged for the exit status).
+    absent
+        Sets the plan has, in sections with rows in the file, of which the file has no row
+        at all; at most :data:`ABSENT_LISTED` per section are listed, ``n_absent`` counts
+        them all.
+    n_absent
+        How many sets ``absent`` stands for.
+    sections_without_rows
+        Sections of the plan of which the file has no row.
     K_all_bound, K_global_fit, epsilon_all_bound, epsilon_global_fit
         Over the benches that are ok.
     pooled
@@ -320,6 +332,10 @@ class ClassAnalysis:
     benches: tuple[BenchResult, ...]
     rejections: tuple[Rejection, ...]
     unmeasured: tuple[BenchKey, ...]
+    lost: tuple[BenchKey, ...]
+    absent: tuple[BenchKey, ...]
+    n_absent: int
+    sections_without_rows: tuple[int, ...]
     K_all_bound: ClassStatistic
     K_global_fit: ClassStatistic
     epsilon_all_bound: ClassStatistic
@@ -331,8 +347,8 @@ class ClassAnalysis:
 
     @property
     def flagged(self) -> bool:
-        """True when any bench is flagged."""
-        return any(b.flags for b in self.benches)
+        """True when any bench is flagged or any set's rows were all rejected."""
+        return any(b.flags for b in self.benches) or bool(self.lost)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -626,7 +642,10 @@ def _flags(
     )
     if math.isfinite(scale) and math.isfinite(eps_pred[0]) and not off:
         u_rel = _u_of((eps_pred[1], eps_pred[2])) / eps_pred[0]
-        if abs(scale - 1.0) > COVERAGE_FLAG * u_rel:
+        # Both the least-squares factor and the median ratio must be off: one wild reading
+        # moves the first only.
+        median = _median_ratio(mixtures)
+        if abs(scale - 1.0) > COVERAGE_FLAG * u_rel and abs(median - 1.0) > COVERAGE_FLAG * u_rel:
             ratios = [
                 m.reading / m.expected.predicted
                 for m in mixtures
@@ -666,7 +685,13 @@ def _flags(
                 "a test made or read wrong: a mislabelled or swapped tube, a pipetting slip, "
                 "or a reading of another mixture",
                 "; ".join(
-                    f"{m.id} gives K = {_g(m.K.value)}, predicted {_g(m.K.predicted)} "
+                    (
+                        f"{m.id} gives K = {_g(m.K.value)}"
+                        if math.isfinite(m.K.value) and m.K.value > 0
+                        else f"{m.id} gives no K (its net reading is below the blank's, or "
+                        "implies as much product as one of its reagents holds, or more)"
+                    )
+                    + f", predicted {_g(m.K.predicted)} "
                     f"(95 % range {_g(m.K.low)}-{_g(m.K.high)})"
                     for m in wrong
                 ),
@@ -738,6 +763,31 @@ def _unmask(
     if latest is None:
         return off, []
     return [(m, latest[m.id]) for m in dropped] + off, dropped
+
+
+def _median_ratio(mixtures: Sequence[MixtureResult]) -> float:
+    """Median of the blank-subtracted readings over their predictions (standards and tests).
+
+    A cuvette of another path length scales every reading alike, so the median moves with
+    the least-squares factor; one wild reading pulls that factor but not the median, and is
+    not a scale (the rules on readings and tests name it). NaN without a blank or a reading.
+    """
+    blanks = [m for m in mixtures if m.role == "blank" and math.isfinite(m.reading)]
+    if not blanks:
+        return _NAN
+    blank = sum(m.reading for m in blanks) / len(blanks)
+    blank_predicted = sum(m.expected.predicted for m in blanks) / len(blanks)
+    ratios = sorted(
+        (m.reading - blank) / (m.expected.predicted - blank_predicted)
+        for m in mixtures
+        if m.role != "blank"
+        and math.isfinite(m.reading)
+        and m.expected.predicted - blank_predicted > 0
+    )
+    if not ratios:
+        return _NAN
+    middle = len(ratios) // 2
+    return ratios[middle] if len(ratios) % 2 else (ratios[middle - 1] + ratios[middle]) / 2
 
 
 def _family_factor(count: int) -> float:
@@ -879,6 +929,12 @@ def _bench_results(
     return results
 
 
+def _mean_of_positive(values: NDArray[np.float64]) -> float:
+    """Mean of the finite positive values; NaN when there is none."""
+    kept = values[np.isfinite(values) & (values > 0)]
+    return float(kept.mean()) if kept.size else _NAN
+
+
 def _bench(
     number: int,
     section: _Section,
@@ -911,8 +967,9 @@ def _bench(
             )
         k_test[rows[sub.tests]] = fits.K_tests[i]
         eps_ab = float(fits.epsilon_all_bound[i])
-        with np.errstate(invalid="ignore"):
-            k_ab = float(np.mean(fits.K_tests[i]))
+        # A test whose reading gives no K (the 1:1 expression negative or infinite) is left
+        # out of the bench's mean, as the bench itself would leave it; it is flagged.
+        k_ab = _mean_of_positive(fits.K_tests[i])
         eps_gf = float(fits.epsilon_global_fit[i])
         k_gf = float(fits.K_global_fit[i])
     test_rows = [int(t) for t in section.layout.tests]
@@ -991,6 +1048,44 @@ def _scale(section: _Section, full: NDArray[np.float64]) -> float:
     return float(predicted @ observed) / denominator if denominator > 0 else _NAN
 
 
+#: Sets with no row in the file listed per section; beyond it they are counted.
+ABSENT_LISTED = 30
+
+
+def _sets_not_analysed(
+    plans: Mapping[int, SavedPlan], table: ReadingsTable, found: set[BenchKey]
+) -> tuple[tuple[BenchKey, ...], tuple[BenchKey, ...], int, tuple[int, ...]]:
+    """The sets of mixtures the analysis has no reading of, other than the unmeasured ones.
+
+    Returns (lost, absent, n_absent, sections without rows) as in :class:`ClassAnalysis`:
+    no set of the plan goes unmentioned, whether its rows were all rejected or never given.
+    """
+    given = found | {(s, b, r) for _, s, b, r, _ in table.empty}
+    rejected = {r.bench_set for r in table.rejections if r.bench_set is not None}
+    lost = tuple(sorted(rejected - given))
+    in_file = given | rejected
+    sections_in_file = {key[0] for key in in_file}
+    absent: list[BenchKey] = []
+    n_absent = 0
+    for number, saved in sorted(plans.items()):
+        if number not in sections_in_file:
+            continue
+        session = saved.inputs.session
+        # Every key in the file is one of the plan's sets (rows naming others are rejected
+        # without a set), so counting needs no walk over the plan's sets (up to 1e5 of them
+        # per section); the listing walks them only until it has its share.
+        here = sum(1 for key in in_file if key[0] == number)
+        n_absent += session.benches_per_section * session.replicates - here
+        walk = (
+            (number, bench, replicate)
+            for bench in range(1, session.benches_per_section + 1)
+            for replicate in range(1, session.replicates + 1)
+        )
+        absent.extend(itertools.islice((k for k in walk if k not in in_file), ABSENT_LISTED))
+    silent = tuple(number for number in sorted(plans) if number not in sections_in_file)
+    return lost, tuple(absent), n_absent, silent
+
+
 def analyse_class(plans: Mapping[int, SavedPlan], table: ReadingsTable) -> ClassAnalysis:
     """Analyse a class's readings, each bench against its own section's plan.
 
@@ -1032,6 +1127,7 @@ def analyse_class(plans: Mapping[int, SavedPlan], table: ReadingsTable) -> Class
     unmeasured = sorted(
         {(s, b, r) for _, s, b, r, _ in table.empty} - set(found),
     )
+    lost, absent, n_absent, silent = _sets_not_analysed(plans, table, set(found))
     ok = [b for b in benches if not b.flags]
     sections_used = sorted({b.section for b in benches}) or sorted(built)
     predicted = [built[number] for number in sections_used]
@@ -1040,6 +1136,10 @@ def analyse_class(plans: Mapping[int, SavedPlan], table: ReadingsTable) -> Class
         benches=tuple(benches),
         rejections=table.rejections,
         unmeasured=tuple(unmeasured),
+        lost=lost,
+        absent=absent,
+        n_absent=n_absent,
+        sections_without_rows=silent,
         K_all_bound=_statistic(
             [b.K_all_bound.value for b in ok], [s.K_all_bound for s in predicted]
         ),

@@ -122,6 +122,9 @@ class Rejection:
         What is wrong.
     hint
         How to fix it.
+    bench_set
+        (section, bench, replicate) of the row when the plan has that set of mixtures, else
+        None: so a set whose every row is rejected is still named.
     """
 
     row: int
@@ -129,6 +132,7 @@ class Rejection:
     value: str
     problem: str
     hint: str
+    bench_set: BenchKey | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -264,8 +268,15 @@ def parse_readings(
     empty: list[tuple[int, int, int, int, str]] = []
     candidates: list[Reading] = []
 
-    def reject(row: int, column: str, value: str, problem: str, hint: str) -> None:
-        rejections.append(Rejection(row, column, shown(value, 40), problem, hint))
+    def reject(
+        row: int,
+        column: str,
+        value: str,
+        problem: str,
+        hint: str,
+        bench_set: BenchKey | None = None,
+    ) -> None:
+        rejections.append(Rejection(row, column, shown(value, 40), problem, hint, bench_set))
 
     for row, cells in rows[header_at + 1 :]:
         if not any(cell.strip() for cell in cells):
@@ -305,10 +316,15 @@ def parse_readings(
             )
             continue
         mixture = cell["mixture"].strip()
+        key = (
+            (section, bench, replicate)
+            if bench <= shape.benches and replicate <= shape.replicates
+            else None
+        )
         outside = _outside_plan(shape, section, bench, replicate, mixture)
         if outside is not None:
             column, problem, hint = outside
-            reject(row, column, cell[column], problem, hint)
+            reject(row, column, cell[column], problem, hint, key)
             continue
         absorbance_text = cell["absorbance"].strip()
         if not absorbance_text:
@@ -323,11 +339,17 @@ def parse_readings(
                 cell["absorbance"],
                 "not a number",
                 "write the reading as a decimal number with a point, e.g. 0.512",
+                key,
             )
             continue
         if not math.isfinite(absorbance):
             reject(
-                row, "absorbance", cell["absorbance"], "not a finite number", "write the reading"
+                row,
+                "absorbance",
+                cell["absorbance"],
+                "not a finite number",
+                "write the reading",
+                key,
             )
             continue
         if not MIN_ABSORBANCE <= absorbance <= MAX_ABSORBANCE:
@@ -337,7 +359,11 @@ def parse_readings(
                 cell["absorbance"],
                 f"outside {MIN_ABSORBANCE:g} to {MAX_ABSORBANCE:g}, what a photometer zeroed "
                 "on the solvent reads",
-                "check the reading (a negative one: zero the photometer on the solvent)",
+                "check the reading (zero the photometer on the solvent)"
+                if absorbance < MIN_ABSORBANCE
+                else "check the reading (a photometer reads at most about 3 to 4; a slipped "
+                "decimal point?)",
+                key,
             )
             continue
         candidates.append(Reading(row, section, bench, replicate, mixture, absorbance))
@@ -393,6 +419,7 @@ def _without_repeats(candidates: list[Reading], rejections: list[Rejection]) -> 
                         f"{first.mixture}",
                         f"repeats row {first.row} (same reading); the first is kept",
                         "give each mixture of each bench one row",
+                        (first.section, first.bench, first.replicate),
                     )
                 )
             continue
@@ -406,6 +433,7 @@ def _without_repeats(candidates: list[Reading], rejections: list[Rejection]) -> 
                     f"replicate {first.replicate} is given different readings in rows {rows}; "
                     "none is used",
                     "keep the one reading that is right",
+                    (first.section, first.bench, first.replicate),
                 )
             )
     kept.sort(key=lambda r: r.row)

@@ -8,6 +8,7 @@ from dataclasses import dataclass
 from planner.readings.analyse import ClassAnalysis, ClassStatistic, Estimate
 from planner.report._format import significant
 from planner.report.analyse_json import analysis_json, bench_csv
+from planner.report.analyse_text import not_analysed
 from planner.report.sheets import _render
 
 __all__ = ["analysis_files", "analysis_html"]
@@ -114,7 +115,8 @@ def analysis_html(result: ClassAnalysis, *, readings: str, plan: str, plots: boo
         },
         K_true=_v(result.K_true),
         rejections=result.rejections,
-        unmeasured=[f"{s}/{b}/{r}" for s, b, r in result.unmeasured],
+        not_analysed=not_analysed(result),
+        lost=len(result.lost),
         plots=plots,
     )
 

@@ -136,6 +136,12 @@ def analysis_document(result: ClassAnalysis, *, readings: str, plan: str) -> dic
             for r in result.rejections
         ],
         "unmeasured": [{"section": s, "bench": b, "replicate": r} for s, b, r in result.unmeasured],
+        "lost": [{"section": s, "bench": b, "replicate": r} for s, b, r in result.lost],
+        "absent": {
+            "count": result.n_absent,
+            "listed": [{"section": s, "bench": b, "replicate": r} for s, b, r in result.absent],
+            "sections": list(result.sections_without_rows),
+        },
         "class": {
             "benches": len(result.benches),
             "ok": sum(1 for b in result.benches if not b.flags),

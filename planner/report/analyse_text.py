@@ -16,6 +16,37 @@ def _value(value: float, digits: int = 4) -> str:
     return significant(value, digits) if math.isfinite(value) else "-"
 
 
+def _sets(keys: tuple[tuple[int, int, int], ...]) -> str:
+    return ", ".join(f"{s}/{b}/{r}" for s, b, r in keys)
+
+
+def not_analysed(result: ClassAnalysis) -> list[str]:
+    """One sentence for each kind of set of mixtures the analysis could not use, so no set
+    of the plan goes unmentioned (the text and HTML reports print these)."""
+    lines = []
+    if result.unmeasured:
+        lines.append(
+            f"Not measured (section/bench/replicate, all cells empty): {_sets(result.unmeasured)}."
+        )
+    if result.lost:
+        lines.append(
+            "Not analysed, every row rejected (section/bench/replicate): "
+            f"{_sets(result.lost)}. Their results were given but none could be used: see the "
+            "rejected rows."
+        )
+    if result.n_absent:
+        more = result.n_absent - len(result.absent)
+        lines.append(
+            f"No rows in the file for {result.n_absent} set(s) of mixtures the plan has "
+            f"(section/bench/replicate): {_sets(result.absent)}"
+            + (f", and {more} more." if more else ".")
+        )
+    if result.sections_without_rows:
+        listed = ", ".join(str(n) for n in result.sections_without_rows)
+        lines.append(f"No rows in the file for section(s) {listed}.")
+    return lines
+
+
 def _statistic_line(name: str, statistic: ClassStatistic) -> str:
     observed = (
         f"mean {_value(statistic.mean)}, SD {_value(statistic.sd, 2)}, 95 % "
@@ -78,7 +109,8 @@ def render_analysis(result: ClassAnalysis) -> Any:
                 )
     ok = sum(1 for b in result.benches if not b.flags)
     lines = [
-        f"Class: {len(result.benches)} bench sets, {ok} ok, {len(flagged)} flagged.",
+        f"Class: {len(result.benches)} bench sets, {ok} ok, {len(flagged)} flagged"
+        + (f"; {len(result.lost)} more with every row rejected." if result.lost else "."),
         _statistic_line("K, all-bound", result.K_all_bound),
         _statistic_line("K, global fit", result.K_global_fit),
         _statistic_line("eps, all-bound", result.epsilon_all_bound),
@@ -102,9 +134,7 @@ def render_analysis(result: ClassAnalysis) -> Any:
             f"{_value(result.K_true)}{unit}."
         )
     parts.extend(Text(line) for line in lines)
-    if result.unmeasured:
-        listed = ", ".join(f"{s}/{b}/{r}" for s, b, r in result.unmeasured)
-        parts.append(Text(f"Not measured (section/bench/replicate, all cells empty): {listed}"))
+    parts.extend(Text(line, style="bold") for line in not_analysed(result))
     if result.rejections:
         parts.append(Text(f"Rejected rows ({len(result.rejections)})", style="bold"))
         for r in result.rejections:

@@ -265,3 +265,76 @@ def test_one_wrong_standard_of_a_global_fit_plan_is_named_alone(default_out, wro
     clean = [(s, b, r, i, v - (0.06 if i == wrong else 0)) for s, b, r, i, v in rows]
     (bench,) = [b for b in _analyse(plans, clean).benches if (b.section, b.bench) == (1, 1)]
     assert "standard-off-line" not in {f.rule for f in bench.flags}
+
+
+def test_a_set_whose_rows_are_all_rejected_or_never_given_is_named(plan_folder, sections, tmp_path):
+    # Bench 2/2 is given twice with different readings (every row rejected), bench 3/10 has
+    # no row at all: neither may vanish from the report, and the lost one sets exit 1.
+    plans, synthetic = sections
+    rows = class_rows(synthetic, np.random.default_rng(0), noise=0.0)
+    twice = [(s, b, r, m, v + 0.01) for s, b, r, m, v in rows if (s, b) == (2, 2)]
+    rows = [row for row in rows if row[:2] != (3, 10)] + twice
+    result = _analyse(plans, rows)
+    assert result.lost == ((2, 2, 1),)
+    assert result.absent == ((3, 10, 1),)
+    assert result.n_absent == 1
+    assert result.sections_without_rows == ()
+    assert result.flagged
+    assert not any(b.flags for b in result.benches)
+    assert {(b.section, b.bench) for b in result.benches}.isdisjoint({(2, 2), (3, 10)})
+
+    readings = tmp_path / "readings.csv"
+    readings.write_text(rows_csv(rows))
+    done = RUNNER.invoke(app, ["analyse", str(readings), "--plan", str(plan_folder)])
+    assert done.exit_code == 1, done.output
+    text = " ".join(done.stdout.split())
+    assert "28 bench sets, 28 ok, 0 flagged; 1 more with every row rejected." in text
+    assert "Not analysed, every row rejected (section/bench/replicate): 2/2/1." in text
+    assert "No rows in the file for 1 set(s) of mixtures the plan has" in text
+    assert "3/10/1." in text
+    as_json = RUNNER.invoke(
+        app, ["analyse", str(readings), "--plan", str(plan_folder), "--format", "json"]
+    )
+    document = json.loads(as_json.stdout)
+    assert document["lost"] == [{"section": 2, "bench": 2, "replicate": 1}]
+    assert document["absent"] == {
+        "count": 1,
+        "listed": [{"section": 3, "bench": 10, "replicate": 1}],
+        "sections": [],
+    }
+
+
+def test_sections_without_rows_are_named_not_listed_bench_by_bench(sections):
+    # Only section 1 handed in: the other sections are named once, not as 20 sets.
+    plans, synthetic = sections
+    rows = [row for row in class_rows(synthetic, np.random.default_rng(1)) if row[0] == 1]
+    result = _analyse(plans, rows)
+    assert result.sections_without_rows == (2, 3)
+    assert result.n_absent == 0
+    assert result.absent == ()
+    assert result.lost == ()
+
+
+def test_one_wild_test_reading_is_not_called_a_scale_and_gives_no_K(sections):
+    # One test tube read at 2.2 pulls the least-squares factor of the bench's readings, but
+    # the others sit on their predictions: no readings-scaled flag; the test itself is named,
+    # as giving no K (more product than its reagents hold), and left out of the bench's mean.
+    plans, synthetic = sections
+    rows = class_rows(synthetic, np.random.default_rng(0), noise=0.0)
+    rows = [(s, b, r, m, 2.2 if (s, b, m) == (1, 4, "T3") else v) for s, b, r, m, v in rows]
+    (bench,) = [b for b in _analyse(plans, rows).benches if (b.section, b.bench) == (1, 4)]
+    rules = {f.rule: f for f in bench.flags}
+    assert "readings-scaled" not in rules
+    assert "reading-outside-window" in rules
+    assert "T3 gives no K" in rules["test-K-outside-range"].evidence
+    others = [m.K.value for m in bench.mixtures if m.role == "test" and m.id != "T3"]
+    assert bench.K_all_bound.value == pytest.approx(np.mean(others), rel=1e-12)
+
+
+def test_a_bench_read_through_a_longer_cuvette_is_still_called_scaled(sections):
+    # The counterpart: every reading 1.1 x (a 1.1 cm cuvette) moves the median ratio too.
+    plans, synthetic = sections
+    rows = class_rows(synthetic, np.random.default_rng(0), noise=0.0)
+    rows = [(s, b, r, m, v * 1.1 if (s, b) == (1, 4) else v) for s, b, r, m, v in rows]
+    (bench,) = [b for b in _analyse(plans, rows).benches if (b.section, b.bench) == (1, 4)]
+    assert "readings-scaled" in [f.rule for f in bench.flags]

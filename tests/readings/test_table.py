@@ -136,3 +136,13 @@ def test_cli_lists_rejections_and_flags_the_bench_that_lost_a_row(plan_folder, t
     assert first["flags"][0]["rule"] == "missing-mixture"
     assert first["flags"][0]["mixtures"] == ["S2"]
     assert all(b["status"] == "ok" for b in document["benches"][1:])
+
+
+@pytest.mark.parametrize(
+    ("value", "hint"), [("4.5", "slipped decimal point"), ("-0.4", "zero the photometer")]
+)
+def test_an_absorbance_out_of_range_gets_the_fix_for_its_side(value, hint):
+    table = parse_readings(HEADER + GOOD + f"1,1,1,T1,{value}\n", SHAPES)
+    (rejection,) = table.rejections
+    assert hint in rejection.hint
+    assert rejection.bench_set == (1, 1, 1)  # the set is named even though the row is out
