@@ -1587,10 +1587,11 @@ def _preparation(
 ) -> Check:
     totals = _expected_totals(inputs, mixtures)
     # In a constant ionic medium the stocks are made up in the diluent before its salt, so a
-    # salted diluent's flasks hold only what the benches take (docs/methods.md section 13).
+    # salted diluent's flasks hold only what the benches take (docs/methods.md section 13);
+    # a dilution's source is salted whole, its aliquots included.
     volumes = {
         st.id: totals["to_prepare"][st.id]
-        - (totals["for_stocks"].get(st.id, 0.0) if st.medium_salt_M > 0 else 0.0)
+        - (totals["for_stocks"].get(st.id, 0.0) if st.diluent and st.medium_salt_M > 0 else 0.0)
         for st in inputs.stocks
     }
     expected = {

@@ -205,9 +205,10 @@ def preparations(inputs: PlanInputs, totals: Totals) -> tuple[StockPreparation, 
     result = []
     for stock in inputs.stocks:
         volume = totals.to_prepare.get(stock.id, 0.0)
-        if stock.medium_salt_M > 0:
+        if stock.diluent and stock.medium_salt_M > 0:
             # What makes up the other stocks is the medium before its salt (medium_label):
-            # only the benches' share of a salted diluent is weighed and flasked here.
+            # only the benches' share of a salted diluent is weighed and flasked here. A
+            # dilution's source is salted whole: its aliquots carry their salt (_salt).
             volume -= totals.for_stocks.get(stock.id, 0.0)
         if volume > 0:
             result.append(_preparation(inputs, stock, volume, medium, recipes.get(stock.id)))

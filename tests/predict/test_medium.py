@@ -325,3 +325,34 @@ vessel = "flask-50"
     charged = text.replace('"Q"', '"Q-"').replace("NiQ2+", "NiQ+")
     check = next(c for c in design_plan(parse_plan(charged)).checks if c.name == "ionic-strength")
     assert check.status == "warn"
+
+
+def test_a_salted_source_used_only_to_make_a_dilution_still_gets_its_recipe() -> None:
+    # A stock with a solid that the benches never use but a dilution is made from (here
+    # iron-strong, as if the design had used only iron-dilute) is prepared whole, with its
+    # salt: only the diluent's share that makes up other stocks stays unsalted. Its mass by
+    # hand: m = c V M / purity = 0.40 mol/L x 0.100 L x 403.998 g/mol / 0.985 = 16.406 g, with
+    # M(Fe(NO3)3(H2O)9) = 55.845 + 3 (14.007 + 3 x 15.999) + 9 (2 x 1.008 + 15.999)
+    # (IUPAC 2021 abridged values).
+    from dataclasses import replace
+
+    from planner.design.logistics import preparations
+
+    text = DEFAULT.read_text(encoding="utf-8")
+    head, _, rest = text.partition('id = "iron-dilute"')
+    rest = rest.replace('solid = { formula = "Fe(NO3)3(H2O)9", purity = 0.985 }\n', "", 1)
+    inputs = parse_plan(head + 'id = "iron-dilute"' + rest)
+    totals = design_plan(inputs).totals
+    aliquots = totals.for_stocks["iron-strong"]
+    assert 0 < aliquots <= 100.0  # one 100 mL flask holds what the dilutions take
+    only_for_stocks = replace(
+        totals,
+        per_bench={**totals.per_bench, "iron-strong": 0.0},
+        to_prepare={**totals.to_prepare, "iron-strong": aliquots},
+    )
+    prep = {p.stock: p for p in preparations(inputs, only_for_stocks)}
+    strong = prep["iron-strong"]
+    assert (strong.flasks, strong.flask_mL) == (1, 100.0)
+    molar_mass = 55.845 + 3 * (14.007 + 3 * 15.999) + 9 * (2 * 1.008 + 15.999)
+    assert strong.mass_g == pytest.approx(0.40 * 0.100 * molar_mass / 0.985, rel=1e-9)
+    assert strong.salt_M == pytest.approx(0.1, rel=1e-9)  # 3.0 - its own 2.9 mol/L
