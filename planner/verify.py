@@ -385,7 +385,10 @@ def _mixture_count(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
     return _check(
         "mixture-count",
         problems,
-        f"{counts['blank']} blank, {counts['standard']} standards, {counts['test']} tests",
+        ", ".join(
+            f"{counts[role]} {role}{'' if counts[role] == 1 else 's'}"
+            for role in ("blank", "standard", "test")
+        ),
     )
 
 
@@ -906,8 +909,21 @@ def _all_bound_K_error(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _
     ratio = float(np.sum(c_std * l_std) / np.sum(l_std**2))
     x = state.species[tests, product] / ratio
     denominator = (state.components[tests, lim] - x) * (state.components[tests, exc] - x)
-    if ratio <= 0 or np.any(denominator <= 0):
-        return "; the all-bound analysis would give no value of K from these tests"
+    if ratio <= 0:
+        return "; on these standards the all-bound analysis would find no molar absorptivity"
+    if np.any(denominator <= 0):
+        # Said of the assumption alone (exact concentrations, no blank, no stray light): the
+        # answer key's all-bound K, from the predicted readings, may still be a number.
+        short = [
+            f"{mixtures[t].id} ({limiting if x[k] >= state.components[t, lim] else excess})"
+            for k, t in enumerate(tests)
+            if denominator[k] <= 0
+        ]
+        return (
+            "; from the exact concentrations the all-bound expression gives no positive K for "
+            f"{', '.join(short)}: the standards' line infers more product than that reagent "
+            "holds in the test"
+        )
     error = float(np.mean(x / denominator)) / k_true - 1.0
     size = f"{100 * error:+.1f} %"
     if far_off(error):  # "-100.0 %" alone would hide a factor of a million
@@ -1136,7 +1152,12 @@ def _coverage(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) ->
             f"{_names(outside)} bound outside {low:g}-{high:g}, where K is poorly determined"
         )
     span = float(np.ptp(fractions))
-    if len(indices) > 1 and span < design.bound_fraction_span - 1e-12:
+    if len(indices) == 1:
+        problems.append(
+            f"one test, bound {float(fractions[0]):.2f}: a single bound fraction cannot show "
+            "that K stays the same across the tests; ask for two or more (design.tests)"
+        )
+    elif span < design.bound_fraction_span - 1e-12:
         problems.append(
             f"the tests span {span:.2f} of bound fraction, less than the "
             f"{design.bound_fraction_span:g} asked: the constancy of K is weakly tested"

@@ -1375,3 +1375,16 @@ def test_mixtures_of_one_medium_have_no_spread_of_ionic_strength():
     check = next(c for c in plan.checks if c.name == "ionic-strength")
     assert check.status == "pass"
     assert "every mixture at ionic strength 0.2 mol/L (spread 0 %;" in check.detail
+
+
+def test_a_single_test_cannot_pass_the_coverage_check() -> None:
+    # One test has a span of 0 by construction: it cannot show that K stays the same, so the
+    # check warns instead of passing "tests bound 0.79-0.79 (span 0.00)"; the mixture count
+    # reads in the singular.
+    text = (ROOT / "planner" / "data" / "default.toml").read_text(encoding="utf-8")
+    one = text.replace("standards = 5\ntests = 5", "standards = 5\ntests = 1", 1)
+    assert one != text
+    checks = {c.name: c for c in design_plan(parse_plan(one)).checks}
+    assert checks["bound-fraction-coverage"].status == "warn"
+    assert "a single bound fraction cannot show" in checks["bound-fraction-coverage"].detail
+    assert checks["mixture-count"].detail == "1 blank, 5 standards, 1 test"
