@@ -37,6 +37,7 @@ __all__ = [
     "Totals",
     "UncertaintyResult",
     "devices_text",
+    "stock_volume_text",
 ]
 
 #: Coverage factor of a 95 % interval for a normal distribution, k = 1.960 (JCGM 100:2008,
@@ -69,6 +70,19 @@ def devices_text(devices: Sequence[str]) -> str:
     return " + ".join(
         device_id if count == 1 else f"{count} × {device_id}" for device_id, count in counts.items()
     )
+
+
+def stock_volume_text(volume_mL: float) -> str:
+    """A stock volume in a message or a sheet's verdict, the same on both: whole millilitres
+    from 10 mL, two significant figures below (``1206``, ``81``, ``4.2``, ``0.35``).
+
+    A shortfall and a spare are differences of the totals, so they are never given to more
+    figures than the totals carry ("short 1206 mL" of 1806 needed and 600 available, not
+    "1210").
+    """
+    if abs(volume_mL) >= 10:
+        return f"{volume_mL:.0f}"
+    return f"{volume_mL:.2g}"
 
 
 @dataclass(frozen=True, slots=True)

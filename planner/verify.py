@@ -50,6 +50,7 @@ from planner.result import (
     StockPreparation,
     Totals,
     devices_text,
+    stock_volume_text,
 )
 from planner.verify_global_fit import recompute_global_fit
 from planner.verify_prediction import (
@@ -1408,9 +1409,9 @@ def _inventory(inputs: PlanInputs, totals: Totals) -> Check:
         need = totals.to_prepare.get(st.id, 0.0)
         if st.available_mL is not None and need > st.available_mL + 1e-9:
             problems.append(
-                f"{st.id}: {need:.0f} mL needed, {st.available_mL:g} mL available (short "
-                f"{need - st.available_mL:.0f} mL): make more stock, or plan fewer benches or "
-                "sections"
+                f"{st.id}: {stock_volume_text(need)} mL needed, {st.available_mL:g} mL "
+                f"available (short {stock_volume_text(need - st.available_mL)} mL): make more "
+                "stock, or plan fewer benches or sections"
             )
     return _check("stock-inventory", problems, "every stock covers the session with its margin")
 

@@ -337,7 +337,8 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
     index_columns = [grid[:, j] for j in range(len(reagents))]
     volume_columns = [volumes[:, j] for j in range(len(reagents))]
     if diluent is not None:
-        rest = total_mL - used
+        # To the nanolitre, the grid every volume is on: 10 - 7.6 is 2.4, not 2.4000000000000004.
+        rest = np.rint((total_mL - used) * _NL_PER_ML) / _NL_PER_ML
         if in_flask:
             flask = inputs.flask
             assert flask is not None

@@ -249,7 +249,8 @@ def _preparation(
         # A ready-made diluent is the medium itself: its label names none.
         medium="" if stock.diluent and solid is None and not source else medium,
         source=source,
-        aliquot_mL=fraction * flask_mL,
+        # To the nanolitre: a pipetted aliquot of 200.0 mL, not 199.99999999999997.
+        aliquot_mL=round(fraction * flask_mL, 6),
         **_salt(inputs, stock, flask_mL, dilution),
     )
 

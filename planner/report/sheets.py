@@ -48,7 +48,7 @@ from planner.report._format import (
 )
 from planner.report.bench_text import bias_line, medium_line, ranges_line
 from planner.report.cautions import cautions_for, label_hazards
-from planner.result import Plan, Role, StockPreparation, StockRole
+from planner.result import Plan, Role, StockPreparation, StockRole, stock_volume_text
 
 __all__ = [
     "READINGS_COLUMNS",
@@ -513,13 +513,13 @@ def _availability(available_mL: float | None, session_mL: float, needed_mL: floa
     if available_mL is None:
         return "no limit given"
     if available_mL >= needed_mL:
-        return f"enough ({significant(available_mL - needed_mL, 3)} mL spare)"
+        return f"enough ({stock_volume_text(available_mL - needed_mL)} mL spare)"
     if available_mL >= session_mL:
         return (
-            f"SHORT of the margin by {significant(needed_mL - available_mL, 3)} mL "
+            f"SHORT of the margin by {stock_volume_text(needed_mL - available_mL)} mL "
             "(covers the bare need)"
         )
-    return f"SHORT by {significant(needed_mL - available_mL, 3)} mL"
+    return f"SHORT by {stock_volume_text(needed_mL - available_mL)} mL"
 
 
 def _totals_rows(plan: Plan) -> list[_TotalsRow]:

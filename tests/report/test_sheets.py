@@ -462,3 +462,91 @@ def test_element_lines_read_symbols_not_letters():
     iron = make_inputs()
     texts = {c.key: c.text for c in CAUTIONS}
     assert not any(texts[k] in cautions_for(iron) for k in heavy)
+
+
+@pytest.mark.parametrize(
+    ("volume_mL", "text"),
+    [(1206.4, "1206"), (81.3, "81"), (10.0, "10"), (4.23, "4.2"), (0.354, "0.35"), (-3.0, "-3")],
+)
+def test_a_stock_volume_in_a_verdict_has_no_more_figures_than_the_totals(volume_mL, text):
+    from planner.result import stock_volume_text
+
+    assert stock_volume_text(volume_mL) == text
+
+
+def test_the_prep_sheet_and_the_inventory_check_give_one_shortfall():
+    # 1806 mL to prepare against 600 available: both say 1206 (the sheet said 1210, three
+    # figures, beside the check's 1206).
+    from planner.report.sheets import _availability
+    from planner.verify import _inventory
+
+    assert _availability(600.0, 1382.0, 1806.2) == "SHORT by 1206 mL"
+    inputs = make_inputs()
+    stock = inputs.stocks[0]
+    short = dataclasses.replace(inputs, stocks=(dataclasses.replace(stock, available_mL=600.0),))
+    totals = make_plan().totals
+    need = {stock.id: 1806.2}
+    check = _inventory(short, dataclasses.replace(totals, to_prepare=need))
+    assert "(short 1206 mL)" in check.detail
+
+
+# An invented micro-scale bench: piston pipettes into 10 mL flasks (nickel and a chelator).
+MICRO_FLASKS = """
+title = "Nickel with an invented chelator, piston pipettes into 10 mL flasks"
+[reaction]
+temperature_C = 25
+ionic_strength_M = 0.1
+components = ["Ni2+", "Az-"]
+[[reaction.species]]
+name = "NiAz+"
+formula = { "Ni2+" = 1, "Az-" = 1 }
+K = 3.0e4
+epsilon = 15000
+[instrument]
+wavelength_nm = 520
+path_length_cm = 0.5
+absorbance_window = [0.05, 1.2]
+absorbance_sd = 0.002
+stray_light = 0.0005
+cuvette_fill_mL = 1.5
+[[stocks]]
+id = "nickel"
+contains_M = { "Ni2+" = 1.0e-3, "NO3-" = 2.0e-3, "Na+" = 0.1, "Cl-" = 0.1 }
+relative_uncertainty = 0.002
+[[stocks]]
+id = "ligand"
+contains_M = { "Az-" = 0.02, "Na+" = 0.12, "Cl-" = 0.1 }
+relative_uncertainty = 0.003
+[[stocks]]
+id = "buffer"
+contains_M = { "Na+" = 0.1, "Cl-" = 0.1 }
+diluent = true
+[[glassware]]
+kind = "piston-pipette"
+range_uL = [100, 1000]
+step_uL = 1
+count = 2
+[[glassware]]
+kind = "piston-pipette"
+range_uL = [1000, 5000]
+step_uL = 10
+[design]
+standards = 5
+tests = 6
+limiting = "Ni2+"
+vessel = "flask-10"
+"""
+
+
+def test_volumes_to_the_mark_carry_no_float_noise():
+    # A flask's diluent is what the reagents leave (10 - 7.5 - 0.1): written to the
+    # nanolitre, as every other volume, so the CSV reads 2.4 and not 2.4000000000000004.
+    from planner.pipeline import design_plan
+    from planner.planfile import parse_plan
+    from planner.report.sheets import mixtures_csv
+
+    plan = design_plan(parse_plan(MICRO_FLASKS))
+    rows = list(csv.DictReader(io.StringIO(mixtures_csv(plan))))
+    volumes = [row[k] for row in rows for k in row if k.startswith("volume_")]
+    assert len(volumes) == 3 * len(plan.mixtures)
+    assert all(len(v.partition(".")[2]) <= 6 for v in volumes), volumes
