@@ -566,11 +566,26 @@ def _prep_context(plan: Plan, date: str) -> dict[str, Any]:
         f"{session.sections} section(s) × {session.benches_per_section} bench(es) × "
         f"{session.replicates} replicate(s) = {session.sets} full set(s) of mixtures."
     )
+    totals = plan.totals
+    # Sections of a variants folder have recipes of their own: the combined sheet's per-bench
+    # and per-section columns are then the largest section's, and the session their sum.
+    alike = all(
+        math.isclose(
+            totals.per_section.get(s, 0.0) * session.sections, v, rel_tol=1e-9, abs_tol=1e-9
+        )
+        for s, v in totals.session.items()
+    )
+    columns = (
+        "Per section = per bench × benches per section × replicates; session = the sum over "
+        "sections."
+        if alike
+        else "The sections' recipes differ: per bench and per section are the largest of any "
+        "section; session = the sum over the sections."
+    )
     dead_volume_line = (
         f"To prepare = session need × (1 + margin {plain(100 * session.margin, 3)} %) + a dead "
-        f"volume of {plain(plan.totals.dead_volume_mL, 3)} mL per stock assumed left unusable in "
-        "each bench container. Per section = per bench × benches per section × replicates; "
-        "session = the sum over sections."
+        f"volume of {plain(totals.dead_volume_mL, 3)} mL per stock assumed left unusable in "
+        f"each bench container. {columns}"
     )
     making = plan.totals.for_stocks
     if making:

@@ -456,3 +456,22 @@ def test_the_distinct_sections_are_counted_in_words():
 
     assert _own_sections(1) == "only section 1 has test recipes of its own"
     assert _own_sections(3) == "sections 1 to 3 have test recipes of their own"
+
+
+def test_the_combined_prep_sheet_says_what_its_columns_hold(six):
+    # The sections' recipes differ, so the combined sheet's per-bench and per-section columns
+    # are the largest section's and its session the sum: the sheet says so, instead of
+    # "per section = per bench x benches", which its numbers would contradict. A section's
+    # own sheet keeps that rule, and its numbers obey it.
+    from planner.report.sheets import prep_sheet_md
+
+    assert six.combined is not None
+    totals = six.combined.totals
+    for stock, session in totals.session.items():
+        assert session == pytest.approx(sum(p.totals.session[stock] for p in six.plans))
+        assert totals.per_section[stock] == max(p.totals.per_section[stock] for p in six.plans)
+    combined = prep_sheet_md(six.combined, date="2026-01-01")
+    assert "per bench and per section are the largest of any section" in combined
+    assert "Per section = per bench" not in combined
+    section = prep_sheet_md(six.plans[0], date="2026-01-01")
+    assert "Per section = per bench × benches per section × replicates" in section
