@@ -225,20 +225,31 @@ def _option(table: VolumeTable, volume_mL: float, bench: Bench, shelf: dict[str,
     )
 
 
-def stock_shelves(inputs: PlanInputs) -> dict[str, tuple[Device, ...]]:
+def stock_shelves(
+    inputs: PlanInputs, left_out: frozenset[str] = frozenset()
+) -> dict[str, tuple[Device, ...]]:
     """The glassware each stock may use: burets go to one stock each.
 
     A buret is filled with one stock for the whole session (common practice: rinsing and
     refilling a buret between mixtures wastes stock and time and risks carry-over), so a
     buret entry serves at most ``count`` stocks. Burets go to stocks in order of addition
-    (:func:`stock_order`: the diluent, then the excess reagents, the limiting reagent last);
-    a stock beyond the count delivers with the other glassware. In a flask the diluent fills
-    to the mark and takes no buret. Every other device is shared (a pipette is rinsed with
-    the next stock).
+    (:func:`stock_order`: the diluent, then the excess reagents, the limiting reagent last),
+    passing over the stocks in ``left_out`` (the design found no use for them at the bench);
+    a stock beyond the count delivers with the other glassware. In a flask the
+    diluent fills to the mark and takes no buret. Every other device is shared (a pipette is
+    rinsed with the next stock).
     """
     in_flask = inputs.design.vessel_kind == "volumetric-flask"
-    measured = [st for st in stock_order(inputs) if not (in_flask and st.diluent)]
     shelves: dict[str, tuple[Device, ...]] = {}
+    others = tuple(device for device in inputs.glassware if device.kind != "buret")
+    for stock in stock_order(inputs):
+        if stock.id in left_out and not (in_flask and stock.diluent):
+            shelves[stock.id] = others
+    measured = [
+        st
+        for st in stock_order(inputs)
+        if not (in_flask and st.diluent) and st.id not in left_out
+    ]
     for position, stock in enumerate(measured):
         shelves[stock.id] = tuple(
             device
@@ -248,13 +259,16 @@ def stock_shelves(inputs: PlanInputs) -> dict[str, tuple[Device, ...]]:
     return shelves
 
 
-def candidate_set(inputs: PlanInputs) -> CandidateSet:
+def candidate_set(inputs: PlanInputs, left_out: frozenset[str] = frozenset()) -> CandidateSet:
     """Enumerate and evaluate every candidate mixture the shelf can make.
 
     Parameters
     ----------
     inputs
         The validated plan.
+    left_out
+        Reagent stocks the candidates leave out (volume 0 in every mixture, no buret): the
+        design's second try when its first used none of them.
 
     Returns
     -------
@@ -274,12 +288,15 @@ def candidate_set(inputs: PlanInputs) -> CandidateSet:
     # the diluent in a flask, and the design reports failed checks (design-feasibility,
     # mixture-count) instead of an error, so the person sees what binds. One table of
     # distinct volumes per distinct shelf (stocks share it unless burets are scarce).
-    shelves = stock_shelves(inputs)
+    shelves = stock_shelves(inputs, left_out)
     tables: dict[tuple[Device, ...], VolumeTable] = {}
     for shelf in shelves.values():
         if shelf not in tables:
             tables[shelf] = volume_table(shelf, max_volume_mL=total_mL)
-    thinned = {st.id: _thin(tables[shelves[st.id]].volumes_mL()) for st in reagents}
+    thinned = {
+        st.id: np.zeros(0) if st.id in left_out else _thin(tables[shelves[st.id]].volumes_mL())
+        for st in reagents
+    }
 
     # Fewer volumes per stock when the product of the lists would be too long.
     full = [int(thinned[st.id].size) + 1 for st in reagents]

@@ -9,6 +9,7 @@ run once by :mod:`planner.pipeline`; this package imports neither.
 from __future__ import annotations
 
 import dataclasses
+import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
@@ -354,7 +355,38 @@ def design_recipes(
         :func:`planner.pipeline.design_plan`.
     """
     if candidates is None:
-        candidates = candidate_set(inputs)
+        design = _design(inputs, objective, candidate_set(inputs), allowed, shared)
+        unused = _unused_stocks(inputs, design.mixtures)
+        if not unused:
+            return design
+        # A stock no recipe uses (a source kept for making another stock, say) still took a
+        # buret and a share of the candidate grid's volumes: design again without it, its
+        # buret and volumes going to the stocks that are used, and keep the better design.
+        again = _design(inputs, objective, candidate_set(inputs, unused), allowed, shared)
+        return again if _rank(again) < _rank(design) else design
+    return _design(inputs, objective, candidates, allowed, shared)
+
+
+def _unused_stocks(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> frozenset[str]:
+    """Reagent stocks (not the diluent) that no recipe uses."""
+    used = {a.stock for m in mixtures for a in m.additions}
+    return frozenset(st.id for st in inputs.stocks if not st.diluent and st.id not in used)
+
+
+def _rank(design: Design) -> tuple[int, float]:
+    """Fewer failed feasibility checks first, then the lower test objective."""
+    fails = sum(1 for c in design.checks if c.status == "fail")
+    return fails, design.objective if design.objective is not None else math.inf
+
+
+def _design(
+    inputs: PlanInputs,
+    objective: Objective | None,
+    candidates: CandidateSet,
+    allowed: NDArray[np.bool_] | None,
+    shared: SharedWork | None,
+) -> Design:
+    """:func:`design_recipes` on one candidate set."""
     if shared is not None and not shared.serves(inputs, candidates):
         shared = None
     standards = choose_standards(

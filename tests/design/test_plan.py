@@ -211,3 +211,92 @@ def test_blanks_setting_gives_replicate_blanks(tmp_path):
     assert [b.id for b in blanks] == ["B1", "B2"]
     assert blanks[0].additions == blanks[1].additions
     assert not plan.failed
+
+
+# An invented shelf with a stock the benches need not use: a strong ligand stock kept to make
+# its dilution. Burets go to stocks in order of addition, so the strong stock took the second
+# buret, and a share of the candidate grid, before the design found no use for it.
+SOURCE_STOCK_SHELF = """
+title = "Cobalt with an invented absorbing ligand, a strong stock kept for making the dilute"
+[reaction]
+temperature_C = 25
+ionic_strength_M = 0.5
+components = ["Co2+", "Bp-"]
+component_epsilon = { "Bp-" = 120 }
+[[reaction.species]]
+name = "CoBp+"
+formula = { "Co2+" = 1, "Bp-" = 1 }
+K = 1500
+epsilon = 2200
+[[reaction.species]]
+name = "CoBp2"
+formula = { "Co2+" = 1, "Bp-" = 2 }
+log_beta = 5.2
+epsilon = 900
+[instrument]
+wavelength_nm = 505
+absorbance_window = [0.1, 1.0]
+absorbance_sd = 0.003
+[[stocks]]
+id = "cobalt"
+contains_M = { "Co2+" = 0.01, "ClO4-" = 0.02 }
+relative_uncertainty = 0.003
+[[stocks]]
+id = "ligand"
+contains_M = { "Bp-" = 0.05, "Na+" = 0.05 }
+relative_uncertainty = 0.004
+[[stocks]]
+id = "ligand-dilute"
+contains_M = { "Bp-" = 0.005, "Na+" = 0.005 }
+relative_uncertainty = 0.004
+[[stocks]]
+id = "water"
+contains_M = {}
+diluent = true
+[[glassware]]
+kind = "buret"
+volume_mL = 10
+count = 2
+[[glassware]]
+kind = "transfer-pipette"
+volume_mL = 1
+[[glassware]]
+kind = "graduated-pipette"
+volume_mL = 2
+[design]
+standards = 5
+tests = 5
+limiting = "Co2+"
+measured_species = "CoBp+"
+total_volume_mL = 10
+ionic_medium = { salt = "NaClO4", ionic_strength_M = 0.5 }
+"""
+
+
+def test_a_stock_no_recipe_uses_gives_up_its_buret_and_volumes():
+    # First try: the strong ligand holds a buret and no recipe uses it, and only two distinct
+    # standards fit. The design tries again without it: the dilute ligand gets the buret,
+    # cobalt more volumes, and the five standards fit; the plan fails nothing it need not.
+    from planner.design.candidates import candidate_set, stock_shelves
+    from planner.design.plan import _design
+    from planner.planfile import parse_plan
+
+    inputs = parse_plan(SOURCE_STOCK_SHELF)
+    shelves = stock_shelves(inputs)
+    assert any(d.kind == "buret" for d in shelves["ligand"])
+    assert not any(d.kind == "buret" for d in shelves["ligand-dilute"])
+    first = _design(inputs, None, candidate_set(inputs), None, None)
+    assert "ligand" not in {a.stock for m in first.mixtures for a in m.additions}
+    assert sum(m.role == "standard" for m in first.mixtures) < 5
+
+    plan = design_plan(inputs)
+    assert sum(m.role == "standard" for m in plan.mixtures) == 5
+    assert [c.name for c in plan.checks if c.status == "fail"] == []
+    dilute = {
+        d
+        for m in plan.mixtures
+        for a in m.additions
+        if a.stock == "ligand-dilute"
+        for d in a.devices
+    }
+    assert "buret-10mL" in dilute
