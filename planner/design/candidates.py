@@ -246,9 +246,7 @@ def stock_shelves(
         if stock.id in left_out and not (in_flask and stock.diluent):
             shelves[stock.id] = others
     measured = [
-        st
-        for st in stock_order(inputs)
-        if not (in_flask and st.diluent) and st.id not in left_out
+        st for st in stock_order(inputs) if not (in_flask and st.diluent) and st.id not in left_out
     ]
     for position, stock in enumerate(measured):
         shelves[stock.id] = tuple(

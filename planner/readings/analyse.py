@@ -553,6 +553,35 @@ def _residuals_without(
     return {ids[int(r)]: float(v) for r, v in zip(fitted, residuals, strict=True)}
 
 
+def _line_residuals_without(
+    section: _Section, rows: NDArray[np.int64], full: NDArray[np.float64], dropped: frozenset[str]
+) -> dict[str, float] | None:
+    """Each standard's residual against the all-bound standard curve (through the origin) of
+    the standards not ``dropped``: a kept standard against the line through the other kept
+    ones, as :func:`_analyse_group` does with all of them, a dropped one against the line
+    through every kept one; by id. None with fewer than two standards kept or no blank."""
+    ids = section.ids
+    layout = _sub_layout(section.layout, rows)
+    if layout.blanks.size == 0:
+        return None
+    b = section.saved.inputs.instrument.path_length_cm
+    net = full[rows] - full[rows[layout.blanks]].mean()
+    std = layout.standards
+    limiting = layout.totals_M[std, layout.limiting]
+    names = [ids[int(rows[j])] for j in std]
+    kept = [k for k, name in enumerate(names) if name not in dropped]
+    if len(kept) < 2:
+        return None
+    result = {}
+    for k, name in enumerate(names):
+        through = [i for i in kept if i != k]
+        slope = float(
+            all_bound_epsilon(limiting[through][None, :], net[std[through]][None, :], b)[0]
+        )
+        result[name] = float(net[std[k]] - slope * b * limiting[k])
+    return result
+
+
 # ---------------------------------------------------------------------------------------------
 # Flags
 # ---------------------------------------------------------------------------------------------
@@ -610,23 +639,26 @@ def _flags(
         if math.isfinite(r) and abs(r) > k_std * m.u_residual:
             off.append((m, r))
     dropped: list[MixtureResult] = []
-    if not all_bound_line and refit is not None:
+    if refit is not None:
         off, dropped = _unmask(off, standards, k_std, refit)
     if off:
-        line_words = (
-            "the line through the other standards"
-            if all_bound_line
-            else f"the bench's global fit without {', '.join(m.id for m in dropped)}"
-            if dropped
-            else "the bench's global fit"
-        )
+
+        def line_words(standard: MixtureResult) -> str:
+            if all_bound_line:  # "the other standards" leaves the standard itself out
+                others = [m.id for m in dropped if m is not standard]
+                return "the line through the other standards" + (
+                    f" without {', '.join(others)}" if others else ""
+                )
+            without = f" without {', '.join(m.id for m in dropped)}" if dropped else ""
+            return f"the bench's global fit{without}"
+
         flags.append(
             Flag(
                 "standard-off-line",
                 tuple(m.id for m, _ in off),
                 "a standard made wrong: a pipetting slip, a wrong stock or a mislabelled tube",
                 "; ".join(
-                    f"{m.id} is {_g(r)} off {line_words} ({_g(abs(r) / m.u_residual)} u, "
+                    f"{m.id} is {_g(r)} off {line_words(m)} ({_g(abs(r) / m.u_residual)} u, "
                     f"u = {_g(m.u_residual)})"
                     for m, r in off
                 ),
@@ -733,13 +765,14 @@ def _unmask(
     k_std: float,
     refit: Callable[[frozenset[str]], Mapping[str, float] | None],
 ) -> tuple[list[tuple[MixtureResult, float]], list[MixtureResult]]:
-    """The standards off the bench's global fit once the worst ones are left out of it.
+    """The standards off the bench's global fit (or standard curve) once the worst ones are
+    left out of it.
 
-    One wrong standard pulls the global fit towards itself, so the right ones then sit off
-    it too and its own residual shrinks. While a standard is off, the one furthest off (in
-    its u) is left out and the bench refitted; a standard is flagged when it stays off the
-    fit without the worst ones, and each standard left out is flagged with its residual
-    against that fit
+    One wrong standard pulls the global fit, or the line through the standards, towards
+    itself, so the right ones then sit off it too and its own residual shrinks. While a
+    standard is off, the one furthest off (in its u) is left out and the bench refitted; a
+    standard is flagged when it stays off the fit without the worst ones, and each standard
+    left out is flagged with its residual against that fit
     (the masking of outliers in least squares: Rousseeuw and Leroy, Robust Regression and
     Outlier Detection, 1987, ch. 6, from memory). Returns the flagged standards with their
     residuals, and those left out.
@@ -1003,6 +1036,11 @@ def _bench(
 
         def refit(dropped: frozenset[str]) -> Mapping[str, float] | None:
             return _residuals_without(section, rows, full, dropped)
+
+    elif fits is not None:
+
+        def refit(dropped: frozenset[str]) -> Mapping[str, float] | None:
+            return _line_residuals_without(section, rows, full, dropped)
 
     gf_failed = fits is not None and not math.isfinite(k_gf)
     flags = _flags(section, mixtures, missing, scale, gf_failed, refit)

@@ -338,3 +338,24 @@ def test_a_bench_read_through_a_longer_cuvette_is_still_called_scaled(sections):
     rows = [(s, b, r, m, v * 1.1 if (s, b) == (1, 4) else v) for s, b, r, m, v in rows]
     (bench,) = [b for b in _analyse(plans, rows).benches if (b.section, b.bench) == (1, 4)]
     assert "readings-scaled" in [f.rule for f in bench.flags]
+
+
+@pytest.mark.parametrize("wrong", ["S2", "S4"])
+def test_one_wrong_standard_of_an_all_bound_plan_is_named_alone(sections, wrong):
+    # The tubes plan is designed for the all-bound analysis: each standard is checked against
+    # the line through the others. A standard misread 0.1 low tilts the line every other
+    # standard is checked against, so two or three used to be flagged; with the wrong one
+    # left out of the lines (the same unmasking as the global fit's), it is named alone, and
+    # its residual is the misread (by hand: the line through the right standards goes
+    # through their noise-free readings).
+    plans, synthetic = sections
+    assert plans[1].analysis == "all-bound"
+    rows = class_rows(synthetic, np.random.default_rng(0), noise=0.0)
+    rows = [(s, b, r, m, v - 0.1 if (s, b, m) == (1, 2, wrong) else v) for s, b, r, m, v in rows]
+    (bench,) = [b for b in _analyse(plans, rows).benches if (b.section, b.bench) == (1, 2)]
+    (flag,) = [f for f in bench.flags if f.rule == "standard-off-line"]
+    assert flag.mixtures == (wrong,)
+    assert f"{wrong} is " in flag.evidence
+    assert "off the line through the other standards (" in flag.evidence
+    residual = float(flag.evidence.split(" is ")[1].split(" off ")[0])
+    assert residual == pytest.approx(-0.1, abs=0.005)
