@@ -91,6 +91,7 @@ CHECK_NAMES = (
     "ionic-strength",
     "stock-totals",
     "stock-inventory",
+    "stock-composition",
     "cuvette-fill",
     "device-count",
     "buret-per-stock",
@@ -286,6 +287,7 @@ def _plan_checks(
         _ionic_strength(inputs, mixtures, state),
         _stock_totals(inputs, mixtures, totals),
         _inventory(inputs, totals),
+        _stock_composition(inputs),
         _cuvette(inputs, mixtures),
         _device_count(inputs, mixtures),
         _burets(inputs, mixtures),
@@ -1414,6 +1416,53 @@ def _inventory(inputs: PlanInputs, totals: Totals) -> Check:
                 "stock, or plan fewer benches or sections"
             )
     return _check("stock-inventory", problems, "every stock covers the session with its margin")
+
+
+# Concentrations in a plan file are typed to three or four figures: a stock's ion counts as
+# below the medium's beyond this relative shortfall (as for dilution recipes, methods.md
+# section 13).
+_COMPOSITION_RTOL = 1e-3
+
+
+def _stock_composition(inputs: PlanInputs) -> Check:
+    """Every stock made from a solid is made up to the mark with the medium (the diluent;
+    docs/methods.md section 13), so it holds at least the medium's concentration of each of
+    the medium's ions, the solid adding its own: a listed concentration below that disagrees
+    with the prep sheet's recipe, and the ionic strength and every concentration of the plan
+    follow the listed numbers. The plan file's own numbers are compared, before any salt of
+    ``design.ionic_medium``."""
+    diluent = inputs.diluent
+    if diluent is None:
+        return Check("stock-composition", "pass", "no medium to make the stocks up in")
+    medium = diluent.plan_contains_M if diluent.plan_contains_M is not None else diluent.contains_M
+    made = [st for st in inputs.stocks if st.solid is not None and not st.diluent]
+    problems = []
+    for st in made:
+        own = st.plan_contains_M if st.plan_contains_M is not None else st.contains_M
+        short = [
+            (ion, own.get(ion, 0.0), c)
+            for ion, c in medium.items()
+            if own.get(ion, 0.0) < c * (1.0 - _COMPOSITION_RTOL)
+        ]
+        if short:
+            listed = ", ".join(
+                f"{ion} {given:g} (the medium {medium_M:g})" for ion, given, medium_M in short
+            )
+            problems.append(
+                f"{st.id} is made from its solid up to the mark with {diluent.id}, so it holds "
+                f"at least the medium's ions, but the plan file lists {listed} mol/L: list "
+                "what the flask will hold, the medium's ions plus the solid's (unless the "
+                "solid consumes some of them)"
+            )
+    return _check(
+        "stock-composition",
+        problems,
+        f"every stock made from a solid lists at least the ions of {diluent.id}, the medium "
+        "it is made up in"
+        if made
+        else "no stock is made from a solid",
+        warn=True,
+    )
 
 
 def _cuvette(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> Check:
