@@ -19,9 +19,9 @@ Flag rules (each a :class:`Flag` with its threshold and source; ``docs/guide.md`
     analysis), or off the bench's global fit (a plan designed for the global fit, whose
     standards need not lie on a line), by more than :data:`OFF_LINE_U` standard
     uncertainties of that residual (propagated from the plan's u(A)), Bonferroni-corrected
-    over the bench's standards. On the global fit the standard furthest off is left out and
-    the bench refitted, as long as one is off, so that one wrong standard is named alone and
-    with its distance from the fit of the others (:func:`_unmask`).
+    over the bench's standards. The standard furthest off is left out of the lines (or the
+    fit), as long as one is off, so that one wrong standard is named alone and with its
+    distance from the line or fit of the others (:func:`_unmask`).
 ``readings-scaled``
     Every reading scaled by one factor: the least-squares factor between the bench's
     blank-subtracted readings and the predicted ones differs from 1 by more than
@@ -36,6 +36,15 @@ Flag rules (each a :class:`Flag` with its threshold and source; ``docs/guide.md`
     each test).
 ``global-fit-failed``
     The global fit did not converge inside 1.5 decades of the plan's K.
+``mixtures-swapped``
+    Two mixtures each read as the other's prediction (:func:`_swaps`).
+``blank-offset``
+    Every blank-subtracted standard and test reading off its prediction by one amount
+    (:func:`_offset`).
+
+A swap or an offset explains a whole bench: its flag comes first and the bench's other flags
+are those of its readings with the slip undone; a bench with a standard off the line has its
+tests judged on the curve without that standard (:func:`_explained`).
 
 Coverage: a flag fires at 3 standard uncertainties (about 99.7 % for a normal variable,
 JCGM 100:2008, G.1.3, from memory), so that a class of thirty benches with six rules each
@@ -44,6 +53,7 @@ raises few false flags; the 95 % ranges of the answer key are reported beside ev
 
 from __future__ import annotations
 
+import dataclasses
 import itertools
 import math
 from collections.abc import Callable, Mapping, Sequence
@@ -958,8 +968,177 @@ def _bench_results(
         usable = sub.blanks.size > 0 and sub.standards.size > 0 and sub.tests.size > 0
         fits = _analyse_group(section, rows, readings) if usable else None
         for i, key in enumerate(members):
-            results.append(_bench(number, section, key, found[key], rows, sub, fits, i))
+            result = _bench(number, section, key, found[key], rows, sub, fits, i)
+            results.append(_explained(number, section, key, found[key], rows, sub, result))
     return results
+
+
+# ---------------------------------------------------------------------------------------------
+# Slips that explain a whole bench
+# ---------------------------------------------------------------------------------------------
+
+
+def _explained(
+    number: int,
+    section: _Section,
+    key: BenchKey,
+    readings: Mapping[str, Reading],
+    rows: NDArray[np.int64],
+    sub: Layout,
+    result: BenchResult,
+) -> BenchResult:
+    """A flagged bench whose readings one common slip explains: two mixtures read as each
+    other (:func:`_swaps`) or one offset on every blank-subtracted reading (:func:`_offset`).
+
+    The slip's flag comes first, and the bench's other flags are those of its readings with
+    the slip undone, so the knock-on flags of the slip (standards off the line, tests'
+    K out of range, a trend) are not reported as faults of their own. The bench's values
+    stay those of its readings as given.
+    """
+    if not result.flags or sub.blanks.size == 0 or sub.standards.size == 0:
+        return result
+    found = _swaps(result.mixtures) or _offset(result.mixtures)
+    if found is not None:
+        flag, corrected = found
+        undone = {
+            mixture_id: dataclasses.replace(r, absorbance=corrected.get(mixture_id, r.absorbance))
+            for mixture_id, r in readings.items()
+        }
+        values = np.array([[undone[section.ids[int(r)]].absorbance for r in rows]], dtype=float)
+        fits = _analyse_group(section, rows, values) if sub.tests.size > 0 else None
+        fixed = _bench(number, section, key, undone, rows, sub, fits, 0)
+        return dataclasses.replace(result, flags=(flag, *fixed.flags))
+    return _without_wrong_standards(number, section, key, readings, rows, result)
+
+
+def _without_wrong_standards(
+    number: int,
+    section: _Section,
+    key: BenchKey,
+    readings: Mapping[str, Reading],
+    rows: NDArray[np.int64],
+    result: BenchResult,
+) -> BenchResult:
+    """A bench with a standard off the line keeps that flag and what is said of its readings
+    themselves (missing, outside the window); its other flags become those of its readings
+    without the wrong standards: a wrong standard tilts the standard curve, so every test's
+    K moves with it, and the tests were not made wrong. Nothing changes when fewer than two
+    standards would be left."""
+    off = next((f for f in result.flags if f.rule == "standard-off-line"), None)
+    if off is None:
+        return result
+    kept = {mixture_id: r for mixture_id, r in readings.items() if mixture_id not in off.mixtures}
+    kept_rows = np.array([r for r in rows if section.ids[int(r)] in kept], dtype=np.int64)
+    sub = _sub_layout(section.layout, kept_rows)
+    if sub.standards.size < 2 or sub.blanks.size == 0 or sub.tests.size == 0:
+        return result
+    values = np.array([[kept[section.ids[int(r)]].absorbance for r in kept_rows]], dtype=float)
+    fits = _analyse_group(section, kept_rows, values)
+    fixed = _bench(number, section, key, kept, kept_rows, sub, fits, 0)
+    # What is said of the readings themselves stays as found; the rest is judged again.
+    own = ("missing-mixture", "reading-outside-window", off.rule)
+    return dataclasses.replace(
+        result,
+        flags=(
+            *(f for f in result.flags if f.rule in own),
+            *(f for f in fixed.flags if f.rule not in own),
+        ),
+    )
+
+
+def _swaps(mixtures: Sequence[MixtureResult]) -> tuple[Flag, dict[str, float]] | None:
+    """Pairs of mixtures each read as the other: each reading is off its own prediction by
+    more than the bench's family factor times u(A), and within it of the other's. Pairs are
+    taken in plan order, each mixture in one pair at most."""
+    read = [m for m in mixtures if math.isfinite(m.reading) and m.u_absorbance > 0]
+    k = _family_factor(len(read))
+
+    def fits(m: MixtureResult, value: float) -> bool:
+        return abs(value - m.expected.predicted) <= k * m.u_absorbance
+
+    pairs: list[tuple[MixtureResult, MixtureResult]] = []
+    taken: set[str] = set()
+    for a, b in itertools.combinations(read, 2):
+        if a.id in taken or b.id in taken:
+            continue
+        each_off = not fits(a, a.reading) and not fits(b, b.reading)
+        if each_off and fits(a, b.reading) and fits(b, a.reading):
+            pairs.append((a, b))
+            taken |= {a.id, b.id}
+    if not pairs:
+        return None
+    corrected = {}
+    for a, b in pairs:
+        corrected[a.id], corrected[b.id] = b.reading, a.reading
+    flag = Flag(
+        "mixtures-swapped",
+        tuple(m.id for pair in pairs for m in pair),
+        "two tubes or cuvettes exchanged: labels swapped, or read in the wrong order",
+        "; ".join(
+            f"{a.id} read {_g(a.reading)} and {b.id} read {_g(b.reading)}, each the other's "
+            f"prediction ({a.id} {_g(a.expected.predicted)}, {b.id} {_g(b.expected.predicted)})"
+            for a, b in pairs
+        ),
+        f"each reading more than {_g(k)} u(A) from its own prediction and within {_g(k)} u(A) "
+        f"of the other's ({COVERAGE_FLAG:g} sigma for the bench's {len(read)} readings "
+        "together, Bonferroni; common practice); the other flags are those left with the "
+        "two readings exchanged back",
+    )
+    return flag, corrected
+
+
+def _offset(mixtures: Sequence[MixtureResult]) -> tuple[Flag, dict[str, float]] | None:
+    """One offset on every blank-subtracted standard and test reading: the blank read off
+    against the other cuvettes.
+
+    Each net residual r = (A - A_blank) - (predicted - predicted blank) has
+    u = sqrt(u(A)^2 + u(A_blank)^2); the offset c is their weighted mean. It explains the
+    bench when every residual lies within the family factor times its u of c, c itself is
+    that far from zero, and one factor on the predicted readings (``readings-scaled``) fits
+    them less closely (a larger sum of squared residuals in their u)."""
+    blanks = [m for m in mixtures if m.role == "blank" and math.isfinite(m.reading)]
+    read = [m for m in mixtures if m.role != "blank" and math.isfinite(m.reading)]
+    if not blanks or len(read) < 3:
+        return None
+    blank = sum(m.reading for m in blanks) / len(blanks)
+    blank_predicted = sum(m.expected.predicted for m in blanks) / len(blanks)
+    u_blank2 = sum(m.u_absorbance**2 for m in blanks) / len(blanks) ** 2
+    net = np.array([m.expected.predicted - blank_predicted for m in read])
+    r = np.array([m.reading - blank for m in read]) - net
+    u = np.sqrt(np.array([m.u_absorbance**2 for m in read]) + u_blank2)
+    if not np.all(u > 0):
+        return None
+    w = 1.0 / u**2
+    c = float((w * r).sum() / w.sum())
+    k = _family_factor(len(read))
+    explains = bool(np.all(np.abs(r - c) <= k * u))
+    factor = float((net @ (net + r)) / (net @ net)) if float(net @ net) > 0 else 1.0
+    # Both may pass on a few readings close together; the one nearer the readings wins.
+    scaled = float((((r - (factor - 1.0) * net) / u) ** 2).sum()) < float(
+        (((r - c) / u) ** 2).sum()
+    )
+    if not explains or scaled or abs(c) <= k * float(u.min()):
+        return None
+    direction = (
+        "the blank read low against the other cuvettes: a blank cuvette not matched to "
+        "the others, or the photometer zeroed on another cell"
+        if c > 0
+        else "the blank read high: a blank that absorbs (made wrong or contaminated), or a "
+        "smudged blank cuvette"
+    )
+    flag = Flag(
+        "blank-offset",
+        tuple(m.id for m in blanks),
+        direction,
+        f"every standard and test reads {_g(c)} {'above' if c > 0 else 'below'} its "
+        f"prediction once the blank is subtracted ({_g(float(r.min()))} to "
+        f"{_g(float(r.max()))})",
+        f"each blank-subtracted reading within {_g(k)} u of one offset that is itself more "
+        f"than {_g(k)} u from zero ({COVERAGE_FLAG:g} sigma for the bench's {len(read)} "
+        "readings together, Bonferroni; common practice); the other flags are those left "
+        "with the offset taken off",
+    )
+    return flag, {m.id: m.reading - c for m in read}
 
 
 def _mean_of_positive(values: NDArray[np.float64]) -> float:

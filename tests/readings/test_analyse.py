@@ -68,7 +68,11 @@ def test_planted_faults_are_flagged_and_the_pooled_fit_recovers_K(sections, seed
     rules = {(b.section, b.bench): {f.rule for f in b.flags} for b in result.benches}
     assert "standard-off-line" in rules[(1, 3)]
     assert "readings-scaled" in rules[(2, 5)]
-    assert "test-K-outside-range" in rules[(3, 7)]
+    # The two tests read as each other are named as a swap, and nothing else is left once
+    # they are exchanged back (their K out of range followed from the swap alone).
+    assert rules[(3, 7)] == {"mixtures-swapped"}
+    (bench,) = [b for b in result.benches if (b.section, b.bench) == (3, 7)]
+    assert bench.flags[0].mixtures == ("T1", "T4")
     true_K = synthetic[1].K  # the K the readings were made with
     assert result.pooled is not None
     assert pytest.approx(true_K, rel=0.02) == result.pooled.K
@@ -359,3 +363,36 @@ def test_one_wrong_standard_of_an_all_bound_plan_is_named_alone(sections, wrong)
     assert "off the line through the other standards (" in flag.evidence
     residual = float(flag.evidence.split(" is ")[1].split(" off ")[0])
     assert residual == pytest.approx(-0.1, abs=0.005)
+
+
+@pytest.mark.parametrize("offset", [0.04, -0.03])
+def test_a_blank_read_off_against_the_other_cuvettes_is_one_flag(sections, offset):
+    # Every standard and test of bench 2/6 reads `offset` above (or below) its prediction,
+    # the blank as planned: one blank-offset flag names it, and the standards and tests it
+    # moved raise nothing of their own once it is taken off (noise-free class, so the
+    # offset found is the planted one).
+    plans, synthetic = sections
+    rows = class_rows(synthetic, np.random.default_rng(0), noise=0.0)
+    rows = [
+        (s, b, r, m, v + offset if (s, b) == (2, 6) and not m.startswith("B") else v)
+        for s, b, r, m, v in rows
+    ]
+    result = _analyse(plans, rows)
+    (bench,) = [b for b in result.benches if (b.section, b.bench) == (2, 6)]
+    assert [f.rule for f in bench.flags] == ["blank-offset"]
+    word = "above" if offset > 0 else "below"
+    assert f"reads {abs(offset):.4g} {word} its prediction" in bench.flags[0].evidence.replace(
+        f"reads {offset:.4g}", f"reads {abs(offset):.4g}"
+    )
+    assert sum(1 for b in result.benches if b.flags) == 1
+
+
+def test_a_wrong_standard_does_not_flag_the_tests_it_tilted(sections):
+    # S3 misread 0.08 high tilts the standard curve, so every test's all-bound K moves with
+    # it; the bench is flagged for S3 alone, the tests being judged on the curve without it.
+    plans, synthetic = sections
+    rows = class_rows(synthetic, np.random.default_rng(0), noise=0.0)
+    rows = [(s, b, r, m, v + 0.08 if (s, b, m) == (3, 2, "S3") else v) for s, b, r, m, v in rows]
+    (bench,) = [b for b in _analyse(plans, rows).benches if (b.section, b.bench) == (3, 2)]
+    assert [f.rule for f in bench.flags] == ["standard-off-line"]
+    assert bench.flags[0].mixtures == ("S3",)
