@@ -161,7 +161,21 @@ def _error(row: int, column: str, problem: str, value: object = None, hint: str 
     raise ReadingsFileError(problem, field=field, value=value, hint=hint)
 
 
-def _header(cells: list[str], row: int) -> dict[str, int]:
+def _header_hint(cells: list[str]) -> str:
+    """Why a header row lacks the columns, when the row itself shows it."""
+    if len(cells) == 1 and (";" in cells[0] or "\t" in cells[0]):
+        separator = "';'" if ";" in cells[0] else "a tab"
+        return (
+            f"the cells are separated by {separator}, not commas (a spreadsheet set to another "
+            "list separator): save the sheet as comma-separated CSV; "
+        )
+    first = cells[0].strip() if cells else ""
+    if _whole(first) is not None:
+        return "the first row holds readings, not the column names; "
+    return ""
+
+
+def _header(cells: list[str], row: int, source: str) -> dict[str, int]:
     names = [cell.strip().lower() for cell in cells]
     where: dict[str, int] = {}
     for position, name in enumerate(names):
@@ -178,10 +192,10 @@ def _header(cells: list[str], row: int) -> dict[str, int]:
             _error(
                 row,
                 name,
-                "missing column in the header row",
+                f"missing column in the header row of {source}",
                 ",".join(cells),
-                f"the header must name the columns {','.join(COLUMNS)} (as the "
-                "readings-template.csv written beside the sheets does)",
+                f"{_header_hint(cells)}the header must name the columns {','.join(COLUMNS)} "
+                "(as the readings-template.csv written beside the sheets does)",
             )
     return where
 
@@ -211,10 +225,12 @@ def _outside_plan(
             f"replicates are 1 to {shape.replicates}",
         )
     if mixture not in shape.mixtures:
+        same = [m for m in shape.mixtures if m.casefold() == mixture.casefold()]
         return (
             "mixture",
             f"section {section}'s plan has no such mixture",
-            f"mixtures are {', '.join(shape.mixtures)}",
+            (f"did you mean {same[0]}? " if same else "")
+            + f"mixtures are {', '.join(shape.mixtures)}",
         )
     return None
 
@@ -262,7 +278,7 @@ def parse_readings(
     if header_at is None:
         _error(1, "", f"{source} is empty: no header row", hint=f"start with {','.join(COLUMNS)}")
     header_row, header_cells = rows[header_at]
-    where = _header(header_cells, header_row)
+    where = _header(header_cells, header_row, source)
     width = len(header_cells)
     rejections: list[Rejection] = []
     empty: list[tuple[int, int, int, int, str]] = []

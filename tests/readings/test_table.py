@@ -146,3 +146,23 @@ def test_an_absorbance_out_of_range_gets_the_fix_for_its_side(value, hint):
     (rejection,) = table.rejections
     assert hint in rejection.hint
     assert rejection.bench_set == (1, 1, 1)  # the set is named even though the row is out
+
+
+@pytest.mark.parametrize(
+    ("header", "words"),
+    [
+        ("section;bench;replicate;mixture;absorbance", "separated by ';', not commas"),
+        ("1,1,1,B1,0.001", "the first row holds readings"),
+    ],
+)
+def test_a_header_the_row_itself_explains_gets_that_fix(header, words):
+    with pytest.raises(ReadingsFileError) as info:
+        parse_readings(header + "\n" + GOOD, SHAPES, source="week3.csv")
+    assert words in info.value.hint
+    assert "week3.csv" in str(info.value)
+
+
+def test_a_mixture_in_the_wrong_case_gets_a_did_you_mean():
+    table = parse_readings(HEADER + GOOD + "1,1,1,s2,0.5\n", SHAPES)
+    (rejection,) = table.rejections
+    assert rejection.hint.startswith("did you mean S2?")
