@@ -8,7 +8,7 @@ figures are those of an installed package whose bytecode is compiled.
 It also times the libraries' floor: a typer command with the same options as `plan` that
 imports numpy, validates one pydantic model and prints it as JSON, and nothing of the
 planner. No plan can be made faster than that with the command-line, boundary and numerical
-libraries the project is built on (typer from 0.2x imports pydantic while it parses the
+libraries the project is built on (typer 0.29 imports pydantic while it parses the
 arguments), so the figure shows how much of the `plan` time is the planner's own.
 Run: python tests/benchmarks/plan_cli.py [--runs N] [--json]
 """
