@@ -1004,11 +1004,24 @@ def _explained(
             mixture_id: dataclasses.replace(r, absorbance=corrected.get(mixture_id, r.absorbance))
             for mixture_id, r in readings.items()
         }
-        values = np.array([[undone[section.ids[int(r)]].absorbance for r in rows]], dtype=float)
-        fits = _analyse_group(section, rows, values) if sub.tests.size > 0 else None
-        fixed = _bench(number, section, key, undone, rows, sub, fits, 0)
+        fixed = _reanalysed(number, section, key, undone, rows)
         return dataclasses.replace(result, flags=(flag, *fixed.flags))
     return _without_wrong_standards(number, section, key, readings, rows, result)
+
+
+def _reanalysed(
+    number: int,
+    section: _Section,
+    key: BenchKey,
+    readings: Mapping[str, Reading],
+    rows: NDArray[np.int64],
+) -> BenchResult:
+    """One bench analysed alone from ``readings`` of the mixtures at ``rows``."""
+    sub = _sub_layout(section.layout, rows)
+    values = np.array([[readings[section.ids[int(r)]].absorbance for r in rows]], dtype=float)
+    usable = sub.blanks.size > 0 and sub.standards.size > 0 and sub.tests.size > 0
+    fits = _analyse_group(section, rows, values) if usable else None
+    return _bench(number, section, key, readings, rows, sub, fits, 0)
 
 
 def _without_wrong_standards(
@@ -1032,9 +1045,7 @@ def _without_wrong_standards(
     sub = _sub_layout(section.layout, kept_rows)
     if sub.standards.size < 2 or sub.blanks.size == 0 or sub.tests.size == 0:
         return result
-    values = np.array([[kept[section.ids[int(r)]].absorbance for r in kept_rows]], dtype=float)
-    fits = _analyse_group(section, kept_rows, values)
-    fixed = _bench(number, section, key, kept, kept_rows, sub, fits, 0)
+    fixed = _reanalysed(number, section, key, kept, kept_rows)
     # What is said of the readings themselves stays as found; the rest is judged again.
     own = ("missing-mixture", "reading-outside-window", off.rule)
     return dataclasses.replace(
