@@ -257,3 +257,37 @@ def test_an_sd_set_by_a_few_far_benches_is_marked():
     assert _heavy_tailed(730.0, (381.2, 978.9))
     assert _spread(541.0, 730.0, (381.2, 978.9))[1] == "730*"
     assert not _heavy_tailed(float("nan"), (1.0, 2.0))
+
+
+def test_the_class_mean_bias_is_set_beside_the_answer_key_s_noise_free_one():
+    # The answer key's all-bound bias is the noise-free one (the first-order prediction's K);
+    # the virtual class's mean moves further where noise passes through the curvature of K.
+    # The line gives both when they differ at three figures, and says they agree otherwise.
+    from dataclasses import replace
+
+    import numpy as np
+    from rich.console import Console
+
+    from planner.pipeline import design_plan
+    from planner.planfile import load_plan
+    from planner.predict.montecarlo import simulate
+    from planner.report.simulation import render_simulation
+
+    plan = design_plan(load_plan(ROOT / "recipes" / "iron-thiocyanate-tubes.toml"))
+    gum = plan.uncertainty
+    assert gum is not None
+    simulation = simulate(plan.inputs, plan.mixtures, trials=200, rng=np.random.default_rng(1))
+
+    def line(sim) -> str:
+        console = Console(width=400)
+        with console.capture() as captured:
+            console.print(render_simulation(sim, gum))
+        return next(t for t in captured.get().splitlines() if t.startswith("Bias of"))
+
+    noise_free = gum.K.value / simulation.K_true - 1.0
+    same = replace(simulation, K_bias_from_assumption=noise_free)
+    assert "as the answer key gives it (noise-free)" in line(same)
+    apart = replace(simulation, K_bias_from_assumption=noise_free + 0.05)
+    text = line(apart)
+    assert f"{100 * (noise_free + 0.05):+.3g} % for the virtual class's mean" in text
+    assert f"{100 * noise_free:+.3g} % noise-free as the answer key gives it" in text
