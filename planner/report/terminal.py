@@ -187,7 +187,7 @@ def _prediction_line(plan: Plan) -> Text:
     )
     bound_text = (
         f"all-bound analysis: K = {significant(prediction.K, 4)} ± "
-        f"{significant(prediction.u_K, 2)}{unit}, bias from the all-bound assumption "
+        f"{significant(prediction.u_K, 2)}{unit}, bias against the true K "
         f"{relative_bias(prediction.K_bias_from_assumption)}"
         if prediction is not None
         else "all-bound analysis: not applicable here"
