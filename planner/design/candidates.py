@@ -235,9 +235,9 @@ def stock_shelves(
     buret entry serves at most ``count`` stocks. Burets go to stocks in order of addition
     (:func:`stock_order`: the diluent, then the excess reagents, the limiting reagent last),
     passing over the stocks in ``left_out`` (the design found no use for them at the bench);
-    a stock beyond the count delivers with the other glassware. In a flask the
-    diluent fills to the mark and takes no buret. Every other device is shared (a pipette is
-    rinsed with the next stock).
+    a stock beyond the count delivers with the other glassware. In a flask the diluent fills
+    to the mark and takes no buret. Every other device is shared (a pipette is rinsed with
+    the next stock).
     """
     in_flask = inputs.design.vessel_kind == "volumetric-flask"
     shelves: dict[str, tuple[Device, ...]] = {}

@@ -24,8 +24,9 @@ Flag rules (each a :class:`Flag` with its threshold and source; ``docs/guide.md`
     distance from the line or fit of the others (:func:`_unmask`).
 ``readings-scaled``
     Every reading scaled by one factor: the least-squares factor between the bench's
-    blank-subtracted readings and the predicted ones differs from 1 by more than
-    :data:`COVERAGE_FLAG` u(eps)/eps while every standard lies on its line.
+    blank-subtracted readings and the predicted ones, and the median of their ratios
+    (:func:`_median_ratio`), differ from 1 by more than :data:`COVERAGE_FLAG` u(eps)/eps
+    while every standard lies on its line.
 ``test-K-outside-range``
     A test's all-bound K more than :data:`COVERAGE_FLAG` of its predicted standard
     uncertainties from its predicted value, Bonferroni-corrected over the bench's tests.
