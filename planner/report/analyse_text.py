@@ -22,8 +22,16 @@ def _sets(keys: tuple[tuple[int, int, int], ...]) -> str:
 
 def not_analysed(result: ClassAnalysis) -> list[str]:
     """One sentence for each kind of set of mixtures the analysis could not use, so no set
-    of the plan goes unmentioned (the text and HTML reports print these)."""
+    of the plan goes unmentioned, led by a warning when most rows were rejected (readings of
+    another plan, as a rule); the text and HTML reports print these."""
     lines = []
+    accepted = sum(len(b.rows) for b in result.benches)
+    rejected = len(result.rejections)
+    if rejected > accepted:
+        lines.append(
+            f"Most rows were rejected ({rejected} of {rejected + accepted}): check that these "
+            "are the readings of this plan or variants folder (--plan), section by section."
+        )
     if result.unmeasured:
         lines.append(
             f"Not measured (section/bench/replicate, all cells empty): {_sets(result.unmeasured)}."

@@ -396,3 +396,18 @@ def test_a_wrong_standard_does_not_flag_the_tests_it_tilted(sections):
     (bench,) = [b for b in _analyse(plans, rows).benches if (b.section, b.bench) == (3, 2)]
     assert [f.rule for f in bench.flags] == ["standard-off-line"]
     assert bench.flags[0].mixtures == ("S3",)
+
+
+def test_readings_of_another_plan_are_said_to_be_so(sections):
+    # Mixture ids this plan does not have on every bench but one: most rows are rejected,
+    # and the report says to check the plan folder before anything else.
+    from planner.report.analyse_text import not_analysed
+
+    plans, synthetic = sections
+    rows = class_rows(synthetic, np.random.default_rng(0), noise=0.0)
+    rows = [(s, b, r, m if (s, b) == (1, 1) else f"X{m}", v) for s, b, r, m, v in rows]
+    result = _analyse(plans, rows)
+    lines = not_analysed(result)
+    assert lines[0].startswith(f"Most rows were rejected ({len(rows) - 11} of {len(rows)})")
+    clean = _analyse(plans, class_rows(synthetic, np.random.default_rng(0), noise=0.0))
+    assert not any(line.startswith("Most rows") for line in not_analysed(clean))
