@@ -411,3 +411,34 @@ def test_readings_of_another_plan_are_said_to_be_so(sections):
     assert lines[0].startswith(f"Most rows were rejected ({len(rows) - 11} of {len(rows)})")
     clean = _analyse(plans, class_rows(synthetic, np.random.default_rng(0), noise=0.0))
     assert not any(line.startswith("Most rows") for line in not_analysed(clean))
+
+
+def test_a_far_flagged_bench_sits_at_the_edge_of_the_bench_K_figure(sections):
+    # Two standards read as each other give bench 1/2 a K far from the others': the
+    # axis keeps to the predicted ranges, the plan's K and the ok benches, and the far value
+    # is drawn at the axis's edge with its value written beside it.
+    from planner.report.plots.readings import bench_K_figure
+
+    plans, synthetic = sections
+    rows = class_rows(synthetic, np.random.default_rng(0), noise=0.0)
+    values = {(s, b, m): v for s, b, r, m, v in rows}
+    swapped = {"S1": values[(1, 2, "S5")], "S5": values[(1, 2, "S1")]}
+    rows = [(s, b, r, m, swapped.get(m, v) if (s, b) == (1, 2) else v) for s, b, r, m, v in rows]
+    result = _analyse(plans, rows)
+    (bench,) = [b for b in result.benches if (b.section, b.bench) == (1, 2)]
+    chart = bench_K_figure(result)
+    far = [
+        v
+        for v in (bench.K_all_bound.value, bench.K_global_fit.value)
+        if not chart.x.low <= v <= chart.x.high
+    ]
+    assert far  # the swap moved at least one of its K off the axis
+    assert chart.x.high < 10 * result.K_true  # the others are not squeezed into a corner
+    for gid in ("K_all_bound-flagged", "K_global_fit-flagged"):
+        for mark in chart.find(gid):
+            assert all(chart.x.low <= x <= chart.x.high for x in mark.x.tolist())
+    notes = " ".join(note.text for note in chart.notes)
+    from planner.report._format import significant
+
+    for value in far:
+        assert significant(value, 4) in notes

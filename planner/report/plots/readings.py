@@ -11,11 +11,13 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from planner.report._format import significant
 from planner.report.plots._style import BAND, INK, OCHRE, RUST, TEAL
 from planner.report.plots._svg import (
     Band,
     Chart,
     Marker,
+    Note,
     Points,
     Rects,
     Rule,
@@ -63,6 +65,7 @@ def bench_K_figure(result: ClassAnalysis) -> Chart:
         ("K_global_fit", 0.18, TEAL, "o", "global fit"),
         ("K_all_bound", -0.18, RUST, "s", "all-bound"),
     )
+    flagged_rows: list[tuple[str, float, str, Marker, str, list[tuple[float, float]]]] = []
     for analysis, offset, colour, marker, label in analyses:
         for flagged in (False, True):
             rows = [
@@ -72,23 +75,66 @@ def bench_K_figure(result: ClassAnalysis) -> Chart:
             ]
             if not rows:
                 continue
+            if flagged:  # placed once the axis is known: far values go to its edge
+                flagged_rows.append((analysis, offset, colour, marker, label, rows))
+                continue
             chart.add(
                 Points(
-                    f"{analysis}-{'flagged' if flagged else 'ok'}",
+                    f"{analysis}-ok",
                     array([v for _, v in rows]),
                     array([r + offset for r, _ in rows]),
                     marker=marker,
                     size=5.0,
-                    face="#ffffff" if flagged else colour,
+                    face=colour,
                     edge=colour,
-                    label=f"{label}, {'flagged' if flagged else 'ok'} bench",
+                    label=f"{label}, ok bench",
                 )
             )
     if math.isfinite(result.K_true):
         dashed = Stroke(OCHRE, 1.5, (4.0, 2.0))
         chart.add(Rule("true", "x", result.K_true, dashed, label="K the plan assumes"))
+    # The axis spans the predicted ranges, the plan's K and the ok benches; a flagged bench's
+    # K far outside (a swapped tube gives K several times the plan's) would squeeze every
+    # other bench into a corner, so it sits at the axis's edge with its value written.
     low, high = _limits(chart)
-    chart.x = Scale(low, high, label="K (bars: predicted 95 % ranges)")
+    span = high - low
+    beyond: dict[tuple[float, bool], list[float]] = {}  # (row, right edge) -> values
+    for analysis, offset, colour, marker, label, rows in flagged_rows:
+        shown = []
+        for row, value in rows:
+            if low <= value <= high:
+                shown.append(value)
+                continue
+            right = value > high
+            shown.append(high - 0.01 * span if right else low + 0.01 * span)
+            beyond.setdefault((row, right), []).append(value)
+        chart.add(
+            Points(
+                f"{analysis}-flagged",
+                array(shown),
+                array([r + offset for r, _ in rows]),
+                marker=marker,
+                size=5.0,
+                face="#ffffff",
+                edge=colour,
+                label=f"{label}, flagged bench",
+            )
+        )
+    # One note per bench and edge, its values in the legend's order (global fit first).
+    for (row, right), values in beyond.items():
+        text = ", ".join(significant(v, 4) for v in values)
+        chart.note(
+            Note(
+                f"{text} \u2192" if right else f"\u2190 {text}",
+                high - 0.01 * span if right else low + 0.01 * span,
+                row,
+                dx=-6.0 if right else 6.0,
+                anchor="end" if right else "start",
+                size=6.5,
+                halo=True,
+            )
+        )
+    chart.x = Scale(low, high, label="K (bars: predicted 95 % ranges; far values at the edge)")
     chart.y = Scale(
         -0.6,
         len(benches) - 0.4,
