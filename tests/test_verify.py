@@ -1390,66 +1390,19 @@ def test_a_single_test_cannot_pass_the_coverage_check() -> None:
     assert checks["mixture-count"].detail == "1 blank, 5 standards, 1 test"
 
 
-COMPOSITION_PLAN = """
-title = "Nickel with an invented chelator in a sodium chloride medium"
-[reaction]
-temperature_C = 25
-ionic_strength_M = 0.1
-components = ["Ni2+", "Az-"]
-[[reaction.species]]
-name = "NiAz+"
-formula = { "Ni2+" = 1, "Az-" = 1 }
-K = 3.0e4
-epsilon = 15000
-[instrument]
-wavelength_nm = 520
-path_length_cm = 0.5
-absorbance_window = [0.05, 1.2]
-absorbance_sd = 0.002
-cuvette_fill_mL = 1.5
-[[stocks]]
-id = "nickel"
-contains_M = { "Ni2+" = 1.0e-3, "NO3-" = 2.0e-3, "Na+" = 0.1, "Cl-" = 0.1 }
-relative_uncertainty = 0.002
-solid = { formula = "Ni(NO3)2(H2O)6", purity = 0.99 }
-[[stocks]]
-id = "ligand"
-contains_M = { "Az-" = 0.02, "Na+" = 0.1, "Cl-" = 0.08 }
-relative_uncertainty = 0.003
-solid = { formula = "NaC10H8NO2", purity = 0.97, provides = "Az-" }
-[[stocks]]
-id = "buffer"
-contains_M = { "Na+" = 0.1, "Cl-" = 0.1 }
-diluent = true
-[[glassware]]
-kind = "piston-pipette"
-range_uL = [100, 1000]
-step_uL = 1
-count = 2
-[[glassware]]
-kind = "piston-pipette"
-range_uL = [1000, 5000]
-step_uL = 10
-[design]
-standards = 5
-tests = 5
-limiting = "Ni2+"
-vessel = "flask-10"
-"""
-
-
 def test_a_stock_listing_less_than_its_medium_holds_is_warned() -> None:
     # The ligand is weighed from its sodium salt and made up to the mark with the 0.1 mol/L
     # NaCl medium: the flask then holds Cl- 0.1 (all from the medium) and Na+ 0.12 (0.02 more
     # from the salt), by hand. Listed as Cl- 0.08 it disagrees with the prep sheet's recipe;
     # listed as made, it passes (Na+ above the medium is the solid's, not a problem).
     from planner.verify import _stock_composition
+    from tests.plans import MICRO_FLASKS
 
-    inputs = parse_plan(COMPOSITION_PLAN)
-    check = _stock_composition(inputs)
+    listed = MICRO_FLASKS.replace('"Na+" = 0.12, "Cl-" = 0.1', '"Na+" = 0.1, "Cl-" = 0.08')
+    assert listed != MICRO_FLASKS
+    check = _stock_composition(parse_plan(listed))
     assert check.status == "warn"
     assert "ligand is made from its solid up to the mark with buffer" in check.detail
     assert "Cl- 0.08 (the medium 0.1)" in check.detail
     assert "nickel" not in check.detail
-    made = COMPOSITION_PLAN.replace('"Na+" = 0.1, "Cl-" = 0.08', '"Na+" = 0.12, "Cl-" = 0.1')
-    assert _stock_composition(parse_plan(made)).status == "pass"
+    assert _stock_composition(parse_plan(MICRO_FLASKS)).status == "pass"

@@ -809,6 +809,37 @@ def _unmask(
     return [(m, latest[m.id]) for m in dropped] + off, dropped
 
 
+@dataclass(frozen=True, slots=True)
+class _Net:
+    """A bench's standard and test readings read, blank subtracted, beside their predictions.
+
+    ``observed`` and ``predicted`` are reading minus the mean blank reading and prediction
+    minus the mean predicted blank; ``u`` is the u of a net reading,
+    sqrt(u(A)^2 + u(A_blank)^2), u(A_blank) that of the blanks' mean."""
+
+    read: list[MixtureResult]
+    observed: NDArray[np.float64]
+    predicted: NDArray[np.float64]
+    u: NDArray[np.float64]
+
+
+def _net(mixtures: Sequence[MixtureResult]) -> _Net | None:
+    """The bench's net readings (:class:`_Net`); None without a blank read."""
+    blanks = [m for m in mixtures if m.role == "blank" and math.isfinite(m.reading)]
+    if not blanks:
+        return None
+    read = [m for m in mixtures if m.role != "blank" and math.isfinite(m.reading)]
+    blank = sum(m.reading for m in blanks) / len(blanks)
+    blank_predicted = sum(m.expected.predicted for m in blanks) / len(blanks)
+    u_blank2 = sum(m.u_absorbance**2 for m in blanks) / len(blanks) ** 2
+    return _Net(
+        read,
+        np.array([m.reading - blank for m in read]),
+        np.array([m.expected.predicted - blank_predicted for m in read]),
+        np.sqrt(np.array([m.u_absorbance**2 for m in read]) + u_blank2),
+    )
+
+
 def _median_ratio(mixtures: Sequence[MixtureResult]) -> float:
     """Median of the blank-subtracted readings over their predictions (standards and tests).
 
@@ -816,22 +847,13 @@ def _median_ratio(mixtures: Sequence[MixtureResult]) -> float:
     the least-squares factor; one wild reading pulls that factor but not the median, and is
     not a scale (the rules on readings and tests name it). NaN without a blank or a reading.
     """
-    blanks = [m for m in mixtures if m.role == "blank" and math.isfinite(m.reading)]
-    if not blanks:
+    net = _net(mixtures)
+    if net is None:
         return _NAN
-    blank = sum(m.reading for m in blanks) / len(blanks)
-    blank_predicted = sum(m.expected.predicted for m in blanks) / len(blanks)
-    ratios = sorted(
-        (m.reading - blank) / (m.expected.predicted - blank_predicted)
-        for m in mixtures
-        if m.role != "blank"
-        and math.isfinite(m.reading)
-        and m.expected.predicted - blank_predicted > 0
-    )
-    if not ratios:
+    positive = net.predicted > 0
+    if not np.any(positive):
         return _NAN
-    middle = len(ratios) // 2
-    return ratios[middle] if len(ratios) % 2 else (ratios[middle - 1] + ratios[middle]) / 2
+    return float(np.median(net.observed[positive] / net.predicted[positive]))
 
 
 def _family_factor(count: int) -> float:
@@ -1108,18 +1130,11 @@ def _offset(mixtures: Sequence[MixtureResult]) -> tuple[Flag, dict[str, float]] 
     bench when every residual lies within the family factor times its u of c, c itself is
     that far from zero, and one factor on the predicted readings (``readings-scaled``) fits
     them less closely (a larger sum of squared residuals in their u)."""
-    blanks = [m for m in mixtures if m.role == "blank" and math.isfinite(m.reading)]
-    read = [m for m in mixtures if m.role != "blank" and math.isfinite(m.reading)]
-    if not blanks or len(read) < 3:
+    found = _net(mixtures)
+    if found is None or len(found.read) < 3 or not np.all(found.u > 0):
         return None
-    blank = sum(m.reading for m in blanks) / len(blanks)
-    blank_predicted = sum(m.expected.predicted for m in blanks) / len(blanks)
-    u_blank2 = sum(m.u_absorbance**2 for m in blanks) / len(blanks) ** 2
-    net = np.array([m.expected.predicted - blank_predicted for m in read])
-    r = np.array([m.reading - blank for m in read]) - net
-    u = np.sqrt(np.array([m.u_absorbance**2 for m in read]) + u_blank2)
-    if not np.all(u > 0):
-        return None
+    read, net, u = found.read, found.predicted, found.u
+    r = found.observed - net
     w = 1.0 / u**2
     c = float((w * r).sum() / w.sum())
     k = _family_factor(len(read))
@@ -1140,7 +1155,7 @@ def _offset(mixtures: Sequence[MixtureResult]) -> tuple[Flag, dict[str, float]] 
     )
     flag = Flag(
         "blank-offset",
-        tuple(m.id for m in blanks),
+        tuple(m.id for m in mixtures if m.role == "blank" and math.isfinite(m.reading)),
         direction,
         f"every standard and test reads {_g(c)} {'above' if c > 0 else 'below'} its "
         f"prediction once the blank is subtracted ({_g(float(r.min()))} to "

@@ -490,60 +490,13 @@ def test_the_prep_sheet_and_the_inventory_check_give_one_shortfall():
     assert "(short 1206 mL)" in check.detail
 
 
-# An invented micro-scale bench: piston pipettes into 10 mL flasks (nickel and a chelator).
-MICRO_FLASKS = """
-title = "Nickel with an invented chelator, piston pipettes into 10 mL flasks"
-[reaction]
-temperature_C = 25
-ionic_strength_M = 0.1
-components = ["Ni2+", "Az-"]
-[[reaction.species]]
-name = "NiAz+"
-formula = { "Ni2+" = 1, "Az-" = 1 }
-K = 3.0e4
-epsilon = 15000
-[instrument]
-wavelength_nm = 520
-path_length_cm = 0.5
-absorbance_window = [0.05, 1.2]
-absorbance_sd = 0.002
-stray_light = 0.0005
-cuvette_fill_mL = 1.5
-[[stocks]]
-id = "nickel"
-contains_M = { "Ni2+" = 1.0e-3, "NO3-" = 2.0e-3, "Na+" = 0.1, "Cl-" = 0.1 }
-relative_uncertainty = 0.002
-[[stocks]]
-id = "ligand"
-contains_M = { "Az-" = 0.02, "Na+" = 0.12, "Cl-" = 0.1 }
-relative_uncertainty = 0.003
-[[stocks]]
-id = "buffer"
-contains_M = { "Na+" = 0.1, "Cl-" = 0.1 }
-diluent = true
-[[glassware]]
-kind = "piston-pipette"
-range_uL = [100, 1000]
-step_uL = 1
-count = 2
-[[glassware]]
-kind = "piston-pipette"
-range_uL = [1000, 5000]
-step_uL = 10
-[design]
-standards = 5
-tests = 6
-limiting = "Ni2+"
-vessel = "flask-10"
-"""
-
-
 def test_volumes_to_the_mark_carry_no_float_noise():
     # A flask's diluent is what the reagents leave (10 - 7.5 - 0.1): written to the
     # nanolitre, as every other volume, so the CSV reads 2.4 and not 2.4000000000000004.
     from planner.pipeline import design_plan
     from planner.planfile import parse_plan
     from planner.report.sheets import mixtures_csv
+    from tests.plans import MICRO_FLASKS
 
     plan = design_plan(parse_plan(MICRO_FLASKS))
     rows = list(csv.DictReader(io.StringIO(mixtures_csv(plan))))
