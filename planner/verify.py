@@ -615,8 +615,8 @@ def _window(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) -> C
                 )
     if not any(m.role != "blank" for m in mixtures):
         problems.append(
-            "no mixture reaches the window: use a more concentrated limiting stock, a longer "
-            "path length, or glassware that delivers larger volumes"
+            "no standard or test to read: the shelf made none in the window (the design's "
+            "design-feasibility check says which way the readings miss it and what to change)"
         )
     return _check(
         "absorbance-window",

@@ -184,7 +184,10 @@ def _feasibility(inputs: PlanInputs, candidates: CandidateSet, n_standards: int)
     if extremes is None:
         return [
             Check(
-                "design-feasibility", "fail", "no deliverable mixture contains the limiting reagent"
+                "design-feasibility",
+                "fail",
+                "no deliverable mixture forms the measured product (none holds the limiting "
+                "reagent with its partner)",
             )
         ]
     top, bottom = extremes
@@ -220,11 +223,15 @@ def _feasibility(inputs: PlanInputs, candidates: CandidateSet, n_standards: int)
 
 
 def _window_extremes(inputs: PlanInputs, candidates: CandidateSet) -> tuple[float, float] | None:
-    """Readings of the strongest and the weakest mixture holding the limiting reagent, or
-    None when no deliverable mixture holds it."""
+    """Readings of the strongest and the weakest mixture that forms the measured product, or
+    None when no deliverable mixture forms it.
+
+    A mixture holding the limiting reagent without its partner forms no product and reads
+    like the blank: counted, it made a shelf whose smallest deliveries overshoot the window
+    (every mixture with both reagents above it) look as if some mixture reached below it.
+    """
     ev = candidates.evaluation
-    limiting = inputs.reaction.components.index(inputs.design.limiting)
-    coloured = ev.total_M[:, limiting] > 0
+    coloured = ev.species_M[:, inputs.measured] > 0
     if not np.any(coloured):
         return None
     return float(np.max(ev.absorbance[coloured])), float(np.min(ev.absorbance[coloured]))

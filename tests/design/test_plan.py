@@ -300,3 +300,58 @@ def test_a_stock_no_recipe_uses_gives_up_its_buret_and_volumes():
         for d in a.devices
     }
     assert "buret-10mL" in dilute
+
+
+def test_a_shelf_whose_smallest_deliveries_overshoot_the_window_is_told_so():
+    # Burets only (1.00 mL the least delivery) and a 0.010 mol/L limiting ligand: the
+    # weakest mixture that forms the product (1 mL of each stock in 15 mL) reads about 0.97,
+    # by hand 1800 x 0.82 x 6.7e-4 (K [Cu] = 350 x 0.0133 = 4.7, so 82 % bound), above the
+    # 0.9 top of the window. Mixtures of the ligand alone read 0 and form no product; they
+    # used to hide this behind "only 0 distinct standards fit the window".
+    from planner.planfile import parse_plan
+
+    text = """
+title = "Copper with an invented neutral ligand Q, burets only"
+[reaction]
+temperature_C = 25
+ionic_strength_M = 0.5
+components = ["Cu2+", "Q"]
+[[reaction.species]]
+name = "CuQ2+"
+formula = { "Cu2+" = 1, "Q" = 1 }
+K = 350
+epsilon = 1800
+[instrument]
+wavelength_nm = 640
+absorbance_window = [0.1, 0.9]
+absorbance_sd = 0.004
+[[stocks]]
+id = "copper"
+contains_M = { "Cu2+" = 0.20, "ClO4-" = 0.40 }
+relative_uncertainty = 0.002
+[[stocks]]
+id = "ligand"
+contains_M = { "Q" = 0.010 }
+relative_uncertainty = 0.003
+[[stocks]]
+id = "medium"
+contains_M = {}
+diluent = true
+[[glassware]]
+kind = "buret"
+volume_mL = 25
+count = 3
+[design]
+standards = 5
+tests = 5
+limiting = "Q"
+total_volume_mL = 15
+"""
+    plan = design_plan(parse_plan(text))
+    (check,) = [c for c in plan.checks if c.name == "design-feasibility"]
+    assert check.status == "fail"
+    weakest = float(
+        re.search(r"the weakest mixture the shelf can make reads ([0-9.]+)", check.detail)[1]
+    )
+    assert weakest == pytest.approx(1800 * 0.824 * 0.010 / 15, rel=0.02)
+    assert "make the ligand stock" in check.detail
