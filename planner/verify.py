@@ -1568,7 +1568,7 @@ def _expected_preparation(inputs: PlanInputs, stock: Stock, volume_mL: float) ->
             flasks=flasks,
             provides="",
             concentration_M=0.0,
-            medium="" if stock.diluent else medium,
+            medium="",  # supplied ready-made (or the medium itself): made up in nothing
             **weighs_nothing,
             **salt,
         )

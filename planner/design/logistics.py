@@ -246,8 +246,9 @@ def _preparation(
         mass_g=concentration * flask_mL / 1000.0 * molar_mass / purity,
         provides=provides,
         concentration_M=concentration,
-        # A ready-made diluent is the medium itself: its label names none.
-        medium="" if stock.diluent and solid is None and not source else medium,
+        # A stock made neither from a solid nor by dilution is supplied ready-made and takes
+        # no medium (the diluent among them is the medium itself): its label names none.
+        medium="" if solid is None and not source else medium,
         source=source,
         # To the nanolitre: a pipetted aliquot of 200.0 mL, not 199.99999999999997.
         aliquot_mL=round(fraction * flask_mL, 6),

@@ -433,13 +433,15 @@ def _concentrations(contains_M: dict[str, float]) -> str:
 
 def _preparation_rows(plan: Plan) -> list[_PreparationRow]:
     rows = []
+    diluent = plan.inputs.diluent
+    medium_id = diluent.id if diluent is not None else None
     for prep in plan.preparations:
         has_solid = bool(prep.solid_formula)
         rows.append(
             _PreparationRow(
                 stock=prep.stock,
                 flasks=f"{prep.flasks} × {plain(prep.flask_mL, 4)} mL",
-                solid=prep.solid_formula if has_solid else _no_solid(prep),
+                solid=prep.solid_formula if has_solid else _no_solid(prep, medium_id),
                 molar_mass=f"{significant(prep.molar_mass_g_per_mol, 5)} g/mol"
                 if has_solid
                 else "-",
@@ -454,14 +456,14 @@ def _preparation_rows(plan: Plan) -> list[_PreparationRow]:
     return rows
 
 
-def _no_solid(prep: StockPreparation) -> str:
+def _no_solid(prep: StockPreparation, medium_id: str | None) -> str:
     """The Solid cell of a stock without one: its dilution, or who supplies it."""
     if prep.source:
         return (
             f"none: dilute {significant(prep.aliquot_mL, 4)} mL of {prep.source} per flask "
             "to the mark"
         )
-    if not prep.medium:
+    if prep.stock == medium_id:
         return "none listed (the medium itself)"
     return "none listed: must be supplied ready-made"
 

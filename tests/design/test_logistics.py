@@ -348,6 +348,7 @@ def test_a_stock_no_other_makes_is_supplied(big_session):
     assert totals.for_stocks == pytest.approx({"acid": 4000.0})  # iron-strong's 2 x 2000
     made = {p.stock: p for p in preparations(inputs, totals)}
     assert (made["thiocyanate"].source, made["thiocyanate"].solid_formula) == ("", "")
+    assert made["thiocyanate"].medium == ""  # its label names no medium it was made up in
 
 
 @pytest.mark.parametrize(

@@ -503,3 +503,34 @@ def test_volumes_to_the_mark_carry_no_float_noise():
     volumes = [row[k] for row in rows for k in row if k.startswith("volume_")]
     assert len(volumes) == 3 * len(plan.mixtures)
     assert all(len(v.partition(".")[2]) <= 6 for v in volumes), volumes
+
+
+def test_a_ready_made_stock_and_the_medium_are_told_apart_on_the_prep_sheet():
+    # Neither is weighed or diluted; the medium is named as such, a stock nothing on the
+    # shelf makes is to be supplied ready-made and names no medium it was made up in (the
+    # totals take no medium for it either).
+    from pathlib import Path
+
+    from planner.design.logistics import preparations, stock_totals
+    from planner.planfile import load_plan
+    from planner.report.sheets import _preparation_rows
+    from tests.plans import plan_of
+
+    default = Path(__file__).resolve().parents[2] / "planner" / "data" / "default.toml"
+    inputs = load_plan(default)
+    inputs = dataclasses.replace(
+        inputs,
+        stocks=tuple(
+            dataclasses.replace(st, solid=None) if st.id == "thiocyanate" else st
+            for st in inputs.stocks
+        ),
+    )
+    plan = plan_of(default)
+    totals = stock_totals(inputs, plan.mixtures)
+    edited = dataclasses.replace(
+        plan, inputs=inputs, totals=totals, preparations=preparations(inputs, totals)
+    )
+    rows = {row.stock: row for row in _preparation_rows(edited)}
+    assert rows["thiocyanate"].solid == "none listed: must be supplied ready-made"
+    assert rows["thiocyanate"].medium == "-"
+    assert rows["acid"].solid == "none listed (the medium itself)"
