@@ -41,7 +41,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from planner.chem.constants import bench_log_beta
-from planner.forward import predict_readings
+from planner.forward import predict_readings, reading_sensitivity
 from planner.inputs import Instrument, Reaction
 
 __all__ = [
@@ -670,11 +670,6 @@ def global_fit_residuals(
     return result
 
 
-# Relative step of the central differences of :func:`global_fit_jacobian` (in log10 K and in
-# eps): the truncation error, of order step^2, is below 1e-8 relative.
-_JACOBIAN_STEP = 1e-4
-
-
 def global_fit_jacobian(
     reaction: Reaction, instrument: Instrument, layout: Layout
 ) -> NDArray[np.float64]:
@@ -685,37 +680,21 @@ def global_fit_jacobian(
     -------
     NDArray[np.float64]
         d(net reading)/d(eps) [L^-1 mol cm] and d(net reading)/d(log10 K) of each fitted row
-        (standards, then tests), shape (n_fitted, 2), by central differences on the forward
-        model (the blank's mean subtracted as in the fit).
+        (standards, then tests), shape (n_fitted, 2): the forward model's exact derivatives
+        (:func:`planner.forward.reading_sensitivity`), the blank's mean subtracted as in the
+        fit.
     """
-    logs = bench_log_beta(reaction)
-    epsilons = reaction.species_epsilon()
+    readings = predict_readings(reaction, instrument, layout.totals_M)
+    d_eps, d_lg = reading_sensitivity(reaction, instrument, readings, layout.measured)
     fit = _fitted_rows(layout)
-    lg = float(logs[layout.measured])
-    eps = float(epsilons[layout.measured])
 
-    def net(trial_lg: float, trial_eps: float) -> NDArray[np.float64]:
-        trial_logs = logs.copy()
-        trial_logs[layout.measured] = trial_lg
-        trial_epsilons = epsilons.copy()
-        trial_epsilons[layout.measured] = trial_eps
-        a = predict_readings(
-            reaction,
-            instrument,
-            layout.totals_M,
-            log_beta=trial_logs,
-            species_epsilon=trial_epsilons,
-        ).absorbance
+    def net(derivative: NDArray[np.float64]) -> NDArray[np.float64]:
         # Without a blank the readings are fitted as they are (the blank reads zero).
-        blank = float(a[layout.blanks].mean()) if layout.blanks.size else 0.0
-        result: NDArray[np.float64] = a[fit] - blank
+        blank = float(derivative[layout.blanks].mean()) if layout.blanks.size else 0.0
+        result: NDArray[np.float64] = derivative[fit] - blank
         return result
 
-    h = _JACOBIAN_STEP
-    d_lg = (net(lg + h, eps) - net(lg - h, eps)) / (2 * h)
-    step_eps = h * eps if eps > 0 else h
-    d_eps = (net(lg, eps + step_eps) - net(lg, eps - step_eps)) / (2 * step_eps)
-    return np.stack([d_eps, d_lg], axis=1)
+    return np.stack([net(d_eps), net(d_lg)], axis=1)
 
 
 def global_fit_gain(jacobian: NDArray[np.float64]) -> NDArray[np.float64]:

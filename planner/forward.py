@@ -23,11 +23,11 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from planner.chem.constants import bench_log_beta
-from planner.chem.equilibrium import bound_fraction, solve_equilibrium
+from planner.chem.equilibrium import bound_fraction, log_beta_sensitivity, solve_equilibrium
 from planner.inputs import Instrument, Reaction
-from planner.lab.photometer import observed_absorbance, true_absorbance
+from planner.lab.photometer import observed_absorbance, observed_absorbance_slope, true_absorbance
 
-__all__ = ["Readings", "bound_fraction_sweep", "predict_readings"]
+__all__ = ["Readings", "bound_fraction_sweep", "predict_readings", "reading_sensitivity"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -106,6 +106,61 @@ def predict_readings(
         true_absorbance=true_a,
         absorbance=observed_absorbance(true_a, instrument.stray_light),
     )
+
+
+def reading_sensitivity(
+    reaction: Reaction,
+    instrument: Instrument,
+    readings: Readings,
+    species: int,
+    *,
+    species_epsilon: ArrayLike | None = None,
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """How each reading of :func:`predict_readings` moves with one species' eps and constant.
+
+    Parameters
+    ----------
+    reaction, instrument
+        As the readings were predicted with.
+    readings
+        From :func:`predict_readings`, shape (n,).
+    species
+        Row of the product species (the measured one).
+    species_epsilon
+        The product absorptivities the readings were predicted with, if not the reaction's,
+        shape (n_species,) [L mol⁻¹ cm⁻¹].
+
+    Returns
+    -------
+    tuple
+        (dA_obs/d eps [L^-1 mol cm], dA_obs/d log10 beta [unitless]) of each mixture, each
+        shape (n,).
+
+    Notes
+    -----
+    The exact derivatives of the same chain as :func:`predict_readings`: the equilibrium's
+    (:func:`planner.chem.equilibrium.log_beta_sensitivity`), Beer-Lambert's with every
+    absorber, and the stray-light response's
+    (:func:`planner.lab.photometer.observed_absorbance_slope`). No further equilibrium is
+    solved.
+    """
+    epsilon = (
+        reaction.species_epsilon()
+        if species_epsilon is None
+        else np.asarray(species_epsilon, dtype=float)
+    )
+    d_free, d_species = log_beta_sensitivity(
+        readings.free_M, readings.species_M, reaction.stoichiometry(), species
+    )
+    b_cm = instrument.path_length_cm
+    slope = observed_absorbance_slope(readings.true_absorbance, instrument.stray_light)
+    # Element-wise sums over the few absorbers (no BLAS call; see the solver's _small_product).
+    d_true = b_cm * (
+        (d_species * epsilon).sum(axis=1) + (d_free * reaction.free_epsilon()).sum(axis=1)
+    )
+    d_epsilon = slope * b_cm * readings.species_M[:, species]
+    d_log_beta = slope * d_true * float(np.log(10.0))
+    return d_epsilon, d_log_beta
 
 
 def bound_fraction_sweep(

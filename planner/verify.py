@@ -118,9 +118,9 @@ _RTOL_PREDICTION = 1e-6
 # recomputation moves under a change of its inputs in their last digits
 # (planner.verify_prediction.ROUNDING_PROBE): an ill-conditioned K is decided by rounding.
 _NOISE = 100.0
-# The global fit's prediction is re-derived by other finite differences (steps 1e-4 in the
-# constants, 1e-6 in the totals) than the prediction stage's, so it agrees to their
-# truncation error, far below 1e-4 relative.
+# The global fit's prediction is re-derived by finite differences (steps 1e-4 in the
+# constants, 1e-6 in the totals) where the prediction stage differentiates exactly in the
+# constants, so it agrees to their truncation error, far below 1e-4 relative.
 _RTOL_GLOBAL_FIT = 1e-4
 # Every standard and test reading +/- this many u(A) inside the window (2 u: about 95 %).
 _MARGIN_U = 2.0

@@ -159,6 +159,34 @@ def test_global_fit_gain_predicts_how_scipy_least_squares_answers_a_small_change
     assert math.log10(k / 100.0) == pytest.approx(predicted[1], rel=2e-3)
 
 
+def test_global_fit_jacobian_with_stray_light_matches_the_hand_derivative():
+    # Reference: a hand derivation on the 1:1 closed form (not the planner's solver). With
+    # only ML absorbing (eps 4000, b 1 cm) and stray light s = 0.01, the reading is
+    # A_obs = log10((1 + s)/(10^-A + s)) with A = eps x, so dA_obs/d eps = f x and
+    # dA_obs/d log10 K = f eps ln(10) K dx/dK with f = 10^-A/(10^-A + s). Differentiating
+    # K (M0 - x)(L0 - x) = x gives dx/dK = (M0 - x)(L0 - x)/(1 + K (M0 + L0 - 2x)); x is the
+    # quadratic's smaller root in its cancellation-free form 2 K M0 L0/(b + sqrt(b^2 - 4K^2 M0 L0)).
+    # Each column has the blank's derivative subtracted, as the fit subtracts the blank.
+    import dataclasses
+
+    from planner.analysis import global_fit_jacobian
+
+    layout, totals = _layout()
+    k, eps, s = 100.0, 4000.0, 0.01
+    jacobian = global_fit_jacobian(REACTION, dataclasses.replace(INSTRUMENT, stray_light=s), layout)
+    rows = []
+    for m0, l0 in totals:
+        b = k * (m0 + l0) + 1.0
+        x = 2.0 * k * m0 * l0 / (b + math.sqrt(b * b - 4.0 * k * k * m0 * l0))
+        dx_dk = (m0 - x) * (l0 - x) / (1.0 + k * (m0 + l0 - 2.0 * x))
+        f = 10 ** (-eps * x) / (10 ** (-eps * x) + s)
+        rows.append([f * x, f * eps * math.log(10.0) * k * dx_dk])
+    derivative = np.array(rows)
+    fitted = np.concatenate([layout.standards, layout.tests])
+    expected = derivative[fitted] - derivative[layout.blanks].mean(axis=0)
+    np.testing.assert_allclose(jacobian, expected, rtol=1e-10)
+
+
 def test_global_fit_gain_of_inseparable_parameters_is_not_finite():
     from planner.analysis import global_fit_gain
 

@@ -51,6 +51,7 @@ _Ints: TypeAlias = NDArray[np.int64]
 __all__ = [
     "Equilibrium",
     "bound_fraction",
+    "log_beta_sensitivity",
     "one_to_one_complex_M",
     "solve_equilibrium",
 ]
@@ -828,6 +829,55 @@ def solve_equilibrium(
     return Equilibrium(
         free_M=free, species_M=species, relative_residual=residual, iterations=iterations
     )
+
+
+def log_beta_sensitivity(
+    free_M: _Floats, species_M: _Floats, stoichiometry: ArrayLike, species: int
+) -> tuple[_Floats, _Floats]:
+    """How an equilibrium moves when one species' formation constant changes, totals fixed.
+
+    Parameters
+    ----------
+    free_M, species_M
+        The equilibrium, as :class:`Equilibrium` holds it, shapes (n, n_components) and
+        (n, n_species) [mol/L].
+    stoichiometry
+        The coefficients it was solved with, shape (n_species, n_components) [unitless].
+    species
+        Row of the product species whose constant changes.
+
+    Returns
+    -------
+    tuple
+        (d free_M/d ln beta, d species_M/d ln beta), shapes (n, n_components) and
+        (n, n_species) [mol/L]; multiply by ln 10 for the change per unit of log10 beta.
+
+    Notes
+    -----
+    Differentiating the mass balances g(x) = 0 (module notes) at fixed totals gives
+    H dx = -dg/d ln beta_k = -a_k s_k, with H the Hessian the Newton steps solve with, so the
+    sensitivity is one more Newton step (the same numerically careful solve) with the
+    gradient a_k s_k; then dc_j = c_j dx_j and ds_i = s_i (delta_ik + sum_j a_ij dx_j)
+    (implicit function theorem; e.g. Smith and Missen, 1982, ch. 6, from memory). A
+    component whose total is 0 (free concentration 0) does not move.
+
+    Examples
+    --------
+    >>> eq = solve_equilibrium([[0.1, 1.5e-4]], [[1, 1]], [np.log10(98.0)])
+    >>> _, d_species = log_beta_sensitivity(eq.free_M, eq.species_M, [[1, 1]], 0)
+    >>> round(float(d_species[0, 0] / 1.5e-4), 4)
+    0.0828
+    """
+    matrix = np.asarray(stoichiometry, dtype=float)
+    free_t = np.ascontiguousarray(np.asarray(free_M, dtype=float).T)
+    species_t = np.ascontiguousarray(np.asarray(species_M, dtype=float).T)
+    gradient = np.outer(matrix[species], species_t[species])
+    dx = _newton_step(free_t, species_t, gradient, matrix)
+    d_free = (free_t * dx).T
+    d_species_t = _small_product(matrix, dx)
+    d_species_t[species] += 1.0
+    d_species_t *= species_t
+    return d_free, d_species_t.T
 
 
 def _solve_block(

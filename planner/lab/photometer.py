@@ -26,6 +26,7 @@ __all__ = [
     "absorbance_sd_from_transmittance_sd",
     "in_window",
     "observed_absorbance",
+    "observed_absorbance_slope",
     "relative_concentration_error",
     "stray_light_ceiling",
     "true_absorbance",
@@ -201,6 +202,43 @@ def observed_absorbance(true_absorbance: ArrayLike, stray_light: float) -> NDArr
         # Exact identity without rounding or overflow of 10^-A for very large A.
         return a.copy()
     return np.asarray(np.log10((1.0 + s) / (10.0 ** (-a) + s)), dtype=float)
+
+
+def observed_absorbance_slope(
+    true_absorbance: ArrayLike, stray_light: float
+) -> NDArray[np.float64]:
+    """How fast the reading follows the Beer-Lambert absorbance: dA_obs/dA.
+
+    Parameters
+    ----------
+    true_absorbance
+        Beer-Lambert absorbance A, any shape [absorbance units].
+    stray_light
+        Stray-light fraction s = Ps/P0 [unitless], 0 <= s < 1.
+
+    Returns
+    -------
+    NDArray[np.float64]
+        10^-A/(10^-A + s), the derivative of :func:`observed_absorbance`, same shape as
+        ``true_absorbance`` [unitless]: 1 without stray light, falling towards 0 as the
+        reading nears :func:`stray_light_ceiling`.
+
+    Raises
+    ------
+    InvalidInputError
+        With field ``"stray_light"`` for an invalid s.
+
+    Examples
+    --------
+    >>> round(float(observed_absorbance_slope(2.0, 0.01)), 4)
+    0.5
+    """
+    s = _check_stray_light(stray_light)
+    a = np.asarray(true_absorbance, dtype=float)
+    if s == 0.0:
+        return np.ones_like(a)
+    transmitted = 10.0 ** (-a)
+    return np.asarray(transmitted / (transmitted + s), dtype=float)
 
 
 def true_from_observed(observed: ArrayLike, stray_light: float) -> NDArray[np.float64]:

@@ -12,6 +12,7 @@ from hypothesis import strategies as st
 
 from planner.chem.equilibrium import (
     bound_fraction,
+    log_beta_sensitivity,
     one_to_one_complex_M,
     solve_equilibrium,
 )
@@ -237,3 +238,79 @@ def test_negative_coefficient_species_far_above_the_total_converges():
     assert free_m + s1 + s2 == pytest.approx(0.4, rel=1e-12)
     assert abs(free_l + s1 - s2 - 1e-12) <= 1e-12 * 0.4
     assert s2 == pytest.approx(10**2.8363 * free_m / free_l, rel=1e-12)
+
+
+# ---------------------------------------------------------------------------------------------
+# How the equilibrium moves with one constant (implicit differentiation of the mass balances)
+# ---------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("metal", "ligand", "k"),
+    [(0.1, 1.5e-4, 98.0), (1e-3, 1e-3, 1e6), (2e-4, 0.05, 3.5e3), (1e-6, 2e-6, 1e-2)],
+)
+def test_one_to_one_sensitivity_matches_sympy_derivative_of_the_exact_root(metal, ligand, k):
+    # Reference: sympy differentiates the closed-form root of K (M0 - x)(L0 - x) = x with
+    # respect to ln K (d/d ln K = K d/dK), to 30 digits; the complex moves by dx, each free
+    # reagent by -dx.
+    k_sym = sympy.symbols("K", positive=True)
+    m0, l0 = sympy.Rational(str(metal)), sympy.Rational(str(ligand))
+    total = m0 + l0 + 1 / k_sym
+    root = (total - sympy.sqrt(total**2 - 4 * m0 * l0)) / 2
+    expected = float(
+        sympy.N((k_sym * sympy.diff(root, k_sym)).subs(k_sym, sympy.Rational(str(k))), 30)
+    )
+    solved = solve_equilibrium([[metal, ligand]], ONE_TO_ONE, [np.log10(k)])
+    d_free, d_species = log_beta_sensitivity(solved.free_M, solved.species_M, ONE_TO_ONE, 0)
+    assert d_species[0, 0] == pytest.approx(expected, rel=1e-9)
+    assert d_free[0] == pytest.approx([-expected, -expected], rel=1e-9)
+
+
+def test_sensitivity_of_each_constant_of_a_one_to_two_system_matches_central_differences():
+    # Reference: central differences of the solver's own answers (step 1e-5 in log10 beta;
+    # truncation and the solver's rounding below 1e-6 relative), for each of the two
+    # constants, over mixtures that span ligand-poor, metal-poor, equimolar and a blank
+    # without ligand (which must not move).
+    totals = np.array([[1e-3, 2e-3], [1e-4, 0.1], [0.05, 1e-4], [2e-3, 2e-3], [0.1, 0.0]])
+    base = FE_SCN_LOG_BETA
+    solved = solve_equilibrium(totals, ONE_AND_TWO, base)
+    step = 1e-5
+    for k in (0, 1):
+        up, down = base.copy(), base.copy()
+        up[k] += step
+        down[k] -= step
+        high = solve_equilibrium(totals, ONE_AND_TWO, up)
+        low = solve_equilibrium(totals, ONE_AND_TWO, down)
+        scale = 2 * step * np.log(10.0)
+        d_free, d_species = log_beta_sensitivity(solved.free_M, solved.species_M, ONE_AND_TWO, k)
+        np.testing.assert_allclose(
+            d_species, (high.species_M - low.species_M) / scale, rtol=1e-6, atol=1e-20
+        )
+        # A free concentration near its total (0.1 mol/L) moves by less than its differences'
+        # rounding (about 1e-16 x 0.1 / 2e-5), hence the absolute floor.
+        np.testing.assert_allclose(
+            d_free, (high.free_M - low.free_M) / scale, rtol=1e-6, atol=1e-11
+        )
+        assert np.all(d_species[4] == 0.0)
+        assert np.all(d_free[4] == 0.0)
+
+
+def test_sensitivity_of_three_components_with_a_negative_coefficient():
+    # The hydroxo system above (three components, Cholesky branch): the implicit derivative
+    # agrees with central differences of the solver, and every mass balance stays balanced
+    # (sum over species of a_ij ds_i + dc_j = 0 for each component).
+    matrix = np.array([[1.0, 1.0, 0.0], [1.0, 0.0, -1.0]])
+    totals = np.array([[0.05, 1e-4, 0.5], [1e-3, 2e-3, 1e-2]])
+    logs = np.array([2.0, -2.8])
+    solved = solve_equilibrium(totals, matrix, logs)
+    d_free, d_species = log_beta_sensitivity(solved.free_M, solved.species_M, matrix, 0)
+    up, down = logs.copy(), logs.copy()
+    up[0] += 1e-5
+    down[0] -= 1e-5
+    numeric = (
+        solve_equilibrium(totals, matrix, up).species_M
+        - solve_equilibrium(totals, matrix, down).species_M
+    ) / (2e-5 * np.log(10.0))
+    np.testing.assert_allclose(d_species, numeric, rtol=1e-6)
+    balance = d_free + d_species @ matrix
+    assert np.max(np.abs(balance) / totals) < 1e-12

@@ -22,6 +22,7 @@ from planner.lab.photometer import (
     absorbance_sd_from_transmittance_sd,
     in_window,
     observed_absorbance,
+    observed_absorbance_slope,
     relative_concentration_error,
     stray_light_ceiling,
     true_absorbance,
@@ -251,3 +252,16 @@ def test_bad_transmittance_sd_names_the_field(sigma_t):
 def test_negative_absorbance_names_the_field(absorbance):
     with pytest.raises(InvalidInputError, match=r"^absorbance: "):
         relative_concentration_error(absorbance, 0.003)
+
+
+@pytest.mark.parametrize("stray_light", [0.0, 1e-4, 0.01, 0.05])
+@pytest.mark.parametrize("absorbance", [0.0, 0.3, 1.0, 2.5])
+def test_observed_absorbance_slope_is_sympy_derivative(absorbance, stray_light):
+    # Reference: sympy differentiates log10((1 + s)/(10^-A + s)) with respect to A.
+    import sympy
+
+    a, s = sympy.symbols("A s", nonnegative=True)
+    reading = sympy.log((1 + s) / (10 ** (-a) + s), 10)
+    expected = float(sympy.diff(reading, a).subs({a: absorbance, s: stray_light}))
+    got = float(observed_absorbance_slope(absorbance, stray_light))
+    assert got == pytest.approx(expected, rel=1e-12)
