@@ -312,6 +312,15 @@ def candidate_set(inputs: PlanInputs, left_out: frozenset[str] = frozenset()) ->
         limit = _shrink(full, lambda sizes: _subset_count(sizes, most_stocks))
     none = Option(volume_mL=0.0, devices=(), u_mL=0.0)
     by_id = devices_by_id(inputs.glassware)
+    # Stocks that share a shelf ask for many of the same volumes: each is looked up once.
+    known: dict[tuple[int, float], Option] = {}
+
+    def option(table: VolumeTable, volume_mL: float) -> Option:
+        key = (id(table), volume_mL)
+        if key not in known:
+            known[key] = _option(table, volume_mL, inputs.bench, by_id)
+        return known[key]
+
     columns: list[tuple[Option, ...]] = []
     for st, per_stock in zip(reagents, limit, strict=True):
         volumes = thinned[st.id]
@@ -319,7 +328,7 @@ def candidate_set(inputs: PlanInputs, left_out: frozenset[str] = frozenset()) ->
             pick = distinct(np.linspace(0, volumes.size - 1, per_stock - 1).round().astype(int))
             volumes = volumes[pick]
         table = tables[shelves[st.id]]
-        columns.append((none, *(_option(table, float(v), inputs.bench, by_id) for v in volumes)))
+        columns.append((none, *(option(table, float(v)) for v in volumes)))
 
     if subsets:
         grid = _subset_grid([len(c) for c in columns], most_stocks)
@@ -370,16 +379,14 @@ def candidate_set(inputs: PlanInputs, left_out: frozenset[str] = frozenset()) ->
             lookup = np.zeros(unique_keys.size, dtype=np.int64)
             for position in np.flatnonzero(deliverable).tolist():
                 lookup[position] = len(diluent_list)
-                diluent_list.append(
-                    _option(table, float(unique_keys[position]) / _NL_PER_ML, inputs.bench, by_id)
-                )
+                diluent_list.append(option(table, float(unique_keys[position]) / _NL_PER_ML))
             zero = unique_keys == 0
             ok = (deliverable | zero)[inverse.reshape(-1)]
             index = lookup[inverse.reshape(-1)]
             index_columns = [c[ok] for c in index_columns]
             volume_columns = [c[ok] for c in volume_columns]
             index_columns.append(index[ok])
-            volume_columns.append(np.array([diluent_list[i].volume_mL for i in index[ok]]))
+            volume_columns.append(np.array([o.volume_mL for o in diluent_list])[index[ok]])
             columns.append(tuple(diluent_list))
         stock_ids.append(diluent.id)
 
