@@ -330,32 +330,21 @@ def candidate_set(inputs: PlanInputs, left_out: frozenset[str] = frozenset()) ->
         table = tables[shelves[st.id]]
         columns.append((none, *(option(table, float(v)) for v in volumes)))
 
+    # No mixture holds more reagent than this (the rest is diluent, at least a tenth of a
+    # flask: common practice, leaving room to adjust to the mark).
+    most_mL = (1.0 - _FLASK_DILUENT_SHARE) * total_mL if in_flask else total_mL
+    column_volumes = [np.array([o.volume_mL for o in c]) for c in columns]
     if subsets:
-        grid = _subset_grid([len(c) for c in columns], most_stocks)
-    elif columns:
-        # Every combination, the last stock's option varying fastest (itertools.product's
-        # order), built by numpy rather than as Python tuples: 70 ms less for 144 000 rows.
-        sizes = [len(c) for c in columns]
-        grid = np.indices(sizes, dtype=np.int64).reshape(len(sizes), -1).T
+        grid = _subset_grid([len(c) for c in columns], most_stocks).reshape(-1, len(reagents))
+        volumes = np.stack([v[grid[:, j]] for j, v in enumerate(column_volumes)], axis=1)
+        used = volumes.sum(axis=1)
+        keep = used <= most_mL + 1e-9
+        grid, volumes, used = grid[keep], volumes[keep], used[keep]
     else:
-        grid = np.zeros((1, 0), dtype=np.int64)
-    grid = grid.reshape(-1, len(reagents))
-    if reagents:
-        volumes = np.stack(
-            [np.array([o.volume_mL for o in c])[grid[:, j]] for j, c in enumerate(columns)],
-            axis=1,
-        )
-    else:
-        volumes = np.zeros((1, 0))
-    used = volumes.sum(axis=1)
-    keep = used <= total_mL + 1e-9
-    if in_flask:
-        # The diluent makes up to the mark: a flask filled to the mark by the reagents alone
-        # leaves nothing to adjust with (common practice: at least a tenth of the flask).
-        keep &= used <= (1.0 - _FLASK_DILUENT_SHARE) * total_mL + 1e-9
+        grid, volumes, used = _product_grid(column_volumes, most_mL)
     if not in_flask and diluent is None:
-        keep &= np.abs(used - total_mL) <= 1e-9
-    grid, volumes, used = grid[keep], volumes[keep], used[keep]
+        keep = np.abs(used - total_mL) <= 1e-9
+        grid, volumes, used = grid[keep], volumes[keep], used[keep]
 
     stock_ids = [st.id for st in reagents]
     index_columns = [grid[:, j] for j in range(len(reagents))]
@@ -451,6 +440,33 @@ def _subset_count(sizes: Sequence[int], most_stocks: int) -> int:
         for order in range(most_stocks, 0, -1):
             sums[order] += sums[order - 1] * (size - 1)
     return sum(sums)
+
+
+def _product_grid(
+    column_volumes: Sequence[NDArray[np.float64]], most_mL: float
+) -> tuple[NDArray[np.int64], NDArray[np.float64], NDArray[np.float64]]:
+    """Every combination of one option per stock whose volumes add up to at most ``most_mL``.
+
+    Returns (option indices, shape (n, n_stocks); their volumes [mL], same shape; each row's
+    sum [mL], shape (n,)), rows in itertools.product's order (the last stock varying
+    fastest). Volumes are not negative, so a partial sum over the limit stays over it: the
+    combinations grow one stock at a time and drop such rows at once, and the work follows
+    the mixtures that fit rather than every combination (132 651 for 9 796 kept on the
+    default plan). Each sum is added in stock order, as a row sum adds.
+    """
+    grid = np.zeros((1, 0), dtype=np.int64)
+    used = np.zeros(1)
+    for volumes in column_volumes:
+        rows = np.repeat(np.arange(used.size), volumes.size)
+        options = np.tile(np.arange(volumes.size, dtype=np.int64), used.size)
+        total = used[rows] + volumes[options]
+        keep = total <= most_mL + 1e-9
+        grid = np.concatenate([grid[rows[keep]], options[keep, None]], axis=1)
+        used = total[keep]
+    volumes_mL = np.zeros(grid.shape)
+    for j, volumes in enumerate(column_volumes):
+        volumes_mL[:, j] = volumes[grid[:, j]]
+    return grid, volumes_mL, used
 
 
 def _subset_grid(sizes: Sequence[int], most_stocks: int) -> NDArray[np.int64]:
