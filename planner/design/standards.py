@@ -252,31 +252,39 @@ def choose_standards(
     stock_count = np.count_nonzero(candidates.volumes_mL[:, reagent_columns] > 0, axis=1)
     by_group = np.argsort(inverse, kind="stable")
     starts = np.searchsorted(inverse[by_group], np.arange(len(codes) + 1))
+    # The examined groups' members, one group after another in ranked order.
+    segments = [by_group[starts[g] : starts[g + 1]] for g in order]
+    members = indices[np.concatenate(segments)]
+    lengths = np.array([segment.size for segment in segments])
+    first = np.concatenate([[0], np.cumsum(lengths)[:-1]])
+    # Nearest reading first; ties (within 1 % of the window) to fewer stocks, then fewer
+    # deliveries, then the lower predicted relative uncertainty: one key per candidate.
+    tie_break = (
+        stock_count[members] * 100.0
+        + candidates.deliveries[members] * 10.0
+        + np.minimum(candidates.u_relative_total[members, limiting], 1.0)
+    )
+    # Each group picks its standards target by target, every group at once: the free member
+    # of least key, the first of equal ones.
+    taken = np.zeros(members.size, dtype=bool)
+    position = np.arange(members.size)
+    picks = np.full((order.size, targets.size), -1, dtype=np.int64)
+    for t, target in enumerate(targets):
+        miss = np.round(np.abs(absorbance[members] - target) / (0.01 * width))
+        key = np.where(taken, np.inf, miss * 1e3 + tie_break)
+        least = np.repeat(np.minimum.reduceat(key, first), lengths)
+        at = np.minimum.reduceat(np.where(key == least, position, members.size), first)
+        found = np.isfinite(np.minimum.reduceat(key, first))
+        taken[at[found]] = True
+        picks[found, t] = members[at[found]]
     best: tuple[tuple[float, ...], list[int]] | None = None
     winner = -1
     # Every group's picks, and how many groups share the best score (see StandardsMemo).
     picked = np.zeros(candidates.size, dtype=np.bool_)
     best_count = 0
     comparable = True
-    for g in order:
-        members = indices[by_group[starts[g] : starts[g + 1]]]
-        # Nearest reading first; ties (within 1 % of the window) to fewer stocks, then fewer
-        # deliveries, then the lower predicted relative uncertainty: one key per candidate.
-        tie_break = (
-            stock_count[members] * 100.0
-            + candidates.deliveries[members] * 10.0
-            + np.minimum(candidates.u_relative_total[members, limiting], 1.0)
-        )
-        free = np.ones(members.size, dtype=bool)
-        chosen: list[int] = []
-        for target in targets:
-            if not free.any():
-                break
-            miss = np.round(np.abs(absorbance[members] - target) / (0.01 * width))
-            key = np.where(free, miss * 1e3 + tie_break, np.inf)
-            pick = int(np.argmin(key))
-            free[pick] = False
-            chosen.append(int(members[pick]))
+    for g, row in zip(order, picks, strict=True):
+        chosen = [int(i) for i in row if i >= 0]
         floor = float(np.min(evaluation.bound_fraction[chosen])) if chosen else 0.0
         met = floor >= 1.0 - tolerance
         miss_total = float(np.sum(np.abs(absorbance[chosen] - targets[: len(chosen)])) / width)
