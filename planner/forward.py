@@ -23,11 +23,22 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from planner.chem.constants import bench_log_beta
-from planner.chem.equilibrium import bound_fraction, log_beta_sensitivity, solve_equilibrium
+from planner.chem.equilibrium import (
+    bound_fraction,
+    log_beta_sensitivity,
+    solve_equilibrium,
+    total_sensitivity,
+)
 from planner.inputs import Instrument, Reaction
 from planner.lab.photometer import observed_absorbance, observed_absorbance_slope, true_absorbance
 
-__all__ = ["Readings", "bound_fraction_sweep", "predict_readings", "reading_sensitivity"]
+__all__ = [
+    "Readings",
+    "bound_fraction_sweep",
+    "predict_readings",
+    "reading_sensitivity",
+    "total_reading_sensitivity",
+]
 
 
 @dataclass(frozen=True, slots=True)
@@ -113,8 +124,6 @@ def reading_sensitivity(
     instrument: Instrument,
     readings: Readings,
     species: int,
-    *,
-    species_epsilon: ArrayLike | None = None,
 ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """How each reading of :func:`predict_readings` moves with one species' eps and constant.
 
@@ -126,9 +135,6 @@ def reading_sensitivity(
         From :func:`predict_readings`, shape (n,).
     species
         Row of the product species (the measured one).
-    species_epsilon
-        The product absorptivities the readings were predicted with, if not the reaction's,
-        shape (n_species,) [L mol⁻¹ cm⁻¹].
 
     Returns
     -------
@@ -144,23 +150,68 @@ def reading_sensitivity(
     (:func:`planner.lab.photometer.observed_absorbance_slope`). No further equilibrium is
     solved.
     """
-    epsilon = (
-        reaction.species_epsilon()
-        if species_epsilon is None
-        else np.asarray(species_epsilon, dtype=float)
-    )
     d_free, d_species = log_beta_sensitivity(
         readings.free_M, readings.species_M, reaction.stoichiometry(), species
     )
-    b_cm = instrument.path_length_cm
+    slope = observed_absorbance_slope(readings.true_absorbance, instrument.stray_light)
+    d_epsilon = slope * instrument.path_length_cm * readings.species_M[:, species]
+    d_log_beta = _reading_change(
+        reaction, instrument, readings, d_free, d_species, reaction.species_epsilon()
+    )
+    return d_epsilon, d_log_beta * float(np.log(10.0))
+
+
+def total_reading_sensitivity(
+    reaction: Reaction,
+    instrument: Instrument,
+    readings: Readings,
+    total_M: NDArray[np.float64],
+    component: int,
+) -> NDArray[np.float64]:
+    """dA_obs/dT of each reading of :func:`predict_readings` for one component's total.
+
+    Parameters
+    ----------
+    reaction, instrument
+        As the readings were predicted with.
+    readings
+        From :func:`predict_readings` for ``total_M``, shape (n,).
+    total_M
+        The totals, shape (n, n_components) [mol/L].
+    component
+        Column of the component.
+
+    Returns
+    -------
+    NDArray[np.float64]
+        Shape (n,) [L/mol]; 0 where that total is 0. The exact derivative of the same chain
+        (:func:`planner.chem.equilibrium.total_sensitivity`, Beer-Lambert, stray light).
+    """
+    d_free, d_species = total_sensitivity(
+        readings.free_M, readings.species_M, total_M, reaction.stoichiometry(), component
+    )
+    return _reading_change(
+        reaction, instrument, readings, d_free, d_species, reaction.species_epsilon()
+    )
+
+
+def _reading_change(
+    reaction: Reaction,
+    instrument: Instrument,
+    readings: Readings,
+    d_free: NDArray[np.float64],
+    d_species: NDArray[np.float64],
+    epsilon: NDArray[np.float64],
+) -> NDArray[np.float64]:
+    """The reading's change for a change of the equilibrium (d_free, d_species): Beer-Lambert
+    over every absorber, then the stray-light slope at each reading."""
     slope = observed_absorbance_slope(readings.true_absorbance, instrument.stray_light)
     # Element-wise sums over the few absorbers (no BLAS call; see the solver's _small_product).
-    d_true = b_cm * (
+    d_true = instrument.path_length_cm * (
         (d_species * epsilon).sum(axis=1) + (d_free * reaction.free_epsilon()).sum(axis=1)
     )
-    d_epsilon = slope * b_cm * readings.species_M[:, species]
-    d_log_beta = slope * d_true * float(np.log(10.0))
-    return d_epsilon, d_log_beta
+    result: NDArray[np.float64] = slope * d_true
+    return result
 
 
 def bound_fraction_sweep(

@@ -54,6 +54,7 @@ __all__ = [
     "log_beta_sensitivity",
     "one_to_one_complex_M",
     "solve_equilibrium",
+    "total_sensitivity",
 ]
 
 _LN10 = float(np.log(10.0))
@@ -878,6 +879,60 @@ def log_beta_sensitivity(
     d_species_t[species] += 1.0
     d_species_t *= species_t
     return d_free, d_species_t.T
+
+
+def total_sensitivity(
+    free_M: _Floats,
+    species_M: _Floats,
+    total_M: _Floats,
+    stoichiometry: ArrayLike,
+    component: int,
+) -> tuple[_Floats, _Floats]:
+    """How an equilibrium moves when one component's total grows, constants fixed.
+
+    Parameters
+    ----------
+    free_M, species_M
+        The equilibrium, as :class:`Equilibrium` holds it, shapes (n, n_components) and
+        (n, n_species) [mol/L].
+    total_M
+        The totals it was solved for, shape (n, n_components) [mol/L].
+    stoichiometry
+        The coefficients it was solved with, shape (n_species, n_components) [unitless].
+    component
+        Column of the component whose total changes.
+
+    Returns
+    -------
+    tuple
+        (d free_M/d T, d species_M/d T), shapes (n, n_components) and (n, n_species)
+        [unitless]; rows where the component's total is 0 are 0 (the equilibrium is not
+        differentiable there: the first of that component starts species from nothing).
+
+    Notes
+    -----
+    As :func:`log_beta_sensitivity`: the mass balances g(x) = c + A^T s - T differentiated
+    at fixed constants give H dx = e_j, one Newton-system solve. Another component absent
+    from a mixture (free concentration 0) enters at the solver's stand-in for a zero total,
+    so the system stays regular and that component does not move.
+
+    Examples
+    --------
+    >>> eq = solve_equilibrium([[0.1, 1.5e-4]], [[1, 1]], [np.log10(98.0)])
+    >>> _, d_species = total_sensitivity(eq.free_M, eq.species_M, [[0.1, 1.5e-4]], [[1, 1]], 1)
+    >>> round(float(d_species[0, 0]), 4)
+    0.9073
+    """
+    matrix = np.asarray(stoichiometry, dtype=float)
+    free_t = np.maximum(np.asarray(free_M, dtype=float).T, _ZERO_STAND_IN_M)
+    species_t = np.ascontiguousarray(np.asarray(species_M, dtype=float).T)
+    gradient = np.zeros_like(free_t)
+    gradient[component] = -1.0
+    dx = _newton_step(free_t, species_t, gradient, matrix)
+    present = np.asarray(total_M, dtype=float)[:, component] > 0
+    d_free = np.where(present[:, None], (free_t * dx).T, 0.0)
+    d_species = np.where(present[:, None], (species_t * _small_product(matrix, dx)).T, 0.0)
+    return d_free, d_species
 
 
 def _solve_block(

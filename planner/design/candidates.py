@@ -25,7 +25,7 @@ from numpy.typing import NDArray
 from planner.chem.equilibrium import bound_fraction
 from planner.chem.mixing import IonTable, ion_table, ionic_strength_after_reaction_M, mix_M
 from planner.design._arrays import distinct, distinct_inverse
-from planner.forward import predict_readings
+from planner.forward import Readings, predict_readings, total_reading_sensitivity
 from planner.inputs import Bench, Device, PlanInputs, Stock
 from planner.lab.bench import reading_sd, technique_sd_mL
 from planner.lab.deliveries import Delivery, VolumeTable, devices_by_id, volume_table
@@ -524,30 +524,24 @@ def _padded(
     return padded
 
 
-# Relative step of the one-sided difference of the forward model (truncation ~1e-6 relative,
-# ample for a screening estimate).
-_READING_STEP = 1e-6
-
-
 def _reading_uncertainty(
     inputs: PlanInputs, evaluation: Evaluation, u_relative_total: NDArray[np.float64]
 ) -> NDArray[np.float64]:
     """u(A) of each candidate: sqrt(u_read^2 + sum_j (dA/dT_j u(T_j))^2) (GUM, JCGM 100:2008,
-    eq. 10, components taken as independent), dA/dT_j by a one-sided difference of
-    :func:`planner.forward.predict_readings`; u_read is the heteroscedastic reading noise of
-    :func:`planner.lab.bench.reading_sd` at the candidate's reading."""
+    eq. 10, components taken as independent), dA/dT_j the forward model's exact derivative
+    (:func:`planner.forward.total_reading_sensitivity`); u_read is the heteroscedastic reading
+    noise of :func:`planner.lab.bench.reading_sd` at the candidate's reading."""
     totals = evaluation.total_M
     variance = reading_sd(inputs.instrument, inputs.bench, evaluation.absorbance) ** 2
+    readings = Readings(
+        free_M=evaluation.free_M,
+        species_M=evaluation.species_M,
+        true_absorbance=evaluation.true_absorbance,
+        absorbance=evaluation.absorbance,
+    )
     for j in range(totals.shape[1]):
-        step = _READING_STEP * totals[:, j]
-        present = step > 0
-        if not np.any(present):
-            continue
-        moved = totals[present].copy()
-        moved[:, j] += step[present]
-        shifted = predict_readings(inputs.reaction, inputs.instrument, moved).absorbance
-        slope = (shifted - evaluation.absorbance[present]) / step[present]
-        variance[present] += (slope * u_relative_total[present, j] * totals[present, j]) ** 2
+        slope = total_reading_sensitivity(inputs.reaction, inputs.instrument, readings, totals, j)
+        variance += (slope * u_relative_total[:, j] * totals[:, j]) ** 2
     result: NDArray[np.float64] = np.sqrt(variance)
     return result
 

@@ -52,7 +52,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.analysis import all_bound_K_from_x, global_fit_gain, global_fit_jacobian
-from planner.forward import predict_readings
+from planner.forward import predict_readings, total_reading_sensitivity
 from planner.inputs import PlanInputs
 from planner.predict._experiment import BenchExperiment, bench_experiment
 from planner.predict.bias import bias_causes
@@ -79,10 +79,6 @@ __all__ = [
     "propagate",
     "reading_uncertainties",
 ]
-
-# Relative step of the central differences of the equilibrium and photometer (the only
-# sensitivity that has no closed form): the truncation error is ~1e-12 relative, far below 0.1 %.
-_EQUILIBRIUM_STEP = 1e-6
 
 _Function = Callable[..., Any]
 
@@ -519,7 +515,7 @@ def _formula(
             chain = f"K·ln 10·{chain}"
         return (
             f"{chain}, where G = (JᵀJ)⁻¹Jᵀ is the global fit's gain, ∂A/∂c the forward "
-            "model's sensitivity (central difference)"
+            "model's sensitivity (differentiated analytically)"
         )
     n_tests = len(ex.layout.tests)
     terms: list[str] = []
@@ -612,27 +608,19 @@ def _budget(
 def _reading_sensitivity(inputs: PlanInputs, ex: BenchExperiment) -> NDArray[np.float64]:
     """d(reading)/d(component total) of every mixture, shape (n_mix, n_comp) [L/mol].
 
-    The equilibrium has no closed form in general, so this one sensitivity is a central
-    difference (JCGM 100:2008, 5.1.3, note 2, allows sensitivity coefficients found
-    numerically), with a relative step of 1e-6.
+    The equilibrium has no closed form in general; the forward model's exact derivative
+    (:func:`planner.forward.total_reading_sensitivity`, the mass balances differentiated
+    implicitly) gives this one sensitivity, 0 for a component a mixture does not hold.
     """
-
-    def reading(totals: NDArray[np.float64]) -> NDArray[np.float64]:
-        return predict_readings(inputs.reaction, inputs.instrument, totals).absorbance
-
-    result = np.zeros_like(ex.layout.totals_M)
-    for j in range(len(ex.components)):
-        step = _EQUILIBRIUM_STEP * ex.layout.totals_M[:, j]
-        present = step > 0
-        if not np.any(present):
-            continue
-        plus = ex.layout.totals_M.copy()
-        minus = ex.layout.totals_M.copy()
-        plus[:, j] += step
-        minus[:, j] -= step
-        difference = reading(plus) - reading(minus)
-        result[:, j] = np.where(present, difference / np.where(present, 2 * step, 1.0), 0.0)
-    return result
+    totals = ex.layout.totals_M
+    readings = predict_readings(inputs.reaction, inputs.instrument, totals)
+    return np.stack(
+        [
+            total_reading_sensitivity(inputs.reaction, inputs.instrument, readings, totals, j)
+            for j in range(len(ex.components))
+        ],
+        axis=1,
+    )
 
 
 def _reading_gradient(

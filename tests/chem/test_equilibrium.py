@@ -15,6 +15,7 @@ from planner.chem.equilibrium import (
     log_beta_sensitivity,
     one_to_one_complex_M,
     solve_equilibrium,
+    total_sensitivity,
 )
 from planner.errors import InvalidInputError
 
@@ -314,3 +315,62 @@ def test_sensitivity_of_three_components_with_a_negative_coefficient():
     np.testing.assert_allclose(d_species, numeric, rtol=1e-6)
     balance = d_free + d_species @ matrix
     assert np.max(np.abs(balance) / totals) < 1e-12
+
+
+@pytest.mark.parametrize(
+    ("metal", "ligand", "k"),
+    [(0.1, 1.5e-4, 98.0), (1e-3, 1e-3, 1e6), (2e-4, 0.05, 3.5e3), (1e-6, 2e-6, 1e-2)],
+)
+def test_total_sensitivity_matches_sympy_derivative_of_the_exact_root(metal, ligand, k):
+    # Reference: sympy differentiates the closed-form root of K (M0 - x)(L0 - x) = x with
+    # respect to each total, to 30 digits.
+    m_sym, l_sym = sympy.symbols("M L", positive=True)
+    kk = sympy.Rational(str(k))
+    total = m_sym + l_sym + 1 / kk
+    root = (total - sympy.sqrt(total**2 - 4 * m_sym * l_sym)) / 2
+    point = {m_sym: sympy.Rational(str(metal)), l_sym: sympy.Rational(str(ligand))}
+    solved = solve_equilibrium([[metal, ligand]], ONE_TO_ONE, [np.log10(k)])
+    for column, symbol in enumerate((m_sym, l_sym)):
+        expected = float(sympy.N(sympy.diff(root, symbol).subs(point), 30))
+        d_free, d_species = total_sensitivity(
+            solved.free_M, solved.species_M, [[metal, ligand]], ONE_TO_ONE, column
+        )
+        assert d_species[0, 0] == pytest.approx(expected, rel=1e-9, abs=1e-15)
+        # Each free reagent is its total minus the complex.
+        own = np.array([1.0 if j == column else 0.0 for j in range(2)])
+        assert d_free[0] == pytest.approx(own - expected, rel=1e-9, abs=1e-15)
+
+
+def test_total_sensitivity_of_a_one_to_two_system_with_absent_components():
+    # Reference: central differences of the solver (relative step 1e-6 of the total) where
+    # the total is present; hand reasoning where a mixture lacks a reagent: adding metal to a
+    # mixture without ligand forms nothing (free metal rises one for one), and a component a
+    # mixture lacks gets 0 (not differentiable at 0). Every balance holds to first order:
+    # dc_j + sum_i a_ij ds_i is 1 for the component added and 0 for the other.
+    totals = np.array([[1e-3, 2e-3], [1e-4, 0.1], [0.05, 1e-4], [1e-3, 0.0], [0.0, 1e-3]])
+    solved = solve_equilibrium(totals, ONE_AND_TWO, FE_SCN_LOG_BETA)
+    for j in (0, 1):
+        d_free, d_species = total_sensitivity(
+            solved.free_M, solved.species_M, totals, ONE_AND_TWO, j
+        )
+        present = totals[:, j] > 0
+        step = 1e-6 * totals[present, j]
+        up, down = totals[present].copy(), totals[present].copy()
+        up[:, j] += step
+        down[:, j] -= step
+        numeric = (
+            solve_equilibrium(up, ONE_AND_TWO, FE_SCN_LOG_BETA).species_M
+            - solve_equilibrium(down, ONE_AND_TWO, FE_SCN_LOG_BETA).species_M
+        ) / (2 * step[:, None])
+        np.testing.assert_allclose(d_species[present], numeric, rtol=1e-6, atol=1e-12)
+        assert np.all(d_species[~present] == 0.0)
+        assert np.all(d_free[~present] == 0.0)
+        balance = d_free + d_species @ ONE_AND_TWO
+        expected = np.zeros(2)
+        expected[j] = 1.0
+        np.testing.assert_allclose(
+            balance[present], np.tile(expected, (present.sum(), 1)), atol=1e-9
+        )
+    d_free, d_species = total_sensitivity(solved.free_M, solved.species_M, totals, ONE_AND_TWO, 0)
+    assert d_free[3] == pytest.approx([1.0, 0.0])
+    assert np.all(d_species[3] == 0.0)
