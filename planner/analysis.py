@@ -35,7 +35,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -43,6 +42,7 @@ from numpy.typing import ArrayLike, NDArray
 from planner.chem.constants import bench_log_beta
 from planner.forward import predict_readings, reading_sensitivity
 from planner.inputs import Instrument, Reaction
+from planner.records import record
 
 __all__ = [
     "GlobalFitTable",
@@ -74,7 +74,7 @@ _LN10 = math.log(10.0)
 _STEP_TOLERANCE = 1e-9
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Layout:
     """One bench's set of mixtures as the analyses see it: the recipe's nominal totals.
 
@@ -239,7 +239,7 @@ def all_bound_K(
 # ---------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class GlobalFitTable:
     """The global model at the nominal concentrations, tabulated over log10 K.
 
@@ -469,7 +469,7 @@ def global_fit_start_offset(
     return (float(fitted_eps[0] - eps[0]), float(math.log10(fitted_k[0] / k[0])))
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class PooledFit:
     """The global fit of several sets of readings at once (one eps and one K for all).
 

@@ -17,8 +17,6 @@ Skoog, Holler and Crouch, Principles of Instrumental Analysis, 7th ed., 2017, se
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
@@ -31,6 +29,7 @@ from planner.chem.equilibrium import (
 )
 from planner.inputs import Instrument, Reaction
 from planner.lab.photometer import observed_absorbance, observed_absorbance_slope, true_absorbance
+from planner.records import record
 
 __all__ = [
     "Readings",
@@ -41,7 +40,7 @@ __all__ = [
 ]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Readings:
     """The forward model's result for a batch of mixtures.
 

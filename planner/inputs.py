@@ -11,10 +11,12 @@ Units are in the names: ``_M`` mol/L, ``_mL`` millilitres, ``_uL`` microlitres, 
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, replace
+from dataclasses import field, replace
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
+
+from planner.records import record
 
 __all__ = [
     "DEVICE_KINDS",
@@ -61,7 +63,7 @@ def _format_size(value: float) -> str:
     return text or "0"
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class ProductSpecies:
     """A product species formed from the reaction components.
 
@@ -120,7 +122,7 @@ class ProductSpecies:
         return f"L{power}/mol{power}"
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Reaction:
     """The complexation system: components, product species and the medium of the constants.
 
@@ -195,7 +197,7 @@ class Reaction:
         return tuple(sp.name for sp in self.species)
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Instrument:
     """The photometer and cuvette.
 
@@ -230,7 +232,7 @@ class Instrument:
     transmittance_sd: float = 0.0
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Bench:
     """How the benches work: the technique's errors beside the glassware's and photometer's.
 
@@ -269,7 +271,7 @@ class Bench:
     temperature_sd_C: float = 0.0
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Solid:
     """The solid a stock is made from, so the prep sheet can weigh it out.
 
@@ -289,7 +291,7 @@ class Solid:
     provides: str = ""
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Stock:
     """A stock solution on the shelf.
 
@@ -325,7 +327,7 @@ class Stock:
     plan_contains_M: dict[str, float] | None = None
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Device:
     """One kind of glassware on the shelf.
 
@@ -371,7 +373,7 @@ class Device:
         return f"{self.kind}-{_format_size(self.volume_mL)}mL"
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class IonicMedium:
     """A constant ionic medium: an inert salt added to every stock up to one ionic strength.
 
@@ -387,7 +389,7 @@ class IonicMedium:
     ionic_strength_M: float
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class DesignSettings:
     """What to design.
 
@@ -463,7 +465,7 @@ class DesignSettings:
         return float(self.vessel.removeprefix("flask-"))
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class SessionSettings:
     """The teaching or work session the prep room supplies.
 
@@ -546,7 +548,7 @@ def measured_species_index(reaction: Reaction, design: DesignSettings) -> int:
     return holding[0]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class PlanInputs:
     """Everything a plan file says, validated and unit-normalised.
 

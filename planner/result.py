@@ -8,11 +8,12 @@ absorptivity [L mol⁻¹ cm⁻¹] and ``K`` a formation constant [L/mol].
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import field
 from typing import Literal, get_args
 
 from planner.inputs import PlanInputs
 from planner.lab.deliveries import Delivery
+from planner.records import record
 
 __all__ = [
     "CHECK_STATUSES",
@@ -85,7 +86,7 @@ def stock_volume_text(volume_mL: float) -> str:
     return f"{volume_mL:.2g}"
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Addition:
     """One stock delivered into a mixture.
 
@@ -115,7 +116,7 @@ class Addition:
     deliveries: tuple[Delivery, ...] = ()
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Mixture:
     """A recipe and its predicted state.
 
@@ -167,7 +168,7 @@ class Mixture:
         return sum(a.volume_mL for a in self.additions if a.stock == stock_id)
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Check:
     """One finding of verification.
 
@@ -186,7 +187,7 @@ class Check:
     detail: str
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Totals:
     """Stock volumes the plan needs [mL], keyed by stock id.
 
@@ -216,7 +217,7 @@ class Totals:
     for_stocks: dict[str, float] = field(default_factory=dict)
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class StockPreparation:
     """How the prep room makes one stock.
 
@@ -273,7 +274,7 @@ class StockPreparation:
     salt_mass_g: float = 0.0
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Prediction:
     """What the all-bound analysis (limiting reagent all bound in the standards) will report.
 
@@ -333,7 +334,7 @@ class Prediction:
     K_bias_causes: BiasCauses | None = None
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class GlobalFitPrediction:
     """What the global fit of one bench's readings will report (first order).
 
@@ -368,7 +369,7 @@ class GlobalFitPrediction:
         return (self.K - half, self.K + half)
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Contributor:
     """One input's contribution to a measurand's uncertainty.
 
@@ -405,7 +406,7 @@ class Contributor:
     formula: str
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Budget:
     """The uncertainty budget of one measurand.
 
@@ -436,7 +437,7 @@ class Budget:
         return (self.value - half, self.value + half)
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class MixtureUncertainty:
     """First-order uncertainty of one mixture's composition and reading.
 
@@ -468,7 +469,7 @@ class MixtureUncertainty:
         return (self.absorbance - half, self.absorbance + half)
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class MediumEffect:
     """The ionic medium's share of the bias (:mod:`planner.predict.medium`).
 
@@ -491,7 +492,7 @@ class MediumEffect:
     K_bias_global_fit: float
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class BiasCauses:
     """The all-bound K's relative bias split by cause (:mod:`planner.predict.bias`) [unitless].
 
@@ -516,7 +517,7 @@ class BiasCauses:
     temperature: float
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class UncertaintyResult:
     """The first-order prediction of the all-bound analysis.
 
@@ -567,7 +568,7 @@ class UncertaintyResult:
         return self.K.value / self.K_true - 1.0
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Plan:
     """A finished plan: inputs, mixtures, totals, preparation, checks and prediction.
 

@@ -32,13 +32,13 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
 
 from planner.inputs import PlanInputs
 from planner.lab.tolerances import standard_uncertainty_mL
+from planner.records import record
 from planner.result import Mixture
 from planner.verify_prediction import bench_log_beta, reading_noise_sd
 
@@ -57,7 +57,7 @@ _PARAMETER_STEP = 1e-4
 _TOTAL_STEP = 1e-6
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class RecomputedGlobalFit:
     """The global fit's prediction, re-derived: eps and K (the plan's, which the fit returns
     from noise-free readings) and their standard uncertainties."""

@@ -64,7 +64,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
@@ -74,6 +73,7 @@ from planner.chem.species import charge_from_name
 from planner.inputs import Device, PlanInputs
 from planner.lab.deliveries import devices_by_id
 from planner.lab.tolerances import piston_errors_uL, standard_uncertainty_mL
+from planner.records import record
 from planner.result import Addition, Mixture, Prediction
 
 __all__ = [
@@ -101,7 +101,7 @@ _ONE_MARK = frozenset({"transfer-pipette", "volumetric-flask"})
 _GRADUATED = frozenset({"buret", "graduated-pipette", "graduated-cylinder"})
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class RecomputedPrediction:
     """The prediction block, re-derived, with how far rounding of its inputs moves it.
 

@@ -107,6 +107,7 @@ def test_answer_key_reading_ranges_are_1_96_u_of_plan_json(tmp_path):
 # Rank of each unit of the package: a module may import units of its own rank or below only.
 _RANKS = {
     "errors": 0,
+    "records": 0,
     "inputs": 1,
     "chem": 2,
     "lab": 2,

@@ -25,12 +25,12 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
 
 import numpy as np
 
 from planner.chem.equilibrium import one_to_one_complex_M
 from planner.errors import InvalidInputError
+from planner.records import record
 
 __all__ = [
     "LARGEST_DISSOLVED_M",
@@ -72,7 +72,7 @@ _SMALLEST_LIMITING_M = 1e-30  # [mol/L]: under one ion per cubic metre
 _SMALLEST_TOLERANCE = 1e-6  # [unitless]: a ppm is far below any photometric precision
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class AssumptionCheck:
     """Answer to "is this excess large enough to treat the limiting reagent as all bound?".
 

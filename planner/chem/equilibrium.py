@@ -36,13 +36,13 @@ and as an independent check.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from typing import TypeAlias
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from planner.errors import ConvergenceError, InvalidInputError
+from planner.records import record
 
 # Array types of the annotations below: float64 and int64 arrays of any shape.
 _Floats: TypeAlias = NDArray[np.float64]
@@ -81,7 +81,7 @@ _LONGEST_STEP = float(np.log(1e8))
 _CHUNK = 32768
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Equilibrium:
     """Solution of the mass balances for a batch of mixtures.
 

@@ -10,13 +10,13 @@ that a stock does not list are added to make it electrically neutral
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
 
 from planner.chem.species import charge_from_name, ionic_strength_M, neutralised, species_charge
 from planner.inputs import Reaction, Stock
+from planner.records import record
 
 __all__ = [
     "IonTable",
@@ -27,7 +27,7 @@ __all__ = [
 ]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class IonTable:
     """Every ion of a set of stocks, with charges and each stock's concentrations.
 

@@ -17,7 +17,6 @@ from __future__ import annotations
 import itertools
 import math
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
@@ -30,6 +29,7 @@ from planner.inputs import Bench, Device, PlanInputs, Stock
 from planner.lab.bench import reading_sd, technique_sd_mL
 from planner.lab.deliveries import Delivery, VolumeTable, devices_by_id, volume_table
 from planner.lab.tolerances import standard_uncertainty_mL
+from planner.records import record
 
 __all__ = [
     "MIN_REAGENT_SHARE",
@@ -61,7 +61,7 @@ _NL_PER_ML = 1_000_000
 MIN_REAGENT_SHARE = 0.05
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Option:
     """A way to deliver one volume of one stock.
 
@@ -85,7 +85,7 @@ class Option:
     deliveries: tuple[Delivery, ...] = ()
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Evaluation:
     """Predicted state of a batch of mixtures.
 
@@ -123,7 +123,7 @@ class Evaluation:
     ionic_strength_M: NDArray[np.float64]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class CandidateSet:
     """All candidate mixtures and their evaluation.
 

@@ -15,7 +15,6 @@ from __future__ import annotations
 import dataclasses
 import math
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
@@ -33,6 +32,7 @@ from planner.design.candidates import CandidateSet
 from planner.forward import predict_readings
 from planner.inputs import PlanInputs
 from planner.lab.bench import reading_sd
+from planner.records import record
 
 __all__ = [
     "PRIOR_NODES",
@@ -70,7 +70,7 @@ TEST_HEADROOM = 0.10
 _STARTS = 8
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class TestsChoice:
     """The chosen test mixtures.
 

@@ -35,12 +35,13 @@ from planner.design.standards import StandardsChoice, StandardsMemo, choose_stan
 from planner.errors import PlannerError
 from planner.inputs import PlanInputs
 from planner.lab.bench import reading_sd
+from planner.records import record
 from planner.result import Addition, Check, Delivery, Mixture, Role, StockPreparation, Totals
 
 __all__ = ["Design", "SharedWork", "design_recipes", "mixture_from_candidate"]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Design:
     """What the design stage hands on: recipes, totals and the design's own findings.
 

@@ -29,6 +29,7 @@ from numpy.typing import NDArray
 from planner.design._arrays import distinct_inverse
 from planner.design.candidates import CandidateSet
 from planner.inputs import PlanInputs
+from planner.records import record
 
 __all__ = ["StandardsChoice", "StandardsMemo", "absorbance_targets", "choose_standards"]
 
@@ -47,7 +48,7 @@ COST_STEP = 0.005
 _GROUPS_EXAMINED = 150
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class StandardsChoice:
     """The chosen blank and standards, as indices into the candidate set they were chosen
     from (:class:`planner.design.candidates.CandidateSet`).
@@ -115,7 +116,7 @@ class StandardsMemo:
         return None
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Reusable:
     """A choice with what it rests on (see StandardsMemo)."""
 

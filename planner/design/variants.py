@@ -38,7 +38,6 @@ from __future__ import annotations
 
 import dataclasses
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
@@ -47,6 +46,7 @@ from planner.design.candidates import CandidateSet, candidate_set
 from planner.design.mixtures import eligible_for_tests
 from planner.errors import InvalidInputError
 from planner.inputs import PlanInputs
+from planner.records import record
 from planner.result import Check, Plan, Role
 
 __all__ = [
@@ -97,7 +97,7 @@ _SAME_VOLUME_mL = 1e-9
 RecipeKey = tuple[tuple[tuple[str, float], ...], ...]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class SharedTest:
     """Two sections with a test recipe in common.
 
@@ -115,7 +115,7 @@ class SharedTest:
     second_test: str
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class VariantSet:
     """The variants found.
 

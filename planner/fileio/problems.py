@@ -15,13 +15,13 @@ from __future__ import annotations
 
 import difflib
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
 from typing import NoReturn, get_args, get_origin
 
 from pydantic import BaseModel, ValidationError
 from pydantic.fields import FieldInfo
 
 from planner.errors import KEY_LIMIT, PlannerError, shown
+from planner.records import record
 
 __all__ = [
     "JSON_WORDS",
@@ -93,7 +93,7 @@ def offending_line(text: str, line: int) -> str | None:
     return lines[line - 1].strip() if 1 <= line <= len(lines) else None
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Words:
     """How a file format names its parts in messages.
 

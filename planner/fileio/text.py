@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import os
 import stat
-from dataclasses import dataclass
 from typing import NoReturn
 
 from planner.errors import PlanFileError, PlannerError, ReadingsFileError, ResultFileError
+from planner.records import record
 
 __all__ = [
     "MAX_PLAN_FILE_BYTES",
@@ -36,7 +36,7 @@ MAX_RESULT_FILE_BYTES = 8 * 2**20
 MAX_READINGS_FILE_BYTES = 8 * 2**20
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class FileKind:
     """A kind of file the planner reads: how messages name it, its error, its size limit.
 

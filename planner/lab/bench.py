@@ -34,12 +34,13 @@ D. A. Skoog, F. J. Holler and S. R. Crouch, Principles of Instrumental Analysis,
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, fields
+from dataclasses import fields
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from planner.inputs import Bench, Device, Instrument
+from planner.records import record
 
 __all__ = [
     "BENCH_TERMS",
@@ -64,7 +65,7 @@ BURET_READINGS_PER_DELIVERY = 2
 _PIPETTES = frozenset({"transfer-pipette", "graduated-pipette"})
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Preset:
     """The values of one technique preset (units as :class:`planner.inputs.Bench`)."""
 

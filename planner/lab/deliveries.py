@@ -15,7 +15,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
@@ -37,6 +36,7 @@ from planner.lab.tolerances import (
     _to_pL,
     standard_uncertainty_mL,
 )
+from planner.records import record
 
 __all__ = [
     "MAX_COMBINATIONS",
@@ -70,7 +70,7 @@ MAX_COMBINATIONS = 5_000_000
 # ---------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Grid:
     """Volumes one use of a device delivers: first + k * step for k in 0..count-1 [pL]."""
 
@@ -287,7 +287,7 @@ def single_volumes_mL(device: Device) -> NDArray[np.float64]:
 # ---------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class DeliverableVolume:
     """A volume the shelf can deliver and every way to deliver it.
 
@@ -312,7 +312,7 @@ class DeliverableVolume:
         return self.options[0]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Template:
     """A multiset of fixed deliveries plus at most one graded delivery."""
 
@@ -587,7 +587,7 @@ def deliverable_volumes(
 MAX_GRADED_SUMS = 4_000_000
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Sums:
     """The sums of some grids: first_pL + unit_pL * v for v in 0..span, every v when
     ``table`` is None, else those where ``table[v]``."""
@@ -894,7 +894,7 @@ _MAX_WORK = 10_000_000
 _WINDOW_PASSES = 5
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Delivery:
     """One delivery of a device into a mixture.
 
@@ -911,7 +911,7 @@ class Delivery:
     volume_mL: float
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Aliquots:
     """The preferred way to deliver one volume: an ordered list of deliveries.
 
@@ -937,7 +937,7 @@ class Aliquots:
         return tuple(d.device for d in self.deliveries)
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Item:
     """A delivery of one fixed volume: a one-mark device, or a graded one at full scale."""
 

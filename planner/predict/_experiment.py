@@ -50,7 +50,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
@@ -63,6 +62,7 @@ from planner.inputs import Device, PlanInputs
 from planner.lab.bench import reading_sd, technique_sd_mL
 from planner.lab.deliveries import devices_by_id
 from planner.lab.tolerances import piston_errors_uL, standard_uncertainty_mL
+from planner.records import record
 from planner.result import ROLES, Mixture, Role
 
 __all__ = [
@@ -80,7 +80,7 @@ _ONE_MARK = frozenset({"transfer-pipette"})
 _GRADUATED = frozenset({"buret", "graduated-pipette", "graduated-cylinder"})
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Delivery:
     """One measured delivery of a stock into a mixture.
 
@@ -113,7 +113,7 @@ class Delivery:
     u_technique_mL: float = 0.0
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class BenchExperiment:
     """One bench's set of mixtures, as the uncertainty models see it (made by
     :func:`bench_experiment` from the plan and its recipes).

@@ -46,7 +46,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
@@ -69,6 +68,7 @@ from planner.predict._experiment import (
     reading_per_kelvin,
     triangular_half_width,
 )
+from planner.records import record
 from planner.result import Mixture
 
 __all__ = [
@@ -105,7 +105,7 @@ _WORKING_PER_TRIAL = 6
 Progress = Callable[[int, int], None]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Summary:
     """The distribution of one output over the trials (JCGM 101:2008, 7.6-7.7).
 
@@ -130,7 +130,7 @@ class Summary:
     valid: int
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class ClassSpread:
     """K's spread split into its class-common and bench-to-bench parts.
 
@@ -155,7 +155,7 @@ class ClassSpread:
     class_mean_sd: float
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class AnalysisSummary:
     """What one analysis of the virtual class reports.
 
@@ -174,7 +174,7 @@ class AnalysisSummary:
     K_spread: ClassSpread | None = None
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Simulation:
     """Result of a virtual class.
 
@@ -269,7 +269,7 @@ def _summary(values: NDArray[np.float64]) -> Summary:
     )
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Draw:
     """Fixed arrays that turn standard variates into actual volumes and readings."""
 

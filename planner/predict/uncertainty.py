@@ -45,7 +45,6 @@ from __future__ import annotations
 import functools
 import math
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
 from typing import Any, cast
 
 import numpy as np
@@ -57,6 +56,7 @@ from planner.inputs import PlanInputs
 from planner.predict._experiment import BenchExperiment, bench_experiment
 from planner.predict.bias import bias_causes
 from planner.predict.medium import medium_effect
+from planner.records import record
 from planner.result import (
     COVERAGE_FACTOR_95,
     Budget,
@@ -83,7 +83,7 @@ __all__ = [
 _Function = Callable[..., Any]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Models:
     """Lambdified sensitivity coefficients and their formulas (see the module notes)."""
 
@@ -236,7 +236,7 @@ def _broadcast(value: Any, shape: tuple[int, ...]) -> NDArray[np.float64]:
     return np.broadcast_to(np.asarray(value, dtype=float), shape).astype(float)
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Inputs:
     """The elementary inputs: names, kinds, units, u and the first-stage Jacobian."""
 
@@ -377,7 +377,7 @@ def _elementary_inputs(ex: BenchExperiment, models: _Models) -> _Inputs:
     )
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Gradients:
     """Value and gradient (over the elementary inputs) of every measurand."""
 

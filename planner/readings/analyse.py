@@ -58,7 +58,6 @@ import dataclasses
 import itertools
 import math
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
@@ -79,6 +78,7 @@ from planner.analysis import (
 from planner.errors import InvalidInputError
 from planner.predict._experiment import bench_experiment
 from planner.readings.table import BenchKey, Reading, ReadingsTable, Rejection
+from planner.records import record
 from planner.result import COVERAGE_FACTOR_95
 from planner.resultfile import SavedPlan
 
@@ -106,7 +106,7 @@ TREND_T = 3.0
 Status = Literal["ok", "flagged"]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Flag:
     """One finding on a bench: what rule fired, its likely cause and the evidence.
 
@@ -131,7 +131,7 @@ class Flag:
     threshold: str
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Estimate:
     """A bench's value beside the range its section's answer key gives.
 
@@ -158,7 +158,7 @@ class Estimate:
         return self.low <= self.value <= self.high
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class MixtureResult:
     """One mixture of a bench.
 
@@ -200,7 +200,7 @@ class MixtureResult:
     bound_fraction: float
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class BenchResult:
     """One bench's set of mixtures, analysed.
 
@@ -242,7 +242,7 @@ class BenchResult:
         return "flagged" if self.flags else "ok"
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class ClassStatistic:
     """A quantity over the class's accepted benches, beside the prediction.
 
@@ -268,7 +268,7 @@ class ClassStatistic:
     predicted_high: float
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Pooled:
     """The global fit of every accepted reading of the class at once.
 
@@ -305,7 +305,7 @@ class Pooled:
     df_pure_error: int
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class ClassAnalysis:
     """A class's readings, analysed.
 
@@ -380,7 +380,7 @@ def _u_of(interval: tuple[float, float]) -> float:
     return (interval[1] - interval[0]) / (2.0 * COVERAGE_FACTOR_95)
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Section:
     """One section's plan as the analysis needs it."""
 
@@ -478,7 +478,7 @@ def _sub_layout(layout: Layout, rows: NDArray[np.int64]) -> Layout:
     )
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Fits:
     """Both analyses of a group of benches with the same mixtures read (one row per bench)."""
 
@@ -809,7 +809,7 @@ def _unmask(
     return [(m, latest[m.id]) for m in dropped] + off, dropped
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Net:
     """A bench's standard and test readings read, blank subtracted, beside their predictions.
 

@@ -31,10 +31,10 @@ import csv
 import io
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
 from typing import NoReturn
 
 from planner.errors import ReadingsFileError, shown
+from planner.records import record
 
 __all__ = [
     "COLUMNS",
@@ -63,7 +63,7 @@ MIN_ABSORBANCE = -0.05
 BenchKey = tuple[int, int, int]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class SectionShape:
     """What one section of the plan has, to check each row against.
 
@@ -82,7 +82,7 @@ class SectionShape:
     mixtures: tuple[str, ...]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Reading:
     """One accepted reading.
 
@@ -106,7 +106,7 @@ class Reading:
     absorbance: float
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Rejection:
     """A row left out of the analysis, and why.
 
@@ -135,7 +135,7 @@ class Rejection:
     bench_set: BenchKey | None = None
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class ReadingsTable:
     """A readings file, read.
 

@@ -3,9 +3,9 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 
 from planner.readings.analyse import ClassAnalysis, ClassStatistic, Estimate
+from planner.records import record
 from planner.report._format import significant
 from planner.report.analyse_json import analysis_json, bench_csv
 from planner.report.analyse_text import not_analysed
@@ -24,7 +24,7 @@ def _range(estimate: Estimate) -> str:
     return f"{_v(estimate.low)}-{_v(estimate.high)}"
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Row:
     name: str
     section: int
@@ -38,7 +38,7 @@ class _Row:
     flags: tuple[tuple[str, str, str, str], ...]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Statistic:
     name: str
     n: int

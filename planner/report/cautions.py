@@ -11,15 +11,14 @@ last line defers to the safety data sheets, local rules and the responsible staf
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 from planner.chem.species import element_symbols
 from planner.inputs import PlanInputs, Stock
+from planner.records import record
 
 __all__ = ["CAUTIONS", "Caution", "cautions_for", "label_hazards"]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class Caution:
     """One line of the cautions block.
 

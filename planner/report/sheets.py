@@ -24,11 +24,11 @@ import functools
 import io
 import math
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
 from typing import Any
 
 import jinja2
 
+from planner.records import record
 from planner.report._format import (
     additions_of,
     amount_text,
@@ -64,7 +64,7 @@ __all__ = [
 ]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class BenchSlot:
     """Which bench a pipetting sheet is for.
 
@@ -123,20 +123,20 @@ def _render(name: str, **context: Any) -> str:
 # ---------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Delivery:
     volume: str
     devices: str
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Column:
     stock: str
     position: int
     part: str
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _RecipeRow:
     id: str
     role: Role
@@ -144,7 +144,7 @@ class _RecipeRow:
     total: str
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _BenchPage:
     section: int
     bench: int | None
@@ -390,7 +390,7 @@ def bench_sheet_html(plan: Plan, *, date: str, slots: Sequence[BenchSlot]) -> st
 # ---------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _PreparationRow:
     stock: str
     flasks: str
@@ -402,13 +402,13 @@ class _PreparationRow:
     medium: str
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Label:
     stock: str
     lines: tuple[str, ...]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _TotalsRow:
     stock: str
     per_bench: str
@@ -420,7 +420,7 @@ class _TotalsRow:
     short: bool
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _CheckRow:
     name: str
     status: str
@@ -649,7 +649,7 @@ def prep_sheet_html(plan: Plan, *, date: str) -> str:
 # ---------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _AnswerRow:
     id: str
     role: Role
@@ -660,7 +660,7 @@ class _AnswerRow:
     ionic_strength: str
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _PredictionRow:
     quantity: str
     expected: str
@@ -668,7 +668,7 @@ class _PredictionRow:
     assumed: str
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _AnalysisView:
     """One analysis's expected result on the answer key: a ``heading``, an ``intro``
     paragraph, the table's ``rows`` (quantity, expected value, u, value assumed; none when
@@ -785,7 +785,7 @@ def _designed_for(plan: Plan) -> str:
     )
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _Figure:
     """A plot shown on the answer key: file stem under ``plots/``, heading, caption."""
 
@@ -824,7 +824,7 @@ def _figures(plan: Plan, stems: Sequence[str]) -> tuple[_Figure, ...]:
     return tuple(_Figure(stem, *texts[stem]) for stem in stems if stem in texts)
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _RangeRow:
     quantity: str
     low: str

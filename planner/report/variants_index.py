@@ -3,9 +3,9 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 from planner.design.variants import DISTINCTNESS_CHECK, shared_tests
+from planner.records import record
 from planner.report._format import percent, relative_bias, significant
 from planner.report.cautions import cautions_for
 from planner.report.outdir import plan_files
@@ -15,7 +15,7 @@ from planner.result import Plan
 __all__ = ["variants_files"]
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class _SectionRow:
     number: int
     folder: str

@@ -14,7 +14,6 @@ import json
 import math
 import os
 from collections import Counter
-from dataclasses import dataclass
 from typing import Any
 
 from pydantic import ValidationError
@@ -24,6 +23,7 @@ from planner.fileio import problems
 from planner.fileio.text import PLAN_RESULT, read_text
 from planner.inputs import PlanInputs
 from planner.planfile import plan_from_mapping
+from planner.records import record
 from planner.result import Check, GlobalFitPrediction, Mixture, Prediction, StockPreparation, Totals
 from planner.resultfile.schema import SCHEMA, PlanDocument
 
@@ -39,7 +39,7 @@ LARGEST_NUMBER = 1e100
 _UNNAMED = "<result>"
 
 
-@dataclass(frozen=True, slots=True)
+@record
 class SavedPlan:
     """A saved plan result, read back: what verification needs.
 
