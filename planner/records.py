@@ -1,17 +1,23 @@
 """Records: the planner's frozen, slotted dataclasses, defined at a fraction of the cost.
 
-``@record`` makes a class exactly as ``@dataclasses.dataclass(frozen=True, slots=True)``
-does: the same ``__init__``, immutability, slots, ``__match_args__`` and pickling, and
-``dataclasses.fields``, ``replace`` and ``asdict`` work on it. Only ``__eq__``, ``__hash__``
-and ``__repr__`` differ in how they are made: they are three shared functions that read the
-class's field names, where the dataclass decorator writes each as source text and compiles it
-for every class. They behave as the generated ones do (equal when of the same class with equal
-compared fields, hashed on the hashed fields, ``Name(field=value, ...)`` over the fields shown).
+``@record`` makes a class that behaves as one made by
+``@dataclasses.dataclass(frozen=True, slots=True)``: the same fields and ``__init__``, slots,
+``__match_args__``, equality, hash and repr, pickling and copying, and
+``dataclasses.fields``, ``replace`` and ``asdict`` work on it; a field cannot be assigned or
+deleted once the instance is made (:class:`dataclasses.FrozenInstanceError`). The dataclass
+decorator writes each generated method as source text and compiles it, for every class; here
+the decorator compiles only ``__init__``, and ``__setattr__``, ``__delattr__``, ``__eq__``,
+``__hash__`` and ``__repr__`` are shared functions that read the class's field names. They
+behave as the generated ones: a field is set once, by ``__init__`` (or by
+``object.__setattr__`` in ``__post_init__``); instances are equal when of the same class with
+equal compared fields and hash on the hashed fields; the repr is ``Name(field=value, ...)``
+over the fields shown.
 
-Why: compiling those three methods costs about 1.4 million instructions per class on CPython
-3.11 (measured with a callgrind instruction count: 4.1 million for a frozen, slotted dataclass,
-2.7 million without them), and ``planner plan`` defines some fifty records before it starts;
-they were the largest part of the planner's own start-up.
+Why: a frozen, slotted dataclass costs about 4.1 million instructions to define on CPython
+3.11 (a callgrind instruction count), almost all of it compiling those six methods, and
+``planner plan`` defines some fifty records before it starts: they were the largest part of
+the planner's own start-up. A record costs about a quarter of that (tests/test_records.py
+checks the behaviour against the standard library's).
 """
 
 from __future__ import annotations
@@ -34,6 +40,17 @@ def _getter(names: tuple[str, ...]) -> Callable[[Any], tuple[Any, ...]]:
         (name,) = names
         return lambda obj: (getattr(obj, name),)
     return lambda obj: ()
+
+
+def _setattr(self: Any, name: str, value: Any) -> None:
+    # A field already set is frozen; one not yet set is being set by __init__ (or unpickled).
+    if hasattr(self, name):
+        raise dataclasses.FrozenInstanceError(f"cannot assign to field {name!r}")
+    object.__setattr__(self, name, value)
+
+
+def _delattr(self: Any, name: str) -> None:
+    raise dataclasses.FrozenInstanceError(f"cannot delete field {name!r}")
 
 
 def _eq(self: Any, other: object) -> Any:
@@ -68,7 +85,9 @@ def record(cls: type[_T]) -> type[_T]:
     >>> Point(1.0) == Point(1.0, 0.0), Point(1.0)
     (True, Point(x=1.0, y=0.0))
     """
-    made: Any = dataclasses.dataclass(frozen=True, slots=True, eq=False, repr=False)(cls)
+    # Not frozen for the decorator (which would compile __setattr__ and __delattr__ and an
+    # __init__ that sets each field through object.__setattr__): _setattr freezes instead.
+    made: Any = dataclasses.dataclass(slots=True, eq=False, repr=False)(cls)
     fields = dataclasses.fields(made)
     # As the dataclass decorator chooses them: compare=False leaves a field out of __eq__
     # and, unless hash= says otherwise, out of __hash__.
@@ -77,6 +96,8 @@ def record(cls: type[_T]) -> type[_T]:
     made.__record_compared__ = staticmethod(_getter(compared))
     made.__record_hashed__ = staticmethod(_getter(hashed))
     made.__record_shown__ = tuple(f.name for f in fields if f.repr)
+    made.__setattr__ = _setattr
+    made.__delattr__ = _delattr
     made.__eq__ = _eq
     made.__hash__ = _hash
     made.__repr__ = _repr

@@ -4,6 +4,7 @@ immutability, slots, fields, replace, asdict, pattern matching and pickling."""
 
 from __future__ import annotations
 
+import copy
 import dataclasses
 import pickle
 from dataclasses import dataclass, field
@@ -44,6 +45,17 @@ class Single:
 @record
 class Nothing:
     """No fields at all."""
+
+
+@record
+class Derived:
+    """A field derived in __post_init__, as the validated inputs derive theirs."""
+
+    value: float
+    doubled: float = field(init=False, compare=False, repr=False)
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "doubled", 2 * self.value)
 
 
 @record
@@ -110,6 +122,21 @@ def test_frozen_slotted_and_a_dataclass():
         case Point(x, y):
             assert (x, y) == (1.0, 3.0)
     assert pickle.loads(pickle.dumps(moved)) == moved
+    assert copy.deepcopy(moved) == moved
+    assert copy.copy(moved) == moved
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        pickle.loads(pickle.dumps(moved)).x = 5.0  # type: ignore[misc]
+
+
+def test_a_field_derived_after_init_is_set_once_and_then_frozen():
+    derived = Derived(1.5)
+    assert derived.doubled == 3.0
+    assert dataclasses.replace(derived, value=2.0).doubled == 4.0
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        derived.doubled = 0.0  # type: ignore[misc]
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        derived.value = 0.0  # type: ignore[misc]
+    assert pickle.loads(pickle.dumps(derived)).doubled == 3.0
 
 
 def test_a_record_holding_an_array_compares_as_the_standard_library_does():
