@@ -37,6 +37,21 @@ def medians(arguments: list[str], runs: int) -> tuple[float, float]:
     return statistics.median(t[0] for t in timed), statistics.median(t[1] for t in timed)
 
 
+def paired(first: list[str], second: list[str], runs: int) -> tuple[float, float, float]:
+    """Two commands run in turn, ``runs`` pairs after one untimed run of each: the median CPU
+    time of each [s] and the median of the pairs' CPU ratios first/second. Pairing keeps the
+    ratio meaningful when the machine's speed drifts (a shared machine), where each median
+    alone moves with it."""
+    seconds(first)
+    seconds(second)
+    pairs = [(seconds(first)[1], seconds(second)[1]) for _ in range(runs)]
+    return (
+        statistics.median(a for a, _ in pairs),
+        statistics.median(b for _, b in pairs),
+        statistics.median(a / b for a, b in pairs),
+    )
+
+
 def children_peak_MB() -> float:
     """Largest resident set of any process run so far [MB] (ru_maxrss is in kB on Linux)."""
     return resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024

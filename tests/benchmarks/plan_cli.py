@@ -19,7 +19,7 @@ import argparse
 import json
 import sys
 
-from _timing import children_peak_MB, medians
+from _timing import children_peak_MB, medians, paired
 
 # The libraries' floor: what any `plan` run costs before the planner does anything (see the
 # module docstring). Thread pools are held to one thread as the planner's entry point does.
@@ -66,19 +66,23 @@ app()
 
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--runs", type=int, default=7)
+    parser.add_argument("--runs", type=int, default=15)
     parser.add_argument("--json", action="store_true")
     args = parser.parse_args()
     python = sys.executable
-    plan_s, plan_cpu_s = medians([python, "-m", "planner", "plan", "--format", "json"], args.runs)
+    plan = [python, "-m", "planner", "plan", "--format", "json"]
+    plan_s, _ = medians(plan, args.runs)
     check_s, check_cpu_s = medians(
         [python, "-m", "planner", "check", "--k", "98", "--excess", "0.1", "--limiting", "1.5e-4"],
         args.runs,
     )
-    _, floor_cpu_s = medians([python, "-c", FLOOR_APP, "plan", "--format", "json"], args.runs)
+    plan_cpu_s, floor_cpu_s, over_floor = paired(
+        plan, [python, "-c", FLOOR_APP, "plan", "--format", "json"], args.runs
+    )
     figures = {
         "plan_median_s": plan_s,
         "floor_cpu_median_s": floor_cpu_s,
+        "plan_over_floor": over_floor,
         "check_median_s": check_s,
         "plan_cpu_median_s": plan_cpu_s,
         "check_cpu_median_s": check_cpu_s,
@@ -92,7 +96,10 @@ def main() -> int:
         f"planner plan (default, whole process): median {plan_s:.3f} s wall (target <= 1.5 s), "
         f"{plan_cpu_s:.3f} s CPU (target <= 0.5 s)"
     )
-    print(f"libraries' floor (typer, pydantic, numpy): median {floor_cpu_s:.3f} s CPU")
+    print(
+        f"libraries' floor (typer, pydantic, numpy): median {floor_cpu_s:.3f} s CPU; "
+        f"plan over floor, paired runs: median ratio {over_floor:.2f}"
+    )
     print(
         f"planner check (whole process):         median {check_s:.3f} s wall (target <= 0.8 s), "
         f"{check_cpu_s:.3f} s CPU"

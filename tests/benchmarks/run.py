@@ -168,6 +168,15 @@ def rows() -> list[Row]:
     )
     result.append(
         Row(
+            "  plan over the floor, the two run in turn (median of the pairs' ratios)",
+            f"{cli['plan_over_floor']:.2f}x",
+            "(no target)",
+            True,
+            memory,
+        )
+    )
+    result.append(
+        Row(
             "planner check, whole process (median)",
             f"{cli['check_median_s']:.2f} s",
             "<= 0.8 s",
