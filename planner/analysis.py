@@ -40,7 +40,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from planner.chem.constants import bench_log_beta
-from planner.forward import predict_readings, reading_sensitivity
+from planner.forward import Readings, predict_readings, reading_sensitivity
 from planner.inputs import Instrument, Reaction
 from planner.records import record
 
@@ -671,10 +671,15 @@ def global_fit_residuals(
 
 
 def global_fit_jacobian(
-    reaction: Reaction, instrument: Instrument, layout: Layout
+    reaction: Reaction,
+    instrument: Instrument,
+    layout: Layout,
+    *,
+    readings: Readings | None = None,
 ) -> NDArray[np.float64]:
     """Sensitivity of the fitted net readings to the global fit's parameters, at the plan's
-    constants (``reaction``), photometer (``instrument``) and mixtures (``layout``).
+    constants (``reaction``), photometer (``instrument``) and mixtures (``layout``);
+    ``readings`` are the forward model's of ``layout.totals_M`` there, when already at hand.
 
     Returns
     -------
@@ -684,7 +689,8 @@ def global_fit_jacobian(
         (:func:`planner.forward.reading_sensitivity`), the blank's mean subtracted as in the
         fit.
     """
-    readings = predict_readings(reaction, instrument, layout.totals_M)
+    if readings is None:
+        readings = predict_readings(reaction, instrument, layout.totals_M)
     d_eps, d_lg = reading_sensitivity(reaction, instrument, readings, layout.measured)
     fit = _fitted_rows(layout)
 

@@ -122,6 +122,15 @@ class Evaluation:
     coloured_fraction: NDArray[np.float64]
     ionic_strength_M: NDArray[np.float64]
 
+    def readings(self) -> Readings:
+        """The forward model's readings these mixtures were evaluated with."""
+        return Readings(
+            free_M=self.free_M,
+            species_M=self.species_M,
+            true_absorbance=self.true_absorbance,
+            absorbance=self.absorbance,
+        )
+
 
 @record
 class CandidateSet:
@@ -533,12 +542,7 @@ def _reading_uncertainty(
     noise of :func:`planner.lab.bench.reading_sd` at the candidate's reading."""
     totals = evaluation.total_M
     variance = reading_sd(inputs.instrument, inputs.bench, evaluation.absorbance) ** 2
-    readings = Readings(
-        free_M=evaluation.free_M,
-        species_M=evaluation.species_M,
-        true_absorbance=evaluation.true_absorbance,
-        absorbance=evaluation.absorbance,
-    )
+    readings = evaluation.readings()
     for j in range(totals.shape[1]):
         slope = total_reading_sensitivity(inputs.reaction, inputs.instrument, readings, totals, j)
         variance += (slope * u_relative_total[:, j] * totals[:, j]) ** 2

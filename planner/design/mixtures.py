@@ -303,11 +303,18 @@ def _sandwich_u(
 
 
 def global_fit_objective(
-    inputs: PlanInputs, candidates: CandidateSet, standards: tuple[int, ...], blank: int
+    inputs: PlanInputs,
+    candidates: CandidateSet,
+    standards: tuple[int, ...],
+    blank: int,
+    *,
+    at_plan_constants: bool = True,
 ) -> GlobalFitObjective:
     """The global fit's objective for tests added to these standards (see
     :class:`GlobalFitObjective`); the rows come from :func:`planner.analysis.global_fit_jacobian`
-    with every candidate as a test, the blank's mean subtracted."""
+    with every candidate as a test, the blank's mean subtracted. ``at_plan_constants`` says
+    that ``inputs`` has the constants the candidates were evaluated with, so their readings
+    serve the Jacobian as they are (False at a shifted node of the prior of K)."""
     ev = candidates.evaluation
     limiting = inputs.reaction.components.index(inputs.design.limiting)
     excess = inputs.reaction.components.index(inputs.excess) if inputs.excess else limiting
@@ -322,7 +329,12 @@ def global_fit_objective(
         epsilon_true=inputs.measured_species.epsilon,
         K_true=bench_K(inputs),
     )
-    rows = global_fit_jacobian(inputs.reaction, inputs.instrument, layout)
+    rows = global_fit_jacobian(
+        inputs.reaction,
+        inputs.instrument,
+        layout,
+        readings=ev.readings() if at_plan_constants else None,
+    )
     return GlobalFitObjective(rows, candidates.u_absorbance**2, np.array(standards, dtype=np.int64))
 
 
@@ -486,8 +498,10 @@ def robust_global_fit_objective(
     """:func:`global_fit_objective` at every node of the prior of K."""
     return RobustGlobalFitObjective(
         [
-            global_fit_objective(shifted, candidates, standards, blank)
-            for _, shifted in _prior_reactions(inputs)
+            global_fit_objective(
+                shifted, candidates, standards, blank, at_plan_constants=shift == 0.0
+            )
+            for shift, shifted in _prior_reactions(inputs)
         ]
     )
 
