@@ -17,7 +17,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from planner.analysis import Layout, all_bound_mean_K
-from planner.chem.assumption import LARGEST_DISSOLVED_M, checked_round_down, checked_round_up
+from planner.chem.assumption import LARGEST_DISSOLVED_M
 from planner.chem.constants import bench_K
 from planner.design.candidates import CandidateSet, candidate_set
 from planner.design.logistics import preparations, stock_totals
@@ -239,18 +239,26 @@ def _window_extremes(inputs: PlanInputs, candidates: CandidateSet) -> tuple[floa
 
 
 # Rounds of "scale the limiting stock by the ratio still missing": the reading is nearly
-# proportional to the limiting total, so two or three usually land inside the window.
+# proportional to the limiting total, so two or three usually land on the aim.
 _WINDOW_FIX_ROUNDS = 8
+# Where a fixed limiting stock puts the extreme mixture, as a fraction of the window's width
+# in from its near end: the weakest mixture near the low end (or the strongest near the high
+# end) leaves the rest of the window to the standards, where an extreme just inside the far
+# edge left room for one or two (common practice: standards spread over the working range).
+_WINDOW_FIX_AIM = 0.1
+# How close to the aim a round must land, as a fraction of the window's width.
+_WINDOW_FIX_CLOSE = 0.05
 
 
 def _limiting_fix(inputs: PlanInputs, *, stronger: bool) -> str:
-    """The limiting stock's concentration that brings the strongest mixture up to the
-    window's low end (``stronger``) or the weakest down to its high end, solved for and
-    checked again on a copy of the inputs with every candidate mixed and read anew; or why no
-    concentration does (above :data:`LARGEST_DISSOLVED_M`, or the reading does not follow the
-    limiting reagent).
+    """The limiting stock's concentration that brings the strongest mixture up to near the
+    window's high end (``stronger``) or the weakest down to near its low end, so that the
+    standards can spread over the window, solved for and checked again on a copy of the inputs
+    with every candidate mixed and read anew; or why no concentration does (above
+    :data:`LARGEST_DISSOLVED_M`, or the reading does not follow the limiting reagent).
     """
     low, high = inputs.instrument.absorbance_window
+    width = high - low
     limiting = inputs.design.limiting
     stocks = [st for st in inputs.stocks if limiting in st.contains_M and not st.diluent]
     if not stocks:
@@ -271,33 +279,28 @@ def _limiting_fix(inputs: PlanInputs, *, stronger: bool) -> str:
             return None
         return extremes[0] if stronger else extremes[1]
 
-    def passes(c_M: float) -> bool:
-        value = reading(c_M)
-        return value is not None and (value >= low if stronger else value <= high)
-
-    target = low if stronger else high
+    aim = high - _WINDOW_FIX_AIM * width if stronger else low + _WINDOW_FIX_AIM * width
     value = now
-    found: float | None = None
     for _ in range(_WINDOW_FIX_ROUNDS):
         read = reading(value)
         if read is None or read <= 0:
             break
-        if (read >= low) if stronger else (read <= high):
-            found = value
-            break
-        # Overshoot the ratio a little so that the last round lands inside, not at the edge.
-        value *= (target / read) * (1.01 if stronger else 0.99)
-        if value > LARGEST_DISSOLVED_M:
-            break
-    if found is not None:
-        rounded = (checked_round_up if stronger else checked_round_down)(found, passes, 3)
-        if rounded is not None and rounded <= LARGEST_DISSOLVED_M:
-            edge = "reaches" if stronger else "falls below"
+        if abs(read - aim) <= _WINDOW_FIX_CLOSE * width:
+            rounded = float(f"{value:.3g}")
+            at_rounded = reading(rounded)
+            if at_rounded is None or not low <= at_rounded <= high:
+                rounded, at_rounded = value, read
+            if rounded > LARGEST_DISSOLVED_M:
+                break
+            extreme, end = ("strongest", "high") if stronger else ("weakest", "low")
             return (
                 f"make the {stock.id} stock {rounded:.3g} mol/L {limiting} (now {now:.3g}), "
-                f"with which the {'strongest' if stronger else 'weakest'} mixture {edge} "
-                f"{target:g} (mixed and read again)"
+                f"with which the {extreme} mixture reads {at_rounded:.2f}, near the window's "
+                f"{end} end, and the standards can spread over the window (mixed and read again)"
             )
+        value *= aim / read
+        if value > LARGEST_DISSOLVED_M:
+            break
     if stronger:
         return (
             f"no strength of the {stock.id} stock does it: it would need more than "

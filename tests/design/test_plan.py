@@ -157,25 +157,41 @@ def _feasibility_after_fix(mapping):
     stock = next(st for st in mapping["stocks"] if st["id"] == stock_id)
     stock["contains_M"][ion] = value
     fixed = design_plan(plan_from_mapping(mapping))
-    return detail, value, [c.detail for c in fixed.checks if c.name == "design-feasibility"]
+    return detail, value, fixed
+
+
+def _spread_over_the_window(fixed):
+    """The fixed plan has every standard asked for, with no design-feasibility failure, and
+    they spread over at least half of the window (the fix aims the extreme mixture near the
+    window's end, not just inside its far edge, where one or two standards fitted)."""
+    failed = [
+        c.detail for c in fixed.checks if c.name == "design-feasibility" and c.status == "fail"
+    ]
+    assert not failed, failed
+    readings = [m.absorbance for m in fixed.by_role("standard")]
+    assert len(readings) == fixed.inputs.design.standards
+    low, high = fixed.inputs.instrument.absorbance_window
+    assert max(readings) - min(readings) >= 0.5 * (high - low), readings
 
 
 def test_window_fix_for_a_weak_limiting_stock_works_when_applied():
     mapping = _with_thiocyanate({"SCN-": 1.0e-6, "K+": 1.0e-6, "H+": 0.5, "NO3-": 0.5})
-    detail, value, after = _feasibility_after_fix(mapping)
+    detail, value, fixed = _feasibility_after_fix(mapping)
     assert "below the window" in detail
+    assert "near the window's high end" in detail
     assert value > 1.0e-6
-    assert not any("below the window" in d for d in after), after
+    _spread_over_the_window(fixed)
 
 
 def test_window_fix_for_a_strong_limiting_stock_works_when_applied():
     # The thiocyanate stock made with iron(III) in it too (invented): every mixture holding
     # thiocyanate is deep red, so the weakest reads above the window until it is diluted.
     mapping = _with_thiocyanate({"SCN-": 0.02, "K+": 0.02, "Fe3+": 0.4, "H+": 0.5, "NO3-": 1.7})
-    detail, value, after = _feasibility_after_fix(mapping)
+    detail, value, fixed = _feasibility_after_fix(mapping)
     assert "above the window" in detail
+    assert "near the window's low end" in detail
     assert value < 0.02
-    assert not any("above the window" in d for d in after), after
+    _spread_over_the_window(fixed)
 
 
 def test_window_fix_beyond_a_solution_is_said_to_be_impossible():
