@@ -832,6 +832,15 @@ def solve_equilibrium(
     )
 
 
+def _component_major(free_M: ArrayLike, species_M: ArrayLike) -> tuple[_Floats, _Floats]:
+    """An equilibrium as the Newton system takes it, component-major: (free (m, n), species
+    (s, n)), an absent component (free 0) at the stand-in for a zero total, so the system the
+    sensitivities solve stays regular and that component does not move."""
+    free_t = np.maximum(np.asarray(free_M, dtype=float).T, _ZERO_STAND_IN_M)
+    species_t = np.ascontiguousarray(np.asarray(species_M, dtype=float).T)
+    return free_t, species_t
+
+
 def log_beta_sensitivity(
     free_M: _Floats, species_M: _Floats, stoichiometry: ArrayLike, species: int
 ) -> tuple[_Floats, _Floats]:
@@ -870,8 +879,7 @@ def log_beta_sensitivity(
     0.0828
     """
     matrix = np.asarray(stoichiometry, dtype=float)
-    free_t = np.ascontiguousarray(np.asarray(free_M, dtype=float).T)
-    species_t = np.ascontiguousarray(np.asarray(species_M, dtype=float).T)
+    free_t, species_t = _component_major(free_M, species_M)
     gradient = np.outer(matrix[species], species_t[species])
     dx = _newton_step(free_t, species_t, gradient, matrix)
     d_free = (free_t * dx).T
@@ -924,8 +932,7 @@ def total_sensitivity(
     0.9073
     """
     matrix = np.asarray(stoichiometry, dtype=float)
-    free_t = np.maximum(np.asarray(free_M, dtype=float).T, _ZERO_STAND_IN_M)
-    species_t = np.ascontiguousarray(np.asarray(species_M, dtype=float).T)
+    free_t, species_t = _component_major(free_M, species_M)
     gradient = np.zeros_like(free_t)
     gradient[component] = -1.0
     dx = _newton_step(free_t, species_t, gradient, matrix)
