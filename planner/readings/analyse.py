@@ -548,10 +548,9 @@ def _residuals_without(
     id; None when the refit does not converge or too little is left to fit."""
     ids = section.ids
     kept = np.array([r for r in rows if ids[int(r)] not in dropped], dtype=np.int64)
-    sub = _sub_layout(section.layout, kept)
-    if sub.blanks.size == 0 or sub.standards.size == 0 or sub.tests.size == 0:
+    refit = _fits(section, kept, _sub_layout(section.layout, kept), full[kept][None, :])
+    if refit is None:
         return None
-    refit = _analyse_group(section, kept, full[kept][None, :])
     eps, k = refit.epsilon_global_fit, refit.K_global_fit
     if not (math.isfinite(float(eps[0])) and math.isfinite(float(k[0]))):
         return None
@@ -968,6 +967,15 @@ def _pooled(
     )
 
 
+def _fits(
+    section: _Section, rows: NDArray[np.int64], sub: Layout, readings: NDArray[np.float64]
+) -> _Fits | None:
+    """Both analyses of benches that read the mixtures at ``rows`` (``sub`` their layout), or
+    None when those mixtures lack a blank, a standard or a test."""
+    usable = sub.blanks.size > 0 and sub.standards.size > 0 and sub.tests.size > 0
+    return _analyse_group(section, rows, readings) if usable else None
+
+
 def _bench_results(
     number: int,
     section: _Section,
@@ -988,8 +996,7 @@ def _bench_results(
             [[found[key][ids[r]].absorbance for r in present] for key in members], dtype=float
         )
         sub = _sub_layout(layout, rows)
-        usable = sub.blanks.size > 0 and sub.standards.size > 0 and sub.tests.size > 0
-        fits = _analyse_group(section, rows, readings) if usable else None
+        fits = _fits(section, rows, sub, readings)
         for i, key in enumerate(members):
             result = _bench(number, section, key, found[key], rows, sub, fits, i)
             results.append(_explained(number, section, key, found[key], rows, sub, result))
@@ -1042,9 +1049,7 @@ def _reanalysed(
     """One bench analysed alone from ``readings`` of the mixtures at ``rows``."""
     sub = _sub_layout(section.layout, rows)
     values = np.array([[readings[section.ids[int(r)]].absorbance for r in rows]], dtype=float)
-    usable = sub.blanks.size > 0 and sub.standards.size > 0 and sub.tests.size > 0
-    fits = _analyse_group(section, rows, values) if usable else None
-    return _bench(number, section, key, readings, rows, sub, fits, 0)
+    return _bench(number, section, key, readings, rows, sub, _fits(section, rows, sub, values), 0)
 
 
 def _without_wrong_standards(
