@@ -36,7 +36,16 @@ from planner.errors import PlannerError
 from planner.inputs import PlanInputs
 from planner.lab.bench import reading_sd
 from planner.records import record
-from planner.result import Addition, Check, Delivery, Mixture, Role, StockPreparation, Totals
+from planner.result import (
+    Addition,
+    Check,
+    Delivery,
+    Mixture,
+    Role,
+    StockPreparation,
+    Totals,
+    stock_volume_text,
+)
 
 __all__ = ["Design", "SharedWork", "design_recipes", "mixture_from_candidate"]
 
@@ -366,16 +375,111 @@ def design_recipes(
         :func:`planner.pipeline.design_plan`.
     """
     if candidates is None:
-        design = _design(inputs, objective, candidate_set(inputs), allowed, shared)
+        candidates = candidate_set(inputs)
+        design = _design(inputs, objective, candidates, allowed, shared)
         unused = _unused_stocks(inputs, design.mixtures)
-        if not unused:
-            return design
-        # A stock no recipe uses (a source kept for making another stock, say) still took a
-        # buret and a share of the candidate grid's volumes: design again without it, its
-        # buret and volumes going to the stocks that are used, and keep the better design.
-        again = _design(inputs, objective, candidate_set(inputs, unused), allowed, shared)
-        return again if _rank(again) < _rank(design) else design
+        if unused:
+            # A stock no recipe uses (a source kept for making another stock, say) still took
+            # a buret and a share of the candidate grid's volumes: design again without it,
+            # its buret and volumes going to the stocks that are used; keep the better design.
+            fewer = candidate_set(inputs, unused)
+            again = _design(inputs, objective, fewer, allowed, shared)
+            if _rank(again) < _rank(design):
+                design, candidates = again, fewer
+        return _within_stock(inputs, objective, candidates, allowed, shared, design)
     return _design(inputs, objective, candidates, allowed, shared)
+
+
+# Rounds of "cap the short stock's volume by the share of it on hand": the need is nearly
+# proportional to the largest volumes, so one or two rounds usually fit.
+_STOCK_FIT_ROUNDS = 3
+
+
+def _within_stock(
+    inputs: PlanInputs,
+    objective: Objective | None,
+    candidates: CandidateSet,
+    allowed: NDArray[np.bool_] | None,
+    shared: SharedWork | None,
+    design: Design,
+) -> Design:
+    """The design, or one made again within the stock on hand when it needs more of an excess
+    stock than ``available_mL``.
+
+    The standards bind the limiting reagent with as much excess as the shelf allows, which
+    can ask for litres of an excess stock when a tenth of it would keep the standards within
+    ``assumption_tolerance``. For each short stock without the limiting reagent the
+    candidates are held to volumes of it at most the design's largest times the share on hand
+    (available over needed), and the recipes designed again, up to
+    :data:`_STOCK_FIT_ROUNDS` times. (A short limiting stock is left to the
+    ``stock-inventory`` check: less of it would only lower every reading.) A design made so
+    replaces the first only when it is short of less stock, fails no more feasibility checks,
+    has as many mixtures, and its standards still bind within the tolerance (or no worse than
+    the first's).
+    """
+    tolerance = inputs.design.assumption_tolerance
+    if not any(m.role == "standard" for m in design.mixtures):
+        return design  # no standards to hold: nothing asks for an excess
+    first_bound = _standards_bound(design)
+    best = design
+    mask = np.ones(candidates.size, dtype=bool) if allowed is None else allowed.copy()
+    for _ in range(_STOCK_FIT_ROUNDS):
+        caps = {
+            st.id: max((m.volume_of(st.id) for m in best.mixtures), default=0.0)
+            * st.available_mL
+            / need
+            for st in inputs.stocks
+            if st.available_mL is not None
+            and (need := best.totals.to_prepare.get(st.id, 0.0)) > st.available_mL + 1e-9
+            and st.id in candidates.stock_ids
+            and inputs.design.limiting not in st.contains_M
+        }
+        if not caps:
+            break
+        for stock_id, cap in caps.items():
+            column = candidates.volumes_mL[:, candidates.stock_ids.index(stock_id)]
+            mask &= column <= cap + 1e-9
+        again = _design(inputs, objective, candidates, mask, shared)
+        bound = _standards_bound(again)
+        if (
+            _shortage(inputs, again) >= _shortage(inputs, best)
+            or _rank(again)[0] > _rank(design)[0]
+            or len(again.mixtures) < len(design.mixtures)
+            or bound < min(1.0 - tolerance, first_bound)
+        ):
+            break
+        best = again
+    if best is design:
+        return best
+    held = ", ".join(
+        f"{st.id} (at most "
+        f"{stock_volume_text(max((m.volume_of(st.id) for m in best.mixtures), default=0.0))} "
+        f"mL a mixture; {st.available_mL:g} mL on hand)"
+        for st in inputs.stocks
+        if st.available_mL is not None
+        and design.totals.to_prepare.get(st.id, 0.0) > st.available_mL + 1e-9
+        and inputs.design.limiting not in st.contains_M
+    )
+    note = (
+        f"Recipes held within the stock on hand: {held}. The standards still bind at least "
+        f"{100 * _standards_bound(best):.1f} % of {inputs.design.limiting} (tolerance "
+        f"{100 * tolerance:g} %); more of that stock would bind more."
+    )
+    return dataclasses.replace(best, notes=(*best.notes, note))
+
+
+def _standards_bound(design: Design) -> float:
+    """The least bound fraction of the design's standards (0 without standards)."""
+    return min((m.bound_fraction for m in design.mixtures if m.role == "standard"), default=0.0)
+
+
+def _shortage(inputs: PlanInputs, design: Design) -> float:
+    """How much stock the design lacks, summed over stocks as fractions of what is on hand."""
+    return sum(
+        max(0.0, design.totals.to_prepare.get(st.id, 0.0) - st.available_mL) / st.available_mL
+        for st in inputs.stocks
+        if st.available_mL
+    )
 
 
 def _unused_stocks(inputs: PlanInputs, mixtures: Sequence[Mixture]) -> frozenset[str]:
