@@ -440,8 +440,11 @@ def _preparation_rows(plan: Plan) -> list[_PreparationRow]:
         rows.append(
             _PreparationRow(
                 stock=prep.stock,
-                flasks=f"{prep.flasks} × {plain(prep.flask_mL, 4)} mL",
-                solid=prep.solid_formula if has_solid else _no_solid(prep, medium_id),
+                # The solvent alone is set out as it is: no volumetric flask to fill.
+                flasks="-"
+                if _solvent_alone(plan, prep)
+                else f"{prep.flasks} × {plain(prep.flask_mL, 4)} mL",
+                solid=prep.solid_formula if has_solid else _no_solid(prep, medium_id, plan),
                 molar_mass=f"{significant(prep.molar_mass_g_per_mol, 5)} g/mol"
                 if has_solid
                 else "-",
@@ -456,13 +459,25 @@ def _preparation_rows(plan: Plan) -> list[_PreparationRow]:
     return rows
 
 
-def _no_solid(prep: StockPreparation, medium_id: str | None) -> str:
+def _solvent_alone(plan: Plan, prep: StockPreparation) -> bool:
+    """Whether a stock is the solvent itself: nothing dissolved, no salt, no recipe."""
+    stock = next((st for st in plan.inputs.stocks if st.id == prep.stock), None)
+    return (
+        stock is not None
+        and not stock.contains_M
+        and not (prep.solid_formula or prep.source or prep.salt_formula)
+    )
+
+
+def _no_solid(prep: StockPreparation, medium_id: str | None, plan: Plan) -> str:
     """The Solid cell of a stock without one: its dilution, or who supplies it."""
     if prep.source:
         return (
             f"none: dilute {significant(prep.aliquot_mL, 4)} mL of {prep.source} per flask "
             "to the mark"
         )
+    if _solvent_alone(plan, prep):
+        return "none: the solvent itself, set out as it is (see To prepare below)"
     if prep.stock == medium_id:
         return "none listed (the medium itself)"
     return "none listed: must be supplied ready-made"
@@ -495,7 +510,8 @@ def _labels(plan: Plan) -> list[_Label]:
     preparations = {p.stock: p for p in plan.preparations}
     labels = []
     for stock in plan.inputs.stocks:
-        lines = [f"Contains: {_concentrations(stock.contains_M)}"]
+        contents = _concentrations(stock.contains_M) or "the solvent alone, no reagent"
+        lines = [f"Contains: {contents}"]
         prep = preparations.get(stock.id)
         if prep is not None and prep.medium:
             lines.append(f"Medium: {prep.medium}")

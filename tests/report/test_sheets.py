@@ -534,3 +534,50 @@ def test_a_ready_made_stock_and_the_medium_are_told_apart_on_the_prep_sheet():
     assert rows["thiocyanate"].solid == "none listed: must be supplied ready-made"
     assert rows["thiocyanate"].medium == "-"
     assert rows["acid"].solid == "none listed (the medium itself)"
+
+
+def test_the_solvent_alone_is_set_out_not_made_up_in_flasks():
+    # A diluent with nothing dissolved (water) and no inert salt needs no volumetric flask
+    # and no recipe: its prep row names no flasks and its label says it holds no reagent,
+    # where an acid medium keeps its flasks and its concentrations (the default plan's acid,
+    # 0.5 mol/L, salted to a constant ionic medium).
+    from pathlib import Path
+
+    from planner.design.logistics import preparations, stock_totals
+    from planner.planfile import load_plan
+    from tests.plans import plan_of
+
+    default = Path(__file__).resolve().parents[2] / "planner" / "data" / "default.toml"
+    plan = plan_of(default)
+    acid = _prep_rows(plan)["acid"]
+    assert acid.flasks.endswith("× 2000 mL")
+    assert "Contains: H+ 0.5 mol/L" in prep_sheet_md(plan, date=DATE)
+
+    inputs = load_plan(default)
+    inputs = dataclasses.replace(
+        inputs,
+        stocks=tuple(
+            dataclasses.replace(st, contains_M={}, medium_salt_M=0.0)
+            if st.id == "acid"
+            else dataclasses.replace(st, medium_salt_M=0.0)
+            for st in inputs.stocks
+        ),
+        design=dataclasses.replace(inputs.design, ionic_medium=None),
+    )
+    totals = stock_totals(inputs, plan.mixtures)
+    water = dataclasses.replace(
+        plan, inputs=inputs, totals=totals, preparations=preparations(inputs, totals)
+    )
+    row = _prep_rows(water)["acid"]
+    assert row.flasks == "-"
+    assert row.solid.startswith("none: the solvent itself")
+    for text in (prep_sheet_md(water, date=DATE), prep_sheet_html(water, date=DATE)):
+        assert "Contains: the solvent alone, no reagent" in text
+        assert "Contains: </" not in text
+        assert "Contains:  \n" not in text
+
+
+def _prep_rows(plan):
+    from planner.report.sheets import _preparation_rows
+
+    return {row.stock: row for row in _preparation_rows(plan)}
