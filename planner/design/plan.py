@@ -12,6 +12,7 @@ import dataclasses
 import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from typing import Protocol, TypeVar
 
 import numpy as np
 from numpy.typing import NDArray
@@ -33,7 +34,7 @@ from planner.design.mixtures import (
 )
 from planner.design.standards import StandardsChoice, StandardsMemo, choose_standards
 from planner.errors import PlannerError
-from planner.inputs import PlanInputs
+from planner.inputs import PlanInputs, Stock
 from planner.lab.bench import reading_sd
 from planner.records import record
 from planner.result import (
@@ -47,7 +48,14 @@ from planner.result import (
     stock_volume_text,
 )
 
-__all__ = ["Design", "SharedWork", "design_recipes", "mixture_from_candidate"]
+__all__ = [
+    "Design",
+    "Recipes",
+    "SharedWork",
+    "design_recipes",
+    "hold_within_stock",
+    "mixture_from_candidate",
+]
 
 
 @record
@@ -395,6 +403,20 @@ def design_recipes(
 _STOCK_FIT_ROUNDS = 3
 
 
+class Recipes(Protocol):
+    """What holding recipes within the stock reads: a :class:`Design` or a whole plan."""
+
+    @property
+    def mixtures(self) -> tuple[Mixture, ...]: ...
+    @property
+    def totals(self) -> Totals: ...
+    @property
+    def checks(self) -> tuple[Check, ...]: ...
+
+
+_R = TypeVar("_R", bound=Recipes)
+
+
 def _within_stock(
     inputs: PlanInputs,
     objective: Objective | None,
@@ -403,80 +425,133 @@ def _within_stock(
     shared: SharedWork | None,
     design: Design,
 ) -> Design:
-    """The design, or one made again within the stock on hand when it needs more of an excess
+    """The design, or one made again within the stock on hand (:func:`hold_within_stock`)."""
+
+    def again(mask: NDArray[np.bool_]) -> Design:
+        return _design(inputs, objective, candidates, mask, shared)
+
+    held, _, note = hold_within_stock(inputs, design, again, candidates, allowed)
+    return dataclasses.replace(held, notes=(*held.notes, note)) if note else held
+
+
+def hold_within_stock(
+    inputs: PlanInputs,
+    first: _R,
+    make: Callable[[NDArray[np.bool_]], _R],
+    candidates: CandidateSet,
+    allowed: NDArray[np.bool_] | None = None,
+    *,
+    sets: int = 1,
+) -> tuple[_R, NDArray[np.bool_] | None, str]:
+    """Recipes made again within the stock on hand when ``first`` needs more of an excess
     stock than ``available_mL``.
 
     The standards bind the limiting reagent with as much excess as the shelf allows, which
     can ask for litres of an excess stock when a tenth of it would keep the standards within
     ``assumption_tolerance``. For each short stock without the limiting reagent the
-    candidates are held to volumes of it at most the design's largest times the share on hand
-    (available over needed), and the recipes designed again, up to
+    candidates are held to volumes of it at most the recipes' largest times the share on
+    hand (available over needed), and ``make`` designs again within that mask, up to
     :data:`_STOCK_FIT_ROUNDS` times. (A short limiting stock is left to the
-    ``stock-inventory`` check: less of it would only lower every reading.) A design made so
-    replaces the first only when it is short of less stock, fails no more feasibility checks,
-    has as many mixtures, and its standards still bind within the tolerance (or no worse than
-    the first's).
+    ``stock-inventory`` check: less of it would only lower every reading.) Recipes made so
+    replace the first only when they are short of less stock, fail no more checks, have as
+    many mixtures, and their standards still bind within the tolerance (or no worse than the
+    first's).
+
+    Parameters
+    ----------
+    inputs
+        The plan; ``available_mL`` of its stocks is what is on hand.
+    first
+        The recipes designed without regard to the stock (a :class:`Design` or a plan).
+    make
+        Designs the recipes again from the candidates a mask allows.
+    candidates
+        The candidates ``first`` was chosen from.
+    allowed
+        The mask ``first`` was chosen within, if any; the held mask is a part of it.
+    sets
+        How many times the session needs ``first``'s totals: 1 for a plan, the number of
+        sections for variants that each design one section.
+
+    Returns
+    -------
+    tuple
+        The recipes kept, the mask they were designed within (None when ``first`` is kept)
+        and a note saying what was held (``""`` when ``first`` is kept).
     """
     tolerance = inputs.design.assumption_tolerance
-    if not any(m.role == "standard" for m in design.mixtures):
-        return design  # no standards to hold: nothing asks for an excess
-    first_bound = _standards_bound(design)
-    best = design
+    if not any(m.role == "standard" for m in first.mixtures):
+        return first, None, ""  # no standards to hold: nothing asks for an excess
+    first_bound = _standards_bound(first)
+    first_fails = _fails(first)
+    best, best_mask = first, None
     mask = np.ones(candidates.size, dtype=bool) if allowed is None else allowed.copy()
     for _ in range(_STOCK_FIT_ROUNDS):
+        short = _short_excess_stocks(inputs, best, sets)
         caps = {
             st.id: max((m.volume_of(st.id) for m in best.mixtures), default=0.0)
             * st.available_mL
-            / need
-            for st in inputs.stocks
-            if st.available_mL is not None
-            and (need := best.totals.to_prepare.get(st.id, 0.0)) > st.available_mL + 1e-9
-            and st.id in candidates.stock_ids
-            and inputs.design.limiting not in st.contains_M
+            / (sets * best.totals.to_prepare[st.id])
+            for st in short
+            if st.available_mL is not None and st.id in candidates.stock_ids
         }
         if not caps:
             break
         for stock_id, cap in caps.items():
             column = candidates.volumes_mL[:, candidates.stock_ids.index(stock_id)]
             mask &= column <= cap + 1e-9
-        again = _design(inputs, objective, candidates, mask, shared)
-        bound = _standards_bound(again)
+        again = make(mask.copy())
         if (
-            _shortage(inputs, again) >= _shortage(inputs, best)
-            or _rank(again)[0] > _rank(design)[0]
-            or len(again.mixtures) < len(design.mixtures)
-            or bound < min(1.0 - tolerance, first_bound)
+            _shortage(inputs, again, sets) >= _shortage(inputs, best, sets)
+            or _fails(again) > first_fails
+            or len(again.mixtures) < len(first.mixtures)
+            or _standards_bound(again) < min(1.0 - tolerance, first_bound)
         ):
             break
-        best = again
-    if best is design:
-        return best
+        best, best_mask = again, mask.copy()
+    if best is first:
+        return first, None, ""
     held = ", ".join(
         f"{st.id} (at most "
         f"{stock_volume_text(max((m.volume_of(st.id) for m in best.mixtures), default=0.0))} "
         f"mL a mixture; {st.available_mL:g} mL on hand)"
-        for st in inputs.stocks
-        if st.available_mL is not None
-        and design.totals.to_prepare.get(st.id, 0.0) > st.available_mL + 1e-9
-        and inputs.design.limiting not in st.contains_M
+        for st in _short_excess_stocks(inputs, first, sets)
     )
     note = (
         f"Recipes held within the stock on hand: {held}. The standards still bind at least "
         f"{100 * _standards_bound(best):.1f} % of {inputs.design.limiting} (tolerance "
         f"{100 * tolerance:g} %); more of that stock would bind more."
     )
-    return dataclasses.replace(best, notes=(*best.notes, note))
+    return best, best_mask, note
 
 
-def _standards_bound(design: Design) -> float:
-    """The least bound fraction of the design's standards (0 without standards)."""
-    return min((m.bound_fraction for m in design.mixtures if m.role == "standard"), default=0.0)
+def _short_excess_stocks(inputs: PlanInputs, recipes: Recipes, sets: int) -> list[Stock]:
+    """Stocks without the limiting reagent of which ``sets`` times the recipes' totals need
+    more than is on hand."""
+    return [
+        st
+        for st in inputs.stocks
+        if st.available_mL is not None
+        and sets * recipes.totals.to_prepare.get(st.id, 0.0) > st.available_mL + 1e-9
+        and inputs.design.limiting not in st.contains_M
+    ]
 
 
-def _shortage(inputs: PlanInputs, design: Design) -> float:
-    """How much stock the design lacks, summed over stocks as fractions of what is on hand."""
+def _fails(recipes: Recipes) -> int:
+    return sum(1 for c in recipes.checks if c.status == "fail")
+
+
+def _standards_bound(recipes: Recipes) -> float:
+    """The least bound fraction of the recipes' standards (0 without standards)."""
+    return min((m.bound_fraction for m in recipes.mixtures if m.role == "standard"), default=0.0)
+
+
+def _shortage(inputs: PlanInputs, recipes: Recipes, sets: int = 1) -> float:
+    """How much stock ``sets`` times the recipes lack, summed over stocks as fractions of what
+    is on hand."""
     return sum(
-        max(0.0, design.totals.to_prepare.get(st.id, 0.0) - st.available_mL) / st.available_mL
+        max(0.0, sets * recipes.totals.to_prepare.get(st.id, 0.0) - st.available_mL)
+        / st.available_mL
         for st in inputs.stocks
         if st.available_mL
     )

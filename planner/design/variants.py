@@ -44,6 +44,7 @@ from numpy.typing import NDArray
 
 from planner.design.candidates import CandidateSet, candidate_set
 from planner.design.mixtures import eligible_for_tests
+from planner.design.plan import hold_within_stock
 from planner.errors import InvalidInputError
 from planner.inputs import PlanInputs
 from planner.records import record
@@ -340,6 +341,13 @@ class _Band:
             self.u = [min(self.u[0], u), max(self.u[1], u)]
 
 
+def _within(
+    allowed: NDArray[np.bool_], within_stock: NDArray[np.bool_] | None
+) -> NDArray[np.bool_]:
+    """A section's mask, held within the stock on hand when the session is short."""
+    return allowed if within_stock is None else allowed & within_stock
+
+
 def design_variants(
     inputs: PlanInputs,
     sections: int,
@@ -385,10 +393,20 @@ def design_variants(
         inputs, session=dataclasses.replace(inputs.session, sections=1)
     )
     candidates = candidate_set(one_section)
+    # The stock on hand is for the whole session: with an excess stock short for that many
+    # sections, every section is designed within the volumes that fit (as planner plan does).
+    reference, within_stock, held_note = hold_within_stock(
+        one_section,
+        make_plan(one_section, candidates, None),
+        lambda mask: make_plan(one_section, candidates, mask),
+        candidates,
+        sets=sections,
+    )
     eligible = eligible_tests(one_section, candidates)
+    if within_stock is not None:
+        eligible &= within_stock
     tests_per_section = one_section.design.tests
     eligible_recipes = _distinct_rows(candidates.volumes_mL[eligible])
-    reference = make_plan(one_section, candidates, None)
     if reference.failed or reference.design_objective is None:
         return VariantSet(
             plans=(),
@@ -420,7 +438,7 @@ def design_variants(
             left_out = used.copy()
             if draw < _DISTINCT_DRAWS:
                 left_out |= eligible & (rng.random(candidates.size) >= _DISTINCT_KEEP_FRACTION)
-            plan = make_plan(one_section, candidates, ~left_out)
+            plan = make_plan(one_section, candidates, _within(~left_out, within_stock))
             if band.admits(plan) and not np.any(_same_recipes(candidates, plan) & used):
                 placed = plan
                 break
@@ -436,7 +454,7 @@ def design_variants(
     while len(plans) < sections and tries < _TRIES_PER_SECTION * (sections - distinct_sections):
         tries += 1
         left_out = eligible & (rng.random(candidates.size) >= _KEEP_FRACTION)
-        plan = make_plan(one_section, candidates, ~left_out)
+        plan = make_plan(one_section, candidates, _within(~left_out, within_stock))
         if not band.admits(plan):
             continue
         key = recipe_key(plan)
@@ -454,6 +472,8 @@ def design_variants(
             "finer steps (a buret or graduated pipette), more stocks at other concentrations, a "
             "wider design.bound_fraction_range or fewer tests would allow more"
         )
+    if held_note:
+        plans = [dataclasses.replace(p, notes=(*p.notes, held_note)) for p in plans]
     return VariantSet(
         plans=tuple(plans),
         requested=sections,

@@ -475,3 +475,26 @@ def test_the_combined_prep_sheet_says_what_its_columns_hold(six):
     assert "Per section = per bench" not in combined
     section = prep_sheet_md(six.plans[0], date="2026-01-01")
     assert "Per section = per bench × benches per section × replicates" in section
+
+
+def test_variants_hold_the_recipes_within_the_stock_of_the_whole_session():
+    # The invented nickel lab (tests/design/test_plan.py) has 2000 mL of ligand for the
+    # session. Designed without regard to it, each section's standards took 30 mL of ligand
+    # and two sections asked for 3619 mL (stock-inventory failed on the combined sheet); held
+    # within the stock for three sections, the standards take 10 mL and still bind 99 %.
+    # The shelf allows two sections here; their ligand, by hand: per bench 5 x 10 mL (blank
+    # and four standards) + 6 x 0.5 mL (tests) = 53 mL; x 10 benches x 2 sections = 1060 mL;
+    # + 15 % = 1219 mL; + 5 mL dead volume x 20 bench containers = 1319 mL, under 2000.
+    from planner.planfile import parse_plan
+    from tests.design.test_plan import NICKEL_FLASKS
+
+    found = design_variants(parse_plan(NICKEL_FLASKS), 3, np.random.default_rng(7))
+    assert len(found.plans) == 2
+    inventory = next(c for c in found.combined.checks if c.name == "stock-inventory")
+    assert inventory.status == "pass"
+    assert found.combined.totals.to_prepare["ligand"] == pytest.approx(1319.0)
+    for plan in found.plans:
+        standards = plan.by_role("standard")
+        assert all(m.volume_of("ligand") == pytest.approx(10.0) for m in standards)
+        assert min(m.bound_fraction for m in standards) >= 0.98
+        assert any("held within the stock on hand: ligand" in note for note in plan.notes)
