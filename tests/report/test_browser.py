@@ -128,6 +128,70 @@ def test_answer_key_shows_every_plot_inside_the_printable_width(files, layouts):
         assert image["width"] == pytest.approx(6.6 * 96, abs=1)
 
 
+# An invented zinc-dye bench with three absorbing products (ZnD+, ZnD2, ZnD3): the answer
+# key's expected-readings table has a concentration column for each.
+THREE_PRODUCTS = """
+title = "Zinc with an invented dye D: three absorbing products"
+[reaction]
+ionic_strength_M = 0.1
+components = ["Zn2+", "D-"]
+component_epsilon = { "D-" = 150 }
+[[reaction.species]]
+name = "ZnD+"
+formula = { "Zn2+" = 1, "D-" = 1 }
+log_beta = 4.2
+epsilon = 4200
+[[reaction.species]]
+name = "ZnD2"
+formula = { "Zn2+" = 1, "D-" = 2 }
+log_beta = 7.0
+epsilon = 6100
+[[reaction.species]]
+name = "ZnD3"
+formula = { "Zn2+" = 1, "D-" = 3 }
+log_beta = 9.0
+epsilon = 6500
+[instrument]
+wavelength_nm = 540
+absorbance_sd = 0.002
+[[stocks]]
+id = "zinc"
+contains_M = { "Zn2+" = 0.001, "NO3-" = 0.002 }
+[[stocks]]
+id = "dye"
+contains_M = { "D-" = 0.001, "Na+" = 0.001 }
+[[stocks]]
+id = "buffer"
+contains_M = { "Na+" = 0.1, "NO3-" = 0.1 }
+diluent = true
+[[glassware]]
+kind = "buret"
+volume_mL = 25
+count = 2
+[[glassware]]
+kind = "volumetric-flask"
+volume_mL = 25
+count = 12
+[design]
+limiting = "D-"
+measured_species = "ZnD+"
+vessel = "flask-25"
+"""
+
+
+def test_a_table_of_many_products_keeps_to_the_printable_width():
+    # The expected readings of three products took 724 px of the 703 px printable width
+    # while their headings could not wrap; now every table of the answer key fits.
+    from planner.pipeline import design_plan
+    from planner.planfile import parse_plan
+    from planner.report.sheets import answer_key_html
+
+    plan = design_plan(parse_plan(THREE_PRODUCTS))
+    layout = measure_layout(answer_key_html(plan, date="2026-12-02"), assets={})
+    assert "[ZnD3]" in layout["text"]
+    _assert_fits(layout)
+
+
 @pytest.mark.parametrize("name", ["prep-sheet.pdf", "answer-key.pdf"])
 def test_other_sheets_print_to_pdf(printed, name):
     # Printed by `planner plan --pdf` (html_to_pdf, with the plots beside the sheets).
