@@ -48,7 +48,7 @@ from planner.report._format import (
 )
 from planner.report.bench_text import bias_line, medium_line, ranges_line
 from planner.report.cautions import cautions_for, label_hazards
-from planner.result import Plan, Role, StockPreparation, StockRole, stock_volume_text
+from planner.result import Mixture, Plan, Role, StockPreparation, StockRole, stock_volume_text
 
 __all__ = [
     "READINGS_COLUMNS",
@@ -908,22 +908,51 @@ def _coloured_species(plan: Plan) -> tuple[str, ...]:
     return coloured or tuple(sp.name for sp in species)
 
 
+# Product concentrations the expected-readings table holds beside its five other columns, and
+# each table after it (a mixture column and these) holds at most: a column of 4-significant-
+# figure numbers takes about 80 px of the 703 px printable width (the browser tests measure).
+_MAIN_PRODUCTS = 4
+_MORE_PRODUCTS = 6
+
+
+@record
+class _ConcentrationTable:
+    """Product concentrations that did not fit the expected-readings table: ``names`` and,
+    per mixture, its id and their values."""
+
+    names: tuple[str, ...]
+    rows: tuple[tuple[str, tuple[str, ...]], ...]
+
+
+def _concentration(m: Mixture, name: str) -> str:
+    return scientific(m.equilibrium_M[name], 4) if name in m.equilibrium_M else "-"
+
+
 def _answer_context(plan: Plan, date: str, plots: Sequence[str] = ()) -> dict[str, Any]:
-    products = _coloured_species(plan)
+    coloured = _coloured_species(plan)
+    products, more = coloured[:_MAIN_PRODUCTS], coloured[_MAIN_PRODUCTS:]
     rows = [
         _AnswerRow(
             id=m.id,
             role=m.role,
             absorbance=f"{m.absorbance:.3f}",
             u_absorbance=significant(m.u_absorbance, 2),
-            products=tuple(
-                scientific(m.equilibrium_M[name], 4) if name in m.equilibrium_M else "-"
-                for name in products
-            ),
+            products=tuple(_concentration(m, name) for name in products),
             bound_fraction=f"{m.bound_fraction:.3f}",
             ionic_strength=significant(m.ionic_strength_M, 3),
         )
         for m in plan.mixtures
+    ]
+    more_tables = [
+        _ConcentrationTable(
+            names=names,
+            rows=tuple(
+                (m.id, tuple(_concentration(m, name) for name in names)) for m in plan.mixtures
+            ),
+        )
+        for names in (
+            more[start : start + _MORE_PRODUCTS] for start in range(0, len(more), _MORE_PRODUCTS)
+        )
     ]
     instrument = plan.inputs.instrument
     return {
@@ -931,6 +960,7 @@ def _answer_context(plan: Plan, date: str, plots: Sequence[str] = ()) -> dict[st
         "date": date,
         "products": products,
         "rows": rows,
+        "more_concentrations": more_tables,
         "designed_for": _designed_for(plan),
         "analyses": _analysis_views(plan),
         "ranges": _ranges_view(plan),

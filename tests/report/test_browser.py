@@ -179,17 +179,33 @@ vessel = "flask-25"
 """
 
 
-def test_a_table_of_many_products_keeps_to_the_printable_width():
-    # The expected readings of three products took 724 px of the 703 px printable width
-    # while their headings could not wrap; now every table of the answer key fits.
+def _more_products(count):
+    """THREE_PRODUCTS with ZnD4 ... ZnD<count> too (log beta rising by about 1 a step)."""
+    extra = "".join(
+        f'[[reaction.species]]\nname = "ZnD{n}"\nformula = {{ "Zn2+" = 1, "D-" = {n} }}\n'
+        f"log_beta = {9.0 + 0.9 * (n - 3):.1f}\nepsilon = {6500 + 100 * (n - 3)}\n"
+        for n in range(4, count + 1)
+    )
+    return THREE_PRODUCTS.replace("[instrument]", extra + "[instrument]")
+
+
+@pytest.mark.parametrize("count", [3, 7])
+def test_a_table_of_many_products_keeps_to_the_printable_width(count):
+    # The expected readings of three products took 826 px of the 703 px printable width
+    # while their headings could not wrap; a heading now wraps, and products beyond the
+    # fourth go to a table of their own below, so every table of the answer key fits.
     from planner.pipeline import design_plan
     from planner.planfile import parse_plan
-    from planner.report.sheets import answer_key_html
+    from planner.report.sheets import answer_key_html, answer_key_md
 
-    plan = design_plan(parse_plan(THREE_PRODUCTS))
+    plan = design_plan(parse_plan(_more_products(count)))
     layout = measure_layout(answer_key_html(plan, date="2026-12-02"), assets={})
-    assert "[ZnD3]" in layout["text"]
     _assert_fits(layout)
+    markdown = answer_key_md(plan, date="2026-12-02")
+    for n in range(1, count + 1):
+        name = "ZnD+" if n == 1 else f"ZnD{n}"
+        assert f"[{name}] (mol/L)" in layout["text"]
+        assert markdown.count(f"[{name}] (mol/L)") == 1
 
 
 @pytest.mark.parametrize("name", ["prep-sheet.pdf", "answer-key.pdf"])
