@@ -189,7 +189,7 @@ def _more_products(count):
     return THREE_PRODUCTS.replace("[instrument]", extra + "[instrument]")
 
 
-@pytest.mark.parametrize("count", [3, 7])
+@pytest.mark.parametrize("count", [3, 7, 12])
 def test_a_table_of_many_products_keeps_to_the_printable_width(count):
     # The expected readings of three products took 826 px of the 703 px printable width
     # while their headings could not wrap; a heading now wraps, and products beyond the
