@@ -1117,12 +1117,16 @@ def _speciation(inputs: PlanInputs, mixtures: Sequence[Mixture], state: _State) 
         measured_epsilon = reaction.species[coloured].epsilon
         consequence = "its molar absorptivity means nothing"
         if measured_epsilon > 0:
-            error = read / measured_epsilon - 1.0
+            # A vanishing measured eps (5e-324 in the fuzz tests) overflows the ratio: the
+            # reported eps then means nothing, as without one.
+            with np.errstate(over="ignore"):
+                error = read / measured_epsilon - 1.0
             off = float(error[np.argmax(np.abs(error))])
-            consequence = (
-                f"the molar absorptivity it reports is off by up to {100 * off:+.0f} % (the "
-                "other products' absorptivities included)"
-            )
+            if math.isfinite(off):
+                consequence = (
+                    f"the molar absorptivity it reports is off by up to {100 * off:+.0f} % "
+                    "(the other products' absorptivities included)"
+                )
         return Check(
             "product-speciation",
             "warn",

@@ -398,9 +398,70 @@ def test_absurd_numbers_never_crash(plan_path, plan, data):
         # No plan key takes nan, infinity or text that spells them.
         assert_input_error(result, path_text(path))
     elif result.exit_code == 2:
-        assert_input_error(result, *doc_paths(original, plan))
+        # A key the file lacks may be the place to mend it: an epsilon made positive can
+        # leave two absorbing products, and the plan file must then name the measured one.
+        assert_input_error(result, *doc_paths(original, plan), "design.measured_species")
     else:
         assert_plans_or_fails_named_checks(result)
+
+
+# Found by the long profile: a measured product with eps = 5e-324 beside an absorbing second
+# product overflowed the product-speciation check's ratio of absorptivities (exit 3).
+VANISHING_EPSILON = """
+[reaction]
+temperature_C = 20
+ionic_strength_M = 0.0
+components = ["Fe3+", "SCN-"]
+[[reaction.species]]
+name = "FeSCN2+"
+formula = { "Fe3+" = 1, "SCN-" = 1 }
+log_beta = -2.0
+epsilon = 5e-324
+[[reaction.species]]
+name = "Fe(SCN)2+"
+formula = { "Fe3+" = 1, "SCN-" = 2 }
+log_beta = -2.0
+epsilon = 100.0
+[instrument]
+wavelength_nm = 200
+path_length_cm = 0.1
+absorbance_window = [0.0, 0.6]
+absorbance_sd = 0.0001
+cuvette_fill_mL = 0.5
+[[stocks]]
+id = "metal"
+contains_M = { "Fe3+" = 1.0, "H+" = 0.1, "NO3-" = 0.1 }
+[[stocks]]
+id = "ligand"
+contains_M = { "SCN-" = 1.0, "H+" = 0.1, "NO3-" = 0.1 }
+[[stocks]]
+id = "medium"
+contains_M = { "H+" = 0.1, "NO3-" = 0.1 }
+diluent = true
+[[glassware]]
+kind = "transfer-pipette"
+volume_mL = 0.5
+[design]
+standards = 1
+tests = 1
+limiting = "Fe3+"
+assumption_tolerance = 0.001
+vessel = "flask-5"
+total_volume_mL = 5.0
+bound_fraction_range = [0.05, 0.7]
+bound_fraction_span = 0.065
+ionic_strength_spread = 0.0
+measured_species = "FeSCN2+"
+[session]
+margin = 0.0
+dead_volume_mL = 0.0
+"""
+
+
+def test_a_vanishing_measured_epsilon_plans_or_fails_a_named_check(plan_path):
+    document = assert_plans_or_fails_named_checks(run_plan(plan_path, VANISHING_EPSILON))
+    speciation = next(c for c in document["checks"] if c["name"] == "product-speciation")
+    assert "means nothing" in speciation["detail"]
 
 
 UNICODE = st.text(
