@@ -131,7 +131,12 @@ def recompute_global_fit(
     d_eps = (read_with(lg, eps * (1 + h)) - read_with(lg, eps * (1 - h))) / (2 * h * eps)
     d_lg = (read_with(lg + h, eps) - read_with(lg - h, eps)) / (2 * h)
     jacobian = np.stack([d_eps, d_lg], axis=1)
-    if np.linalg.matrix_rank(jacobian / np.linalg.norm(jacobian, axis=0), tol=1e-7) < 2:
+    norms = np.linalg.norm(jacobian, axis=0)
+    # A column of zeros (readings that eps or K does not move, e.g. far past the photometer's
+    # range with a tampered eps) leaves nothing to fit as surely as two alike columns do.
+    if not np.all(np.isfinite(norms) & (norms > 0)):
+        return "eps or K does not move the readings, so the global fit cannot find them"
+    if np.linalg.matrix_rank(jacobian / norms, tol=1e-7) < 2:
         return "eps and K move the readings alike, so the global fit cannot separate them"
     gain = np.linalg.lstsq(jacobian, np.eye(fitted.size), rcond=None)[0]  # (2, n_fitted)
 

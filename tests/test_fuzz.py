@@ -672,7 +672,15 @@ UNCHECKED_INPUTS = {
     ("design", "bound_fraction_range"): "advice: bound-fraction-coverage only warns",
     ("design", "bound_fraction_span"): "advice: bound-fraction-coverage only warns",
     ("design", "ionic_strength_spread"): "advice: ionic-strength only warns on the spread",
+    ("design", "K_bias_tolerance"): "a limit: the analysis check only weighs the all-bound "
+    "K's bias against it, which may lie on the same side of the changed value",
     ("glassware", "count"): "advice: device-count only warns",
+}
+# The bench's delivery terms and the device kinds each applies to (planner.lab.bench).
+BENCH_TERM_KINDS = {
+    "buret_reading_sd_mL": ("buret-",),
+    "pipette_rsd": ("transfer-pipette-", "graduated-pipette-"),
+    "piston_rsd": ("piston-pipette-",),
 }
 FACTORS = st.one_of(
     st.sampled_from((10.0, 0.1, 2.0, 0.5, -1.0, 1e3, 1e-3)),
@@ -694,6 +702,10 @@ def _unchecked_input(document: dict[str, Any], path: tuple[Any, ...]) -> str | N
     table, key = path[1], path[3] if path[1] in ("stocks", "glassware") else path[2]
     if (table, key) in UNCHECKED_INPUTS:
         return UNCHECKED_INPUTS[table, key]
+    if path[1:3] == ("reaction", "species") and path[-1] == "log_beta_sd":
+        # planner.design.mixtures: it weighs the design's choice of tests over the expected
+        # K, a choice verify does not make again; no stated number derives from it.
+        return "the prior uncertainty of log_beta: it weighs the choice of tests only"
     used_devices = {
         device
         for mixture in document["mixtures"]
@@ -704,6 +716,10 @@ def _unchecked_input(document: dict[str, Any], path: tuple[Any, ...]) -> str | N
         used_devices
     ):
         return "a device no recipe uses"
+    kinds = BENCH_TERM_KINDS.get(key) if table == "bench" else None
+    if kinds is not None and not any(d.startswith(kinds) for d in used_devices):
+        # planner.lab.bench.technique_sd_mL: each term spreads its kinds' deliveries only.
+        return "a bench term of devices no recipe uses"
     if table == "stocks" and key == "relative_uncertainty":
         stock = document["inputs"]["stocks"][path[2]]
         limiting = document["inputs"]["design"]["limiting"]
@@ -738,6 +754,20 @@ def test_untampered_default_result_verifies(saved_default_plan, result_path):
     result_path.write_text(saved_default_plan, encoding="utf-8")
     result = runner.invoke(app, ["verify", str(result_path)], catch_exceptions=False)
     assert result.exit_code == 0, result.stdout[-3000:]
+
+
+def test_a_result_with_an_absorptivity_far_past_the_photometer_fails_cleanly(
+    saved_default_plan, result_path
+):
+    # Found by the long profile: eps x 209 puts every reading far past the photometer's
+    # range, where K no longer moves them; the global fit's re-derivation divided by the
+    # zero norm of that column (exit 3). It now says the fit has nothing to find.
+    document = json.loads(saved_default_plan)
+    document["inputs"]["reaction"]["species"][0]["epsilon"] *= 209
+    result_path.write_text(json.dumps(document), encoding="utf-8")
+    result = runner.invoke(app, ["verify", str(result_path)], catch_exceptions=False)
+    assert_no_traceback(result)
+    assert result.exit_code == 1, result.stdout[-2000:]
 
 
 @settings(max_examples=budget(300), **FUZZ)
