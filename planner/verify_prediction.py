@@ -216,7 +216,14 @@ def reading_noise_sd(inputs: PlanInputs, absorbance: float) -> float:
     """
     instrument = inputs.instrument
     transmittance = 10.0 ** (-absorbance)
-    from_transmittance = instrument.transmittance_sd / (transmittance * math.log(10.0))
+    # Without transmittance noise the term is 0 at any reading; with it, a reading so high
+    # that T underflows to 0 has no usable precision.
+    if instrument.transmittance_sd == 0.0:
+        from_transmittance = 0.0
+    elif transmittance == 0.0:
+        from_transmittance = math.inf
+    else:
+        from_transmittance = instrument.transmittance_sd / (transmittance * math.log(10.0))
     proportional = math.sqrt(instrument.absorbance_rsd**2 + inputs.bench.cuvette_rsd**2)
     return math.sqrt(
         instrument.absorbance_sd**2 + (proportional * absorbance) ** 2 + from_transmittance**2

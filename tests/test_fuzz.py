@@ -458,6 +458,59 @@ dead_volume_mL = 0.0
 """
 
 
+# Found by the long profile: an absorbing 5 mol/L component over a 2 cm path reads so high
+# that 10^-A underflows to 0, and verify's reading noise divided 0 transmittance noise by it.
+UNDERFLOWING_TRANSMITTANCE = """
+[reaction]
+temperature_C = 20
+ionic_strength_M = 0.0
+components = ["Cu2+", "L-"]
+component_epsilon = { "Cu2+" = 50.0 }
+[[reaction.species]]
+name = "CuL+"
+formula = { "Cu2+" = 1, "L-" = 1 }
+log_beta = -2.0
+epsilon = 10.0
+[[reaction.species]]
+name = "CuL2"
+formula = { "Cu2+" = 1, "L-" = 2 }
+log_beta = 0.0
+epsilon = 0.0
+[instrument]
+wavelength_nm = 200
+path_length_cm = 2.0
+absorbance_window = [0.0, 0.6]
+absorbance_sd = 0.0001
+cuvette_fill_mL = 0.05
+[[stocks]]
+id = "metal"
+contains_M = { "Cu2+" = 5.0, "H+" = 0.1, "NO3-" = 0.1 }
+[[stocks]]
+id = "ligand"
+contains_M = { "L-" = 5.0, "H+" = 0.1, "NO3-" = 0.1 }
+[[glassware]]
+kind = "piston-pipette"
+range_uL = [10.0, 100.0]
+step_uL = 1.0
+[design]
+standards = 1
+tests = 1
+limiting = "L-"
+assumption_tolerance = 0.001
+total_volume_mL = 0.5
+bound_fraction_range = [0.05, 0.7]
+bound_fraction_span = 0.065
+ionic_strength_spread = 0.0
+[session]
+margin = 0.0
+dead_volume_mL = 0.0
+"""
+
+
+def test_a_reading_past_the_float_range_of_transmittance_plans_or_fails(plan_path):
+    assert_plans_or_fails_named_checks(run_plan(plan_path, UNDERFLOWING_TRANSMITTANCE))
+
+
 def test_a_vanishing_measured_epsilon_plans_or_fails_a_named_check(plan_path):
     document = assert_plans_or_fails_named_checks(run_plan(plan_path, VANISHING_EPSILON))
     speciation = next(c for c in document["checks"] if c["name"] == "product-speciation")
