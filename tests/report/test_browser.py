@@ -299,13 +299,28 @@ def _processes():
     return found
 
 
+# Attempts at landing the signal while Chromium prints: on a fast machine the print can end
+# between the moment Chromium is seen and the signal, and the process then dies by the
+# default action at exit (return code -signum) without having been stopped mid-print.
+_STOP_ATTEMPTS = 5
+
+
 @pytest.mark.parametrize("signum", [signal.SIGTERM, signal.SIGINT])
 def test_stopping_plan_pdf_ends_chromium_and_removes_temporaries(tmp_path, signum):
     # Issue 9: a SIGTERM or Ctrl-C while printing left Chromium running and a temporary copy
     # of the output behind.
+    for attempt in range(_STOP_ATTEMPTS):
+        if _stop_while_printing(tmp_path / f"attempt-{attempt}", signum):
+            return
+    pytest.fail(f"the signal never landed while Chromium printed ({_STOP_ATTEMPTS} attempts)")
+
+
+def _stop_while_printing(tmp_path, signum) -> bool:
+    """Stop `planner plan --pdf` once Chromium runs and check it ended cleanly; False when
+    the print had already ended, so the signal came too late to test anything."""
     home, scratch, work = tmp_path / "home", tmp_path / "tmp", tmp_path / "work"
     for folder in (home, scratch, work):
-        folder.mkdir()
+        folder.mkdir(parents=True)
     env = {
         **os.environ,
         "PYTHONPATH": str(ROOT),
@@ -348,6 +363,8 @@ def test_stopping_plan_pdf_ends_chromium_and_removes_temporaries(tmp_path, signu
         assert groups, "Chromium was never seen running"
         planner.send_signal(signum)
         _, stderr = planner.communicate(timeout=30)
+        if planner.returncode == -signum and (work / "sheets" / "plan.json").exists():
+            return False  # the plan was written and the process was exiting: too late
         assert planner.returncode == 128 + signum, stderr
         assert signal.Signals(signum).name in stderr
         assert "Traceback" not in stderr
@@ -364,6 +381,7 @@ def test_stopping_plan_pdf_ends_chromium_and_removes_temporaries(tmp_path, signu
         assert left == {}
         assert sorted(scratch.iterdir()) == []
         assert sorted(work.iterdir()) == []  # no output folder, no staging folder
+        return True
     finally:
         if planner.poll() is None:
             planner.kill()
