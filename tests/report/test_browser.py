@@ -300,8 +300,8 @@ def _processes():
 
 
 # Attempts at landing the signal while Chromium prints: on a fast machine the print can end
-# between the moment Chromium is seen and the signal, and the process then dies by the
-# default action at exit (return code -signum) without having been stopped mid-print.
+# between the moment Chromium is seen and the signal, and the output folder is then already
+# finished (a stop mid-print leaves none), so that attempt tests nothing.
 _STOP_ATTEMPTS = 5
 
 
@@ -363,8 +363,8 @@ def _stop_while_printing(tmp_path, signum) -> bool:
         assert groups, "Chromium was never seen running"
         planner.send_signal(signum)
         _, stderr = planner.communicate(timeout=30)
-        if planner.returncode == -signum and (work / "sheets" / "plan.json").exists():
-            return False  # the plan was written and the process was exiting: too late
+        if (work / "sheets" / "plan.json").exists():
+            return False  # the output folder was finished before the signal: too late
         assert planner.returncode == 128 + signum, stderr
         assert signal.Signals(signum).name in stderr
         assert "Traceback" not in stderr
