@@ -363,8 +363,11 @@ def _stop_while_printing(tmp_path, signum) -> bool:
         assert groups, "Chromium was never seen running"
         planner.send_signal(signum)
         _, stderr = planner.communicate(timeout=30)
-        if (work / "sheets" / "plan.json").exists():
-            return False  # the output folder was finished before the signal: too late
+        if (work / "sheets" / "plan.json").exists() or planner.returncode == -signum:
+            # Too late: the output folder was finished, or the command had ended and the
+            # process died by the default action at exit. A handler that never works fails
+            # every attempt.
+            return False
         assert planner.returncode == 128 + signum, stderr
         assert signal.Signals(signum).name in stderr
         assert "Traceback" not in stderr
